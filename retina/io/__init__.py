@@ -1,0 +1,1 @@
+"""File formats: atomic writes, the native HDF5 layout, importers of other engines' tables."""

@@ -1,0 +1,150 @@
+"""The validated, immutable description of a radical pair (`SpinSystem`).
+
+Conventions (owned here; the engine modules follow them)
+-----------------------------------------------------------
+Units as stored: hyperfine, exchange and dipolar couplings in millitesla (field-equivalent, i.e.
+multiplied by the free-electron gyromagnetic ratio ``gamma_e = g_e mu_B / hbar`` to become angular
+frequencies); rates in s^-1; g values dimensionless. All tensors are in the molecular frame.
+
+Spin Hamiltonian, in angular-frequency units (``H / hbar``), for a static field ``B`` (tesla):
+
+    H = sum_r (mu_B / hbar) B . g_r . S_r                       (electron Zeeman; g_r = g * 1 if isotropic)
+      + gamma_e * sum_r sum_i S_r . A_ri . I_ri                 (hyperfine, A in tesla)
+      - gamma_e * J * (2 S_1 . S_2 + 1/2)                       (exchange, J in tesla)
+      + gamma_e * S_1 . D . S_2                                 (dipolar, D in tesla)
+
+Nuclear Zeeman terms are neglected (common practice, no source: they are ~1/660 of the electron term
+or smaller).  The point-dipole tensor from a distance r and unit direction n is
+``D = (mu_0 / 4 pi) (g_e mu_B / r^3) (I - 3 n n^T)`` (tesla), from the classical dipole-dipole
+energy divided by ``g_e mu_B``.
+
+Reaction: Haberkorn recombination, ``d rho / dt = -i [H, rho] - (k_S/2){P_S, rho} - (k_T/2){P_T, rho}
++ relaxation``; the singlet yield is ``Phi_S = k_S int_0^inf Tr(P_S rho(t)) dt`` and
+``Phi_T = k_T int Tr(P_T rho) dt``.  Initial state ``P_S / M`` (singlet) or ``P_T / (3 M)``
+(triplet), ``M`` the nuclear-spin dimension.
+
+Relaxation (optional): random-field relaxation of each electron at rate ``k_r`` (the Lindblad
+dissipator ``k_r sum_{a=x,y,z} (2 S_a rho S_a - {S_a S_a, rho}/... )`` as written in
+``retina.spin.operators.relaxation_superoperator``), and singlet-triplet dephasing at rate
+``k_STD`` (Lindblad operator ``P_S``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Nucleus:
+    """One magnetic nucleus: label, spin quantum number I (1/2, 1, 3/2, ...) and hyperfine tensor.
+
+    ``hyperfine_mT`` is a (3, 3) float array in mT in the molecular frame (read-only).
+    """
+
+    label: str
+    spin: float
+    hyperfine_mT: np.ndarray
+
+    @property
+    def multiplicity(self) -> int:
+        """2I + 1."""
+        return int(round(2 * self.spin)) + 1
+
+    @property
+    def is_isotropic(self) -> bool:
+        a = self.hyperfine_mT
+        return bool(np.allclose(a, np.eye(3) * np.trace(a) / 3.0, atol=1e-14, rtol=0.0))
+
+
+@dataclass(frozen=True)
+class Radical:
+    """One radical: label, g (isotropic value or a (3, 3) tensor) and its nuclei."""
+
+    label: str
+    g: float = 2.0023193043625635
+    g_tensor: np.ndarray | None = None
+    nuclei: tuple[Nucleus, ...] = ()
+
+    @property
+    def g_matrix(self) -> np.ndarray:
+        """The (3, 3) g tensor (``g * I`` when only an isotropic g was given)."""
+        return self.g_tensor if self.g_tensor is not None else self.g * np.eye(3)
+
+    @property
+    def nuclear_dimension(self) -> int:
+        return int(np.prod([n.multiplicity for n in self.nuclei])) if self.nuclei else 1
+
+    @property
+    def dimension(self) -> int:
+        """Hilbert dimension of this radical (electron x its nuclei)."""
+        return 2 * self.nuclear_dimension
+
+
+@dataclass(frozen=True)
+class Relaxation:
+    """Optional relaxation rates in s^-1 (zero means absent)."""
+
+    random_field: tuple[float, float] = (0.0, 0.0)  # per electron (radical A, radical B)
+    st_dephasing: float = 0.0
+
+    @property
+    def any(self) -> bool:
+        return bool(self.random_field[0] or self.random_field[1] or self.st_dephasing)
+
+
+@dataclass(frozen=True)
+class SpinSystem:
+    """A validated radical pair.  Build it with :func:`retina.spin.io.load_system` or directly.
+
+    Attributes
+    ----------
+    name : str
+    radicals : (Radical, Radical)
+    exchange_mT : float
+        J in mT, with the term ``-J (2 S1.S2 + 1/2)`` (singlet-triplet gap 2J).
+    dipolar_mT : ndarray (3, 3) or None
+        D in mT, with the term ``S1 . D . S2``; None means no dipolar coupling.
+    k_singlet, k_triplet : float
+        Haberkorn recombination rates, s^-1 (both > 0 unless the yield channel is unused).
+    relaxation : Relaxation
+    initial_state : "singlet" or "triplet"
+    reported_yield : "singlet" or "triplet"
+    source : str or None
+        The file it was read from (for messages and provenance).
+    document : dict
+        The parsed file content, kept verbatim for provenance (hashing, HDF5 attributes).
+    """
+
+    name: str
+    radicals: tuple[Radical, Radical]
+    exchange_mT: float = 0.0
+    dipolar_mT: np.ndarray | None = None
+    k_singlet: float = 1e6
+    k_triplet: float = 1e6
+    relaxation: Relaxation = field(default_factory=Relaxation)
+    initial_state: Literal["singlet", "triplet"] = "singlet"
+    reported_yield: Literal["singlet", "triplet"] = "singlet"
+    source: str | None = None
+    document: dict = field(default_factory=dict, compare=False, repr=False)
+
+    @property
+    def dimension(self) -> int:
+        """Hilbert dimension of the pair: 4 x product of nuclear multiplicities."""
+        return self.radicals[0].dimension * self.radicals[1].dimension
+
+    @property
+    def nuclear_dimension(self) -> int:
+        return self.radicals[0].nuclear_dimension * self.radicals[1].nuclear_dimension
+
+    @property
+    def equal_rates(self) -> bool:
+        return bool(np.isclose(self.k_singlet, self.k_triplet, rtol=1e-12, atol=0.0))
+
+    @property
+    def electron_coupled(self) -> bool:
+        """True when exchange or dipolar coupling links the two electrons."""
+        d = self.dipolar_mT
+        return bool(self.exchange_mT != 0.0 or (d is not None and np.any(d != 0.0)))
