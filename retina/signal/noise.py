@@ -1,0 +1,294 @@
+"""Expected and sampled signal counts per receptor: the forward model of the readout.
+
+Conventions (owned here)
+------------------------
+- The signalling channel is the yield function's reported product (``system.reported_yield``,
+  singlet or triplet, see ``retina.spin.system``): each radical pair formed in receptor ``i`` ends
+  in that product with probability ``Phi_i``, so with Poisson-distributed pair formation of mean
+  ``catch_i`` (``retina.signal.light``) the signal count is Poisson with mean
+
+      lam_i = g * catch_i * Phi_i(b_head)
+
+  (a Poisson process thinned with probability ``Phi_i`` is Poisson).  ``g`` is an overall light
+  gain (1 = the nominal light level), a nuisance parameter when the readout does not know it.
+- Derivatives are per radian.  The heading derivative uses the chain rule
+  ``d lam_i / d psi = g catch_i grad Phi_i(b_head) . d b_head / d psi`` with the tangential
+  harmonic gradient from ``RetinaModel.yields_and_grad`` and ``d b_head / d yaw`` from
+  ``retina.eye.pose.head_field_dyaw``; the catch does not depend on yaw because yaw turns the head
+  about the vertical and the sky models depend on elevation only.  The inclination derivative uses
+  ``d b_world / d I = (-sin I cos D, -sin I sin D, cos I)`` (``retina.eye.field`` convention).
+- A world-fixed scene texture slides across the retina as the head turns; it enters the counts
+  but has no heading derivative here (its heading information would be a visual, not a magnetic,
+  cue), so asking for derivatives with one raises ``InputError``.  A head-fixed texture is a fixed
+  per-receptor factor.
+- Random numbers come from a ``numpy.random.Generator`` (``make_rng(seed)``), so every draw is
+  reproducible from one seed.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy.spatial.transform import Rotation
+
+from retina.errors import InputError
+from retina.signal.light import HorizonSky, SceneTexture, UniformSky, light_level
+
+__all__ = ["make_rng", "expected_counts", "sample_counts", "SignalModel", "field_direction",
+           "field_direction_dincl"]
+
+# Bytes of scratch memory per chunk of poses for (P, N, 3) gradient arrays.
+_CHUNK_BYTES = 64 * 2**20
+
+
+def make_rng(seed=None) -> np.random.Generator:
+    """A ``numpy.random.Generator`` from a seed (int), or the generator itself if one is given."""
+    if isinstance(seed, np.random.Generator):
+        return seed
+    return np.random.default_rng(seed)
+
+
+def expected_counts(yields, catch, gain: float = 1.0) -> np.ndarray:
+    """Expected signal counts ``gain * catch * yields`` (broadcast; shapes ``(P, N)`` or ``(N,)``)."""
+    y = np.asarray(yields, dtype=float)
+    c = np.asarray(catch, dtype=float)
+    if np.any(y < 0) or np.any(y > 1 + 1e-9):
+        raise InputError("expected yields in [0, 1]", key="yields")
+    return gain * c * y
+
+
+def sample_counts(lam, rng=None, size: int | None = None) -> np.ndarray:
+    """Poisson counts with means ``lam``.
+
+    Parameters
+    ----------
+    lam : array_like, shape (...)
+        Expected counts (>= 0).
+    rng : numpy.random.Generator or int, optional
+    size : int, optional
+        Number of independent repetitions, added as a leading axis ``(size, ...)``.
+    """
+    lam = np.asarray(lam, dtype=float)
+    if np.any(lam < 0) or not np.all(np.isfinite(lam)):
+        raise InputError("expected finite non-negative expected counts", key="lam")
+    rng = make_rng(rng)
+    shape = lam.shape if size is None else (size,) + lam.shape
+    return rng.poisson(lam, size=shape).astype(float)
+
+
+def field_direction(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:
+    """Unit field direction (3,) in the world frame (NED) from I (down positive) and D (east of north)."""
+    I, D = np.deg2rad(inclination_deg), np.deg2rad(declination_deg)
+    return np.array([np.cos(I) * np.cos(D), np.cos(I) * np.sin(D), np.sin(I)])
+
+
+def field_direction_dincl(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:
+    """Derivative (3,) of :func:`field_direction` with respect to the inclination, per radian."""
+    I, D = np.deg2rad(inclination_deg), np.deg2rad(declination_deg)
+    return np.array([-np.sin(I) * np.cos(D), -np.sin(I) * np.sin(D), np.cos(I)])
+
+
+def _pose_rotations(headings_deg, pitch_deg: float, roll_deg: float) -> Rotation:
+    h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+    angles = np.c_[h, np.full_like(h, pitch_deg), np.full_like(h, roll_deg)]
+    # Convention of retina.eye.pose (DEVELOPERS.md): intrinsic z-y-x, head -> world.
+    return Rotation.from_euler("ZYX", angles, degrees=True)
+
+
+def _head_field(rot: Rotation, b_world: np.ndarray) -> np.ndarray:
+    try:
+        from retina.eye.pose import head_field
+    except ImportError:  # pragma: no cover - the eye package is written in parallel
+        return rot.inv().apply(b_world)
+    return np.asarray(head_field(rot, b_world), dtype=float).reshape(-1, 3)
+
+
+def _head_field_dyaw(rot: Rotation, b_world: np.ndarray) -> np.ndarray:
+    try:
+        from retina.eye.pose import head_field_dyaw
+    except ImportError:  # pragma: no cover
+        return -rot.inv().apply(np.cross([0.0, 0.0, 1.0], b_world))
+    return np.asarray(head_field_dyaw(rot, b_world), dtype=float).reshape(-1, 3)
+
+
+@dataclass
+class SignalModel:
+    """Expected counts of every receptor as a function of heading: the readout's forward model.
+
+    Parameters
+    ----------
+    retina : RetinaModel-like
+        Has ``yields(b_head (P, 3)) -> (P, N)`` and ``yields_and_grad(b_head) -> ((P, N), (P, N, 3))``
+        and a ``receptors`` attribute (``visual_dirs (N, 3)``, ``solid_angle (N,)``), unless
+        ``receptors`` is given.
+    inclination_deg, declination_deg : float
+        Field direction (the yield function already fixes the field strength).
+    photons : float or str
+        Light level (``retina.signal.light``): mean pairs formed per receptor per integration time.
+    sky : UniformSky or HorizonSky, optional
+    texture : SceneTexture, optional
+    pitch_deg, roll_deg : float
+        Head pitch and roll held fixed while the heading varies.
+    gain : float
+        True overall light gain (1 nominal).
+    receptors : optional
+        Overrides ``retina.receptors``.
+    """
+
+    retina: Any
+    inclination_deg: float = 60.0
+    declination_deg: float = 0.0
+    photons: float | str = 1.0
+    sky: Any = None
+    texture: SceneTexture | None = None
+    pitch_deg: float = 0.0
+    roll_deg: float = 0.0
+    gain: float = 1.0
+    receptors: Any = None
+
+    def __post_init__(self):
+        if self.receptors is None:
+            self.receptors = getattr(self.retina, "receptors", None)
+        if self.receptors is None:
+            raise InputError("the retina model has no receptors; pass receptors=", key="receptors")
+        if not (-90.0 <= float(self.inclination_deg) <= 90.0):
+            raise InputError(f"expected an inclination in [-90, 90] deg, got {self.inclination_deg}",
+                             key="field.inclination_deg")
+        if not (self.gain > 0):
+            raise InputError(f"expected a positive gain, got {self.gain}", key="gain")
+        self.photons = light_level(self.photons)
+        if self.sky is None:
+            self.sky = UniformSky()
+        if not isinstance(self.sky, (UniformSky, HorizonSky)):
+            raise InputError("expected a UniformSky or HorizonSky", key="light.sky")
+        self._unit_catch_head = None
+
+    # -- geometry ---------------------------------------------------------------------------------
+    @property
+    def n_receptors(self) -> int:
+        return int(np.asarray(self.receptors.solid_angle).shape[0])
+
+    @property
+    def b_world(self) -> np.ndarray:
+        """Unit field direction (3,) in the world frame."""
+        return field_direction(self.inclination_deg, self.declination_deg)
+
+    def rotations(self, headings_deg) -> Rotation:
+        """Head-to-world rotations for headings (degrees) at the fixed pitch and roll."""
+        return _pose_rotations(headings_deg, self.pitch_deg, self.roll_deg)
+
+    def b_head(self, headings_deg) -> np.ndarray:
+        """Unit field direction in the head frame, ``(P, 3)``."""
+        return _head_field(self.rotations(headings_deg), self.b_world)
+
+    def catch(self, headings_deg, *, photons: float | None = None) -> np.ndarray:
+        """Mean pairs formed per receptor, ``(P, N)`` (times ``gain``), see ``light.photon_catch``."""
+        from retina.signal.light import photon_catch
+
+        ph = self.photons if photons is None else photons
+        h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+        world_tex = self.texture is not None and self.texture.attached == "world"
+        if not world_tex:
+            # Yaw-independent: compute once for the fixed pitch and roll.
+            if self._unit_catch_head is None:
+                self._unit_catch_head = photon_catch(
+                    self.receptors.visual_dirs, self.receptors.solid_angle, self.rotations([0.0]),
+                    photons=1.0, sky=self.sky, texture=self.texture)[0]
+            return np.broadcast_to(self.gain * ph * self._unit_catch_head, (h.size, self.n_receptors))
+        return self.gain * photon_catch(self.receptors.visual_dirs, self.receptors.solid_angle,
+                                        self.rotations(h), photons=ph, sky=self.sky,
+                                        texture=self.texture)
+
+    # -- expected counts --------------------------------------------------------------------------
+    def expected(self, headings_deg) -> np.ndarray:
+        """Expected counts ``lam (P, N)`` at headings (degrees)."""
+        h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+        y = np.asarray(self.retina.yields(self.b_head(h)), dtype=float).reshape(h.size, -1)
+        return self.catch(h) * y
+
+    def expected_and_derivative(self, headings_deg, *, wrt: str = "heading"):
+        """Expected counts and their derivative (per radian) at headings (degrees).
+
+        Parameters
+        ----------
+        headings_deg : array_like, shape (P,)
+        wrt : {"heading", "inclination"}
+
+        Returns
+        -------
+        lam : ndarray, shape (P, N)
+        dlam : ndarray, shape (P, N)
+        """
+        if self.texture is not None and self.texture.attached == "world":
+            raise InputError("derivatives with a world-fixed texture are not defined (it would add a "
+                             "visual heading cue); use a head-fixed texture or none", key="light.texture")
+        if wrt not in ("heading", "inclination"):
+            raise InputError(f"expected wrt 'heading' or 'inclination', got {wrt!r}", key="wrt")
+        h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+        P, N = h.size, self.n_receptors
+        lam = np.empty((P, N))
+        dlam = np.empty((P, N))
+        chunk = max(1, int(_CHUNK_BYTES // (N * 3 * 8)))
+        c = self.catch(h[:1])[0]
+        for s in range(0, P, chunk):
+            hh = h[s:s + chunk]
+            rot = self.rotations(hh)
+            bh = _head_field(rot, self.b_world)
+            if wrt == "heading":
+                db = _head_field_dyaw(rot, self.b_world)
+            else:
+                db = rot.inv().apply(field_direction_dincl(self.inclination_deg, self.declination_deg))
+                db = db - np.sum(db * bh, axis=1, keepdims=True) * bh   # tangential (it already is)
+            y, g = self.retina.yields_and_grad(bh)
+            y = np.asarray(y, dtype=float).reshape(hh.size, N)
+            g = np.asarray(g, dtype=float).reshape(hh.size, N, 3)
+            lam[s:s + chunk] = c * y
+            dlam[s:s + chunk] = c * np.einsum("pnk,pk->pn", g, db)
+        return lam, dlam
+
+    def expected_and_derivative_fourier(self, headings_deg, degree: int):
+        """As :meth:`expected_and_derivative` (heading), through exact trigonometric interpolation.
+
+        With pitch and roll fixed, ``b_head(psi)`` turns about a fixed head axis as ``psi``
+        changes, so a yield function of harmonic degree ``L`` is a trigonometric polynomial of
+        degree ``L`` in ``psi`` for every receptor (rotating a degree-l harmonic mixes orders
+        ``|m| <= l`` only).  Evaluating the model (values and harmonic gradients) at ``2 L + 1``
+        equally spaced headings and interpolating both is therefore exact up to rounding, and far
+        cheaper when many headings are wanted.  Not valid with a world-fixed texture.
+
+        Parameters
+        ----------
+        headings_deg : array_like, shape (P,)
+        degree : int
+            Harmonic degree ``L`` of the receptor responses (an upper bound is fine).
+        """
+        L = int(degree)
+        if L < 0:
+            raise InputError(f"expected a harmonic degree >= 0, got {degree}", key="degree")
+        M = 2 * L + 1
+        nodes = np.arange(M) * 360.0 / M
+        lam_n, dlam_n = self.expected_and_derivative(nodes, wrt="heading")
+        h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, dtype=float)))
+        W = _trig_interp_matrix(np.deg2rad(nodes), h, L)
+        return W @ lam_n, W @ dlam_n
+
+    # -- noise ------------------------------------------------------------------------------------
+    def sample(self, headings_deg, rng=None, size: int | None = None) -> np.ndarray:
+        """Poisson counts at headings: ``(P, N)`` or ``(size, P, N)``."""
+        return sample_counts(self.expected(headings_deg), rng, size)
+
+
+def _trig_interp_matrix(nodes: np.ndarray, x: np.ndarray, L: int) -> np.ndarray:
+    """Weights ``(len(x), M)`` of exact interpolation of a degree-``L`` trigonometric polynomial
+    from ``M = 2L + 1`` equally spaced nodes (the Dirichlet kernel ``sin(M t/2) / (M sin(t/2))``)."""
+    M = nodes.size
+    t = x[:, None] - nodes[None, :]
+    half = 0.5 * t
+    s = np.sin(half)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        W = np.sin(M * half) / (M * s)
+    near = np.abs(s) < 1e-12
+    W[near] = np.cos(M * half[near]) / np.cos(half[near])  # limit (sign of the alias at t = 2 pi k)
+    return W
