@@ -1,0 +1,91 @@
+"""A content-hash cache of computed yield functions.
+
+The key is the sha256 of a canonical JSON record of everything that determines the result: the
+canonical spin-system document (:func:`retina.spin.io.dump_system`), the field strength (as the
+shortest round-tripping decimal), the degree, the resolved engine method, the number of check points
+and the retina version.  Entries are native HDF5 files ``<key>.h5`` (:mod:`retina.io.hdf5`) in the
+cache folder: ``$RETINA_CACHE`` when set, else ``~/.cache/retina-compass``.  Writes are atomic; an
+unreadable entry counts as a miss and is removed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from pathlib import Path
+
+__all__ = ["default_cache_dir", "cache_key", "YieldCache"]
+
+
+def default_cache_dir() -> Path:
+    """``$RETINA_CACHE`` if set and non-empty, else ``~/.cache/retina-compass``."""
+    env = os.environ.get("RETINA_CACHE")
+    return Path(env).expanduser() if env else Path.home() / ".cache" / "retina-compass"
+
+
+def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int) -> str:
+    """sha256 hex digest identifying one :meth:`YieldFunction.from_system` result."""
+    import retina
+    from retina.spin.io import dump_system
+
+    record = {
+        "system": dump_system(system),
+        "field_uT": repr(float(field_uT)),
+        "degree": int(degree),
+        "method": str(method),
+        "check_points": int(check_points),
+        "retina": retina.__version__,
+    }
+    return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
+
+
+class YieldCache:
+    """A folder of cached yield functions keyed by :func:`cache_key`.
+
+    Parameters
+    ----------
+    folder : str or Path, optional
+        Default :func:`default_cache_dir`. Created on the first :meth:`put`.
+    """
+
+    def __init__(self, folder: str | Path | None = None):
+        self.folder = Path(folder).expanduser() if folder is not None else default_cache_dir()
+
+    def path_for(self, key: str) -> Path:
+        if len(key) != 64 or any(c not in "0123456789abcdef" for c in key):
+            raise ValueError(f"not a cache key: {key!r}")
+        return self.folder / f"{key}.h5"
+
+    def get(self, key: str):
+        """The cached :class:`YieldFunction` for ``key``, or None."""
+        from retina.errors import InputError
+        from retina.io.hdf5 import load_yield_function
+
+        path = self.path_for(key)
+        if not path.exists():
+            return None
+        try:
+            yf = load_yield_function(path)
+        except (InputError, OSError, KeyError, ValueError):
+            path.unlink(missing_ok=True)
+            return None
+        if yf.provenance.get("input_hash") != key:
+            return None
+        return yf
+
+    def put(self, key: str, yf) -> Path:
+        """Store ``yf`` under ``key`` (atomically, replacing any older entry)."""
+        from retina.io.hdf5 import save_yield_function
+
+        self.folder.mkdir(parents=True, exist_ok=True)
+        return save_yield_function(yf, self.path_for(key), force=True)
+
+    def clear(self) -> int:
+        """Remove every entry; return how many were removed."""
+        n = 0
+        if self.folder.is_dir():
+            for p in self.folder.glob("*.h5"):
+                p.unlink(missing_ok=True)
+                n += 1
+        return n

@@ -1,0 +1,430 @@
+"""The yield function: a radical pair's reported yield as a function of the field direction.
+
+A :class:`YieldFunction` holds the even-degree real spherical-harmonic coefficients of
+``Phi(b)``, ``b`` a unit field direction in the molecular frame, in the layout of
+:mod:`retina.sphere` (degrees ``0, 2, ..., L``).  It evaluates, differentiates (tangential
+gradient), rotates (active, ``(R Phi)(b) = Phi(R^-1 b)``), finds its extremes, and carries a
+provenance dictionary that travels with it into HDF5 files (:mod:`retina.io.hdf5`).
+
+Conventions (owned here)
+------------------------
+- ``fit_error`` is the largest absolute difference, in yield units, between the fitted expansion
+  and independently computed values: on the check grid for :meth:`YieldFunction.from_system`, on
+  the data points for :meth:`YieldFunction.from_values` and the importers.
+- Extreme directions (:class:`Anisotropy`) are axes: ``b`` and ``-b`` give the same yield.  They are
+  reported on the upper hemisphere (z > 0; on the equator y > 0; then x > 0).
+- ``relative`` anisotropy is ``(max - min) / mean``, ``mean`` the average over the sphere.
+- Provenance is a flat or nested dict of str, int, float and bool values (nested dicts allowed).
+  :meth:`YieldFunction.from_system` fills: ``kind``, ``spin_system_toml`` (the canonical document,
+  :func:`retina.spin.io.dump_system`), ``system_name``, ``system_source``, ``field_uT``, ``method``,
+  ``degree``, ``grid`` / ``grid_order`` / ``grid_points`` / ``computed_points``, ``check_grid`` /
+  ``check_points``, ``truncation_error_max`` / ``truncation_error_rms``, ``compute_seconds``,
+  ``versions`` (numpy, scipy, numba, h5py, retina), ``date_utc`` (ISO 8601), ``input_hash`` (the
+  cache key, :mod:`retina.cache`) and ``content_hash`` (sha256 of the degree and the little-endian
+  float64 coefficient bytes).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+from scipy.optimize import minimize
+from scipy.spatial.transform import Rotation
+
+from retina import sphere
+from retina.errors import InputError
+
+__all__ = ["YieldFunction", "Anisotropy", "content_hash", "package_versions", "canonical_axis"]
+
+BASIS = "real-sh-even-orthonormal-no-cs"
+DEFAULT_DEGREE = 16
+DEFAULT_CHECK_POINTS = 200
+
+
+@dataclass(frozen=True)
+class Anisotropy:
+    """Extremes of a yield function.
+
+    Attributes
+    ----------
+    max, min, mean : float
+        Largest, smallest and sphere-average yield (dimensionless yield units).
+    delta : float
+        ``max - min``.
+    relative : float
+        ``delta / mean`` (a fraction; multiply by 100 for percent). ``inf`` when ``mean == 0``.
+    argmax, argmin : ndarray (3,)
+        Unit field directions (molecular frame) of the maximum and the minimum, on the upper
+        hemisphere (see the module docstring).
+    """
+
+    max: float
+    min: float
+    mean: float
+    delta: float
+    relative: float
+    argmax: np.ndarray
+    argmin: np.ndarray
+
+
+def canonical_axis(v) -> np.ndarray:
+    """The representative of the axis ``{v, -v}`` on the upper hemisphere, shape (3,), unit length."""
+    v = np.asarray(v, dtype=float)
+    v = v / np.linalg.norm(v)
+    for c in (v[2], v[1], v[0]):
+        if abs(c) > 1e-12:
+            return v if c > 0 else -v
+    return v
+
+
+def content_hash(coeffs: np.ndarray, degree: int) -> str:
+    """sha256 hex digest of ``degree`` and the little-endian float64 bytes of ``coeffs``."""
+    h = hashlib.sha256()
+    h.update(f"{BASIS}:{int(degree)}:".encode())
+    h.update(np.ascontiguousarray(coeffs, dtype="<f8").tobytes())
+    return h.hexdigest()
+
+
+def package_versions() -> dict[str, str]:
+    """Versions of the packages that shape a computed yield function."""
+    import h5py
+    import numba
+    import scipy
+
+    import retina
+
+    return {"numpy": np.__version__, "scipy": scipy.__version__, "numba": numba.__version__,
+            "h5py": h5py.__version__, "retina": retina.__version__}
+
+
+class YieldFunction:
+    """An even function on the unit sphere stored as real spherical-harmonic coefficients.
+
+    Parameters
+    ----------
+    coeffs : array_like, shape (K,)
+        Even-degree coefficients, ``K = (L + 1)(L + 2) / 2`` (layout of :mod:`retina.sphere`).
+    degree : int
+        The maximum degree ``L`` (even); must match ``K``.
+    provenance : dict, optional
+        Where the function came from (see the module docstring). Copied.
+    fit_error : float, optional
+        Largest absolute fit error (yield units), see the module docstring.
+    """
+
+    __slots__ = ("_coeffs", "_degree", "provenance", "fit_error", "from_cache")
+
+    def __init__(self, coeffs, degree: int, provenance: dict | None = None, fit_error: float | None = None):
+        c = np.array(coeffs, dtype=float).reshape(-1)
+        if not np.all(np.isfinite(c)):
+            raise ValueError("yield-function coefficients must be finite")
+        expected = sphere.n_coeffs(degree)
+        if c.shape[0] != expected:
+            raise ValueError(f"degree {degree} needs {expected} coefficients, got {c.shape[0]}")
+        c.flags.writeable = False
+        self._coeffs = c
+        self._degree = int(degree)
+        self.provenance = dict(provenance or {})
+        self.fit_error = None if fit_error is None else float(fit_error)
+        self.from_cache = False  # set by from_system when the result came from the cache
+
+    # ------------------------------------------------------------------ basic properties
+
+    @property
+    def coeffs(self) -> np.ndarray:
+        """Read-only coefficient vector, shape (K,)."""
+        return self._coeffs
+
+    @property
+    def degree(self) -> int:
+        return self._degree
+
+    @property
+    def mean(self) -> float:
+        """Average over the sphere: ``coeffs[0] / sqrt(4 pi)``."""
+        return float(self._coeffs[0] / np.sqrt(4 * np.pi))
+
+    def __repr__(self) -> str:
+        name = self.provenance.get("system_name", "")
+        return f"YieldFunction(degree={self._degree}, mean={self.mean:.6g}{', ' + repr(name) if name else ''})"
+
+    # ------------------------------------------------------------------ evaluation
+
+    def __call__(self, dirs) -> np.ndarray:
+        """Yield at unit field directions.
+
+        Parameters
+        ----------
+        dirs : array_like, shape (..., 3)
+            Field directions (normalised here).
+
+        Returns
+        -------
+        ndarray, shape (...)
+        """
+        d = np.asarray(dirs, dtype=float)
+        return sphere.evaluate(self._coeffs, d.reshape(-1, 3)).reshape(d.shape[:-1])
+
+    def gradient(self, dirs) -> np.ndarray:
+        """Tangential gradient of the yield at unit directions, shape (..., 3), per radian.
+
+        The derivative of ``Phi(b(t))`` along a curve on the sphere is ``gradient(b) . db/dt``;
+        the gradient is perpendicular to ``b``.
+        """
+        d = np.asarray(dirs, dtype=float)
+        _, g = sphere.evaluate_grad(self._coeffs, d.reshape(-1, 3))
+        return g.reshape(d.shape)
+
+    def rotate(self, rotation: Rotation) -> "YieldFunction":
+        """The actively rotated function ``Phi'(b) = Phi(R^-1 b)`` (exact in the coefficients).
+
+        ``rotation`` is a single :class:`scipy.spatial.transform.Rotation`.  Provenance is kept,
+        with the rotation appended (as a quaternion, scalar last) under ``rotations``.
+        """
+        if not isinstance(rotation, Rotation) or not rotation.single:
+            raise ValueError("rotate takes one scipy Rotation; rotate many with retina.sphere.rotate")
+        c = sphere.rotate(self._coeffs, rotation)
+        prov = dict(self.provenance)
+        q = " ".join(f"{x:.17g}" for x in rotation.as_quat())
+        prov["rotations"] = (prov.get("rotations", "") + "; " if prov.get("rotations") else "") + q
+        prov["content_hash"] = content_hash(c, self._degree)
+        return YieldFunction(c, self._degree, prov, self.fit_error)
+
+    # ------------------------------------------------------------------ extremes
+
+    def anisotropy(self, *, n_search: int | None = None) -> Anisotropy:
+        """Maximum, minimum and their directions.
+
+        A dense Fibonacci lattice on the upper hemisphere (``n_search`` points, default
+        ``max(2000, 30 (L + 1)^2)``) gives candidates, refined by L-BFGS-B on the sphere
+        (tangent-plane coordinates around each candidate, analytic gradient).
+        """
+        L = self._degree
+        if L == 0:
+            m = self.mean
+            z = np.array([0.0, 0.0, 1.0])
+            return Anisotropy(m, m, m, 0.0, 0.0, z.copy(), z.copy())
+        n = int(n_search or max(2000, 30 * (L + 1) ** 2))
+        pts = sphere.fibonacci(n, hemisphere=True).points
+        vals = self(pts)
+        best = {}
+        for sign, label in ((-1.0, "max"), (1.0, "min")):
+            order = np.argsort(sign * vals)
+            starts = _distinct_axes(pts[order[:64]], 4)
+            cands = [self._refine(p, sign) for p in starts]
+            b, v = min(cands, key=lambda bv: sign * bv[1])
+            best[label] = (canonical_axis(b), float(v))
+        mx, mn = best["max"][1], best["min"][1]
+        mean = self.mean
+        rel = (mx - mn) / mean if mean != 0 else float("inf")
+        return Anisotropy(mx, mn, mean, mx - mn, rel, best["max"][0], best["min"][0])
+
+    def _refine(self, b0: np.ndarray, sign: float) -> tuple[np.ndarray, float]:
+        """Minimise ``sign * Phi`` starting at ``b0`` in tangent coordinates ``b = norm(b0 + u1 e1 + u2 e2)``."""
+        b0 = b0 / np.linalg.norm(b0)
+        e1 = np.cross(b0, [1.0, 0.0, 0.0] if abs(b0[0]) < 0.9 else [0.0, 1.0, 0.0])
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(b0, e1)
+        E = np.stack([e1, e2], axis=1)  # (3, 2)
+
+        def fun(u):
+            v = b0 + E @ u
+            r = np.linalg.norm(v)
+            b = v / r
+            val, grad = sphere.evaluate_grad(self._coeffs, b[None, :])
+            # db/du = (I - b b^T) E / r ; the tangential gradient already lies in the tangent plane
+            return sign * val[0], sign * (grad[0] @ E) / r
+
+        res = minimize(fun, np.zeros(2), jac=True, method="L-BFGS-B",
+                       bounds=[(-0.5, 0.5), (-0.5, 0.5)], options={"gtol": 1e-12, "ftol": 1e-15, "maxiter": 200})
+        v = b0 + E @ res.x
+        b = v / np.linalg.norm(v)
+        return b, float(self(b[None, :])[0])
+
+    # ------------------------------------------------------------------ files
+
+    def save(self, path: str | Path, force: bool = False) -> Path:
+        """Write the native HDF5 file (atomically; see :mod:`retina.io.hdf5`)."""
+        from retina.io.hdf5 import save_yield_function
+
+        return save_yield_function(self, path, force=force)
+
+    @classmethod
+    def load(cls, path: str | Path) -> "YieldFunction":
+        """Read a native HDF5 file written by :meth:`save`."""
+        from retina.io.hdf5 import load_yield_function
+
+        return load_yield_function(path)
+
+    # ------------------------------------------------------------------ constructors
+
+    @classmethod
+    def from_values(cls, values, grid: "sphere.SphereGrid", degree: int, provenance: dict | None = None
+                    ) -> "YieldFunction":
+        """Fit even degrees ``0..L`` to values on a quadrature grid by projection.
+
+        Parameters
+        ----------
+        values : array_like, shape (N,)
+            Yield at ``grid.points``.
+        grid : retina.sphere.SphereGrid
+            A quadrature rule exact to ``2 L`` (for example ``sphere.grid_for_degree(L)``).
+        degree : int
+            Even ``L``.
+        provenance : dict, optional
+
+        Notes
+        -----
+        ``fit_error`` is the largest ``|fit - values|`` on the grid nodes (this measures the
+        truncation, not the error between nodes).
+        """
+        v = np.asarray(values, dtype=float).reshape(-1)
+        coeffs = sphere.fit_even(v, grid, degree)
+        resid = sphere.evaluate(coeffs, grid.points) - v
+        prov = dict(provenance or {})
+        prov.setdefault("kind", "from_values")
+        prov.update(degree=int(degree), grid=grid.name, grid_points=len(grid),
+                    node_residual_max=float(np.max(np.abs(resid))),
+                    node_residual_rms=float(np.sqrt(np.mean(resid**2))),
+                    content_hash=content_hash(coeffs, degree))
+        return cls(coeffs, degree, prov, float(np.max(np.abs(resid))))
+
+    @classmethod
+    def from_system(cls, system, field_uT: float, degree: int = DEFAULT_DEGREE, *, method: str = "auto",
+                    progress: Callable[[int, int], None] | None = None, cache: bool = False,
+                    cache_dir: str | Path | None = None, check_points: int = DEFAULT_CHECK_POINTS,
+                    max_bytes: int | None = None) -> "YieldFunction":
+        """Compute the yield function of a spin system through the engine.
+
+        The engine (:func:`retina.spin.engine.compute_yields`) runs on one hemisphere of the
+        smallest Lebedev rule exact to ``2 L`` (using ``Phi(b) = Phi(-b)``) plus ``check_points``
+        Fibonacci points on the upper hemisphere, which are no nodes of the rule.  The degree-``L``
+        fit is then compared with the engine at the check points: the largest and rms differences
+        are the truncation error (``fit_error``, and ``truncation_error_max/rms`` in provenance).
+
+        Parameters
+        ----------
+        system : retina.spin.system.SpinSystem
+        field_uT : float
+            Field strength, microtesla (> 0).
+        degree : int
+            Even maximum degree ``L`` (default 16).
+        method : str
+            "auto" (the engine chooses) or an engine method name.
+        progress : callable(done, total), optional
+            Called by the engine; ``total`` counts grid and check directions together.
+        cache : bool
+            Look the result up in, and store it into, the content-hash cache (:mod:`retina.cache`).
+        cache_dir : str or Path, optional
+            Cache folder (default: ``$RETINA_CACHE`` or ``~/.cache/retina-compass``).
+        check_points : int
+            Number of independent check directions (>= 1).
+        max_bytes : int, optional
+            Memory limit passed to the engine (it raises ResourceError beyond it).
+
+        Raises
+        ------
+        InputError
+            Bad field, degree or method, or a system outside the chosen method's scope.
+        retina.errors.ResourceError
+            When the engine estimates the job would not fit in memory.
+        """
+        from retina.spin import engine
+
+        field_uT = _check_field(field_uT)
+        degree = _check_degree(degree)
+        if int(check_points) < 1:
+            raise InputError(f"expected check_points >= 1, got {check_points!r}", key="check_points")
+        resolved = engine.choose_method(system) if method == "auto" else method
+
+        store = key = None
+        if cache:
+            from retina.cache import YieldCache, cache_key
+
+            store = YieldCache(cache_dir)
+            key = cache_key(system, field_uT, degree, resolved, check_points=int(check_points))
+            hit = store.get(key)
+            if hit is not None:
+                hit.from_cache = True
+                return hit
+
+        grid = sphere.grid_for_degree(degree)
+        half, full_from_half = grid.hemisphere()
+        check = sphere.fibonacci(int(check_points), hemisphere=True)
+        dirs = np.concatenate([grid.points[half], check.points], axis=0)
+        t0 = time.perf_counter()
+        values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
+                                                  max_bytes=max_bytes), dtype=float)
+        seconds = time.perf_counter() - t0
+        if values.shape != (dirs.shape[0],):
+            raise RuntimeError(f"engine returned shape {values.shape} for {dirs.shape[0]} directions")
+        h = half.size
+        coeffs = sphere.fit_even(values[:h][full_from_half], grid, degree)
+        err = sphere.evaluate(coeffs, check.points) - values[h:]
+        err_max = float(np.max(np.abs(err)))
+        err_rms = float(np.sqrt(np.mean(err**2)))
+
+        from retina.spin.io import dump_system
+
+        prov = {
+            "kind": "from_system",
+            "spin_system_toml": dump_system(system),
+            "system_name": system.name,
+            "system_source": system.source or "",
+            "field_uT": field_uT,
+            "method": resolved,
+            "degree": degree,
+            "grid": grid.name,
+            "grid_order": int(grid.degree),
+            "grid_points": len(grid),
+            "computed_points": int(h),
+            "check_grid": check.name,
+            "check_points": len(check),
+            "truncation_error_max": err_max,
+            "truncation_error_rms": err_rms,
+            "compute_seconds": float(seconds),
+            "versions": package_versions(),
+            "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+            "content_hash": content_hash(coeffs, degree),
+        }
+        if key is not None:
+            prov["input_hash"] = key
+        yf = cls(coeffs, degree, prov, err_max)
+        if store is not None:
+            store.put(key, yf)
+        return yf
+
+
+def _distinct_axes(points: np.ndarray, k: int, min_angle_deg: float = 10.0) -> list[np.ndarray]:
+    """Up to ``k`` of ``points`` (best first) whose axes are at least ``min_angle_deg`` apart."""
+    cos_lim = np.cos(np.radians(min_angle_deg))
+    out: list[np.ndarray] = []
+    for p in points:
+        if all(abs(p @ q) < cos_lim for q in out):
+            out.append(p)
+            if len(out) == k:
+                break
+    return out
+
+
+def _check_field(field_uT) -> float:
+    try:
+        f = float(field_uT)
+    except (TypeError, ValueError):
+        raise InputError(f"expected a field strength in microtesla, got {field_uT!r}", key="field_uT") from None
+    if not np.isfinite(f) or f <= 0:
+        raise InputError(f"expected a field strength > 0 microtesla, got {field_uT!r}", key="field_uT")
+    return f
+
+
+def _check_degree(degree) -> int:
+    largest = (max(sphere.lebedev_orders()) // 2) // 2 * 2
+    if isinstance(degree, bool) or int(degree) != degree or degree < 2 or degree % 2 or degree > largest:
+        raise InputError(f"expected an even degree between 2 and {largest}, got {degree!r}", key="degree")
+    return int(degree)
