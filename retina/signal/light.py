@@ -228,12 +228,16 @@ def photon_catch(visual_dirs, solid_angle, rotations: Rotation | None = None, *,
     if rotations.single:
         rotations = Rotation.concatenate([rotations])
     P = len(rotations)
-    out = np.empty((P, d.shape[0]))
-    head_tex = texture.factor(d) if (texture is not None and texture.attached == "head") else None
-    for p in range(P):
-        world = rotations[p].apply(d)
-        c = sky.radiance(world)
-        if texture is not None:
-            c = c * (head_tex if head_tex is not None else texture.factor(world))
-        out[p] = c
-    return out * (w * scale)[None, :]
+    head_tex = texture.factor(d) if (texture is not None and texture.attached == "head") else 1.0
+    if texture is not None and texture.attached == "world":
+        out = np.empty((P, d.shape[0]))
+        for p in range(P):
+            world = rotations[p].apply(d)
+            out[p] = sky.radiance(world) * texture.factor(world)
+    elif isinstance(sky, UniformSky):
+        out = np.ones((P, d.shape[0]))
+    else:
+        # Only the world z component (elevation) matters: third row of each rotation matrix.
+        z = rotations.as_matrix()[:, 2, :] @ d.T
+        out = sky.radiance(np.stack([np.zeros_like(z), np.zeros_like(z), z], axis=-1))
+    return out * (head_tex * w * scale)[None, :]

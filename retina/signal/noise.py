@@ -34,6 +34,7 @@ import numpy as np
 from scipy.spatial.transform import Rotation
 
 from retina.errors import InputError
+from retina.eye.pose import head_field, head_field_dyaw
 from retina.signal.light import HorizonSky, SceneTexture, UniformSky, light_level
 
 __all__ = ["make_rng", "expected_counts", "sample_counts", "SignalModel", "field_direction",
@@ -90,27 +91,15 @@ def field_direction_dincl(inclination_deg: float, declination_deg: float = 0.0) 
     return np.array([-np.sin(I) * np.cos(D), -np.sin(I) * np.sin(D), np.cos(I)])
 
 
-def _pose_rotations(headings_deg, pitch_deg: float, roll_deg: float) -> Rotation:
+def _pose_rotations(headings_deg, pitch_deg, roll_deg) -> Rotation:
+    from retina.eye.pose import pose_rotation
+
     h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
-    angles = np.c_[h, np.full_like(h, pitch_deg), np.full_like(h, roll_deg)]
-    # Convention of retina.eye.pose (DEVELOPERS.md): intrinsic z-y-x, head -> world.
-    return Rotation.from_euler("ZYX", angles, degrees=True)
+    return pose_rotation(h, pitch_deg, roll_deg)
 
 
-def _head_field(rot: Rotation, b_world: np.ndarray) -> np.ndarray:
-    try:
-        from retina.eye.pose import head_field
-    except ImportError:  # pragma: no cover - the eye package is written in parallel
-        return rot.inv().apply(b_world)
-    return np.asarray(head_field(rot, b_world), dtype=float).reshape(-1, 3)
-
-
-def _head_field_dyaw(rot: Rotation, b_world: np.ndarray) -> np.ndarray:
-    try:
-        from retina.eye.pose import head_field_dyaw
-    except ImportError:  # pragma: no cover
-        return -rot.inv().apply(np.cross([0.0, 0.0, 1.0], b_world))
-    return np.asarray(head_field_dyaw(rot, b_world), dtype=float).reshape(-1, 3)
+def _as_multi(rot: Rotation) -> Rotation:
+    return Rotation.concatenate([rot]) if rot.single else rot
 
 
 @dataclass
@@ -181,7 +170,7 @@ class SignalModel:
 
     def b_head(self, headings_deg) -> np.ndarray:
         """Unit field direction in the head frame, ``(P, 3)``."""
-        return _head_field(self.rotations(headings_deg), self.b_world)
+        return head_field(self.rotations(headings_deg), self.b_world)
 
     def catch(self, headings_deg, *, photons: float | None = None) -> np.ndarray:
         """Mean pairs formed per receptor, ``(P, N)`` (times ``gain``), see ``light.photon_catch``."""
@@ -221,29 +210,48 @@ class SignalModel:
         lam : ndarray, shape (P, N)
         dlam : ndarray, shape (P, N)
         """
+        return self.expected_and_derivative_at(self.rotations(headings_deg), wrt=wrt)
+
+    def expected_at(self, rotations: Rotation) -> np.ndarray:
+        """Expected counts ``(P, N)`` for arbitrary head-to-world rotations (e.g. a head scan)."""
+        rot = _as_multi(rotations)
+        y = np.asarray(self.retina.yields(head_field(rot, self.b_world)), dtype=float)
+        return self._catch_rot(rot) * y.reshape(len(rot), -1)
+
+    def _catch_rot(self, rot: Rotation) -> np.ndarray:
+        from retina.signal.light import photon_catch
+
+        return self.gain * photon_catch(self.receptors.visual_dirs, self.receptors.solid_angle, rot,
+                                        photons=self.photons, sky=self.sky, texture=self.texture)
+
+    def expected_and_derivative_at(self, rotations: Rotation, *, wrt: str = "heading"):
+        """Expected counts and derivatives ``((P, N), (P, N))`` for arbitrary head rotations.
+
+        ``wrt="heading"`` differentiates with respect to a common yaw offset of all poses.
+        """
         if self.texture is not None and self.texture.attached == "world":
             raise InputError("derivatives with a world-fixed texture are not defined (it would add a "
                              "visual heading cue); use a head-fixed texture or none", key="light.texture")
         if wrt not in ("heading", "inclination"):
             raise InputError(f"expected wrt 'heading' or 'inclination', got {wrt!r}", key="wrt")
-        h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
-        P, N = h.size, self.n_receptors
+        rot_all = _as_multi(rotations)
+        P, N = len(rot_all), self.n_receptors
         lam = np.empty((P, N))
         dlam = np.empty((P, N))
         chunk = max(1, int(_CHUNK_BYTES // (N * 3 * 8)))
-        c = self.catch(h[:1])[0]
         for s in range(0, P, chunk):
-            hh = h[s:s + chunk]
-            rot = self.rotations(hh)
-            bh = _head_field(rot, self.b_world)
+            rot = rot_all[s:s + chunk]
+            bh = head_field(rot, self.b_world)
             if wrt == "heading":
-                db = _head_field_dyaw(rot, self.b_world)
+                db = head_field_dyaw(rot, self.b_world)
             else:
                 db = rot.inv().apply(field_direction_dincl(self.inclination_deg, self.declination_deg))
-                db = db - np.sum(db * bh, axis=1, keepdims=True) * bh   # tangential (it already is)
             y, g = self.retina.yields_and_grad(bh)
-            y = np.asarray(y, dtype=float).reshape(hh.size, N)
-            g = np.asarray(g, dtype=float).reshape(hh.size, N, 3)
+            y = np.asarray(y, dtype=float).reshape(len(rot), N)
+            g = np.asarray(g, dtype=float).reshape(len(rot), N, 3)
+            # Catch: yaw- and inclination-independent (sky depends on elevation only, texture is
+            # head-fixed or absent), but pitch and roll may vary between poses.
+            c = self._catch_rot(rot)
             lam[s:s + chunk] = c * y
             dlam[s:s + chunk] = c * np.einsum("pnk,pk->pn", g, db)
         return lam, dlam

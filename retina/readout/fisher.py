@@ -1,0 +1,275 @@
+"""Fisher information on heading (and inclination) from Poisson receptor counts; Cramer-Rao bounds.
+
+Conventions (owned here)
+------------------------
+- Counts ``n_i`` are independent Poisson with means ``lam_i(theta)`` (``retina.signal.noise``).
+  The Fisher information matrix is ``I_ab = sum_i (d lam_i / d theta_a)(d lam_i / d theta_b) / lam_i``
+  (Poisson; e.g. Kay, *Fundamentals of Statistical Signal Processing: Estimation Theory*, 1993,
+  ch. 3); receptors with ``lam_i = 0`` contribute nothing.  Angles are differentiated per radian,
+  so information is in rad^-2; the Cramer-Rao bound on the standard deviation of an unbiased
+  heading estimate is ``1 / sqrt(I)`` rad, reported in degrees.
+- Nuisance parameters are handled by the Schur complement ``I_eff = I_psi - I_psi,nu I_nu,nu^-1
+  I_nu,psi``.  For an unknown overall light gain ``g`` (``lam_i = g mu_i``, ``d lam_i / d g = mu_i``)
+  this is ``I_eff = sum dlam^2 / lam - (sum dlam)^2 / sum lam`` (independent of ``g``).
+  ``nuisance="gain"`` applies it per row (per pose); :mod:`retina.readout.scans` adds per-pose and
+  per-receptor gains over head scans.
+- With a fixed gain the information is proportional to the light level (``lam`` and ``dlam`` both
+  scale with it), so curves over photon levels are computed once per photon and scaled.
+- Derivatives come analytically from the harmonic gradients through
+  ``SignalModel.expected_and_derivative`` (chain rule with ``d b_head / d yaw``), never from finite
+  differences.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from typing import Callable, Sequence
+
+import numpy as np
+
+from retina.errors import InputError
+
+__all__ = [
+    "poisson_information",
+    "poisson_fisher_matrix",
+    "gain_schur",
+    "schur_complement",
+    "cramer_rao_deg",
+    "InformationCurve",
+    "heading_information",
+    "inclination_information",
+    "joint_information",
+    "bound_vs_photons",
+    "bound_vs_inclination",
+    "bound_vs_parameter",
+    "mean_bound_deg",
+]
+
+NUISANCES = ("none", "gain")
+
+
+def _safe_ratio(num: np.ndarray, lam: np.ndarray) -> np.ndarray:
+    out = np.zeros(np.broadcast(num, lam).shape)
+    np.divide(num, lam, out=out, where=lam > 0)
+    return out
+
+
+def poisson_information(lam, dlam) -> np.ndarray:
+    """Fisher information ``sum_i dlam_i^2 / lam_i`` over the last axis.
+
+    Parameters
+    ----------
+    lam, dlam : array_like, shape (..., N)
+        Expected counts and their derivative with respect to one parameter.
+
+    Returns
+    -------
+    ndarray, shape (...)
+    """
+    lam = np.asarray(lam, dtype=float)
+    dlam = np.asarray(dlam, dtype=float)
+    if lam.shape != dlam.shape:
+        raise InputError(f"lam {lam.shape} and dlam {dlam.shape} differ in shape", key="dlam")
+    if np.any(lam < 0):
+        raise InputError("expected non-negative expected counts", key="lam")
+    return _safe_ratio(dlam * dlam, lam).sum(axis=-1)
+
+
+def poisson_fisher_matrix(lam, dlams) -> np.ndarray:
+    """Fisher matrix ``I_ab = sum_i dlam_ia dlam_ib / lam_i``.
+
+    Parameters
+    ----------
+    lam : array_like, shape (..., N)
+    dlams : array_like, shape (..., N, M)
+        Derivatives with respect to ``M`` parameters.
+
+    Returns
+    -------
+    ndarray, shape (..., M, M)
+    """
+    lam = np.asarray(lam, dtype=float)
+    d = np.asarray(dlams, dtype=float)
+    inv = _safe_ratio(np.ones_like(lam), lam)
+    return np.einsum("...na,...n,...nb->...ab", d, inv, d)
+
+
+def gain_schur(lam, dlam) -> np.ndarray:
+    """Heading information with an unknown overall gain: ``sum dlam^2/lam - (sum dlam)^2 / sum lam``.
+
+    Shapes as :func:`poisson_information`; rows with ``sum lam = 0`` give 0.
+    """
+    lam = np.asarray(lam, dtype=float)
+    dlam = np.asarray(dlam, dtype=float)
+    full = poisson_information(lam, dlam)
+    tot = lam.sum(axis=-1)
+    corr = _safe_ratio(dlam.sum(axis=-1) ** 2, tot)
+    return np.maximum(full - corr, 0.0)
+
+
+def schur_complement(matrix, interest: int = 0) -> np.ndarray:
+    """Effective information on parameter ``interest`` of Fisher matrices ``(..., M, M)``.
+
+    ``I_aa - I_a,rest I_rest,rest^+ I_rest,a`` (pseudo-inverse, so singular nuisance blocks are
+    allowed).
+    """
+    F = np.asarray(matrix, dtype=float)
+    M = F.shape[-1]
+    rest = [k for k in range(M) if k != interest]
+    if not rest:
+        return F[..., interest, interest]
+    a = F[..., interest, interest]
+    b = F[..., interest, :][..., rest]
+    C = F[..., rest, :][..., :, rest]
+    x = np.einsum("...i,...ij,...j->...", b, np.linalg.pinv(C), b)
+    return np.maximum(a - x, 0.0)
+
+
+def cramer_rao_deg(information) -> np.ndarray:
+    """Cramer-Rao bound on the standard deviation, degrees, from information in rad^-2 (inf at 0)."""
+    I = np.asarray(information, dtype=float)
+    out = np.full(I.shape, np.inf)
+    np.divide(1.0, np.sqrt(np.maximum(I, 0.0)), out=out, where=I > 0)
+    return np.rad2deg(out)
+
+
+@dataclass(frozen=True)
+class InformationCurve:
+    """Information and bound over headings.
+
+    Attributes
+    ----------
+    headings_deg : ndarray, shape (P,)
+    information : ndarray, shape (P,)
+        Fisher information (rad^-2) at the signal model's light level.
+    per_photon : ndarray, shape (P,)
+        ``information / photons`` (valid because information is linear in the level).
+    bound_deg : ndarray, shape (P,)
+        Cramer-Rao bound, degrees.
+    photons : float
+    nuisance : str
+    parameter : str
+        "heading" or "inclination".
+    """
+
+    headings_deg: np.ndarray
+    information: np.ndarray
+    per_photon: np.ndarray
+    bound_deg: np.ndarray
+    photons: float
+    nuisance: str
+    parameter: str = "heading"
+
+    def at_photons(self, photons) -> np.ndarray:
+        """Bound (degrees) for other light levels, shape ``(F, P)`` for ``photons (F,)``."""
+        ph = np.atleast_1d(np.asarray(photons, dtype=float))
+        return cramer_rao_deg(ph[:, None] * self.per_photon[None, :])
+
+
+def _check_nuisance(nuisance: str) -> str:
+    if nuisance not in NUISANCES:
+        raise InputError(f"expected nuisance one of {NUISANCES}, got {nuisance!r}", key="nuisance")
+    return nuisance
+
+
+def _info(lam, dlam, nuisance):
+    return gain_schur(lam, dlam) if nuisance == "gain" else poisson_information(lam, dlam)
+
+
+def _headings(headings_deg):
+    if headings_deg is None:
+        return np.arange(360, dtype=float)
+    h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+    if h.ndim != 1 or not np.all(np.isfinite(h)):
+        raise InputError("expected a 1-D array of finite headings in degrees", key="headings_deg")
+    return h
+
+
+def heading_information(signal, headings_deg=None, *, nuisance: str = "none",
+                        degree: int | None = None) -> InformationCurve:
+    """Fisher information on heading over a set of headings.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+    headings_deg : array_like, shape (P,), optional
+        Default 0, 1, ..., 359 degrees.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    degree : int, optional
+        If given, use the exact trigonometric interpolation of
+        ``SignalModel.expected_and_derivative_fourier`` (the model evaluated at ``2 degree + 1``
+        headings only); otherwise every heading is evaluated directly.
+    """
+    h = _headings(headings_deg)
+    _check_nuisance(nuisance)
+    if degree is None:
+        lam, dlam = signal.expected_and_derivative(h, wrt="heading")
+    else:
+        lam, dlam = signal.expected_and_derivative_fourier(h, degree)
+    I = _info(lam, dlam, nuisance)
+    return InformationCurve(h, I, I / signal.photons, cramer_rao_deg(I), float(signal.photons),
+                            nuisance, "heading")
+
+
+def inclination_information(signal, headings_deg=None, *, nuisance: str = "none") -> InformationCurve:
+    """Fisher information on the inclination (rad^-2) at each heading, the heading known."""
+    h = _headings(headings_deg)
+    _check_nuisance(nuisance)
+    lam, dlam = signal.expected_and_derivative(h, wrt="inclination")
+    I = _info(lam, dlam, nuisance)
+    return InformationCurve(h, I, I / signal.photons, cramer_rao_deg(I), float(signal.photons),
+                            nuisance, "inclination")
+
+
+def joint_information(signal, headings_deg=None, *, gain_unknown: bool = False) -> np.ndarray:
+    """Fisher matrices over (heading, inclination[, gain]) at each heading, shape ``(P, M, M)``.
+
+    Use :func:`schur_complement` (``interest=0``) for the heading information when the
+    inclination (and gain) are unknown too.
+    """
+    h = _headings(headings_deg)
+    lam, dpsi = signal.expected_and_derivative(h, wrt="heading")
+    _, dinc = signal.expected_and_derivative(h, wrt="inclination")
+    cols = [dpsi, dinc] + ([lam] if gain_unknown else [])
+    return poisson_fisher_matrix(lam, np.stack(cols, axis=-1))
+
+
+def bound_vs_photons(signal, photons, headings_deg=None, *, nuisance: str = "none",
+                     degree: int | None = None) -> np.ndarray:
+    """Cramer-Rao bound (degrees) for light levels ``photons (F,)`` and headings: ``(F, P)``."""
+    return heading_information(signal, headings_deg, nuisance=nuisance, degree=degree).at_photons(photons)
+
+
+def bound_vs_inclination(signal, inclinations_deg, headings_deg=None, *, nuisance: str = "none",
+                         degree: int | None = None) -> np.ndarray:
+    """Bound (degrees) over inclinations ``(Q,)`` and headings: ``(Q, P)``."""
+    out = []
+    for inc in np.atleast_1d(np.asarray(inclinations_deg, dtype=float)):
+        s = dataclasses.replace(signal, inclination_deg=float(inc))
+        out.append(heading_information(s, headings_deg, nuisance=nuisance, degree=degree).bound_deg)
+    return np.array(out)
+
+
+def bound_vs_parameter(make_signal: Callable[[float], object], values: Sequence[float],
+                       headings_deg=None, *, nuisance: str = "none", degree: int | None = None,
+                       progress=None) -> np.ndarray:
+    """Bound (degrees) over any model parameter: ``(V, P)``.
+
+    ``make_signal(value) -> SignalModel`` builds the model for each value (a disorder
+    concentration, a lifetime, an anisotropy scale, ...).  ``progress(done, total)`` after each.
+    """
+    vals = list(values)
+    out = []
+    for k, v in enumerate(vals):
+        out.append(heading_information(make_signal(v), headings_deg, nuisance=nuisance,
+                                       degree=degree).bound_deg)
+        if progress is not None:
+            progress(k + 1, len(vals))
+    return np.array(out)
+
+
+def mean_bound_deg(information) -> np.ndarray:
+    """Bound from the heading-averaged information, ``1 / sqrt(mean_P I)`` in degrees (last axis)."""
+    return cramer_rao_deg(np.mean(np.asarray(information, dtype=float), axis=-1))

@@ -1,0 +1,161 @@
+"""Fisher information and Cramer-Rao bounds (retina.readout.fisher) on a synthetic retina and the
+real RetinaModel."""
+
+import dataclasses
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from retina.errors import InputError
+from retina.readout import fisher
+from retina.signal.noise import SignalModel
+
+
+class SyntheticRetina:
+    """Test fixture: receptor i responds Phi_i(b) = a + c (axis_i . b)^2 (written here, not the
+    project's pattern code).  Tangential gradient: 2 c (a.b) (a - (a.b) b)."""
+
+    def __init__(self, axes, a=0.5, c=0.1, solid_angle=None):
+        self.axes = np.asarray(axes, float)
+        self.a, self.c = a, c
+        n = len(self.axes)
+        self.receptors = SimpleNamespace(visual_dirs=-self.axes,
+                                         solid_angle=np.ones(n) if solid_angle is None else solid_angle)
+
+    def yields(self, b):
+        t = np.asarray(b) @ self.axes.T
+        return self.a + self.c * t ** 2
+
+    def yields_and_grad(self, b):
+        b = np.asarray(b)
+        t = b @ self.axes.T
+        g = 2 * self.c * t[..., None] * (self.axes[None, :, :] - t[..., None] * b[:, None, :])
+        return self.a + self.c * t ** 2, g
+
+
+def random_axes(n, seed=0):
+    d = np.random.default_rng(seed).normal(size=(n, 3))
+    return d / np.linalg.norm(d, axis=1, keepdims=True)
+
+
+def synthetic_signal(n=40, photons=1000.0, inclination=60.0, seed=0, **kw):
+    return SignalModel(SyntheticRetina(random_axes(n, seed)), inclination_deg=inclination,
+                       photons=photons, **kw)
+
+
+def test_single_receptor_closed_form():
+    # Derived: level head, D = 0: b_head = (cos I cos psi, -cos I sin psi, sin I).  With the axis
+    # along x, Phi = a + c cos^2 I cos^2 psi, dPhi/dpsi = -c cos^2 I sin 2 psi, and with catch =
+    # photons (one receptor, solid angle = mean), I = photons (dPhi/dpsi)^2 / Phi.
+    a, c, inc, ph = 0.4, 0.2, 50.0, 500.0
+    sig = SignalModel(SyntheticRetina([[1.0, 0, 0]], a, c), inclination_deg=inc, photons=ph)
+    psi = np.array([10.0, 33.0, 100.0, 250.0])
+    p, ci = np.deg2rad(psi), np.cos(np.deg2rad(inc))
+    phi = a + c * ci ** 2 * np.cos(p) ** 2
+    dphi = -c * ci ** 2 * np.sin(2 * p)
+    info = fisher.heading_information(sig, psi)
+    np.testing.assert_allclose(info.information, ph * dphi ** 2 / phi, rtol=1e-12)
+    np.testing.assert_allclose(info.bound_deg, np.rad2deg(1 / np.sqrt(ph * dphi ** 2 / phi)), rtol=1e-12)
+
+
+def test_analytic_derivative_matches_finite_difference():
+    sig = synthetic_signal(pitch_deg=15.0, roll_deg=-8.0)
+    psi = np.array([5.0, 47.0, 123.0, 301.0])
+    lam, dlam = sig.expected_and_derivative(psi)
+    h = 1e-4
+    fd = (sig.expected(psi + h) - sig.expected(psi - h)) / np.deg2rad(2 * h)
+    # Derived (common practice, no source): central differences err by O(h^2) ~ 1e-9 relative here.
+    np.testing.assert_allclose(dlam, fd, rtol=1e-6, atol=1e-6 * np.abs(lam).max())
+    # Inclination derivative the same way, through a model with a changed inclination.
+    _, dinc = sig.expected_and_derivative(psi, wrt="inclination")
+    up = dataclasses.replace(sig, inclination_deg=60.0 + h).expected(psi)
+    dn = dataclasses.replace(sig, inclination_deg=60.0 - h).expected(psi)
+    np.testing.assert_allclose(dinc, (up - dn) / np.deg2rad(2 * h), rtol=1e-6, atol=1e-6 * lam.max())
+
+
+def test_information_equals_variance_of_score():
+    # Derived: the score s = sum_i (n_i / lam_i - 1) dlam_i has mean 0 and variance I (Poisson).
+    sig = synthetic_signal(n=25, photons=50.0)
+    lam, dlam = sig.expected_and_derivative([70.0])
+    counts = sig.sample([70.0], rng=3, size=40000)[:, 0, :]
+    score = ((counts / lam - 1) * dlam).sum(axis=1)
+    I = fisher.poisson_information(lam, dlam)[0]
+    # Tolerance: sd of a sample variance ~ sqrt(2 / n) = 0.7 % for Gaussian scores; 4 % allows
+    # for excess kurtosis.  The mean: 5 standard errors.
+    assert score.var() == pytest.approx(I, rel=0.04)
+    assert abs(score.mean()) < 5 * np.sqrt(I / 40000)
+
+
+def test_gain_schur_matches_generic_schur_complement():
+    sig = synthetic_signal(n=30)
+    lam, dlam = sig.expected_and_derivative([10.0, 80.0, 200.0])
+    # Reference: the Schur complement through a general (pseudo-)inverse of the 2x2 Fisher matrix
+    # with d lam / d g = lam (g = 1), versus the closed form sum dlam^2/lam - (sum dlam)^2/sum lam.
+    F = fisher.poisson_fisher_matrix(lam, np.stack([dlam, lam], axis=-1))
+    eff = F[:, 0, 0] - F[:, 0, 1] ** 2 / F[:, 1, 1]
+    np.testing.assert_allclose(fisher.gain_schur(lam, dlam), eff, rtol=1e-10)
+    np.testing.assert_allclose(fisher.schur_complement(F), eff, rtol=1e-10)
+    assert np.all(eff < F[:, 0, 0])
+
+
+def test_gain_nuisance_kills_uniform_relative_change():
+    # Derived: if dlam_i = k lam_i for all i, a gain change explains the data: I_eff = 0.
+    lam = np.array([[3.0, 5.0, 9.0]])
+    assert fisher.gain_schur(lam, 0.3 * lam)[0] == pytest.approx(0.0, abs=1e-12)
+    assert fisher.poisson_information(lam, 0.3 * lam)[0] == pytest.approx(0.09 * 17.0)
+
+
+def test_no_modulation_no_information():
+    # Derived: c = 0 makes every yield constant, so dlam = 0 and the bound is infinite.
+    sig = SignalModel(SyntheticRetina(random_axes(20), a=0.5, c=0.0), inclination_deg=60, photons=1e4)
+    info = fisher.heading_information(sig, [0.0, 90.0])
+    assert np.all(info.information == 0.0)
+    assert np.all(np.isinf(info.bound_deg))
+
+
+def test_bound_scales_as_inverse_sqrt_photons():
+    sig = synthetic_signal(photons=100.0)
+    psi = [20.0, 140.0]
+    b100 = fisher.heading_information(sig, psi).bound_deg
+    # Derived: lam and dlam are both proportional to the light level, so I ~ photons.  Checked by
+    # recomputing the model at 100x the photons (not through the linear shortcut).
+    b1e4 = fisher.heading_information(dataclasses.replace(sig, photons=1e4), psi).bound_deg
+    np.testing.assert_allclose(b1e4, b100 / 10.0, rtol=1e-12)
+    curve = fisher.bound_vs_photons(sig, [100.0, 1e4, 1e6], psi)
+    np.testing.assert_allclose(curve[1], b1e4, rtol=1e-12)
+    np.testing.assert_allclose(curve[2], b100 / 100.0, rtol=1e-12)
+
+
+def test_fourier_interpolation_matches_direct_evaluation():
+    # Derived: Phi(b_head(psi)) of degree 2 is a trigonometric polynomial of degree 2 in psi.
+    sig = synthetic_signal(pitch_deg=20.0, roll_deg=5.0)
+    psi = np.linspace(0, 359, 97)
+    lam, dlam = sig.expected_and_derivative(psi)
+    lf, df = sig.expected_and_derivative_fourier(psi, degree=2)
+    np.testing.assert_allclose(lf, lam, rtol=1e-10)
+    np.testing.assert_allclose(df, dlam, atol=1e-9 * np.abs(dlam).max())
+    a = fisher.heading_information(sig, psi, degree=4).information
+    np.testing.assert_allclose(a, fisher.heading_information(sig, psi).information, rtol=1e-8)
+
+
+def test_joint_and_inclination_information():
+    sig = synthetic_signal(n=40)
+    psi = [30.0, 150.0]
+    J = fisher.joint_information(sig, psi)
+    inc = fisher.inclination_information(sig, psi).information
+    head = fisher.heading_information(sig, psi).information
+    np.testing.assert_allclose(J[:, 0, 0], head, rtol=1e-12)
+    np.testing.assert_allclose(J[:, 1, 1], inc, rtol=1e-12)
+    # Derived: an extra unknown (the inclination) cannot add heading information.
+    eff = fisher.schur_complement(J)
+    assert np.all(eff <= head + 1e-12) and np.all(eff > 0)
+    Q = fisher.bound_vs_inclination(sig, [30.0, 60.0], psi)
+    np.testing.assert_allclose(Q[1], fisher.heading_information(sig, psi).bound_deg)
+
+
+def test_bad_input():
+    with pytest.raises(InputError, match="nuisance"):
+        fisher.heading_information(synthetic_signal(), [0.0], nuisance="sky")
+    with pytest.raises(InputError, match="shape"):
+        fisher.poisson_information(np.ones(3), np.ones(4))
