@@ -1,0 +1,109 @@
+"""Shared figure plumbing: sizes, style, metadata and atomic saving (conventions: package docstring)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Iterable, Sequence
+
+import matplotlib
+
+matplotlib.use("Agg", force=False)
+import matplotlib.pyplot as plt  # noqa: E402
+from matplotlib.figure import Figure  # noqa: E402
+
+from retina.errors import InputError  # noqa: E402
+from retina.io.atomic import atomic_path  # noqa: E402
+
+SINGLE_IN = 3.5
+DOUBLE_IN = 7.2
+
+STYLE = {
+    "font.size": 7.5,
+    "axes.titlesize": 8,
+    "axes.labelsize": 7.5,
+    "xtick.labelsize": 6.5,
+    "ytick.labelsize": 6.5,
+    "legend.fontsize": 6.5,
+    "axes.linewidth": 0.6,
+    "lines.linewidth": 1.2,
+    "svg.fonttype": "none",
+    "savefig.bbox": "tight",
+    "savefig.pad_inches": 0.03,
+}
+
+_FORMATS = ("png", "svg", "pdf")
+
+
+def new_figure(width_in: float, height_in: float) -> Figure:
+    """A figure with the package style, not registered with pyplot (no window, no global state)."""
+    with plt.rc_context(STYLE):
+        fig = Figure(figsize=(width_in, height_in), dpi=100)
+    return fig
+
+
+def style():
+    """Context manager applying :data:`STYLE` while artists are created."""
+    return plt.rc_context(STYLE)
+
+
+def annotate(fig: Figure, title: str, caption: str) -> Figure:
+    """Attach the title and caption (units, parameters) that :func:`save_figure` writes as metadata."""
+    fig.retina_title = title
+    fig.retina_caption = caption
+    return fig
+
+
+def save_figure(fig: Figure, stem: str | Path, formats: Sequence[str] = ("png", "svg"), *,
+                dpi: int = 300, force: bool = True, metadata: dict | None = None) -> list[Path]:
+    """Write ``fig`` as ``stem.<fmt>`` for each format, atomically.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+    stem : str or Path
+        Output path without extension (an extension among png/svg/pdf is stripped).
+    formats : sequence of {"png", "svg", "pdf"}
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
+    force : bool
+        Overwrite existing files (default True: the pipeline checks its output folder once).
+    metadata : dict, optional
+        Extra "Title"/"Description" overriding ``fig.retina_title`` / ``fig.retina_caption``.
+
+    Returns
+    -------
+    list of Path
+        The files written, in the order of ``formats``.
+    """
+    stem = Path(stem)
+    if stem.suffix.lower().lstrip(".") in _FORMATS:
+        stem = stem.with_suffix("")
+    title = getattr(fig, "retina_title", "") or ""
+    desc = getattr(fig, "retina_caption", "") or ""
+    if metadata:
+        title = metadata.get("Title", title)
+        desc = metadata.get("Description", desc)
+    written = []
+    for fmt in formats:
+        if fmt not in _FORMATS:
+            raise InputError(f"expected a figure format among {', '.join(_FORMATS)}, got {fmt!r}",
+                             key="formats")
+        meta = {"Title": title}
+        if fmt == "pdf":
+            meta["Subject"] = desc
+        else:
+            meta["Description"] = desc
+        if fmt == "png":
+            meta["Software"] = "retina-compass"
+        target = stem.parent / f"{stem.name}.{fmt}"
+        with atomic_path(target, force=force) as tmp:
+            fig.savefig(tmp, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight", pad_inches=0.03)
+        written.append(target)
+    return written
+
+
+def finish(fig: Figure, path, formats: Iterable[str], dpi: int) -> Figure:
+    """Save when ``path`` is given; return the figure."""
+    if path is not None:
+        save_figure(fig, path, tuple(formats), dpi=dpi)
+    return fig
