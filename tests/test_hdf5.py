@@ -110,3 +110,146 @@ def test_foreign_files_get_clear_errors(tmp_path):
         ds.attrs["basis"] = BASIS
     with pytest.raises(InputError, match="does not match degree 2"):
         YieldFunction.load(wrong_len)
+
+
+# ------------------------------------------------------------------------------ importers
+
+import warnings  # noqa: E402
+
+from retina.io.importers import FitWarning, fit_least_squares, import_table, read_table  # noqa: E402
+
+
+def _axial_coeffs(a, b, L):
+    """Derived: a + b cos^2 t = sqrt(4 pi)(a + b/3) Y_00 + (2/3) b sqrt(4 pi / 5) Y_20."""
+    c = np.zeros(sphere.n_coeffs(L))
+    c[0] = np.sqrt(4 * np.pi) * (a + b / 3)
+    l, m = sphere.lm_index(L)
+    c[np.flatnonzero((l == 2) & (m == 0))[0]] = (2 / 3) * b * np.sqrt(4 * np.pi / 5)
+    return c
+
+
+def _dirs(n, seed=11):
+    v = np.random.default_rng(seed).normal(size=(n, 3))
+    return v / np.linalg.norm(v, axis=1, keepdims=True)
+
+
+def test_csv_cartesian_and_angles_recover_an_analytic_function(tmp_path):
+    a, b = 0.42, -0.06
+    d = _dirs(300)
+    vals = a + b * d[:, 2] ** 2
+    cart = tmp_path / "cart.csv"
+    cart.write_text("# from another engine\nx,y,z,value\n" +
+                    "\n".join(f"{2 * x:.17g},{2 * y:.17g},{2 * z:.17g},{v:.17g}" for (x, y, z), v in zip(d, vals)))
+    yf = import_table(cart, 6)
+    # Derived (see _axial_coeffs); least squares on exact data is exact up to rounding.
+    np.testing.assert_allclose(yf.coeffs, _axial_coeffs(a, b, 6), atol=1e-12)
+    assert yf.provenance["residual_max"] < 1e-12 and yf.provenance["fit_warning"] == ""
+    assert yf.provenance["import_points"] == 300 and yf.provenance["import_format"] == "csv (cartesian)"
+    theta = np.degrees(np.arccos(d[:, 2]))
+    phi = np.degrees(np.arctan2(d[:, 1], d[:, 0]))
+    ang = tmp_path / "ang.txt"
+    ang.write_text("theta_deg phi_deg value extra\n" +
+                   "\n".join(f"{t:.17g} {p:.17g} {v:.17g} 0" for t, p, v in zip(theta, phi, vals)))
+    yf2 = import_table(ang, 6)
+    np.testing.assert_allclose(yf2.coeffs, _axial_coeffs(a, b, 6), atol=1e-12)
+
+
+def test_hemisphere_data_suffice_for_an_even_function():
+    d = _dirs(400)
+    d[d[:, 2] < 0] *= -1
+    vals = 0.3 + 0.1 * (d[:, 0] * d[:, 1]) ** 2 + 0.05 * d[:, 2] ** 4
+    coeffs, rep = fit_least_squares(d, vals, 8)
+    # Derived: even harmonics satisfy Y(-b) = Y(b), so one hemisphere determines them all.
+    assert rep.rank == rep.n_coeffs and rep.warning == ""
+    full = _dirs(200, seed=3)
+    f = 0.3 + 0.1 * (full[:, 0] * full[:, 1]) ** 2 + 0.05 * full[:, 2] ** 4
+    np.testing.assert_allclose(sphere.evaluate(coeffs, full), f, atol=1e-12)
+
+
+def test_residual_and_rank_warning():
+    d = _dirs(30)
+    vals = 0.5 + 0.1 * d[:, 2] ** 10  # degree 10 fitted with L = 2: a residual remains
+    coeffs, rep = fit_least_squares(d, vals, 2)
+    resid = sphere.evaluate(coeffs, d) - vals
+    # Reference: numpy.linalg.lstsq solves the same problem independently.
+    ref = np.linalg.lstsq(sphere.real_sh(2, d), vals, rcond=None)[0]
+    np.testing.assert_allclose(coeffs, ref, atol=1e-12)
+    assert rep.rms == pytest.approx(np.sqrt(np.mean(resid**2)), rel=1e-12) and rep.rms > 1e-3
+    assert rep.max == pytest.approx(np.max(np.abs(resid)), rel=1e-12)
+    # Derived: 30 points cannot determine the 45 coefficients of degree 8 (rank <= 30).
+    _, rep8 = fit_least_squares(d, vals, 8)
+    assert rep8.rank == 30 and "constrain only 30 of the 45" in rep8.warning
+    # Derived: points on one great circle (z = 0) leave harmonics vanishing there undetermined.
+    ring = np.stack([np.cos(np.linspace(0, np.pi, 50)), np.sin(np.linspace(0, np.pi, 50)), np.zeros(50)], 1)
+    _, rep_ring = fit_least_squares(ring, np.ones(50), 4)
+    assert rep_ring.rank < rep_ring.n_coeffs and rep_ring.warning
+
+
+def test_import_warns_and_records_rank_deficiency(tmp_path):
+    d = _dirs(20)
+    path = tmp_path / "few.npz"
+    np.savez(path, directions=d, values=np.ones(20))
+    with pytest.warns(FitWarning, match="constrain only 20 of the 45"):
+        yf = import_table(path, 8)
+    assert "constrain only" in yf.provenance["fit_warning"] and yf.provenance["fit_rank"] == 20
+
+
+def test_npz_and_generic_hdf5(tmp_path):
+    d = _dirs(100)
+    vals = 0.2 + 0.03 * d[:, 2] ** 2
+    np.savez(tmp_path / "t.npz", directions=d, values=vals)
+    with h5py.File(tmp_path / "t.h5", "w") as f:
+        f["run1/dirs"] = d
+        f["run1/phi"] = vals
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        a = import_table(tmp_path / "t.npz", 4)
+        b = import_table(tmp_path / "t.h5", 4, directions_key="run1/dirs", values_key="run1/phi")
+    np.testing.assert_allclose(a.coeffs, _axial_coeffs(0.2, 0.03, 4), atol=1e-13)
+    assert np.array_equal(a.coeffs, b.coeffs)
+    # the imported function saves and loads like any other
+    a.save(tmp_path / "imported.h5")
+    back = YieldFunction.load(tmp_path / "imported.h5")
+    assert np.array_equal(back.coeffs, a.coeffs) and back.provenance == a.provenance
+
+
+@pytest.mark.parametrize(
+    "name, content, pattern, key",
+    [
+        ("nohead.csv", "0,0,1,0.5\n1,0,0,0.4\n", "no header", None),
+        ("cols.csv", "a,b,c\n1,2,3\n", "header has columns a, b, c", None),
+        ("num.csv", "x,y,z,value\n0,0,1,0.5\n1,0,0,abc\n", "line 3, column 'value'.*got 'abc'", "value"),
+        ("nan.csv", "x,y,z,value\n0,0,1,nan\n", "line 2, column 'value'.*finite", "value"),
+        ("zero.csv", "x,y,z,value\n0,0,1,0.5\n0,0,0,0.5\n", "line 3.*zero vector", "x,y,z"),
+        ("short.csv", "x,y,z,value\n0,0,1\n", "line 2: 3 cells", None),
+        ("empty.csv", "x,y,z,value\n", "no data rows", None),
+    ],
+)
+def test_csv_errors_name_file_line_and_column(tmp_path, name, content, pattern, key):
+    path = tmp_path / name
+    path.write_text(content)
+    with pytest.raises(InputError, match=pattern) as info:
+        read_table(path)
+    assert str(path) in str(info.value)
+    assert info.value.key == key
+
+
+def test_array_file_errors_name_the_array(tmp_path):
+    np.savez(tmp_path / "a.npz", dirs=np.zeros((3, 3)), values=np.ones(3))
+    with pytest.raises(InputError, match="no array 'directions'.*dirs") as info:
+        read_table(tmp_path / "a.npz")
+    assert info.value.key == "directions"
+    np.savez(tmp_path / "b.npz", directions=np.ones((3, 2)), values=np.ones(3))
+    with pytest.raises(InputError, match=r"shape \(N, 3\)"):
+        read_table(tmp_path / "b.npz")
+    np.savez(tmp_path / "c.npz", directions=np.ones((3, 3)), values=np.ones(4))
+    with pytest.raises(InputError, match=r"expected shape \(3,\)") as info:
+        read_table(tmp_path / "c.npz")
+    assert info.value.key == "values"
+    with h5py.File(tmp_path / "d.h5", "w") as f:
+        f["directions"] = np.ones((3, 3))
+    with pytest.raises(InputError, match="no dataset 'values'.*directions"):
+        read_table(tmp_path / "d.h5")
+    (tmp_path / "e.h5").write_text("x,y,z,value\n")
+    with pytest.raises(InputError, match="extension says h5"):
+        read_table(tmp_path / "e.h5")
