@@ -29,11 +29,12 @@ Schema (section, key, type, default; units in the key name)
     ``n_molecules`` (int >= 1, 1000): molecules per receptor in "molecules" mode,
     ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the cone concentrations of the
     disorder-tolerance sweep.
-``[[eyes]]`` (one or two tables)
-    ``name`` (str), ``azimuth_deg`` (optical axis azimuth from the beak, positive to the right),
-    ``elevation_deg`` (optical axis elevation, positive up), ``extent_deg`` (half-angle of the
-    retinal cap, 1..120), ``n_receptors`` (int 1..200000).  Default: a left and a right eye at
-    azimuth -/+ 60 deg, extent 80 deg, 400 receptors each.
+``[[eyes]]`` (one or two tables; the fields of :class:`retina.eye.geometry.Eye`)
+    ``side`` ("left" | "right", required), ``azimuth_deg`` (optical axis azimuth from the beak,
+    positive to the right, required), ``elevation_deg`` (optical axis elevation, positive up, 0),
+    ``extent_deg`` (angular radius of the retinal cap, 1..180, 90), ``n_receptors`` (int
+    1..200000, 400), ``density`` ("uniform" | "central"), ``central_ratio`` (>= 1, 4.0),
+    ``central_width_deg`` (> 0, 20.0).  Default: a left and a right eye at azimuth -/+ 60 deg.
 ``[light]``
     ``photons`` (list of floats > 0, [100, 10000]): mean photon count per receptor per integration
     window for each light level, ``names`` (list of str, ["dim", "bright"]), same length.
@@ -48,7 +49,9 @@ Schema (section, key, type, default; units in the key name)
     the scan sweeps heading +/- amplitude, ``steps`` (int 2..721, 25), ``pitch_deg`` (0.0).
 ``[readout]``
     ``photons`` (list of floats > 0, log-spaced 10..1e6): photon levels of the precision curves,
-    ``decode_repeats`` (int >= 1, 200): noisy decodings per photon level for the decoding error.
+    ``decode_repeats`` (int >= 1, 200): noisy decodings per photon level for the decoding error,
+    ``nuisance`` ("none" | "gain", "gain"): whether the readout must also infer the overall light
+    level (see :mod:`retina.readout.fisher`).
 ``[trials]``
     ``n_trials`` (int >= 1, 40): simulated orientation trials per light level,
     ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take,
@@ -153,11 +156,14 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                check=_both(_nonempty, _rng(0.0, 1e6, lo_open=True))),
     },
     "eyes[]": {
-        "name": Key("str"),
+        "side": Key("choice", choices=("left", "right")),
         "azimuth_deg": Key("float", check=_rng(-180.0, 180.0)),
         "elevation_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
-        "extent_deg": Key("float", 80.0, check=_rng(1.0, 120.0)),
+        "extent_deg": Key("float", 90.0, check=_rng(1.0, 180.0)),
         "n_receptors": Key("int", 400, check=_rng(1, 200_000)),
+        "density": Key("choice", "uniform", choices=("uniform", "central")),
+        "central_ratio": Key("float", 4.0, check=_rng(1.0, 1e4)),
+        "central_width_deg": Key("float", 20.0, check=_rng(0.0, 180.0, lo_open=True)),
     },
     "light": {
         "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
@@ -187,6 +193,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "photons": Key("floats", [10.0, 100.0, 1e3, 1e4, 1e5, 1e6],
                        check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
         "decode_repeats": Key("int", 200, check=_rng(1, 10**6)),
+        "nuisance": Key("choice", "gain", choices=("none", "gain")),
     },
     "trials": {
         "n_trials": Key("int", 40, check=_rng(1, 10**6)),
@@ -202,8 +209,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
 }
 
 _DEFAULT_EYES = [
-    {"name": "left", "azimuth_deg": -60.0, "elevation_deg": 0.0, "extent_deg": 80.0, "n_receptors": 400},
-    {"name": "right", "azimuth_deg": 60.0, "elevation_deg": 0.0, "extent_deg": 80.0, "n_receptors": 400},
+    {"side": side, "azimuth_deg": az, "elevation_deg": 0.0, "extent_deg": 90.0, "n_receptors": 400,
+     "density": "uniform", "central_ratio": 4.0, "central_width_deg": 20.0}
+    for side, az in (("left", -60.0), ("right", 60.0))
 ]
 
 _SECTIONS = [s.rstrip("[]") for s in SCHEMA]
@@ -331,9 +339,10 @@ def scenario_from_dict(doc: dict, *, source: str | Path | None = None, base_dir:
             if not 1 <= len(raw) <= 2:
                 raise InputError(f"expected one or two eyes, got {len(raw)}", source=src, key="eyes")
             out["eyes"] = [_section(e, keys, src, f"eyes[{i}]", base) for i, e in enumerate(raw)]
-            names = [e["name"] for e in out["eyes"]]
-            if len(set(names)) != len(names):
-                raise InputError(f"eye names must differ, got {names}", source=src, key="eyes")
+            sides = [e["side"] for e in out["eyes"]]
+            if len(set(sides)) != len(sides):
+                raise InputError(f"expected one left and one right eye, got {sides}", source=src,
+                                 key="eyes")
             continue
         raw = doc.get(sec_name, {})
         if not isinstance(raw, dict):

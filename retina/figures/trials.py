@@ -12,30 +12,7 @@ import numpy as np
 
 from retina.errors import InputError
 from retina.figures._base import DOUBLE_IN, annotate, finish, new_figure, style
-
-
-def mean_vector(angles_deg) -> tuple[float, float]:
-    """Mean direction (deg, in [0, 360)) and mean resultant length r (0..1) of angles in degrees.
-
-    Source: Zar, Biostatistical Analysis, 5th ed., 2010, section 26.4 (mean angle from the mean of
-    the unit vectors).
-    """
-    a = np.radians(np.asarray(angles_deg, float).reshape(-1))
-    if a.size == 0:
-        raise InputError("expected at least one angle", key="angles_deg")
-    c, s = np.mean(np.cos(a)), np.mean(np.sin(a))
-    return float(np.degrees(np.arctan2(s, c)) % 360.0), float(np.hypot(c, s))
-
-
-def rayleigh_p(angles_deg) -> float:
-    """Rayleigh test p value with Zar's approximation ``p = exp(sqrt(1 + 4n + 4(n^2 - R^2)) - (1 + 2n))``.
-
-    Source: Zar 2010, eq. 27.4 (R = n r the resultant length).
-    """
-    n = np.asarray(angles_deg).size
-    _, r = mean_vector(angles_deg)
-    big_r = n * r
-    return float(min(1.0, np.exp(np.sqrt(1 + 4 * n + 4 * (n * n - big_r * big_r)) - (1 + 2 * n))))
+from retina.readout.circstats import rayleigh_test
 
 
 def trial_histograms(headings_deg: Mapping[str, np.ndarray], goal_deg: float | None = None, *,
@@ -73,8 +50,8 @@ def trial_histograms(headings_deg: Mapping[str, np.ndarray], goal_deg: float | N
             ax.bar(edges[:-1] + width / 2, counts, width=width * 0.92, color="C0", alpha=0.75,
                    edgecolor="none")
             top = max(counts.max(), 1)
-            mu, r = mean_vector(ang)
-            p = rayleigh_p(ang)
+            ray = rayleigh_test(ang)
+            mu, r, p = ray.mean_deg, ray.r, ray.p
             ax.annotate("", xy=(np.radians(mu), r * top), xytext=(0, 0),
                         arrowprops=dict(arrowstyle="-|>", color="C3", lw=1.5, shrinkA=0, shrinkB=0))
             if goal_deg is not None:
