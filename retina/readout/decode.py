@@ -1,0 +1,385 @@
+"""Maximum-likelihood heading decoding from Poisson counts, with ambiguity detection.
+
+Conventions (owned here)
+------------------------
+- Log-likelihood of counts ``n (N,)`` at heading ``psi`` (constants dropped):
+  known gain ``l(psi) = sum_i n_i log lam_i(psi) - sum_i lam_i(psi)``; unknown gain, profiled out
+  (``g_hat = sum n / sum lam``): ``l(psi) = sum_i n_i log lam_i(psi) - n_tot log sum_i lam_i(psi)``.
+  Over a heading grid, for many count vectors at once, both are one matrix product
+  ``counts @ log(lam).T`` plus a per-heading term.
+- Grid: ``G`` equally spaced headings covering the circle (step ``h = 360 / G`` degrees).
+  The best grid heading is refined locally:
+  ``"parabolic"``: vertex of the parabola through the three grid values around the peak;
+  ``"hermite"`` (default when derivatives are known): Newton steps on the exact log-likelihood of
+  a model whose ``lam(psi)`` is the cubic Hermite interpolant of the grid values and analytic grid
+  derivatives (error O(h^4) in ``lam``), kept within one grid step of the peak;
+  ``"brent"``: bounded Brent minimisation (``scipy.optimize.minimize_scalar``) of the exact
+  negative log-likelihood through the forward model, one decode at a time (slow; a cross-check);
+  ``"none"``: the grid heading.
+- Ambiguity: the grid log-likelihood's circular local maxima are found; the best peak and the best
+  other peak at least ``min_separation_deg`` away are the candidates.  The estimate is
+  *ambiguous* when the second peak's likelihood is within a factor ``ambiguity_ratio`` of the best
+  (``l_1 - l_2 < ln ambiguity_ratio``).  The candidates are reported, never averaged.  A
+  horizontal field makes ``psi`` and ``psi + 180`` exactly equally likely (the yield is even in
+  the field direction), so such decodes are flagged.
+- Errors are signed circular differences ``estimate - truth`` in ``(-180, 180]`` degrees
+  (``retina.readout.circstats``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from retina.errors import InputError
+from retina.readout import circstats
+
+__all__ = ["HeadingEstimate", "DecodeResult", "HeadingDecoder", "MonteCarloResult", "monte_carlo",
+           "error_summary"]
+
+_TINY = 1e-300
+_CHUNK_ELEMENTS = 4_000_000   # samples x receptors per block in the refinement
+
+
+@dataclass(frozen=True)
+class HeadingEstimate:
+    """One decoded heading.
+
+    Attributes
+    ----------
+    heading_deg : float
+        Maximum-likelihood heading, degrees in [0, 360).
+    ambiguous : bool
+        A second likelihood peak is within the ambiguity ratio.
+    candidates_deg : tuple of float
+        Peak headings, best first (one or two).
+    candidates_loglik : tuple of float
+        Their log-likelihoods (same order).
+    """
+
+    heading_deg: float
+    ambiguous: bool
+    candidates_deg: tuple
+    candidates_loglik: tuple
+
+
+@dataclass(frozen=True)
+class DecodeResult:
+    """Decoded headings of ``S`` count vectors.
+
+    Attributes
+    ----------
+    heading_deg : ndarray, shape (S,)
+        Refined maximum-likelihood headings, degrees in [0, 360).
+    loglik : ndarray, shape (S,)
+        Grid log-likelihood at the best grid heading.
+    second_deg : ndarray, shape (S,)
+        Heading of the best other peak (NaN if none), parabolically refined.
+    delta_loglik : ndarray, shape (S,)
+        ``l_best - l_second`` (inf if no second peak).
+    ambiguous : ndarray of bool, shape (S,)
+    """
+
+    heading_deg: np.ndarray
+    loglik: np.ndarray
+    second_deg: np.ndarray
+    delta_loglik: np.ndarray
+    ambiguous: np.ndarray
+
+    def __len__(self) -> int:
+        return self.heading_deg.shape[0]
+
+    def __getitem__(self, i: int) -> HeadingEstimate:
+        cands = [float(self.heading_deg[i])]
+        lls = [float(self.loglik[i])]
+        if np.isfinite(self.second_deg[i]):
+            cands.append(float(self.second_deg[i]))
+            lls.append(float(self.loglik[i] - self.delta_loglik[i]))
+        return HeadingEstimate(cands[0], bool(self.ambiguous[i]), tuple(cands), tuple(lls))
+
+
+class HeadingDecoder:
+    """Grid maximum-likelihood heading decoder with local refinement.
+
+    Parameters
+    ----------
+    headings_deg : array_like, shape (G,)
+        Equally spaced grid over the full circle (any start).
+    lam : array_like, shape (G, N)
+        Expected counts at the grid headings.
+    dlam : array_like, shape (G, N), optional
+        Their heading derivatives, per radian (needed for ``refine="hermite"``).
+    gain : {"known", "free"}
+        Whether the overall light level is known or profiled out.
+    refine : {"hermite", "parabolic", "brent", "none"}, optional
+        Default "hermite" when ``dlam`` is given, else "parabolic".
+    forward : callable, optional
+        ``forward(headings_deg (P,)) -> lam (P, N)``; needed for ``refine="brent"``.
+    ambiguity_ratio : float
+        Likelihood ratio below which a second peak makes the estimate ambiguous (> 1).
+    min_separation_deg : float
+        Minimum distance of a second peak from the best one.
+    """
+
+    def __init__(self, headings_deg, lam, dlam=None, *, gain: str = "known", refine: str | None = None,
+                 forward=None, ambiguity_ratio: float = 10.0, min_separation_deg: float = 30.0):
+        h = np.asarray(headings_deg, dtype=float)
+        lam = np.asarray(lam, dtype=float)
+        if h.ndim != 1 or h.size < 3 or lam.shape[0] != h.size or lam.ndim != 2:
+            raise InputError(f"expected headings (G,) with G >= 3 and lam (G, N), got {h.shape} and "
+                             f"{lam.shape}", key="decoder.grid")
+        step = 360.0 / h.size
+        if not np.allclose(np.diff(h), step, atol=1e-9 * 360):
+            raise InputError("expected equally spaced headings covering 360 degrees", key="decoder.grid")
+        if np.any(lam < 0) or not np.all(np.isfinite(lam)):
+            raise InputError("expected finite non-negative expected counts", key="decoder.lam")
+        if gain not in ("known", "free"):
+            raise InputError(f"expected gain 'known' or 'free', got {gain!r}", key="decoder.gain")
+        if refine is None:
+            refine = "hermite" if dlam is not None else "parabolic"
+        if refine not in ("hermite", "parabolic", "brent", "none"):
+            raise InputError(f"unknown refinement {refine!r}", key="decoder.refine")
+        if refine == "hermite" and dlam is None:
+            raise InputError("hermite refinement needs dlam", key="decoder.refine")
+        if refine == "brent" and forward is None:
+            raise InputError("brent refinement needs a forward model", key="decoder.refine")
+        if not ambiguity_ratio > 1.0:
+            raise InputError(f"expected ambiguity_ratio > 1, got {ambiguity_ratio}", key="ambiguity_ratio")
+        self.headings_deg = h
+        self.step_deg = step
+        self.lam = lam
+        self.dlam = None if dlam is None else np.asarray(dlam, dtype=float)
+        self.gain = gain
+        self.refine = refine
+        self.forward = forward
+        self.ambiguity_ratio = float(ambiguity_ratio)
+        self.min_separation_deg = float(min_separation_deg)
+        self._loglam_T = np.log(np.maximum(lam, _TINY)).T.copy()   # (N, G)
+        self._lam_tot = lam.sum(axis=1)                              # (G,)
+        self._dlam_tot = None if self.dlam is None else self.dlam.sum(axis=1)
+
+    @property
+    def n_receptors(self) -> int:
+        return self.lam.shape[1]
+
+    @classmethod
+    def from_signal(cls, signal, n_grid: int = 360, *, gain: str = "known", refine: str | None = None,
+                    degree: int | None = None, **kwargs) -> "HeadingDecoder":
+        """A decoder whose model is ``signal`` (a ``SignalModel``) on ``n_grid`` headings from 0.
+
+        ``degree`` uses the exact trigonometric interpolation of the signal model (faster).
+        """
+        if int(n_grid) != n_grid or n_grid < 8:
+            raise InputError(f"expected a heading grid of at least 8 points, got {n_grid}", key="n_grid")
+        h = np.arange(int(n_grid)) * 360.0 / int(n_grid)
+        if signal.texture is not None and signal.texture.attached == "world":
+            lam, dlam = signal.expected(h), None
+            refine = refine or "parabolic"
+        elif degree is not None:
+            lam, dlam = signal.expected_and_derivative_fourier(h, degree)
+        else:
+            lam, dlam = signal.expected_and_derivative(h)
+        return cls(h, lam, dlam, gain=gain, refine=refine, forward=signal.expected, **kwargs)
+
+    # -- likelihood ------------------------------------------------------------------------------
+    def _counts(self, counts) -> np.ndarray:
+        c = np.asarray(counts, dtype=float)
+        if c.ndim == 1:
+            c = c[None, :]
+        if c.ndim != 2 or c.shape[1] != self.n_receptors:
+            raise InputError(f"expected counts (S, {self.n_receptors}), got {np.shape(counts)}",
+                             key="counts")
+        if np.any(c < 0) or not np.all(np.isfinite(c)):
+            raise InputError("expected finite non-negative counts", key="counts")
+        return c
+
+    def loglik(self, counts) -> np.ndarray:
+        """Grid log-likelihood ``(S, G)`` of counts ``(S, N)`` (see the module docstring)."""
+        c = self._counts(counts)
+        ll = c @ self._loglam_T
+        if self.gain == "known":
+            ll -= self._lam_tot[None, :]
+        else:
+            ll -= c.sum(axis=1, keepdims=True) * np.log(np.maximum(self._lam_tot, _TINY))[None, :]
+        return ll
+
+    def loglik_at(self, counts, headings_deg) -> np.ndarray:
+        """Exact log-likelihood ``(S, P)`` through the forward model at arbitrary headings."""
+        if self.forward is None:
+            raise InputError("this decoder has no forward model", key="decoder.forward")
+        c = self._counts(counts)
+        lam = np.asarray(self.forward(np.atleast_1d(headings_deg)), dtype=float)
+        ll = c @ np.log(np.maximum(lam, _TINY)).T
+        tot = lam.sum(axis=1)
+        if self.gain == "known":
+            return ll - tot[None, :]
+        return ll - c.sum(axis=1, keepdims=True) * np.log(tot)[None, :]
+
+    # -- decoding --------------------------------------------------------------------------------
+    def decode(self, counts, *, chunk: int = 2000) -> DecodeResult:
+        """Decode count vectors ``(S, N)`` (or one ``(N,)``)."""
+        c = self._counts(counts)
+        parts = [self._decode_block(c[s:s + chunk]) for s in range(0, c.shape[0], chunk)]
+        return DecodeResult(*(np.concatenate([p[k] for p in parts]) for k in range(5)))
+
+    def decode_one(self, counts) -> HeadingEstimate:
+        """Decode one count vector ``(N,)``."""
+        return self.decode(np.asarray(counts)[None, :] if np.ndim(counts) == 1 else counts)[0]
+
+    def _decode_block(self, c):
+        ll = self.loglik(c)
+        S, G = ll.shape
+        rows = np.arange(S)
+        j1 = np.argmax(ll, axis=1)
+        l1 = ll[rows, j1]
+        # Circular local maxima, excluding the neighbourhood of the best peak.
+        left, right = np.roll(ll, 1, axis=1), np.roll(ll, -1, axis=1)
+        peaks = (ll >= left) & (ll >= right)
+        sep = np.abs(circstats.wrap180(self.headings_deg[None, :] - self.headings_deg[j1][:, None]))
+        cand = np.where(peaks & (sep >= self.min_separation_deg), ll, -np.inf)
+        j2 = np.argmax(cand, axis=1)
+        l2 = cand[rows, j2]
+        has2 = np.isfinite(l2)
+        delta = np.where(has2, l1 - l2, np.inf)
+        ambiguous = delta < np.log(self.ambiguity_ratio)
+        off1 = self._parabolic(ll, j1)
+        off2 = self._parabolic(ll, j2)
+        second = np.where(has2, circstats.wrap360(self.headings_deg[j2] + off2), np.nan)
+        if self.refine == "none":
+            best = self.headings_deg[j1]
+        elif self.refine == "parabolic":
+            best = self.headings_deg[j1] + off1
+        elif self.refine == "hermite":
+            best = self._hermite(c, j1, off1)
+        else:
+            best = self._brent(c, j1)
+        return circstats.wrap360(best), l1, second, delta, ambiguous
+
+    def _parabolic(self, ll, j):
+        G = ll.shape[1]
+        rows = np.arange(ll.shape[0])
+        lm, l0, lp = ll[rows, (j - 1) % G], ll[rows, j], ll[rows, (j + 1) % G]
+        den = lm - 2.0 * l0 + lp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            off = np.where(den < 0, 0.5 * (lm - lp) / den, 0.0)
+        return np.clip(off, -0.5, 0.5) * self.step_deg
+
+    def _hermite(self, c, j1, off_deg, iterations: int = 4):
+        """Newton steps on the Hermite-interpolated log-likelihood, within one step of the peak."""
+        G, N = self.lam.shape
+        h = np.deg2rad(self.step_deg)
+        x0 = np.deg2rad(self.headings_deg[0])
+        centre = np.deg2rad(self.headings_deg[j1])
+        psi = centre + np.deg2rad(off_deg)
+        out = np.empty_like(psi)
+        block = max(1, _CHUNK_ELEMENTS // N)
+        for s in range(0, psi.size, block):
+            sl = slice(s, s + block)
+            p, cc, n_tot = psi[sl].copy(), c[sl], c[sl].sum(axis=1)
+            for _ in range(iterations):
+                u = (p - x0) / h
+                a = np.floor(u).astype(int)
+                t = (u - a)[:, None]
+                a %= G
+                b = (a + 1) % G
+                ya, yb = self.lam[a], self.lam[b]
+                ma, mb = self.dlam[a] * h, self.dlam[b] * h
+                t2, t3 = t * t, t * t * t
+                lam = (2 * t3 - 3 * t2 + 1) * ya + (t3 - 2 * t2 + t) * ma + (-2 * t3 + 3 * t2) * yb \
+                    + (t3 - t2) * mb
+                d1 = ((6 * t2 - 6 * t) * ya + (3 * t2 - 4 * t + 1) * ma + (-6 * t2 + 6 * t) * yb
+                      + (3 * t2 - 2 * t) * mb) / h
+                d2 = ((12 * t - 6) * ya + (6 * t - 4) * ma + (6 - 12 * t) * yb + (6 * t - 2) * mb) / h ** 2
+                lam = np.maximum(lam, _TINY)
+                r = cc / lam
+                score = np.sum(r * d1, axis=1)
+                hess = np.sum(r * d2 - r * d1 * d1 / lam, axis=1)
+                L, L1, L2 = lam.sum(axis=1), d1.sum(axis=1), d2.sum(axis=1)
+                if self.gain == "known":
+                    score -= L1
+                    hess -= L2
+                else:
+                    score -= n_tot * L1 / L
+                    hess -= n_tot * (L2 / L - (L1 / L) ** 2)
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    step = np.where(hess < 0, -score / hess, np.sign(score) * 0.25 * h)
+                step = np.nan_to_num(np.clip(step, -h, h))
+                p = np.clip(p + step, centre[sl] - h, centre[sl] + h)
+            out[sl] = p
+        return np.rad2deg(out)
+
+    def _brent(self, c, j1):
+        from scipy.optimize import minimize_scalar
+
+        out = np.empty(c.shape[0])
+        for k in range(c.shape[0]):
+            centre = self.headings_deg[j1[k]]
+            res = minimize_scalar(lambda x: -self.loglik_at(c[k], [x])[0, 0],
+                                  bounds=(centre - self.step_deg, centre + self.step_deg),
+                                  method="bounded", options={"xatol": 1e-6})
+            out[k] = res.x
+        return out
+
+
+def error_summary(errors_deg, *, axial: bool = False) -> dict:
+    """Circular error measures of signed errors (degrees).
+
+    Returns a dict with ``bias_deg`` (circular mean error, in (-180, 180]), ``rms_deg`` (root mean
+    square of the wrapped errors), ``circ_std_deg`` (Zar's circular standard deviation),
+    ``median_abs_deg``, ``p95_abs_deg`` and ``reversal_fraction`` (|error| > 90 deg).  With
+    ``axial=True`` errors are first folded to (-90, 90] (psi and psi + 180 counted equal).
+    """
+    e = np.asarray(errors_deg, dtype=float).ravel()
+    e = circstats.circular_difference(e, 0.0, axial=axial)
+    mv = circstats.mean_vector(e, axial=axial)
+    bias = mv.mean_deg
+    bias = float(circstats.wrap180(bias)) if not axial else float(circstats.circular_difference(bias, 0.0, axial=True))
+    return {
+        "n": int(e.size),
+        "bias_deg": bias,
+        "rms_deg": float(np.sqrt(np.mean(e ** 2))),
+        "circ_std_deg": circstats.circular_std(e, axial=axial),
+        "median_abs_deg": float(np.median(np.abs(e))),
+        "p95_abs_deg": float(np.percentile(np.abs(e), 95)),
+        "reversal_fraction": float(np.mean(np.abs(e) > 90.0)),
+    }
+
+
+@dataclass(frozen=True)
+class MonteCarloResult:
+    """Errors of repeated noisy decodes at one true heading.
+
+    Attributes
+    ----------
+    true_deg : float
+    estimates : DecodeResult
+    errors_deg : ndarray, shape (S,)
+        ``estimate - truth`` wrapped to (-180, 180].
+    summary : dict
+        :func:`error_summary` of the errors.
+    ambiguous_fraction : float
+    """
+
+    true_deg: float
+    estimates: DecodeResult
+    errors_deg: np.ndarray
+    summary: dict = field(default_factory=dict)
+    ambiguous_fraction: float = 0.0
+
+
+def monte_carlo(truth, decoder: HeadingDecoder, true_deg: float, n: int, rng=None) -> MonteCarloResult:
+    """Sample ``n`` count vectors from ``truth`` (a ``SignalModel``) at ``true_deg`` and decode them.
+
+    ``truth`` may differ from the decoder's model (a scene texture, another gain): that is how
+    model mismatch is studied.
+    """
+    from retina.signal.noise import make_rng, sample_counts
+
+    if int(n) != n or n < 1:
+        raise InputError(f"expected a positive number of repeats, got {n}", key="decode_repeats")
+    lam = truth.expected([true_deg])[0]
+    counts = sample_counts(lam, make_rng(rng), size=int(n))
+    est = decoder.decode(counts)
+    err = circstats.circular_difference(est.heading_deg, true_deg)
+    return MonteCarloResult(float(true_deg), est, err, error_summary(err), float(np.mean(est.ambiguous)))
