@@ -159,3 +159,72 @@ def test_bad_input():
         fisher.heading_information(synthetic_signal(), [0.0], nuisance="sky")
     with pytest.raises(InputError, match="shape"):
         fisher.poisson_information(np.ones(3), np.ones(4))
+
+
+# ---- through the real RetinaModel (retina.eye.pattern) -----------------------------------------
+
+def invented_yield_coeffs(L=4):
+    """Invented anisotropic yield Phi(b) = 0.30 + 0.05 b_z^2 + 0.03 b_x^4 (molecular frame)."""
+    from retina import sphere
+
+    g = sphere.grid_for_degree(L)
+    p = g.points
+    return sphere.fit_even(0.30 + 0.05 * p[:, 2] ** 2 + 0.03 * p[:, 0] ** 4, g, L)
+
+
+def real_signal(ordering=None, n_per_eye=150, photons=1e4, inclination=60.0, **kw):
+    from retina.eye import geometry, ordering as orders, pattern
+
+    if ordering is None:
+        ordering = orders.Composite(orders.Aligned.tilted(35.0, 20.0), orders.Cone(kappa=8.0))
+    rec = geometry.build_receptors(geometry.default_eyes(n_per_eye))
+    model = pattern.RetinaModel(invented_yield_coeffs(), rec, ordering)
+    return SignalModel(model, inclination_deg=inclination, photons=photons, **kw)
+
+
+def test_real_retina_derivative_matches_finite_difference():
+    from retina.signal.light import HorizonSky
+
+    sig = real_signal(pitch_deg=10.0, sky=HorizonSky(softness_deg=10.0))
+    psi = np.array([0.0, 77.0, 181.0])
+    lam, dlam = sig.expected_and_derivative(psi)
+    h = 1e-4
+    fd = (sig.expected(psi + h) - sig.expected(psi - h)) / np.deg2rad(2 * h)
+    # Derived: central difference, O(h^2) error; tolerance well above rounding (~1e-8 relative).
+    np.testing.assert_allclose(dlam, fd, rtol=1e-5, atol=1e-6 * np.abs(dlam).max())
+    assert np.abs(dlam).max() > 1e-3 * lam.max()   # the pattern does change with heading
+
+
+def test_real_retina_fourier_path_is_exact():
+    # Derived: band-limited degree-4 responses give degree-4 trigonometric polynomials in heading.
+    sig = real_signal(roll_deg=7.0)
+    psi = np.linspace(0.5, 359.5, 41)
+    direct = fisher.heading_information(sig, psi)
+    fast = fisher.heading_information(sig, psi, degree=sig.retina.degree)
+    np.testing.assert_allclose(fast.information, direct.information, rtol=1e-8)
+
+
+def test_real_retina_isotropic_ordering_and_flat_light_give_no_information():
+    from retina.eye import ordering as orders
+
+    # Derived: an isotropic ensemble keeps only the l = 0 mean, so every yield is constant.
+    iso = real_signal(orders.Isotropic())
+    info = fisher.heading_information(iso, [0.0, 45.0, 200.0], nuisance="none")
+    assert np.all(info.information < 1e-20 * iso.photons)
+    # Derived: a response with no l > 0 terms (flat yield) under uniform light gives none either.
+    from retina.eye import geometry, pattern
+
+    flat = np.zeros_like(invented_yield_coeffs())
+    flat[0] = 0.3 * np.sqrt(4 * np.pi)
+    rec = geometry.build_receptors(geometry.default_eyes(50))
+    sig = SignalModel(pattern.RetinaModel(flat, rec, None), inclination_deg=60, photons=1e6)
+    assert np.all(fisher.heading_information(sig, [10.0, 100.0]).information < 1e-20)
+
+
+def test_real_retina_score_variance():
+    # Derived: Var(score) = I for Poisson counts (as above), through the real RetinaModel.
+    sig = real_signal(n_per_eye=40, photons=200.0)
+    lam, dlam = sig.expected_and_derivative([33.0])
+    counts = sig.sample([33.0], rng=9, size=20000)[:, 0, :]
+    score = ((counts / lam - 1) * dlam).sum(axis=1)
+    assert score.var() == pytest.approx(fisher.poisson_information(lam, dlam)[0], rel=0.05)
