@@ -1,0 +1,94 @@
+"""The ``retina`` command line: a thin shell over the core.
+
+Subcommands live one per module in :mod:`retina.commands` (see its docstring).  Exit statuses
+(owned here): 0 done, 1 failed (an unexpected error; ``--traceback`` shows it), 2 bad input
+(:class:`~retina.errors.InputError`, printed as one line on stderr, or a
+:class:`~retina.errors.ResourceError` refusal, printed with its advice) and 130 interrupted
+(Ctrl-C; outputs are written atomically, so no partial file is left).
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from retina.errors import Cancelled, InputError, ResourceError
+
+__all__ = ["main", "build_parser", "EXIT_OK", "EXIT_FAILED", "EXIT_INPUT", "EXIT_INTERRUPTED"]
+
+EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+_EPILOG = """\
+examples:
+  retina yields assets/example_pair.toml -o pair.h5
+      the yield function of the example pair at 50 uT, degree 16
+  retina yields my_pair.toml -o my_pair.h5 --field-uT 47 --degree 24 --method liouville
+  retina yields --help
+      everything about one command
+
+exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
+"""
+
+
+def _one_line(text: str) -> str:
+    return " ".join(part.strip() for part in str(text).splitlines() if part.strip())
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The full parser, with every subcommand of :data:`retina.commands.COMMANDS` registered."""
+    import retina
+    from retina.commands import COMMANDS
+
+    parser = argparse.ArgumentParser(
+        prog="retina",
+        description="retina-compass: from a radical-pair yield function to the magnetic modulation "
+                    "pattern over a bird's retinas, and the heading information it carries.",
+        epilog=_EPILOG,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"retina-compass {retina.__version__}")
+    parser.add_argument("--traceback", action="store_true",
+                        help="on an unexpected failure, print the full Python traceback")
+    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND", dest="command")
+    for name in COMMANDS:
+        module = importlib.import_module(f"retina.commands.{name}")
+        before = set(subparsers.choices)
+        module.register(subparsers)
+        for added in set(subparsers.choices) - before:
+            subparsers.choices[added].set_defaults(_run=module.run)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line; return the exit status (never raises, except SystemExit from Python itself)."""
+    argv = sys.argv[1:] if argv is None else list(argv)
+    show_traceback = "--traceback" in argv
+    try:
+        parser = build_parser()
+        try:
+            args = parser.parse_args(argv)
+        except SystemExit as exc:  # --help, --version, or a usage error (argparse printed it)
+            return int(exc.code) if isinstance(exc.code, int) else (EXIT_INPUT if exc.code else EXIT_OK)
+        run = getattr(args, "_run", None)
+        if run is None:
+            parser.print_help(sys.stderr)
+            return EXIT_INPUT
+        return int(run(args))
+    except InputError as exc:
+        print(f"retina: error: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_INPUT
+    except ResourceError as exc:
+        print(f"retina: refused: {_one_line(exc)}", file=sys.stderr)
+        return EXIT_INPUT
+    except (KeyboardInterrupt, Cancelled):
+        print("retina: interrupted", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    except Exception as exc:  # noqa: BLE001 - the last line of defence of a command-line tool
+        if show_traceback:
+            import traceback
+
+            traceback.print_exc()
+        print(f"retina: failed: {type(exc).__name__}: {_one_line(exc)}"
+              + ("" if show_traceback else " (run again with --traceback for details)"), file=sys.stderr)
+        return EXIT_FAILED

@@ -1,0 +1,171 @@
+"""``retina yields``: compute a spin system's yield function and write it to a native HDF5 file.
+
+Steps: read and validate the TOML system, check the output can be written, print the engine's time
+and memory estimate, compute (progress bar on stderr), fit and measure the truncation error, write
+atomically, print a summary in words on stdout.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+
+import numpy as np
+
+from retina.errors import InputError
+
+METHODS = ("auto", "hilbert", "liouville", "separable")
+
+_EXAMPLES = """\
+examples:
+  retina yields assets/example_pair.toml -o pair.h5
+  retina yields pair.toml -o pair47.h5 --field-uT 47 --degree 24
+  retina yields pair.toml -o pair.h5 --method liouville --max-memory-gb 2 --force
+
+The result is cached by content (spin system, field, degree, method, version) in $RETINA_CACHE or
+~/.cache/retina-compass; --no-cache always recomputes.  Load it in Python with
+retina.yieldfn.YieldFunction.load("pair.h5").
+"""
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "yields",
+        help="compute a radical pair's yield function (spherical harmonics) into an HDF5 file",
+        description="Compute the reported yield of a radical pair for every field direction, fit it "
+                    "with even real spherical harmonics up to a degree, measure the truncation error on "
+                    "independent directions, and write the result with its provenance to HDF5.",
+        epilog=_EXAMPLES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    p.add_argument("system", metavar="SYSTEM.toml", help="the spin-system file (see assets/example_pair.toml)")
+    p.add_argument("-o", "--output", metavar="OUT.h5", required=True, help="the HDF5 file to write")
+    p.add_argument("--field-uT", type=float, default=50.0, metavar="B",
+                   help="field strength in microtesla (default: 50)")
+    p.add_argument("--degree", type=int, default=16, metavar="L",
+                   help="largest (even) spherical-harmonic degree of the fit (default: 16)")
+    p.add_argument("--method", choices=METHODS, default="auto",
+                   help="spin-dynamics method; auto picks the cheapest exact one (default: auto)")
+    p.add_argument("--check-points", type=int, default=200, metavar="N",
+                   help="independent directions on which the truncation error is measured (default: 200)")
+    p.add_argument("--max-memory-gb", type=float, default=None, metavar="GB",
+                   help="refuse to start when the engine's memory estimate exceeds this")
+    p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
+    p.add_argument("--no-cache", action="store_true", help="neither read nor write the result cache")
+    p.add_argument("--cache-dir", metavar="DIR", default=None,
+                   help="cache folder (default: $RETINA_CACHE or ~/.cache/retina-compass)")
+    p.add_argument("-q", "--quiet", action="store_true", help="no estimate, no progress bar, summary only")
+
+
+def _fmt_seconds(s: float) -> str:
+    if s < 1:
+        return f"{s * 1e3:.0f} ms"
+    if s < 120:
+        return f"{s:.1f} s"
+    if s < 7200:
+        return f"{s / 60:.1f} min"
+    return f"{s / 3600:.1f} h"
+
+
+def _fmt_bytes(b: float) -> str:
+    for unit, size in (("GB", 2**30), ("MB", 2**20), ("kB", 2**10)):
+        if b >= size:
+            return f"{b / size:.1f} {unit}"
+    return f"{b:.0f} B"
+
+
+def _direction_words(v) -> str:
+    v = np.where(np.abs(v) < 5e-4, 0.0, np.asarray(v, dtype=float))  # no "-0.000"
+    theta = np.degrees(np.arccos(np.clip(v[2], -1, 1)))
+    if np.hypot(v[0], v[1]) < 1e-6:
+        angles = f"polar {theta:.1f} deg"
+    else:
+        angles = f"polar {theta:.1f} deg, azimuth {np.degrees(np.arctan2(v[1], v[0])) % 360:.1f} deg"
+    return f"({v[0]:+.3f}, {v[1]:+.3f}, {v[2]:+.3f}) ({angles})"
+
+
+def summary(yf, output, wall_seconds: float) -> str:
+    """The result in words (what the command prints on stdout)."""
+    p = yf.provenance
+    an = yf.anisotropy()
+    name = p.get("system_name", "?")
+    lines = [
+        f"yield function of {name!r} at {p.get('field_uT', float('nan')):g} uT",
+        f"  anisotropy: max - min = {an.delta:.4g}, {100 * an.relative:.3g} % of the mean yield {an.mean:.4g}",
+        f"  largest yield  {an.max:.6g} with the field along {_direction_words(an.argmax)}",
+        f"  smallest yield {an.min:.6g} with the field along {_direction_words(an.argmin)}",
+        "  (directions in the molecular frame; b and -b give the same yield)",
+        f"  degree {yf.degree}; truncation error max {p.get('truncation_error_max', float('nan')):.2g}, "
+        f"rms {p.get('truncation_error_rms', float('nan')):.2g} on {p.get('check_points', '?')} independent directions",
+        f"  method {p.get('method', '?')}, {p.get('computed_points', '?')} grid directions "
+        f"({p.get('grid', '?')}, one hemisphere), wall time {_fmt_seconds(wall_seconds)}"
+        + (" (taken from the cache)" if yf.from_cache else ""),
+        f"  written to {output}",
+    ]
+    return "\n".join(lines)
+
+
+def run(args) -> int:
+    from tqdm import tqdm
+
+    from retina import sphere
+    from retina.cache import YieldCache, cache_key
+    from retina.io.atomic import check_writable
+    from retina.spin import engine
+    from retina.spin.io import load_system
+    from retina.yieldfn import YieldFunction, _check_degree, _check_field
+
+    t0 = time.perf_counter()
+    system = load_system(args.system)
+    try:
+        field = _check_field(args.field_uT)
+        degree = _check_degree(args.degree)
+    except InputError as exc:
+        raise InputError(exc.detail, key=f"--{exc.key.replace('_', '-')}") from None
+    if args.check_points < 1:
+        raise InputError(f"expected at least 1, got {args.check_points}", key="--check-points")
+    max_bytes = None
+    if args.max_memory_gb is not None:
+        if not args.max_memory_gb > 0:
+            raise InputError(f"expected a positive number of gigabytes, got {args.max_memory_gb}",
+                             key="--max-memory-gb")
+        max_bytes = int(args.max_memory_gb * 2**30)
+    check_writable(args.output, force=args.force)
+
+    method = engine.choose_method(system) if args.method == "auto" else args.method
+    use_cache = not args.no_cache
+    cached = None
+    if use_cache:
+        cached = YieldCache(args.cache_dir).get(
+            cache_key(system, field, degree, method, check_points=args.check_points))
+    if not args.quiet and cached is None:
+        grid = sphere.grid_for_degree(degree)
+        n = len(grid) // 2 + args.check_points
+        cost = engine.estimate_cost(system, n, method)
+        note = f"; {cost.note}" if getattr(cost, "note", "") else ""
+        print(f"retina: {system.name!r}: Hilbert dimension {system.dimension}, method {cost.method}, "
+              f"{n} directions: about {_fmt_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
+              file=sys.stderr)
+
+    bar = None
+    if not args.quiet and cached is None:
+        bar = tqdm(total=None, file=sys.stderr, unit="dir", desc="yields", leave=False, dynamic_ncols=True)
+
+    def progress(done: int, total: int) -> None:
+        if bar is None:
+            return
+        if bar.total != total:
+            bar.total = total
+        bar.update(done - bar.n)
+
+    try:
+        yf = YieldFunction.from_system(system, field, degree, method=method, progress=progress,
+                                       cache=use_cache, cache_dir=args.cache_dir,
+                                       check_points=args.check_points, max_bytes=max_bytes)
+    finally:
+        if bar is not None:
+            bar.close()
+    yf.save(args.output, force=args.force)
+    print(summary(yf, args.output, time.perf_counter() - t0))
+    return 0
