@@ -1,0 +1,205 @@
+"""Exact eigen method: equal recombination rates, no relaxation (the exponential model).
+
+With ``k_S = k_T = k`` the reaction only multiplies ``rho(t)`` by ``exp(-k t)``, so with the
+eigen-decomposition ``H = sum_m w_m |m><m|`` (rad s^-1) and a singlet start ``rho0 = P_S / M``
+
+    Phi_SS = k int_0^inf exp(-k t) Tr(P_S U(t) P_S U(t)^+) dt / M
+           = (1 / M) sum_{m,n} |<m|P_S|n>|^2 k^2 / (k^2 + (w_m - w_n)^2).
+
+A triplet start ``rho0 = (1 - P_S) / (3 M)`` gives ``Phi_S = (Tr P_S - M Phi_SS) / (3 M)
+= (1 - Phi_SS) / 3``.  Both channels sum to one: ``Phi_T = 1 - Phi_S``.
+
+Only the singlet components of the eigenvectors are needed: with ``P_S = |S><S| x 1_nuclear``,
+``<m|P_S|n> = sum_nu conj(u_{nu m}) u_{nu n}`` where ``u_{nu m} = <S, nu|m>`` is an (M, d) block.
+So the work per direction is one ``eigh`` of the (d, d) Hamiltonian, an (d, M) x (M, d) product
+and a Lorentzian-weighted sum over d^2 pairs (a numba kernel).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from retina.errors import InputError
+from retina.spin import operators as ops
+from scipy.linalg.blas import zherk as _zherk
+
+__all__ = ["yields", "check_scope", "chunk_size"]
+
+_DEFAULT_CHUNK_BYTES = 256 * 2**20
+
+try:  # the kernel is optional: numpy does the same sum when numba is missing
+    import numba
+
+    @numba.njit(cache=True)
+    def _lorentz_sum(q, w, k):  # pragma: no cover - compiled
+        """``sum_{i,j} |q_ij|^2 k^2 / (k^2 + (w_i - w_j)^2)`` from the upper triangle of Hermitian q."""
+        d = q.shape[0]
+        k2 = k * k
+        acc = 0.0
+        for j in range(d):  # column outer: contiguous for the Fortran-ordered BLAS output
+            wj = w[j]
+            x = q[j, j]
+            acc += x.real * x.real + x.imag * x.imag
+            off = 0.0
+            for i in range(j):
+                x = q[i, j]
+                dw = w[i] - wj
+                off += (x.real * x.real + x.imag * x.imag) * (k2 / (k2 + dw * dw))
+            acc += 2.0 * off
+        return acc
+
+    _HAVE_NUMBA = True
+except ImportError:  # pragma: no cover
+    _HAVE_NUMBA = False
+
+
+def _lorentz_sum_numpy(q, w, k):
+    """Same sum as the numba kernel (upper triangle of q used)."""
+    up = np.triu(q)
+    dw = w[:, None] - w[None, :]
+    weight = np.where(np.eye(len(w), dtype=bool), 0.5, 1.0) * 2.0 * k * k / (k * k + dw * dw)
+    return float(np.sum((up.real**2 + up.imag**2) * weight))
+
+
+def check_scope(system) -> None:
+    """Raise :class:`InputError` unless the system fits the exponential model."""
+    if not system.equal_rates:
+        raise InputError(
+            f"the eigen method needs equal recombination rates, got k_S = {system.k_singlet:g} s^-1 and "
+            f"k_T = {system.k_triplet:g} s^-1; use method='liouville'",
+            source=system.source, key="k_triplet")
+    if system.relaxation.any:
+        raise InputError("the eigen method does not handle relaxation; use method='liouville'",
+                         source=system.source, key="relaxation")
+    if not (np.isfinite(system.k_singlet) and system.k_singlet > 0):
+        raise InputError(f"expected a positive recombination rate, got {system.k_singlet!r} s^-1",
+                         source=system.source, key="k_singlet")
+
+
+def validate_field(field_uT, directions, source=None) -> tuple[float, np.ndarray]:
+    """Check the field strength (uT, finite, >= 0) and directions ((N, 3), finite, non-zero).
+
+    Returns the strength in tesla and the directions normalised to unit length, shape (N, 3).
+    """
+    try:
+        f = float(field_uT)
+    except (TypeError, ValueError):
+        raise InputError(f"expected a field strength in microtesla, got {field_uT!r}", source=source, key="field_uT")
+    if not np.isfinite(f) or f < 0:
+        raise InputError(f"expected a finite field strength >= 0 uT, got {field_uT!r}", source=source, key="field_uT")
+    d = np.asarray(directions, dtype=float)
+    if d.ndim == 1 and d.shape == (3,):
+        d = d[None, :]
+    if d.ndim != 2 or d.shape[1] != 3:
+        raise InputError(f"expected field directions of shape (N, 3), got shape {d.shape}", source=source,
+                         key="directions")
+    norms = np.linalg.norm(d, axis=1)
+    if not np.all(np.isfinite(norms)) or np.any(norms == 0):
+        raise InputError("expected finite, non-zero field direction vectors", source=source, key="directions")
+    return f * 1e-6, d / norms[:, None]
+
+
+def chunk_size(dimension: int, max_bytes: int | None = None) -> int:
+    """Directions per batch so that the working arrays (about 4 (d, d) complex each) fit ``max_bytes``."""
+    per = 4 * 16 * dimension * dimension
+    budget = _DEFAULT_CHUNK_BYTES if max_bytes is None else int(max_bytes)
+    return int(max(1, min(4096, budget // per)))
+
+
+def singlet_block(vectors, space) -> np.ndarray:
+    """Singlet components ``u[nu, m] = <S, nu | m>`` of eigenvector columns.
+
+    Parameters
+    ----------
+    vectors : ndarray, shape (N, d, d)
+        Eigenvectors as columns.
+    space : PairSpace
+
+    Returns
+    -------
+    ndarray, shape (N, M, d)
+    """
+    i_ud, i_du = space.singlet_indices()
+    return (vectors[:, i_ud, :] - vectors[:, i_du, :]) * np.sqrt(0.5)
+
+
+def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None) -> np.ndarray:
+    """``Phi_SS``: singlet yield from a singlet start for equal rates ``k`` (s^-1).
+
+    Parameters
+    ----------
+    parts : HamiltonianParts
+    b_tesla : ndarray, shape (N, 3)
+        Field vectors, tesla, molecular frame.
+    k : float
+        Common recombination rate, s^-1.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+    """
+    space = parts.space
+    d = space.dimension
+    ma, mb = space.nuclear_a, space.nuclear_b
+    m = ma * mb
+    n = b_tesla.shape[0]
+    out = np.empty(n)
+    step = chunk_size(d, max_bytes)
+    hb = parts.hb.reshape(3, d * d)
+    for start in range(0, n, step):
+        stop = min(n, start + step)
+        h = (b_tesla[start:stop].astype(complex) @ hb).reshape(-1, d, d)
+        h += parts.h0
+        w, v = np.linalg.eigh(h)
+        del h
+        w /= k  # frequencies in units of k: the kernel then works with numbers of order one
+        for p in range(stop - start):
+            vr = v[p].reshape(2, ma, 2, mb, d)
+            u = (vr[0, :, 1] - vr[1, :, 0]).reshape(m, d)  # sqrt(2) <S, nu | m>
+            # zherk on the Fortran view u.T gives conj(u^H u) / 2 = conj(<m|P_S|n>) (upper triangle);
+            # only |.|^2 is used, so the conjugate does not matter.
+            q = _zherk(0.5, u.T, trans=0)
+            out[start + p] = (_lorentz_sum(q, w[p], 1.0) if _HAVE_NUMBA else _lorentz_sum_numpy(q, w[p], 1.0)) / m
+        if progress is not None:
+            progress(stop, n)
+    return out
+
+
+def yields(system, field_uT, directions, *, progress=None, max_bytes=None) -> np.ndarray:
+    """The reported yield of ``system`` for each field direction (exact, equal rates).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        Equal rates, no relaxation (else :class:`InputError`).
+    field_uT : float
+        Field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised here).
+    progress : callable(done, total), optional
+        Called after each batch with the number of directions done.
+    max_bytes : int, optional
+        Working-memory bound for one batch (default 256 MiB).
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        ``system.reported_yield`` from ``system.initial_state``, dimensionless in [0, 1].
+    """
+    check_scope(system)
+    b, dirs = validate_field(field_uT, directions, system.source)
+    parts = ops.hamiltonian_parts(system)
+    phi_ss = singlet_singlet(parts, b * dirs, float(system.k_singlet), progress=progress, max_bytes=max_bytes)
+    if system.initial_state == "singlet":
+        phi_s = phi_ss
+    elif system.initial_state == "triplet":
+        phi_s = (1.0 - phi_ss) / 3.0
+    else:
+        raise InputError(f"expected 'singlet' or 'triplet', got {system.initial_state!r}",
+                         source=system.source, key="initial_state")
+    if system.reported_yield == "singlet":
+        return phi_s
+    if system.reported_yield == "triplet":
+        return 1.0 - phi_s
+    raise InputError(f"expected 'singlet' or 'triplet', got {system.reported_yield!r}",
+                     source=system.source, key="reported_yield")
