@@ -258,6 +258,62 @@ def test_from_system_rejects_bad_arguments(monkeypatch, system):
         YieldFunction.from_system(system, 50.0, degree=200)
 
 
+# ------------------------------------------------------------------------------- with a real spin method
+
+
+class HilbertEngine(FakeEngine):
+    """Routes the engine calls to the exact eigen method (retina.spin.hilbert), whatever lands in engine."""
+
+    def __init__(self):
+        from retina.spin import hilbert
+
+        super().__init__(None)
+        self.hilbert = hilbert
+
+    def compute_yields(self, system, field_uT, directions, *, method="auto", progress=None, max_bytes=None):
+        self.calls.append((field_uT, np.array(directions), method))
+        return self.hilbert.yields(system, field_uT, directions, progress=progress)
+
+
+def test_hilbert_yields_are_even_so_one_hemisphere_suffices(system):
+    from retina.spin import hilbert
+
+    d = random_dirs(12)
+    # Source: /work/shared/references.md, facts of the trade -- a radical-pair yield is unchanged
+    # when the field is reversed (Phi(b) = Phi(-b)), which from_system relies on.
+    np.testing.assert_allclose(hilbert.yields(system, 50.0, -d), hilbert.yields(system, 50.0, d), atol=1e-12)
+
+
+def test_from_system_with_the_eigen_method_matches_direct_evaluation(monkeypatch, system):
+    HilbertEngine().install(monkeypatch)
+    yf = YieldFunction.from_system(system, 50.0, degree=10)
+    d = random_dirs(40)
+    direct = HilbertEngine().hilbert.yields(system, 50.0, d)
+    err = np.max(np.abs(yf(d) - direct))
+    # Independent check: direct evaluation at new random directions agrees with the fit to within
+    # the truncation error measured at the check points (a factor 3 allows for sampling).
+    assert err <= 3 * yf.fit_error + 1e-12
+    assert yf.fit_error < 1e-2 * yf.anisotropy().delta
+    l, m = sphere.lm_index(10)
+    # Derived: one axial hyperfine tensor (axis z) and isotropic g make H covariant under rotations
+    # about z, so Phi depends on b_z only: every m != 0 coefficient vanishes.
+    assert np.max(np.abs(yf.coeffs[m != 0])) < 1e-9
+    an = yf.anisotropy()
+    assert an.delta > 1e-3 and 0.0 < an.min < an.max < 1.0
+    # The extremes of an axial function lie on the axis or on the equator.
+    for v in (an.argmax, an.argmin):
+        assert abs(v[2]) > 1 - 1e-6 or abs(v[2]) < 1e-6
+
+
+def test_isotropic_pair_gives_a_constant_yield(monkeypatch):
+    HilbertEngine().install(monkeypatch)
+    iso = loads_system(PAIR.replace("principal_mT = [-0.1, -0.1, 1.6]", "hyperfine_mT = 0.8"))
+    yf = YieldFunction.from_system(iso, 50.0, degree=6)
+    # Derived: with only isotropic couplings the Hamiltonian's spectrum and singlet overlaps do not
+    # depend on the field direction, so every l > 0 coefficient vanishes.
+    assert np.max(np.abs(yf.coeffs[1:])) < 1e-12 and yf.anisotropy().delta < 1e-11
+
+
 # ------------------------------------------------------------------------------- with the real engine
 
 
