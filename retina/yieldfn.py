@@ -16,7 +16,9 @@ Conventions (owned here)
 - ``relative`` anisotropy is ``(max - min) / mean``, ``mean`` the average over the sphere.
 - Provenance is a flat or nested dict of str, int, float and bool values (nested dicts allowed).
   :meth:`YieldFunction.from_system` fills: ``kind``, ``spin_system_toml`` (the canonical document,
-  :func:`retina.spin.io.dump_system`), ``system_name``, ``system_source``, ``field_uT``, ``method``,
+  :func:`retina.spin.io.dump_system`), ``spin_system_document_toml`` (the file's own parsed
+  document, when there is one), ``system_name``, ``system_source``, ``reported_yield``,
+  ``initial_state``, ``field_uT``, ``method``,
   ``degree``, ``grid`` / ``grid_order`` / ``grid_points`` / ``computed_points``, ``check_grid`` /
   ``check_points``, ``truncation_error_max`` / ``truncation_error_rms``, ``compute_seconds``,
   ``versions`` (numpy, scipy, numba, h5py, retina), ``date_utc`` (ISO 8601), ``input_hash`` (the
@@ -377,6 +379,8 @@ class YieldFunction:
             "spin_system_toml": dump_system(system),
             "system_name": system.name,
             "system_source": system.source or "",
+            "reported_yield": system.reported_yield,
+            "initial_state": system.initial_state,
             "field_uT": field_uT,
             "method": resolved,
             "degree": degree,
@@ -393,6 +397,13 @@ class YieldFunction:
             "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
             "content_hash": content_hash(coeffs, degree),
         }
+        if system.document:
+            try:
+                import tomli_w
+
+                prov["spin_system_document_toml"] = tomli_w.dumps(system.document)
+            except (TypeError, ValueError):  # a document built in Python may hold non-TOML values
+                pass
         if key is not None:
             prov["input_hash"] = key
         yf = cls(coeffs, degree, prov, err_max)

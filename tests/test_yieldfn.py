@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import datetime as dt
 import sys
+import tomllib
 import types
 
 import numpy as np
@@ -208,6 +209,8 @@ def test_from_system_uses_a_hemisphere_and_measures_no_error_for_a_band_limited_
     assert set(p["versions"]) == {"numpy", "scipy", "numba", "h5py", "retina"}
     assert dt.datetime.fromisoformat(p["date_utc"]).tzinfo is not None
     assert systems_equal(loads_system(p["spin_system_toml"]), system)
+    assert tomllib.loads(p["spin_system_document_toml"]) == system.document
+    assert (p["reported_yield"], p["initial_state"]) == ("singlet", "singlet")
 
 
 def test_truncation_error_is_reported_for_a_function_beyond_the_degree(monkeypatch, system):

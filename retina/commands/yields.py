@@ -91,7 +91,8 @@ def summary(yf, output, wall_seconds: float) -> str:
     an = yf.anisotropy()
     name = p.get("system_name", "?")
     lines = [
-        f"yield function of {name!r} at {p.get('field_uT', float('nan')):g} uT",
+        f"{p.get('reported_yield', 'reported')} yield of {name!r} (from a {p.get('initial_state', '?')} start) "
+        f"at {p.get('field_uT', float('nan')):g} uT",
         f"  anisotropy: max - min = {an.delta:.4g}, {100 * an.relative:.3g} % of the mean yield {an.mean:.4g}",
         f"  largest yield  {an.max:.6g} with the field along {_direction_words(an.argmax)}",
         f"  smallest yield {an.min:.6g} with the field along {_direction_words(an.argmin)}",

@@ -20,6 +20,7 @@ provenance as the same Python types (str, int, float, bool, dict).
 
 from __future__ import annotations
 
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -32,6 +33,10 @@ __all__ = ["save_yield_function", "load_yield_function", "FORMAT", "FORMAT_VERSI
 FORMAT = "retina-compass yield function"
 FORMAT_VERSION = 1
 _LONG_STRING = 1024
+
+#: HDF5 is not thread-safe: every file access of this module holds this lock (worker threads of the
+#: viewer may save and load concurrently).
+HDF5_LOCK = threading.RLock()
 
 
 def _write_dict(group, d: dict, where: str) -> None:
@@ -97,7 +102,7 @@ def save_yield_function(yf, path: str | Path, *, force: bool = False) -> Path:
     from retina.yieldfn import BASIS
 
     path = Path(path)
-    with atomic_path(path, force=force) as tmp:
+    with HDF5_LOCK, atomic_path(path, force=force) as tmp:
         with h5py.File(tmp, "w") as f:
             f.attrs.create("format", FORMAT, dtype=h5py.string_dtype("utf-8"))
             f.attrs["format_version"] = np.int64(FORMAT_VERSION)
@@ -121,14 +126,19 @@ def load_yield_function(path: str | Path):
         When the file is missing, is not HDF5, or lacks the datasets and attributes of the layout
         (the message names the file and what is missing).
     """
+    path = Path(path)
+    if not path.exists():
+        raise InputError("file not found; expected a yield-function HDF5 file", source=path)
+    with HDF5_LOCK:
+        return _load(path)
+
+
+def _load(path: Path):
     import h5py
 
     from retina import sphere
     from retina.yieldfn import BASIS, YieldFunction
 
-    path = Path(path)
-    if not path.exists():
-        raise InputError("file not found; expected a yield-function HDF5 file", source=path)
     try:
         f = h5py.File(path, "r")
     except OSError:
