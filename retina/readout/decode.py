@@ -229,6 +229,9 @@ class HeadingDecoder:
 
     def _decode_block(self, c):
         ll = self.loglik(c)
+        return self._from_loglik(ll, c, self.refine)
+
+    def _from_loglik(self, ll, c, refine):
         S, G = ll.shape
         rows = np.arange(S)
         j1 = np.argmax(ll, axis=1)
@@ -246,15 +249,64 @@ class HeadingDecoder:
         off1 = self._parabolic(ll, j1)
         off2 = self._parabolic(ll, j2)
         second = np.where(has2, circstats.wrap360(self.headings_deg[j2] + off2), np.nan)
-        if self.refine == "none":
+        if refine == "none":
             best = self.headings_deg[j1]
-        elif self.refine == "parabolic":
+        elif refine == "parabolic":
             best = self.headings_deg[j1] + off1
-        elif self.refine == "hermite":
+        elif refine == "hermite":
             best = self._hermite(c, j1, off1)
         else:
             best = self._brent(c, j1)
         return circstats.wrap360(best), l1, second, delta, ambiguous
+
+    def decode_scan(self, counts, offsets_deg, *, scale: float | None = None, chunk: int = 500) -> DecodeResult:
+        """Decode the heading from counts collected over a head scan.
+
+        Parameters
+        ----------
+        counts : array_like, shape (S, P, N) or (P, N)
+            Counts at each of ``P`` scan poses.
+        offsets_deg : array_like, shape (P,)
+            Known yaw offsets of the poses from the unknown heading; multiples of the grid step.
+        scale : float, optional
+            Expected counts at each pose relative to the decoder's grid model; default ``1 / P``
+            (a photon budget split over the scan, ``retina.readout.scans``).
+
+        Notes
+        -----
+        ``l(psi) = sum_p [n_p . log lam(psi + o_p) - scale sum lam(psi + o_p)]`` (known gain) or,
+        with one unknown gain for the scan, ``sum_p n_p . log lam(psi + o_p) - n_tot log sum_p
+        sum lam(psi + o_p)``, both on the grid by shifting columns; refined parabolically.
+        """
+        c = np.asarray(counts, dtype=float)
+        if c.ndim == 2:
+            c = c[None]
+        off = np.atleast_1d(np.asarray(offsets_deg, dtype=float))
+        if c.ndim != 3 or c.shape[1] != off.size or c.shape[2] != self.n_receptors:
+            raise InputError(f"expected counts (S, {off.size}, {self.n_receptors}), got {np.shape(counts)}",
+                             key="counts")
+        shifts = off / self.step_deg
+        if not np.allclose(shifts, np.round(shifts), atol=1e-6):
+            raise InputError(f"scan offsets must be multiples of the grid step {self.step_deg} deg",
+                             key="scan.offsets_deg")
+        shifts = np.round(shifts).astype(int)
+        P = off.size
+        sc = 1.0 / P if scale is None else float(scale)
+        parts = []
+        for s in range(0, c.shape[0], chunk):
+            cc = c[s:s + chunk]
+            ll = np.zeros((cc.shape[0], self.headings_deg.size))
+            tot = np.zeros(self.headings_deg.size)
+            for p in range(P):
+                # column j of the shifted array is heading psi_j + o_p
+                ll += np.roll(self._counts(cc[:, p]) @ self._loglam_T, -shifts[p], axis=1)
+                tot += np.roll(sc * self._lam_tot, -shifts[p])
+            if self.gain == "known":
+                ll -= tot[None, :]
+            else:
+                ll -= cc.sum(axis=(1, 2))[:, None] * np.log(np.maximum(tot, _TINY))[None, :]
+            parts.append(self._from_loglik(ll, None, "parabolic" if self.refine != "none" else "none"))
+        return DecodeResult(*(np.concatenate([p[k] for p in parts]) for k in range(5)))
 
     def _parabolic(self, ll, j):
         G = ll.shape[1]
