@@ -126,5 +126,10 @@ def test_bad_eyes():
         Eye(n_receptors=0)
     with pytest.raises(InputError):
         Eye(density="gaussian")
+    with pytest.raises(InputError) as e:
+        Eye(centre_mm=(1.0, "x", 0.0))
+    assert e.value.key == "eye.centre_mm"
+    # eye centres default to the eye's own side of the midline
+    assert Eye(side="left").centre_mm[1] < 0 < Eye(side="right").centre_mm[1]
     with pytest.raises(InputError, match="one left and one right"):
         build_receptors((Eye(side="right"), Eye(side="right")))

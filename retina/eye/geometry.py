@@ -103,8 +103,9 @@ class Eye:
         Width ``s`` of the central area, degrees (> 0).
     radius_mm : float
         Eye radius, millimetres.
-    centre_mm : tuple of 3 floats
-        Eye centre in the head frame, millimetres.
+    centre_mm : tuple of 3 floats or None
+        Eye centre in the head frame, millimetres; ``None`` puts it 5 mm to the eye's side of the
+        midline, ``(0, -5, 0)`` left or ``(0, 5, 0)`` right.
     """
 
     side: str = "right"
@@ -116,11 +117,20 @@ class Eye:
     central_ratio: float = 4.0
     central_width_deg: float = 20.0
     radius_mm: float = 3.0
-    centre_mm: tuple = (0.0, 5.0, 0.0)
+    centre_mm: tuple | None = None
 
     def __post_init__(self):
         if self.side not in ("left", "right"):
             raise InputError(f"expected side 'left' or 'right', got {self.side!r}", key="eye.side")
+        if self.centre_mm is None:
+            object.__setattr__(self, "centre_mm", (0.0, -5.0 if self.side == "left" else 5.0, 0.0))
+        else:
+            try:
+                c = tuple(np.asarray(self.centre_mm, dtype=float).ravel().tolist())
+            except (TypeError, ValueError):
+                raise InputError(f"expected an eye centre (x, y, z) in mm, got {self.centre_mm!r}",
+                                 key="eye.centre_mm") from None
+            object.__setattr__(self, "centre_mm", c)
         for k in ("azimuth_deg", "elevation_deg", "extent_deg", "central_ratio",
                   "central_width_deg", "radius_mm"):
             v = getattr(self, k)
