@@ -32,6 +32,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 from scipy.spatial.transform import Rotation
 
@@ -106,6 +107,29 @@ def _coeffs_of(obj) -> np.ndarray:
     except ValueError as e:
         raise InputError(str(e), key="yield_function") from None
     return c
+
+
+@numba.njit(cache=True)
+def _legendre_kernel(b, axes, q, want_grad, out, dout):
+    """out[p, n] = g(t), dout[p, n] = g'(t) with t = b[p] . axes[n] and
+    g(t) = sum_j q[j] t^(2 j) (Horner in t^2; one fused pass, no temporaries)."""
+    P, N, J = b.shape[0], axes.shape[0], q.shape[0] - 1
+    for p in range(P):
+        bx, by, bz = b[p, 0], b[p, 1], b[p, 2]
+        for n in range(N):
+            t = bx * axes[n, 0] + by * axes[n, 1] + bz * axes[n, 2]
+            u = t * t
+            g = q[J]
+            for j in range(J - 1, -1, -1):
+                g = g * u + q[j]
+            out[p, n] = g
+            if want_grad:
+                d = 0.0
+                if J > 0:
+                    d = J * q[J]
+                    for j in range(J - 1, 0, -1):
+                        d = d * u + j * q[j]
+                dout[p, n] = 2.0 * t * d
 
 
 class RetinaModel:
@@ -219,31 +243,20 @@ class RetinaModel:
             raise InputError("a zero field has no direction", key="b_head")
         return b / n
 
-    def _horner(self, t: np.ndarray, want_grad: bool):
-        q = self._legendre
-        u = t * t
-        g = np.full_like(u, q[-1])
-        for c in q[-2::-1]:
-            g *= u
-            g += c
-        if not want_grad:
-            return g, None
-        # g'(t) = 2 t sum_j j q_j u^(j-1)
-        J = len(q) - 1
-        if J == 0:
-            return g, np.zeros_like(t)
-        dg = np.full_like(u, J * q[J])
-        for j in range(J - 1, 0, -1):
-            dg *= u
-            dg += j * q[j]
-        dg *= 2.0 * t
-        return g, dg
+    def _horner(self, b: np.ndarray, want_grad: bool):
+        """Values g(a_n . b_p) and derivatives g'(a_n . b_p), each (P, N)."""
+        P, N = b.shape[0], len(self.receptors)
+        out = np.empty((P, N))
+        dout = np.empty((P, N)) if want_grad else np.empty((1, 1))
+        _legendre_kernel(np.ascontiguousarray(b), np.ascontiguousarray(self.receptors.axes),
+                         self._legendre, want_grad, out, dout)
+        return out, (dout if want_grad else None)
 
     def yields(self, b_head) -> np.ndarray:
         """Yields ``(P, N)`` for unit head-frame field directions ``b_head (P, 3)``."""
         b = self._dirs(b_head)
         if self._legendre is not None:
-            return self._horner(b @ self.receptors.axes.T, False)[0]
+            return self._horner(b, False)[0]
         return sphere.real_sh(self.degree, b) @ self.coeffs.T
 
     def yields_and_grad(self, b_head) -> tuple[np.ndarray, np.ndarray]:
@@ -253,7 +266,7 @@ class RetinaModel:
         if self._legendre is not None:
             A = self.receptors.axes
             t = b @ A.T
-            g, dg = self._horner(t, True)
+            g, dg = self._horner(b, True)
             grad = dg[:, :, None] * (A[None, :, :] - t[:, :, None] * b[:, None, :])
             return g, grad
         Y, G = sphere.real_sh_grad(self.degree, b)
