@@ -17,18 +17,20 @@ Models:
 
 - :class:`Aligned`: one fixed rotation (every molecule identical).
 - :class:`FreeRotation`: ``Q = Rz(alpha) R0`` with ``alpha`` uniform on ``[0, 2 pi)`` (free rotation
-  about the receptor axis); ``R0 = Rz(phi0) Ry(tilt)`` puts the molecular ``z`` axis at the angle
+  about the receptor axis); ``R0 = Ry(tilt) Rz(twist)`` puts the molecular ``z`` axis at the angle
   ``tilt`` to the receptor axis.  Ensemble: the m = 0 projection of ``R0 f`` (exact).
 - :class:`Cone`: cone disorder of the ``z`` axis of the frame it acts in, ``Q = Rz(alpha) Ry(beta)
   Rz(-alpha)`` with ``alpha`` uniform and ``cos beta`` von Mises-Fisher distributed (density
   ``kappa exp(kappa (t - 1)) / (1 - exp(-2 kappa))`` on ``t = cos beta``): the swing that carries
   the ``z`` axis to a vMF-distributed direction ``u`` about it, with no twist about ``u``.  Given
   either the concentration ``kappa`` or the order parameter ``<P2> = E[P_2(cos beta)]``, solved
-  for ``kappa`` (``<P2> = I_{5/2}(kappa) / I_{1/2}(kappa)``).  Ensemble: for the m = 0 part the
-  Funk-Hecke factors of the vMF kernel (exact); in general the rotation average by quadrature
-  (``2 L + 1`` equally spaced ``alpha``, exact for band-limited functions; Gauss-Legendre or, for
-  ``kappa > 30``, Gauss-Laguerre nodes in ``cos beta`` with the vMF weight, converged to rounding
-  for degrees up to 32).
+  for ``kappa`` (``<P2> = I_{5/2}(kappa) / I_{1/2}(kappa)``).  Ensemble: the full rotation average
+  by quadrature (``2 L + 1`` equally spaced ``alpha``, exact for band-limited functions, times the
+  ``cos beta`` rule :func:`vmf_cos_rule`, Gauss-Legendre or for large ``kappa`` Gauss-Laguerre
+  with the vMF weight, converged to rounding at degree 16).  On the m = 0 part (functions
+  axially symmetric about the cone axis) it equals the Funk-Hecke convolution with the vMF kernel,
+  ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)`` (:meth:`Cone.ensemble_axial`); on m != 0 terms
+  the swing average differs from a convolution.
 - :class:`Isotropic`: uniformly random rotations (Haar); the response is the constant mean (no
   compass).
 - :class:`Composite`: independent steps applied in order (the first acts first on the molecule):
