@@ -154,8 +154,10 @@ def yield_sphere(fn: Callable[[np.ndarray], np.ndarray], *, argmax: Sequence[flo
         cb.formatter.set_useOffset(False)
         cb.update_ticks()
 
-    amax = np.asarray(argmax, float) / np.linalg.norm(argmax)
-    amin = np.asarray(argmin, float) / np.linalg.norm(argmin)
+    from retina.yieldfn import canonical_axis
+
+    amax, amin = (np.where(np.abs(a) < 5e-3, 0.0, a) for a in (canonical_axis(argmax), canonical_axis(argmin)))
+    fig.retina_extremes = (amax, amin)
     caption = (f"{label} (dimensionless) against field direction in the molecular frame. "
                f"Range {vmin:.5f}-{vmax:.5f}, mean {mean:.5f}, max - min {delta:.3g} "
                f"({100 * delta / mean:.3g} % of the mean). Largest yield along "

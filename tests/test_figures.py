@@ -1,0 +1,185 @@
+"""Figure builders on small synthetic inputs: files written, not blank, metadata, projections."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from PIL import Image
+from scipy import integrate, stats
+
+from retina import figures as F
+from retina.errors import InputError
+from retina.figures.curves import CHANCE_RMS_DEG, _angle_to_kappa, _kappa_to_angle
+from retina.figures.sphere_maps import lambert_upper
+from retina.figures.visual_fields import head_lonlat
+
+
+def not_blank(png, min_colours=64, min_std=20.0):
+    """Pixel statistics of a written PNG: many distinct colours and real contrast."""
+    im = Image.open(png).convert("RGB")
+    a = np.asarray(im)
+    colours = np.unique(a.reshape(-1, 3), axis=0).shape[0]
+    assert colours > min_colours, f"{png}: only {colours} colours"
+    assert a.std() > min_std, f"{png}: standard deviation {a.std():.1f}"
+    return im
+
+
+def check_files(stem, title_part):
+    png, svg = stem.with_suffix(".png"), stem.with_suffix(".svg")
+    im = not_blank(png)
+    assert title_part in im.info.get("Title", "")
+    assert len(im.info.get("Description", "")) > 40  # the caption with units and parameters
+    text = svg.read_text()
+    assert "<svg" in text and title_part in text
+    return im
+
+
+# --- synthetic inputs -------------------------------------------------------------------------------
+
+def synthetic_yield(d):
+    # An even function with a known maximum along +z and minima on the equator at phi = +/-45 deg.
+    return 0.3 + 0.02 * (1.5 * d[:, 2] ** 2 - 0.5) + 0.004 * (d[:, 0] ** 2 - d[:, 1] ** 2) ** 2
+
+
+@pytest.fixture(scope="module")
+def retina_points():
+    rng = np.random.default_rng(3)
+
+    def cap(az, n):
+        a = np.radians(az)
+        axis = np.array([np.cos(a), np.sin(a), 0.0])
+        v = rng.normal(size=(6 * n, 3))
+        v /= np.linalg.norm(v, axis=1, keepdims=True)
+        return v[v @ axis > np.cos(np.radians(80))][:n]
+
+    vis = np.vstack([cap(-60, 200), cap(60, 200)])
+    eye = np.r_[np.zeros(200, int), np.ones(200, int)]
+    return vis, eye
+
+
+def b_head_for(yaw_deg, inc_deg=66.0):
+    # Derived: world field (cos I, 0, sin I) in NED; the head turned by yaw about z (down) sees
+    # R_z(-yaw) applied to it.
+    y, i = np.radians(yaw_deg), np.radians(inc_deg)
+    return np.stack([np.cos(y) * np.cos(i), -np.sin(y) * np.cos(i), np.full_like(y, np.sin(i))], axis=-1)
+
+
+# --- projections and helper maths ---------------------------------------------------------------------
+
+def test_lambert_map_is_equal_area():
+    # Derived: on the Lambert azimuthal equal-area map of a hemisphere, the fraction of the disc within
+    # polar angle t0 equals the fraction of the hemisphere's area, (1 - cos t0) / 1.
+    X, Y, dirs = lambert_upper(801)
+    inside = np.isfinite(dirs[..., 0])
+    theta = np.arccos(np.clip(dirs[inside][:, 2], -1, 1))
+    for t0 in np.radians([20.0, 45.0, 70.0]):
+        frac = np.mean(theta < t0)
+        assert frac == pytest.approx(1 - np.cos(t0), abs=5e-3)  # pixelisation of the disc edge
+    assert np.allclose(np.linalg.norm(dirs[inside], axis=1), 1.0)
+
+
+def test_head_lonlat_follows_the_head_frame():
+    # Derived from the head frame (x beak, y right, z down): beak at (0, 0), right at azimuth +90,
+    # straight up at elevation +90.
+    lon, lat = head_lonlat(np.array([[1.0, 0, 0], [0, 1.0, 0], [0, 0, -1.0], [1.0, -1.0, 0]]))
+    assert np.allclose(np.degrees(lon[:2]), [0, 90]) and np.isclose(np.degrees(lat[2]), 90)
+    assert np.isclose(np.degrees(lon[3]), -45) and np.isclose(lat[3], 0)
+
+
+def test_vmf_typical_tilt_against_quadrature():
+    # Reference: scipy.integrate.quad of the von Mises-Fisher density exp(k cos t) sin t.
+    for k in (0.5, 3.0, 20.0, 200.0):
+        num = integrate.quad(lambda t: np.cos(t) * np.exp(k * (np.cos(t) - 1)) * np.sin(t), 0, np.pi)[0]
+        den = integrate.quad(lambda t: np.exp(k * (np.cos(t) - 1)) * np.sin(t), 0, np.pi)[0]
+        assert _kappa_to_angle(k) == pytest.approx(np.degrees(np.arccos(num / den)), rel=1e-6)
+        assert _angle_to_kappa(_kappa_to_angle(k)) == pytest.approx(k, rel=1e-6)
+
+
+def test_chance_level_is_the_rms_of_a_uniform_heading():
+    # Reference: scipy.integrate.quad of x^2 over (-180, 180) / 360.
+    ms = integrate.quad(lambda x: x * x, -180, 180)[0] / 360
+    assert CHANCE_RMS_DEG == pytest.approx(np.sqrt(ms), rel=1e-12)
+
+
+# --- every builder writes a non-blank figure with metadata ---------------------------------------------
+
+def test_yield_sphere(tmp_path):
+    fig = F.yield_sphere(synthetic_yield, params="synthetic test function", path=tmp_path / "y", dpi=80)
+    check_files(tmp_path / "y", "Reaction yield")
+    # Derived from the formula: largest yield along the z axis, smallest along the equatorial
+    # diagonals (x^2 = y^2, where the quartic term vanishes); the figure reports axes canonically.
+    amax, amin = fig.retina_extremes
+    assert np.allclose(amax, [0, 0, 1], atol=1e-2)
+    assert abs(amin[2]) < 1e-2 and abs(abs(amin[0]) - abs(amin[1])) < 2e-2
+    assert "Largest yield along (+0.00, +0.00, +1.00)" in fig.retina_caption
+
+
+def test_modulation_fields(tmp_path, retina_points):
+    vis, eye = retina_points
+    heads = np.array([0.0, 45.0, 90.0, 135.0])
+    B = b_head_for(heads)
+    mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
+    fig = F.modulation_fields(vis, eye, mod, heads, B, params="synthetic", path=tmp_path / "m", dpi=80)
+    im = check_files(tmp_path / "m", "Modulation over the visual fields")
+    assert len([a for a in fig.axes if a.name == "mollweide"]) == 4
+    # The diverging scale is centred at zero: colour limits symmetric.
+    arts = [c for a in fig.axes if a.name == "mollweide" for c in a.collections if c.get_array() is not None]
+    lo, hi = arts[0].get_clim()
+    assert lo == pytest.approx(-hi)
+    assert im.size[0] > im.size[1]
+
+
+def test_scan_filmstrip_and_animation(tmp_path, retina_points):
+    vis, eye = retina_points
+    yaw = np.linspace(-60, 60, 13)
+    B = b_head_for(yaw)
+    mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
+    F.scan_filmstrip(vis, eye, mod, yaw, B, n_frames=6, path=tmp_path / "s", dpi=80)
+    check_files(tmp_path / "s", "Head scan film strip")
+    gif = F.scan_animation(vis, eye, mod, yaw, B, tmp_path / "scan", fps=5, dpi=50)
+    assert gif.name == "scan.gif"
+    im = Image.open(gif)
+    assert im.n_frames == yaw.size
+    im.seek(yaw.size // 2)
+    not_blank_frame = np.asarray(im.convert("RGB"))
+    assert np.unique(not_blank_frame.reshape(-1, 3), axis=0).shape[0] > 32
+    assert not list(tmp_path.glob(".*part")) and not list(tmp_path.glob(".scan.*"))  # no temporaries left
+
+
+def test_precision_and_disorder(tmp_path):
+    n = np.logspace(0, 5, 11)
+    F.precision_curves(n, {"single pose": 30 / np.sqrt(n), "scan": 10 / np.sqrt(n)},
+                       decoded_deg={"single pose": np.minimum(35 / np.sqrt(n), 100)},
+                       light_levels={"dim": 30.0, "bright": 3000.0}, path=tmp_path / "p", dpi=80)
+    check_files(tmp_path / "p", "Heading precision")
+    k = np.array([0.5, 2.0, 10.0, 50.0])
+    d = 0.05 * k / (k + 5)
+    F.disorder_tolerance(k, d, {"dim": 3 / d, "bright": 0.3 / d}, path=tmp_path / "d", dpi=80)
+    check_files(tmp_path / "d", "Tolerance to molecular disorder")
+
+
+def test_trial_histograms_mean_vector(tmp_path):
+    rng = np.random.default_rng(11)
+    data = {"dim": np.degrees(rng.vonmises(np.radians(200), 2.0, 60)) % 360,
+            "bright": np.degrees(rng.vonmises(np.radians(200), 20.0, 60)) % 360}
+    fig = F.trial_histograms(data, 200.0, path=tmp_path / "t", dpi=80)
+    check_files(tmp_path / "t", "Simulated orientation trials")
+    # Reference: scipy.stats.circmean gives the same mean direction as the caption reports.
+    for lab, ang in data.items():
+        mu = np.degrees(stats.circmean(np.radians(ang)))
+        assert f"{lab}: n = 60, mean {mu:.1f} deg" in fig.retina_caption
+
+
+def test_pdf_metadata_and_errors(tmp_path):
+    fig = F.precision_curves([1.0, 10.0], {"a": [10.0, 3.0]})
+    paths = F.save_figure(fig, tmp_path / "x.png", formats=("pdf",))
+    assert paths == [tmp_path / "x.pdf"] and paths[0].read_bytes()[:4] == b"%PDF"
+    assert b"Heading precision" in paths[0].read_bytes()
+    with pytest.raises(InputError, match="figure format"):
+        F.save_figure(fig, tmp_path / "x", formats=("jpg",))
+    with pytest.raises(InputError, match="does not exist"):
+        F.save_figure(fig, tmp_path / "missing" / "x")
+    with pytest.raises(InputError, match="expected 2 values"):
+        F.precision_curves([1.0, 10.0], {"a": [1.0, 2.0, 3.0]})
+    with pytest.raises(InputError, match="modulation of shape"):
+        F.modulation_fields(np.ones((5, 3)), np.zeros(5, int), np.zeros((2, 4)), [0, 1], np.ones((2, 3)))
