@@ -228,3 +228,29 @@ def test_real_retina_score_variance():
     counts = sig.sample([33.0], rng=9, size=20000)[:, 0, :]
     score = ((counts / lam - 1) * dlam).sum(axis=1)
     assert score.var() == pytest.approx(fisher.poisson_information(lam, dlam)[0], rel=0.05)
+
+
+def test_cone_disorder_funk_hecke_shortcut_matches_ordering_module():
+    # Reference: the ordering module's cone average (quadrature over the vMF swing rotations,
+    # retina.eye.ordering.Cone) evaluated directly at each heading, against the Funk-Hecke
+    # block-sum shortcut with Fourier interpolation.
+    from retina.eye import geometry, ordering as orders, pattern
+
+    rec = geometry.build_receptors(geometry.default_eyes(60))
+    f = invented_yield_coeffs()
+    free = orders.FreeRotation(tilt_deg=40.0)
+    r0 = free.ensemble(f)
+    psi = np.array([0.0, 50.0, 130.0, 275.0])
+    kappas = [0.0, 2.0, 20.0, np.inf]
+
+    def make(coeffs):
+        return SignalModel(pattern.RetinaModel(coeffs, rec, None), inclination_deg=55.0, photons=1.0)
+
+    got = fisher.information_vs_cone_disorder(make, r0, kappas, psi, nuisance="gain")
+    for k, kappa in enumerate(kappas):
+        model = pattern.RetinaModel(f, rec, orders.Composite(free, orders.Cone(kappa=kappa)))
+        sig = SignalModel(model, inclination_deg=55.0, photons=1.0)
+        want = fisher.heading_information(sig, psi, nuisance="gain").per_photon
+        np.testing.assert_allclose(got[k], want, rtol=1e-7, atol=1e-12 * np.abs(got).max())
+    # Derived: kappa = 0 leaves only the mean: no information.
+    assert np.all(got[0] <= 1e-12 * got[-1].max())

@@ -10,9 +10,10 @@ Conventions (owned here)
 - Grid: ``G`` equally spaced headings covering the circle (step ``h = 360 / G`` degrees).
   The best grid heading is refined locally:
   ``"parabolic"``: vertex of the parabola through the three grid values around the peak;
-  ``"hermite"`` (default when derivatives are known): Newton steps on the exact log-likelihood of
-  a model whose ``lam(psi)`` is the cubic Hermite interpolant of the grid values and analytic grid
-  derivatives (error O(h^4) in ``lam``), kept within one grid step of the peak;
+  ``"hermite"`` (default when derivatives are known): the maximum of the cubic Hermite interpolant
+  of the log-likelihood on the grid cell holding the peak, from the grid values and the exact
+  derivatives ``l'(psi_j) = sum_i n_i dlam_ij / lam_ij - sum_i dlam_ij`` (unknown gain:
+  ``... - n_tot sum dlam_ij / sum lam_ij``) at the grid nodes (interpolation error O(h^4));
   ``"brent"``: bounded Brent minimisation (``scipy.optimize.minimize_scalar``) of the exact
   negative log-likelihood through the forward model, one decode at a time (slow; a cross-check);
   ``"none"``: the grid heading.
@@ -158,6 +159,10 @@ class HeadingDecoder:
         self._loglam_T = np.log(np.maximum(lam, _TINY)).T.copy()   # (N, G)
         self._lam_tot = lam.sum(axis=1)                              # (G,)
         self._dlam_tot = None if self.dlam is None else self.dlam.sum(axis=1)
+        self._ratio = None
+        if self.dlam is not None:                                    # dlam / lam, (G, N)
+            self._ratio = np.zeros_like(lam)
+            np.divide(self.dlam, lam, out=self._ratio, where=lam > 0)
 
     @property
     def n_receptors(self) -> int:
@@ -254,7 +259,7 @@ class HeadingDecoder:
         elif refine == "parabolic":
             best = self.headings_deg[j1] + off1
         elif refine == "hermite":
-            best = self._hermite(c, j1, off1)
+            best = self._hermite(c, ll, j1, off1)
         else:
             best = self._brent(c, j1)
         return circstats.wrap360(best), l1, second, delta, ambiguous
@@ -317,49 +322,48 @@ class HeadingDecoder:
             off = np.where(den < 0, 0.5 * (lm - lp) / den, 0.0)
         return np.clip(off, -0.5, 0.5) * self.step_deg
 
-    def _hermite(self, c, j1, off_deg, iterations: int = 4):
-        """Newton steps on the Hermite-interpolated log-likelihood, within one step of the peak."""
+    def _hermite(self, c, ll, j1, off_deg):
+        """Maximum of the cubic Hermite interpolant of the log-likelihood on the grid cell that
+        holds the peak, from grid values and analytic grid derivatives (module docstring)."""
         G, N = self.lam.shape
         h = np.deg2rad(self.step_deg)
-        x0 = np.deg2rad(self.headings_deg[0])
-        centre = np.deg2rad(self.headings_deg[j1])
-        psi = centre + np.deg2rad(off_deg)
-        out = np.empty_like(psi)
+        S = c.shape[0]
+        rows = np.arange(S)
+        jm, jp = (j1 - 1) % G, (j1 + 1) % G
+        dl = np.empty((3, S))
         block = max(1, _CHUNK_ELEMENTS // N)
-        for s in range(0, psi.size, block):
-            sl = slice(s, s + block)
-            p, cc, n_tot = psi[sl].copy(), c[sl], c[sl].sum(axis=1)
-            for _ in range(iterations):
-                u = (p - x0) / h
-                a = np.floor(u).astype(int)
-                t = (u - a)[:, None]
-                a %= G
-                b = (a + 1) % G
-                ya, yb = self.lam[a], self.lam[b]
-                ma, mb = self.dlam[a] * h, self.dlam[b] * h
-                t2, t3 = t * t, t * t * t
-                lam = (2 * t3 - 3 * t2 + 1) * ya + (t3 - 2 * t2 + t) * ma + (-2 * t3 + 3 * t2) * yb \
-                    + (t3 - t2) * mb
-                d1 = ((6 * t2 - 6 * t) * ya + (3 * t2 - 4 * t + 1) * ma + (-6 * t2 + 6 * t) * yb
-                      + (3 * t2 - 2 * t) * mb) / h
-                d2 = ((12 * t - 6) * ya + (6 * t - 4) * ma + (6 - 12 * t) * yb + (6 * t - 2) * mb) / h ** 2
-                lam = np.maximum(lam, _TINY)
-                r = cc / lam
-                score = np.sum(r * d1, axis=1)
-                hess = np.sum(r * d2 - r * d1 * d1 / lam, axis=1)
-                L, L1, L2 = lam.sum(axis=1), d1.sum(axis=1), d2.sum(axis=1)
-                if self.gain == "known":
-                    score -= L1
-                    hess -= L2
-                else:
-                    score -= n_tot * L1 / L
-                    hess -= n_tot * (L2 / L - (L1 / L) ** 2)
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    step = np.where(hess < 0, -score / hess, np.sign(score) * 0.25 * h)
-                step = np.nan_to_num(np.clip(step, -h, h))
-                p = np.clip(p + step, centre[sl] - h, centre[sl] + h)
-            out[sl] = p
-        return np.rad2deg(out)
+        n_tot = c.sum(axis=1)
+        for k, jj in enumerate((jm, j1, jp)):
+            for s in range(0, S, block):
+                sl = slice(s, s + block)
+                dl[k, sl] = np.einsum("sn,sn->s", c[sl], self._ratio[jj[sl]])
+            if self.gain == "known":
+                dl[k] -= self._dlam_tot[jj]
+            else:
+                dl[k] -= n_tot * self._dlam_tot[jj] / np.maximum(self._lam_tot[jj], _TINY)
+        right = dl[1] >= 0.0                      # the maximum lies in [j, j+1], else [j-1, j]
+        la = np.where(right, ll[rows, j1], ll[rows, jm])
+        lb = np.where(right, ll[rows, jp], ll[rows, j1])
+        ma = np.where(right, dl[1], dl[0]) * h
+        mb = np.where(right, dl[2], dl[1]) * h
+        # p'(t) = A t^2 + B t + C for the Hermite cubic on [0, 1]
+        A = 6.0 * (la - lb) + 3.0 * (ma + mb)
+        B = -6.0 * (la - lb) - 4.0 * ma - 2.0 * mb
+        C = ma
+        with np.errstate(invalid="ignore", divide="ignore"):
+            disc = np.sqrt(np.maximum(B * B - 4.0 * A * C, 0.0))
+            t1 = (-B + disc) / (2.0 * A)
+            t2 = (-B - disc) / (2.0 * A)
+            lin = -C / B
+        tol = 1e-9
+        ok1 = (t1 >= -tol) & (t1 <= 1 + tol) & (2 * A * t1 + B <= 0)
+        ok2 = (t2 >= -tol) & (t2 <= 1 + tol) & (2 * A * t2 + B <= 0)
+        small = np.abs(A) <= 1e-12 * (np.abs(B) + np.abs(C) + 1e-300)
+        t = np.where(small, lin, np.where(ok1, t1, np.where(ok2, t2, np.nan)))
+        good = np.isfinite(t) & (t >= -tol) & (t <= 1 + tol)
+        start = np.where(right, j1, jm)
+        est = self.headings_deg[start] + np.clip(t, 0.0, 1.0) * self.step_deg
+        return np.where(good, est, self.headings_deg[j1] + off_deg)
 
     def _brent(self, c, j1):
         from scipy.optimize import minimize_scalar

@@ -44,6 +44,8 @@ __all__ = [
     "bound_vs_inclination",
     "bound_vs_parameter",
     "mean_bound_deg",
+    "interpolated_information",
+    "information_vs_cone_disorder",
 ]
 
 NUISANCES = ("none", "gain")
@@ -71,8 +73,11 @@ def poisson_information(lam, dlam) -> np.ndarray:
     dlam = np.asarray(dlam, dtype=float)
     if lam.shape != dlam.shape:
         raise InputError(f"lam {lam.shape} and dlam {dlam.shape} differ in shape", key="dlam")
-    if np.any(lam < 0):
+    lo = lam.min(initial=np.inf)
+    if lo < 0:
         raise InputError("expected non-negative expected counts", key="lam")
+    if lo > 0:
+        return np.einsum("...n,...n->...", dlam, dlam / lam)
     return _safe_ratio(dlam * dlam, lam).sum(axis=-1)
 
 
@@ -206,11 +211,90 @@ def heading_information(signal, headings_deg=None, *, nuisance: str = "none",
     _check_nuisance(nuisance)
     if degree is None:
         lam, dlam = signal.expected_and_derivative(h, wrt="heading")
+        I = _info(lam, dlam, nuisance)
     else:
-        lam, dlam = signal.expected_and_derivative_fourier(h, degree)
-    I = _info(lam, dlam, nuisance)
+        from retina.signal.noise import trig_interp_matrix
+
+        nodes, lam_n, dlam_n = signal.fourier_nodes(degree)
+        W = trig_interp_matrix(np.deg2rad(nodes), np.deg2rad(h), int(degree))
+        I = interpolated_information(W, lam_n, dlam_n, nuisance)
     return InformationCurve(h, I, I / signal.photons, cramer_rao_deg(I), float(signal.photons),
                             nuisance, "heading")
+
+
+def interpolated_information(W, lam_n, dlam_n, nuisance: str = "none") -> np.ndarray:
+    """Information at ``P`` headings from node values: ``lam = W @ lam_n``, ``dlam = W @ dlam_n``.
+
+    Parameters
+    ----------
+    W : ndarray, shape (P, M)
+        Interpolation weights (``retina.signal.noise.trig_interp_matrix``).
+    lam_n, dlam_n : ndarray, shape (M, N)
+        Expected counts and heading derivatives at the nodes.
+    nuisance : {"none", "gain"}
+
+    Returns
+    -------
+    ndarray, shape (P,)
+        As :func:`poisson_information` / :func:`gain_schur` of the interpolated arrays, computed
+        without storing them (a compiled loop over headings, parallel over headings).
+    """
+    _check_nuisance(nuisance)
+    W = np.ascontiguousarray(W, dtype=float)
+    ln = np.ascontiguousarray(lam_n, dtype=float)
+    dn = np.ascontiguousarray(dlam_n, dtype=float)
+    if W.ndim != 2 or ln.shape != dn.shape or W.shape[1] != ln.shape[0]:
+        raise InputError(f"expected W (P, M) and node arrays (M, N), got {W.shape}, {ln.shape}, "
+                         f"{dn.shape}", key="nodes")
+    full, sd, sl = _interp_info_kernel(W, ln, dn)
+    if nuisance == "none":
+        return full
+    corr = np.zeros_like(full)
+    np.divide(sd * sd, sl, out=corr, where=sl > 0)
+    return np.maximum(full - corr, 0.0)
+
+
+def _interp_info_kernel(W, ln, dn):
+    global _KERNEL
+    if _KERNEL is None:
+        _KERNEL = _compile_kernel()
+    return _KERNEL(W, ln, dn)
+
+
+_KERNEL = None
+
+
+def _compile_kernel():
+    import numba
+
+    @numba.njit(parallel=True, cache=True, fastmath=False)
+    def kernel(W, ln, dn):
+        P, M = W.shape
+        N = ln.shape[1]
+        full = np.zeros(P)
+        sd = np.zeros(P)
+        sl = np.zeros(P)
+        for p in numba.prange(P):
+            acc = 0.0
+            a_d = 0.0
+            a_l = 0.0
+            for i in range(N):
+                lam = 0.0
+                dl = 0.0
+                for m in range(M):
+                    w = W[p, m]
+                    lam += w * ln[m, i]
+                    dl += w * dn[m, i]
+                if lam > 0.0:
+                    acc += dl * dl / lam
+                a_d += dl
+                a_l += lam
+            full[p] = acc
+            sd[p] = a_d
+            sl[p] = a_l
+        return full, sd, sl
+
+    return kernel
 
 
 def inclination_information(signal, headings_deg=None, *, nuisance: str = "none") -> InformationCurve:
@@ -268,6 +352,61 @@ def bound_vs_parameter(make_signal: Callable[[float], object], values: Sequence[
         if progress is not None:
             progress(k + 1, len(vals))
     return np.array(out)
+
+
+def information_vs_cone_disorder(make_signal: Callable[[np.ndarray], object], response, kappas,
+                                 headings_deg=None, *, nuisance: str = "none",
+                                 progress=None) -> np.ndarray:
+    """Information per photon (rad^-2) over cone-disorder levels and headings, ``(V, P)``.
+
+    Uses the Funk-Hecke form of von Mises-Fisher cone disorder: the disordered response is
+    ``sum_l lambda_l(kappa) r_l`` with ``r_l`` the degree-``l`` block of ``response`` and
+    ``lambda_l`` from ``retina.sphere.vmf_moments``.  Expected counts are linear in the response,
+    so the model is evaluated once per degree block (at the ``2 L + 1`` Fourier nodes) and every
+    disorder level is a weighted sum of those, interpolated to all headings.  Exact when the
+    disorder acts as a Funk-Hecke convolution of the receptor response, e.g. an axially symmetric
+    response (free rotation about the receptor axis) with vMF disorder of that axis
+    (``retina.eye.ordering.Cone.ensemble_axial``).
+
+    Parameters
+    ----------
+    make_signal : callable
+        ``make_signal(coeffs (K,)) -> SignalModel`` built on ``RetinaModel(coeffs, receptors,
+        None)`` (the response in the receptor frame) with a fixed light level.
+    response : array_like, shape (K,)
+        Undisordered receptor response (even degrees, ``retina.sphere`` layout).
+    kappas : array_like, shape (V,)
+        Cone concentrations (``inf``: no disorder, 0: isotropic).
+    headings_deg : array_like, shape (P,), optional
+    nuisance : {"none", "gain"}
+    """
+    from retina import sphere
+    from retina.signal.noise import trig_interp_matrix
+
+    _check_nuisance(nuisance)
+    r = np.asarray(response, dtype=float)
+    L = sphere.degree_from_n(r.shape[0])
+    l_of, _ = sphere.lm_index(L)
+    h = _headings(headings_deg)
+    blocks = []
+    photons = None
+    for l in range(0, L + 1, 2):
+        part = np.where(l_of == l, r, 0.0)
+        sig = make_signal(part)
+        photons = float(sig.photons)
+        nodes, ln, dn = sig.fourier_nodes(L)
+        blocks.append((l, ln, dn))
+    W = trig_interp_matrix(np.deg2rad(nodes), np.deg2rad(h), L)
+    ks = np.atleast_1d(np.asarray(kappas, dtype=float))
+    out = np.empty((ks.size, h.size))
+    for k, kappa in enumerate(ks):
+        mom = sphere.vmf_moments(float(kappa), L)
+        ln = sum(mom[l] * b_ln for l, b_ln, _ in blocks)
+        dn = sum(mom[l] * b_dn for l, _, b_dn in blocks)
+        out[k] = interpolated_information(W, ln, dn, nuisance) / photons
+        if progress is not None:
+            progress(k + 1, ks.size)
+    return out
 
 
 def mean_bound_deg(information) -> np.ndarray:

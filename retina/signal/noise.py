@@ -38,7 +38,7 @@ from retina.eye.pose import head_field, head_field_dyaw
 from retina.signal.light import HorizonSky, SceneTexture, UniformSky, light_level
 
 __all__ = ["make_rng", "expected_counts", "sample_counts", "SignalModel", "field_direction",
-           "field_direction_dincl"]
+           "field_direction_dincl", "trig_interp_matrix"]
 
 # Bytes of scratch memory per chunk of poses for (P, N, 3) gradient arrays.
 _CHUNK_BYTES = 64 * 2**20
@@ -272,15 +272,24 @@ class SignalModel:
         degree : int
             Harmonic degree ``L`` of the receptor responses (an upper bound is fine).
         """
+        nodes, lam_n, dlam_n = self.fourier_nodes(degree)
+        h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, dtype=float)))
+        W = trig_interp_matrix(np.deg2rad(nodes), h, int(degree))
+        return W @ lam_n, W @ dlam_n
+
+    def fourier_nodes(self, degree: int):
+        """The ``2 L + 1`` equally spaced node headings (degrees) and ``lam``, ``dlam`` there.
+
+        Returns ``(nodes (M,), lam (M, N), dlam (M, N))``; interpolate with
+        :func:`trig_interp_matrix` (see :meth:`expected_and_derivative_fourier`).
+        """
         L = int(degree)
-        if L < 0:
+        if L < 0 or L != degree:
             raise InputError(f"expected a harmonic degree >= 0, got {degree}", key="degree")
         M = 2 * L + 1
         nodes = np.arange(M) * 360.0 / M
         lam_n, dlam_n = self.expected_and_derivative(nodes, wrt="heading")
-        h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, dtype=float)))
-        W = _trig_interp_matrix(np.deg2rad(nodes), h, L)
-        return W @ lam_n, W @ dlam_n
+        return nodes, lam_n, dlam_n
 
     # -- noise ------------------------------------------------------------------------------------
     def sample(self, headings_deg, rng=None, size: int | None = None) -> np.ndarray:
@@ -288,8 +297,8 @@ class SignalModel:
         return sample_counts(self.expected(headings_deg), rng, size)
 
 
-def _trig_interp_matrix(nodes: np.ndarray, x: np.ndarray, L: int) -> np.ndarray:
-    """Weights ``(len(x), M)`` of exact interpolation of a degree-``L`` trigonometric polynomial
+def trig_interp_matrix(nodes: np.ndarray, x: np.ndarray, L: int) -> np.ndarray:
+    """Weights ``(len(x), M)`` (radians in) of exact interpolation of a degree-``L`` trigonometric polynomial
     from ``M = 2L + 1`` equally spaced nodes (the Dirichlet kernel ``sin(M t/2) / (M sin(t/2))``)."""
     M = nodes.size
     t = x[:, None] - nodes[None, :]
