@@ -18,15 +18,15 @@ Conventions (owned here)
 - Modulation depth of a pattern: ``(max - min) / mean`` of the receptor yields over both eyes
   (dimensionless; reported in %).
 - A head scan is a sweep of ``scan.steps`` yaw angles, evenly spaced over
-  ``heading +/- amplitude``; each pose is one independent integration window, so Fisher
-  information adds over the poses.  With ``readout.nuisance = "gain"`` one overall light level,
-  common to all poses of a scan, is unknown (Schur complement,
-  :func:`retina.readout.fisher.gain_schur`; the decoder profiles the same gain out).
-- Simulated orientation trial: the bird starts at a uniformly random true heading ``psi``, makes a
-  head scan of ``trials.scan_steps`` poses over ``psi +/- scan.amplitude_deg`` (offsets rounded to
-  the decoder grid), decodes its heading ``psi_hat`` by maximum likelihood from the Poisson counts
-  of all poses (:class:`retina.readout.decode.HeadingDecoder`), and then turns by
-  ``goal - psi_hat``; its chosen direction is ``goal - (psi_hat - psi)``.
+  ``heading +/- amplitude`` (offsets rounded to the one-degree decoder grid).  A light level is a
+  photon budget per receptor for the whole look: a scan splits it equally over its poses
+  (:mod:`retina.readout.scans`), so a scan and a single pose get the same light.  With
+  ``readout.nuisance = "gain"`` one overall light level, common to all poses of a scan, is unknown
+  (Schur complement, "global_gain"; the decoder profiles the same gain out).
+- Simulated orientation trials (:func:`retina.readout.trials.simulate_trials`): each bird starts at
+  a uniformly random true heading ``psi``, makes a head scan of ``trials.scan_steps`` poses over
+  ``psi +/- scan.amplitude_deg`` with the light level's budget, decodes its heading by maximum
+  likelihood from the counts of all poses and turns by ``goal - psi_hat``.
 - Precision curves: the Cramer-Rao bound on the rms heading error over uniformly distributed true
   headings, ``sqrt(mean_h 1 / I(h))`` over 360 grid headings, single pose and head scan; decoding error: rms of the wrapped decoding errors at
   ``readout.decode_repeats`` uniformly random true headings per photon level.  The disorder sweep
@@ -235,41 +235,59 @@ def _per_photon_info(signal, degree: int, nuisance: str, headings) -> np.ndarray
     return heading_information(signal, headings, nuisance=nuisance, degree=degree).per_photon
 
 
-class _ScanDecoder:
-    """Heading decoder over a head scan whose pose offsets are multiples of the grid step."""
+_GRID = 360  # decoder grid: one-degree steps, so integer-degree scan offsets are grid shifts
 
-    def __init__(self, signal, degree: int, offsets_deg: np.ndarray, gain: str, n_grid: int):
-        from retina.readout.decode import HeadingDecoder
 
+class _Model:
+    """Expected counts per photon on the decoder grid for one signal model, with decoders and
+    Poisson draws for a single look or a head scan (photon budget split over the poses,
+    :mod:`retina.readout.scans`)."""
+
+    def __init__(self, signal, degree: int, gain: str):
         self.signal = signal
-        self.grid = np.arange(n_grid) * 360.0 / n_grid
-        step = 360.0 / n_grid
-        self.shifts = np.round(np.asarray(offsets_deg, float) / step).astype(int)
-        self.offsets = self.shifts * step
-        lam, dlam = signal.expected_and_derivative_fourier(self.grid, degree)
-        lam = np.maximum(lam, 0.0)
-        idx = (np.arange(n_grid)[:, None] + self.shifts[None, :]) % n_grid  # (G, S)
-        self.lam1 = lam[idx].reshape(n_grid, -1)   # (G, S*N), photons = 1
-        self.dlam1 = dlam[idx].reshape(n_grid, -1)
-        self._cls = HeadingDecoder
         self.gain = gain
+        self.grid = np.arange(_GRID) * 360.0 / _GRID
+        lam, dlam = signal.expected_and_derivative_fourier(self.grid, degree)
+        self.lam1 = np.maximum(lam, 0.0)     # (G, N) at photons = 1
+        self.dlam1 = dlam
 
     def decoder(self, photons: float):
-        return self._cls(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
+        from retina.readout.decode import HeadingDecoder
 
-    def counts(self, true_deg: np.ndarray, photons: float, rng) -> np.ndarray:
-        """Poisson counts ``(T, S*N)`` for true headings ``(T,)``."""
-        h = (np.asarray(true_deg, float)[:, None] + self.offsets[None, :]).ravel()
-        lam = photons * np.maximum(self.signal.expected(h), 0.0)
-        return rng.poisson(lam).reshape(len(true_deg), -1).astype(float)
+        return HeadingDecoder(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
+
+    def truth(self, photons: float):
+        return dataclasses.replace(self.signal, photons=float(photons))
+
+    def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
+        """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""
+        from retina.readout.scans import scan_information_arrays
+
+        sh = np.round(np.asarray(offsets_deg) * _GRID / 360.0).astype(int)
+        P = sh.size
+        idx = (np.arange(_GRID)[:, None] + sh[None, :]) % _GRID
+        return np.array([scan_information_arrays(self.lam1[r] / P, self.dlam1[r] / P, nuisance) for r in idx])
 
 
-def _decode_errors(sd: _ScanDecoder, photons: float, n: int, rng) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _grid_offsets(offsets_deg) -> np.ndarray:
+    step = 360.0 / _GRID
+    return np.round(np.asarray(offsets_deg, float) / step) * step
+
+
+def _decode_errors(m: _Model, photons: float, n: int, rng, offsets=None) -> np.ndarray:
+    """Signed decoding errors (deg) at ``n`` uniformly random true headings."""
     from retina.readout.circstats import circular_difference
+    from retina.signal.noise import sample_counts
 
     true = rng.uniform(0.0, 360.0, n)
-    res = sd.decoder(photons).decode(sd.counts(true, photons, rng))
-    return true, np.asarray(res.heading_deg, float), circular_difference(res.heading_deg, true)
+    dec = m.decoder(photons)
+    truth = m.truth(photons)
+    if offsets is None:
+        est = dec.decode(sample_counts(truth.expected(true), rng))
+    else:
+        lam = truth.expected((true[:, None] + offsets[None, :]).ravel()).reshape(n, offsets.size, -1)
+        est = dec.decode_scan(sample_counts(lam / offsets.size, rng), offsets)
+    return circular_difference(est.heading_deg, true)
 
 
 def _rms_bound(photons: np.ndarray, info_per_photon: np.ndarray) -> np.ndarray:
@@ -294,22 +312,21 @@ def compute_precision(sc: Scenario, model, fld, *, progress=None) -> dict:
     ro = sc["readout"]
     L = model.degree
     photons = np.asarray(ro["photons"], float)
-    info_fn = gain_schur if ro["nuisance"] == "gain" else poisson_information
     gain = "free" if ro["nuisance"] == "gain" else "known"
-    offsets = _scan_yaws(sc) - sc["scan"]["heading_deg"]
-    sd1 = _ScanDecoder(_signal(sc, model, fld), L, np.zeros(1), gain, 360)
-    sdk = _ScanDecoder(_signal(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), L, offsets, gain, 360)
-    info1 = info_fn(sd1.lam1, sd1.dlam1)
-    infok = info_fn(sdk.lam1, sdk.dlam1)
-    out = {"photons": photons, "info_headings_deg": sd1.grid,
+    offsets = _grid_offsets(_scan_yaws(sc) - sc["scan"]["heading_deg"])
+    m1 = _Model(_signal(sc, model, fld), L, gain)
+    mk = _Model(_signal(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), L, gain)
+    info1 = (gain_schur if gain == "free" else poisson_information)(m1.lam1, m1.dlam1)
+    infok = mk.scan_information(offsets, "global_gain" if gain == "free" else "none")
+    out = {"photons": photons, "info_headings_deg": m1.grid,
            "info_per_photon_single": info1, "info_per_photon_scan": infok,
            "bound_single_deg": _rms_bound(photons, info1), "bound_scan_deg": _rms_bound(photons, infok),
-           "scan_offsets_deg": sdk.offsets}
+           "scan_offsets_deg": offsets}
     rng = stage_rng(sc.seed, "precision")
     dec1, deck = [], []
     for i, ph in enumerate(photons):
-        dec1.append(error_summary(_decode_errors(sd1, ph, ro["decode_repeats"], rng)[2])["rms_deg"])
-        deck.append(error_summary(_decode_errors(sdk, ph, ro["decode_repeats"], rng)[2])["rms_deg"])
+        dec1.append(error_summary(_decode_errors(m1, ph, ro["decode_repeats"], rng))["rms_deg"])
+        deck.append(error_summary(_decode_errors(mk, ph, ro["decode_repeats"], rng, offsets))["rms_deg"])
         if progress:
             progress(i + 1, photons.size)
     out["decoded_single_rms_deg"] = np.array(dec1)
@@ -341,25 +358,29 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
 
 
 def compute_trials(sc: Scenario, model, fld, *, progress=None) -> dict:
-    """Simulated orientation trials at every light level (module docstring)."""
-    from retina.readout import circstats
+    """Simulated orientation trials at every light level (:func:`retina.readout.trials.simulate_trials`)."""
+    from retina.readout.trials import simulate_trials
 
     tr = sc["trials"]
     amp = sc["scan"]["amplitude_deg"]
-    offsets = np.linspace(-amp, amp, tr["scan_steps"]) if tr["scan_steps"] > 1 else np.zeros(1)
+    offsets = _grid_offsets(np.linspace(-amp, amp, tr["scan_steps"]) if tr["scan_steps"] > 1 else np.zeros(1))
     gain = "free" if sc["readout"]["nuisance"] == "gain" else "known"
-    sd = _ScanDecoder(_signal(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), model.degree, offsets, gain, 360)
-    out = {"goal_deg": float(tr["goal_deg"]), "scan_offsets_deg": sd.offsets, "levels": {}}
+    m = _Model(_signal(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), model.degree, gain)
+    out = {"goal_deg": float(tr["goal_deg"]), "scan_offsets_deg": offsets, "levels": {}}
     names, photons = sc["light"]["names"], sc["light"]["photons"]
     for i, (name, ph) in enumerate(zip(names, photons)):
-        rng = stage_rng(sc.seed, f"trials/{name}")
-        true, dec, err = _decode_errors(sd, ph, tr["n_trials"], rng)
-        chosen = circstats.wrap360(tr["goal_deg"] - err)
-        ray = circstats.rayleigh_test(chosen)
-        v = circstats.v_test(chosen, tr["goal_deg"])
-        out["levels"][name] = {"photons": float(ph), "true_deg": true, "decoded_deg": dec, "error_deg": err,
-                               "chosen_deg": np.asarray(chosen, float), "mean_deg": ray.mean_deg,
-                               "r": ray.r, "rayleigh_p": ray.p, "v_u": v.u, "v_p": v.p}
+        r = simulate_trials(m.truth(ph), m.decoder(ph), tr["n_trials"], goal_deg=tr["goal_deg"],
+                            scan_offsets_deg=offsets, rng=stage_rng(sc.seed, f"trials/{name}"))
+        from retina.readout.circstats import circular_difference
+
+        out["levels"][name] = {
+            "photons": float(ph), "start_deg": r.start_deg, "decoded_deg": r.decoded_deg,
+            "ambiguous": r.ambiguous.astype(np.int8),
+            "error_deg": circular_difference(r.decoded_deg, r.start_deg),
+            "chosen_deg": np.asarray(r.chosen_deg, float), "mean_deg": float(r.rayleigh.mean_deg),
+            "r": float(r.rayleigh.r), "rayleigh_p": float(r.rayleigh.p), "v_u": float(r.v_test.u),
+            "v_p": float(r.v_test.p), "r_axial": float(r.rayleigh_axial.r),
+            "rayleigh_p_axial": float(r.rayleigh_axial.p), "preferred_analysis": r.preferred_analysis}
         if progress:
             progress(i + 1, len(names))
     return out
