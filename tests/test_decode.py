@@ -135,3 +135,22 @@ def test_scan_decoding_single_pose_equals_static_and_sums_over_poses():
     r2 = dec.decode_scan(bright.sample(50.0 + off, rng=3)[None], off, scale=100.0)
     crb = fisher.heading_information(bright, [50.0]).bound_deg[0]
     assert abs(((r2.heading_deg[0] - 50.0) + 180) % 360 - 180) < 5 * crb
+
+
+def test_unmodelled_world_texture_adds_error():
+    # Common practice, no source: a scene contrast the decoder's model lacks is a model mismatch,
+    # which biases the likelihood; with 20 % log-contrast the errors exceed the clean bound clearly.
+    from retina.signal.light import SceneTexture
+
+    sig = synthetic_signal(n=30, photons=2e4, seed=1)
+    crb = fisher.heading_information(sig, [70.0]).bound_deg[0]
+    dec = decode.HeadingDecoder.from_signal(sig, 360)
+    textured = dataclasses.replace(sig, texture=SceneTexture(contrast=0.2, attached="world", seed=3))
+    mc = decode.monte_carlo(textured, dec, 70.0, 300, rng=2)
+    assert mc.summary["rms_deg"] > 2.0 * crb
+    # A decoder that knows the texture does better (it also uses it as a visual cue); parabolic
+    # refinement, since a world-fixed texture has no magnetic heading derivative here.
+    own = decode.HeadingDecoder.from_signal(textured, 360)
+    assert own.refine == "parabolic"
+    mc2 = decode.monte_carlo(textured, own, 70.0, 300, rng=2)
+    assert mc2.summary["rms_deg"] < mc.summary["rms_deg"]

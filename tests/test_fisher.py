@@ -193,6 +193,9 @@ def test_real_retina_derivative_matches_finite_difference():
     # Derived: central difference, O(h^2) error; tolerance well above rounding (~1e-8 relative).
     np.testing.assert_allclose(dlam, fd, rtol=1e-5, atol=1e-6 * np.abs(dlam).max())
     assert np.abs(dlam).max() > 1e-3 * lam.max()   # the pattern does change with heading
+    # ... and so does the information built from either derivative.
+    np.testing.assert_allclose(fisher.heading_information(sig, psi).information,
+                               fisher.poisson_information(lam, fd), rtol=1e-5)
 
 
 def test_real_retina_fourier_path_is_exact():
@@ -254,3 +257,15 @@ def test_cone_disorder_funk_hecke_shortcut_matches_ordering_module():
         np.testing.assert_allclose(got[k], want, rtol=1e-7, atol=1e-12 * np.abs(got).max())
     # Derived: kappa = 0 leaves only the mean: no information.
     assert np.all(got[0] <= 1e-12 * got[-1].max())
+
+
+def test_bound_vs_parameter_small_anisotropy_limit():
+    # Derived: Phi = a + s c t^2 with s -> 0 gives dPhi ~ s and Phi ~ a, so I ~ s^2 and the bound
+    # ~ 1/s: doubling s halves the bound (to O(s) corrections, here < 0.1 %).
+    axes = random_axes(30, 2)
+
+    def make(s):
+        return SignalModel(SyntheticRetina(axes, a=0.5, c=0.1 * s), inclination_deg=60, photons=1e4)
+
+    b = fisher.bound_vs_parameter(make, [1e-3, 2e-3], [15.0, 95.0])
+    np.testing.assert_allclose(b[0] / b[1], 2.0, rtol=1e-3)
