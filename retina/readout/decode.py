@@ -222,10 +222,14 @@ class HeadingDecoder:
         return ll - c.sum(axis=1, keepdims=True) * np.log(tot)[None, :]
 
     # -- decoding --------------------------------------------------------------------------------
-    def decode(self, counts, *, chunk: int = 2000) -> DecodeResult:
-        """Decode count vectors ``(S, N)`` (or one ``(N,)``)."""
+    def decode(self, counts, *, chunk: int = 2000, progress=None) -> DecodeResult:
+        """Decode count vectors ``(S, N)`` (or one ``(N,)``); ``progress(done, total)`` per block."""
         c = self._counts(counts)
-        parts = [self._decode_block(c[s:s + chunk]) for s in range(0, c.shape[0], chunk)]
+        parts = []
+        for s in range(0, c.shape[0], chunk):
+            parts.append(self._decode_block(c[s:s + chunk]))
+            if progress is not None:
+                progress(min(s + chunk, c.shape[0]), c.shape[0])
         return DecodeResult(*(np.concatenate([p[k] for p in parts]) for k in range(5)))
 
     def decode_one(self, counts) -> HeadingEstimate:
