@@ -7,7 +7,10 @@ import pytest
 
 from retina.errors import InputError
 from retina.readout import decode, fisher
-from test_fisher import synthetic_signal
+try:  # the tests folder is on sys.path (pytest rootdir-relative import)
+    from test_fisher import synthetic_signal
+except ImportError:  # tests collected as a package
+    from tests.test_fisher import synthetic_signal
 
 
 def test_error_approaches_cramer_rao_bound_at_high_counts():

@@ -6,7 +6,10 @@ import pytest
 from retina.errors import InputError
 from retina.readout import fisher, scans
 from retina.signal.noise import SignalModel
-from test_fisher import SyntheticRetina, random_axes, real_signal, synthetic_signal
+try:  # the tests folder is on sys.path (pytest rootdir-relative import)
+    from test_fisher import SyntheticRetina, random_axes, real_signal, synthetic_signal
+except ImportError:  # tests collected as a package
+    from tests.test_fisher import SyntheticRetina, random_axes, real_signal, synthetic_signal
 
 
 def _generic_schur(lam, dlam, nuisance):

@@ -8,7 +8,10 @@ from scipy.special import i0, i1
 
 from retina.errors import InputError
 from retina.readout import decode, trials
-from test_fisher import real_signal, synthetic_signal
+try:  # the tests folder is on sys.path (pytest rootdir-relative import)
+    from test_fisher import real_signal, synthetic_signal
+except ImportError:  # tests collected as a package
+    from tests.test_fisher import real_signal, synthetic_signal
 
 
 def test_good_compass_orients_the_group_to_the_goal():
