@@ -269,3 +269,24 @@ def test_bound_vs_parameter_small_anisotropy_limit():
 
     b = fisher.bound_vs_parameter(make, [1e-3, 2e-3], [15.0, 95.0])
     np.testing.assert_allclose(b[0] / b[1], 2.0, rtol=1e-3)
+
+
+def test_anisotropy_and_disorder_curves_through_real_retina():
+    from retina.eye import geometry, ordering as orders, pattern
+
+    rec = geometry.build_receptors(geometry.default_eyes(40))
+    r0 = orders.FreeRotation(tilt_deg=40.0).ensemble(invented_yield_coeffs())
+
+    def make(coeffs):
+        return SignalModel(pattern.RetinaModel(coeffs, rec, None), inclination_deg=55.0, photons=1e4)
+
+    psi = [20.0, 200.0]
+    # Derived: scaling the l > 0 part by s -> 0 makes dPhi ~ s with Phi ~ mean, so bound ~ 1/s.
+    b = fisher.bound_vs_anisotropy(make, r0, [1e-4, 2e-4, 1.0], psi)
+    np.testing.assert_allclose(b[0] / b[1], 2.0, rtol=1e-3)
+    np.testing.assert_allclose(b[2], fisher.heading_information(make(r0), psi).bound_deg, rtol=1e-12)
+    # Derived: kappa = inf is no disorder; the bound is linear-in-photons scaled.
+    d = fisher.bound_vs_cone_disorder(make, r0, [np.inf], [1e4, 4e4], psi)
+    assert d.shape == (1, 2, 2)
+    np.testing.assert_allclose(d[0, 0], b[2], rtol=1e-7)
+    np.testing.assert_allclose(d[0, 1], b[2] / 2, rtol=1e-7)

@@ -46,6 +46,8 @@ __all__ = [
     "mean_bound_deg",
     "interpolated_information",
     "information_vs_cone_disorder",
+    "bound_vs_cone_disorder",
+    "bound_vs_anisotropy",
 ]
 
 NUISANCES = ("none", "gain")
@@ -407,6 +409,34 @@ def information_vs_cone_disorder(make_signal: Callable[[np.ndarray], object], re
         if progress is not None:
             progress(k + 1, ks.size)
     return out
+
+
+def bound_vs_cone_disorder(make_signal, response, kappas, photons, headings_deg=None, *,
+                           nuisance: str = "none", progress=None) -> np.ndarray:
+    """Cramer-Rao bound (degrees), shape ``(V, F, P)``, over cone concentrations ``(V,)``, light
+    levels ``(F,)`` and headings ``(P,)`` (see :func:`information_vs_cone_disorder`)."""
+    per = information_vs_cone_disorder(make_signal, response, kappas, headings_deg,
+                                       nuisance=nuisance, progress=progress)
+    ph = np.atleast_1d(np.asarray(photons, dtype=float))
+    return cramer_rao_deg(ph[None, :, None] * per[:, None, :])
+
+
+def bound_vs_anisotropy(make_signal, response, scales, headings_deg=None, *, nuisance: str = "none",
+                        degree: int | None = None) -> np.ndarray:
+    """Bound (degrees) ``(V, P)`` when the anisotropic part (degrees l > 0) of a receptor response
+    is scaled by each of ``scales`` (1 = as given) and the mean kept.
+
+    ``make_signal(coeffs (K,)) -> SignalModel`` as in :func:`information_vs_cone_disorder`.
+    """
+    r = np.asarray(response, dtype=float)
+
+    def scaled(s):
+        c = r * float(s)
+        c[0] = r[0]
+        return make_signal(c)
+
+    return bound_vs_parameter(scaled, list(np.atleast_1d(scales)), headings_deg, nuisance=nuisance,
+                              degree=degree)
 
 
 def mean_bound_deg(information) -> np.ndarray:
