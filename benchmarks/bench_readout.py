@@ -23,6 +23,7 @@ missed (the miss is printed); ``--check`` exits 1 on a miss.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import sys
 import time
 
@@ -83,8 +84,7 @@ def bench_bounds(n_per_eye: int, n_head: int = 360, n_photons: int = 20, n_kappa
     ref = []
     for ph in photons[:2]:
         for h in sub_h:
-            s = signal_for(kappas[0])
-            s.photons = float(ph)
+            s = dataclasses.replace(signal_for(kappas[0]), photons=float(ph))
             lam, dlam = s.expected_and_derivative([h])
             info = fisher.gain_schur(lam, dlam) if nuisance == "gain" else fisher.poisson_information(lam, dlam)
             ref.append(float(fisher.cramer_rao_deg(info)[0]))

@@ -102,7 +102,7 @@ def _as_multi(rot: Rotation) -> Rotation:
     return Rotation.concatenate([rot]) if rot.single else rot
 
 
-@dataclass
+@dataclass(frozen=True)
 class SignalModel:
     """Expected counts of every receptor as a function of heading: the readout's forward model.
 
@@ -124,6 +124,8 @@ class SignalModel:
         True overall light gain (1 nominal).
     receptors : optional
         Overrides ``retina.receptors``.
+
+    Immutable: use ``dataclasses.replace(model, photons=...)`` for a variant.
     """
 
     retina: Any
@@ -139,7 +141,7 @@ class SignalModel:
 
     def __post_init__(self):
         if self.receptors is None:
-            self.receptors = getattr(self.retina, "receptors", None)
+            object.__setattr__(self, "receptors", getattr(self.retina, "receptors", None))
         if self.receptors is None:
             raise InputError("the retina model has no receptors; pass receptors=", key="receptors")
         if not (-90.0 <= float(self.inclination_deg) <= 90.0):
@@ -147,12 +149,14 @@ class SignalModel:
                              key="field.inclination_deg")
         if not (self.gain > 0):
             raise InputError(f"expected a positive gain, got {self.gain}", key="gain")
-        self.photons = light_level(self.photons)
+        object.__setattr__(self, "photons", light_level(self.photons))
         if self.sky is None:
-            self.sky = UniformSky()
+            object.__setattr__(self, "sky", UniformSky())
         if not isinstance(self.sky, (UniformSky, HorizonSky)):
             raise InputError("expected a UniformSky or HorizonSky", key="light.sky")
-        self._unit_catch_head = None
+        if self.texture is not None and not isinstance(self.texture, SceneTexture):
+            raise InputError("expected a SceneTexture or None", key="light.texture")
+        object.__setattr__(self, "_unit_catch_head", None)
 
     # -- geometry ---------------------------------------------------------------------------------
     @property
@@ -182,9 +186,9 @@ class SignalModel:
         if not world_tex:
             # Yaw-independent: compute once for the fixed pitch and roll.
             if self._unit_catch_head is None:
-                self._unit_catch_head = photon_catch(
+                object.__setattr__(self, "_unit_catch_head", photon_catch(
                     self.receptors.visual_dirs, self.receptors.solid_angle, self.rotations([0.0]),
-                    photons=1.0, sky=self.sky, texture=self.texture)[0]
+                    photons=1.0, sky=self.sky, texture=self.texture)[0])
             return np.broadcast_to(self.gain * ph * self._unit_catch_head, (h.size, self.n_receptors))
         return self.gain * photon_catch(self.receptors.visual_dirs, self.receptors.solid_angle,
                                         self.rotations(h), photons=ph, sky=self.sky,
