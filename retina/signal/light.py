@@ -167,7 +167,9 @@ class SceneTexture:
         object.__setattr__(self, "_centres", c)
         object.__setattr__(self, "_signs", signs)
         # Normalise over the sphere with a fixed Fibonacci set (deterministic, near-uniform).
-        probe = _fibonacci_sphere(4000)
+        from retina.sphere import fibonacci
+
+        probe = fibonacci(4000).points
         raw = self._raw(probe)
         object.__setattr__(self, "_mu", float(raw.mean()))
         object.__setattr__(self, "_sd", float(raw.std()) or 1.0)
@@ -181,14 +183,6 @@ class SceneTexture:
         d = np.asarray(dirs, dtype=float)
         z = (self._raw(d.reshape(-1, 3)) - self._mu) / self._sd
         return np.exp(self.contrast * z).reshape(d.shape[:-1])
-
-
-def _fibonacci_sphere(n: int) -> np.ndarray:
-    i = np.arange(n) + 0.5
-    z = 1.0 - 2.0 * i / n
-    phi = np.pi * (1.0 + 5 ** 0.5) * i
-    rho = np.sqrt(1.0 - z * z)
-    return np.c_[rho * np.cos(phi), rho * np.sin(phi), z]
 
 
 def photon_catch(visual_dirs, solid_angle, rotations: Rotation | None = None, *,
