@@ -72,6 +72,13 @@ def test_igrf_accepts_dates_and_wraps_longitude():
     assert 60 < a.I_deg < 75 and 25 < a.F_uT < 65
 
 
+def test_igrf_at_the_pole_is_finite():
+    # The horizontal directions are undefined at a pole; the lookup steps 1e-6 degrees off it.
+    # Common practice, no source: the field near the geographic north pole is steep (I > 80).
+    f = field_at(90.0, 0.0, 0.0, 2025.0)
+    assert np.all(np.isfinite(f.vector)) and f.I_deg > 80
+
+
 def test_decimal_year():
     # Derived: 2024 is a leap year (366 days); 2 July 00:00 is 31+29+31+30+31+30+1 = 183 days in,
     # half the year.

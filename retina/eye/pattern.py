@@ -270,9 +270,11 @@ class RetinaModel:
             grad = dg[:, :, None] * (A[None, :, :] - t[:, :, None] * b[:, None, :])
             return g, grad
         Y, G = sphere.real_sh_grad(self.degree, b)
-        vals = Y @ self.coeffs.T
-        grad = np.stack([G[:, :, c] @ self.coeffs.T for c in range(3)], axis=-1)
-        return vals, grad
+        P, K = Y.shape
+        # one BLAS product for values and the three gradient components: rows (P, 4)
+        rows = np.concatenate([Y[:, None, :], G.transpose(0, 2, 1)], axis=1).reshape(P * 4, K)
+        out = (rows @ self.coeffs.T).reshape(P, 4, -1)
+        return out[:, 0, :], out[:, 1:, :].transpose(0, 2, 1)
 
     def yields_bruteforce(self, b_head) -> np.ndarray:
         """Yields ``(P, N)`` by direct per-molecule evaluation (``mode="molecules"`` only): the
