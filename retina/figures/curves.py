@@ -80,13 +80,13 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
         allv = np.concatenate([v[np.isfinite(v) & (v > 0)] for v in list(b.values()) + list(dec.values())])
         lo = max(allv.min() / 2, 1e-4) if allv.size else 1e-2
         ax.set_ylim(lo, CHANCE_RMS_DEG * 3)
-        ax.set_xlabel("photons per receptor per integration window")
+        ax.set_xlabel("photons per receptor per look")
         ax.set_ylabel("heading error (s.d.), deg")
-        ax.legend(loc="lower left", frameon=False)
+        ax.legend(loc="upper right", frameon=False, bbox_to_anchor=(1.0, 0.93))
         ax.grid(True, which="major", lw=0.3, color="0.85")
     caption = ("Cramer-Rao lower bound on the heading standard deviation (lines, deg) and rms error of a "
                "maximum-likelihood decoder under Poisson photon noise (circles, deg) against the mean photon "
-               "count per receptor; dotted: the n^-1/2 scaling; dashed: the rms error of a uniformly random "
+               "count per receptor per look (a head scan splits it over its poses); dotted: the n^-1/2 scaling; dashed: the rms error of a uniformly random "
                f"heading ({CHANCE_RMS_DEG:.1f} deg)." + (f" {params}." if params else ""))
     annotate(fig, title, caption)
     return finish(fig, path, formats, dpi)
