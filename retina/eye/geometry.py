@@ -58,11 +58,18 @@ Defaults for a small songbird-like model eye (:func:`default_eyes`), with proven
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from retina.errors import InputError
+
+
+def _is_real(v) -> bool:
+    """A real number (Python or numpy), not a bool."""
+    return isinstance(v, numbers.Real) and not isinstance(v, bool)
+
 
 __all__ = ["Eye", "Receptors", "build_receptors", "default_eyes", "optical_axis",
            "cap_points", "local_frames", "GOLDEN_ANGLE"]
@@ -134,7 +141,7 @@ class Eye:
         for k in ("azimuth_deg", "elevation_deg", "extent_deg", "central_ratio",
                   "central_width_deg", "radius_mm"):
             v = getattr(self, k)
-            if not isinstance(v, (int, float)) or not math.isfinite(v):
+            if not _is_real(v) or not math.isfinite(v):
                 raise InputError(f"expected a finite number, got {v!r}", key=f"eye.{k}")
         if abs(self.elevation_deg) > 90:
             raise InputError(f"expected an elevation in [-90, 90] degrees, got "
@@ -142,7 +149,8 @@ class Eye:
         if not 0 < self.extent_deg <= 180:
             raise InputError(f"expected a retinal extent in (0, 180] degrees, got "
                              f"{self.extent_deg!r}", key="eye.extent_deg")
-        if not isinstance(self.n_receptors, (int, np.integer)) or self.n_receptors < 1:
+        n = self.n_receptors
+        if not isinstance(n, (int, np.integer)) or isinstance(n, bool) or n < 1:
             raise InputError(f"expected a positive integer receptor count, got "
                              f"{self.n_receptors!r}", key="eye.n_receptors")
         if self.density not in ("uniform", "central"):

@@ -43,6 +43,7 @@ from __future__ import annotations
 
 import functools
 import math
+import numbers
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -50,6 +51,12 @@ from scipy.spatial.transform import Rotation
 
 from retina import sphere
 from retina.errors import InputError
+
+
+def _is_real(v) -> bool:
+    """A real number (Python or numpy), not a bool."""
+    return isinstance(v, numbers.Real) and not isinstance(v, bool)
+
 
 __all__ = ["Ordering", "Aligned", "FreeRotation", "Cone", "Isotropic", "Composite",
            "kappa_from_order_parameter", "order_parameter_from_kappa", "vmf_cos_rule",
@@ -142,7 +149,7 @@ class FreeRotation(Ordering):
     def __post_init__(self):
         for k in ("tilt_deg", "twist_deg"):
             v = getattr(self, k)
-            if not isinstance(v, (int, float)) or not math.isfinite(v):
+            if not _is_real(v) or not math.isfinite(v):
                 raise InputError(f"expected a finite angle in degrees, got {v!r}",
                                  key=f"ordering.{k}")
 
@@ -170,7 +177,7 @@ def kappa_from_order_parameter(p2: float) -> float:
     """The vMF concentration with ``<P2> = p2``, for ``0 <= p2 <= 1`` (0 -> 0, 1 -> inf)."""
     from scipy.optimize import brentq
 
-    if not isinstance(p2, (int, float)) or not math.isfinite(p2) or not 0 <= p2 <= 1:
+    if not _is_real(p2) or not math.isfinite(p2) or not 0 <= p2 <= 1:
         raise InputError(f"expected an order parameter <P2> in [0, 1] (a vMF cone cannot be "
                          f"oblate), got {p2!r}", key="ordering.order_parameter")
     if p2 == 0:
@@ -219,7 +226,7 @@ class Cone(Ordering):
             raise InputError("give exactly one of kappa or order_parameter", key="ordering.kappa")
         if self.kappa is not None:
             k = self.kappa
-            if not isinstance(k, (int, float)) or math.isnan(k) or k < 0:
+            if not _is_real(k) or math.isnan(k) or k < 0:
                 raise InputError(f"expected a concentration kappa >= 0, got {k!r}",
                                  key="ordering.kappa")
         else:
