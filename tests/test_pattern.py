@@ -183,6 +183,14 @@ def test_quenched_converges_to_ensemble_as_one_over_sqrt_n():
     assert max(scaled) / min(scaled) < 1.5, scaled
 
 
+def test_molecule_build_reports_progress(receptors):
+    calls = []
+    RetinaModel(C4, receptors, Cone(kappa=3.0), mode="molecules", n_molecules=3, seed=1,
+                progress=lambda done, total: calls.append((done, total)))
+    assert calls and calls[-1] == (len(receptors), len(receptors))
+    assert all(a <= b for (a, _), (b, _) in zip(calls, calls[1:]))
+
+
 def test_molecules_are_reproducible(receptors):
     order = Cone(kappa=3.0)
     a = RetinaModel(C4, receptors, order, mode="molecules", n_molecules=5, seed=9)
