@@ -1,0 +1,230 @@
+"""Method choice, cost estimate and batched yields over field directions.
+
+Methods (all exact for their scope):
+
+- ``"separable"`` (:mod:`retina.spin.separable`): no electron-electron coupling, equal rates, no
+  relaxation.  Cheapest: two radical-sized eigenproblems per direction.
+- ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
+- ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
+  Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it
+  factorises the (d^2, d^2) Liouvillian, whose LU fill-in grows as about ``0.7 d^4`` entries.
+
+:func:`estimate_cost` uses a flop model whose one constant (seconds per ``d^3`` of a complex
+Hermitian ``eigh``) is measured once per process on a small matrix, so estimates follow the machine.
+:func:`compute_yields` refuses with :class:`retina.errors.ResourceError` before allocating when the
+estimated memory exceeds ``max_bytes`` (default: 60 % of ``MemAvailable`` in ``/proc/meminfo``).
+"""
+
+from __future__ import annotations
+
+import functools
+import os
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from retina.errors import InputError, ResourceError
+
+__all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
+
+METHODS = ("separable", "hilbert", "liouville")
+_GIB = 2**30
+
+
+@dataclass(frozen=True)
+class Cost:
+    """An estimate of one yield computation.
+
+    Attributes
+    ----------
+    seconds : float
+        Expected wall time on this machine (order of magnitude; the flop model is calibrated once).
+    bytes : int
+        Expected peak working memory, bytes.
+    method : str
+        The method the estimate is for.
+    note : str
+        What dominates, in words.
+    """
+
+    seconds: float
+    bytes: int
+    method: str
+    note: str = ""
+
+
+def _separable_available() -> bool:
+    try:
+        import retina.spin.separable  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def choose_method(system) -> str:
+    """The cheapest exact method whose scope covers ``system``.
+
+    ``"separable"`` when the electrons are uncoupled, the rates equal and there is no relaxation
+    (and :mod:`retina.spin.separable` imports); ``"hilbert"`` when the rates are equal and there is
+    no relaxation; ``"liouville"`` otherwise.
+    """
+    if system.equal_rates and not system.relaxation.any:
+        if not system.electron_coupled and _separable_available():
+            return "separable"
+        return "hilbert"
+    return "liouville"
+
+
+@functools.lru_cache(maxsize=None)
+def _eigh_constant() -> float:
+    """Seconds per d^3 of a complex Hermitian eigh (values and vectors), measured once (d = 96)."""
+    rng = np.random.default_rng(0)
+    d = 96
+    a = rng.standard_normal((d, d)) + 1j * rng.standard_normal((d, d))
+    a = a + a.conj().T
+    best = np.inf
+    for _ in range(3):
+        t0 = time.perf_counter()
+        np.linalg.eigh(a)
+        best = min(best, time.perf_counter() - t0)
+    return best / d**3
+
+
+def _t_eigh(d: int) -> float:
+    return max(_eigh_constant() * d**3, 2e-6)
+
+
+def available_bytes() -> int:
+    """``MemAvailable`` from /proc/meminfo in bytes (8 GiB when it cannot be read)."""
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except (OSError, ValueError, IndexError):
+        pass
+    return 8 * _GIB
+
+
+def _check_method(method: str) -> str:
+    if method not in METHODS:
+        raise InputError(f"expected a method among {', '.join(('auto',) + METHODS)}, got {method!r}", key="method")
+    return method
+
+
+def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
+    """Estimate the time and memory of ``compute_yields`` for ``n_directions`` directions.
+
+    Parameters
+    ----------
+    system : SpinSystem
+    n_directions : int
+    method : str
+        ``"auto"`` or one of :data:`METHODS`.
+
+    Returns
+    -------
+    Cost
+    """
+    from retina.spin.hilbert import chunk_size
+
+    if method == "auto":
+        method = choose_method(system)
+    _check_method(method)
+    n = max(int(n_directions), 0)
+    d = system.dimension
+    base = 6 * 16 * d * d  # Hamiltonian parts and projectors
+    if method == "hilbert":
+        per = 4 * 16 * d * d
+        batch = min(max(n, 1), chunk_size(d))
+        seconds = n * 1.25 * _t_eigh(d)
+        return Cost(seconds, int(base + batch * per), method,
+                    f"{n} Hermitian eigendecompositions of size {d}")
+    if method == "separable":
+        da, db = system.radicals[0].dimension, system.radicals[1].dimension
+        pair_terms = da * da * db * db / 2.0
+        seconds = n * (_t_eigh(da) + _t_eigh(db) + 4e-9 * pair_terms)
+        batch = min(max(n, 1), 64)
+        mem = batch * 16 * 8 * (da * da + db * db) + 16 * 4 * (da * da + db * db)
+        return Cost(seconds, int(mem), method,
+                    f"{n} x 2 eigendecompositions of sizes {da} and {db} and {int(pair_terms)} pair terms")
+    # liouville
+    from retina.spin.liouville import solver_for
+
+    if solver_for(system) == "eig":
+        per = 12 * 16 * d * d
+        batch = min(max(n, 1), max(1, chunk_size(d) // 2))
+        seconds = n * 8.0 * _t_eigh(d)
+        return Cost(seconds, int(base + batch * per), method,
+                    f"{n} non-Hermitian eigendecompositions of size {d} (effective Hamiltonian)")
+    dd = d * d
+    fill = 0.75 * dd * dd  # measured LU fill-in of the Liouvillian, entries
+    mem = 24 * fill + 20 * 40 * dd + base
+    # LU work grows as d^6 here; the factor 0.04 (relative to the eigh constant) was measured at d = 32
+    seconds = n * (0.04 * _eigh_constant() * d**6 + 1e-4)
+    return Cost(seconds, int(mem), method,
+                f"{n} sparse LU factorisations of the {dd} x {dd} Liouvillian")
+
+
+def _fmt_gib(b: float) -> str:
+    return f"{b / _GIB:.3g} GiB"
+
+
+def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None) -> np.ndarray:
+    """The system's reported yield for each field direction.
+
+    Parameters
+    ----------
+    system : SpinSystem
+    field_uT : float
+        Field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised).
+    method : {"auto", "separable", "hilbert", "liouville"}
+    progress : callable(done, total), optional
+    max_bytes : int, optional
+        Memory bound; default 60 % of the available memory.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        Dimensionless yields.
+
+    Raises
+    ------
+    ResourceError
+        When the estimate exceeds ``max_bytes`` (nothing is allocated).
+    InputError
+        Unknown method, or a system outside the method's scope.
+    """
+    if method == "auto":
+        method = choose_method(system)
+    _check_method(method)
+    if method == "separable" and not _separable_available():
+        method = "hilbert"
+    dirs = np.asarray(directions, dtype=float)
+    n = dirs.shape[0] if dirs.ndim == 2 else 1
+    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
+    cost = estimate_cost(system, n, method)
+    if cost.bytes > limit:
+        hint = {
+            "liouville": "use fewer nuclei, drop relaxation (then the effective-Hamiltonian solver applies), "
+                         "or raise the memory limit",
+            "hilbert": "use fewer nuclei, fewer directions per batch, or raise the memory limit",
+            "separable": "use fewer nuclei or raise the memory limit",
+        }[method]
+        raise ResourceError(
+            f"{system.name!r} (Hilbert dimension {system.dimension}) needs about {_fmt_gib(cost.bytes)} for "
+            f"{cost.note} with method={method!r}, more than the limit of {_fmt_gib(limit)}; {hint}")
+    if method == "separable":
+        from retina.spin import separable
+
+        return separable.yields(system, field_uT, dirs, progress=progress)
+    if method == "hilbert":
+        from retina.spin import hilbert
+
+        return hilbert.yields(system, field_uT, dirs, progress=progress, max_bytes=min(limit, 256 * 2**20))
+    from retina.spin import liouville
+
+    return liouville.yields(system, field_uT, dirs, progress=progress, max_bytes=min(limit, 256 * 2**20))

@@ -1,0 +1,201 @@
+"""Exact Liouville-space method: unequal recombination rates, exchange, dipolar, relaxation.
+
+The density matrix obeys ``d vec(rho)/dt = L vec(rho)`` with the Liouvillian of
+:func:`retina.spin.operators.liouvillian_parts` (row-major vectorisation, stated there).  When every
+state decays (``L`` invertible) the time integral ``x = int_0^inf rho(t) dt`` solves
+
+    L vec(x) = -vec(rho0),
+
+and the yields are ``Phi_S = k_S Tr(P_S x)``, ``Phi_T = k_T Tr(P_T x)``.
+
+Two solvers:
+
+- ``"sparse"``: one sparse LU factorisation (``scipy.sparse.linalg.splu``) of the (d^2, d^2)
+  Liouvillian per direction.  Handles everything, including relaxation; memory grows as about
+  ``d^4`` (fill-in), so it is for small pairs.
+- ``"eig"`` (no relaxation, both rates > 0): the non-Hermitian effective Hamiltonian
+  ``G = H - (i/2)(k_S P_S + k_T P_T)`` gives ``rho(t) = exp(-iGt) rho0 exp(iG^+ t)``.  With
+  ``G = V diag(lambda) V^-1`` and ``r = V^-1 rho0 V^-+``,
+
+      x = V X V^+,   X_mn = r_mn / (i (lambda_m - conj(lambda_n))),
+
+  (``Im lambda < 0`` for every mode when both rates are positive, so the integral converges).
+  The singlet structure ``P_S = |S><S| x 1`` keeps every product at (d, M) size.  A direction whose
+  eigenvector matrix is ill-conditioned (near an exceptional point) is redone with the sparse solver.
+
+``solver="auto"`` uses ``"eig"`` when it applies and ``"sparse"`` otherwise.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+
+from retina.errors import InputError
+from retina.spin import operators as ops
+from retina.spin.hilbert import chunk_size, validate_field
+
+__all__ = ["yields", "check_scope", "solver_for"]
+
+#: Eigenvector condition estimate above which a direction falls back to the sparse solve.
+_COND_LIMIT = 1e7
+
+
+def check_scope(system) -> None:
+    """Raise :class:`InputError` when the rates make the yields undefined."""
+    ks, kt = float(system.k_singlet), float(system.k_triplet)
+    for key, k in (("k_singlet", ks), ("k_triplet", kt)):
+        if not np.isfinite(k) or k < 0:
+            raise InputError(f"expected a finite rate >= 0 s^-1, got {k!r}", source=system.source, key=key)
+    if ks == 0 and kt == 0:
+        raise InputError("both recombination rates are zero: the pair never reacts and the yields are undefined",
+                         source=system.source, key="k_singlet")
+    for which in (system.initial_state, system.reported_yield):
+        if which not in ("singlet", "triplet"):
+            raise InputError(f"expected 'singlet' or 'triplet', got {which!r}", source=system.source,
+                             key="initial_state" if which == system.initial_state else "reported_yield")
+
+
+def solver_for(system) -> str:
+    """``"eig"`` when there is no relaxation and both rates are positive, else ``"sparse"``."""
+    if system.relaxation.any or not (system.k_singlet > 0 and system.k_triplet > 0):
+        return "sparse"
+    return "eig"
+
+
+def _trace_pair(system, space, x) -> tuple[float, float]:
+    """``(Tr(P_S x), Tr x)`` for a (d, d) matrix x, from the singlet rows/columns only."""
+    i_ud, i_du = space.singlet_indices()
+    # Tr(P_S x) = sum_nu <S nu| x |S nu> = (x_uu + x_dd - x_ud - x_du) / 2 over the index pairs
+    ts = 0.5 * (x[i_ud, i_ud] + x[i_du, i_du] - x[i_ud, i_du] - x[i_du, i_ud]).sum()
+    return complex(ts), complex(np.trace(x))
+
+
+def _finish(system, ts, tt_total):
+    """Reported yield from ``Tr(P_S x)`` and ``Tr x`` (complex, imaginary parts are round-off)."""
+    if system.reported_yield == "singlet":
+        return float(system.k_singlet) * np.real(ts)
+    return float(system.k_triplet) * np.real(tt_total - ts)
+
+
+def _sparse_solve(system, l0, lb, b_vec, rho0_vec, space):
+    lmat = l0 + b_vec[0] * lb[0] + b_vec[1] * lb[1] + b_vec[2] * lb[2]
+    try:
+        lu = spla.splu(lmat.tocsc())
+    except RuntimeError as exc:  # "Factor is exactly singular"
+        raise InputError(f"the Liouvillian is singular ({exc}): some state never recombines; give both rates > 0 "
+                         "or add relaxation", source=system.source, key="k_triplet") from None
+    x = lu.solve(-rho0_vec)
+    if not np.all(np.isfinite(x)):
+        raise InputError("the Liouvillian is singular: some state never recombines; give both rates > 0",
+                         source=system.source, key="k_triplet")
+    d = space.dimension
+    return _trace_pair(system, space, x.reshape(d, d))
+
+
+def yields_sparse(system, field_uT, directions, *, progress=None) -> np.ndarray:
+    """Reported yields by one sparse LU solve of the Liouvillian per direction; shape (N,)."""
+    check_scope(system)
+    b, dirs = validate_field(field_uT, directions, system.source)
+    l0, lb, space = ops.liouvillian_parts(system)
+    l0 = l0.tocsc()
+    lb = [m.tocsc() for m in lb]
+    rho0 = ops.initial_density(system, space).reshape(-1)
+    n = dirs.shape[0]
+    out = np.empty(n)
+    every = max(1, n // 100)
+    for i in range(n):
+        ts, tr = _sparse_solve(system, l0, lb, b * dirs[i], rho0, space)
+        out[i] = _finish(system, ts, tr)
+        if progress is not None and ((i + 1) % every == 0 or i + 1 == n):
+            progress(i + 1, n)
+    return out
+
+
+def yields_eig(system, field_uT, directions, *, progress=None, max_bytes=None) -> np.ndarray:
+    """Reported yields through the eigen-decomposition of the effective Hamiltonian; shape (N,).
+
+    Needs no relaxation and both rates > 0 (else :class:`InputError`).
+    """
+    check_scope(system)
+    if solver_for(system) != "eig":
+        raise InputError("the effective-Hamiltonian solver needs both rates > 0 and no relaxation; "
+                         "use solver='sparse'", source=system.source, key="relaxation")
+    b, dirs = validate_field(field_uT, directions, system.source)
+    parts = ops.hamiltonian_parts(system)
+    space = parts.space
+    d, m = space.dimension, space.nuclear_dimension
+    i_ud, i_du = space.singlet_indices()
+    ps = ops.singlet_projector(space)
+    ks, kt = float(system.k_singlet), float(system.k_triplet)
+    g0 = parts.h0 - 0.5j * (ks * ps + kt * (np.eye(d) - ps))
+    hb = parts.hb.reshape(3, d * d)
+    n = dirs.shape[0]
+    out = np.empty(n)
+    step = max(1, chunk_size(d, max_bytes) // 2)
+    sparse_parts = None
+    scale = max(ks, kt)
+    for start in range(0, n, step):
+        stop = min(n, start + step)
+        g = ((b * dirs[start:stop]).astype(complex) @ hb).reshape(-1, d, d) + g0
+        g /= scale  # work in units of the largest rate
+        lam, v = np.linalg.eig(g)
+        w = np.linalg.inv(v)
+        cond = np.linalg.norm(v, axis=(1, 2)) * np.linalg.norm(w, axis=(1, 2)) / d
+        a = (w[:, :, i_ud] - w[:, :, i_du]) * np.sqrt(0.5)  # (n, d, M): V^-1 |S nu>
+        r = np.matmul(a, a.conj().transpose(0, 2, 1))  # V^-1 P_S V^-+
+        if system.initial_state == "singlet":
+            r /= m
+        else:
+            r = (np.matmul(w, w.conj().transpose(0, 2, 1)) - r) / (3 * m)
+        denom = 1j * (lam[:, :, None] - lam[:, None, :].conj())
+        xt = r / denom  # X in the eigenbasis, time in units of 1/scale
+        c = (v[:, i_ud, :] - v[:, i_du, :]) * np.sqrt(0.5)  # (n, M, d): <S nu| V
+        gs = np.matmul(c.conj().transpose(0, 2, 1), c)  # V^+ P_S V
+        gt = np.matmul(v.conj().transpose(0, 2, 1), v)  # V^+ V
+        ts = np.sum(xt * gs.transpose(0, 2, 1), axis=(1, 2)) / scale
+        tr = np.sum(xt * gt.transpose(0, 2, 1), axis=(1, 2)) / scale
+        for p in range(stop - start):
+            if not (cond[p] < _COND_LIMIT):
+                if sparse_parts is None:
+                    l0, lb, _ = ops.liouvillian_parts(system)
+                    sparse_parts = (l0.tocsc(), [x.tocsc() for x in lb],
+                                    ops.initial_density(system, space).reshape(-1))
+                ts[p], tr[p] = _sparse_solve(system, sparse_parts[0], sparse_parts[1], b * dirs[start + p],
+                                             sparse_parts[2], space)
+            out[start + p] = _finish(system, ts[p], tr[p])
+        if progress is not None:
+            progress(stop, n)
+    return out
+
+
+def yields(system, field_uT, directions, *, progress=None, solver="auto", max_bytes=None) -> np.ndarray:
+    """The reported yield of ``system`` for each field direction (exact, Liouville space).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        Any rates (not both zero), exchange, dipolar coupling and relaxation.
+    field_uT : float
+        Field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised here).
+    progress : callable(done, total), optional
+    solver : {"auto", "sparse", "eig"}
+        See the module docstring.
+    max_bytes : int, optional
+        Working-memory bound for one batch of the ``"eig"`` solver.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        ``system.reported_yield`` from ``system.initial_state``, dimensionless.
+    """
+    if solver == "auto":
+        solver = solver_for(system)
+    if solver == "sparse":
+        return yields_sparse(system, field_uT, directions, progress=progress)
+    if solver == "eig":
+        return yields_eig(system, field_uT, directions, progress=progress, max_bytes=max_bytes)
+    raise InputError(f"expected solver 'auto', 'sparse' or 'eig', got {solver!r}", key="solver")
