@@ -353,7 +353,8 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
         if progress:
             progress(i + 1, kap.size)
     info = np.array(info)
-    return {"kappas": kap, "depth": np.array(depth), "info_per_photon": info,
+    own = float(sc["ordering"]["kappa"]) if sc["ordering"]["model"] == "cone" else None
+    return {"kappas": kap, "depth": np.array(depth), "info_per_photon": info, **({"scenario_kappa": own} if own else {}),
             "light_photons": light, "bound_deg": cramer_rao_deg(light[:, None] * info[None, :])}
 
 
@@ -647,6 +648,7 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
         fig = F.disorder_tolerance(d["kappas"], d["depth"],
                                    {f"{nm} ({ph:g})": d["bound_deg"][i] for i, (nm, ph) in
                                     enumerate(zip(names, d["light_photons"]))},
+                                   marked_kappa=d.get("scenario_kappa"),
                                    params=params + "; single pose, heading-averaged information",
                                    path=folder / "disorder_tolerance", formats=formats, dpi=dpi)
         add(fig, "disorder_tolerance")
@@ -729,6 +731,7 @@ def key_numbers(res: Results) -> list:
                      (f"{nm}: mean vector length r", f"{lv['r']:.3f}", ""),
                      (f"{nm}: Rayleigh p", f"{lv['rayleigh_p']:.3g}", ""),
                      (f"{nm}: V-test u (goal {t['goal_deg']:g} deg)", f"{lv['v_u']:.2f} (p = {lv['v_p']:.2g})", ""),
+                     (f"{nm}: ambiguous decodes", f"{100 * np.mean(lv['ambiguous']):.0f}", "%"),
                      (f"{nm}: rms decoding error", f"{np.sqrt(np.mean(np.asarray(lv['error_deg']) ** 2)):.2f}",
                       "deg"),
                      (f"{nm}: trials", f"{len(lv['chosen_deg'])}", "")]

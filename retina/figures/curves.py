@@ -92,7 +92,8 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
     return finish(fig, path, formats, dpi)
 
 
-def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, params: str = "",
+def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, marked_kappa: float | None = None,
+                       params: str = "",
                        title: str = "Tolerance to molecular disorder",
                        path=None, formats=("png", "svg"), dpi: int = 300):
     """Modulation depth and heading bound against the order of the molecules in a receptor.
@@ -107,6 +108,8 @@ def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, p
         (dimensionless).
     bounds_deg : mapping label -> ndarray (K,)
         Cramer-Rao bound on the heading s.d. (deg), one curve per light level.
+    marked_kappa : float, optional
+        A concentration to mark with a vertical line (e.g. the scenario's own).
 
     Returns
     -------
@@ -148,11 +151,18 @@ def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, p
         ax2.set_ylabel("heading bound (s.d.), deg")
         ax2.legend(frameon=False, title="light level", title_fontsize=6.5)
         ax2.grid(True, lw=0.3, color="0.85")
+        if marked_kappa is not None:
+            for a in (ax1, ax2):
+                a.axvline(marked_kappa, color="0.4", lw=0.8, ls=":")
+            ax1.text(marked_kappa, 0.03, " scenario", transform=ax1.get_xaxis_transform(), fontsize=6,
+                     rotation=90, va="bottom", ha="right", color="0.3")
         fig.subplots_adjust(wspace=0.35)
     caption = ("Left: modulation depth (%) of the receptor yields over both retinas against the concentration "
                "kappa of the von Mises-Fisher cone of molecular axes about each receptor axis (top axis: typical "
                "tilt arccos<cos theta>, deg). Right: Cramer-Rao bound on the heading s.d. (deg) at each light level; dashed: a "
-               f"uniformly random heading ({CHANCE_RMS_DEG:.1f} deg)." + (f" {params}." if params else ""))
+               f"uniformly random heading ({CHANCE_RMS_DEG:.1f} deg)."
+               + (f" Dotted: the scenario's kappa = {marked_kappa:g}." if marked_kappa is not None else "")
+               + (f" {params}." if params else ""))
     annotate(fig, title, caption)
     return finish(fig, path, formats, dpi)
 
