@@ -52,8 +52,10 @@ def test_synthetic_functions_are_band_limited():
 @pytest.mark.parametrize("kappa", [0.5, 3.0, 20.0, 200.0])
 def test_vmf_funk_hecke_factors_against_quad(kappa):
     # Source: Funk-Hecke theorem, lambda_l = 2 pi int k(t) P_l(t) dt for the normalised kernel
-    # k(t) = kappa exp(kappa (t - 1)) / (2 pi (1 - exp(-2 kappa))).  Reference: scipy.integrate.quad.
-    k = lambda t: kappa * math.exp(kappa * (t - 1)) / (2 * math.pi * -math.expm1(-2 * kappa))  # noqa
+    # k(t) = kappa exp(kappa (t - 1)) / (2 pi (1 - exp(-2 kappa))).
+    # Reference: scipy.integrate.quad.
+    def k(t):
+        return kappa * math.exp(kappa * (t - 1)) / (2 * math.pi * -math.expm1(-2 * kappa))
     lam = Cone(kappa=kappa).moments(16)
     for l in range(0, 17, 2):
         ref = 2 * math.pi * quad(lambda t: k(t) * eval_legendre(l, t), -1, 1, epsabs=1e-14,
@@ -101,7 +103,8 @@ def test_cone_sampling_distribution():
     kappa = 2.5
     Q = Cone(kappa=kappa).sample(20_000, 5)
     t = Q.apply([0.0, 0.0, 1.0])[:, 2]
-    cdf = lambda x: (np.exp(kappa * x) - math.exp(-kappa)) / (math.exp(kappa) - math.exp(-kappa))  # noqa
+    def cdf(x):
+        return (np.exp(kappa * x) - math.exp(-kappa)) / (math.exp(kappa) - math.exp(-kappa))
     assert kstest(t, cdf).pvalue > 1e-3
     np.testing.assert_allclose(Q.as_rotvec()[:, 2], 0.0, atol=1e-12)
     # Derived: <P2> of the samples matches the order parameter within 5 standard errors.

@@ -155,8 +155,8 @@ def decimal_year(date) -> float:
             try:
                 return float(date)
             except ValueError:
-                raise InputError(f"expected an ISO date (YYYY-MM-DD) or a decimal year, got {date!r}",
-                                 key="date") from None
+                raise InputError("expected an ISO date (YYYY-MM-DD) or a decimal year, got "
+                                 f"{date!r}", key="date") from None
     if isinstance(date, (int, float, np.integer, np.floating)) and not isinstance(date, bool):
         y = float(date)
         if not math.isfinite(y):
@@ -231,7 +231,8 @@ def field_at(lat_deg: float, lon_deg: float, alt_km: float = 0.0, date=2025.0) -
     import ppigrf  # a few hundred ms to import (pandas); keep it out of the core import
 
     with contextlib.redirect_stdout(io.StringIO()):  # ppigrf prints warnings instead of raising
-        be, bn, bu = ppigrf.igrf(lon, lat, alt, _as_datetime(year), coeff_fn=ppigrf.ppigrf.shc_fn_igrf14)
+        be, bn, bu = ppigrf.igrf(lon, lat, alt, _as_datetime(year),
+                                 coeff_fn=ppigrf.ppigrf.shc_fn_igrf14)
     X, Y, Z = float(np.ravel(bn)[0]), float(np.ravel(be)[0]), -float(np.ravel(bu)[0])
     f = Field.from_vector(np.array([X, Y, Z]) * 1e-9,
                           source=f"IGRF-14 at {lat_deg} N {lon_deg} E, {alt_km} km, {year:.3f}")

@@ -64,7 +64,8 @@ __all__ = ["Ordering", "Aligned", "FreeRotation", "Cone", "Isotropic", "Composit
 
 
 def as_generator(rng) -> np.random.Generator:
-    """A ``numpy.random.Generator`` from a Generator, an integer seed or ``None`` (fresh entropy)."""
+    """A ``numpy.random.Generator`` from a Generator, an integer seed or ``None`` (fresh
+    entropy)."""
     if isinstance(rng, np.random.Generator):
         return rng
     if rng is None or isinstance(rng, (int, np.integer)):

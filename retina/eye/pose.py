@@ -163,7 +163,8 @@ class HeadScan:
 
 
 def poses_from_arrays(yaw_deg, pitch_deg=0.0, roll_deg=0.0, times_s=None) -> HeadScan:
-    """A :class:`HeadScan` from angle arrays (degrees), broadcast together; times default to 0..P-1 s."""
+    """A :class:`HeadScan` from angle arrays (degrees), broadcast together; times default to
+    0 .. P-1 s."""
     y, p, r = np.broadcast_arrays(*(np.atleast_1d(_finite(n, v)) for n, v in
                                     (("yaw_deg", yaw_deg), ("pitch_deg", pitch_deg),
                                      ("roll_deg", roll_deg))))
