@@ -53,6 +53,8 @@ Defaults for a small songbird-like model eye (:func:`default_eyes`), with proven
   receptor positions, which no yield depends on.
 - retinal extent: a hemisphere (90 degrees), a modelling choice (common practice, no source).
 - 2000 receptors per eye, uniform density: a modelling choice, not a biological count.
+- for ``density="central"``: peak-to-peripheral ratio 4 and width 20 degrees, a modelling choice
+  (no source; real avian retinas have one or two foveae, not necessarily on the optical axis).
 """
 
 from __future__ import annotations
