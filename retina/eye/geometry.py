@@ -273,7 +273,7 @@ def local_frames(axes: np.ndarray) -> np.ndarray:
     return np.stack([x, y, z], axis=-1)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Receptors:
     """All receptors of all eyes, in the head frame (see the module docstring).
 

@@ -50,7 +50,7 @@ _AXIAL_TOL = 1e-12
 _CHUNK_BYTES = 64 * 2 ** 20
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Pattern:
     """The yield pattern for one pose and field.
 

@@ -130,7 +130,7 @@ def head_field_dyaw(rotations, b_world) -> np.ndarray:
     return -R.inv().apply(np.cross([0.0, 0.0, 1.0], b)).reshape(-1, 3)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class HeadScan:
     """A sequence of poses.
 
