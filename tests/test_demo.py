@@ -1,0 +1,186 @@
+"""`retina demo` end to end (reduced), reproducibility, and physics checks of the pipeline."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+from PIL import Image
+
+import retina.commands
+from retina import pipeline as P
+from retina import sphere
+from retina.cli import main
+from retina.scenario import load_scenario, scenario_from_dict
+from retina.yieldfn import YieldFunction
+
+ASSETS = Path(__file__).resolve().parent.parent / "assets"
+MINE = ("demo", "patterns", "scan", "precision", "trials", "report")
+FIGURES = ("yield_sphere", "modulation_fields", "scan_filmstrip", "precision_curves", "disorder_tolerance",
+           "trial_histograms")
+
+
+@pytest.fixture(autouse=True)
+def commands_listed(monkeypatch):
+    names = tuple(retina.commands.COMMANDS) + tuple(n for n in MINE if n not in retina.commands.COMMANDS)
+    monkeypatch.setattr(retina.commands, "COMMANDS", names)
+
+
+@pytest.fixture(scope="module")
+def demo_dir(tmp_path_factory):
+    out = tmp_path_factory.mktemp("demo") / "retina-demo"
+    import retina.commands as rc
+
+    saved = rc.COMMANDS
+    rc.COMMANDS = tuple(saved) + tuple(n for n in MINE if n not in saved)
+    try:
+        assert main(["demo", "--quick", "-o", str(out), "-q"]) == 0
+    finally:
+        rc.COMMANDS = saved
+    return out
+
+
+def datasets(path):
+    out = {}
+    with h5py.File(path) as h:
+        h.visititems(lambda name, obj: out.__setitem__(name, obj[()]) if isinstance(obj, h5py.Dataset) else None)
+    return out
+
+
+# --- the demo --------------------------------------------------------------------------------------
+
+def test_demo_writes_report_folder(demo_dir):
+    assert {"index.html", "report.md", "results.h5", "figures"} <= {p.name for p in demo_dir.iterdir()}
+    for stem in FIGURES:
+        png = demo_dir / "figures" / f"{stem}.png"
+        a = np.asarray(Image.open(png).convert("RGB"))
+        # not blank: many colours and real contrast (pixel statistics)
+        assert np.unique(a.reshape(-1, 3), axis=0).shape[0] > 64 and a.std() > 20, stem
+        assert (demo_dir / "figures" / f"{stem}.svg").is_file()
+    gif = Image.open(demo_dir / "figures" / "scan_animation.gif")
+    assert gif.n_frames >= 2
+    html = (demo_dir / "index.html").read_text()
+    md = (demo_dir / "report.md").read_text()
+    for text in (html, md):
+        for key in ("relative anisotropy", "modulation depth", "bound single pose", "rms decoding error",
+                    "mean vector length r", "Rayleigh p"):
+            assert key in text, key
+    assert "<script" not in html and "http" not in html.split("<h2>Scenario</h2>")[0]  # self-contained
+    with h5py.File(demo_dir / "results.h5") as h:
+        prov = h["provenance"].attrs
+        assert "demo warbler" in prov["scenario_toml"] and bool(prov["quick"])
+        assert h["yield_function"].attrs["relative"] > 0.01  # the invented pair is anisotropic
+
+
+def test_demo_refuses_to_overwrite(demo_dir, capsys):
+    assert main(["demo", "--quick", "-o", str(demo_dir), "-q"]) == 2
+    assert "--force" in capsys.readouterr().err
+
+
+def test_same_seed_same_results_other_seed_other_trials(demo_dir, tmp_path):
+    assert main(["demo", "--quick", "-o", str(tmp_path / "again"), "-q", "--no-animation", "--formats", "png"]) == 0
+    a, b = datasets(demo_dir / "results.h5"), datasets(tmp_path / "again" / "results.h5")
+    assert a.keys() == b.keys() and len(a) > 20
+    for k in a:
+        assert np.array_equal(a[k], b[k]), k
+    assert main(["demo", "--quick", "-o", str(tmp_path / "seed"), "-q", "--no-animation", "--formats", "png",
+                 "--seed", "99"]) == 0
+    c = datasets(tmp_path / "seed" / "results.h5")
+    assert not np.array_equal(a["trials/levels/dim/chosen_deg"], c["trials/levels/dim/chosen_deg"])
+    assert np.array_equal(a["yield_function/coeffs"], c["yield_function/coeffs"])  # seed-free stage
+
+
+# --- physics of the pipeline on a synthetic yield function ----------------------------------------
+
+@pytest.fixture(scope="module")
+def synthetic(tmp_path_factory):
+    d = tmp_path_factory.mktemp("syn")
+    g = sphere.grid_for_degree(6)
+    p = g.points
+    v = 0.3 + 0.03 * (1.5 * p[:, 2] ** 2 - 0.5) + 0.01 * p[:, 0] * p[:, 1] + 0.004 * p[:, 0] ** 4
+    YieldFunction.from_values(v, g, 6, {"kind": "synthetic"}).save(d / "yf.h5")
+
+    def make(**sections):
+        doc = {"yield": {"file": str(d / "yf.h5"), "degree": 6},
+               "field": {"intensity_uT": 50.0, "inclination_deg": 60.0, "declination_deg": 0.0},
+               "eyes": [{"side": "left", "azimuth_deg": -60.0, "n_receptors": 80},
+                        {"side": "right", "azimuth_deg": 60.0, "n_receptors": 80}],
+               "scan": {"amplitude_deg": 30.0, "steps": 7}}
+        for k, v in sections.items():
+            doc[k] = v if k == "eyes" else {**doc.get(k, {}), **v}
+        return scenario_from_dict(doc)
+
+    return make
+
+
+def _patterns(sc):
+    yf = P.build_yield_function(sc)
+    return P.compute_patterns(sc, P.build_retina(sc, yf), P.build_field(sc))
+
+
+def test_reversed_field_gives_the_same_pattern(synthetic):
+    # Source: references.md, facts of the trade (common practice): a radical-pair yield is unchanged
+    # when the field is reversed, so the compass reads the axis only.
+    a = _patterns(synthetic(field={"inclination_deg": 60.0, "declination_deg": 10.0}))
+    b = _patterns(synthetic(field={"inclination_deg": -60.0, "declination_deg": -170.0}))
+    assert np.allclose(a["b_head"], -b["b_head"], atol=1e-12)
+    assert np.allclose(a["yields"], b["yields"], rtol=0, atol=1e-12)
+
+
+def test_north_in_the_north_equals_south_in_the_south(synthetic):
+    # Source: references.md, facts of the trade: a bird facing magnetic north in the northern hemisphere
+    # and one facing magnetic south in the southern hemisphere (same |inclination|) see the same pattern.
+    a = _patterns(synthetic(field={"inclination_deg": 55.0}, pose={"headings_deg": [0.0]}))
+    b = _patterns(synthetic(field={"inclination_deg": -55.0}, pose={"headings_deg": [180.0]}))
+    assert np.allclose(a["yields"], b["yields"], rtol=0, atol=1e-12)
+    # and it is not trivially so: facing east differs
+    c = _patterns(synthetic(field={"inclination_deg": 55.0}, pose={"headings_deg": [90.0]}))
+    assert np.abs(a["yields"] - c["yields"]).max() > 1e-4
+
+
+def test_isotropic_molecules_carry_no_heading(synthetic):
+    # Derived: the Haar average of any function over rotations is its sphere mean, so every receptor
+    # gives the mean yield for every field: zero modulation and zero Fisher information.
+    sc = synthetic(ordering={"model": "isotropic"}, readout={"photons": [100.0, 1e4], "decode_repeats": 20})
+    yf = P.build_yield_function(sc)
+    m = P.build_retina(sc, yf)
+    pat = P.compute_patterns(sc, m, P.build_field(sc))
+    assert np.allclose(pat["yields"], yf.mean, rtol=0, atol=1e-12) and np.abs(pat["modulation"]).max() < 1e-12
+    q = P.compute_precision(sc, m, P.build_field(sc))
+    assert np.all(q["info_per_photon_single"] < 1e-20) and np.all(np.isinf(q["bound_single_deg"]))
+
+
+def test_decoder_reaches_the_cramer_rao_bound_in_bright_light(synthetic):
+    # Cross-check of two independent paths: the bound comes from analytic harmonic gradients (Fisher
+    # information), the error from Poisson sampling and maximum-likelihood decoding.  At high counts the
+    # ML estimator is efficient, its rms error tends to the bound (Kay, Fundamentals of Statistical
+    # Signal Processing: Estimation Theory, 1993, ch. 7; from memory).  With n = 1500 decodes the rms has
+    # a relative standard error of about 1/sqrt(2n) = 1.8 %; we allow 8 %.
+    sc = synthetic(readout={"photons": [1e5], "decode_repeats": 1500}, scenario={"seed": 4})
+    yf = P.build_yield_function(sc)
+    q = P.compute_precision(sc, P.build_retina(sc, yf), P.build_field(sc))
+    assert q["decoded_single_rms_deg"][0] == pytest.approx(q["bound_single_deg"][0], rel=0.08)
+    assert q["decoded_scan_rms_deg"][0] == pytest.approx(q["bound_scan_deg"][0], rel=0.08)
+    # Derived: bounds scale as photons^-1/2 (information is linear in the light level).
+    q2 = P.compute_precision(sc.replace(readout={"photons": [1e3, 1e5], "decode_repeats": 1}),
+                             P.build_retina(sc, yf), P.build_field(sc))
+    assert q2["bound_single_deg"][0] / q2["bound_single_deg"][1] == pytest.approx(10.0, rel=1e-9)
+
+
+def test_trials_point_to_the_goal_in_bright_light(synthetic):
+    # Derived: as the decoding error vanishes the chosen direction goal - error tends to the goal.
+    sc = synthetic(light={"photons": [1e6], "names": ["very bright"]}, trials={"n_trials": 30, "goal_deg": 250.0})
+    yf = P.build_yield_function(sc)
+    t = P.compute_trials(sc, P.build_retina(sc, yf), P.build_field(sc))["levels"]["very bright"]
+    assert t["r"] > 0.99 and abs((t["mean_deg"] - 250.0 + 180) % 360 - 180) < 2.0
+    assert t["rayleigh_p"] < 1e-6
+
+
+def test_quick_scenario_is_smaller_and_valid():
+    sc = load_scenario(ASSETS / "demo_scenario.toml")
+    q = P.quick_scenario(sc)
+    assert q["yield"]["degree"] <= 8 and all(e["n_receptors"] <= 120 for e in q["eyes"])
+    assert len(q["readout"]["photons"]) <= 4 and q["trials"]["n_trials"] <= 20
+    assert q["light"] == sc["light"] and q.seed == sc.seed
