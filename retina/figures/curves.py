@@ -54,11 +54,11 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
         raise InputError("expected at least one bound curve", key="bounds_deg")
     dec = _series("decoded_deg", decoded_deg, n.size)
     with style():
-        fig = new_figure(SINGLE_IN, 2.7)
+        fig = new_figure(SINGLE_IN, 3.3)
         ax = fig.add_subplot(1, 1, 1)
         colours = {}
         for i, (lab, y) in enumerate(b.items()):
-            (ln,) = ax.plot(n, y, "-", color=f"C{i}", label=f"bound: {lab}")
+            (ln,) = ax.plot(n, y, ("-", "--", "-.", ":")[i % 4], color=f"C{i}", label=f"bound: {lab}")
             colours[lab] = ln.get_color()
         for j, (lab, y) in enumerate(dec.items()):
             ax.plot(n, y, "o", ms=3.5, mfc="none", color=colours.get(lab, f"C{len(b) + j}"),
@@ -82,7 +82,7 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
         ax.set_ylim(lo, CHANCE_RMS_DEG * 3)
         ax.set_xlabel("photons per receptor per look")
         ax.set_ylabel("heading error (s.d.), deg")
-        ax.legend(loc="upper right", frameon=False, bbox_to_anchor=(1.0, 0.93))
+        ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=2, frameon=False)
         ax.grid(True, which="major", lw=0.3, color="0.85")
     caption = ("Cramer-Rao lower bound on the heading standard deviation (lines, deg) and rms error of a "
                "maximum-likelihood decoder under Poisson photon noise (circles, deg) against the mean photon "
