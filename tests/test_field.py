@@ -106,3 +106,14 @@ def test_field_vector_rejects_bad_input():
         field_vector(50.0, 95.0, 0.0)
     with pytest.raises(InputError, match="intensity"):
         Field(-1.0, 60.0)
+
+
+def test_importing_the_eye_package_stays_light():
+    # Common practice, no source (keep optional heavy imports inside functions): ppigrf and pandas
+    # load only when an IGRF field is requested.
+    import subprocess
+    import sys
+
+    code = "import sys, retina.eye; print('pandas' in sys.modules, 'ppigrf' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.split() == ["False", "False"]
