@@ -38,6 +38,7 @@ from __future__ import annotations
 import dataclasses
 import datetime as _dt
 import json
+import os
 import platform
 import zlib
 from dataclasses import dataclass, field
@@ -744,8 +745,14 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
                   progress_factory: ProgressFactory | None = None, save_results: bool = True) -> dict:
     """Write ``results.h5``, ``figures/`` and the report (``index.html``, ``report.md``) into ``outdir``.
 
-    ``outdir`` must not exist or be empty, unless ``force``.  Returns the paths written.
+    ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
+    replaced and other files are kept).  Everything is first written into a hidden staging folder
+    beside ``outdir`` and moved in only when complete, so an interrupted or failed run leaves
+    ``outdir`` as it was.  Returns the paths written.
     """
+    import shutil
+    import tempfile
+
     from retina.report import write_report
 
     outdir = Path(outdir)
@@ -755,21 +762,31 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
         raise InputError("folder exists and is not empty; pass --force to overwrite it", source=outdir)
     if not outdir.parent.exists():
         raise InputError(f"folder {outdir.parent} does not exist", source=outdir)
-    outdir.mkdir(exist_ok=True)
     pf = progress_factory or _noprog
-    h5 = outdir / "results.h5"
-    if save_results:
-        _save(res, h5, force=True)
-    entries = make_figures(res, outdir / "figures", formats=formats, dpi=dpi, animation=animation,
-                           progress=pf("figures", 7))
-    name = res.provenance.get("scenario_name", "scenario")
-    html_path, md_path = write_report(
-        outdir, title or f"retina-compass report: {name}", key_numbers(res), entries,
-        intro=f"Scenario '{name}', seed {res.provenance.get('seed')}. Results in results.h5.",
-        scenario_text=res.provenance.get("scenario_toml", ""),
-        provenance={k: v for k, v in res.provenance.items() if k not in ("scenario_toml", "yield_provenance")},
-        force=True)
-    return {"results": h5, "html": html_path, "markdown": md_path, "figures": outdir / "figures"}
+    stage = Path(tempfile.mkdtemp(prefix=f".{outdir.name}.", suffix=".partial", dir=outdir.parent))
+    try:
+        if save_results:
+            _save(res, stage / "results.h5", force=True)
+        entries = make_figures(res, stage / "figures", formats=formats, dpi=dpi, animation=animation,
+                               progress=pf("figures", 7))
+        name = res.provenance.get("scenario_name", "scenario")
+        write_report(
+            stage, title or f"retina-compass report: {name}", key_numbers(res), entries,
+            intro=f"Scenario '{name}', seed {res.provenance.get('seed')}. Results in results.h5.",
+            scenario_text=res.provenance.get("scenario_toml", ""),
+            provenance={k: v for k, v in res.provenance.items() if k not in ("scenario_toml", "yield_provenance")},
+            force=True)
+        outdir.mkdir(exist_ok=True)
+        for src in sorted(stage.rglob("*")):
+            if src.is_file():
+                dst = outdir / src.relative_to(stage)
+                dst.parent.mkdir(parents=True, exist_ok=True)
+                os.chmod(src, 0o644)  # staging files are private (mkstemp); a report is for reading
+                os.replace(src, dst)
+    finally:
+        shutil.rmtree(stage, ignore_errors=True)
+    return {"results": outdir / "results.h5", "html": outdir / "index.html", "markdown": outdir / "report.md",
+            "figures": outdir / "figures"}
 
 
 # ------------------------------------------------------------------------------------------------

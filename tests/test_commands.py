@@ -154,3 +154,19 @@ def test_report_rebuilds_from_results(scenario, tmp_path, capsys):
         h["a"] = 1
     assert main(["report", str(not_results), "-o", str(tmp_path / "r")]) == 2
     assert "not a retina-compass results file" in capsys.readouterr().err
+
+
+def test_interrupt_exits_130_and_leaves_no_output(scenario, tmp_path, monkeypatch, capsys):
+    from retina import pipeline
+
+    real = pipeline.make_figures
+
+    def interrupted(res, folder, **kw):
+        real(res, folder, **{**kw, "animation": False})  # some files exist in the staging folder now
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(pipeline, "make_figures", interrupted)
+    out = tmp_path / "o"
+    assert main(["patterns", str(scenario), "-o", str(out), "-q"]) == 130
+    assert "interrupted" in capsys.readouterr().err
+    assert not out.exists() and list(tmp_path.iterdir()) == []  # no partial folder, no staging left

@@ -109,7 +109,8 @@ def synthetic(tmp_path_factory):
                         {"side": "right", "azimuth_deg": 60.0, "n_receptors": 80}],
                "scan": {"amplitude_deg": 30.0, "steps": 7}}
         for k, v in sections.items():
-            doc[k] = v if k == "eyes" else {**doc.get(k, {}), **v}
+            replace = k == "eyes" or (k == "field" and "latitude_deg" in v)
+            doc[k] = v if replace else {**doc.get(k, {}), **v}
         return scenario_from_dict(doc)
 
     return make
@@ -184,3 +185,16 @@ def test_quick_scenario_is_smaller_and_valid():
     assert q["yield"]["degree"] <= 8 and all(e["n_receptors"] <= 120 for e in q["eyes"])
     assert len(q["readout"]["photons"]) <= 4 and q["trials"]["n_trials"] <= 20
     assert q["light"] == sc["light"] and q.seed == sc.seed
+
+
+def test_field_from_a_location_and_date(synthetic):
+    # Source: World Magnetic Model 2025 official test values (references.md, transcribed): 80 N 0 E,
+    # 2025.0, height 0 km: X 6521.6, Y 145.9, Z 54791.5 nT, I 83.21 deg, D 1.28 deg.  The scenario's
+    # location goes through the IGRF; the two models agree within about 100 nT and 0.2 deg.
+    sc = synthetic(field={"latitude_deg": 80.0, "longitude_deg": 0.0, "altitude_km": 0.0, "date": "2025-01-01"})
+    f = P.build_field(sc)
+    F_wmm = np.sqrt(6521.6 ** 2 + 145.9 ** 2 + 54791.5 ** 2) * 1e-3  # uT
+    assert f.F_uT == pytest.approx(F_wmm, abs=0.1)
+    assert f.I_deg == pytest.approx(83.21, abs=0.2) and f.D_deg == pytest.approx(1.28, abs=0.2)
+    # and the yield computation would use that intensity when yield.field_uT is not given
+    assert P._field_uT(sc) == pytest.approx(f.F_uT)
