@@ -198,3 +198,44 @@ def test_field_from_a_location_and_date(synthetic):
     assert f.I_deg == pytest.approx(83.21, abs=0.2) and f.D_deg == pytest.approx(1.28, abs=0.2)
     # and the yield computation would use that intensity when yield.field_uT is not given
     assert P._field_uT(sc) == pytest.approx(f.F_uT)
+
+
+def test_disorder_scales_a_quadrupolar_pattern_by_the_order_parameter(tmp_path):
+    # Derived: for a yield a + b P2(u . b) (u the molecular axis) and molecular axes in a von Mises-Fisher
+    # cone of concentration kappa about the receptor axis, the ensemble response is a + b <P2> P2(a_r . b)
+    # (addition theorem), with <P2> = 1 - 3 coth(kappa) / kappa + 3 / kappa^2 (integrate P2(cos t) against
+    # exp(kappa cos t) sin t).  So over the same receptors the yields are a + <P2> (y_aligned - a): the
+    # spread max - min scales by <P2> and the mean moves to a + <P2> (mean_aligned - a).
+    g = sphere.grid_for_degree(6)
+    z = g.points[:, 2]
+    YieldFunction.from_values(0.3 + 0.04 * (1.5 * z ** 2 - 0.5), g, 6, {}).save(tmp_path / "q.h5")
+    kap = [0.5, 2.0, 10.0, 100.0]
+    doc = {"yield": {"file": str(tmp_path / "q.h5"), "degree": 6},
+           "field": {"intensity_uT": 50.0, "inclination_deg": 60.0, "declination_deg": 0.0},
+           "eyes": [{"side": "right", "azimuth_deg": 60.0, "n_receptors": 150}],
+           "ordering": {"disorder_kappas": kap}}
+    sc = scenario_from_dict(doc)
+    ya = _patterns(sc.replace(ordering={"model": "aligned"}))["yields"]  # (headings, receptors)
+    yf = P.build_yield_function(sc)
+    from retina.eye.geometry import build_receptors
+
+    d = P.compute_disorder(sc, yf, build_receptors(P.build_eyes(sc)), P.build_field(sc))
+    k = np.asarray(kap)
+    p2 = 1 - 3 / (k * np.tanh(k)) + 3 / k ** 2
+    a = 0.3  # the sphere mean: P2 averages to zero
+    spread = ya.max(axis=1) - ya.min(axis=1)
+    predicted = [np.mean(q * spread / (a + q * (ya.mean(axis=1) - a))) for q in p2]
+    assert np.allclose(d["depth"], predicted, rtol=1e-9, atol=0)
+
+
+def test_finite_molecules_are_seeded_and_approach_the_ensemble(synthetic):
+    # Derived: the mean of n independent molecules converges to the ensemble average as 1/sqrt(n);
+    # with n = 400 the spread of a receptor's response is about (yield anisotropy) / 20.
+    sc = synthetic(ordering={"mode": "molecules", "n_molecules": 400})
+    a, b = _patterns(sc), _patterns(sc)
+    assert np.array_equal(a["yields"], b["yields"])
+    c = _patterns(sc.replace(scenario={"seed": 1}))
+    assert not np.array_equal(a["yields"], c["yields"])
+    ens = _patterns(sc.replace(ordering={"mode": "ensemble"}))
+    spread = np.abs(a["yields"] - ens["yields"]).max()
+    assert 0 < spread < 0.05 * 0.03  # anisotropy of the synthetic function is about 0.03
