@@ -712,14 +712,15 @@ def key_numbers(res: Results) -> list:
     if "precision" in g:
         q = g["precision"]
         rows = []
+        n_scan = len(q["scan_offsets_deg"])
         for i, ph in enumerate(q["photons"]):
-            rows.append((f"{ph:g} photons/receptor: bound single pose / scan",
-                         f"{q['bound_single_deg'][i]:.3g} / {q['bound_scan_deg'][i]:.3g}", "deg"))
-            rows.append((f"{ph:g} photons/receptor: rms decoding error single pose / scan",
-                         f"{q['decoded_single_rms_deg'][i]:.3g} / {q['decoded_scan_rms_deg'][i]:.3g}", "deg"))
+            rows.append((f"{ph:g} photons/receptor: bound single pose, scan | rms decoding error single pose, scan",
+                         f"{q['bound_single_deg'][i]:.3g}, {q['bound_scan_deg'][i]:.3g} | "
+                         f"{q['decoded_single_rms_deg'][i]:.3g}, {q['decoded_scan_rms_deg'][i]:.3g}", "deg"))
         secs.append(Section("Heading precision", rows, note="Cramer-Rao bound on the heading standard deviation "
                             "(rms over uniformly distributed headings) and the rms error of maximum-likelihood "
-                            "decoding at random headings."))
+                            f"decoding at random headings, for one pose and for the head scan ({n_scan} poses "
+                            "sharing the same light)."))
     if "disorder" in g:
         d = g["disorder"]
         rows = [(f"kappa = {k:g}: modulation depth", f"{100 * dp:.3f}", "%") for k, dp in zip(d["kappas"], d["depth"])]

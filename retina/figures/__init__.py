@@ -2,7 +2,8 @@
 
 Every builder takes plain arrays or small objects, returns a ``matplotlib.figure.Figure`` and, when
 ``path`` is given, also writes it with :func:`save_figure` (``path`` is a stem: ``out/yield`` gives
-``out/yield.png`` and ``out/yield.svg``).  Matplotlib runs on the Agg backend; nothing here opens a
+``out/yield.png`` and ``out/yield.svg``).  :func:`scan_animation` is the exception: it writes a GIF
+and returns its path.  Matplotlib runs on the Agg backend; nothing here opens a
 window.
 
 Conventions (owned here)
