@@ -191,3 +191,17 @@ def test_subprocess_real_engine_and_bad_input(tmp_path):
     assert run.returncode == 2 and "Traceback" not in run.stderr
     assert run.stderr.strip().splitlines() == [run.stderr.strip()]
     assert "kinetics.lifetime_us" in run.stderr
+
+
+def test_real_engine_scope_and_memory_refusals_are_exit_2(tmp_path, monkeypatch, capsys):
+    pytest.importorskip("retina.spin.engine")
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "cache"))
+    coupled = tmp_path / "coupled.toml"
+    coupled.write_text(TINY + "\n[coupling]\nexchange_mT = 0.05\n")
+    assert main(["yields", str(coupled), "-o", str(tmp_path / "o.h5"), "--method", "separable", "-q"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("retina: error: ") and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert main(["yields", str(coupled), "-o", str(tmp_path / "o.h5"), "--max-memory-gb", "1e-9", "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "refused:" in err and "limit" in err and len(err.strip().splitlines()) == 1
+    assert not (tmp_path / "o.h5").exists()

@@ -299,8 +299,10 @@ def test_from_system_with_the_eigen_method_matches_direct_evaluation(monkeypatch
     assert yf.fit_error < 1e-2 * yf.anisotropy().delta
     l, m = sphere.lm_index(10)
     # Derived: one axial hyperfine tensor (axis z) and isotropic g make H covariant under rotations
-    # about z, so Phi depends on b_z only: every m != 0 coefficient vanishes.
-    assert np.max(np.abs(yf.coeffs[m != 0])) < 1e-9
+    # about z, so Phi depends on b_z only: every m != 0 coefficient vanishes, except for aliasing of
+    # the truncated degrees > L on the (octahedral, not axial) Lebedev grid into m = +-4, +-8 terms,
+    # which is of the size of the truncation error.
+    assert np.max(np.abs(yf.coeffs[m != 0])) < yf.fit_error + 1e-14
     an = yf.anisotropy()
     assert an.delta > 1e-3 and 0.0 < an.min < an.max < 1.0
     # The extremes of an axial function lie on the axis or on the equator.
@@ -325,8 +327,10 @@ def test_real_engine_axial_pair_gives_an_axially_symmetric_yield(system):
     yf = YieldFunction.from_system(system, 50.0, degree=8)
     l, m = sphere.lm_index(8)
     # Derived: with one axial hyperfine tensor (symmetry axis z) and isotropic g, H commutes with
-    # rotations about z applied to field and spins together, so Phi depends on b_z only: m != 0 vanish.
-    assert np.max(np.abs(yf.coeffs[m != 0])) < 1e-10
+    # rotations about z applied to field and spins together, so Phi depends on b_z only: m != 0 vanish
+    # up to aliasing of the truncated degrees on the Lebedev grid (of the size of the truncation error).
+    assert np.max(np.abs(yf.coeffs[m != 0])) < yf.fit_error + 1e-14
+    assert yf.fit_error < 1e-6
     # Derived: a field along the axis of the hyperfine tensor and one perpendicular to it give
     # different yields; the function is not constant.
     an = yf.anisotropy()
@@ -335,3 +339,13 @@ def test_real_engine_axial_pair_gives_an_axially_symmetric_yield(system):
     # The extremes of an axial function lie on the axis or on the equator.
     for v in (an.argmax, an.argmin):
         assert abs(v[2]) > 1 - 1e-6 or abs(v[2]) < 1e-6
+
+
+def test_engine_methods_give_the_same_yield_function(system):
+    pytest.importorskip("retina.spin.engine")
+    fits = {m: YieldFunction.from_system(system, 50.0, degree=6, method=m) for m in ("separable", "hilbert", "liouville")}
+    # Independent methods: the separable, eigen and Liouville-space methods solve the same problem
+    # by different algebra; their fits must agree to rounding (1e-10 allows for eigensolver noise).
+    for m in ("hilbert", "liouville"):
+        np.testing.assert_allclose(fits[m].coeffs, fits["separable"].coeffs, atol=1e-10)
+        assert fits[m].provenance["method"] == m
