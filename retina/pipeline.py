@@ -52,7 +52,7 @@ from retina.scenario import Scenario
 
 __all__ = [
     "Results", "stage_rng", "quick_scenario", "build_field", "build_eyes", "build_ordering",
-    "build_yield_function", "build_retina", "compute_patterns", "compute_scan", "compute_precision",
+    "build_yield_function", "build_retina", "build_sky", "compute_patterns", "compute_scan", "compute_precision",
     "compute_disorder", "compute_trials", "run", "save_results", "load_results", "make_figures",
     "key_numbers", "write_outputs", "RESULTS_FORMAT",
 ]
@@ -182,10 +182,22 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
                        seed=stage_rng(sc.seed, "molecules"), progress=progress)
 
 
+def build_sky(sc: Scenario):
+    """The sky model of ``[light]`` (:mod:`retina.signal.light`)."""
+    from retina.signal.light import HorizonSky, UniformSky
+
+    li = sc["light"]
+    if li["sky"] == "horizon":
+        return HorizonSky(horizon_deg=li["horizon_deg"], softness_deg=li["softness_deg"],
+                          ground_ratio=li["ground_ratio"])
+    return UniformSky()
+
+
 def _signal(sc: Scenario, model, fld, *, pitch: float | None = None, photons: float = 1.0):
     from retina.signal.noise import SignalModel
 
     return SignalModel(model, inclination_deg=fld.I_deg, declination_deg=fld.D_deg, photons=photons,
+                       sky=build_sky(sc),
                        pitch_deg=sc["pose"]["pitch_deg"] if pitch is None else pitch,
                        roll_deg=sc["pose"]["roll_deg"] if pitch is None else 0.0)
 
@@ -472,7 +484,10 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
             "seed": int(sc.seed), "quick": bool(quick),
             "yield_provenance": json.dumps(_jsonable(yf.provenance), sort_keys=True),
             "field": f"F = {fld.F_uT:.3f} uT, I = {fld.I_deg:.3f} deg, D = {fld.D_deg:.3f} deg ({fld.source})",
-            "ordering": _ordering_text(sc), "stages": ",".join(stages)}
+            "ordering": _ordering_text(sc), "stages": ",".join(stages),
+            "sky": (f"horizon (ground {sc['light']['ground_ratio']:g} of the sky, horizon "
+                    f"{sc['light']['horizon_deg']:g} deg, softness {sc['light']['softness_deg']:g} deg)"
+                    if sc["light"]["sky"] == "horizon" else "uniform")}
     res = Results(g, prov)
     res.scenario = sc  # the (possibly reduced) scenario actually run
     return res
@@ -580,7 +595,8 @@ def _params(res: Results) -> str:
     f = res.groups["field"]
     n = res.groups["receptors"]["eye_index"].size
     return (f"Field {f['F_uT']:.1f} uT, inclination {f['I_deg']:.1f} deg, declination {f['D_deg']:.1f} deg; "
-            f"ordering {p.get('ordering', '?')}; {n} receptors; seed {p.get('seed', '?')}")
+            f"ordering {p.get('ordering', '?')}; {p.get('sky', 'uniform')} sky; {n} receptors; "
+            f"seed {p.get('seed', '?')}")
 
 
 def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300,

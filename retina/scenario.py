@@ -37,7 +37,10 @@ Schema (section, key, type, default; units in the key name)
     ``central_width_deg`` (> 0, 20.0).  Default: a left and a right eye at azimuth -/+ 60 deg.
 ``[light]``
     ``photons`` (list of floats > 0, [100, 10000]): mean photon count per receptor per integration
-    window for each light level, ``names`` (list of str, ["dim", "bright"]), same length.
+    window for each light level, ``names`` (list of str, ["dim", "bright"]), same length;
+    ``sky`` ("uniform" | "horizon", "uniform"): a uniform sky, or a bright sky over darker ground
+    with ``ground_ratio`` (0..1, 0.2), ``horizon_deg`` (0.0) and ``softness_deg`` (5.0)
+    (:mod:`retina.signal.light`).
 ``[field]`` (either the three components or a location and date)
     ``intensity_uT`` (float 1..1000), ``inclination_deg`` (-90..90, positive down),
     ``declination_deg`` (-180..180, east of north); or ``latitude_deg``, ``longitude_deg``,
@@ -168,6 +171,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
     "light": {
         "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
         "names": Key("strs", ["dim", "bright"], check=_nonempty),
+        "sky": Key("choice", "uniform", choices=("uniform", "horizon")),
+        "ground_ratio": Key("float", 0.2, check=_rng(0.0, 1.0)),
+        "horizon_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
+        "softness_deg": Key("float", 5.0, check=_rng(0.0, 90.0)),
     },
     "field": {
         "intensity_uT": Key("float", None, check=_rng(1.0, 1000.0)),

@@ -239,3 +239,18 @@ def test_finite_molecules_are_seeded_and_approach_the_ensemble(synthetic):
     ens = _patterns(sc.replace(ordering={"mode": "ensemble"}))
     spread = np.abs(a["yields"] - ens["yields"]).max()
     assert 0 < spread < 0.05 * 0.03  # anisotropy of the synthetic function is about 0.03
+
+
+def test_sky_model_reaches_the_readout(synthetic):
+    # Derived: a horizon sky with ground_ratio = 1 has radiance 1 everywhere, i.e. the uniform sky; a
+    # dark ground removes photons from the lower visual field; with a known gain every receptor's term
+    # c_i (dPhi_i)^2 / Phi_i of the Fisher information shrinks with its catch c_i, so the sum drops.
+    base = {"readout": {"photons": [100.0], "decode_repeats": 1, "nuisance": "none"}}
+    infos = {}
+    for name, light in {"uniform": {"sky": "uniform"}, "flat": {"sky": "horizon", "ground_ratio": 1.0},
+                        "dark ground": {"sky": "horizon", "ground_ratio": 0.05}}.items():
+        sc = synthetic(light=light, **base)
+        yf = P.build_yield_function(sc)
+        infos[name] = P.compute_precision(sc, P.build_retina(sc, yf), P.build_field(sc))["info_per_photon_single"]
+    assert np.allclose(infos["flat"], infos["uniform"], rtol=1e-12)
+    assert np.all(infos["dark ground"] < infos["uniform"])
