@@ -267,7 +267,8 @@ def singlet_start_singlet_yield(system, field_uT, directions, *,
             h = h_hf[None] + np.einsum("nj,jab->nab", w, s_e)
             evals, vecs = np.linalg.eigh(h)
             # S in the eigenbasis: V^+ S V, (n, 3, d, d)
-            s_rot = np.einsum("nai,jab,nbk->njik", vecs.conj(), s_e, vecs, optimize=True)
+            s_rot = np.matmul(np.matmul(vecs.conj().transpose(0, 2, 1)[:, None], s_e[None]),
+                              vecs[:, None])
             rot.append((evals * scale, s_rot))
         (ea, sa), (eb, sb) = rot
         for i in range(stop - start):
