@@ -17,18 +17,26 @@ Rows
 
 The invented radical pair (two spin-1 nuclei on A; one spin-1 and three spin-1/2 nuclei on B,
 random anisotropic hyperfine tensors of about 0.5 mT, lifetime 1 us, 50 uT) is for timing only.
+BLAS runs on one thread (set before numpy loads).
 Exit 0 even when a target is missed (the miss is printed); ``--check`` exits 1 on a miss.
 """
 
 from __future__ import annotations
 
-import argparse
-import importlib.util
-import sys
-import time
-from pathlib import Path
+import os
 
-import numpy as np
+# BLAS threads pinned to one before numpy loads, as in bench_spin_exact.py (imported below, too
+# late to set them itself): threaded BLAS on a shared, loaded machine turns timings into noise.
+for _v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_NUM_THREADS"):
+    os.environ.setdefault(_v, "1")
+
+import argparse  # noqa: E402
+import importlib.util  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+import numpy as np  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 
