@@ -21,10 +21,12 @@ EXIT_OK, EXIT_FAILED, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 _EPILOG = """\
 examples:
+  retina demo
+      the whole job on the bundled invented scenario, into ./retina-demo
   retina yields assets/example_pair.toml -o pair.h5
       the yield function of the example pair at 50 uT, degree 16
   retina yields my_pair.toml -o my_pair.h5 --field-uT 47 --degree 24 --method liouville
-  retina yields --help
+  retina COMMAND --help
       everything about one command
 
 exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
