@@ -676,9 +676,6 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
                                  f"{len(t['scan_offsets_deg'])} poses per trial",
                                  path=folder / "trial_histograms", formats=formats, dpi=dpi)
         add(fig, "trial_histograms")
-    import matplotlib.pyplot as plt
-
-    plt.close("all")
     return entries
 
 

@@ -183,3 +183,17 @@ def test_pdf_metadata_and_errors(tmp_path):
         F.precision_curves([1.0, 10.0], {"a": [1.0, 2.0, 3.0]})
     with pytest.raises(InputError, match="modulation of shape"):
         F.modulation_fields(np.ones((5, 3)), np.zeros(5, int), np.zeros((2, 4)), [0, 1], np.ones((2, 3)))
+
+
+def test_figures_never_load_pyplot_or_a_gui_toolkit(tmp_path):
+    # common practice, no source: building Figure objects directly keeps the core free of GUI backends.
+    import subprocess
+    import sys
+
+    code = ("import sys, numpy as np; from retina import figures as F; "
+            "F.precision_curves([1.0, 10.0], {'a': [3.0, 1.0]}, path=sys.argv[1], formats=('png',), dpi=50); "
+            "bad = [m for m in sys.modules if m == 'matplotlib.pyplot' or m.startswith(('PyQt', 'PySide', 'tkinter'))]; "
+            "print(bad); sys.exit(1 if bad else 0)")
+    r = subprocess.run([sys.executable, "-c", code, str(tmp_path / "p")], capture_output=True, text=True)
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert (tmp_path / "p.png").is_file()

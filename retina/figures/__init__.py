@@ -3,8 +3,8 @@
 Every builder takes plain arrays or small objects, returns a ``matplotlib.figure.Figure`` and, when
 ``path`` is given, also writes it with :func:`save_figure` (``path`` is a stem: ``out/yield`` gives
 ``out/yield.png`` and ``out/yield.svg``).  :func:`scan_animation` is the exception: it writes a GIF
-and returns its path.  Matplotlib runs on the Agg backend; nothing here opens a
-window.
+and returns its path.  Figures are plain ``matplotlib.figure.Figure`` objects drawn by the Agg
+renderer; pyplot is never imported, so no window opens and no GUI toolkit (Qt) loads.
 
 Conventions (owned here)
 ------------------------
@@ -24,15 +24,11 @@ Conventions (owned here)
 
 from __future__ import annotations
 
-import matplotlib
-
-matplotlib.use("Agg", force=False)
-
-from retina.figures._base import DOUBLE_IN, SINGLE_IN, save_figure  # noqa: E402
-from retina.figures.curves import disorder_tolerance, precision_curves  # noqa: E402
-from retina.figures.sphere_maps import yield_sphere  # noqa: E402
-from retina.figures.trials import trial_histograms  # noqa: E402
-from retina.figures.visual_fields import modulation_fields, scan_animation, scan_filmstrip  # noqa: E402
+from retina.figures._base import DOUBLE_IN, SINGLE_IN, save_figure
+from retina.figures.curves import disorder_tolerance, precision_curves
+from retina.figures.sphere_maps import yield_sphere
+from retina.figures.trials import trial_histograms
+from retina.figures.visual_fields import modulation_fields, scan_animation, scan_filmstrip
 
 __all__ = [
     "SINGLE_IN",

@@ -6,13 +6,10 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 import matplotlib
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg", force=False)
-import matplotlib.pyplot as plt  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-
-from retina.errors import InputError  # noqa: E402
-from retina.io.atomic import atomic_path  # noqa: E402
+from retina.errors import InputError
+from retina.io.atomic import atomic_path
 
 SINGLE_IN = 3.5
 DOUBLE_IN = 7.2
@@ -35,15 +32,19 @@ _FORMATS = ("png", "svg", "pdf")
 
 
 def new_figure(width_in: float, height_in: float) -> Figure:
-    """A figure with the package style, not registered with pyplot (no window, no global state)."""
-    with plt.rc_context(STYLE):
+    """A figure with the package style, not registered with pyplot (no window, no global state).
+
+    Figures are built as ``matplotlib.figure.Figure`` objects and saved through the Agg renderer;
+    pyplot is never imported, so no GUI backend (and no Qt) is ever loaded.
+    """
+    with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(width_in, height_in), dpi=100)
     return fig
 
 
 def style():
     """Context manager applying :data:`STYLE` while artists are created."""
-    return plt.rc_context(STYLE)
+    return matplotlib.rc_context(STYLE)
 
 
 def annotate(fig: Figure, title: str, caption: str) -> Figure:

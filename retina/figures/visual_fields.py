@@ -148,7 +148,8 @@ def modulation_fields(visual_dirs, eye_index, modulation, headings_deg: Sequence
         cax = fig.add_subplot(gs[nrows, :])
         cb = fig.colorbar(art, cax=cax, orientation="horizontal")
         cb.set_label("relative modulation (Phi - mean) / mean, %")
-    caption = ("Relative modulation of the receptor yields (%, colour scale symmetric about zero) over the "
+    caption = ("Relative modulation of the receptor yields (%, each eye relative to its own mean yield; colour "
+               "scale symmetric about zero) over the "
                "visual fields of both eyes (Mollweide, head frame: azimuth right of the beak, elevation up; "
                "grid every 30 deg in elevation, 60 deg in azimuth), for headings "
                + ", ".join(f"{x:g}" for x in headings) + " deg from magnetic north. "
