@@ -120,7 +120,7 @@ class YieldFunction:
         Largest absolute fit error (yield units), see the module docstring.
     """
 
-    __slots__ = ("_coeffs", "_degree", "provenance", "fit_error", "from_cache")
+    __slots__ = ("_coeffs", "_degree", "provenance", "fit_error", "from_cache", "_anisotropy")
 
     def __init__(self, coeffs, degree: int, provenance: dict | None = None, fit_error: float | None = None):
         c = np.array(coeffs, dtype=float).reshape(-1)
@@ -135,6 +135,7 @@ class YieldFunction:
         self.provenance = dict(provenance or {})
         self.fit_error = None if fit_error is None else float(fit_error)
         self.from_cache = False  # set by from_system when the result came from the cache
+        self._anisotropy: Anisotropy | None = None  # memo of anisotropy() with the default search
 
     # ------------------------------------------------------------------ basic properties
 
@@ -207,6 +208,8 @@ class YieldFunction:
         ``max(2000, 30 (L + 1)^2)``) gives candidates, refined by L-BFGS-B on the sphere
         (tangent-plane coordinates around each candidate, analytic gradient).
         """
+        if n_search is None and self._anisotropy is not None:
+            return self._anisotropy
         L = self._degree
         if L == 0:
             m = self.mean
@@ -225,7 +228,12 @@ class YieldFunction:
         mx, mn = best["max"][1], best["min"][1]
         mean = self.mean
         rel = (mx - mn) / mean if mean != 0 else float("inf")
-        return Anisotropy(mx, mn, mean, mx - mn, rel, best["max"][0], best["min"][0])
+        for axis, _ in best.values():
+            axis.flags.writeable = False  # the result is memoised: keep it immutable
+        result = Anisotropy(mx, mn, mean, mx - mn, rel, best["max"][0], best["min"][0])
+        if n_search is None:
+            self._anisotropy = result
+        return result
 
     def _refine(self, b0: np.ndarray, sign: float) -> tuple[np.ndarray, float]:
         """Minimise ``sign * Phi`` starting at ``b0`` in tangent coordinates ``b = norm(b0 + u1 e1 + u2 e2)``."""

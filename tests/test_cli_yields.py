@@ -205,3 +205,50 @@ def test_real_engine_scope_and_memory_refusals_are_exit_2(tmp_path, monkeypatch,
     err = capsys.readouterr().err
     assert "refused:" in err and "limit" in err and len(err.strip().splitlines()) == 1
     assert not (tmp_path / "o.h5").exists()
+
+
+SLOW_RUN = r"""
+import sys, time, types
+import numpy as np
+import retina.spin
+from collections import namedtuple
+
+Cost = namedtuple("Cost", "seconds bytes method note")
+mod = types.ModuleType("retina.spin.engine")
+mod.choose_method = lambda system: "hilbert"
+mod.estimate_cost = lambda system, n, method: Cost(60.0, 2**20, method, "slow fake")
+
+def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None):
+    print("COMPUTING", file=sys.stderr, flush=True)
+    time.sleep(60)
+    return np.ones(len(directions))
+
+mod.compute_yields = compute_yields
+sys.modules["retina.spin.engine"] = mod
+retina.spin.engine = mod
+from retina.cli import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def test_ctrl_c_in_a_subprocess_exits_130_without_a_file(tmp_path):
+    import signal
+
+    system = tmp_path / "tiny.toml"
+    system.write_text(TINY)
+    out = tmp_path / "never.h5"
+    env = dict(os.environ, RETINA_CACHE=str(tmp_path / "cache"))
+    proc = subprocess.Popen([sys.executable, "-c", SLOW_RUN, "yields", str(system), "-o", str(out)],
+                            stderr=subprocess.PIPE, stdout=subprocess.PIPE, text=True, env=env, cwd=tmp_path)
+    try:
+        for line in proc.stderr:  # wait until the computation has started
+            if "COMPUTING" in line:
+                break
+        proc.send_signal(signal.SIGINT)
+        _, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert proc.returncode == 130
+    assert "interrupted" in err and "Traceback" not in err
+    assert not out.exists() and not list(tmp_path.glob(".never.h5*"))
