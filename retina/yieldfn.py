@@ -444,6 +444,10 @@ def _check_field(field_uT) -> float:
 
 def _check_degree(degree) -> int:
     largest = (max(sphere.lebedev_orders()) // 2) // 2 * 2
-    if isinstance(degree, bool) or int(degree) != degree or degree < 2 or degree % 2 or degree > largest:
+    try:
+        whole = int(degree) == degree
+    except (TypeError, ValueError):
+        whole = False
+    if isinstance(degree, bool) or not whole or degree < 2 or degree % 2 or degree > largest:
         raise InputError(f"expected an even degree between 2 and {largest}, got {degree!r}", key="degree")
     return int(degree)

@@ -252,3 +252,9 @@ def test_ctrl_c_in_a_subprocess_exits_130_without_a_file(tmp_path):
     assert proc.returncode == 130
     assert "interrupted" in err and "Traceback" not in err
     assert not out.exists() and not list(tmp_path.glob(".never.h5*"))
+
+
+def test_output_that_is_a_folder_is_bad_input(tiny, tmp_path, monkeypatch, capsys):
+    FakeEngine().install(monkeypatch)
+    assert main(["yields", str(tiny), "-o", str(tmp_path), "--force"]) == 2
+    assert "is a folder" in capsys.readouterr().err

@@ -253,3 +253,14 @@ def test_array_file_errors_name_the_array(tmp_path):
     (tmp_path / "e.h5").write_text("x,y,z,value\n")
     with pytest.raises(InputError, match="extension says h5"):
         read_table(tmp_path / "e.h5")
+
+
+def test_csv_with_byte_order_mark_and_semicolons(tmp_path):
+    path = tmp_path / "bom.csv"
+    d = _dirs(40)
+    vals = 0.3 + 0.01 * d[:, 2] ** 2
+    path.write_bytes(("\ufeffx;y;z;value\n" + "\n".join(f"{x:.17g};{y:.17g};{z:.17g};{v:.17g}"
+                                                         for (x, y, z), v in zip(d, vals))).encode("utf-8"))
+    dirs, values, fmt = read_table(path)
+    assert fmt == "csv (cartesian)" and np.array_equal(values, vals)
+    np.testing.assert_allclose(dirs, d, atol=1e-15)

@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
@@ -132,6 +133,9 @@ def run(args) -> int:
             raise InputError(f"expected a positive number of gigabytes, got {args.max_memory_gb}",
                              key="--max-memory-gb")
         max_bytes = int(args.max_memory_gb * 2**30)
+    if Path(args.output).is_dir():
+        raise InputError("is a folder; expected the name of the HDF5 file to write", source=args.output,
+                         key="--output")
     check_writable(args.output, force=args.force)
 
     method = engine.choose_method(system) if args.method == "auto" else args.method

@@ -227,7 +227,7 @@ def read_table(path: str | Path, *, directions_key: str = "directions", values_k
         raise InputError(f"the extension says {suffix[1:]} but the content is not; known formats: CSV, NPZ, HDF5",
                          source=path)
     try:
-        text = path.read_bytes().decode("utf-8")
+        text = path.read_bytes().decode("utf-8-sig")  # a byte-order mark is dropped
     except UnicodeDecodeError:
         raise InputError("not a CSV text file, an NPZ archive or an HDF5 file", source=path) from None
     return _csv_table(path, text)
