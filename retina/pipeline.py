@@ -258,6 +258,7 @@ class _Model:
 
     def __init__(self, signal, degree: int, gain: str):
         self.signal = signal
+        self.degree = int(degree)
         self.gain = gain
         self.grid = np.arange(_GRID) * 360.0 / _GRID
         lam, dlam = signal.expected_and_derivative_fourier(self.grid, degree)
@@ -271,6 +272,13 @@ class _Model:
 
     def truth(self, photons: float):
         return dataclasses.replace(self.signal, photons=float(photons))
+
+    def expected(self, headings_deg, photons: float) -> np.ndarray:
+        """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
+        from ``2 L + 1`` headings (``SignalModel.expected_and_derivative_fourier``), far cheaper than
+        evaluating every receptor's harmonics at thousands of random headings."""
+        lam = self.truth(photons).expected_and_derivative_fourier(np.asarray(headings_deg, float), self.degree)[0]
+        return np.maximum(lam, 0.0)
 
     def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
         """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""
@@ -294,11 +302,10 @@ def _decode_errors(m: _Model, photons: float, n: int, rng, offsets=None) -> np.n
 
     true = rng.uniform(0.0, 360.0, n)
     dec = m.decoder(photons)
-    truth = m.truth(photons)
     if offsets is None:
-        est = dec.decode(sample_counts(truth.expected(true), rng))
+        est = dec.decode(sample_counts(m.expected(true, photons), rng))
     else:
-        lam = truth.expected((true[:, None] + offsets[None, :]).ravel()).reshape(n, offsets.size, -1)
+        lam = m.expected((true[:, None] + offsets[None, :]).ravel(), photons).reshape(n, offsets.size, -1)
         est = dec.decode_scan(sample_counts(lam / offsets.size, rng), offsets)
     return circular_difference(est.heading_deg, true)
 

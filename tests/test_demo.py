@@ -254,3 +254,15 @@ def test_sky_model_reaches_the_readout(synthetic):
         infos[name] = P.compute_precision(sc, P.build_retina(sc, yf), P.build_field(sc))["info_per_photon_single"]
     assert np.allclose(infos["flat"], infos["uniform"], rtol=1e-12)
     assert np.all(infos["dark ground"] < infos["uniform"])
+
+
+def test_interpolated_expected_counts_match_direct_evaluation(synthetic):
+    # Reference: SignalModel.expected evaluates every receptor's harmonics directly; the pipeline's
+    # truth model interpolates 2L + 1 headings exactly (a degree-L response is a degree-L trigonometric
+    # polynomial in the heading), so both agree to rounding.
+    sc = synthetic()
+    yf = P.build_yield_function(sc)
+    m = P._Model(P._signal(sc, P.build_retina(sc, yf), P.build_field(sc)), yf.degree, "free")
+    h = np.random.default_rng(2).uniform(0, 360, 40)
+    direct = m.truth(7.0).expected(h)
+    assert np.allclose(m.expected(h, 7.0), direct, rtol=1e-12, atol=1e-12 * direct.max())
