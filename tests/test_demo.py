@@ -9,7 +9,6 @@ import numpy as np
 import pytest
 from PIL import Image
 
-import retina.commands
 from retina import pipeline as P
 from retina import sphere
 from retina.cli import main
@@ -17,28 +16,14 @@ from retina.scenario import load_scenario, scenario_from_dict
 from retina.yieldfn import YieldFunction
 
 ASSETS = Path(__file__).resolve().parent.parent / "assets"
-MINE = ("demo", "patterns", "scan", "precision", "trials", "report")
 FIGURES = ("yield_sphere", "modulation_fields", "scan_filmstrip", "precision_curves", "disorder_tolerance",
            "trial_histograms")
-
-
-@pytest.fixture(autouse=True)
-def commands_listed(monkeypatch):
-    names = tuple(retina.commands.COMMANDS) + tuple(n for n in MINE if n not in retina.commands.COMMANDS)
-    monkeypatch.setattr(retina.commands, "COMMANDS", names)
 
 
 @pytest.fixture(scope="module")
 def demo_dir(tmp_path_factory):
     out = tmp_path_factory.mktemp("demo") / "retina-demo"
-    import retina.commands as rc
-
-    saved = rc.COMMANDS
-    rc.COMMANDS = tuple(saved) + tuple(n for n in MINE if n not in saved)
-    try:
-        assert main(["demo", "--quick", "-o", str(out), "-q"]) == 0
-    finally:
-        rc.COMMANDS = saved
+    assert main(["demo", "--quick", "-o", str(out), "-q"]) == 0
     return out
 
 
