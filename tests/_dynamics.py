@@ -294,7 +294,7 @@ def qutip_mesolve_yield(system, field_uT, direction, *, points_per_period=24, li
     for tol in (1.0, 100.0):
         res = qutip.mesolve(lv, q(initial_rho(system, ops)), tlist, e_ops=[q(px)],
                             options={"rtol": rtol * tol, "atol": atol * tol, "nsteps": 10**7,
-                                     "method": "adams", "progress_bar": False,
+                                     "method": "lsoda", "progress_bar": False,
                                      "normalize_output": False})
         f = kx * np.real(np.asarray(res.expect[0]))
         runs.append(_quadrature(f, h, kx / k_min * np.exp(-k_min * t_end)))
