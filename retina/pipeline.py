@@ -230,16 +230,20 @@ def compute_patterns(sc: Scenario, model, fld) -> dict:
 
 
 def compute_scan(sc: Scenario, model, fld) -> dict:
-    """The head scan: ``yaw_deg (F,)``, ``b_head (F, 3)``, ``yields``/``modulation (F, N)``."""
+    """The head scan: ``yaw_deg (F,)``, ``b_head (F, 3)``, ``yields``/``modulation (F, N)``,
+    ``depth (F,)`` and ``change_per_degree (F,)``, the rms over receptors of the relative yield
+    change per degree of head turn (:func:`retina.readout.scans.pattern_change_per_degree`)."""
     from retina.eye.pattern import modulation
     from retina.eye.pose import head_field, pose_rotation
+    from retina.readout.scans import pattern_change_per_degree
 
     yaw = _scan_yaws(sc)
     rot = pose_rotation(yaw, sc["scan"]["pitch_deg"], 0.0)
     b = head_field(rot, fld.vector)
     y = model.yields(b)
+    change = pattern_change_per_degree(_signal(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), yaw)
     return {"yaw_deg": yaw, "b_head": b, "yields": y, "modulation": modulation(y, model.receptors),
-            "depth": _depth(y)}
+            "depth": _depth(y), "change_per_degree": np.asarray(change, float)}
 
 
 def _per_photon_info(signal, degree: int, nuisance: str, headings) -> np.ndarray:
@@ -729,6 +733,15 @@ def key_numbers(res: Results) -> list:
                 for h, d in zip(p["headings_deg"], p["depth"])]
         rows.append(("largest |relative modulation|", f"{100 * np.abs(p['modulation']).max():.3f}", "%"))
         secs.append(Section("Modulation pattern", rows))
+    if "scan" in g:
+        s = g["scan"]
+        secs.append(Section("Head scan", [
+            ("poses", f"{s['yaw_deg'].size}", ""),
+            ("yaw range", f"{s['yaw_deg'].min():g} to {s['yaw_deg'].max():g}", "deg"),
+            ("pattern change per degree of head turn (rms over receptors, mean over the scan)",
+             f"{100 * np.mean(s['change_per_degree']):.3f}", "% per deg"),
+            ("modulation depth over the scan, min-max",
+             f"{100 * s['depth'].min():.2f}-{100 * s['depth'].max():.2f}", "%")]))
     if "precision" in g:
         q = g["precision"]
         rows = []
