@@ -132,7 +132,7 @@ def test_delta_g_closed_form():
     g_a, g_b = 2.0031, 2.0012
     system = _pair(k=k, g_a=g_a * np.eye(3), g_b=g_b * np.eye(3))
     field = 1000.0
-    dw = (g_a - g_b) * separable.MU_B_OVER_HBAR * field * 1e-6
+    dw = (g_a - g_b) * dyn.MU_B_OVER_HBAR * field * 1e-6
     dirs = _unit(np.random.default_rng(1), 4)
     np.testing.assert_allclose(separable.yields(system, field, dirs), 0.5 + 0.5 * _lor(k, dw),
                                rtol=0, atol=1e-13)
@@ -143,7 +143,7 @@ def test_one_nucleus_zero_field_closed_form():
     # C^B = delta/2, M = 2, so Phi_S = 1/4 + (3/8)(1 + K(a)) = 5/8 + (3/8) k^2/(k^2 + a^2).
     k = 2e6
     a_mT = 0.8
-    a = a_mT * 1e-3 * separable.GAMMA_E
+    a = a_mT * 1e-3 * dyn.GAMMA_E
     system = _pair([Nucleus("H", 0.5, a_mT * np.eye(3))], k=k)
     got = separable.yields(system, 0.0, np.array([[0.0, 0.0, 1.0]]))
     np.testing.assert_allclose(got, 5 / 8 + 3 / 8 * _lor(k, a), rtol=0, atol=1e-14)
@@ -179,11 +179,11 @@ def breit_rabi_singlet_yield(a, w, k):
 @pytest.mark.parametrize("a_mT, field_uT", [(0.5, 50.0), (-1.2, 300.0), (0.3, 3000.0)])
 def test_one_nucleus_breit_rabi_closed_form(a_mT, field_uT):
     k = 1e6
-    a = a_mT * 1e-3 * separable.GAMMA_E
-    w = separable.GAMMA_E * field_uT * 1e-6  # free-electron g on both radicals
+    a = a_mT * 1e-3 * dyn.GAMMA_E
+    w = dyn.GAMMA_E * field_uT * 1e-6  # free-electron g on both radicals
     system = _pair([Nucleus("H", 0.5, a_mT * np.eye(3))], k=k,
-                   g_a=separable.GAMMA_E / separable.MU_B_OVER_HBAR * np.eye(3),
-                   g_b=separable.GAMMA_E / separable.MU_B_OVER_HBAR * np.eye(3))
+                   g_a=dyn.GAMMA_E / dyn.MU_B_OVER_HBAR * np.eye(3),
+                   g_b=dyn.GAMMA_E / dyn.MU_B_OVER_HBAR * np.eye(3))
     dirs = _unit(np.random.default_rng(2), 3)
     want = breit_rabi_singlet_yield(a, w, k)
     np.testing.assert_allclose(separable.yields(system, field_uT, dirs), want, rtol=0, atol=1e-13)
@@ -281,3 +281,27 @@ def test_progress_reports_completion_and_directions_are_normalised():
     y = separable.yields(system, 50.0, 3.0 * dirs, progress=lambda d, t: calls.append((d, t)))
     assert calls and calls[-1] == (7, 7)
     np.testing.assert_allclose(y, separable.yields(system, 50.0, dirs), rtol=0, atol=1e-15)
+
+
+def test_small_batches_give_the_same_yields_and_report_each_batch():
+    # Derived: batching only splits the direction loop (common practice, no source).
+    system = _random_system(np.random.default_rng(14), [1.0], [0.5, 0.5])
+    dirs = _unit(np.random.default_rng(15), 9)
+    calls = []
+    per = separable.batch_bytes(system)
+    y = separable.yields(system, 50.0, dirs, max_bytes=2 * per, progress=lambda d, t: calls.append(d))
+    assert calls == [2, 4, 6, 8, 9]
+    np.testing.assert_allclose(y, separable.yields(system, 50.0, dirs), rtol=0, atol=1e-15)
+    assert separable.working_bytes(system, 9, max_bytes=2 * per) < separable.working_bytes(system, 9)
+
+
+def test_exchanging_the_radicals_leaves_the_yield_unchanged():
+    # Derived: P_S = 1/4 - S_A.S_B is symmetric in the two electrons, so relabelling A <-> B
+    # (which also swaps which radical the kernel loops over innermost) changes nothing.
+    rng = np.random.default_rng(16)
+    system = _random_system(rng, [1.0, 1.0], [0.5], g_aniso=2e-3)
+    swapped = SpinSystem("swapped", system.radicals[::-1], k_singlet=system.k_singlet,
+                         k_triplet=system.k_triplet)
+    dirs = _unit(rng, 4)
+    np.testing.assert_allclose(separable.yields(swapped, 50.0, dirs),
+                               separable.yields(system, 50.0, dirs), rtol=0, atol=1e-13)

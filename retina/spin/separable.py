@@ -46,7 +46,8 @@ opposite ``Omega``, so the imaginary parts cancel in pairs and only the real par
 The kernel is even in ``Omega``, so the ``m > n`` half of the A sum equals the ``m < n`` half and
 is folded onto it (a factor 2).  Cost per direction: two eigendecompositions of size ``d_A`` and
 ``d_B`` (never ``d_A d_B``) and ``~ d_A^2 d_B^2 / 2`` kernel terms in a numba loop, with no
-``(d_A d_B)^2`` matrix ever stored.
+``(d_A d_B)^2`` matrix ever stored.  The result is symmetric in A and B, so the code lets the
+larger radical run the kernel's inner (vectorised) loop.
 
 Other starts and yields (equal rates): the total yield is ``k int exp(-k t) Tr rho dt = 1``, so
 ``Phi_T = 1 - Phi_S``.  For a triplet start ``rho(0) = P_T / (3M) = (1 - P_S) / (3M)``,
@@ -68,22 +69,15 @@ from typing import Callable
 
 import numba
 import numpy as np
-import scipy.constants as sc
 
 from retina.errors import InputError
-from retina.spin.operators import spin_matrices
+from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR, spin_matrices
 
 __all__ = ["yields", "check_scope", "radical_operators", "singlet_start_singlet_yield",
-           "GAMMA_E", "MU_B_OVER_HBAR"]
+           "working_bytes", "batch_bytes", "DEFAULT_BATCH_BYTES"]
 
-#: Free-electron gyromagnetic ratio ``|g_e| mu_B / hbar`` in rad s^-1 T^-1 (CODATA via scipy).
-GAMMA_E = abs(sc.physical_constants["electron g factor"][0]) * \
-    sc.physical_constants["Bohr magneton"][0] / sc.hbar
-#: ``mu_B / hbar`` in rad s^-1 T^-1 (multiplies ``B . g . S``).
-MU_B_OVER_HBAR = sc.physical_constants["Bohr magneton"][0] / sc.hbar
-
-# Working-set budget (bytes) for one batch of rotated spin operators.
-_BATCH_BYTES = 64 * 2**20
+#: Default working-set budget (bytes) for one batch of directions.
+DEFAULT_BATCH_BYTES = 64 * 2**20
 
 
 def radical_operators(radical) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -227,8 +221,23 @@ def _check_inputs(field_uT, directions) -> np.ndarray:
     return dirs / norms[:, None]
 
 
+def batch_bytes(system) -> int:
+    """Working memory per direction in a batch, bytes (rotated operators and temporaries)."""
+    d2 = sum(r.dimension ** 2 for r in system.radicals)
+    return 16 * 15 * d2
+
+
+def working_bytes(system, n_directions: int, max_bytes: int | None = None) -> int:
+    """Peak working memory of :func:`yields` for ``n_directions`` directions, bytes."""
+    per = batch_bytes(system)
+    budget = DEFAULT_BATCH_BYTES if max_bytes is None else int(max_bytes)
+    batch = max(1, min(max(int(n_directions), 1), budget // per))
+    return batch * per + 16 * 5 * sum(r.dimension ** 2 for r in system.radicals)
+
+
 def singlet_start_singlet_yield(system, field_uT, directions, *,
-                                progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+                                progress: Callable[[int, int], None] | None = None,
+                                max_bytes: int | None = None) -> np.ndarray:
     """Singlet yield from a singlet start, ``Phi_S = 1/4 + sum |X|^2 K / (M_A M_B)``.
 
     Parameters
@@ -240,6 +249,9 @@ def singlet_start_singlet_yield(system, field_uT, directions, *,
     directions : array_like (N, 3)
         Field directions in the molecular frame (normalised here).
     progress : callable(done, total), optional
+    max_bytes : int, optional
+        Working-memory budget for one batch of directions (default 64 MiB); see
+        :func:`working_bytes`.
 
     Returns
     -------
@@ -251,11 +263,13 @@ def singlet_start_singlet_yield(system, field_uT, directions, *,
     n_dir = dirs.shape[0]
     b = dirs * (float(field_uT) * 1e-6)                           # (N, 3) tesla
     k = float(system.k_singlet)
-    ops = [radical_operators(r) for r in system.radicals]
+    # The formula is symmetric in A and B; the larger radical goes to the kernel's inner loop.
+    radicals = sorted(system.radicals, key=lambda r: r.dimension)
+    ops = [radical_operators(r) for r in radicals]
     m_ab = system.radicals[0].nuclear_dimension * system.radicals[1].nuclear_dimension
-    d_a, d_b = ops[0][1].shape[0], ops[1][1].shape[0]
-    per_dir = 16 * 3 * (d_a * d_a + d_b * d_b) * 4 + 16 * (d_a * d_a + d_b * d_b) * 3
-    batch = max(1, min(n_dir, _BATCH_BYTES // max(per_dir, 1)))
+    d_b = ops[1][1].shape[0]
+    budget = DEFAULT_BATCH_BYTES if max_bytes is None else int(max_bytes)
+    batch = max(1, min(n_dir, budget // batch_bytes(system)))
     out = np.empty(n_dir)
     # Frequencies are scaled by 1/k inside the kernel (dimensionless Omega / k) for conditioning.
     scale = 1.0 / k
@@ -283,7 +297,8 @@ def singlet_start_singlet_yield(system, field_uT, directions, *,
 
 
 def yields(system, field_uT, directions, *,
-           progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+           progress: Callable[[int, int], None] | None = None,
+           max_bytes: int | None = None) -> np.ndarray:
     """The system's reported yield for each field direction, by the separable-radicals method.
 
     Parameters
@@ -298,6 +313,8 @@ def yields(system, field_uT, directions, *,
         Unit field directions in the molecular frame.
     progress : callable(done, total), optional
         Called after each batch of directions.
+    max_bytes : int, optional
+        Working-memory budget for one batch of directions (default 64 MiB).
 
     Returns
     -------
@@ -309,7 +326,8 @@ def yields(system, field_uT, directions, *,
     InputError
         System outside the method's scope, or malformed ``field_uT`` / ``directions``.
     """
-    phi_ss = singlet_start_singlet_yield(system, field_uT, directions, progress=progress)
+    phi_ss = singlet_start_singlet_yield(system, field_uT, directions, progress=progress,
+                                         max_bytes=max_bytes)
     if system.initial_state == "singlet":
         phi_s = phi_ss
     elif system.initial_state == "triplet":
