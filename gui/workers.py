@@ -1,0 +1,385 @@
+"""Heavy work off the GUI thread: one worker, newest request only.
+
+Conventions (owned here)
+------------------------
+- The GUI thread builds a small frozen :class:`PatternRequest` (:meth:`gui.state.ViewerState.request`)
+  and hands it to :meth:`LatestOnlyWorker.submit`.  One worker thread computes; while it is busy,
+  a newer request replaces the pending one, so only the newest pending request is ever computed
+  (the replaced ones are counted in :attr:`LatestOnlyWorker.dropped`).  A request still computing
+  a yield function is cancelled (:class:`retina.errors.Cancelled` from its progress callback) when
+  a newer request needs a different yield function.
+- :class:`PatternComputer` does the work with the core: the yield function of the scenario
+  (recomputed at the requested field intensity when the scenario computes it from a spin system and
+  does not fix ``yield.field_uT``; otherwise the scenario's own yield function at its own field
+  strength, noted in :attr:`PatternResult.yield_note`), the receptors (once per scenario), the
+  :class:`retina.eye.pattern.RetinaModel` (rebuilt only when the yield function or ``kappa``
+  changes), the pattern, and the readout numbers.
+- Readout numbers: modulation depth ``(max - min) / mean`` of the receptor yields over both eyes
+  (the convention of :mod:`retina.pipeline`); the Cramer-Rao bound on heading at the current pose
+  and light level, ``1 / sqrt(I(psi))`` with ``I`` from :func:`retina.readout.fisher.heading_information`
+  (the scenario's ``readout.nuisance``); and the bound on the rms heading error over uniformly
+  distributed true headings at the same pitch, roll and light, ``sqrt(mean_h 1 / I(h))`` over 360
+  one-degree headings (the pipeline's precision-curve convention).  Degrees.
+- Results reach the GUI thread through a Qt signal (:class:`QtPatternWorker`); Qt queues a signal
+  emitted on the worker thread to the receiver's thread.  ``synchronous=True`` computes inside
+  :meth:`~LatestOnlyWorker.submit` on the caller's thread (for tests and scripts).
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+import time
+from collections import OrderedDict
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+
+from retina.errors import Cancelled, InputError
+
+__all__ = ["PatternRequest", "PatternResult", "PatternComputer", "LatestOnlyWorker",
+           "QtPatternWorker", "HAVE_QT"]
+
+
+@dataclass(frozen=True)
+class PatternRequest:
+    """What to compute: a scenario and the user's settings (units as :mod:`gui.state`)."""
+
+    serial: int
+    scenario: Any
+    yaw_deg: float = 0.0
+    pitch_deg: float = 0.0
+    roll_deg: float = 0.0
+    intensity_uT: float = 50.0
+    inclination_deg: float = 60.0
+    declination_deg: float = 0.0
+    photons: float = 300.0
+    kappa: float | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class PatternResult:
+    """What the worker computed for one request.
+
+    Attributes
+    ----------
+    request : PatternRequest
+    pattern : retina.eye.pattern.Pattern
+        Yields and modulation at every receptor, shape (N,) each.
+    depth : float
+        Modulation depth (dimensionless; module docstring).
+    bound_deg : float
+        Cramer-Rao bound on heading at this pose and light, degrees (inf without information).
+    rms_bound_deg : float
+        Bound on the rms heading error over all headings, degrees.
+    yield_field_uT : float
+        Field strength at which the yield function was computed, microtesla.
+    yield_note : str
+        How the yield function was obtained.
+    seconds : float
+        Wall time of the computation, seconds.
+    """
+
+    request: PatternRequest
+    pattern: Any
+    depth: float
+    bound_deg: float
+    rms_bound_deg: float
+    yield_field_uT: float
+    yield_note: str
+    seconds: float
+
+
+def _same_yield_key(sc, intensity_uT: float):
+    """The cache key of the yield function a request needs."""
+    kind, _ = sc.yield_source
+    if kind == "system" and sc["yield"]["field_uT"] is None:
+        return ("system", round(float(intensity_uT), 3))
+    return ("fixed",)
+
+
+class PatternComputer:
+    """Computes :class:`PatternResult` objects with the core (module docstring).
+
+    Parameters
+    ----------
+    max_yield_functions : int
+        How many yield functions (one per field intensity) to keep for the current scenario.
+    """
+
+    def __init__(self, max_yield_functions: int = 8):
+        self.max_yield_functions = int(max_yield_functions)
+        self._scenario = None
+        self._yfs: OrderedDict = OrderedDict()
+        self._receptors = None
+        self._model = self._model_yf = self._model_kappa = None
+        self._curve_key = None
+        self._curve = None
+        self.model_builds = 0  # diagnostics: how often a RetinaModel was built
+        self.yield_builds = 0
+
+    def _reset(self, sc):
+        from retina import pipeline
+
+        self._scenario = sc
+        self._yfs.clear()
+        from retina.eye.geometry import build_receptors
+
+        self._receptors = build_receptors(pipeline.build_eyes(sc))
+        self._model = self._model_yf = self._model_kappa = None
+        self._curve_key = self._curve = None
+
+    def yield_function(self, sc, intensity_uT: float, *, progress=None):
+        """The yield function a request for ``sc`` at ``intensity_uT`` needs, and a note."""
+        from retina import pipeline
+
+        if sc is not self._scenario:
+            self._reset(sc)
+        key = _same_yield_key(sc, intensity_uT)
+        if key in self._yfs:
+            self._yfs.move_to_end(key)
+            return self._yfs[key]
+        kind, path = sc.yield_source
+        if key[0] == "system":
+            yf = pipeline.build_yield_function(sc.replace(**{"yield": {"field_uT": key[1]}}),
+                                               progress=progress)
+            entry = (yf, key[1], f"computed from {path.name} at {key[1]:g} uT")
+        else:
+            yf = pipeline.build_yield_function(sc, progress=progress)
+            if kind == "system":
+                F = float(sc["yield"]["field_uT"])
+                note = f"computed from {path.name} at the scenario's yield.field_uT = {F:g} uT"
+            else:
+                F = float(yf.provenance.get("field_uT", float("nan"))) if isinstance(
+                    getattr(yf, "provenance", None), dict) else float("nan")
+                note = f"read from {path.name}; the intensity slider does not change it"
+            entry = (yf, F, note)
+        self.yield_builds += 1
+        self._yfs[key] = entry
+        while len(self._yfs) > self.max_yield_functions:
+            self._yfs.popitem(last=False)
+        return entry
+
+    def model(self, sc, yf, kappa):
+        """The retina model for a yield function and ``kappa`` (rebuilt only when they change)."""
+        from retina import pipeline
+
+        if self._model is None or self._model_yf is not yf or self._model_kappa != kappa:
+            self._model = pipeline.build_retina(sc, yf, self._receptors, kappa=kappa)
+            self._model_yf, self._model_kappa = yf, kappa
+            self._curve_key = self._curve = None
+            self.model_builds += 1
+        return self._model
+
+    def compute(self, req: PatternRequest, *, cancel: Callable[[], bool] | None = None) -> PatternResult:
+        """Compute one request.  ``cancel()`` is polled while a yield function is computed; when
+        it returns True the computation raises :class:`retina.errors.Cancelled`."""
+        from retina.eye.field import Field
+        from retina.eye.pose import Pose
+        from retina.readout.fisher import cramer_rao_deg, heading_information
+        from retina.signal.noise import SignalModel
+
+        if req.scenario is None:
+            raise InputError("no scenario loaded; open one with File > Open scenario", key="scenario")
+        t0 = time.perf_counter()
+
+        def progress(done, total):
+            if cancel is not None and cancel():
+                raise Cancelled("a newer request needs another yield function")
+
+        sc = req.scenario
+        yf, F_yield, note = self.yield_function(sc, req.intensity_uT, progress=progress)
+        model = self.model(sc, yf, req.kappa)
+        fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
+        pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
+        y = pat.yields
+        depth = float((y.max() - y.min()) / y.mean())
+        nuisance = sc["readout"]["nuisance"]
+        sig = SignalModel(model, inclination_deg=req.inclination_deg,
+                          declination_deg=req.declination_deg, photons=1.0,
+                          pitch_deg=req.pitch_deg, roll_deg=req.roll_deg)
+        # information is linear in the light level (retina.readout.fisher): per photon, then scale
+        info1 = float(heading_information(sig, [req.yaw_deg], nuisance=nuisance).per_photon[0])
+        ckey = (req.inclination_deg, req.declination_deg, req.pitch_deg, req.roll_deg)
+        if self._curve_key != ckey:
+            self._curve = heading_information(sig, np.arange(360.0), nuisance=nuisance,
+                                              degree=model.degree).per_photon
+            self._curve_key = ckey
+        bound = float(cramer_rao_deg(req.photons * info1))
+        crb = cramer_rao_deg(req.photons * self._curve)
+        rms = float(np.sqrt(np.mean(crb ** 2)))
+        return PatternResult(request=req, pattern=pat, depth=depth, bound_deg=bound,
+                             rms_bound_deg=rms, yield_field_uT=F_yield, yield_note=note,
+                             seconds=time.perf_counter() - t0)
+
+    def needs_new_yield(self, a: PatternRequest, b: PatternRequest) -> bool:
+        """True when request ``b`` needs another yield function than ``a``."""
+        return a.scenario is not b.scenario or \
+            _same_yield_key(a.scenario, a.intensity_uT) != _same_yield_key(b.scenario, b.intensity_uT)
+
+
+class LatestOnlyWorker:
+    """One background thread that computes only the newest pending request.
+
+    Parameters
+    ----------
+    compute : callable(request, cancel) -> result
+        The work; ``cancel()`` tells it a newer request wants something else (see
+        :meth:`PatternComputer.compute`).
+    deliver : callable(result)
+        Called with each result, on the worker thread (or the caller's with ``synchronous``).
+    on_error : callable(request, exception), optional
+        Called instead of ``deliver`` when ``compute`` raises (default: re-raise in synchronous
+        mode, ignore in threaded mode).
+    synchronous : bool
+        Compute inside :meth:`submit` on the caller's thread.
+    supersedes : callable(running, newer) -> bool, optional
+        Whether a newer request cancels the running one (default: never).
+    """
+
+    def __init__(self, compute, deliver, *, on_error=None, synchronous: bool = False,
+                 supersedes=None, name: str = "retina-viewer-worker"):
+        self._compute = compute
+        self._deliver = deliver
+        self._on_error = on_error
+        self._supersedes = supersedes
+        self.synchronous = bool(synchronous)
+        self._cond = threading.Condition()
+        self._pending = None
+        self._running = None
+        self._closed = False
+        self.computed: list = []   # serials of the requests computed, in order
+        self.dropped = 0           # requests replaced before they were computed
+        self.cancelled = 0         # requests abandoned while computing
+        self._thread = None
+        if not self.synchronous:
+            self._thread = threading.Thread(target=self._loop, name=name, daemon=True)
+            self._thread.start()
+
+    @property
+    def thread(self) -> threading.Thread | None:
+        return self._thread
+
+    def submit(self, request) -> None:
+        """Queue ``request``, replacing any older pending one."""
+        if self._closed:
+            raise InputError("the worker is closed", key="worker")
+        if self.synchronous:
+            self._run_one(request)
+            return
+        with self._cond:
+            if self._pending is not None:
+                self.dropped += 1
+            self._pending = request
+            self._cond.notify_all()
+
+    def _cancel_check(self, running):
+        def cancel():
+            p = self._pending
+            return self._closed or (p is not None and self._supersedes is not None
+                                    and self._supersedes(running, p))
+        return cancel
+
+    def _run_one(self, req):
+        self._running = req
+        try:
+            try:
+                res = self._compute(req, self._cancel_check(req))
+            except Cancelled:
+                self.cancelled += 1
+                return
+            except Exception as exc:  # noqa: BLE001 - reported to the GUI, never kills the thread
+                if self._on_error is not None:
+                    self._on_error(req, exc)
+                elif self.synchronous:
+                    raise
+                return
+            self.computed.append(getattr(req, "serial", None))
+            if not self._closed:
+                self._deliver(res)
+        finally:
+            self._running = None
+
+    def _loop(self):
+        while True:
+            with self._cond:
+                while self._pending is None and not self._closed:
+                    self._cond.wait()
+                if self._closed:
+                    return
+                req, self._pending = self._pending, None
+                self._running = req
+            self._run_one(req)
+            with self._cond:
+                self._cond.notify_all()
+
+    def idle(self) -> bool:
+        """Nothing pending and nothing running."""
+        return self._pending is None and self._running is None
+
+    def wait_idle(self, timeout: float = 30.0) -> bool:
+        """Block until :meth:`idle` (threaded mode) or ``timeout`` seconds; return :meth:`idle`."""
+        end = time.monotonic() + timeout
+        with self._cond:
+            while not self.idle():
+                left = end - time.monotonic()
+                if left <= 0:
+                    break
+                self._cond.wait(min(left, 0.05))
+        return self.idle()
+
+    def close(self, timeout: float = 30.0) -> None:
+        """Stop the thread (a running computation finishes or is cancelled first) and join it."""
+        with self._cond:
+            self._closed = True
+            self._pending = None
+            self._cond.notify_all()
+        if self._thread is not None:
+            self._thread.join(timeout)
+
+
+try:  # the Qt signal bridge exists only where PyQt6 is installed
+    from PyQt6.QtCore import QObject, pyqtSignal
+
+    HAVE_QT = True
+except ImportError:  # pragma: no cover - depends on the installation
+    HAVE_QT = False
+
+
+if HAVE_QT:
+    class QtPatternWorker(QObject):
+        """A :class:`LatestOnlyWorker` around a :class:`PatternComputer` whose results arrive as
+        Qt signals (queued to the GUI thread).
+
+        Signals
+        -------
+        finished(PatternResult)
+        failed(PatternRequest, str)
+            A one-line message (an :class:`~retina.errors.InputError` or an unexpected error).
+        """
+
+        finished = pyqtSignal(object)
+        failed = pyqtSignal(object, str)
+
+        def __init__(self, *, synchronous: bool = False, computer: PatternComputer | None = None,
+                     parent=None):
+            super().__init__(parent)
+            self.computer = computer or PatternComputer()
+            self.worker = LatestOnlyWorker(lambda r, c: self.computer.compute(r, cancel=c),
+                                           self.finished.emit, on_error=self._error,
+                                           synchronous=synchronous,
+                                           supersedes=self.computer.needs_new_yield)
+
+        def _error(self, req, exc):
+            kind = "" if isinstance(exc, InputError) else f"{type(exc).__name__}: "
+            text = " ".join(str(exc).split())
+            self.failed.emit(req, f"{kind}{text}")
+
+        def submit(self, request) -> None:
+            self.worker.submit(request)
+
+        def close(self) -> None:
+            self.worker.close()
+else:  # pragma: no cover
+    QtPatternWorker = None
