@@ -24,7 +24,9 @@ Schema (section, key, type, default; units in the key name)
     cone of molecular z axes about the receptor axis; no order),
     ``kappa`` (float > 0, 20.0): concentration of the cone (used by "cone"),
     ``orientation_deg`` (3 floats, [0, 0, 0]): z-y-z Euler angles of the mean molecular frame in
-    the receptor frame,
+    the receptor frame; with "cone" the molecule is first placed in this orientation and the placed
+    molecule is then tipped in the von Mises-Fisher cone about the receptor axis (a wobble of the
+    receptor's membrane axis, ``Q = Q_cone Q_orientation``),
     ``mode`` ("ensemble" | "molecules", "ensemble"): annealed average or a finite sample,
     ``n_molecules`` (int >= 1, 1000): molecules per receptor in "molecules" mode,
     ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the cone concentrations of the

@@ -37,6 +37,10 @@ def atomic_path(path: str | Path, *, force: bool = False) -> Iterator[Path]:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     os.close(fd)
     tmp = Path(tmp)
+    # mkstemp creates the file 0600; give it the permissions a plain open() would (0666 & ~umask)
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
     try:
         yield tmp
         os.replace(tmp, path)
