@@ -7,7 +7,7 @@ Conventions (owned here)
   rotation).  Head-frame points (millimetres, :mod:`retina.eye.geometry`) are drawn at
   ``diag(1, -1, -1) R p_head`` with ``R`` the pose rotation (:mod:`retina.eye.pose`).
 - The field is drawn as an axis through the head centre with its arrow head at ``+B``; the world
-  axes (north, east, down) start from the point of a ground grid 12 mm below the head.
+  axes (north, east, down) start from the point of a ground grid 16 mm below the head.
 - The map shows head-frame visual directions: azimuth from the beak (degrees, positive to the
   bird's right) across, elevation (degrees, positive up) upward, 2-degree pixels.  Each pixel takes
   the value of the receptor whose visual direction is nearest (:func:`retina.eye.pattern.resample`);
@@ -202,11 +202,11 @@ class HeadView(_Subscriber):
         self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
         self.view = self.canvas.central_widget.add_view()
         self.view.camera = scene.TurntableCamera(fov=30.0, elevation=20.0, azimuth=-55.0,
-                                                 distance=90.0, center=(0.0, 0.0, -2.0))
+                                                 distance=82.0, center=(0.0, 0.0, -4.0))
         root = self.view.scene
         # world: ground grid, axes, labels
         g = np.arange(-20.0, 20.1, 5.0)
-        z0 = -12.0
+        z0 = -16.0
         seg = []
         for a in g:
             seg += [(a, g[0], z0), (a, g[-1], z0), (g[0], a, z0), (g[-1], a, z0)]
@@ -228,10 +228,10 @@ class HeadView(_Subscriber):
         # head node: everything in the head frame, one transform
         self.head = scene.Node(parent=root)
         self.head.transform = MatrixTransform()
-        self.markers = scene.visuals.Markers(parent=self.head)
+        self.markers = scene.visuals.Markers(scaling="scene", parent=self.head)
         self.markers.set_gl_state("translucent", depth_test=True)
         sv, sf = _ellipsoid((-3.5, 0.0, -0.5), (8.0, 5.6, 5.6))
-        self.skull = scene.visuals.Mesh(sv, sf, color=(0.85, 0.75, 0.6, 0.16), shading=None,
+        self.skull = scene.visuals.Mesh(sv, sf, color=(0.75, 0.66, 0.52, 0.13), shading=None,
                                         parent=self.head)
         self.skull.set_gl_state("translucent", depth_test=False)
         self.skull.order = -5  # drawn first, so the receptors show through it
@@ -257,10 +257,10 @@ class HeadView(_Subscriber):
 
     def _update_field(self):
         b = DISPLAY_FROM_NED @ _field_direction(self.state)
-        L = 15.0
+        L = 13.0
         verts, faces = _arrow_mesh(-L * b, 2 * L * b, 0.2, 2.2, 0.8)
         self.field_mesh.set_data(vertices=verts, faces=faces, color=(0.95, 0.45, 0.9, 1.0))
-        self.field_label.pos = (L + 2.5) * b
+        self.field_label.pos = (L + 2.0) * b + np.array([0.0, 0.0, 1.5])
         self.canvas.update()
 
     def _clear(self):
@@ -277,9 +277,11 @@ class HeadView(_Subscriber):
         _, rgba, _, shown = colour_values(res, self.state.display, self.state.eye)
         self.face_colors = rgba
         self._receptors = rec
-        size = np.where(shown, 7.0, 4.0)
+        # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
+        spacing = np.sqrt(np.mean(rec.solid_angle)) * np.mean([e.radius_mm for e in rec.eyes])
+        size = np.where(shown, 1.2 * spacing, 0.7 * spacing)
         self.markers.set_data(np.asarray(rec.positions, np.float32), face_color=rgba,
-                              edge_width=0.0, size=size)
+                              edge_color=rgba, edge_width=0.0, size=size)
         self.canvas.update()
 
     def render(self) -> np.ndarray:
@@ -338,7 +340,8 @@ class MapView(_Subscriber):
         self.beak = scene.visuals.Markers(parent=root)
         self.beak.set_data(np.array([[0.0, 0.0]], np.float32), symbol="triangle_up", size=14,
                            face_color=(0.95, 0.75, 0.25, 1), edge_color="k", edge_width=1)
-        scene.visuals.Text("beak", pos=(0, -9), color=(0.95, 0.75, 0.25, 1), font_size=8, parent=root)
+        scene.visuals.Text("beak", pos=(18, 0), color=(0.95, 0.75, 0.25, 1), font_size=9, bold=True,
+                           parent=root)
         self.field_marks = scene.visuals.Markers(parent=root)
         self.field_text = scene.visuals.Text(color=(0.95, 0.45, 0.9, 1.0), font_size=10, bold=True,
                                              parent=root)

@@ -168,7 +168,7 @@ class MainWindow(QMainWindow):
 
     def reset_camera(self) -> None:
         cam = self.head_view.view.camera
-        cam.elevation, cam.azimuth, cam.distance = 20.0, -55.0, 90.0
+        cam.elevation, cam.azimuth, cam.distance = 20.0, -55.0, 82.0
         self.map_view.view.camera.set_range(x=(-214.0, 186.0), y=(-134.0, 104.0), margin=0.0)
 
     # ---------------------------------------------------------------- state -> worker
