@@ -59,8 +59,8 @@ and ``Phi_T(triplet start) = 1 - Phi_S(triplet start)``.
 
 References: the factorisation of the singlet probability through each radical's own spin
 correlation functions is given for the exponential model by C. R. Timmel, U. Till, B. Brocklehurst,
-K. A. McLauchlan and P. J. Hore, Mol. Phys. 95, 71 (1998); the regrouping into
-``|<mp|S_A.S_B|nq>|^2`` above is derived here.
+K. A. McLauchlan and P. J. Hore, Mol. Phys. 95, 71 (1998) (volume and page from memory); the
+regrouping into ``|<mp|S_A.S_B|nq>|^2`` above is derived here.
 """
 
 from __future__ import annotations
