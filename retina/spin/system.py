@@ -37,7 +37,7 @@ from typing import Literal
 import numpy as np
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Nucleus:
     """One magnetic nucleus: label, spin quantum number I (1/2, 1, 3/2, ...) and hyperfine tensor.
 
@@ -59,7 +59,7 @@ class Nucleus:
         return bool(np.allclose(a, np.eye(3) * np.trace(a) / 3.0, atol=1e-14, rtol=0.0))
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Radical:
     """One radical: label, g (isotropic value or a (3, 3) tensor) and its nuclei."""
 
@@ -95,9 +95,12 @@ class Relaxation:
         return bool(self.random_field[0] or self.random_field[1] or self.st_dephasing)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class SpinSystem:
     """A validated radical pair.  Build it with :func:`retina.spin.io.load_system` or directly.
+
+    ``==`` is identity (the tensors are arrays); compare physics with
+    :func:`retina.spin.io.systems_equal`.
 
     Attributes
     ----------
