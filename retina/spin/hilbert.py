@@ -11,8 +11,12 @@ A triplet start ``rho0 = (1 - P_S) / (3 M)`` gives ``Phi_S = (Tr P_S - M Phi_SS)
 
 Only the singlet components of the eigenvectors are needed: with ``P_S = |S><S| x 1_nuclear``,
 ``<m|P_S|n> = sum_nu conj(u_{nu m}) u_{nu n}`` where ``u_{nu m} = <S, nu|m>`` is an (M, d) block.
-So the work per direction is one ``eigh`` of the (d, d) Hamiltonian, an (d, M) x (M, d) product
-and a Lorentzian-weighted sum over d^2 pairs (a numba kernel).
+So the work per direction is one Hermitian eigenproblem of the (d, d) Hamiltonian, an
+(d, M) x (M, d) product (BLAS zherk, half of it) and a Lorentzian-weighted sum over d^2 / 2 pairs
+(a numba kernel).  For d >= 48 the eigenvectors are never formed: after the Householder
+tridiagonalisation ``H = Q T Q^+`` only the M singlet rows of ``Q`` are accumulated and multiplied by
+the real eigenvectors of ``T`` (see ``_singlet_rows_tridiagonal``), which skips LAPACK's (d, d)
+back-transformation, the largest part of a full ``eigh`` after the reduction itself.
 """
 
 from __future__ import annotations
@@ -21,6 +25,7 @@ import numpy as np
 
 from retina.errors import InputError
 from retina.spin import operators as ops
+import scipy.linalg.lapack as _lapack
 from scipy.linalg.blas import zherk as _zherk
 
 __all__ = ["yields", "check_scope", "chunk_size"]
@@ -123,7 +128,52 @@ def singlet_block(vectors, space) -> np.ndarray:
     return (vectors[:, i_ud, :] - vectors[:, i_du, :]) * np.sqrt(0.5)
 
 
-def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None) -> np.ndarray:
+#: From this Hilbert dimension on, the tridiagonal path (below) is used; smaller pairs go through
+#: batched ``numpy.linalg.eigh``, whose per-call overhead is lower.
+TRIDIAGONAL_FROM = 48
+
+
+def _selector(space) -> np.ndarray:
+    """(M, d) rows ``<S, nu|`` of the singlet basis vectors (entries +-1/sqrt 2)."""
+    i_ud, i_du = space.singlet_indices()
+    m = space.nuclear_dimension
+    sel = np.zeros((m, space.dimension), dtype=complex)
+    sel[np.arange(m), i_ud] = np.sqrt(0.5)
+    sel[np.arange(m), i_du] = -np.sqrt(0.5)
+    return sel
+
+
+def _singlet_rows_tridiagonal(h, sel, lwork_trd, lwork_mqr):
+    """Eigenvalues and singlet rows of the eigenvectors of one Hermitian matrix, without the
+    full eigenvector back-transformation.
+
+    ``H = Q T Q^+`` (LAPACK zhetrd, T real symmetric tridiagonal) and ``T = Z diag(w) Z^T``
+    (LAPACK dstevd, real), so the eigenvectors are ``Q Z`` and their singlet rows are
+    ``(sel Q) Z``: the Householder reflectors are applied to the M rows of ``sel`` only (zunmqr on
+    an (M, d - 1) block) instead of to the whole (d, d) matrix.
+
+    ``h`` is passed through its Fortran view ``h.T`` (= conj(H) for Hermitian H), which has the same
+    eigenvalues and conjugated eigenvectors; only ``|<m|P_S|n>|^2`` is used, so this is harmless.
+    ``h`` is overwritten.
+    """
+    d = h.shape[0]
+    c, diag, off, tau, info = _lapack.zhetrd(h.T, lower=1, lwork=lwork_trd, overwrite_a=1)
+    if info != 0:  # pragma: no cover - LAPACK failure
+        raise RuntimeError(f"zhetrd failed (info={info})")
+    w, z, info = _lapack.dstevd(diag, off, compute_v=1)
+    if info != 0:  # pragma: no cover
+        raise RuntimeError(f"dstevd failed (info={info})")
+    rq = np.empty_like(sel)
+    rq[:, 0] = sel[:, 0]
+    tail, _, info = _lapack.zunmqr("R", "N", c[1:, : d - 1], tau, np.asfortranarray(sel[:, 1:]), lwork_mqr)
+    if info != 0:  # pragma: no cover
+        raise RuntimeError(f"zunmqr failed (info={info})")
+    rq[:, 1:] = tail
+    u = (rq.real @ z) + 1j * (rq.imag @ z)
+    return w, u
+
+
+def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None, path="auto") -> np.ndarray:
     """``Phi_SS``: singlet yield from a singlet start for equal rates ``k`` (s^-1).
 
     Parameters
@@ -133,6 +183,10 @@ def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None) -> np.n
         Field vectors, tesla, molecular frame.
     k : float
         Common recombination rate, s^-1.
+    path : {"auto", "eigh", "tridiagonal"}
+        ``"eigh"``: batched ``numpy.linalg.eigh`` and the singlet rows of its eigenvectors;
+        ``"tridiagonal"``: see :func:`_singlet_rows_tridiagonal`; ``"auto"`` picks by dimension
+        (:data:`TRIDIAGONAL_FROM`).  Both give the same numbers to rounding (tested).
 
     Returns
     -------
@@ -146,20 +200,34 @@ def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None) -> np.n
     out = np.empty(n)
     step = chunk_size(d, max_bytes)
     hb = parts.hb.reshape(3, d * d)
+    if path == "auto":
+        path = "tridiagonal" if d >= TRIDIAGONAL_FROM else "eigh"
+    if path not in ("eigh", "tridiagonal"):
+        raise InputError(f"expected path 'auto', 'eigh' or 'tridiagonal', got {path!r}", key="path")
+    if path == "tridiagonal":
+        sel = _selector(space)
+        lwork_trd = max(1, int(_lapack.zhetrd_lwork(d, lower=1)[0].real))
+        lwork_mqr = max(1, 64 * m)
+    kernel = _lorentz_sum if _HAVE_NUMBA else _lorentz_sum_numpy
     for start in range(0, n, step):
         stop = min(n, start + step)
         h = (b_tesla[start:stop].astype(complex) @ hb).reshape(-1, d, d)
         h += parts.h0
-        w, v = np.linalg.eigh(h)
-        del h
-        w /= k  # frequencies in units of k: the kernel then works with numbers of order one
+        if path == "eigh":
+            w, v = np.linalg.eigh(h)
+            del h
         for p in range(stop - start):
-            vr = v[p].reshape(2, ma, 2, mb, d)
-            u = (vr[0, :, 1] - vr[1, :, 0]).reshape(m, d)  # sqrt(2) <S, nu | m>
-            # zherk on the Fortran view u.T gives conj(u^H u) / 2 = conj(<m|P_S|n>) (upper triangle);
+            if path == "eigh":
+                vr = v[p].reshape(2, ma, 2, mb, d)
+                u = (vr[0, :, 1] - vr[1, :, 0]).reshape(m, d) * np.sqrt(0.5)  # <S, nu | m>
+                wp = w[p]
+            else:
+                wp, u = _singlet_rows_tridiagonal(h[p], sel, lwork_trd, lwork_mqr)
+            # zherk on the Fortran view u.T gives conj(u^H u) = conj(<m|P_S|n>) (upper triangle);
             # only |.|^2 is used, so the conjugate does not matter.
-            q = _zherk(0.5, u.T, trans=0)
-            out[start + p] = (_lorentz_sum(q, w[p], 1.0) if _HAVE_NUMBA else _lorentz_sum_numpy(q, w[p], 1.0)) / m
+            q = _zherk(1.0, u.T, trans=0)
+            # frequencies in units of k: the kernel then works with numbers of order one
+            out[start + p] = kernel(q, wp / k, 1.0) / m
         if progress is not None:
             progress(stop, n)
     return out
