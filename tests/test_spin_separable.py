@@ -257,6 +257,7 @@ def test_isotropic_system_has_no_direction_dependence():
     (dict(dipolar_mT=np.diag([1.0, 1.0, -2.0]) * 0.1), "dipolar"),
     (dict(k_singlet=1e6, k_triplet=2e6), "equal recombination rates"),
     (dict(relaxation=Relaxation(random_field=(1e5, 0.0))), "relaxation"),
+    (dict(k_singlet=0.0, k_triplet=0.0), "positive finite recombination rate"),
 ])
 def test_out_of_scope_systems_are_refused(kw, match):
     base = dict(k_singlet=1e6, k_triplet=1e6)
