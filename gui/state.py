@@ -221,7 +221,7 @@ class ViewerState:
         self._scenario = scenario
         self._result = None
         self.events.emit("scenario", scenario, old)
-        self.update(yaw_deg=p["headings_deg"][0], pitch_deg=max(-90.0, min(90.0, p["pitch_deg"])),
+        self.update(yaw_deg=p["headings_deg"][0], pitch_deg=p["pitch_deg"],
                     roll_deg=p["roll_deg"], intensity_uT=fld.F_uT, inclination_deg=fld.I_deg,
                     declination_deg=((fld.D_deg + 180.0) % 360.0) - 180.0,
                     photons=max(scenario["light"]["photons"]), kappa=None)

@@ -18,7 +18,7 @@ __all__ = ["register", "add_arguments", "run", "main", "MISSING_EXTRA", "NO_DISP
 
 MISSING_EXTRA = "the viewer needs the viewer extra: pip install 'retina-compass[viewer]'"
 NO_DISPLAY = ("the viewer needs a display: none found (DISPLAY and WAYLAND_DISPLAY are unset); "
-              "run it under xvfb-run, or set QT_QPA_PLATFORM=offscreen together with --screenshot")
+              "on a machine without a screen run it under xvfb-run")
 
 _EXAMPLES = """\
 examples:
