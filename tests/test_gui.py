@@ -423,6 +423,13 @@ def test_the_core_stays_free_of_qt_when_the_command_module_is_imported():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "[]"
+    # the state model is plain Python too (gui/state.py docstring)
+    code = ("import sys, gui.state\n"
+            "gui.state.ViewerState().yaw_deg = 10\n"
+            "print(sorted(m for m in sys.modules if m.split('.')[0] in ('PyQt6', 'vispy')))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, cwd=ROOT)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "[]"
 
 
 # ------------------------------------------------------------------------------------------------
@@ -445,6 +452,12 @@ def test_head_view_places_the_beak_by_the_pose_convention(qapp, file_scenario):
         st.update(yaw_deg=yaw, pitch_deg=pitch, roll_deg=roll)
         p = v.head.transform.map(np.array([head_vec], float))[0]
         np.testing.assert_allclose(p[:3] / p[3], display_vec, atol=1e-12)
+    # Derived: inclination 66 deg, declination 0: B points north and down, display (cos 66, 0,
+    # -sin 66); the label sits beyond the arrow head (1.5 mm raised for legibility).
+    st.update(inclination_deg=66.0, declination_deg=0.0)
+    lab = np.asarray(v.field_label.pos, float).ravel()[:3] - np.array([0.0, 0.0, 1.5])
+    i = math.radians(66.0)
+    np.testing.assert_allclose(lab / np.linalg.norm(lab), [math.cos(i), 0.0, -math.sin(i)], atol=1e-6)
     v.close()
     assert st.events.n_subscribers("yaw_deg") == 0
     v.canvas.close()
