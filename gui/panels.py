@@ -277,7 +277,9 @@ class ReadoutPanel(QGroupBox):
         self.labels["light"].setText(f"{res.request.photons:.4g} photons"
                                      + (", gain unknown" if nuis == "gain" else ""))
         self.labels["bhead"].setText(f"{az:.1f} deg, {el:.1f} deg")
-        self.labels["yield"].setText(f"at {res.yield_field_uT:g} uT (hover: source)")
+        F = res.yield_field_uT
+        self.labels["yield"].setText((f"at {F:g} uT" if np.isfinite(F) else "field not recorded")
+                                     + " (hover: source)")
         self.labels["yield"].setToolTip(res.yield_note)
         self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms")
 

@@ -149,10 +149,13 @@ class PatternComputer:
             yf = pipeline.build_yield_function(sc, progress=progress)
             if kind == "system":
                 F = float(sc["yield"]["field_uT"])
-                note = f"computed from {path.name} at the scenario's yield.field_uT = {F:g} uT"
+                note = (f"computed from {path.name} at the scenario's yield.field_uT = {F:g} uT; "
+                        "the intensity slider does not change it")
             else:
-                F = float(yf.provenance.get("field_uT", float("nan"))) if isinstance(
-                    getattr(yf, "provenance", None), dict) else float("nan")
+                try:
+                    F = float((getattr(yf, "provenance", None) or {}).get("field_uT"))
+                except (TypeError, ValueError):
+                    F = float("nan")  # an imported table need not record its field
                 note = f"read from {path.name}; the intensity slider does not change it"
             entry = (yf, F, note)
         self.yield_builds += 1
