@@ -206,6 +206,16 @@ class ControlPanel(QWidget):
         self.state = state
         self.controls = {}
         lay = QVBoxLayout(self)
+        lay.setSpacing(4)
+        box = QGroupBox("Display")
+        row = QGridLayout(box)
+        self.controls["display"] = ChoiceBox(state, "display", DISPLAYS)
+        self.controls["eye"] = ChoiceBox(state, "eye", EYES)
+        row.addWidget(QLabel("colour by"), 0, 0)
+        row.addWidget(self.controls["display"], 0, 1)
+        row.addWidget(QLabel("eye"), 0, 2)
+        row.addWidget(self.controls["eye"], 0, 3)
+        lay.addWidget(box)
         groups = (("Head pose (arrow keys turn and tilt)", ("yaw_deg", "pitch_deg", "roll_deg")),
                   ("Geomagnetic field", ("intensity_uT", "inclination_deg", "declination_deg")),
                   ("Receptors and light", ("photons", "kappa")))
@@ -213,19 +223,13 @@ class ControlPanel(QWidget):
         for title, names in groups:
             box = QGroupBox(title)
             bl = QVBoxLayout(box)
+            bl.setSpacing(2)
             for n in names:
                 _, label, unit, span, dec, step, log = spec[n]
                 w = BoundSlider(state, n, label, unit, span, dec, step, log)
                 self.controls[n] = w
                 bl.addWidget(w)
             lay.addWidget(box)
-        box = QGroupBox("Display")
-        fl = QFormLayout(box)
-        self.controls["display"] = ChoiceBox(state, "display", DISPLAYS)
-        self.controls["eye"] = ChoiceBox(state, "eye", EYES)
-        fl.addRow("colour by", self.controls["display"])
-        fl.addRow("eye", self.controls["eye"])
-        lay.addWidget(box)
         lay.addStretch(1)
 
     def close_bindings(self) -> None:
