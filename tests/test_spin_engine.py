@@ -72,13 +72,16 @@ def test_resource_error_before_allocating():
     with pytest.raises(ResourceError, match=r"needs about .* GiB .*method='hilbert'.*use fewer nuclei"):
         engine.compute_yields(system, 50.0, dirs(5), max_bytes=1000)
     relaxed = dataclasses.replace(system, relaxation=Relaxation((1e5, 1e5), 0.0))
-    with pytest.raises(ResourceError, match="Liouvillian"):
+    with pytest.raises(ResourceError, match="GMRES"):
         engine.compute_yields(relaxed, 50.0, dirs(5), max_bytes=10_000)
+    one_rate = dataclasses.replace(relaxed, k_triplet=0.0)
+    with pytest.raises(ResourceError, match="LU factorisations"):
+        engine.compute_yields(one_rate, 50.0, dirs(5), max_bytes=10_000)
 
 
 def test_default_memory_limit_refuses_huge_liouville():
     # 10 spin-1/2 nuclei: d = 4096, the LU of the (d^2, d^2) Liouvillian would need ~ 0.75 d^4 entries.
-    huge = make(tuple([0.5] * 5), tuple([0.5] * 5), relax=Relaxation((1e5, 0.0), 0.0))
+    huge = make(tuple([0.5] * 5), tuple([0.5] * 5), relax=Relaxation((1e5, 0.0), 0.0), k_t=0.0)
     assert huge.dimension == 4096
     with pytest.raises(ResourceError, match="GiB"):
         engine.compute_yields(huge, 50.0, dirs(1))
@@ -108,7 +111,7 @@ def test_estimate_cost_fields_and_scaling():
 def test_sparse_memory_estimate_bounds_actual_factor():
     # Reference: scipy.sparse.linalg.splu of the actual Liouvillian; the estimate must cover the
     # stored factors (complex values + int32 indices, 20 bytes an entry).
-    system = make((0.5,), (0.5,), exchange=0.05, relax=Relaxation((1e5, 1e5), 1e4), k_t=2e5)
+    system = make((0.5,), (0.5,), exchange=0.05, relax=Relaxation((1e5, 1e5), 1e4), k_t=0.0)  # LU path
     l0, lb, _ = ops.liouvillian_parts(system)
     lu = spla.splu((l0 + 3e-5 * lb[0] + 4e-5 * lb[2]).tocsc())
     stored = 20 * (lu.L.nnz + lu.U.nnz)

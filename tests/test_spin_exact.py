@@ -422,14 +422,18 @@ def test_hilbert_vs_liouville_fixed():
             np.testing.assert_allclose(liouville.yields(s_, 47.0, dirs, solver="eig"), h, atol=1e-10)
 
 
-_spin = st.sampled_from([0.5, 1.0])
+# Nuclear configurations (radical A, radical B) with pair dimension <= 36, so that the sparse LU of
+# the (d^2, d^2) Liouvillian (fill-in ~ 0.7 d^4) stays small.
+_configs = st.sampled_from([((), ()), ((0.5,), ()), ((1.0,), ()), ((0.5,), (0.5,)), ((1.0,), (0.5,)),
+                            ((0.5, 0.5), (0.5,)), ((1.0,), (1.0,)), ((0.5, 1.0), ()), ((1.0, 1.0), ())])
 
 
 @settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(seed=st.integers(0, 2**31 - 1), spins_a=st.lists(_spin, max_size=2), spins_b=st.lists(_spin, max_size=1),
+@given(seed=st.integers(0, 2**31 - 1), config=_configs,
        exchange=st.floats(-0.5, 0.5), field=st.floats(0.0, 200.0), log_k=st.floats(4.5, 7.5),
        start=st.sampled_from(["singlet", "triplet"]))
-def test_hilbert_vs_liouville_random(seed, spins_a, spins_b, exchange, field, log_k, start):
+def test_hilbert_vs_liouville_random(seed, config, exchange, field, log_k, start):
+    spins_a, spins_b = config
     rng = np.random.default_rng(seed)
     k = 10.0**log_k
     system = random_system(rng, tuple(spins_a), tuple(spins_b), exchange=exchange, k_s=k, k_t=k, initial_state=start)
@@ -440,12 +444,12 @@ def test_hilbert_vs_liouville_random(seed, spins_a, spins_b, exchange, field, lo
 
 
 @settings(max_examples=10, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(seed=st.integers(0, 2**31 - 1), spins_a=st.lists(_spin, max_size=2), log_ks=st.floats(5.0, 7.0),
+@given(seed=st.integers(0, 2**31 - 1), config=_configs, log_ks=st.floats(5.0, 7.0),
        log_kt=st.floats(5.0, 7.0), start=st.sampled_from(["singlet", "triplet"]),
        rep=st.sampled_from(["singlet", "triplet"]))
-def test_liouville_solvers_agree_unequal_rates(seed, spins_a, log_ks, log_kt, start, rep):
+def test_liouville_solvers_agree_unequal_rates(seed, config, log_ks, log_kt, start, rep):
     rng = np.random.default_rng(seed)
-    system = random_system(rng, tuple(spins_a), (0.5,), k_s=10.0**log_ks, k_t=10.0**log_kt,
+    system = random_system(rng, config[0], config[1], k_s=10.0**log_ks, k_t=10.0**log_kt,
                            initial_state=start, reported_yield=rep)
     dirs = random_dirs(rng, 2)
     a = liouville.yields(system, 50.0, dirs, solver="sparse")
@@ -461,10 +465,10 @@ def test_liouville_vs_dense_qutip_solve(relax, start, rep):
     system = random_system(rng, (1.0,), (0.5,), k_s=3e6, k_t=7e5, relaxation=relax, initial_state=start,
                            reported_yield=rep)
     dirs = random_dirs(rng, 3)
-    got = liouville.yields(system, 50.0, dirs)
     # Reference: numpy.linalg.solve of the dense Liouvillian assembled with QuTiP (column stacking).
     ref = [dense_solve_yield(system, 50e-6 * d) for d in dirs]
-    np.testing.assert_allclose(got, ref, atol=1e-11)
+    for solver in ("sparse", "eig" if not relax.any else "krylov"):
+        np.testing.assert_allclose(liouville.yields(system, 50.0, dirs, solver=solver), ref, atol=1e-11)
 
 
 def test_liouville_vs_expm_time_stepping():
@@ -475,10 +479,11 @@ def test_liouville_vs_expm_time_stepping():
     t_end = 40.0 / kmin  # the remaining trace is then about e^-40 (checked below)
     ref, tail = expm_stepping_yield(system, 50e-6 * b_dir, dt=1.0 / 4e6, t_end=t_end)
     assert tail < 1e-12
-    got = liouville.yields(system, 50.0, b_dir[None, :], solver="sparse")[0]
     # Reference: scipy.linalg.expm stepping with exact per-step integrals (Van Loan block matrix);
     # error sources are rounding over 320 steps and the tail, both far below 1e-9.
-    assert got == pytest.approx(ref, abs=1e-9)
+    for solver in ("sparse", "krylov"):
+        got = liouville.yields(system, 50.0, b_dir[None, :], solver=solver)[0]
+        assert got == pytest.approx(ref, abs=1e-9)
 
 
 def test_hilbert_numpy_kernel_matches_numba_kernel():
@@ -517,6 +522,8 @@ def test_scope_errors():
         hilbert.yields(relaxed, 50.0, [[0, 0, 1]])
     with pytest.raises(InputError, match="solver"):
         liouville.yields(relaxed, 50.0, [[0, 0, 1]], solver="eig")
+    with pytest.raises(InputError, match="Krylov"):
+        liouville.yields(dataclasses.replace(relaxed, k_triplet=0.0), 50.0, [[0, 0, 1]], solver="krylov")
     with pytest.raises(InputError, match="both recombination rates are zero"):
         liouville.yields(dataclasses.replace(system, k_singlet=0.0, k_triplet=0.0), 50.0, [[0, 0, 1]])
     with pytest.raises(InputError, match="directions"):
@@ -525,6 +532,19 @@ def test_scope_errors():
         liouville.yields(system, 50.0, np.ones((3, 2)))
     with pytest.raises(InputError, match="field"):
         liouville.yields(system, -1.0, [[0, 0, 1]])
+
+
+@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(seed=st.integers(0, 2**31 - 1), log_kr=st.floats(4.0, 7.0), log_kd=st.floats(4.0, 7.0),
+       log_kt=st.floats(5.0, 7.0), rep=st.sampled_from(["singlet", "triplet"]))
+def test_krylov_matches_sparse_lu(seed, log_kr, log_kd, log_kt, rep):
+    rng = np.random.default_rng(seed)
+    relax = Relaxation((10.0**log_kr, 0.3 * 10.0**log_kr), 10.0**log_kd)
+    system = random_system(rng, (0.5,), (0.5,), k_t=10.0**log_kt, relaxation=relax, reported_yield=rep)
+    dirs = random_dirs(rng, 2)
+    # Reference: the sparse LU solve of the same Liouvillian (a direct method).
+    np.testing.assert_allclose(liouville.yields(system, 50.0, dirs, solver="krylov"),
+                               liouville.yields(system, 50.0, dirs, solver="sparse"), atol=1e-10)
 
 
 def test_singular_liouvillian_is_reported():

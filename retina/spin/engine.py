@@ -6,8 +6,9 @@ Methods (all exact for their scope):
   relaxation.  Cheapest: two radical-sized eigenproblems per direction.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
-  Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it
-  factorises the (d^2, d^2) Liouvillian, whose LU fill-in grows as about ``0.7 d^4`` entries.
+  Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it runs a
+  Sylvester-preconditioned GMRES (O(d^2) memory); only when a rate is zero does it factorise the
+  (d^2, d^2) Liouvillian, whose LU fill-in grows as about ``0.7 d^4`` entries.
 
 :func:`estimate_cost` uses a flop model whose one constant (seconds per ``d^3`` of a complex
 Hermitian ``eigh``) is measured once per process on a small matrix, so estimates follow the machine.
@@ -152,12 +153,20 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     # liouville
     from retina.spin.liouville import solver_for
 
-    if solver_for(system) == "eig":
+    solver = solver_for(system)
+    if solver == "eig":
         per = 12 * 16 * d * d
         batch = min(max(n, 1), max(1, chunk_size(d) // 2))
         seconds = n * 8.0 * _t_eigh(d)
         return Cost(seconds, int(base + batch * per), method,
                     f"{n} non-Hermitian eigendecompositions of size {d} (effective Hamiltonian)")
+    if solver == "krylov":
+        # one non-Hermitian eig + inverse, then ~30 GMRES steps of 4 dense (d, d) products each;
+        # 60 Krylov vectors of length d^2 are kept
+        per_dir = 8.0 * _t_eigh(d) + 30 * 4 * 0.3 * _t_eigh(d) + 2e-3
+        mem = base + 16 * d * d * (60 + 20)
+        return Cost(n * per_dir, int(mem), method,
+                    f"{n} Sylvester-preconditioned GMRES solves in a Liouville space of size {d * d}")
     dd = d * d
     fill = 0.75 * dd * dd  # measured LU fill-in of the Liouvillian, entries
     mem = 24 * fill + 20 * 40 * dd + base
@@ -209,8 +218,8 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     cost = estimate_cost(system, n, method)
     if cost.bytes > limit:
         hint = {
-            "liouville": "use fewer nuclei, drop relaxation (then the effective-Hamiltonian solver applies), "
-                         "or raise the memory limit",
+            "liouville": "use fewer nuclei, give both recombination rates > 0 (then no LU factorisation is "
+                         "needed), or raise the memory limit",
             "hilbert": "use fewer nuclei, fewer directions per batch, or raise the memory limit",
             "separable": "use fewer nuclei or raise the memory limit",
         }[method]
