@@ -16,6 +16,8 @@ Rows (every reference is measured in the same run, on the same machine)
    integration: ``scipy.linalg.expm(L dt)`` stepping with composite Simpson quadrature of
    ``Tr(P_S rho(t))``, ``dt`` halved until its error against the exact solve is <= 1e-6, run until the
    remaining trace is below 1e-9.  Only the final (accurate enough) brute-force run is timed.
+   Both are reported per direction (the method over 12 directions, its set-up included; the brute
+   force, whose cost does not depend on how many directions it runs, over 3).
    Target: >= 100x faster.
 
 The invented pairs (random anisotropic hyperfine tensors of about 0.5 mT, lifetime 1 us, 50 uT)
@@ -156,11 +158,13 @@ def bench_liouville_vs_expm(quick: bool) -> dict:
     from retina.spin.system import Relaxation
 
     system = invented_pair(1, 1, k_t=3e5, relaxation=Relaxation((1e5, 2e5), 5e4))  # dimension 16
-    n = 1 if quick else 3
-    dirs = _dirs(n, seed=5)
+    n_fast, n = (3, 1) if quick else (12, 3)  # directions for the method / for the brute force
+    dirs_fast = _dirs(n_fast, seed=5)
+    dirs = dirs_fast[:n]
     liouville.yields(system, 50.0, dirs[:1])  # warm-up
     solver = liouville.solver_for(system)
-    t_meth, exact = _best(lambda: liouville.yields(system, 50.0, dirs), 3)
+    t_fast, exact = _best(lambda: liouville.yields(system, 50.0, dirs_fast), 3)
+    t_meth = t_fast / n_fast * n  # the method's time for the n brute-force directions
     l0, lb, space = ops.liouvillian_parts(system)
     d = space.dimension
     rho0 = ops.initial_density(system, space).reshape(-1)
@@ -186,7 +190,8 @@ def bench_liouville_vs_expm(quick: bool) -> dict:
                 reference=f"{t_ref / n * 1e3:.1f} ms/dir", ratio=f"{ratio:.0f}x", target=">= 100x",
                 passed=ratio >= 100 and max(errs) <= 1e-6,
                 note=f"solver {solver!r}; relaxation + k_T != k_S; brute force error {max(errs):.1e} (<= 1e-6 required), "
-                     f"{max(steps_used)} steps; {n} directions")
+                     f"{max(steps_used)} steps; method over {n_fast} directions (set-up included), brute force "
+                     f"over {n}; times per direction")
 
 
 def rows(quick: bool = False) -> list[dict]:

@@ -183,6 +183,18 @@ def test_hamiltonian_against_qutip_rebuild():
     np.testing.assert_allclose(ops.singlet_projector(parts.space), ps.full(), atol=1e-14)
 
 
+def test_hamiltonian_sparse_assembly_against_qutip_rebuild():
+    rng = np.random.default_rng(RNG_SEED + 7)
+    system = random_system(rng, (0.5, 0.5, 0.5), (1.0,))  # d = 96: the sparse assembly path
+    assert system.dimension > ops.DENSE_ASSEMBLY_UP_TO
+    parts = ops.hamiltonian_parts(system)
+    b = random_dirs(rng, 1) * 50e-6
+    h0, hz, *_ = qutip_pair(system)
+    ref = (h0 + sum(b[0, k] * hz[k] for k in range(3))).full()
+    # Reference: qutip.tensor / qutip.jmat rebuild of the system.py Hamiltonian.
+    np.testing.assert_allclose(ops.hamiltonians(parts, b)[0], ref, atol=1e-9 * np.abs(ref).max())
+
+
 def test_singlet_projector_is_the_singlet_state():
     space = ops.pair_space(random_system(np.random.default_rng(1), (1.0,), ()))
     ps = ops.singlet_projector(space)

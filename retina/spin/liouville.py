@@ -51,6 +51,9 @@ from retina.spin.hilbert import chunk_size, validate_field
 
 __all__ = ["yields", "check_scope", "solver_for"]
 
+#: Up to this dimension the relaxation sandwiches of the Krylov solver use dense products.
+_DENSE_SANDWICH_UP_TO = 64
+
 #: Eigenvector condition estimate above which a direction falls back to the sparse solve.
 _COND_LIMIT = 1e7
 
@@ -216,7 +219,9 @@ def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) ->
         damp = damp + c * (a.conj().T @ a).toarray()
     scale = max(ks, kt)
     g0 = (parts.h0 - 0.5j * damp) / scale  # time in units of 1/scale
-    terms = [(c / scale, a, a.conj().T.tocsr()) for c, a in terms]
+    dense = d <= _DENSE_SANDWICH_UP_TO
+    terms = [(c / scale, a.toarray() if dense else a, a.conj().T.toarray() if dense else a.conj().T.tocsr())
+             for c, a in terms]
     rho0 = ops.initial_density(system, space)
     n = dirs.shape[0]
     out = np.empty(n)
@@ -234,7 +239,10 @@ def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) ->
         def sandwich(x):
             acc = np.zeros_like(x)
             for c, a, ah in terms:
-                acc += c * (a @ (ah.T @ x.T).T)  # A x A^+ with sparse A: (A^+)^T x^T = (x A^+)^T
+                if dense:
+                    acc += c * (a @ x @ ah)
+                else:  # A x A^+ with sparse A: (A^+)^T x^T = (x A^+)^T
+                    acc += c * (a @ (ah.T @ x.T).T)
             return acc
 
         def full(x):

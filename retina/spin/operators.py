@@ -23,6 +23,7 @@ Conventions (owned here; the Hamiltonian, reaction and relaxation terms themselv
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -184,9 +185,18 @@ def _vector_operators(position: int, space: PairSpace) -> list[sp.csr_matrix]:
     return [embed(m, position, space.dims) for m in spin_matrices(space.spins[position])]
 
 
+@functools.lru_cache(maxsize=16)
+def _electron_operators_cached(space: PairSpace):
+    return tuple(_vector_operators(space.electron_a, space)), tuple(_vector_operators(space.electron_b, space))
+
+
 def electron_operators(space: PairSpace) -> tuple[list[sp.csr_matrix], list[sp.csr_matrix]]:
-    """``([S_Ax, S_Ay, S_Az], [S_Bx, S_By, S_Bz])`` embedded in the pair space (sparse)."""
-    return _vector_operators(space.electron_a, space), _vector_operators(space.electron_b, space)
+    """``([S_Ax, S_Ay, S_Az], [S_Bx, S_By, S_Bz])`` embedded in the pair space (sparse CSR).
+
+    Cached per layout: treat the returned matrices as read-only.
+    """
+    a, b = _electron_operators_cached(space)
+    return list(a), list(b)
 
 
 def _bilinear(u, tensor, v) -> sp.csr_matrix:
@@ -220,6 +230,17 @@ class HamiltonianParts:
     space: PairSpace
 
 
+#: Up to this pair dimension :func:`hamiltonian_parts` assembles with dense numpy products
+#: (cheaper than sparse bookkeeping for small matrices); above it, with scipy.sparse.
+DENSE_ASSEMBLY_UP_TO = 64
+
+
+def _embed_dense(op, position: int, dims) -> np.ndarray:
+    left = int(np.prod(dims[:position])) if position > 0 else 1
+    right = int(np.prod(dims[position + 1 :])) if position + 1 < len(dims) else 1
+    return np.kron(np.kron(np.eye(left), op), np.eye(right))
+
+
 def hamiltonian_parts(system, *, sparse: bool = False):
     """Split the Hamiltonian of ``system`` into its field-independent part and Zeeman parts.
 
@@ -237,27 +258,48 @@ def hamiltonian_parts(system, *, sparse: bool = False):
     """
     space = pair_space(system)
     d = space.dimension
-    sa, sb = electron_operators(space)
-    h0 = sp.csr_matrix((d, d), dtype=complex)
-    hb = [sp.csr_matrix((d, d), dtype=complex) for _ in range(3)]
+    if d <= DENSE_ASSEMBLY_UP_TO:
+        def vec_ops(pos):
+            return [_embed_dense(m, pos, space.dims) for m in spin_matrices(space.spins[pos])]
+
+        zero = np.zeros((d, d), dtype=complex)
+        ident = np.eye(d, dtype=complex)
+    else:
+        def vec_ops(pos):
+            return _vector_operators(pos, space)
+
+        zero = sp.csr_matrix((d, d), dtype=complex)
+        ident = sp.identity(d, dtype=complex, format="csr")
+
+    def bilinear(u, tensor, v):
+        out = zero
+        for i in range(3):
+            for j in range(3):
+                if tensor[i, j] != 0.0:
+                    out = out + tensor[i, j] * (u[i] @ v[j])
+        return out
+
+    sa, sb = vec_ops(space.electron_a), vec_ops(space.electron_b)
+    h0 = zero
+    hb = [zero, zero, zero]
     offsets = (1, space.electron_b + 1)
     for r, (radical, s_e) in enumerate(zip(system.radicals, (sa, sb))):
         g = np.asarray(radical.g_matrix, dtype=float)
         for i in range(3):  # (mu_B / hbar) B . g . S = sum_i B_i sum_j g_ij S_j
             hb[i] = hb[i] + MU_B_OVER_HBAR * sum(g[i, j] * s_e[j] for j in range(3))
         for n_i, nucleus in enumerate(radical.nuclei):
-            s_n = _vector_operators(offsets[r] + n_i, space)
+            s_n = vec_ops(offsets[r] + n_i)
             a = np.asarray(nucleus.hyperfine_mT, dtype=float) * _MT
-            h0 = h0 + GAMMA_E * _bilinear(s_e, a, s_n)
+            h0 = h0 + GAMMA_E * bilinear(s_e, a, s_n)
     if system.exchange_mT:
         j = float(system.exchange_mT) * _MT
-        s1s2 = _bilinear(sa, np.eye(3), sb)
-        h0 = h0 - GAMMA_E * j * (2.0 * s1s2 + 0.5 * sp.identity(d, dtype=complex, format="csr"))
+        h0 = h0 - GAMMA_E * j * (2.0 * bilinear(sa, np.eye(3), sb) + 0.5 * ident)
     if system.dipolar_mT is not None:
-        h0 = h0 + GAMMA_E * _bilinear(sa, np.asarray(system.dipolar_mT, dtype=float) * _MT, sb)
+        h0 = h0 + GAMMA_E * bilinear(sa, np.asarray(system.dipolar_mT, dtype=float) * _MT, sb)
     if sparse:
-        return h0.tocsr(), [h.tocsr() for h in hb], space
-    return HamiltonianParts(h0=h0.toarray(), hb=np.stack([h.toarray() for h in hb]), space=space)
+        return sp.csr_matrix(h0), [sp.csr_matrix(h) for h in hb], space
+    dense = (lambda x: np.array(x, dtype=complex)) if d <= DENSE_ASSEMBLY_UP_TO else (lambda x: x.toarray())
+    return HamiltonianParts(h0=dense(h0), hb=np.stack([dense(h) for h in hb]), space=space)
 
 
 def hamiltonians(parts: HamiltonianParts, b_tesla) -> np.ndarray:
@@ -280,10 +322,18 @@ def hamiltonians(parts: HamiltonianParts, b_tesla) -> np.ndarray:
     return out
 
 
-def singlet_projector(space: PairSpace, *, sparse: bool = False):
-    """``P_S = 1/4 - S_A . S_B``, shape (d, d) (dense complex unless ``sparse``)."""
+@functools.lru_cache(maxsize=16)
+def _singlet_projector_cached(space: PairSpace) -> sp.csr_matrix:
     sa, sb = electron_operators(space)
-    p = (0.25 * sp.identity(space.dimension, dtype=complex, format="csr") - _bilinear(sa, np.eye(3), sb)).tocsr()
+    return (0.25 * sp.identity(space.dimension, dtype=complex, format="csr") - _bilinear(sa, np.eye(3), sb)).tocsr()
+
+
+def singlet_projector(space: PairSpace, *, sparse: bool = False):
+    """``P_S = 1/4 - S_A . S_B``, shape (d, d) (dense complex unless ``sparse``).
+
+    The sparse form is cached per layout: treat it as read-only (the dense form is a new array).
+    """
+    p = _singlet_projector_cached(space)
     return p if sparse else p.toarray()
 
 
