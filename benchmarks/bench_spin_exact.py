@@ -158,7 +158,7 @@ def bench_liouville_vs_expm(quick: bool) -> dict:
     from retina.spin.system import Relaxation
 
     system = invented_pair(1, 1, k_t=3e5, relaxation=Relaxation((1e5, 2e5), 5e4))  # dimension 16
-    n_fast, n = (3, 1) if quick else (12, 3)  # directions for the method / for the brute force
+    n_fast, n = (12, 1) if quick else (12, 3)  # directions for the method / for the brute force
     dirs_fast = _dirs(n_fast, seed=5)
     dirs = dirs_fast[:n]
     liouville.yields(system, 50.0, dirs[:1])  # warm-up
