@@ -31,7 +31,7 @@ Two solvers:
 
   The first part is a Sylvester operator, inverted exactly in O(d^3) with the eigenvectors of
   ``G'`` (as in ``"eig"``); it preconditions GMRES (``scipy.sparse.linalg.gmres``) on the whole
-  equation, whose remaining terms are sparse sandwiches.  Memory stays O(d^2) instead of the
+  equation (a small unrestarted GMRES written here), whose remaining terms are sandwiches.  Memory stays O(d^2) instead of the
   O(d^4) fill-in of the LU factors, and the residual of the full equation is checked at the end
   (a direction that fails to converge is redone with ``"sparse"``).
 
@@ -53,6 +53,9 @@ __all__ = ["yields", "check_scope", "solver_for"]
 
 #: Up to this dimension the relaxation sandwiches of the Krylov solver use dense products.
 _DENSE_SANDWICH_UP_TO = 64
+
+#: Krylov dimension of the GMRES in the relaxation solver (no restarts).
+_KRYLOV_MAXITER = 200
 
 #: Eigenvector condition estimate above which a direction falls back to the sparse solve.
 _COND_LIMIT = 1e7
@@ -186,6 +189,60 @@ def yields_eig(system, field_uT, directions, *, progress=None, max_bytes=None) -
     return out
 
 
+def _gmres(apply, b, x0, *, rtol, maxiter):
+    """Unrestarted GMRES for ``A x = b`` (complex vectors), classical Gram-Schmidt applied twice.
+
+    Returns ``(x, relative residual estimate)``.  Small and allocation-light: the Krylov solver's
+    operators are cheap for small pairs, where the bookkeeping of a general-purpose GMRES would
+    dominate.
+    """
+    r0 = b - apply(x0)
+    beta = np.linalg.norm(r0)
+    bnorm = np.linalg.norm(b) or 1.0
+    if beta <= rtol * bnorm:
+        return x0, beta / bnorm
+    n = b.size
+    basis = np.empty((maxiter + 1, n), dtype=complex)
+    hess = np.zeros((maxiter + 1, maxiter), dtype=complex)
+    basis[0] = r0 / beta
+    # Givens rotations keep the least-squares residual |g[j+1]| current
+    cs = np.zeros(maxiter, dtype=complex)
+    sn = np.zeros(maxiter, dtype=complex)
+    g = np.zeros(maxiter + 1, dtype=complex)
+    g[0] = beta
+    j = -1
+    for j in range(maxiter):
+        w = apply(basis[j])
+        vj = basis[: j + 1]
+        h = vj.conj() @ w
+        w = w - h @ vj
+        h2 = vj.conj() @ w
+        w = w - h2 @ vj
+        h = h + h2
+        hn = np.linalg.norm(w)
+        col = np.empty(j + 2, dtype=complex)
+        col[: j + 1] = h
+        col[j + 1] = hn
+        for i in range(j):  # apply the earlier rotations
+            t = cs[i] * col[i] + sn[i] * col[i + 1]
+            col[i + 1] = -np.conj(sn[i]) * col[i] + np.conj(cs[i]) * col[i + 1]
+            col[i] = t
+        a, c = col[j], col[j + 1]
+        rr = np.hypot(abs(a), abs(c))
+        cs[j], sn[j] = (1.0, 0.0) if rr == 0 else (np.conj(a) / rr, np.conj(c) / rr)
+        col[j] = rr
+        col[j + 1] = 0.0
+        g[j + 1] = -np.conj(sn[j]) * g[j]
+        g[j] = cs[j] * g[j]
+        hess[: j + 2, j] = col
+        if abs(g[j + 1]) <= rtol * bnorm or hn == 0.0:
+            break
+        basis[j + 1] = w / hn
+    k = j + 1
+    y = np.linalg.solve(np.triu(hess[:k, :k]), g[:k]) if k else np.zeros(0)
+    return x0 + y @ basis[:k], abs(g[k]) / bnorm
+
+
 def _lindblad_terms(system, space):
     """``[(rate, A_j)]`` of the relaxation (sparse CSR A_j), as in retina.spin.operators."""
     terms = []
@@ -220,8 +277,10 @@ def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) ->
     scale = max(ks, kt)
     g0 = (parts.h0 - 0.5j * damp) / scale  # time in units of 1/scale
     dense = d <= _DENSE_SANDWICH_UP_TO
-    terms = [(c / scale, a.toarray() if dense else a, a.conj().T.toarray() if dense else a.conj().T.tocsr())
-             for c, a in terms]
+    if dense:  # stacks (J, d, d) of c_j A_j and A_j^+: two batched products per sandwich
+        a_stack = np.stack([c / scale * a.toarray() for c, a in terms])
+        ah_stack = np.stack([a.conj().T.toarray() for c, a in terms])
+    terms = [(c / scale, a, a.conj().T.tocsr()) for c, a in terms]
     rho0 = ops.initial_density(system, space)
     n = dirs.shape[0]
     out = np.empty(n)
@@ -237,21 +296,23 @@ def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) ->
             return v @ ((w @ y @ wh) / denom) @ vh
 
         def sandwich(x):
+            if dense:
+                return np.matmul(a_stack @ x, ah_stack).sum(axis=0)
             acc = np.zeros_like(x)
-            for c, a, ah in terms:
-                if dense:
-                    acc += c * (a @ x @ ah)
-                else:  # A x A^+ with sparse A: (A^+)^T x^T = (x A^+)^T
-                    acc += c * (a @ (ah.T @ x.T).T)
+            for c, a, ah in terms:  # A x A^+ with sparse A: (A^+)^T x^T = (x A^+)^T
+                acc += c * (a @ (ah.T @ x.T).T)
             return acc
 
         def full(x):
             return -1j * (g @ x - x @ g.conj().T) + sandwich(x)
 
-        op = spla.LinearOperator((d * d, d * d), dtype=complex,
-                                 matvec=lambda xv: (xv.reshape(d, d) + sylv_inv(sandwich(xv.reshape(d, d)))).reshape(-1))
+        def op(xv):
+            x_ = xv.reshape(d, d)
+            return (x_ + sylv_inv(sandwich(x_))).reshape(-1)
+
         rhs = sylv_inv(-rho0).reshape(-1)
-        xv, info = spla.gmres(op, rhs, x0=rhs.copy(), rtol=rtol, atol=0.0, restart=60, maxiter=40)
+        xv, est = _gmres(op, rhs, rhs.copy(), rtol=rtol, maxiter=_KRYLOV_MAXITER)
+        info = 0 if est <= 1e-10 else 1
         x = xv.reshape(d, d)
         resid = np.linalg.norm(full(x) + rho0) / np.linalg.norm(rho0)
         if info != 0 or not np.isfinite(resid) or resid > 1e-9:
