@@ -559,6 +559,15 @@ def test_krylov_matches_sparse_lu(seed, log_kr, log_kd, log_kt, rep):
                                liouville.yields(system, 50.0, dirs, solver="sparse"), atol=1e-10)
 
 
+def test_directions_are_normalised():
+    # common practice, no source: a direction is a direction; its length must not act as a field scale.
+    rng = np.random.default_rng(47)
+    system = random_system(rng, (0.5,), (0.5,))
+    d = random_dirs(rng, 3)
+    np.testing.assert_allclose(hilbert.yields(system, 50.0, 3.7 * d), hilbert.yields(system, 50.0, d), atol=1e-14)
+    np.testing.assert_allclose(liouville.yields(system, 50.0, 0.2 * d), liouville.yields(system, 50.0, d), atol=1e-14)
+
+
 def test_singular_liouvillian_is_reported():
     # Derived: with k_T = 0 and no hyperfine the pure triplet states never decay, so L is singular
     # and a triplet start has no finite yield integral.

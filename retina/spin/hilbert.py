@@ -28,7 +28,7 @@ from retina.spin import operators as ops
 import scipy.linalg.lapack as _lapack
 from scipy.linalg.blas import zherk as _zherk
 
-__all__ = ["yields", "check_scope", "chunk_size"]
+__all__ = ["yields", "check_scope", "chunk_size", "singlet_singlet", "validate_field"]
 
 _DEFAULT_CHUNK_BYTES = 256 * 2**20
 
@@ -109,23 +109,6 @@ def chunk_size(dimension: int, max_bytes: int | None = None) -> int:
     per = 4 * 16 * dimension * dimension
     budget = _DEFAULT_CHUNK_BYTES if max_bytes is None else int(max_bytes)
     return int(max(1, min(4096, budget // per)))
-
-
-def singlet_block(vectors, space) -> np.ndarray:
-    """Singlet components ``u[nu, m] = <S, nu | m>`` of eigenvector columns.
-
-    Parameters
-    ----------
-    vectors : ndarray, shape (N, d, d)
-        Eigenvectors as columns.
-    space : PairSpace
-
-    Returns
-    -------
-    ndarray, shape (N, M, d)
-    """
-    i_ud, i_du = space.singlet_indices()
-    return (vectors[:, i_ud, :] - vectors[:, i_du, :]) * np.sqrt(0.5)
 
 
 #: From this Hilbert dimension on, the tridiagonal path (below) is used; smaller pairs go through
