@@ -19,7 +19,6 @@ estimated memory exceeds ``max_bytes`` (default: 60 % of ``MemAvailable`` in ``/
 from __future__ import annotations
 
 import functools
-import os
 import time
 from dataclasses import dataclass
 

@@ -42,7 +42,6 @@ Two solvers:
 from __future__ import annotations
 
 import numpy as np
-import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
 from retina.errors import InputError
