@@ -1,9 +1,14 @@
-"""Suite-wide settings: every test run gets its own yield-function cache folder, so no test reads a
+"""Suite-wide settings: one BLAS thread, and every test run gets its own yield-function cache folder, so no test reads a
 stale cache from an earlier run or writes into the user's ~/.cache."""
 
 import os
 
-import pytest
+# One BLAS thread: on the 2-core machine, threaded BLAS on the many small matrices of these tests
+# was measured to be several times slower than one thread (common practice for small problems).
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
+
+import pytest  # noqa: E402
 
 
 @pytest.fixture(autouse=True, scope="session")

@@ -23,10 +23,15 @@ Reaction: Haberkorn recombination, ``d rho / dt = -i [H, rho] - (k_S/2){P_S, rho
 ``Phi_T = k_T int Tr(P_T rho) dt``.  Initial state ``P_S / M`` (singlet) or ``P_T / (3 M)``
 (triplet), ``M`` the nuclear-spin dimension.
 
-Relaxation (optional): random-field relaxation of each electron at rate ``k_r`` (the Lindblad
-dissipator ``k_r sum_{a=x,y,z} (2 S_a rho S_a - {S_a S_a, rho}/... )`` as written in
-``retina.spin.operators.relaxation_superoperator``), and singlet-triplet dephasing at rate
-``k_STD`` (Lindblad operator ``P_S``).
+Relaxation (optional), as Lindblad dissipators added to the equation above:
+
+- random-field relaxation of electron r at rate ``k_r``:
+  ``k_r sum_{a=x,y,z} (S_a rho S_a - {S_a S_a, rho} / 2)``, so each component of that electron's
+  spin decays at rate ``k_r``;
+- singlet-triplet dephasing at rate ``k_STD``: ``k_STD (P_S rho P_S - {P_S, rho} / 2)``, so
+  singlet-triplet coherences decay as ``exp(-k_STD t / 2)`` and populations are untouched.
+
+``retina.spin.operators`` builds these superoperators; its tests check both decay rates.
 """
 
 from __future__ import annotations
