@@ -24,6 +24,7 @@ from __future__ import annotations
 import numpy as np
 
 from retina.errors import InputError
+from retina.spin.system import equal_rate_reported_yield
 from retina.spin import operators as ops
 import scipy.linalg.lapack as _lapack
 from scipy.linalg.blas import zherk as _zherk
@@ -241,16 +242,4 @@ def yields(system, field_uT, directions, *, progress=None, max_bytes=None) -> np
     b, dirs = validate_field(field_uT, directions, system.source)
     parts = ops.hamiltonian_parts(system)
     phi_ss = singlet_singlet(parts, b * dirs, float(system.k_singlet), progress=progress, max_bytes=max_bytes)
-    if system.initial_state == "singlet":
-        phi_s = phi_ss
-    elif system.initial_state == "triplet":
-        phi_s = (1.0 - phi_ss) / 3.0
-    else:
-        raise InputError(f"expected 'singlet' or 'triplet', got {system.initial_state!r}",
-                         source=system.source, key="initial_state")
-    if system.reported_yield == "singlet":
-        return phi_s
-    if system.reported_yield == "triplet":
-        return 1.0 - phi_s
-    raise InputError(f"expected 'singlet' or 'triplet', got {system.reported_yield!r}",
-                     source=system.source, key="reported_yield")
+    return equal_rate_reported_yield(system, phi_ss)

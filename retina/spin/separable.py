@@ -71,6 +71,7 @@ import numba
 import numpy as np
 
 from retina.errors import InputError
+from retina.spin.system import equal_rate_reported_yield
 from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR, spin_matrices
 
 __all__ = ["yields", "check_scope", "radical_operators", "singlet_start_singlet_yield",
@@ -328,16 +329,4 @@ def yields(system, field_uT, directions, *,
     """
     phi_ss = singlet_start_singlet_yield(system, field_uT, directions, progress=progress,
                                          max_bytes=max_bytes)
-    if system.initial_state == "singlet":
-        phi_s = phi_ss
-    elif system.initial_state == "triplet":
-        phi_s = (1.0 - phi_ss) / 3.0
-    else:
-        raise InputError(f"expected initial_state 'singlet' or 'triplet', got {system.initial_state!r}",
-                         source=system.source, key="initial_state")
-    if system.reported_yield == "singlet":
-        return phi_s
-    if system.reported_yield == "triplet":
-        return 1.0 - phi_s
-    raise InputError(f"expected reported_yield 'singlet' or 'triplet', got {system.reported_yield!r}",
-                     source=system.source, key="reported_yield")
+    return equal_rate_reported_yield(system, phi_ss)

@@ -156,3 +156,28 @@ class SpinSystem:
         """True when exchange or dipolar coupling links the two electrons."""
         d = self.dipolar_mT
         return bool(self.exchange_mT != 0.0 or (d is not None and np.any(d != 0.0)))
+
+
+def equal_rate_reported_yield(system: SpinSystem, phi_ss):
+    """The reported yield from the singlet-start singlet yield ``phi_ss``, for equal rates and no
+    relaxation (the scope of the eigen and separable methods).
+
+    Derived: with ``k_S = k_T`` every state decays at the same rate, so the maximally mixed start
+    ``1 / (4 M)`` gives ``Phi_S = 1/4``; writing it as ``(1/4) Phi_S(singlet) + (3/4) Phi_S(triplet)``
+    gives ``Phi_S(triplet start) = (1 - phi_ss) / 3``, and ``Phi_T = 1 - Phi_S`` for either start.
+    """
+    from retina.errors import InputError
+
+    if system.initial_state == "singlet":
+        phi_s = phi_ss
+    elif system.initial_state == "triplet":
+        phi_s = (1.0 - phi_ss) / 3.0
+    else:
+        raise InputError(f"expected initial_state 'singlet' or 'triplet', got {system.initial_state!r}",
+                         source=system.source, key="initial_state")
+    if system.reported_yield == "singlet":
+        return phi_s
+    if system.reported_yield == "triplet":
+        return 1.0 - phi_s
+    raise InputError(f"expected reported_yield 'singlet' or 'triplet', got {system.reported_yield!r}",
+                     source=system.source, key="reported_yield")
