@@ -144,9 +144,8 @@ def run(args) -> int:
     if use_cache:
         cached = YieldCache(args.cache_dir).get(
             cache_key(system, field, degree, method, check_points=args.check_points))
+    n = len(sphere.grid_for_degree(degree)) // 2 + args.check_points
     if not args.quiet and cached is None:
-        grid = sphere.grid_for_degree(degree)
-        n = len(grid) // 2 + args.check_points
         cost = engine.estimate_cost(system, n, method)
         note = f"; {cost.note}" if getattr(cost, "note", "") else ""
         print(f"retina: {system.name!r}: Hilbert dimension {system.dimension}, method {cost.method}, "
@@ -155,7 +154,7 @@ def run(args) -> int:
 
     bar = None
     if not args.quiet and cached is None:
-        bar = tqdm(total=None, file=sys.stderr, unit="dir", desc="yields", leave=False, dynamic_ncols=True)
+        bar = tqdm(total=n, file=sys.stderr, unit="dir", desc="yields", leave=False, dynamic_ncols=True)
 
     def progress(done: int, total: int) -> None:
         if bar is None:
