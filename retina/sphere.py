@@ -434,41 +434,31 @@ def _j_blocks(L: int) -> tuple[np.ndarray, ...]:
 
 
 @numba.njit(cache=True)
-def _apply_z_all(c, L, angle):
-    """In place: rotate every even-degree block of c (n, K) about z by angle (n,) (active).
-
-    cos(m a), sin(m a) come from the Chebyshev recurrence, so each rotation costs two
-    transcendental calls whatever the degree."""
-    n = c.shape[0]
-    cm = np.empty(L + 1)
-    sm = np.empty(L + 1)
-    for i in range(n):
+def _trig_table(angle, L, cm, sm):
+    """cm[i, m] = cos(m angle[i]), sm[i, m] = sin(m angle[i]) for m = 0..L (Chebyshev recurrence:
+    two transcendental calls per angle whatever the degree)."""
+    for i in range(angle.shape[0]):
         ca = math.cos(angle[i])
         sa = math.sin(angle[i])
-        cm[0] = 1.0
-        sm[0] = 0.0
+        cm[i, 0] = 1.0
+        sm[i, 0] = 0.0
         for m in range(1, L + 1):
-            cm[m] = cm[m - 1] * ca - sm[m - 1] * sa
-            sm[m] = sm[m - 1] * ca + cm[m - 1] * sa
-        for l in range(2, L + 1, 2):
-            base = (l * (l - 1)) // 2 + l
-            for m in range(1, l + 1):
-                a = c[i, base + m]
-                b = c[i, base - m]
-                c[i, base + m] = a * cm[m] - b * sm[m]
-                c[i, base - m] = a * sm[m] + b * cm[m]
+            cm[i, m] = cm[i, m - 1] * ca - sm[i, m - 1] * sa
+            sm[i, m] = sm[i, m - 1] * ca + cm[i, m - 1] * sa
 
 
-def _apply_j(c, L, blocks, transpose):
-    """c (n, K) <- row-vector product with the J blocks (J^T applied to column vectors when
-    ``transpose`` is False, J when True)."""
-    for i, J in enumerate(blocks):
-        l = 2 * i
-        if l == 0:
-            continue
-        s = l * (l - 1) // 2
-        blk = c[:, s:s + 2 * l + 1]
-        c[:, s:s + 2 * l + 1] = blk @ (J.T if transpose else J)
+@numba.njit(cache=True)
+def _apply_z_block(blk, l, cm, sm):
+    """In place: rotate degree-l blocks blk (n, 2l+1) about z (active), angles as trig tables."""
+    for i in range(blk.shape[0]):
+        for m in range(1, l + 1):
+            a = blk[i, l + m]
+            b = blk[i, l - m]
+            blk[i, l + m] = a * cm[i, m] - b * sm[i, m]
+            blk[i, l - m] = a * sm[i, m] + b * cm[i, m]
+
+
+_ROTATE_CHUNK = 16384
 
 
 def rotate(coeffs, rotation: Rotation) -> np.ndarray:
@@ -503,16 +493,31 @@ def rotate(coeffs, rotation: Rotation) -> np.ndarray:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # gimbal lock is harmless here: any valid triple works
         eul = rot.as_euler("ZYZ")
-    alpha = np.ascontiguousarray(eul[:, 0])
-    beta = np.ascontiguousarray(eul[:, 1])
-    gamma = np.ascontiguousarray(eul[:, 2])
     blocks = _j_blocks(L)
-    out = np.array(c, dtype=float, order="C", copy=True)
-    _apply_z_all(out, L, gamma)
-    _apply_j(out, L, blocks, transpose=False)
-    _apply_z_all(out, L, beta)
-    _apply_j(out, L, blocks, transpose=True)
-    _apply_z_all(out, L, alpha)
+    K = c.shape[-1]
+    out = np.empty((n, K))
+    out[:, 0] = c[:, 0]
+    tables = [(np.empty((min(n, _ROTATE_CHUNK), L + 1)), np.empty((min(n, _ROTATE_CHUNK), L + 1)))
+              for _ in range(3)]
+    for lo in range(0, n, _ROTATE_CHUNK):
+        hi = min(n, lo + _ROTATE_CHUNK)
+        trig = []
+        for k, (cm, sm) in enumerate(tables):
+            _trig_table(np.ascontiguousarray(eul[lo:hi, k]), L, cm, sm)
+            trig.append((cm[:hi - lo], sm[:hi - lo]))
+        (ca, sa), (cb, sb), (cg, sg) = trig
+        for i, J in enumerate(blocks):
+            l = 2 * i
+            if l == 0:
+                continue
+            s0 = l * (l - 1) // 2
+            blk = np.array(c[lo:hi, s0:s0 + 2 * l + 1], dtype=float, order="C")  # a writable copy
+            _apply_z_block(blk, l, cg, sg)
+            blk = blk @ J            # J^T applied to column vectors
+            _apply_z_block(blk, l, cb, sb)
+            blk = blk @ J.T          # J applied to column vectors
+            _apply_z_block(blk, l, ca, sa)
+            out[lo:hi, s0:s0 + 2 * l + 1] = blk
     return out[0] if single else out
 
 
