@@ -1,0 +1,663 @@
+"""Radio-frequency (RF) field effects on the radical-pair yield: an exact Floquet method.
+
+Model (conventions owned here; everything else is that of :mod:`retina.spin.system`)
+------------------------------------------------------------------------------------
+A linearly polarised RF field of amplitude ``B1`` (tesla) along the unit vector ``n`` (molecular
+frame), angular frequency ``w = 2 pi f`` and phase ``theta`` at the birth of the pair adds to the
+static Hamiltonian ``H0(B0)`` the term
+
+    H1 cos(w t + theta),   H1 = (mu_B / hbar) B1 n . (g_A . S_A + g_B . S_B)   (rad s^-1),
+
+i.e. the electron Zeeman term of :mod:`retina.spin.operators` evaluated at the field ``B1 n``
+(nuclear Zeeman terms are neglected there, and so here).  In Liouville space (row-major
+vectorisation of :mod:`retina.spin.operators`)
+
+    d vec(rho) / dt = (L0 + cos(w t + theta) L1) vec(rho),   L1 = -i [H1, .],
+
+with ``L0`` the complete static Liouvillian (coherent part, Haberkorn recombination, relaxation).
+At the user boundary the RF frequency ``f`` is in MHz and the amplitude ``B1`` in nT.
+
+The pair is born at a random RF phase, so the reported yield is the average over ``theta``
+(uniform on ``[0, 2 pi)``); the yield at one phase is available too.
+
+Derivation (backward equation)
+------------------------------
+Write the reported yield as a linear functional of the state at birth, ``Y(theta, rho) =
+a(theta) . vec(rho)`` (plain dot product, no conjugation), with ``a = k_S vec(P_S^T)`` integrated
+along the future: ``Y = k_S int_0^inf Tr(P_S rho(t)) dt`` (``k_T``, ``P_T`` for the triplet yield).
+Split the future into a first step ``dt`` and the rest: during ``dt`` the yield collects
+``k_S vec(P_S^T) . vec(rho) dt``; afterwards the pair is in ``(1 + dt L(theta)) rho`` at phase
+``theta + w dt``, so
+
+    a(theta) . rho = q . rho dt + a(theta + w dt) . (1 + dt L(theta)) rho,    q = k_S vec(P_S^T),
+
+and to first order in ``dt``, for every ``rho``,
+
+    0 = q + w da/dtheta + L(theta)^T a(theta),    L(theta) = L0 + cos(theta) L1.
+
+With ``a(theta) = sum_n a_n exp(i n theta)`` and ``cos(theta) = (e^{i theta} + e^{-i theta}) / 2``,
+the coefficient of ``exp(i n theta)`` gives the Floquet equations
+
+    q delta_n0 + i n w a_n + L0^T a_n + (L1^T / 2) (a_{n-1} + a_{n+1}) = 0,     n = 0, +/-1, ...
+
+The phase average of ``Y`` is ``a_0 . vec(rho0)`` and the yield at phase ``theta`` is
+``sum_n a_n exp(i n theta) . vec(rho0)``.  The harmonics are truncated at ``|n| <= N``
+(``a_{+/-(N+1)} = 0``); the neglected part falls off like ``(|L1| / w)^N`` for weak or fast RF.
+With ``harmonics="auto"`` the order is doubled (1, 2, 4, ...) until the phase-averaged yield changes
+by less than ``tol``; the order used is reported.
+
+Two solvers of the truncated block-tridiagonal system (``2N + 1`` blocks of size ``D = d^2``):
+
+- ``"blocks"``: elimination from both ends (a matrix continued fraction).  With
+  ``D_n = L0^T + i n w`` and ``C = L1^T / 2``, ``a_n = S_n a_{n-1}`` for ``n >= 1`` with
+  ``S_N = -D_N^-1 C`` and ``S_n = -(D_n + C S_{n+1})^-1 C``; likewise ``a_{-n} = R_n a_{-n+1}``
+  with ``D_{-n}``; then ``(D_0 + C S_1 + C R_1) a_0 = -q``.  Dense (D, D) blocks, memory about
+  ``4 D^2`` complex numbers whatever ``N``.
+- ``"splu"``: one sparse LU factorisation (``scipy.sparse.linalg.splu``) of the whole
+  ``(2N + 1) D`` system.
+
+Both are exact for the truncated system and agree to round-off (tested).  ``"auto"`` takes
+``"blocks"``.
+
+RF direction
+------------
+- a vector: fixed in the molecular frame;
+- ``"parallel"``: ``n = b``, along the static field;
+- ``"perpendicular"``: ``n = cos(phi) e1 + sin(phi) e2`` with ``e1, e2`` orthonormal and
+  perpendicular to ``b``, averaged over the azimuth ``phi``.  Since ``n -> -n`` is the phase shift
+  ``theta -> theta + pi``, the phase-averaged yield has period ``pi`` in ``phi``; it is a
+  trigonometric polynomial in ``2 phi`` of order ``k`` at order ``B1^(2k)``.  The rule with ``K``
+  equally spaced azimuths ``phi_j = j pi / K`` is exact for harmonics ``2m`` with ``m`` not a
+  multiple of ``K``; ``K`` is doubled from 2 (the rules are nested, so no solve is repeated) until
+  the average changes by less than ``tol``.
+
+The resulting yield depends on the static field direction only.  It is even, ``Phi(-b) = Phi(b)``
+(for perpendicular, parallel and fixed RF directions alike): time reversal maps the field
+history ``(b, n, theta)`` on ``(-b, -n)`` and the phase average makes ``-n`` equivalent to ``n``;
+:func:`rf_yield_function` measures the evenness on its check directions, which lie on the
+opposite hemisphere from its grid directions.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import time
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+
+from retina.errors import InputError, ResourceError
+from retina.spin import operators as ops
+
+__all__ = ["RFSpectrum", "yields_rf", "rf_yield_function", "rf_spectrum", "floquet_bytes",
+           "check_rf", "MAX_HARMONICS", "MAX_AZIMUTHS"]
+
+#: Largest Floquet order tried by ``harmonics="auto"``.
+MAX_HARMONICS = 256
+#: Largest number of azimuths tried for ``rf_direction="perpendicular"``.
+MAX_AZIMUTHS = 64
+_SOLVERS = ("auto", "blocks", "splu")
+
+
+# ------------------------------------------------------------------------------------------ checks
+
+def check_rf(rf_MHz, rf_nT, rf_direction="perpendicular", *, source=None):
+    """Validate the RF parameters.
+
+    Parameters
+    ----------
+    rf_MHz : float
+        RF frequency, MHz (finite, > 0).
+    rf_nT : float
+        RF amplitude, nT (finite, >= 0).
+    rf_direction : {"perpendicular", "parallel"} or array_like, shape (3,)
+        See the module docstring; a vector is normalised.
+
+    Returns
+    -------
+    omega : float
+        Angular frequency, rad s^-1.
+    b1 : float
+        Amplitude, tesla.
+    direction : str or ndarray (3,)
+
+    Raises
+    ------
+    InputError
+        Naming the offending key and what was expected.
+    """
+    try:
+        f = float(rf_MHz)
+    except (TypeError, ValueError):
+        raise InputError(f"expected an RF frequency in MHz, got {rf_MHz!r}", source=source, key="rf_MHz") from None
+    if not np.isfinite(f) or f <= 0:
+        raise InputError(f"expected an RF frequency > 0 MHz, got {rf_MHz!r}", source=source, key="rf_MHz")
+    try:
+        a = float(rf_nT)
+    except (TypeError, ValueError):
+        raise InputError(f"expected an RF amplitude in nT, got {rf_nT!r}", source=source, key="rf_nT") from None
+    if not np.isfinite(a) or a < 0:
+        raise InputError(f"expected an RF amplitude >= 0 nT, got {rf_nT!r}", source=source, key="rf_nT")
+    if isinstance(rf_direction, str):
+        if rf_direction not in ("perpendicular", "parallel"):
+            raise InputError(f"expected 'perpendicular', 'parallel' or a vector of 3 numbers, got {rf_direction!r}",
+                             source=source, key="rf_direction")
+        direction = rf_direction
+    else:
+        try:
+            v = np.asarray(rf_direction, dtype=float)
+        except (TypeError, ValueError):
+            raise InputError(f"expected 'perpendicular', 'parallel' or a vector of 3 numbers, got {rf_direction!r}",
+                             source=source, key="rf_direction") from None
+        if v.shape != (3,) or not np.all(np.isfinite(v)) or not np.linalg.norm(v) > 0:
+            raise InputError(f"expected a finite non-zero vector of 3 numbers, got {rf_direction!r}",
+                             source=source, key="rf_direction")
+        direction = v / np.linalg.norm(v)
+    return 2 * np.pi * f * 1e6, a * 1e-9, direction
+
+
+def _check_harmonics(harmonics, source=None):
+    if isinstance(harmonics, str) and harmonics == "auto":
+        return "auto"
+    if isinstance(harmonics, (bool, np.bool_)) or not isinstance(harmonics, (int, np.integer)) \
+            or not 0 <= harmonics <= MAX_HARMONICS:
+        raise InputError(f"expected 'auto' or a whole number of harmonics 0..{MAX_HARMONICS}, got {harmonics!r}",
+                         source=source, key="harmonics")
+    return int(harmonics)
+
+
+def _check_tol(tol, source=None):
+    try:
+        t = float(tol)
+    except (TypeError, ValueError):
+        t = float("nan")
+    if not np.isfinite(t) or t <= 0:
+        raise InputError(f"expected a tolerance > 0, got {tol!r}", source=source, key="tol")
+    return t
+
+
+# ------------------------------------------------------------------------------------------ memory
+
+def floquet_bytes(system, harmonics: int = 8, solver: str = "auto") -> int:
+    """Estimated peak working memory (bytes) of one Floquet solve.
+
+    ``"blocks"``: about 6 dense (D, D) complex blocks (``D = d^2``) plus the sparse Liouvillians;
+    ``"splu"``: the LU fill of the block-tridiagonal system, taken as 3 dense blocks per block row
+    (24 bytes per stored entry: complex value and index), ``2N + 1`` block rows.
+    """
+    dd = system.dimension ** 2
+    base = 8 * 24 * dd * max(4, system.dimension)  # sparse L0, Lx, Ly, Lz and their transposes
+    if solver == "splu":
+        return int(24 * 3 * (2 * harmonics + 1) * dd * dd + base)
+    return int(6 * 16 * dd * dd + base)
+
+
+def _check_memory(system, harmonics, solver, max_bytes):
+    from retina.spin.engine import available_bytes
+
+    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
+    need = floquet_bytes(system, harmonics, solver)
+    if need > limit:
+        d = system.dimension
+        raise ResourceError(
+            f"{system.name!r}: the Floquet space of Hilbert dimension {d} (Liouville blocks of {d * d} x {d * d}) "
+            f"needs about {need / 2**30:.3g} GiB with solver {solver!r}, more than the limit of "
+            f"{limit / 2**30:.3g} GiB; use a pair with fewer nuclei (the RF method works in Liouville space, "
+            f"memory grows as d^4)")
+
+
+# ------------------------------------------------------------------------------------------ core
+
+class _Floquet:
+    """The static Liouvillian parts of one system, transposed for the backward equation."""
+
+    def __init__(self, system):
+        from retina.spin.liouville import check_scope
+
+        check_scope(system)
+        l0, lb, space = ops.liouvillian_parts(system)
+        self.space = space
+        self.d = space.dimension
+        self.l0t = l0.T.tocsr()
+        self.lbt = [m.T.tocsr() for m in lb]
+        self.rho0 = ops.initial_density(system, space).reshape(-1)
+        if system.reported_yield == "singlet":
+            p = ops.singlet_projector(space) * float(system.k_singlet)
+        else:
+            p = ops.triplet_projector(space) * float(system.k_triplet)
+        self.q = p.T.reshape(-1).astype(complex)
+
+    def static_t(self, b_t):
+        """``L(B0)^T`` (sparse CSR) for a field vector in tesla."""
+        return (self.l0t + b_t[0] * self.lbt[0] + b_t[1] * self.lbt[1] + b_t[2] * self.lbt[2]).tocsr()
+
+    def rf_t(self, b1_t):
+        """``L1^T`` (sparse CSR) for an RF amplitude vector in tesla."""
+        return (b1_t[0] * self.lbt[0] + b1_t[1] * self.lbt[1] + b1_t[2] * self.lbt[2]).tocsr()
+
+    # -- solvers: return the harmonics a_n, shape (2N + 1, D), n = -N..N (or only a_0 when phase is None)
+
+    def solve_blocks(self, lt, ct, omega, n_h, want_all):
+        dd = self.d * self.d
+        lt_d = lt.toarray()
+        c = 0.5 * ct.toarray()
+        eye = np.eye(dd)
+        if n_h == 0:
+            a0 = np.linalg.solve(lt_d, -self.q)
+            return a0[None, :]
+        s_of = {1: {}, -1: {}}  # s_of[sign][n]: a_{sign n} = s_of[sign][n] a_{sign (n - 1)}
+        for sign in (1, -1):
+            s_next = None
+            for n in range(n_h, 0, -1):
+                blk = lt_d + (1j * sign * n * omega) * eye
+                if s_next is not None:
+                    blk = blk + c @ s_next
+                s_next = -np.linalg.solve(blk, c)
+                s_of[sign][n] = s_next
+        a0 = np.linalg.solve(lt_d + c @ s_of[1][1] + c @ s_of[-1][1], -self.q)
+        if not want_all:
+            return a0[None, :]
+        out = np.zeros((2 * n_h + 1, dd), dtype=complex)
+        out[n_h] = a0
+        for n in range(1, n_h + 1):
+            out[n_h + n] = s_of[1][n] @ out[n_h + n - 1]
+            out[n_h - n] = s_of[-1][n] @ out[n_h - n + 1]
+        return out
+
+    def solve_splu(self, lt, ct, omega, n_h, want_all):
+        dd = self.d * self.d
+        m = 2 * n_h + 1
+        ns = np.arange(-n_h, n_h + 1)
+        big = sp.kron(sp.identity(m, format="csr"), lt) + sp.kron(sp.diags(1j * omega * ns), sp.identity(dd))
+        if n_h > 0:
+            off = sp.diags([np.ones(m - 1), np.ones(m - 1)], [-1, 1])
+            big = big + sp.kron(off, 0.5 * ct)
+        rhs = np.zeros(m * dd, dtype=complex)
+        rhs[n_h * dd:(n_h + 1) * dd] = -self.q
+        try:
+            x = spla.splu(big.tocsc()).solve(rhs)
+        except RuntimeError as exc:
+            raise InputError(f"the Floquet system is singular ({exc}): some state never recombines; give both "
+                             "rates > 0 or add relaxation", key="k_triplet") from None
+        x = x.reshape(m, dd)
+        return x if want_all else x[n_h:n_h + 1]
+
+
+def _solve_one(fl, solver, lt, ct, omega, n_h, phase):
+    """Phase-averaged yield (and the yield at ``phase`` radians, or None) at Floquet order ``n_h``."""
+    fn = fl.solve_splu if solver == "splu" else fl.solve_blocks
+    want_all = phase is not None
+    a = fn(lt, ct, omega, n_h, want_all)
+    if want_all:
+        n0 = a.shape[0] // 2
+        avg = float(np.real(a[n0] @ fl.rho0))
+        ns = np.arange(-n0, n0 + 1)
+        at = np.exp(1j * ns * phase) @ a
+        return avg, float(np.real(at @ fl.rho0))
+    return float(np.real(a[0] @ fl.rho0)), None
+
+
+def _solve_auto(fl, solver, lt, ct, omega, harmonics, tol, phase, start):
+    """Solve at a fixed order, or double the order until the average changes by < tol.
+
+    Returns ``(average, at_phase, order_used)``.
+    """
+    if harmonics != "auto":
+        avg, at = _solve_one(fl, solver, lt, ct, omega, harmonics, phase)
+        return avg, at, harmonics
+    n_h = max(1, start)
+    prev, _ = _solve_one(fl, solver, lt, ct, omega, n_h, None)
+    while True:
+        nxt = 2 * n_h
+        if nxt > MAX_HARMONICS:
+            raise ResourceError(f"the Floquet expansion did not converge to {tol:g} within {MAX_HARMONICS} "
+                                "harmonics (the RF field is too strong for its frequency); raise tol or fix "
+                                "harmonics")
+        cur, at = _solve_one(fl, solver, lt, ct, omega, nxt, phase)
+        if abs(cur - prev) < tol:
+            return cur, at, nxt
+        prev, n_h = cur, nxt
+
+
+def _perp_basis(b):
+    e1 = np.cross(b, [1.0, 0.0, 0.0] if abs(b[0]) < 0.9 else [0.0, 1.0, 0.0])
+    e1 /= np.linalg.norm(e1)
+    return e1, np.cross(b, e1)
+
+
+def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction, harmonics, tol, progress,
+                   phase_deg, solver, max_bytes, azimuths="auto"):
+    from retina.spin.hilbert import validate_field
+
+    src = system.source
+    omega, b1, rfdir = check_rf(rf_MHz, rf_nT, rf_direction, source=src)
+    harmonics = _check_harmonics(harmonics, src)
+    tol = _check_tol(tol, src)
+    if solver not in _SOLVERS:
+        raise InputError(f"expected solver one of {_SOLVERS}, got {solver!r}", source=src, key="solver")
+    solver = "blocks" if solver == "auto" else solver
+    if azimuths != "auto" and (isinstance(azimuths, bool) or not isinstance(azimuths, (int, np.integer))
+                               or not 1 <= azimuths <= MAX_AZIMUTHS):
+        raise InputError(f"expected 'auto' or 1..{MAX_AZIMUTHS} azimuths, got {azimuths!r}", source=src,
+                         key="azimuths")
+    phase = None
+    if phase_deg is not None:
+        try:
+            phase = float(np.radians(float(phase_deg)))
+        except (TypeError, ValueError):
+            phase = float("nan")
+        if not np.isfinite(phase):
+            raise InputError(f"expected an RF phase in degrees or None, got {phase_deg!r}", source=src,
+                             key="phase_deg")
+    b, dirs = validate_field(field_uT, directions, src)
+    _check_memory(system, 8 if harmonics == "auto" else harmonics, solver, max_bytes)
+    fl = _Floquet(system)
+    n = dirs.shape[0]
+    out = np.empty(n)
+    out_phase = np.empty(n) if phase is not None else None
+    orders = np.zeros(n, dtype=int)
+    n_az = np.ones(n, dtype=int)
+    last = 1
+    every = max(1, n // 100)
+    for i in range(n):
+        bd = dirs[i]
+        lt = fl.static_t(b * bd)
+        if isinstance(rfdir, str) and rfdir == "perpendicular":
+            e1, e2 = _perp_basis(bd)
+            vals, vals_p, used = {}, {}, []
+
+            def at(j, k):  # azimuth j pi / k, memoised on the reduced fraction
+                key = (j * (MAX_AZIMUTHS // k))
+                if key not in vals:
+                    phi = np.pi * j / k
+                    ct = fl.rf_t(b1 * (np.cos(phi) * e1 + np.sin(phi) * e2))
+                    vals[key], vals_p[key], o = _solve_auto(fl, solver, lt, ct, omega, harmonics, tol, phase,
+                                                            max(1, last // 2))
+                    used.append(o)
+                return vals[key], vals_p[key]
+
+            def mean(k):
+                pts = [at(j, k) for j in range(k)]
+                return (float(np.mean([p[0] for p in pts])),
+                        None if phase is None else float(np.mean([p[1] for p in pts])))
+
+            if azimuths == "auto":
+                k = 2
+                prev = mean(k)
+                while True:
+                    if 2 * k > MAX_AZIMUTHS:
+                        raise ResourceError(f"the azimuth average did not converge to {tol:g} with {MAX_AZIMUTHS} "
+                                            "azimuths; raise tol")
+                    k *= 2
+                    cur = mean(k)
+                    if abs(cur[0] - prev[0]) < tol:
+                        break
+                    prev = cur
+            else:
+                k = int(azimuths)
+                if MAX_AZIMUTHS % k:
+                    raise InputError(f"expected a number of azimuths dividing {MAX_AZIMUTHS}, got {k}",
+                                     source=src, key="azimuths")
+                cur = mean(k)
+            out[i] = cur[0]
+            if phase is not None:
+                out_phase[i] = cur[1]
+            orders[i] = max(used)
+            n_az[i] = k
+        else:
+            nrf = bd if isinstance(rfdir, str) else rfdir
+            ct = fl.rf_t(b1 * nrf)
+            out[i], p_val, orders[i] = _solve_auto(fl, solver, lt, ct, omega, harmonics, tol, phase,
+                                                   max(1, last // 2))
+            if phase is not None:
+                out_phase[i] = p_val
+        last = int(orders[i])
+        if progress is not None and ((i + 1) % every == 0 or i + 1 == n):
+            progress(i + 1, n)
+    info = {"harmonics": orders, "azimuths": n_az, "solver": solver, "tol": tol}
+    return out, out_phase, info
+
+
+def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perpendicular", harmonics="auto",
+              tol=1e-10, progress: Callable[[int, int], None] | None = None, phase_deg=None, solver="auto",
+              azimuths="auto", max_bytes=None, return_info=False):
+    """The reported yield under a static field plus a linearly polarised RF field (exact, Floquet).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        Any system the Liouville method accepts (rates, exchange, dipolar, relaxation).
+    field_uT : float
+        Static field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Static field directions in the molecular frame (normalised here).
+    rf_MHz : float
+        RF frequency ``f`` (MHz, > 0); ``w = 2 pi f``.
+    rf_nT : float
+        RF amplitude ``B1`` (nT, >= 0): the field is ``B1 n cos(w t + theta)``.
+    rf_direction : {"perpendicular", "parallel"} or array_like, shape (3,)
+        See the module docstring ("perpendicular" averages over the azimuth about ``b``).
+    harmonics : "auto" or int
+        Floquet truncation order ``N`` (``|n| <= N``); "auto" doubles it until converged.
+    tol : float
+        Convergence tolerance on the yield (for "auto" harmonics and azimuths), yield units.
+    progress : callable(done, total), optional
+    phase_deg : float, optional
+        Also return the yield for a pair born at this RF phase ``theta`` (degrees).
+    solver : {"auto", "blocks", "splu"}
+        See the module docstring.
+    azimuths : "auto" or int
+        Number of equally spaced azimuths for "perpendicular" (a divisor of 64).
+    max_bytes : int, optional
+        Memory limit (default 60 % of the available memory).
+    return_info : bool
+        Also return a dict: ``harmonics`` (N,) the orders used, ``azimuths`` (N,), ``solver``, ``tol``.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        Phase-averaged reported yield (dimensionless).  With ``phase_deg``: a tuple
+        ``(averaged, at_phase)``; with ``return_info`` the info dict is appended.
+
+    Raises
+    ------
+    InputError
+        Bad field, directions or RF parameters.
+    ResourceError
+        When the Floquet space would not fit in memory (checked before allocating), or when the
+        expansion does not converge.
+    """
+    avg, at, info = _yields_detail(system, field_uT, directions, rf_MHz=rf_MHz, rf_nT=rf_nT,
+                                   rf_direction=rf_direction, harmonics=harmonics, tol=tol, progress=progress,
+                                   phase_deg=phase_deg, solver=solver, max_bytes=max_bytes, azimuths=azimuths)
+    res = (avg,) if phase_deg is None else (avg, at)
+    if return_info:
+        res = res + (info,)
+    return res[0] if len(res) == 1 else res
+
+
+# ------------------------------------------------------------------------------------------ yield function
+
+def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendicular", degree=8,
+                      progress: Callable[[int, int], None] | None = None, check_points: int = 20, tol=1e-10,
+                      harmonics="auto", max_bytes=None):
+    """The phase-averaged yield under RF as a :class:`~retina.yieldfn.YieldFunction`.
+
+    Computed like :meth:`YieldFunction.from_system`: on one hemisphere of the smallest Lebedev rule
+    exact to ``2 L`` (using ``Phi(b) = Phi(-b)``, module docstring) and fitted by projection; the
+    ``check_points`` independent directions are Fibonacci points of the *lower* hemisphere, so the
+    reported truncation error also bounds any failure of the evenness.
+
+    Parameters
+    ----------
+    system : SpinSystem
+    field_uT : float
+        Static field, microtesla.
+    rf_MHz, rf_nT, rf_direction, harmonics, tol, max_bytes
+        As in :func:`yields_rf`.
+    degree : int
+        Even maximum degree ``L``.
+    progress : callable(done, total), optional
+    check_points : int
+        Independent check directions (>= 1).
+
+    Returns
+    -------
+    YieldFunction
+        Provenance as in ``from_system`` (``kind = "rf_from_system"``, ``method = "floquet"``) plus
+        ``rf_MHz``, ``rf_nT``, ``rf_direction`` (a word or "x y z"), ``rf_phase`` ("averaged"),
+        ``rf_harmonics_max``, ``rf_azimuths_max``, ``rf_tol``, ``rf_solver``.
+    """
+    from retina import sphere
+    from retina.spin.io import dump_system
+    from retina.yieldfn import YieldFunction, _check_degree, _check_field, content_hash, package_versions
+
+    field_uT = _check_field(field_uT)
+    degree = _check_degree(degree)
+    omega, b1, rfdir = check_rf(rf_MHz, rf_nT, rf_direction, source=system.source)
+    if isinstance(check_points, bool) or not isinstance(check_points, (int, np.integer)) or check_points < 1:
+        raise InputError(f"expected check_points >= 1, got {check_points!r}", key="check_points")
+    grid = sphere.grid_for_degree(degree)
+    half, full_from_half = grid.hemisphere()
+    check = sphere.fibonacci(int(check_points), hemisphere=True)
+    dirs = np.concatenate([grid.points[half], -check.points], axis=0)
+    t0 = time.perf_counter()
+    values, info = yields_rf(system, field_uT, dirs, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rfdir,
+                             harmonics=harmonics, tol=tol, progress=progress, max_bytes=max_bytes,
+                             return_info=True)
+    seconds = time.perf_counter() - t0
+    h = half.size
+    coeffs = sphere.fit_even(values[:h][full_from_half], grid, degree)
+    err = sphere.evaluate(coeffs, -check.points) - values[h:]
+    err_max = float(np.max(np.abs(err)))
+    prov = {
+        "kind": "rf_from_system",
+        "spin_system_toml": dump_system(system),
+        "system_name": system.name,
+        "system_source": system.source or "",
+        "reported_yield": system.reported_yield,
+        "initial_state": system.initial_state,
+        "field_uT": field_uT,
+        "method": "floquet",
+        "rf_MHz": float(rf_MHz),
+        "rf_nT": float(rf_nT),
+        "rf_direction": rfdir if isinstance(rfdir, str) else " ".join(f"{x:.17g}" for x in rfdir),
+        "rf_phase": "averaged",
+        "rf_harmonics_max": int(np.max(info["harmonics"])),
+        "rf_azimuths_max": int(np.max(info["azimuths"])),
+        "rf_tol": float(info["tol"]),
+        "rf_solver": info["solver"],
+        "degree": degree,
+        "grid": grid.name,
+        "grid_order": int(grid.degree),
+        "grid_points": len(grid),
+        "computed_points": int(h),
+        "check_grid": check.name + " (negated: lower hemisphere)",
+        "check_points": len(check),
+        "truncation_error_max": err_max,
+        "truncation_error_rms": float(np.sqrt(np.mean(err**2))),
+        "compute_seconds": float(seconds),
+        "versions": package_versions(),
+        "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "content_hash": content_hash(coeffs, degree),
+    }
+    return YieldFunction(coeffs, degree, prov, err_max)
+
+
+# ------------------------------------------------------------------------------------------ spectrum
+
+@dataclass(frozen=True)
+class RFSpectrum:
+    """The RF effect against frequency at one static field direction.
+
+    Attributes
+    ----------
+    freqs_MHz : ndarray (F,)
+    static : float
+        Yield without RF.
+    yields : ndarray (F,)
+        Phase-averaged yield with RF.
+    delta : ndarray (F,)
+        ``yields - static``.
+    harmonics : ndarray (F,) of int
+        Largest Floquet order used at each frequency.
+    relative_anisotropy : ndarray (F,) or None
+        ``(max - min) / mean`` of the RF yield function at ``anisotropy_degree`` (when asked).
+    static_relative_anisotropy : float or None
+        The same without RF, at the same degree.
+    """
+
+    freqs_MHz: np.ndarray
+    static: float
+    yields: np.ndarray
+    delta: np.ndarray
+    harmonics: np.ndarray
+    relative_anisotropy: np.ndarray | None = None
+    static_relative_anisotropy: float | None = None
+
+
+def rf_spectrum(system, field_uT, direction, freqs_MHz, rf_nT, *, rf_direction="perpendicular", harmonics="auto",
+                tol=1e-10, anisotropy_degree=None, progress: Callable[[int, int], None] | None = None,
+                max_bytes=None) -> RFSpectrum:
+    """Change of the phase-averaged yield (and optionally of the anisotropy) against RF frequency.
+
+    Parameters
+    ----------
+    system : SpinSystem
+    field_uT : float
+        Static field strength, microtesla.
+    direction : array_like, shape (3,)
+        Static field direction, molecular frame.
+    freqs_MHz : array_like, shape (F,)
+        RF frequencies, MHz (each > 0).
+    rf_nT : float
+        RF amplitude, nT.
+    rf_direction, harmonics, tol, max_bytes
+        As in :func:`yields_rf`.
+    anisotropy_degree : int, optional
+        When given (a small even degree such as 2 or 4), also fit the RF yield function at this degree
+        for every frequency and report its relative anisotropy (cost: a hemisphere of a Lebedev rule
+        per frequency).
+    progress : callable(done, total), optional
+        Counts frequencies.
+
+    Returns
+    -------
+    RFSpectrum
+    """
+    from retina.spin import liouville
+
+    freqs = np.asarray(freqs_MHz, dtype=float).reshape(-1)
+    if freqs.size == 0 or not np.all(np.isfinite(freqs)) or np.any(freqs <= 0):
+        raise InputError(f"expected one or more RF frequencies > 0 MHz, got {freqs_MHz!r}", source=system.source,
+                         key="freqs_MHz")
+    d = np.asarray(direction, dtype=float).reshape(1, -1)
+    static = float(liouville.yields(system, field_uT, d)[0])
+    ys = np.empty(freqs.size)
+    orders = np.empty(freqs.size, dtype=int)
+    aniso = np.empty(freqs.size) if anisotropy_degree is not None else None
+    static_aniso = None
+    if anisotropy_degree is not None:
+        from retina import sphere
+        from retina.yieldfn import YieldFunction, _check_degree
+
+        L = _check_degree(anisotropy_degree)
+        grid = sphere.grid_for_degree(L)
+        half, full = grid.hemisphere()
+        sv = liouville.yields(system, field_uT, grid.points[half])
+        static_aniso = YieldFunction(sphere.fit_even(sv[full], grid, L), L).anisotropy().relative
+    for i, f in enumerate(freqs):
+        y, info = yields_rf(system, field_uT, d, rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
+                            harmonics=harmonics, tol=tol, max_bytes=max_bytes, return_info=True)
+        ys[i] = y[0]
+        orders[i] = info["harmonics"][0]
+        if aniso is not None:
+            v = yields_rf(system, field_uT, grid.points[half], rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
+                          harmonics=harmonics, tol=tol, max_bytes=max_bytes)
+            aniso[i] = YieldFunction(sphere.fit_even(v[full], grid, L), L).anisotropy().relative
+        if progress is not None:
+            progress(i + 1, freqs.size)
+    return RFSpectrum(freqs, static, ys, ys - static, orders, aniso, static_aniso)
