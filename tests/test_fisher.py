@@ -290,3 +290,38 @@ def test_anisotropy_and_disorder_curves_through_real_retina():
     assert d.shape == (1, 2, 2)
     np.testing.assert_allclose(d[0, 0], b[2], rtol=1e-7)
     np.testing.assert_allclose(d[0, 1], b[2] / 2, rtol=1e-7)
+
+
+def test_unknown_gain_schur_against_a_finite_difference_fisher_matrix():
+    # Reference: an independent 2x2 Fisher matrix in (psi, g) for lam_i = g mu_i(psi), every
+    # derivative by central finite differences of the expected counts (no analytic gradients), then
+    # the Schur complement 1 / (I^-1)_psi,psi through numpy.linalg.inv.  Derived: it is independent
+    # of g, so the project's per-photon value times nothing but the light level must match.
+    sig = real_signal(photons=1.0)
+    psi = np.array([0.0, 37.0, 200.0])
+    g, h, hg = 2.5, 1e-3, 1e-4
+    lam = g * sig.expected(psi)
+    dpsi = g * (sig.expected(psi + h) - sig.expected(psi - h)) / np.deg2rad(2 * h)
+    dg = ((g + hg) - (g - hg)) * sig.expected(psi) / (2 * hg)
+    eff = []
+    for k in range(psi.size):
+        M = np.array([[np.sum(dpsi[k] ** 2 / lam[k]), np.sum(dpsi[k] * dg[k] / lam[k])],
+                      [np.sum(dpsi[k] * dg[k] / lam[k]), np.sum(dg[k] ** 2 / lam[k])]])
+        eff.append(1.0 / np.linalg.inv(M)[0, 0])
+    got = g * fisher.heading_information(sig, psi, nuisance="gain").information
+    # Tolerance: O(h^2) central differences of a smooth pattern, ~1e-8 relative; 1e-5 is ample.
+    np.testing.assert_allclose(got, eff, rtol=1e-5)
+    assert np.all(np.array(eff) < fisher.heading_information(sig, psi).information * g)
+
+
+def test_uninformative_bound_threshold_and_uniform_guess_level():
+    from scipy import integrate
+
+    # Derived: rms of a heading error uniform on (-180, 180] deg is sqrt(int x^2 dx / 360) = 180/sqrt(3);
+    # Reference: scipy.integrate.quad.
+    ms = integrate.quad(lambda x: x * x / 360.0, -180.0, 180.0)[0]
+    assert fisher.UNIFORM_RMS_DEG == pytest.approx(np.sqrt(ms), rel=1e-12)
+    # Common practice, no source: a bound is reported only where the local approximation can hold.
+    assert fisher.INFORMATIVE_BOUND_DEG < fisher.UNIFORM_RMS_DEG
+    got = fisher.bound_is_informative([1.0, 60.0, 61.0, 450.0, np.inf, np.nan])
+    assert got.tolist() == [True, True, False, False, False, False]

@@ -15,6 +15,13 @@ Conventions (owned here)
   per-receptor gains over head scans.
 - With a fixed gain the information is proportional to the light level (``lam`` and ``dlam`` both
   scale with it), so curves over photon levels are computed once per photon and scaled.
+- Where the bound is informative: the Cramer-Rao bound is a local (Gaussian) approximation around
+  the true heading.  On a circle it stops describing any estimator once it reaches a sizeable
+  fraction of the circle: the error of a real decoder then saturates at the rms error of a uniformly
+  random guess, ``180 / sqrt(3) = 103.9`` deg (:data:`UNIFORM_RMS_DEG`).  Bounds above
+  :data:`INFORMATIVE_BOUND_DEG` (60 deg; a reporting choice, common practice, no source: the
+  decoding error of the demo departs from the bound between about 40 and 60 deg) are reported as
+  "not informative"; the numbers themselves are kept in the results file.
 - Derivatives come analytically from the harmonic gradients through
   ``SignalModel.expected_and_derivative`` (chain rule with ``d b_head / d yaw``), never from finite
   differences.
@@ -48,9 +55,24 @@ __all__ = [
     "information_vs_cone_disorder",
     "bound_vs_cone_disorder",
     "bound_vs_anisotropy",
+    "UNIFORM_RMS_DEG",
+    "INFORMATIVE_BOUND_DEG",
+    "bound_is_informative",
 ]
 
 NUISANCES = ("none", "gain")
+
+#: rms error of a uniformly random heading, ``180 / sqrt(3)`` degrees (no information at all).
+UNIFORM_RMS_DEG = 180.0 / np.sqrt(3.0)
+#: Bounds above this many degrees are not informative on a circle (module docstring).
+INFORMATIVE_BOUND_DEG = 60.0
+
+
+def bound_is_informative(bound_deg) -> np.ndarray:
+    """``True`` where a Cramer-Rao bound (degrees) is finite and at most
+    :data:`INFORMATIVE_BOUND_DEG` (module docstring); same shape as ``bound_deg``."""
+    b = np.asarray(bound_deg, dtype=float)
+    return np.isfinite(b) & (b <= INFORMATIVE_BOUND_DEG)
 
 
 def _safe_ratio(num: np.ndarray, lam: np.ndarray) -> np.ndarray:
