@@ -197,3 +197,37 @@ def test_figures_never_load_pyplot_or_a_gui_toolkit(tmp_path):
     r = subprocess.run([sys.executable, "-c", code, str(tmp_path / "p")], capture_output=True, text=True)
     assert r.returncode == 0, r.stdout + r.stderr
     assert (tmp_path / "p.png").is_file()
+
+
+def test_heading_panels_put_the_left_eye_and_the_field_where_physics_says(tmp_path, retina_points):
+    vis, eye = retina_points
+    heads = np.array([0.0, 90.0])
+    B = b_head_for(heads)
+    mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
+    fig = F.modulation_fields(vis, eye, mod, heads, B, params="synthetic")
+    axes = [a for a in fig.axes if a.name == "mollweide"]
+    # Derived: facing east (yaw 90) in the northern hemisphere the field's north component points to
+    # the bird's left (head -y), so B (filled marker) lies at negative azimuth, drawn left of the beak;
+    # -B points up and to the right.  Matplotlib's Mollweide axes put positive longitude on the right.
+    filled = [ln for ln in axes[1].lines if ln.get_marker() == "o" and ln.get_markerfacecolor() in ("k", (0, 0, 0, 1))]
+    opened = [ln for ln in axes[1].lines if ln.get_marker() == "o" and ln.get_markerfacecolor() in ("w", (1, 1, 1, 1))]
+    assert filled[0].get_xdata()[0] < 0 and filled[0].get_ydata()[0] < 0
+    assert opened[0].get_xdata()[0] > 0 and opened[0].get_ydata()[0] > 0
+    # The eyes are labelled on their own sides (left eye at negative azimuth).
+    labels = {t.get_text(): t.get_position()[0] for t in axes[0].texts}
+    assert labels["left eye"] < 0 < labels["right eye"]
+    # Yaw is counted from geographic north (retina.eye.pose), and the caption says so.
+    assert "geographic north" in fig.retina_caption and "magnetic north" not in fig.retina_caption
+
+
+def test_uninformative_bounds_are_shaded_and_explained(tmp_path):
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+    n = np.logspace(0, 5, 6)
+    fig = F.precision_curves(n, {"single pose": 450 / np.sqrt(n)})
+    ax = fig.axes[0]
+    # A grey band (axhspan patch) starts at the threshold above which the bound is not informative.
+    spans = [p for p in ax.patches if np.isclose(p.get_bbox().y0, INFORMATIVE_BOUND_DEG)]
+    assert spans, "no shaded band at the informative-bound threshold"
+    assert "not informative" in fig.retina_caption
+    assert "geographic north" in F.trial_histograms({"a": np.array([10.0, 20.0, 30.0])}, 20.0).retina_caption

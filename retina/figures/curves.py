@@ -9,9 +9,16 @@ import numpy as np
 from retina.errors import InputError
 from retina.figures._base import DOUBLE_IN, SINGLE_IN, annotate, finish, new_figure, style
 
+from retina.readout.fisher import INFORMATIVE_BOUND_DEG, UNIFORM_RMS_DEG
+
 #: rms error of a heading drawn uniformly from (-180, 180] deg: sqrt(int x^2 dx / 360) = 180 / sqrt(3).
-#: Derived, shown as the "no information" level.
-CHANCE_RMS_DEG = 180.0 / np.sqrt(3.0)
+#: Derived, shown as the "no information" level (:data:`retina.readout.fisher.UNIFORM_RMS_DEG`).
+CHANCE_RMS_DEG = UNIFORM_RMS_DEG
+
+
+def _shade_uninformative(ax, top: float) -> None:
+    """Grey band where a Cramer-Rao bound is not informative (:mod:`retina.readout.fisher`)."""
+    ax.axhspan(INFORMATIVE_BOUND_DEG, top, color="0.93", lw=0, zorder=0)
 
 
 def _series(name, d, m):
@@ -80,6 +87,9 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
         allv = np.concatenate([v[np.isfinite(v) & (v > 0)] for v in list(b.values()) + list(dec.values())])
         lo = max(allv.min() / 2, 1e-4) if allv.size else 1e-2
         ax.set_ylim(lo, CHANCE_RMS_DEG * 3)
+        _shade_uninformative(ax, CHANCE_RMS_DEG * 3)
+        ax.text(n[-1], CHANCE_RMS_DEG * 2.6, f"grey: bound > {INFORMATIVE_BOUND_DEG:g} deg, not informative",
+                fontsize=5.5, ha="right", va="top", color="0.35")
         ax.set_xlabel("photons per receptor per look")
         ax.set_ylabel("heading error (s.d.), deg")
         ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=2, frameon=False)
@@ -87,7 +97,9 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
     caption = ("Cramer-Rao lower bound on the heading standard deviation (lines, deg) and rms error of a "
                "maximum-likelihood decoder under Poisson photon noise (circles, deg) against the mean photon "
                "count per receptor per look (a head scan splits it over its poses); dotted: the n^-1/2 scaling; dashed: the rms error of a uniformly random "
-               f"heading ({CHANCE_RMS_DEG:.1f} deg)." + (f" {params}." if params else ""))
+               f"heading ({CHANCE_RMS_DEG:.1f} deg). Grey band: bounds above {INFORMATIVE_BOUND_DEG:g} deg are "
+               "not informative on a circle (the bound is a local Gaussian approximation; the decoding error "
+               "saturates at the random-guess level instead)." + (f" {params}." if params else ""))
     annotate(fig, title, caption)
     return finish(fig, path, formats, dpi)
 
@@ -147,6 +159,10 @@ def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, m
         ax2.axhline(CHANCE_RMS_DEG, color="0.3", lw=0.7, ls="--")
         ax2.set_xscale("log")
         ax2.set_yscale("log")
+        top = max([CHANCE_RMS_DEG * 1.5] + [float(np.nanmax(v[np.isfinite(v)])) * 1.2
+                                            for v in b.values() if np.isfinite(v).any()])
+        _shade_uninformative(ax2, top)
+        ax2.set_ylim(top=top)
         ax2.set_xlabel(r"cone concentration $\kappa$")
         ax2.set_ylabel("heading bound (s.d.), deg")
         ax2.legend(frameon=False, title="light level", title_fontsize=6.5)
@@ -160,11 +176,20 @@ def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, m
     caption = ("Left: modulation depth (%) of the receptor yields over both retinas against the concentration "
                "kappa of the von Mises-Fisher cone of molecular axes about each receptor axis (top axis: typical "
                "tilt arccos<cos theta>, deg). Right: Cramer-Rao bound on the heading s.d. (deg) at each light level; dashed: a "
-               f"uniformly random heading ({CHANCE_RMS_DEG:.1f} deg)."
-               + (f" Dotted: the scenario's kappa = {marked_kappa:g}." if marked_kappa is not None else "")
+               f"uniformly random heading ({CHANCE_RMS_DEG:.1f} deg); grey band: bounds above "
+               f"{INFORMATIVE_BOUND_DEG:g} deg, not informative on a circle."
+               + (f" Dotted: the scenario's kappa = {marked_kappa:g} (order parameter <P2> = "
+                  f"{_order_parameter(marked_kappa):.2f})." if marked_kappa is not None else "")
                + (f" {params}." if params else ""))
     annotate(fig, title, caption)
     return finish(fig, path, formats, dpi)
+
+
+def _order_parameter(kappa: float) -> float:
+    """``<P2>`` of the von Mises-Fisher cone (:func:`retina.eye.ordering.order_parameter_from_kappa`)."""
+    from retina.eye.ordering import order_parameter_from_kappa
+
+    return order_parameter_from_kappa(float(kappa))
 
 
 def _kappa_to_angle(kappa):

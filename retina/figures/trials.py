@@ -1,6 +1,7 @@
 """Circular histograms of simulated orientation trials, with the mean vector and test statistics.
 
-Compass convention: 0 deg (magnetic north) at the top, angles increasing clockwise, as headings
+Compass convention: 0 deg (geographic north, the world x axis of :mod:`retina.eye.field`) at the
+top, angles increasing clockwise, as headings
 are counted in :mod:`retina.eye.pose`.
 """
 
@@ -23,7 +24,7 @@ def trial_histograms(headings_deg: Mapping[str, np.ndarray], goal_deg: float | N
     Parameters
     ----------
     headings_deg : mapping label -> ndarray (n,)
-        Chosen headings of the trials of each condition, degrees clockwise from magnetic north.
+        Chosen headings of the trials of each condition, degrees clockwise from geographic north.
     goal_deg : float, optional
         The intended heading, drawn as a dashed line.
     bins : int
@@ -68,7 +69,7 @@ def trial_histograms(headings_deg: Mapping[str, np.ndarray], goal_deg: float | N
             stats_txt.append(f"{lab}: n = {ang.size}, mean {mu:.1f} deg, r = {r:.3f}, Rayleigh p = {p:.3g}")
         fig.subplots_adjust(wspace=0.45, bottom=0.15)
     caption = ("Headings chosen in simulated orientation trials (circular histograms, "
-               f"{360 / bins:g} deg sectors, north up, clockwise); red arrow: mean vector (length r times the "
+               f"{360 / bins:g} deg sectors, geographic north up, clockwise); red arrow: mean vector (length r times the "
                "largest count); " + ("dashed: the goal heading " + f"{goal_deg:g} deg; " if goal_deg is not None else "")
                + "; ".join(stats_txt) + "." + (f" {params}." if params else ""))
     annotate(fig, title, caption)

@@ -82,6 +82,9 @@ class _FieldMap:
         ax.plot(ml, mb, "o", ms=5, mfc="w", mec="k", mew=0.8)
         if label_marks:
             ax.annotate("beak", (0, 0), xytext=(3, -8), textcoords="offset points", fontsize=6)
+            for side, lon0 in (("left eye", -1.0), ("right eye", 1.0)):  # azimuth < 0 is the bird's left
+                ax.text(lon0 * np.radians(110), np.radians(4), side, fontsize=6, ha="center", va="bottom",
+                        color="0.15")
             ax.annotate("B", (bl[0], bb[0]), xytext=(4, 2), textcoords="offset points", fontsize=6.5,
                         fontweight="bold")
             ax.annotate("-B", (ml[0], mb[0]), xytext=(4, 2), textcoords="offset points", fontsize=6.5,
@@ -114,7 +117,7 @@ def modulation_fields(visual_dirs, eye_index, modulation, headings_deg: Sequence
     modulation : ndarray (H, N)
         Relative modulation ``(Phi - mean) / mean`` (dimensionless) per heading and receptor.
     headings_deg : sequence of H floats
-        Heading (yaw, degrees clockwise from magnetic north) of each panel.
+        Heading (yaw, degrees clockwise from geographic north) of each panel.
     b_head : ndarray (H, 3)
         Unit field direction in the head frame for each heading.
     params : str
@@ -152,7 +155,7 @@ def modulation_fields(visual_dirs, eye_index, modulation, headings_deg: Sequence
                "scale symmetric about zero) over the "
                "visual fields of both eyes (Mollweide, head frame: azimuth right of the beak, elevation up; "
                "grid every 30 deg in elevation, 60 deg in azimuth), for headings "
-               + ", ".join(f"{x:g}" for x in headings) + " deg from magnetic north. "
+               + ", ".join(f"{x:g}" for x in headings) + " deg clockwise from geographic north. "
                "+ beak, dashed horizon, filled circle the field direction B, open circle -B. "
                f"Largest |modulation| {vlim:.3g} %." + (f" {params}." if params else ""))
     annotate(fig, title, caption)
