@@ -30,7 +30,16 @@ Conventions (owned here)
 - Precision curves: the Cramer-Rao bound on the rms heading error over uniformly distributed true
   headings, ``sqrt(mean_h 1 / I(h))`` over 360 grid headings, single pose and head scan; decoding error: rms of the wrapped decoding errors at
   ``readout.decode_repeats`` uniformly random true headings per photon level.  The disorder sweep
-  uses the bound from the heading-averaged information, ``1 / sqrt(mean_h I(h))``.
+  uses the bound from the heading-averaged information, ``1 / sqrt(mean_h I(h))``.  Bounds above
+  ``retina.readout.fisher.INFORMATIVE_BOUND_DEG`` are reported in words as not informative (the
+  numbers stay in the results file).  With ``readout.compare_nuisance`` the bounds of one pose and
+  of the scan are also computed with that further unknown (``precision/bound_*_compare_deg``).
+- Why a scan alone does not help when only the overall light level is unknown: the scan splits
+  the same photon budget over its poses, and Fisher information adds over poses, so the scan's
+  information is the average of the single-pose information over the headings it visits.  A scan
+  helps when it averages out an unknown that a single look cannot separate from the heading, such
+  as a head-fixed texture of unknown receptor sensitivities (``compare_nuisance =
+  "receptor_gain"``).
 """
 
 from __future__ import annotations
@@ -353,6 +362,14 @@ def compute_precision(sc: Scenario, model, fld, *, progress=None) -> dict:
         deck.append(error_summary(_decode_errors(mk, ph, ro["decode_repeats"], rng, offsets))["rms_deg"])
         if progress:
             progress(i + 1, photons.size)
+    cmp_n = ro.get("compare_nuisance", "none")
+    if cmp_n != "none":
+        zero = np.zeros(1)
+        out["compare_nuisance"] = cmp_n
+        out["info_per_photon_single_compare"] = mk.scan_information(zero, cmp_n)
+        out["info_per_photon_scan_compare"] = mk.scan_information(offsets, cmp_n)
+        out["bound_single_compare_deg"] = _rms_bound(photons, out["info_per_photon_single_compare"])
+        out["bound_scan_compare_deg"] = _rms_bound(photons, out["info_per_photon_scan_compare"])
     out["decoded_single_rms_deg"] = np.array(dec1)
     out["decoded_scan_rms_deg"] = np.array(deck)
     return out
@@ -663,11 +680,18 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
         q = g["precision"]
         n_scan = len(q["scan_offsets_deg"])
         light = dict(zip(*_light(res)))
-        fig = F.precision_curves(q["photons"], {"single pose": q["bound_single_deg"],
-                                                f"head scan ({n_scan} poses)": q["bound_scan_deg"]},
+        bounds = {"single pose": q["bound_single_deg"], f"head scan ({n_scan} poses)": q["bound_scan_deg"]}
+        cmp_n = q.get("compare_nuisance")
+        if cmp_n:
+            short = _COMPARE_SHORT.get(cmp_n, cmp_n)
+            for lab, key in (("single pose", "bound_single_compare_deg"), ("head scan", "bound_scan_compare_deg")):
+                if np.isfinite(q[key]).any():
+                    bounds[f"{lab}, {short}"] = q[key]
+        fig = F.precision_curves(q["photons"], bounds,
                                  decoded_deg={"single pose": q["decoded_single_rms_deg"],
                                               f"head scan ({n_scan} poses)": q["decoded_scan_rms_deg"]},
-                                 light_levels=light, params=params, path=folder / "precision_curves",
+                                 light_levels=light, params=params + _compare_caption(cmp_n),
+                                 path=folder / "precision_curves",
                                  formats=formats, dpi=dpi)
         add(fig, "precision_curves")
     if "disorder" in g:
@@ -690,6 +714,15 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     return entries
 
 
+def _compare_caption(cmp_n) -> str:
+    if cmp_n == "receptor_gain":
+        return ("; 'unknown texture': every receptor's sensitivity is also unknown (a head-fixed texture), so a "
+                "single pose carries no heading information (not drawn) and only the head scan recovers it")
+    if cmp_n == "pose_gain":
+        return "; 'unknown light per pose': the light level of every pose of the scan is also unknown"
+    return ""
+
+
 def _light(res: Results):
     import tomllib
 
@@ -703,6 +736,37 @@ def _light(res: Results):
         lv = res.groups["trials"]["levels"]
         names, photons = list(lv), [lv[n]["photons"] for n in lv]
     return list(names), [float(p) for p in photons]
+
+
+def _uninformative_note() -> str:
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG, UNIFORM_RMS_DEG
+
+    return (f"Bounds above {INFORMATIVE_BOUND_DEG:g} deg are shown as \"not informative\": the Cramer-Rao bound "
+            "is a local Gaussian approximation and means nothing once it spans much of the circle, where the "
+            f"decoding error saturates at the random-guess value {UNIFORM_RMS_DEG:.1f} deg instead (the numbers "
+            "are kept in results.h5).")
+
+
+_UNINFORMATIVE_NOTE = _uninformative_note()
+_HEADING_NOTE = "Headings are degrees clockwise from geographic north."
+_COMPARE_SHORT = {"receptor_gain": "unknown texture", "pose_gain": "unknown light per pose"}
+_COMPARE_TEXT = {"receptor_gain": "a head-fixed texture (every receptor's sensitivity)",
+                 "pose_gain": "the light level of every pose"}
+
+
+def _bound_text(bound_deg: float) -> str:
+    """A bound in degrees, or "not informative" (:func:`retina.readout.fisher.bound_is_informative`)."""
+    from retina.readout.fisher import bound_is_informative
+
+    if not np.isfinite(bound_deg):
+        return "no information"
+    return f"{bound_deg:.3g}" if bool(bound_is_informative(bound_deg)) else "not informative"
+
+
+def _typical_tilt_deg(kappa: float) -> float:
+    """arccos<cos theta> of a von Mises-Fisher cone, ``<cos theta> = coth kappa - 1 / kappa``."""
+    k = min(max(float(kappa), 1e-6), 1e6)
+    return float(np.degrees(np.arccos(1.0 / np.tanh(k) - 1.0 / k)))
 
 
 def key_numbers(res: Results) -> list:
@@ -732,7 +796,10 @@ def key_numbers(res: Results) -> list:
         rows = [(f"modulation depth at heading {h:g} deg", f"{100 * d:.3f}", "%")
                 for h, d in zip(p["headings_deg"], p["depth"])]
         rows.append(("largest |relative modulation|", f"{100 * np.abs(p['modulation']).max():.3f}", "%"))
-        secs.append(Section("Modulation pattern", rows))
+        secs.append(Section("Modulation pattern", rows, note=(
+            "Modulation depth: (largest - smallest) / mean of the receptor yields, taken over the receptors "
+            "of both eyes together. Relative modulation: each receptor's yield relative to the solid-angle-"
+            f"weighted mean yield of its own eye. {_HEADING_NOTE}")))
     if "scan" in g:
         s = g["scan"]
         secs.append(Section("Head scan", [
@@ -746,31 +813,67 @@ def key_numbers(res: Results) -> list:
         q = g["precision"]
         rows = []
         n_scan = len(q["scan_offsets_deg"])
+        cmp_n = q.get("compare_nuisance")
         for i, ph in enumerate(q["photons"]):
             rows.append((f"{ph:g} photons/receptor: bound single pose, scan | rms decoding error single pose, scan",
-                         f"{q['bound_single_deg'][i]:.3g}, {q['bound_scan_deg'][i]:.3g} | "
+                         f"{_bound_text(q['bound_single_deg'][i])}, {_bound_text(q['bound_scan_deg'][i])} | "
                          f"{q['decoded_single_rms_deg'][i]:.3g}, {q['decoded_scan_rms_deg'][i]:.3g}", "deg"))
-        secs.append(Section("Heading precision", rows, note="Cramer-Rao bound on the heading standard deviation "
-                            "(rms over uniformly distributed headings) and the rms error of maximum-likelihood "
-                            f"decoding at random headings, for one pose and for the head scan ({n_scan} poses "
-                            "sharing the same light)."))
+        if cmp_n:
+            for i, ph in enumerate(q["photons"]):
+                rows.append((f"{ph:g} photons/receptor, {_COMPARE_SHORT.get(cmp_n, cmp_n)}: bound single pose, scan",
+                             f"{_bound_text(q['bound_single_compare_deg'][i])}, "
+                             f"{_bound_text(q['bound_scan_compare_deg'][i])}", "deg"))
+        note = ("Cramer-Rao bound on the heading standard deviation (rms over uniformly distributed headings) "
+                "and the rms error of maximum-likelihood decoding at random headings, for one pose and for the "
+                f"head scan ({n_scan} poses sharing the same light). {_UNINFORMATIVE_NOTE} "
+                "With only the overall light level unknown, the scan's bound equals the single pose's: the scan "
+                "splits the same photon budget over its poses and information adds over poses, so it only "
+                "averages the single-pose information over the headings it visits (the small difference).")
+        if cmp_n:
+            note += (f" With {_COMPARE_TEXT.get(cmp_n, cmp_n)} also unknown (scenario key "
+                     f"readout.compare_nuisance = \"{cmp_n}\"; bounds only), "
+                     + ("a single pose carries no heading information at all (each receptor's count is explained "
+                        "by its own sensitivity), while the scan, which moves the field across the fixed receptors, "
+                        "recovers it: this is where scanning helps." if cmp_n == "receptor_gain" else
+                        "each pose's count total is spent on its own light level."))
+        secs.append(Section("Heading precision", rows, note=note))
     if "disorder" in g:
         d = g["disorder"]
-        rows = [(f"kappa = {k:g}: modulation depth", f"{100 * dp:.3f}", "%") for k, dp in zip(d["kappas"], d["depth"])]
-        secs.append(Section("Disorder tolerance", rows))
+        from retina.eye.ordering import order_parameter_from_kappa
+
+        names, _ = _light(res)
+        rows = []
+        for j, (k, dp) in enumerate(zip(d["kappas"], d["depth"])):
+            tilt = _typical_tilt_deg(k)
+            rows.append((f"kappa = {k:g} (<P2> = {order_parameter_from_kappa(k):.3f}, typical tilt "
+                         f"{tilt:.0f} deg): modulation depth", f"{100 * dp:.3f}", "%"))
+            for i, ph in enumerate(d["light_photons"]):
+                nm = names[i] if i < len(names) else f"{ph:g} photons"
+                rows.append((f"kappa = {k:g}: bound, {nm} ({ph:g} photons)", _bound_text(d["bound_deg"][i][j]),
+                             "deg"))
+        secs.append(Section("Disorder tolerance", rows, note=(
+            "Molecular z axes in a von Mises-Fisher cone of concentration kappa about each receptor axis; "
+            "<P2> = <(3 cos^2 theta - 1) / 2> is the order parameter (1 perfect order, 0 none) and the typical "
+            "tilt is arccos<cos theta>. Modulation depth as above, averaged over the scenario's headings; bound "
+            f"from the heading-averaged information of a single pose. {_UNINFORMATIVE_NOTE}")))
     if "trials" in g:
         t = g["trials"]
         rows = []
         for nm, lv in t["levels"].items():
             rows += [(f"{nm} ({lv['photons']:g} photons): mean heading", f"{lv['mean_deg']:.1f}", "deg"),
                      (f"{nm}: mean vector length r", f"{lv['r']:.3f}", ""),
+                     (f"{nm}: Rayleigh z = n r^2", f"{len(lv['chosen_deg']) * lv['r'] ** 2:.3g}", ""),
                      (f"{nm}: Rayleigh p", f"{lv['rayleigh_p']:.3g}", ""),
                      (f"{nm}: V-test u (goal {t['goal_deg']:g} deg)", f"{lv['v_u']:.2f} (p = {lv['v_p']:.2g})", ""),
                      (f"{nm}: ambiguous decodes", f"{100 * np.mean(lv['ambiguous']):.0f}", "%"),
                      (f"{nm}: rms decoding error", f"{np.sqrt(np.mean(np.asarray(lv['error_deg']) ** 2)):.2f}",
                       "deg"),
                      (f"{nm}: trials", f"{len(lv['chosen_deg'])}", "")]
-        secs.append(Section("Simulated orientation trials", rows))
+        secs.append(Section("Simulated orientation trials", rows, note=(
+            f"Chosen headings, their mean and the goal are in degrees clockwise from geographic north; magnetic "
+            f"north lies {g['field']['D_deg']:g} deg east of it (declination). The simulated bird knows the field "
+            "it reads, so it decodes geographic heading. Rayleigh test p from Zar's approximation; V-test "
+            "against the goal, p from the normal tail (Zar 2010, ch. 27).")))
     return secs
 
 
@@ -938,6 +1041,12 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     return 0
 
 
+def _informative() -> float:
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+    return INFORMATIVE_BOUND_DEG
+
+
 def summary_text(res: Results, paths: dict, seconds: float) -> str:
     """A few lines in words for stdout."""
     g = res.groups
@@ -951,7 +1060,8 @@ def summary_text(res: Results, paths: dict, seconds: float) -> str:
     if "precision" in g:
         q = g["precision"]
         lines.append("  heading bound (single pose): " + ", ".join(
-            f"{b:.3g} deg at {p:g} photons" for p, b in zip(q["photons"], q["bound_single_deg"])))
+            (f"{b:.3g} deg" if np.isfinite(b) and b <= _informative() else "not informative")
+            + f" at {p:g} photons" for p, b in zip(q["photons"], q["bound_single_deg"])))
     if "trials" in g:
         for nm, lv in g["trials"]["levels"].items():
             lines.append(f"  trials, {nm} light: mean {lv['mean_deg']:.0f} deg, r = {lv['r']:.2f}, "

@@ -133,7 +133,7 @@ def render_markdown(title: str, sections: Sequence[Section], figures: Sequence[F
     out += ["## Figures", ""]
     for i, f in enumerate(figures, 1):
         links = ", ".join(f"[{fmt.upper()}]({f.stem}.{fmt})" for fmt in f.formats)
-        out += [f"![{f.title}]({f.shown})", "", f"**Figure {i}. {f.title}.** {f.caption} ({links})", ""]
+        out += [f"![{f.title}]({f.shown})", "", f"**Figure {i}. {f.title}.** {f.caption}" + (f" ({links})" if links else ""), ""]
     if provenance:
         out += ["## Provenance", "", "| key | value |", "|---|---|"]
         out += [f"| {_md_cell(k)} | {_md_cell(v)} |" for k, v in _flat(provenance)]

@@ -56,7 +56,13 @@ Schema (section, key, type, default; units in the key name)
     ``photons`` (list of floats > 0, log-spaced 10..1e6): photon levels of the precision curves,
     ``decode_repeats`` (int >= 1, 200): noisy decodings per photon level for the decoding error,
     ``nuisance`` ("none" | "gain", "gain"): whether the readout must also infer the overall light
-    level (see :mod:`retina.readout.fisher`).
+    level (see :mod:`retina.readout.fisher`),
+    ``compare_nuisance`` ("receptor_gain" | "pose_gain" | "none", "receptor_gain"): a further unknown
+    for which the bounds of one pose and of the head scan are also computed (bounds only):
+    "receptor_gain" an unknown head-fixed texture (every receptor has its own unknown sensitivity,
+    fixed during the scan: one pose then carries no heading information, a scan does),
+    "pose_gain" a light level that changes unknown from pose to pose, "none" no comparison
+    (:mod:`retina.readout.scans`).
 ``[trials]``
     ``n_trials`` (int >= 1, 40): simulated orientation trials per light level,
     ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take,
@@ -203,6 +209,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
                        check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
         "decode_repeats": Key("int", 200, check=_rng(1, 10**6)),
         "nuisance": Key("choice", "gain", choices=("none", "gain")),
+        "compare_nuisance": Key("choice", "receptor_gain", choices=("receptor_gain", "pose_gain", "none")),
     },
     "trials": {
         "n_trials": Key("int", 40, check=_rng(1, 10**6)),

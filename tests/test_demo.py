@@ -268,3 +268,44 @@ def test_pattern_change_per_degree_matches_finite_differences(synthetic):
     ym = m.yields(head_field(pose_rotation(s["yaw_deg"] - h), fld.vector))
     rel = (yp - ym) / (2 * h) / s["yields"]
     assert np.allclose(s["change_per_degree"], np.sqrt(np.mean(rel ** 2, axis=1)), rtol=1e-6)
+
+
+def test_report_words_uninformative_bounds_and_explains_the_scan(demo_dir):
+    md = (demo_dir / "report.md").read_text()
+    with h5py.File(demo_dir / "results.h5") as h:
+        q = {k: h["precision"][k][()] for k in h["precision"]}
+        cmp_n = h["precision"].attrs["compare_nuisance"]
+    # Derived: a Cramer-Rao bound above 60 deg (retina.readout.fisher.INFORMATIVE_BOUND_DEG) is no
+    # statement about a circular estimate; the report says so in words and keeps the number in HDF5.
+    assert q["photons"][0] == 1.0 and q["bound_single_deg"][0] > 60.0
+    row = next(line for line in md.splitlines() if line.startswith("| 1 photons/receptor: bound"))
+    assert "not informative" in row and f"{q['bound_single_deg'][0]:.3g}" not in row.split("\\|")[0]
+    assert "103.9 deg" in md and "splits the same photon budget" in md
+    # Derived (retina.readout.scans): with an unknown gain per receptor, one pose gives
+    # sum dlam^2/lam - sum_i dlam_i^2/lam_i = 0 exactly; a scan moves the field across the receptors.
+    assert cmp_n == "receptor_gain"
+    assert np.all(np.isinf(q["bound_single_compare_deg"]))
+    assert np.isfinite(q["bound_scan_compare_deg"][-1]) and q["bound_scan_compare_deg"][-1] < 60.0
+    assert q["bound_scan_compare_deg"][-1] > q["bound_scan_deg"][-1]  # a further unknown costs information
+    assert "no information" in md and "this is where scanning helps" in md
+    assert "()" not in md  # every figure has its file links, the animation none
+
+
+def test_report_states_order_parameter_depth_and_north(demo_dir):
+    from scipy import stats
+
+    md = (demo_dir / "report.md").read_text()
+    with h5py.File(demo_dir / "results.h5") as h:
+        kap = h["disorder/kappas"][()]
+        dim = h["trials/levels/dim/chosen_deg"][()]
+        decl = h["field"].attrs["D_deg"]
+    # Derived: vMF polar density ~ exp(kappa cos t); <P2> = 1 - 3 (coth k - 1/k) / k.
+    for k in kap:
+        p2 = 1 - 3 * (1 / np.tanh(k) - 1 / k) / k
+        assert f"kappa = {k:g} (<P2> = {p2:.3f}" in md
+    assert "(largest - smallest) / mean of the receptor yields" in md
+    assert "clockwise from geographic north" in md and f"lies {decl:g} deg east" in md
+    # Source: Zar (2010) eq. 27.1-27.2, Rayleigh z = R^2 / n = n r^2; r from scipy.stats.directional_stats.
+    a = np.radians(dim)
+    r = stats.directional_stats(np.stack([np.cos(a), np.sin(a)], axis=1)).mean_resultant_length
+    assert f"| dim: Rayleigh z = n r^2 | {a.size * r ** 2:.3g} |" in md

@@ -94,6 +94,9 @@ def test_location_and_native_toml_date(folder):
      "eyes", "one left and one right"),
     (MINIMAL + "\n[[eyes]]\nside = 'right'\n", "eyes[0].azimuth_deg", "missing required key"),
     (MINIMAL + "\n[pose]\nheadings_deg = [0.0, nan]\n", "pose.headings_deg", "finite"),
+    (MINIMAL + "\n[readout]\ncompare_nuisance = 'texture'\n", "readout.compare_nuisance", "receptor_gain"),
+    (MINIMAL.replace("inclination_deg = 64.0", "inclination_deg = 120.0"), "field.inclination_deg", "<= 90"),
+    (MINIMAL + "\n[[eyes]]\nside = 'right'\nazimuth_deg = 60.0\nextent_deg = 0.0\n", "eyes[0].extent_deg", ">= 1"),
 ])
 def test_bad_scenarios_name_file_key_and_expectation(folder, text, key, expect):
     p = write(folder, text)
