@@ -36,7 +36,8 @@ Conventions (owned here)
   of the scan are also computed with that further unknown (``precision/bound_*_compare_deg``).
 - Why a scan alone does not help when only the overall light level is unknown: the scan splits
   the same photon budget over its poses, and Fisher information adds over poses, so the scan's
-  information is the average of the single-pose information over the headings it visits.  A scan
+  information is about the average of the single-pose information over the headings it visits
+  (a shared gain is pinned down slightly better, :mod:`retina.readout.scans`).  A scan
   helps when it averages out an unknown that a single look cannot separate from the heading, such
   as a head-fixed texture of unknown receptor sensitivities (``compare_nuisance =
   "receptor_gain"``).
@@ -828,7 +829,9 @@ def key_numbers(res: Results) -> list:
                 f"head scan ({n_scan} poses sharing the same light). {_UNINFORMATIVE_NOTE} "
                 "With only the overall light level unknown, the scan's bound equals the single pose's: the scan "
                 "splits the same photon budget over its poses and information adds over poses, so it only "
-                "averages the single-pose information over the headings it visits (the small difference).")
+                "averages the single-pose information over the headings it visits (the small remaining gain comes "
+                "from that average being taken before the bound is inverted, and from one light level being shared "
+                "by all poses).")
         if cmp_n:
             note += (f" With {_COMPARE_TEXT.get(cmp_n, cmp_n)} also unknown (scenario key "
                      f"readout.compare_nuisance = \"{cmp_n}\"; bounds only), "

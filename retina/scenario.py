@@ -48,7 +48,8 @@ Schema (section, key, type, default; units in the key name)
     ``declination_deg`` (-180..180, east of north); or ``latitude_deg``, ``longitude_deg``,
     ``altitude_km`` (0.0), ``date`` (TOML date or "YYYY-MM-DD"), evaluated with the IGRF.
 ``[pose]``
-    ``headings_deg`` (list of floats, [0, 90, 180, 270]), ``pitch_deg`` (0.0), ``roll_deg`` (0.0).
+    ``headings_deg`` (list of floats, [0, 90, 180, 270]; yaw, degrees clockwise from geographic north),
+    ``pitch_deg`` (0.0), ``roll_deg`` (0.0).
 ``[scan]``
     ``heading_deg`` (float, 0.0): centre of the head scan, ``amplitude_deg`` (float 0..180, 60.0):
     the scan sweeps heading +/- amplitude, ``steps`` (int 2..721, 25), ``pitch_deg`` (0.0).
@@ -65,7 +66,8 @@ Schema (section, key, type, default; units in the key name)
     (:mod:`retina.readout.scans`).
 ``[trials]``
     ``n_trials`` (int >= 1, 40): simulated orientation trials per light level,
-    ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take,
+    ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take (degrees clockwise
+    from geographic north, like every heading here; magnetic north lies ``declination_deg`` east),
     ``scan_steps`` (int >= 1, 9): head-scan poses integrated per trial.
 ``[output]``
     ``dir`` (path, "retina-results"), ``formats`` (list from "png", "svg", "pdf", ["png", "svg"]),
