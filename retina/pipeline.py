@@ -875,7 +875,9 @@ def key_numbers(res: Results) -> list:
         secs.append(Section("Simulated orientation trials", rows, note=(
             f"Chosen headings, their mean and the goal are in degrees clockwise from geographic north; magnetic "
             f"north lies {g['field']['D_deg']:g} deg east of it (declination). The simulated bird knows the field "
-            "it reads, so it decodes geographic heading. Rayleigh test p from Zar's approximation; V-test "
+            "it reads, so it decodes geographic heading. A bird whose decode is ambiguous (two likelihood peaks, "
+            "typically 180 deg apart) picks one at random, which is included in the rms decoding error. "
+            "Rayleigh test p from Zar's approximation; V-test "
             "against the goal, p from the normal tail (Zar 2010, ch. 27).")))
     return secs
 
