@@ -114,6 +114,9 @@ def test_default_eyes_are_mirror_images():
     np.testing.assert_allclose(r.positions[L], r.positions[R] * M, atol=1e-13)
     np.testing.assert_allclose(r.solid_angle[L], r.solid_angle[R])
     assert left.azimuth_deg == -right.azimuth_deg
+    # Derived (head frame y = right): the left eye looks to the bird's left, the right eye to its right.
+    assert r.visual_dirs[L].mean(axis=0)[1] < -0.3 and r.visual_dirs[R].mean(axis=0)[1] > 0.3
+    assert left.side == "left" and np.all(r.eye_index[L] == 0)
 
 
 def test_bad_eyes():
