@@ -125,8 +125,9 @@ def test_zero_amplitude_reproduces_static_methods():
         got = rf.yields_rf(rich, 50.0, dirs, rf_MHz=1.4, rf_nT=0.0, rf_direction=direction)
         np.testing.assert_allclose(got, liouville.yields(rich, 50.0, dirs), atol=1e-10, rtol=0)
     eq = one_proton_pair()
-    got = rf.yields_rf(eq, 47.0, dirs, rf_MHz=3.0, rf_nT=0.0, solver="splu")
-    np.testing.assert_allclose(got, hilbert.yields(eq, 47.0, dirs), atol=1e-10, rtol=0)
+    for solver in ("sylvester", "splu"):
+        got = rf.yields_rf(eq, 47.0, dirs, rf_MHz=3.0, rf_nT=0.0, solver=solver)
+        np.testing.assert_allclose(got, hilbert.yields(eq, 47.0, dirs), atol=1e-10, rtol=0)
 
 
 def test_bare_pair_stays_singlet_under_any_rf():
@@ -217,16 +218,18 @@ def test_truncation_order_and_azimuths_converged():
     assert abs(yp2[0] - yp[0]) < 2 * tol
 
 
-def test_block_elimination_matches_sparse_lu():
-    # Reference: scipy.sparse.linalg.splu on the assembled (2N+1) d^2 system against the dense
-    # block elimination (matrix continued fraction); both solve the same truncated system, so they
-    # agree to round-off (1e-12), for the average and at a fixed phase.
+def test_solvers_agree():
+    # Reference: scipy.sparse.linalg.splu on the assembled (2N+1) d^2 system, against the dense block
+    # elimination (matrix continued fraction), the Liouville-eigenbasis GMRES and the Hilbert-space
+    # Sylvester GMRES: four solutions of the same truncated system, so they agree to round-off
+    # (1e-12), for the average and at a fixed phase, with relaxation and unequal rates.
     sys_, dirs = rich_pair(), unit([[0.1, 0.2, 1.0], [1.0, 0.0, 0.0]])
     kw = dict(rf_MHz=0.9, rf_nT=8000.0, rf_direction=[0.0, 1.0, 1.0], harmonics=6, phase_deg=123.0)
-    a1, p1 = rf.yields_rf(sys_, 50.0, dirs, solver="blocks", **kw)
-    a2, p2 = rf.yields_rf(sys_, 50.0, dirs, solver="splu", **kw)
-    np.testing.assert_allclose(a1, a2, atol=1e-12, rtol=0)
-    np.testing.assert_allclose(p1, p2, atol=1e-12, rtol=0)
+    a1, p1 = rf.yields_rf(sys_, 50.0, dirs, solver="splu", **kw)
+    for solver in ("blocks", "eig", "sylvester"):
+        a2, p2 = rf.yields_rf(sys_, 50.0, dirs, solver=solver, **kw)
+        np.testing.assert_allclose(a2, a1, atol=1e-12, rtol=0)
+        np.testing.assert_allclose(p2, p1, atol=1e-12, rtol=0)
     # Derived: the mean over 16 equally spaced phases of the fixed-phase yield is the average
     # (exact for harmonics |n| < 16; the truncation keeps |n| <= 6).
     fixed = dict(rf_MHz=0.9, rf_nT=8000.0, rf_direction=[0.0, 1.0, 1.0], harmonics=6)
@@ -273,12 +276,18 @@ def test_bad_input_is_refused(kw, key):
 
 
 def test_large_system_is_refused_before_allocating():
-    # Derived: the demo pair has d = 576, so one Liouville block alone is 576^4 complex entries (~1.7 TB).
+    # Derived: the demo pair has d = 576, so one Liouville block alone is 576^4 complex entries
+    # (~1.7 TB, refused by the Liouville-space solvers); the Hilbert-space solver needs about
+    # 52 x 9 x 576^2 x 16 bytes ~ 2.5 GB at order 4, refused under a 1 GiB limit.
     from retina.spin.io import load_system
 
     demo = load_system(ROOT / "assets" / "demo_pair.toml")
+    for solver in ("blocks", "eig", "splu"):
+        with pytest.raises(ResourceError, match="Floquet space"):
+            rf.yields_rf(demo, 50.0, [[0, 0, 1]], rf_MHz=1.4, rf_nT=50.0, solver=solver)
+    assert 2e9 < rf.floquet_bytes(demo, 4) < 3e9
     with pytest.raises(ResourceError, match="Floquet space"):
-        rf.yields_rf(demo, 50.0, [[0, 0, 1]], rf_MHz=1.4, rf_nT=50.0)
+        rf.yields_rf(demo, 50.0, [[0, 0, 1]], rf_MHz=1.4, rf_nT=50.0, max_bytes=2**30)
 
 
 # ------------------------------------------------------------------------------------------ command
@@ -370,3 +379,15 @@ def test_command_exit_codes_through_the_cli(tmp_path, capsys, monkeypatch):
     assert main(["rf", str(system), "--rf-MHz", "1.4", "--rf-nT", "50", "--degree", "2", "-o", str(out), "-q"]) == 130
     assert not out.exists() and not list(tmp_path.glob("*.part"))
     assert "Modelling only; RF transmitters are regulated" in retina.commands.rf._EXAMPLES
+
+
+def test_iterative_solvers_hand_over_to_block_elimination(monkeypatch):
+    # Reference: the block elimination.  With the eigenvector-condition limit forced to 0 every
+    # direction takes the fallback path of the "sylvester" and "eig" solvers, which must give the
+    # same yields (1e-12).
+    sys_, dirs = rich_pair(), unit([[0.3, -0.2, 1.0]])
+    kw = dict(rf_MHz=1.2, rf_nT=4000.0, rf_direction="parallel", harmonics=4)
+    ref = rf.yields_rf(sys_, 50.0, dirs, solver="blocks", **kw)
+    monkeypatch.setattr(rf, "_COND_LIMIT", 0.0)
+    for solver in ("sylvester", "eig"):
+        np.testing.assert_allclose(rf.yields_rf(sys_, 50.0, dirs, solver=solver, **kw), ref, atol=1e-12, rtol=0)

@@ -162,7 +162,7 @@ def run(args) -> int:
         raise InputError("is a folder; expected the name of the HDF5 file to write", source=args.output,
                          key="--output")
     check_writable(args.output, force=args.force)
-    rf._check_memory(system, 8, "blocks", max_bytes)
+    rf._check_memory(system, 4, "auto", max_bytes)
 
     bar = None
     if not args.quiet:

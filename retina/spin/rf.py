@@ -46,18 +46,27 @@ The phase average of ``Y`` is ``a_0 . vec(rho0)`` and the yield at phase ``theta
 With ``harmonics="auto"`` the order is doubled (1, 2, 4, ...) until the phase-averaged yield changes
 by less than ``tol``; the order used is reported.
 
-Two solvers of the truncated block-tridiagonal system (``2N + 1`` blocks of size ``D = d^2``):
+Four solvers of the truncated block-tridiagonal system (``2N + 1`` blocks of size ``D = d^2``), all
+exact for the truncated system and agreeing to round-off (tested):
 
+- ``"sylvester"`` (the default): the same equations for the (d, d) matrices ``X_n`` with
+  ``vec(X_n) = a_n``, in Hilbert space: GMRES preconditioned by the exact inverse of the Sylvester
+  part of each diagonal block, through one eigen-decomposition of the (d, d) effective Hamiltonian
+  per static field direction (shared by every RF azimuth and Floquet order).  Memory O(N d^2), time
+  O(d^3) per GMRES step; details in :class:`_Sylvester`.
+- ``"eig"``: GMRES in the eigenbasis of the (D, D) matrix ``L(B0)^T``, preconditioned by the exact
+  inverse of the diagonal blocks ``L(B0)^T + i n w``.
 - ``"blocks"``: elimination from both ends (a matrix continued fraction).  With
   ``D_n = L0^T + i n w`` and ``C = L1^T / 2``, ``a_n = S_n a_{n-1}`` for ``n >= 1`` with
   ``S_N = -D_N^-1 C`` and ``S_n = -(D_n + C S_{n+1})^-1 C``; likewise ``a_{-n} = R_n a_{-n+1}``
-  with ``D_{-n}``; then ``(D_0 + C S_1 + C R_1) a_0 = -q``.  Dense (D, D) blocks, memory about
-  ``4 D^2`` complex numbers whatever ``N``.
+  with ``D_{-n}``; then ``(D_0 + C S_1 + C R_1) a_0 = -q``.  Dense (D, D) blocks.
 - ``"splu"``: one sparse LU factorisation (``scipy.sparse.linalg.splu``) of the whole
   ``(2N + 1) D`` system.
 
-Both are exact for the truncated system and agree to round-off (tested).  ``"auto"`` takes
-``"blocks"``.
+The iterative solvers check the residual of the full system and hand a direction to ``"blocks"``
+(pairs with ``d <= 32``) when it is not below ``1e-11`` relative, or when the eigenvectors are
+ill-conditioned (near an exceptional point).  :func:`floquet_bytes` estimates the memory, and
+:class:`retina.errors.ResourceError` refuses a job that would not fit before anything is allocated.
 
 RF direction
 ------------
@@ -99,7 +108,13 @@ __all__ = ["RFSpectrum", "yields_rf", "rf_yield_function", "rf_spectrum", "floqu
 MAX_HARMONICS = 256
 #: Largest number of azimuths tried for ``rf_direction="perpendicular"``.
 MAX_AZIMUTHS = 64
-_SOLVERS = ("auto", "blocks", "splu")
+_SOLVERS = ("auto", "sylvester", "eig", "blocks", "splu")
+#: Eigenvector condition estimate above which the "eig" solver hands a direction to "blocks".
+_COND_LIMIT = 1e7
+#: Relative residual of the Floquet system above which the "eig" solver hands over to "blocks".
+_RESID_LIMIT = 1e-11
+#: Up to this Hilbert dimension the Liouvillians are assembled and kept dense.
+_DENSE_UP_TO = 32
 
 
 # ------------------------------------------------------------------------------------------ checks
@@ -181,18 +196,27 @@ def _check_tol(tol, source=None):
 
 # ------------------------------------------------------------------------------------------ memory
 
-def floquet_bytes(system, harmonics: int = 8, solver: str = "auto") -> int:
-    """Estimated peak working memory (bytes) of one Floquet solve.
+def floquet_bytes(system, harmonics: int = 4, solver: str = "auto") -> int:
+    """Estimated peak working memory (bytes) of one Floquet solve at order ``N = harmonics``.
 
-    ``"blocks"``: about 6 dense (D, D) complex blocks (``D = d^2``) plus the sparse Liouvillians;
-    ``"splu"``: the LU fill of the block-tridiagonal system, taken as 3 dense blocks per block row
-    (24 bytes per stored entry: complex value and index), ``2N + 1`` block rows.
+    With ``m = 2N + 1`` harmonics, ``d`` the Hilbert and ``D = d^2`` the Liouville dimension:
+    ``"sylvester"`` keeps about ``52 m`` (d, d) complex matrices (40 Krylov vectors of ``m`` blocks
+    and the working arrays), plus the ``"blocks"`` estimate when ``d <= 32`` (its fallback);
+    ``"eig"`` about 8 dense (D, D) complex matrices plus 60 Krylov vectors of length ``m D``;
+    ``"blocks"`` about ``6 + 2N`` dense (D, D) blocks; ``"splu"`` the LU fill of the
+    block-tridiagonal system, taken as 3 dense blocks per block row at 24 bytes per entry.
     """
-    dd = system.dimension ** 2
-    base = 8 * 24 * dd * max(4, system.dimension)  # sparse L0, Lx, Ly, Lz and their transposes
+    d = system.dimension
+    dd = d * d
+    m = 2 * int(harmonics) + 1
+    blocks = 16 * (6 + 2 * int(harmonics)) * dd * dd + 8 * 24 * dd * max(4, d)
+    if solver in ("auto", "sylvester"):
+        return int(16 * dd * (52 * m + 24) + (blocks if d <= _DENSE_UP_TO else 0))
+    if solver == "eig":
+        return int(16 * 8 * dd * dd + 16 * 60 * m * dd)
     if solver == "splu":
-        return int(24 * 3 * (2 * harmonics + 1) * dd * dd + base)
-    return int(6 * 16 * dd * dd + base)
+        return int(24 * 3 * m * dd * dd + 8 * 24 * dd * max(4, d))
+    return int(blocks)
 
 
 def _check_memory(system, harmonics, solver, max_bytes):
@@ -218,11 +242,28 @@ class _Floquet:
         from retina.spin.liouville import check_scope
 
         check_scope(system)
-        l0, lb, space = ops.liouvillian_parts(system)
+        space = ops.pair_space(system)
         self.space = space
-        self.d = space.dimension
-        self.l0t = l0.T.tocsr()
-        self.lbt = [m.T.tocsr() for m in lb]
+        self.d = d = space.dimension
+        self.dense = d <= _DENSE_UP_TO
+        if self.dense:  # small pairs: dense Kronecker assembly (cheaper than sparse bookkeeping)
+            parts = ops.hamiltonian_parts(system)
+            eye = np.eye(d)
+
+            def comm(h):
+                return np.kron(h, eye) - np.kron(eye, h.T)
+
+            ps = ops.singlet_projector(space)
+            kmat = float(system.k_singlet) * ps + float(system.k_triplet) * (eye - ps)
+            l0 = -1j * comm(parts.h0) - 0.5 * (np.kron(kmat, eye) + np.kron(eye, kmat.T))
+            if system.relaxation.any:
+                l0 = l0 + ops.relaxation_superoperator(system, space).toarray()
+            self.l0t = np.ascontiguousarray(l0.T)
+            self.lbt = [np.ascontiguousarray((-1j * comm(h)).T) for h in parts.hb]
+        else:
+            l0, lb, _ = ops.liouvillian_parts(system)
+            self.l0t = l0.T.tocsr()
+            self.lbt = [m.T.tocsr() for m in lb]
         self.rho0 = ops.initial_density(system, space).reshape(-1)
         if system.reported_yield == "singlet":
             p = ops.singlet_projector(space) * float(system.k_singlet)
@@ -231,19 +272,25 @@ class _Floquet:
         self.q = p.T.reshape(-1).astype(complex)
 
     def static_t(self, b_t):
-        """``L(B0)^T`` (sparse CSR) for a field vector in tesla."""
-        return (self.l0t + b_t[0] * self.lbt[0] + b_t[1] * self.lbt[1] + b_t[2] * self.lbt[2]).tocsr()
+        """``L(B0)^T`` (dense for small pairs, else sparse CSR) for a field vector in tesla."""
+        out = self.l0t + b_t[0] * self.lbt[0] + b_t[1] * self.lbt[1] + b_t[2] * self.lbt[2]
+        return out if self.dense else out.tocsr()
 
     def rf_t(self, b1_t):
-        """``L1^T`` (sparse CSR) for an RF amplitude vector in tesla."""
-        return (b1_t[0] * self.lbt[0] + b1_t[1] * self.lbt[1] + b1_t[2] * self.lbt[2]).tocsr()
+        """``L1^T`` (dense for small pairs, else sparse CSR) for an RF amplitude vector in tesla."""
+        out = b1_t[0] * self.lbt[0] + b1_t[1] * self.lbt[1] + b1_t[2] * self.lbt[2]
+        return out if self.dense else out.tocsr()
+
+    @staticmethod
+    def as_dense(m):
+        return m if isinstance(m, np.ndarray) else m.toarray()
 
     # -- solvers: return the harmonics a_n, shape (2N + 1, D), n = -N..N (or only a_0 when phase is None)
 
     def solve_blocks(self, lt, ct, omega, n_h, want_all):
         dd = self.d * self.d
-        lt_d = lt.toarray()
-        c = 0.5 * ct.toarray()
+        lt_d = self.as_dense(lt)
+        c = 0.5 * self.as_dense(ct)
         eye = np.eye(dd)
         if n_h == 0:
             a0 = np.linalg.solve(lt_d, -self.q)
@@ -271,6 +318,7 @@ class _Floquet:
         dd = self.d * self.d
         m = 2 * n_h + 1
         ns = np.arange(-n_h, n_h + 1)
+        lt, ct = sp.csr_matrix(lt), sp.csr_matrix(ct)
         big = sp.kron(sp.identity(m, format="csr"), lt) + sp.kron(sp.diags(1j * omega * ns), sp.identity(dd))
         if n_h > 0:
             off = sp.diags([np.ones(m - 1), np.ones(m - 1)], [-1, 1])
@@ -285,12 +333,188 @@ class _Floquet:
         x = x.reshape(m, dd)
         return x if want_all else x[n_h:n_h + 1]
 
+    def prepare_eig(self, lt):
+        """Eigen-decomposition ``L(B0)^T = W diag(lam) W^-1`` for the ``"eig"`` solver (None if ill-conditioned)."""
+        lam, w = np.linalg.eig(lt)
+        try:
+            winv = np.linalg.inv(w)
+        except np.linalg.LinAlgError:
+            return None
+        cond = np.linalg.norm(w) * np.linalg.norm(winv) / lam.size
+        if not np.isfinite(cond) or cond > _COND_LIMIT:
+            return None
+        return lam, w, winv
+
+    def solve_eig(self, lt, ct, omega, n_h, want_all, eig):
+        """GMRES on the Floquet system in the eigenbasis of ``L(B0)^T``, preconditioned by the exact
+        inverse of its diagonal blocks; the residual of the original system is checked, and the
+        block elimination answers when it is not small enough."""
+        if eig is None:
+            return self.solve_blocks(lt, ct, omega, n_h, want_all)
+        lam, w, winv = eig
+        dd = lam.size
+        m = 2 * n_h + 1
+        ns = np.arange(-n_h, n_h + 1)
+        denom = lam[None, :] + 1j * omega * ns[:, None]  # (m, D): the diagonal blocks in the eigenbasis
+        c = 0.5 * ct
+        wt, winvt = w.T, winv.T
+
+        def couple(y):  # C' (y_{n-1} + y_{n+1}) in the eigenbasis, y of shape (m, D)
+            s = np.zeros_like(y)
+            s[1:] += y[:-1]
+            s[:-1] += y[1:]
+            return ((s @ wt) @ c.T) @ winvt
+
+        def apply(v):
+            y = v.reshape(m, dd)
+            return (y + couple(y) / denom).reshape(-1)
+
+        rhs = np.zeros((m, dd), dtype=complex)
+        rhs[n_h] = -(winv @ self.q) / denom[n_h]
+        if n_h == 0:
+            y = rhs
+        else:
+            op = spla.LinearOperator((m * dd, m * dd), matvec=apply, dtype=complex)
+            yv, info = spla.gmres(op, rhs.reshape(-1), x0=rhs.reshape(-1), rtol=1e-14, atol=0.0,
+                                  restart=min(m * dd, 60), maxiter=20)
+            y = yv.reshape(m, dd)
+        a = y @ wt  # back to the original basis, (m, D)
+        resid = a @ lt.T + (1j * omega) * ns[:, None] * a
+        if n_h > 0:
+            sh = np.zeros_like(a)
+            sh[1:] += a[:-1]
+            sh[:-1] += a[1:]
+            resid += sh @ c.T
+        resid[n_h] += self.q
+        if not np.linalg.norm(resid) <= _RESID_LIMIT * np.linalg.norm(self.q):
+            return self.solve_blocks(lt, ct, omega, n_h, want_all)
+        return a if want_all else a[n_h:n_h + 1]
+
+
+class _Sylvester:
+    """Hilbert-space form of the Floquet system (solver ``"sylvester"``): memory O(N d^2), time O(d^3).
+
+    With the Lindblad terms of the relaxation written ``c_j (A_j x A_j^+ - {A_j^+ A_j, x} / 2)`` and
+    ``G = H - (i/2)(k_S P_S + k_T P_T + sum_j c_j A_j^+ A_j)``, the transposed Liouvillian acts on the
+    matrix ``X`` with ``vec(X) = a`` as ``L^T X = -i (G^T X - X G^*) + sum_j c_j A_j^T X A_j^*`` and
+    ``L1^T X = -i (H1^T X - X H1^T)``.  The Sylvester part ``-i (G^T X - X G^*) + i n w X`` is
+    inverted exactly through ``G = V diag(lam) V^-1``:
+    ``X = V^-T [(V^T R V^*) / (-i (lam_i - conj(lam_j)) + i n w)] V^-*``; it preconditions GMRES
+    (``scipy.sparse.linalg.gmres``) on the whole system, whose residual is checked at the end.
+    Time is scaled by the largest rate.
+    """
+
+    def __init__(self, system):
+        from retina.spin.liouville import _lindblad_terms, check_scope
+
+        check_scope(system)
+        parts = ops.hamiltonian_parts(system)
+        space = parts.space
+        self.space = space
+        self.d = d = space.dimension
+        ks, kt = float(system.k_singlet), float(system.k_triplet)
+        self.scale = scale = max(ks, kt)
+        ps = ops.singlet_projector(space)
+        eye = np.eye(d)
+        damp = ks * ps + kt * (eye - ps)
+        terms = _lindblad_terms(system, space)
+        for c, a in terms:
+            damp = damp + c * (a.conj().T @ a).toarray()
+        self.g0 = (parts.h0 - 0.5j * damp) / scale
+        self.hb = parts.hb / scale
+        self.terms = [(c / scale, a.toarray().T.copy(), a.toarray().conj()) for c, a in terms]
+        self.rho0 = ops.initial_density(system, space).reshape(-1)
+        p = ps * ks if system.reported_yield == "singlet" else (eye - ps) * kt
+        self.qmat = p.T / scale
+        self.q = self.qmat.reshape(-1)
+        self.fallback = _Floquet(system) if d <= _DENSE_UP_TO else None
+        self._b = None
+
+    @staticmethod
+    def as_dense(m):
+        return m
+
+    def static_t(self, b_t):
+        """Per-direction data: ``G`` and its eigen-decomposition (None when ill-conditioned)."""
+        self._b = np.asarray(b_t, dtype=float)
+        g = self.g0 + np.einsum("k,kij->ij", self._b.astype(complex), self.hb)
+        lam, v = np.linalg.eig(g)
+        try:
+            vinv = np.linalg.inv(v)
+        except np.linalg.LinAlgError:
+            return g, None
+        cond = np.linalg.norm(v) * np.linalg.norm(vinv) / self.d
+        if not np.isfinite(cond) or cond > _COND_LIMIT:
+            return g, None
+        return g, (lam, v, vinv)
+
+    def rf_t(self, b1_t):
+        """``(H1, B1 vector)``: the RF Hamiltonian (scaled) for an amplitude vector in tesla."""
+        b1 = np.asarray(b1_t, dtype=float)
+        return np.einsum("k,kij->ij", b1.astype(complex), self.hb), b1
+
+    def _fallback(self, ct, omega, n_h, want_all, why):
+        if self.fallback is None:
+            raise ResourceError(f"the Hilbert-space Floquet solver {why}; try solver='blocks' on a smaller pair "
+                                "or a weaker RF field")
+        fl = self.fallback
+        lt = fl.as_dense(fl.static_t(self._b))
+        return fl.solve_blocks(lt, fl.as_dense(fl.rf_t(ct[1])), omega, n_h, want_all)
+
+    def solve(self, lt, ct, omega, n_h, want_all):
+        g, eig = lt
+        h1 = ct[0]
+        if eig is None:
+            return self._fallback(ct, omega, n_h, want_all, "met an ill-conditioned eigenbasis")
+        lam, v, vinv = eig
+        d, m = self.d, 2 * n_h + 1
+        w = omega / self.scale
+        ns = np.arange(-n_h, n_h + 1)
+        base = -1j * (lam[:, None] - lam.conj()[None, :])
+        denom = base[None] + 1j * w * ns[:, None, None]  # (m, d, d)
+        vt, vc, vinvt, vinvc = v.T, v.conj(), vinv.T, vinv.conj()
+        gt, gc, h1t = g.T, g.conj(), h1.T
+
+        def prec(r):  # exact inverse of the Sylvester blocks, r of shape (m, d, d)
+            return vinvt @ ((vt @ r @ vc) / denom) @ vinvc
+
+        def rest(x):  # sandwiches and the RF coupling
+            out = np.zeros_like(x)
+            for c, at_, ac in self.terms:
+                out += c * (at_ @ x @ ac)
+            if n_h > 0:
+                sh = np.zeros_like(x)
+                sh[1:] += x[:-1]
+                sh[:-1] += x[1:]
+                out += -0.5j * (h1t @ sh - sh @ h1t)
+            return out
+
+        rhs = np.zeros((m, d, d), dtype=complex)
+        rhs[n_h] = -self.qmat
+        b = prec(rhs)
+        if n_h == 0 and not self.terms:
+            x = b
+        else:
+            op = spla.LinearOperator((m * d * d,) * 2, dtype=complex,
+                                     matvec=lambda u: (u.reshape(m, d, d) + prec(rest(u.reshape(m, d, d)))).reshape(-1))
+            xv, _ = spla.gmres(op, b.reshape(-1), x0=b.reshape(-1), rtol=1e-14, atol=0.0, restart=40, maxiter=10)
+            x = xv.reshape(m, d, d)
+        resid = -1j * (gt @ x - x @ gc) + 1j * w * ns[:, None, None] * x + rest(x) - rhs
+        if not np.linalg.norm(resid) <= _RESID_LIMIT * np.linalg.norm(self.qmat):
+            return self._fallback(ct, omega, n_h, want_all, "did not converge")
+        a = x.reshape(m, d * d)
+        return a if want_all else a[n_h:n_h + 1]
+
 
 def _solve_one(fl, solver, lt, ct, omega, n_h, phase):
     """Phase-averaged yield (and the yield at ``phase`` radians, or None) at Floquet order ``n_h``."""
-    fn = fl.solve_splu if solver == "splu" else fl.solve_blocks
     want_all = phase is not None
-    a = fn(lt, ct, omega, n_h, want_all)
+    if solver == "eig":
+        a = fl.solve_eig(lt, ct, omega, n_h, want_all, fl.eig)
+    elif solver == "sylvester":
+        a = fl.solve(lt, ct, omega, n_h, want_all)
+    else:
+        a = (fl.solve_splu if solver == "splu" else fl.solve_blocks)(lt, ct, omega, n_h, want_all)
     if want_all:
         n0 = a.shape[0] // 2
         avg = float(np.real(a[n0] @ fl.rho0))
@@ -338,7 +562,7 @@ def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction,
     tol = _check_tol(tol, src)
     if solver not in _SOLVERS:
         raise InputError(f"expected solver one of {_SOLVERS}, got {solver!r}", source=src, key="solver")
-    solver = "blocks" if solver == "auto" else solver
+    solver = "sylvester" if solver == "auto" else solver
     if azimuths != "auto" and (isinstance(azimuths, bool) or not isinstance(azimuths, (int, np.integer))
                                or not 1 <= azimuths <= MAX_AZIMUTHS):
         raise InputError(f"expected 'auto' or 1..{MAX_AZIMUTHS} azimuths, got {azimuths!r}", source=src,
@@ -353,8 +577,11 @@ def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction,
             raise InputError(f"expected an RF phase in degrees or None, got {phase_deg!r}", source=src,
                              key="phase_deg")
     b, dirs = validate_field(field_uT, directions, src)
-    _check_memory(system, 8 if harmonics == "auto" else harmonics, solver, max_bytes)
-    fl = _Floquet(system)
+    _check_memory(system, 4 if harmonics == "auto" else harmonics, solver, max_bytes)
+    fl = _Sylvester(system) if solver == "sylvester" else _Floquet(system)
+    # the block solver works on dense blocks: convert once per direction and azimuth, not per order
+    prep = fl.as_dense if solver in ("blocks", "eig") else (lambda m: m)
+    fl.eig = None
     n = dirs.shape[0]
     out = np.empty(n)
     out_phase = np.empty(n) if phase is not None else None
@@ -365,6 +592,9 @@ def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction,
     for i in range(n):
         bd = dirs[i]
         lt = fl.static_t(b * bd)
+        lt = prep(lt)
+        if solver == "eig":
+            fl.eig = fl.prepare_eig(lt)  # shared by every azimuth and Floquet order of this direction
         if isinstance(rfdir, str) and rfdir == "perpendicular":
             e1, e2 = _perp_basis(bd)
             vals, vals_p, used = {}, {}, []
@@ -373,7 +603,7 @@ def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction,
                 key = (j * (MAX_AZIMUTHS // k))
                 if key not in vals:
                     phi = np.pi * j / k
-                    ct = fl.rf_t(b1 * (np.cos(phi) * e1 + np.sin(phi) * e2))
+                    ct = prep(fl.rf_t(b1 * (np.cos(phi) * e1 + np.sin(phi) * e2)))
                     vals[key], vals_p[key], o = _solve_auto(fl, solver, lt, ct, omega, harmonics, tol, phase,
                                                             max(1, last // 2))
                     used.append(o)
@@ -409,7 +639,7 @@ def _yields_detail(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction,
             n_az[i] = k
         else:
             nrf = bd if isinstance(rfdir, str) else rfdir
-            ct = fl.rf_t(b1 * nrf)
+            ct = prep(fl.rf_t(b1 * nrf))
             out[i], p_val, orders[i] = _solve_auto(fl, solver, lt, ct, omega, harmonics, tol, phase,
                                                    max(1, last // 2))
             if phase is not None:
