@@ -427,7 +427,8 @@ class _Sylvester:
         p = ps * ks if system.reported_yield == "singlet" else (eye - ps) * kt
         self.qmat = p.T / scale
         self.q = self.qmat.reshape(-1)
-        self.fallback = _Floquet(system) if d <= _DENSE_UP_TO else None
+        self._system = system
+        self._fallback_floquet = None  # the block-elimination fallback, built when first needed
         self._b = None
 
     @staticmethod
@@ -454,10 +455,12 @@ class _Sylvester:
         return np.einsum("k,kij->ij", b1.astype(complex), self.hb), b1
 
     def _fallback(self, ct, omega, n_h, want_all, why):
-        if self.fallback is None:
+        if self.d > _DENSE_UP_TO:
             raise ResourceError(f"the Hilbert-space Floquet solver {why}; try solver='blocks' on a smaller pair "
                                 "or a weaker RF field")
-        fl = self.fallback
+        if self._fallback_floquet is None:
+            self._fallback_floquet = _Floquet(self._system)
+        fl = self._fallback_floquet
         lt = fl.as_dense(fl.static_t(self._b))
         return fl.solve_blocks(lt, fl.as_dense(fl.rf_t(ct[1])), omega, n_h, want_all)
 
