@@ -300,16 +300,20 @@ class HeadingDecoder:
                              key="scan.offsets_deg")
         shifts = np.round(shifts).astype(int)
         P = off.size
+        G = self.headings_deg.size
         sc = 1.0 / P if scale is None else float(scale)
+        # column j of pose p's row of products is heading psi_j + o_p
+        cols = (np.arange(G)[None, :] + shifts[:, None]) % G                      # (P, G)
+        tot = (sc * self._lam_tot)[cols].sum(axis=0)                              # (G,)
+        # One matrix product for all poses of a block (far faster than one per pose); blocks hold
+        # at most about _CHUNK_ELEMENTS products.
+        chunk = max(1, min(int(chunk), _CHUNK_ELEMENTS // max(1, P * G)))
         parts = []
         for s in range(0, c.shape[0], chunk):
             cc = c[s:s + chunk]
-            ll = np.zeros((cc.shape[0], self.headings_deg.size))
-            tot = np.zeros(self.headings_deg.size)
-            for p in range(P):
-                # column j of the shifted array is heading psi_j + o_p
-                ll += np.roll(self._counts(cc[:, p]) @ self._loglam_T, -shifts[p], axis=1)
-                tot += np.roll(sc * self._lam_tot, -shifts[p])
+            S = cc.shape[0]
+            X = (self._counts(cc.reshape(S * P, -1)) @ self._loglam_T).reshape(S, P, G)
+            ll = np.take_along_axis(X, np.broadcast_to(cols[None], (S, P, G)), axis=2).sum(axis=1)
             if self.gain == "known":
                 ll -= tot[None, :]
             else:
