@@ -113,7 +113,7 @@ def summary(static, rfyf, output, wall_seconds: float, n_compare: int = 2000) ->
         f"with an RF field of {p['rf_nT']:g} nT at {p['rf_MHz']:g} MHz {where}, averaged over the RF phase",
         f"  mean yield {a0.mean:.8g} without RF, {a1.mean:.8g} with RF: change {a1.mean - a0.mean:+.3e}",
         f"  relative anisotropy {100 * a0.relative:.4f} % without RF, {100 * a1.relative:.4f} % with RF: "
-        f"change {100 * (a1.relative - a0.relative):+.4f} percentage points",
+        f"change {100 * (a1.relative - a0.relative):+.3g} percentage points",
         f"  largest change of the yield over directions {diff[k]:+.3e} with the field along "
         f"{_direction_words(pts[k])} (molecular frame; {n_compare} directions compared)",
         f"  Floquet harmonics used up to {p['rf_harmonics_max']}, azimuths up to {p['rf_azimuths_max']}, "
