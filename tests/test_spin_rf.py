@@ -391,3 +391,18 @@ def test_iterative_solvers_hand_over_to_block_elimination(monkeypatch):
     monkeypatch.setattr(rf, "_COND_LIMIT", 0.0)
     for solver in ("sylvester", "eig"):
         np.testing.assert_allclose(rf.yields_rf(sys_, 50.0, dirs, solver=solver, **kw), ref, atol=1e-12, rtol=0)
+
+
+def test_spectrum_anisotropy_option():
+    # Derived: with B1 = 0 the RF yield function is the static one, so its relative anisotropy equals
+    # the static value (1e-10); a strong resonant field changes it.  Reference for the static value:
+    # retina.yieldfn.YieldFunction.from_system at the same degree (same quadrature, engine yields).
+    sys_ = one_proton_pair()
+    zero = rf.rf_spectrum(sys_, 50.0, [0, 0, 1], [1.4], 0.0, anisotropy_degree=2)
+    static = YieldFunction.from_system(sys_, 50.0, 2).anisotropy().relative
+    assert zero.static_relative_anisotropy == pytest.approx(static, abs=1e-10)
+    assert zero.relative_anisotropy[0] == pytest.approx(static, abs=1e-10)
+    strong = rf.rf_spectrum(sys_, 50.0, [0, 0, 1], [1.4], 5000.0, anisotropy_degree=2)
+    assert abs(strong.relative_anisotropy[0] - static) > 1e-4
+    with pytest.raises(InputError, match="freqs_MHz"):
+        rf.rf_spectrum(sys_, 50.0, [0, 0, 1], [1.0, 0.0], 50.0)

@@ -42,7 +42,8 @@ the coefficient of ``exp(i n theta)`` gives the Floquet equations
 
 The phase average of ``Y`` is ``a_0 . vec(rho0)`` and the yield at phase ``theta`` is
 ``sum_n a_n exp(i n theta) . vec(rho0)``.  The harmonics are truncated at ``|n| <= N``
-(``a_{+/-(N+1)} = 0``); the neglected part falls off like ``(|L1| / w)^N`` for weak or fast RF.
+(``a_{+/-(N+1)} = 0``); for weak or fast RF the neglected part falls off geometrically in ``N``
+(roughly like ``(|L1| / max(w, k))^N``).
 With ``harmonics="auto"`` the order is doubled (1, 2, 4, ...) until the phase-averaged yield changes
 by less than ``tol``; the order used is reported.
 
@@ -76,14 +77,16 @@ RF direction
   perpendicular to ``b``, averaged over the azimuth ``phi``.  Since ``n -> -n`` is the phase shift
   ``theta -> theta + pi``, the phase-averaged yield has period ``pi`` in ``phi``; it is a
   trigonometric polynomial in ``2 phi`` of order ``k`` at order ``B1^(2k)``.  The rule with ``K``
-  equally spaced azimuths ``phi_j = j pi / K`` is exact for harmonics ``2m`` with ``m`` not a
-  multiple of ``K``; ``K`` is doubled from 2 (the rules are nested, so no solve is repeated) until
+  equally spaced azimuths ``phi_j = j pi / K`` integrates every harmonic ``2m`` exactly except the
+  non-zero multiples ``m`` of ``K``; ``K`` is doubled from 2 (the rules are nested, so no solve is repeated) until
   the average changes by less than ``tol``.
 
 The resulting yield depends on the static field direction only.  It is even, ``Phi(-b) = Phi(b)``
-(for perpendicular, parallel and fixed RF directions alike): time reversal maps the field
-history ``(b, n, theta)`` on ``(-b, -n)`` and the phase average makes ``-n`` equivalent to ``n``;
-:func:`rf_yield_function` measures the evenness on its check directions, which lie on the
+(for perpendicular, parallel and fixed RF directions alike).  Argument: time reversal (which
+reverses every spin and leaves hyperfine, exchange and dipolar terms alone) maps the drive
+``(b, n)`` on ``(-b, -n)`` with the RF phase history reversed, the phase average removes the
+dependence on that history, and ``-n`` is the phase shift ``theta -> theta + pi``.  The tests check
+it numerically, with unequal rates and relaxation too; :func:`rf_yield_function` measures the evenness on its check directions, which lie on the
 opposite hemisphere from its grid directions.
 """
 
