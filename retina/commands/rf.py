@@ -115,7 +115,8 @@ def summary(static, rfyf, output, wall_seconds: float, n_compare: int = 2000) ->
         f"  relative anisotropy {100 * a0.relative:.4f} % without RF, {100 * a1.relative:.4f} % with RF: "
         f"change {100 * (a1.relative - a0.relative):+.3g} percentage points",
         f"  largest change of the yield over directions {diff[k]:+.3e} with the field along "
-        f"{_direction_words(pts[k])} (molecular frame; {n_compare} directions compared)",
+        f"{_direction_words(pts[k])} (molecular frame; the two degree-{rfyf.degree} fits compared at {n_compare} "
+        f"directions)",
         f"  Floquet harmonics used up to {p['rf_harmonics_max']}, azimuths up to {p['rf_azimuths_max']}, "
         f"tolerance {p['rf_tol']:g}; degree {rfyf.degree}, truncation error max {p['truncation_error_max']:.2g}",
         f"  wall time {_fmt_seconds(wall_seconds)}; RF yield function written to {output}",
