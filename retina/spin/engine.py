@@ -91,6 +91,10 @@ def _eigh_constant() -> float:
     return best / d**3
 
 
+#: Fixed Python and LAPACK-call overhead per direction, seconds (measured on small pairs, d = 16).
+_PER_DIRECTION = 3e-5
+
+
 def _t_eigh(d: int) -> float:
     return max(_eigh_constant() * d**3, 2e-6)
 
@@ -141,15 +145,17 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
         from retina.spin.hilbert import TRIDIAGONAL_FROM
 
         # the tridiagonal path skips the back-transformation: measured at ~0.65 of a full eigh
-        seconds = n * (0.65 if d >= TRIDIAGONAL_FROM else 1.25) * _t_eigh(d)
+        seconds = n * ((0.65 if d >= TRIDIAGONAL_FROM else 1.25) * _t_eigh(d) + _PER_DIRECTION)
         return Cost(seconds, int(base + batch * per), method,
                     f"{n} Hermitian eigendecompositions of size {d}")
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
-        seconds = n * (_t_eigh(da) + _t_eigh(db) + 4e-9 * pair_terms)
-        batch = min(max(n, 1), 64)
-        mem = batch * 16 * 8 * (da * da + db * db) + 16 * 4 * (da * da + db * db)
+        seconds = n * (_t_eigh(da) + _t_eigh(db) + 4e-9 * pair_terms + _PER_DIRECTION)
+        from retina.spin.separable import working_bytes
+
+        # the method batches directions within its own budget; 25 % headroom over its model
+        mem = 1.25 * working_bytes(system, n)
         return Cost(seconds, int(mem), method,
                     f"{n} x 2 eigendecompositions of sizes {da} and {db} and {int(pair_terms)} pair terms")
     # liouville
@@ -163,10 +169,13 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
         return Cost(seconds, int(base + batch * per), method,
                     f"{n} non-Hermitian eigendecompositions of size {d} (effective Hamiltonian)")
     if solver == "krylov":
+        from retina.spin.liouville import _KRYLOV_MAXITER
+
         # one non-Hermitian eig + inverse, then ~30 GMRES steps of 4 dense (d, d) products each;
-        # 60 Krylov vectors of length d^2 are kept
+        # the GMRES allocates its whole basis (maxiter + 1 vectors of length d^2) up front, plus
+        # the dense relaxation stacks (up to 2 x 7 (d, d)) and ~20 (d, d) temporaries
         per_dir = 8.0 * _t_eigh(d) + 30 * 4 * 0.1 * _t_eigh(d) + 1e-3
-        mem = base + 16 * d * d * (60 + 20)
+        mem = base + 16 * d * d * (_KRYLOV_MAXITER + 1 + 14 + 20)
         return Cost(n * per_dir, int(mem), method,
                     f"{n} Sylvester-preconditioned GMRES solves in a Liouville space of size {d * d}")
     dd = d * d
@@ -176,6 +185,22 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     seconds = n * (0.04 * _eigh_constant() * d**6 + 1e-3) + 0.02  # plus the Liouvillian assembly
     return Cost(seconds, int(mem), method,
                 f"{n} sparse LU factorisations of the {dd} x {dd} Liouvillian")
+
+
+def _resource_hint(system, method: str) -> str:
+    """What the user can change when ``method`` would not fit in memory."""
+    raise_limit = "raise the memory limit (max_bytes, or --max-memory-gb on the command line)"
+    if method != "separable" and choose_method(system) == "separable":
+        return f"method='separable' covers this pair at a far smaller cost; or use fewer nuclei, or {raise_limit}"
+    if method == "liouville":
+        from retina.spin.liouville import solver_for
+
+        if solver_for(system) == "sparse":
+            return ("a zero recombination rate forces a sparse LU factorisation of the Liouvillian: give both "
+                    f"rates > 0 (then it is not needed), use fewer nuclei, or {raise_limit}")
+        if system.equal_rates and not system.relaxation.any:
+            return f"method='hilbert' needs less memory for equal rates; or use fewer nuclei, or {raise_limit}"
+    return f"use fewer nuclei, or {raise_limit}"
 
 
 def _fmt_gib(b: float) -> str:
@@ -219,12 +244,7 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
     if cost.bytes > limit:
-        hint = {
-            "liouville": "use fewer nuclei, give both recombination rates > 0 (then no LU factorisation is "
-                         "needed), or raise the memory limit",
-            "hilbert": "use fewer nuclei, fewer directions per batch, or raise the memory limit",
-            "separable": "use fewer nuclei or raise the memory limit",
-        }[method]
+        hint = _resource_hint(system, method)
         raise ResourceError(
             f"{system.name!r} (Hilbert dimension {system.dimension}) needs about {_fmt_gib(cost.bytes)} for "
             f"{cost.note} with method={method!r}, more than the limit of {_fmt_gib(limit)}; {hint}")
