@@ -5,7 +5,8 @@ canonical spin-system document (:func:`retina.spin.io.dump_system`), the field s
 shortest round-tripping decimal), the degree, the resolved engine method, the number of check points
 and the retina version.  Entries are native HDF5 files ``<key>.h5`` (:mod:`retina.io.hdf5`) in the
 cache folder: ``$RETINA_CACHE`` when set, else ``~/.cache/retina-compass``.  Writes are atomic; an
-unreadable entry counts as a miss and is removed.
+unreadable entry, or one whose coefficients do not match the ``content_hash`` stored with them,
+counts as a miss and is removed.
 """
 
 from __future__ import annotations
@@ -62,17 +63,30 @@ class YieldCache:
         from retina.errors import InputError
         from retina.io.hdf5 import load_yield_function
 
+        from retina.yieldfn import content_hash
+
         path = self.path_for(key)
         if not path.exists():
             return None
         try:
             yf = load_yield_function(path)
         except (InputError, OSError, KeyError, ValueError):
-            path.unlink(missing_ok=True)
+            self._discard(path)
             return None
         if yf.provenance.get("input_hash") != key:
             return None
+        if yf.provenance.get("content_hash") != content_hash(yf.coeffs, yf.degree):
+            # the coefficients no longer match the hash written with them: a damaged entry
+            self._discard(path)
+            return None
         return yf
+
+    @staticmethod
+    def _discard(path: Path) -> None:
+        try:
+            path.unlink(missing_ok=True)
+        except OSError:  # e.g. a folder in the way: leave it, it stays a miss
+            pass
 
     def put(self, key: str, yf) -> Path:
         """Store ``yf`` under ``key`` (atomically, replacing any older entry)."""

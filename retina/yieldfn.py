@@ -416,7 +416,13 @@ class YieldFunction:
             prov["input_hash"] = key
         yf = cls(coeffs, degree, prov, err_max)
         if store is not None:
-            store.put(key, yf)
+            try:
+                store.put(key, yf)
+            except (OSError, InputError) as exc:  # the result stands; only the cache entry is lost
+                import warnings
+
+                warnings.warn(f"could not write the yield cache entry {store.path_for(key)}: {exc}",
+                              stacklevel=2)
         return yf
 
 

@@ -245,6 +245,22 @@ def test_cache_second_call_does_not_recompute(monkeypatch, system, tmp_path):
     assert len(eng.calls) == 4
     YieldFunction.from_system(system, 47.0, degree=4, cache=True, cache_dir=tmp_path)
     assert len(eng.calls) == 4
+    # a readable entry whose coefficients were altered (they no longer match their stored
+    # content_hash) is a miss too, not a silently wrong hit; common practice, no source
+    import h5py
+
+    with h5py.File(entry, "a") as f:
+        f["yield_function/coeffs"][1] += 1e-3
+    again = YieldFunction.from_system(system, 47.0, degree=4, cache=True, cache_dir=tmp_path)
+    assert len(eng.calls) == 5 and not again.from_cache
+    assert np.array_equal(again.coeffs, first.coeffs)
+    # a folder where the entry should be: the result is still computed and returned, with a warning
+    entry.unlink()
+    entry.mkdir()
+    with pytest.warns(UserWarning, match="cache"):
+        blocked = YieldFunction.from_system(system, 47.0, degree=4, cache=True, cache_dir=tmp_path)
+    assert np.array_equal(blocked.coeffs, first.coeffs)
+    entry.rmdir()
     # the environment variable chooses the default folder
     monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "env"))
     YieldFunction.from_system(system, 47.0, degree=4, cache=True)
