@@ -20,7 +20,8 @@ Conventions (owned here)
   document, when there is one), ``system_name``, ``system_source``, ``reported_yield``,
   ``initial_state``, ``field_uT``, ``method``,
   ``degree``, ``grid`` / ``grid_order`` / ``grid_points`` / ``computed_points``, ``check_grid`` /
-  ``check_points``, ``truncation_error_max`` / ``truncation_error_rms``, ``compute_seconds``,
+  ``check_points``, ``truncation_error_max`` / ``truncation_error_rms``, ``antipodal_points`` /
+  ``antipodal_difference_max`` (see :meth:`YieldFunction.from_system`), ``compute_seconds``,
   ``versions`` (numpy, scipy, numba, h5py, retina), ``date_utc`` (ISO 8601), ``input_hash`` (the
   cache key, :mod:`retina.cache`) and ``content_hash`` (sha256 of the degree and the little-endian
   float64 coefficient bytes).
@@ -47,6 +48,10 @@ __all__ = ["YieldFunction", "Anisotropy", "content_hash", "package_versions", "c
 BASIS = "real-sh-even-orthonormal-no-cs"
 DEFAULT_DEGREE = 16
 DEFAULT_CHECK_POINTS = 200
+#: Check directions whose antipodes are computed too, to confirm ``Phi(b) = Phi(-b)`` on every run.
+ANTIPODAL_POINTS = 3
+#: Largest accepted ``|Phi(b) - Phi(-b)|`` (yield units); the exact methods agree to ~1e-13.
+ANTIPODAL_TOLERANCE = 1e-9
 
 
 @dataclass(frozen=True)
@@ -318,6 +323,23 @@ class YieldFunction:
         fit is then compared with the engine at the check points: the largest and rms differences
         are the truncation error (``fit_error``, and ``truncation_error_max/rms`` in provenance).
 
+        Why one hemisphere suffices (derived here).  Let ``T`` be time reversal (antiunitary,
+        ``T S T^-1 = -S`` for every electron and nuclear spin).  Every term of the Hamiltonian of
+        :mod:`retina.spin.system` is bilinear in spins with real tensors except the Zeeman term,
+        linear in ``S``, so ``T H(B) T^-1 = H(-B)``, with any (even non-symmetric) g and hyperfine
+        tensors, exchange and dipolar coupling.  ``P_S``, ``P_T``, the Haberkorn operator
+        ``k_S P_S + k_T P_T`` and the relaxation dissipators (Hermitian Lindblad operators ``S_a``
+        and ``P_S``, which ``T`` maps to ``+-`` themselves) are invariant.  Hence, for the
+        Liouvillian, ``T L(B) T^-1 = L(-B)^+`` (Hilbert-Schmidt adjoint: the dissipative part is
+        self-adjoint, the commutator changes sign).  The yield ``k Tr(P (-L(B))^-1 rho0)`` then
+        equals ``k Tr(rho0 (-L(-B))^-1 P)``: observable and initial state swap.  With the start
+        ``rho0`` proportional to the observed projector (singlet-singlet, triplet-triplet) the
+        yield is even in ``B``; the two mixed cases follow from ``Phi_S + Phi_T = 1`` (every
+        state decays, relaxation preserves the trace).  So ``Phi(b) = Phi(-b)`` holds exactly for
+        every system the engine accepts, and each run confirms it on ``ANTIPODAL_POINTS``
+        antipodal pairs (``antipodal_difference_max`` in provenance); a larger difference than
+        ``ANTIPODAL_TOLERANCE`` raises RuntimeError instead of fitting.
+
         Parameters
         ----------
         system : retina.spin.system.SpinSystem
@@ -367,7 +389,8 @@ class YieldFunction:
         grid = sphere.grid_for_degree(degree)
         half, full_from_half = grid.hemisphere()
         check = sphere.fibonacci(int(check_points), hemisphere=True)
-        dirs = np.concatenate([grid.points[half], check.points], axis=0)
+        n_anti = min(ANTIPODAL_POINTS, len(check))
+        dirs = np.concatenate([grid.points[half], check.points, -check.points[:n_anti]], axis=0)
         t0 = time.perf_counter()
         values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
                                                   max_bytes=max_bytes), dtype=float)
@@ -375,8 +398,16 @@ class YieldFunction:
         if values.shape != (dirs.shape[0],):
             raise RuntimeError(f"engine returned shape {values.shape} for {dirs.shape[0]} directions")
         h = half.size
+        n_check = len(check)
+        anti_err = float(np.max(np.abs(values[h + n_check:] - values[h:h + n_anti])))
+        if not anti_err <= ANTIPODAL_TOLERANCE:
+            raise RuntimeError(
+                f"the engine's yields of {system.name!r} differ by {anti_err:.3g} between field directions b "
+                f"and -b, but Phi(b) = Phi(-b) holds exactly for every system it accepts (see "
+                f"YieldFunction.from_system); the hemisphere fit would be wrong, so nothing was fitted "
+                f"(method {resolved!r})")
         coeffs = sphere.fit_even(values[:h][full_from_half], grid, degree)
-        err = sphere.evaluate(coeffs, check.points) - values[h:]
+        err = sphere.evaluate(coeffs, check.points) - values[h:h + n_check]
         err_max = float(np.max(np.abs(err)))
         err_rms = float(np.sqrt(np.mean(err**2)))
 
@@ -400,6 +431,8 @@ class YieldFunction:
             "check_points": len(check),
             "truncation_error_max": err_max,
             "truncation_error_rms": err_rms,
+            "antipodal_points": int(n_anti),
+            "antipodal_difference_max": anti_err,
             "compute_seconds": float(seconds),
             "versions": package_versions(),
             "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),

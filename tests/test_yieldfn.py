@@ -196,8 +196,10 @@ def test_from_system_uses_a_hemisphere_and_measures_no_error_for_a_band_limited_
     field, dirs, method = eng.calls[0]
     grid = sphere.grid_for_degree(8)
     assert field == 50.0 and method == "fake-exact"
-    assert dirs.shape == (len(grid) // 2 + 200, 3)
-    assert np.all(dirs[:, 2] > -1e-12)  # one hemisphere only
+    h = len(grid) // 2
+    assert dirs.shape == (h + 200 + 3, 3)
+    assert np.all(dirs[: h + 200, 2] > -1e-12)  # one hemisphere only, plus 3 antipodal checks
+    np.testing.assert_array_equal(dirs[h + 200:], -dirs[h:h + 3])
     assert seen[-1] == (dirs.shape[0], dirs.shape[0])
     # Derived: a degree-4 function is fitted exactly at L = 8, so the error at the check points is rounding.
     assert yf.fit_error < 1e-14 and yf.provenance["truncation_error_rms"] < 1e-14
@@ -211,6 +213,17 @@ def test_from_system_uses_a_hemisphere_and_measures_no_error_for_a_band_limited_
     assert systems_equal(loads_system(p["spin_system_toml"]), system)
     assert tomllib.loads(p["spin_system_document_toml"]) == system.document
     assert (p["reported_yield"], p["initial_state"]) == ("singlet", "singlet")
+
+
+def test_an_engine_that_breaks_inversion_symmetry_is_refused(monkeypatch, system):
+    # Derived (YieldFunction.from_system docstring): Phi(b) = Phi(-b) for every accepted system, so
+    # a difference between b and -b is an engine fault and must not be hidden by the hemisphere fit.
+    FakeEngine(lambda n: 0.3 + 0.01 * n[:, 2] ** 2 + 1e-6 * n[:, 0]).install(monkeypatch)
+    with pytest.raises(RuntimeError, match=r"Phi\(b\) = Phi\(-b\)"):
+        YieldFunction.from_system(system, 50.0, degree=4)
+    FakeEngine(lambda n: 0.3 + 0.01 * n[:, 2] ** 2).install(monkeypatch)
+    yf = YieldFunction.from_system(system, 50.0, degree=4)
+    assert yf.provenance["antipodal_points"] == 3 and yf.provenance["antipodal_difference_max"] < 1e-15
 
 
 def test_truncation_error_is_reported_for_a_function_beyond_the_degree(monkeypatch, system):
