@@ -277,6 +277,14 @@ def test_files_missing_or_not_text(tmp_path):
     assert str(wrong) in str(info.value) and "radical_a.nuclei[0].spin" in str(info.value)
 
 
+def test_a_byte_order_mark_is_accepted(tmp_path):
+    # Common practice, no source: editors on some systems save UTF-8 with a leading byte-order mark
+    # (EF BB BF); it is not part of the TOML text and must not become a syntax error at line 1.
+    marked = tmp_path / "marked.toml"
+    marked.write_bytes(b"\xef\xbb\xbf" + MINIMAL.encode("utf-8"))
+    assert systems_equal(load_system(marked), loads_system(MINIMAL))
+
+
 def test_free_electron_g_comes_from_codata():
     # Reference: scipy.constants CODATA "electron g factor" = -2.00231930436...
     assert FREE_ELECTRON_G == pytest.approx(2.00231930436, abs=1e-10)

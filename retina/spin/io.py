@@ -422,7 +422,7 @@ def load_system(path: str | Path) -> SpinSystem:
     """
     path = Path(path)
     try:
-        text = path.read_bytes().decode("utf-8")
+        text = path.read_bytes().decode("utf-8-sig")  # a leading byte-order mark is not TOML text
     except FileNotFoundError:
         raise InputError("file not found; expected a spin-system TOML file", source=path) from None
     except IsADirectoryError:
