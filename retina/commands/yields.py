@@ -116,7 +116,7 @@ def run(args) -> int:
     from retina.io.atomic import check_writable
     from retina.spin import engine
     from retina.spin.io import load_system
-    from retina.yieldfn import YieldFunction, _check_degree, _check_field
+    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction, _check_degree, _check_field
 
     t0 = time.perf_counter()
     system = load_system(args.system)
@@ -144,7 +144,7 @@ def run(args) -> int:
     if use_cache:
         cached = YieldCache(args.cache_dir).get(
             cache_key(system, field, degree, method, check_points=args.check_points))
-    n = len(sphere.grid_for_degree(degree)) // 2 + args.check_points
+    n = len(sphere.grid_for_degree(degree)) // 2 + args.check_points + min(ANTIPODAL_POINTS, args.check_points)
     if not args.quiet and cached is None:
         cost = engine.estimate_cost(system, n, method)
         note = f"; {cost.note}" if getattr(cost, "note", "") else ""
