@@ -334,7 +334,7 @@ def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) ->
         vh, wh = v.conj().T, w.conj().T
         denom = -1j * (lam[:, None] - lam[None, :].conj())
 
-        # |L| (Frobenius, up to a factor 2): commutator with G' plus the sandwiches
+        # an upper bound of the spectral norm of L: 2 |G'|_F for the commutator, |A|_F^2 per sandwich
         l_norm = 2.0 * np.linalg.norm(g) + sandwich_norm
 
         def sylv_inv(y):  # solves -i (G' x - x G'^+) = y
