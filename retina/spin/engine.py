@@ -173,9 +173,10 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
 
         # one non-Hermitian eig + inverse, then ~30 GMRES steps of 4 dense (d, d) products each;
         # the GMRES allocates its whole basis (maxiter + 1 vectors of length d^2) up front, plus
-        # the dense relaxation stacks (up to 2 x 7 (d, d)) and ~20 (d, d) temporaries
+        # the dense relaxation stacks and their batched products (up to 4 x 7 (d, d)) and ~40
+        # (d, d) temporaries (eigenvectors, inverses, Sylvester and residual products)
         per_dir = 8.0 * _t_eigh(d) + 30 * 4 * 0.1 * _t_eigh(d) + 1e-3
-        mem = base + 16 * d * d * (_KRYLOV_MAXITER + 1 + 14 + 20)
+        mem = base + 16 * d * d * (_KRYLOV_MAXITER + 1 + 28 + 40)
         return Cost(n * per_dir, int(mem), method,
                     f"{n} Sylvester-preconditioned GMRES solves in a Liouville space of size {d * d}")
     dd = d * d
