@@ -12,7 +12,6 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-from pathlib import Path
 
 import numpy as np
 
@@ -132,20 +131,12 @@ def spectrum_table(spec) -> str:
 
 
 def run(args) -> int:
-    from tqdm import tqdm
-
-    from retina.io.atomic import check_writable
+    from retina.commands._spin_args import ProgressBar, common_inputs
     from retina.spin import rf
-    from retina.spin.io import load_system
-    from retina.yieldfn import YieldFunction, _check_degree, _check_field
+    from retina.yieldfn import YieldFunction
 
     t0 = time.perf_counter()
-    system = load_system(args.system)
-    try:
-        field = _check_field(args.field_uT)
-        degree = _check_degree(args.degree)
-    except InputError as exc:
-        raise InputError(exc.detail, key=f"--{exc.key.replace('_', '-')}") from None
+    system, field, degree, max_bytes = common_inputs(args)
     try:
         rf.check_rf(args.rf_MHz, args.rf_nT, args.direction)
         tol = rf._check_tol(args.tol)
@@ -153,37 +144,13 @@ def run(args) -> int:
         key = {"rf_MHz": "--rf-MHz", "rf_nT": "--rf-nT", "rf_direction": "--direction", "tol": "--tol"}[exc.key]
         raise InputError(exc.detail, key=key) from None
     freqs = parse_spectrum(args.spectrum) if args.spectrum is not None else None
-    max_bytes = None
-    if args.max_memory_gb is not None:
-        if not args.max_memory_gb > 0:
-            raise InputError(f"expected a positive number of gigabytes, got {args.max_memory_gb}",
-                             key="--max-memory-gb")
-        max_bytes = int(args.max_memory_gb * 2**30)
-    if Path(args.output).is_dir():
-        raise InputError("is a folder; expected the name of the HDF5 file to write", source=args.output,
-                         key="--output")
-    check_writable(args.output, force=args.force)
     rf._check_memory(system, 4, "auto", max_bytes)
 
-    bar = None
-    if not args.quiet:
-        bar = tqdm(total=1, file=sys.stderr, unit="dir", desc="rf yields", leave=False, dynamic_ncols=True)
-
-    def progress(done: int, total: int) -> None:
-        if bar is None:
-            return
-        if bar.total != total:
-            bar.total = total
-        bar.update(done - bar.n)
-
-    try:
+    with ProgressBar(not args.quiet, "rf yields") as progress:
         static = YieldFunction.from_system(system, field, degree)
         rfyf = rf.rf_yield_function(system, field, rf_MHz=args.rf_MHz, rf_nT=args.rf_nT,
                                     rf_direction=args.direction, degree=degree, progress=progress, tol=tol,
                                     max_bytes=max_bytes)
-    finally:
-        if bar is not None:
-            bar.close()
     spec = None
     if freqs is not None:
         spec = rf.rf_spectrum(system, field, static.anisotropy().argmax, freqs, args.rf_nT,

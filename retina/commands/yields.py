@@ -10,7 +10,6 @@ from __future__ import annotations
 import argparse
 import sys
 import time
-from pathlib import Path
 
 import numpy as np
 
@@ -109,34 +108,16 @@ def summary(yf, output, wall_seconds: float) -> str:
 
 
 def run(args) -> int:
-    from tqdm import tqdm
-
     from retina import sphere
     from retina.cache import YieldCache, cache_key
-    from retina.io.atomic import check_writable
+    from retina.commands._spin_args import ProgressBar, common_inputs
     from retina.spin import engine
-    from retina.spin.io import load_system
-    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction, _check_degree, _check_field
+    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
 
     t0 = time.perf_counter()
-    system = load_system(args.system)
-    try:
-        field = _check_field(args.field_uT)
-        degree = _check_degree(args.degree)
-    except InputError as exc:
-        raise InputError(exc.detail, key=f"--{exc.key.replace('_', '-')}") from None
     if args.check_points < 1:
         raise InputError(f"expected at least 1, got {args.check_points}", key="--check-points")
-    max_bytes = None
-    if args.max_memory_gb is not None:
-        if not args.max_memory_gb > 0:
-            raise InputError(f"expected a positive number of gigabytes, got {args.max_memory_gb}",
-                             key="--max-memory-gb")
-        max_bytes = int(args.max_memory_gb * 2**30)
-    if Path(args.output).is_dir():
-        raise InputError("is a folder; expected the name of the HDF5 file to write", source=args.output,
-                         key="--output")
-    check_writable(args.output, force=args.force)
+    system, field, degree, max_bytes = common_inputs(args)
 
     method = engine.choose_method(system) if args.method == "auto" else args.method
     use_cache = not args.no_cache
@@ -152,24 +133,10 @@ def run(args) -> int:
               f"{n} directions: about {_fmt_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
               file=sys.stderr)
 
-    bar = None
-    if not args.quiet and cached is None:
-        bar = tqdm(total=n, file=sys.stderr, unit="dir", desc="yields", leave=False, dynamic_ncols=True)
-
-    def progress(done: int, total: int) -> None:
-        if bar is None:
-            return
-        if bar.total != total:
-            bar.total = total
-        bar.update(done - bar.n)
-
-    try:
+    with ProgressBar(not args.quiet and cached is None, "yields", n) as progress:
         yf = YieldFunction.from_system(system, field, degree, method=method, progress=progress,
                                        cache=use_cache, cache_dir=args.cache_dir,
                                        check_points=args.check_points, max_bytes=max_bytes)
-    finally:
-        if bar is not None:
-            bar.close()
     yf.save(args.output, force=args.force)
     print(summary(yf, args.output, time.perf_counter() - t0))
     return 0
