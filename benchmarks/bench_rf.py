@@ -36,6 +36,7 @@ import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
+from _rows import print_rows  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
 from scipy.integrate import solve_ivp  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -173,15 +174,7 @@ def main(argv=None) -> int:
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="smaller problems (smoke test)")
     a = ap.parse_args(argv)
-    table = rows(a.quick)
-    print(f"{'benchmark':48s} {'measured':>16s} {'reference':>16s} {'ratio':>8s} {'target':>9s}  status")
-    missed = False
-    for r in table:
-        ok = bool(r["passed"])
-        missed |= not ok
-        print(f"{r['name']:48s} {r['measured']:>16s} {r['reference']:>16s} {r['ratio']:>8s} "
-              f"{r['target']:>9s}  {'pass' if ok else 'MISS'}")
-        print(f"    {r['note']}")
+    missed = print_rows(rows(a.quick))
     return 1 if (missed and a.check) else 0
 
 

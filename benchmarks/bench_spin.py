@@ -10,10 +10,8 @@ Rows
    every time is reported per direction as the best of several repeats (the machine is shared;
    interference only adds time).  Numba compilation is excluded (one warm-up call each).
 2. Agreement of the two on the common directions.  Target: max |difference| <= 1e-10.
-3. Further rows from ``benchmarks/bench_spin_exact.py`` when that file exists: its ``rows(quick)``
-   is called and must return dicts with keys ``name, measured, reference, ratio, target,
-   passed, note`` (``measured``/``reference`` strings with units).  A module without ``rows`` but
-   with ``main`` is run after this table.
+3. The exact-method rows of ``benchmarks/bench_spin_exact.py`` (its ``rows(quick)``), printed in
+   the same table (``benchmarks/_rows.py``).
 
 The invented radical pair (two spin-1 nuclei on A; one spin-1 and three spin-1/2 nuclei on B,
 random anisotropic hyperfine tensors of about 0.5 mT, lifetime 1 us, 50 uT) is for timing only.
@@ -31,12 +29,14 @@ for _v in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "NUMBA_
     os.environ.setdefault(_v, "1")
 
 import argparse  # noqa: E402
-import importlib.util  # noqa: E402
 import sys  # noqa: E402
 import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
+
+import bench_spin_exact  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
+from _rows import print_rows  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 
@@ -113,46 +113,13 @@ def bench_separable(quick: bool) -> list[dict]:
     ]
 
 
-def _exact_module():
-    path = HERE / "bench_spin_exact.py"
-    if not path.exists():
-        return None
-    spec = importlib.util.spec_from_file_location("bench_spin_exact", path)
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
-
-
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="fewer directions (smoke test)")
     a = ap.parse_args(argv)
 
-    rows = bench_separable(a.quick)
-    exact_mod = _exact_module()
-    run_exact_main = False
-    if exact_mod is not None:
-        if hasattr(exact_mod, "rows"):
-            rows += list(exact_mod.rows(a.quick))
-        elif hasattr(exact_mod, "main"):
-            run_exact_main = True
-
-    print(f"{'benchmark':48s} {'measured':>16s} {'reference':>16s} {'ratio':>8s} {'target':>9s}  status")
-    missed = False
-    for r in rows:
-        ok = bool(r["passed"])
-        missed |= not ok
-        print(f"{r['name']:48s} {r['measured']:>16s} {r['reference']:>16s} {r['ratio']:>8s} "
-              f"{r['target']:>9s}  {'pass' if ok else 'MISS'}")
-        if r.get("note"):
-            print(f"    {r['note']}")
-    if exact_mod is None:
-        print("    (benchmarks/bench_spin_exact.py not present: no exact-method rows)")
-    if run_exact_main:
-        print("\nbenchmarks/bench_spin_exact.py (no rows(); its own table):")
-        status = exact_mod.main(["--check"] if a.check else [])
-        missed |= bool(status)
+    missed = print_rows(bench_separable(a.quick) + bench_spin_exact.rows(a.quick))
     return 1 if (missed and a.check) else 0
 
 

@@ -24,20 +24,14 @@ import tracemalloc  # noqa: E402
 
 import numpy as np  # noqa: E402
 
+import bench_spin_exact  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
+
 
 def invented_pair(n_a, n_b, *, exchange_mT=0.0, k_t=1e6, relax=(0.0, 0.0), seed=0):
-    from retina.spin.system import Nucleus, Radical, Relaxation, SpinSystem
+    from retina.spin.system import Relaxation
 
-    rng = np.random.default_rng(seed)
-
-    def sym():
-        a = rng.normal(size=(3, 3)) * 0.3
-        return (a + a.T) / 2 + 0.5 * np.eye(3)
-
-    ra = Radical("A", nuclei=tuple(Nucleus(f"H{i}", 0.5, sym()) for i in range(n_a)))
-    rb = Radical("B", nuclei=tuple(Nucleus(f"h{i}", 0.5, sym()) for i in range(n_b)))
-    return SpinSystem("invented cost pair", (ra, rb), exchange_mT=exchange_mT, k_singlet=1e6, k_triplet=k_t,
-                      relaxation=Relaxation(relax, 0.0))
+    return bench_spin_exact.invented_pair(n_a, n_b, exchange_mT=exchange_mT, k_t=k_t, seed=seed,
+                                          relaxation=Relaxation(relax, 0.0))
 
 
 CASES = [  # label, pair, method, directions

@@ -38,6 +38,7 @@ import sys  # noqa: E402
 import time  # noqa: E402
 
 import numpy as np  # noqa: E402
+from _rows import print_rows  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
 import scipy.linalg as sla  # noqa: E402
 
 
@@ -205,15 +206,7 @@ def main(argv=None) -> int:
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="fewer directions (smoke test)")
     a = ap.parse_args(argv)
-    table = rows(a.quick)
-    print(f"{'benchmark':48s} {'measured':>16s} {'reference':>16s} {'ratio':>8s} {'target':>9s}  status")
-    missed = False
-    for r in table:
-        ok = bool(r["passed"])
-        missed |= not ok
-        print(f"{r['name']:48s} {r['measured']:>16s} {r['reference']:>16s} {r['ratio']:>8s} "
-              f"{r['target']:>9s}  {'pass' if ok else 'MISS'}")
-        print(f"    {r['note']}")
+    missed = print_rows(rows(a.quick))
     return 1 if (missed and a.check) else 0
 
 
