@@ -66,7 +66,7 @@ class BoundSlider(QWidget):
 
     def __init__(self, state, name, label, unit, span, decimals=1, step=1.0, log=False, parent=None):
         super().__init__(parent)
-        from gui.state import RANGES
+        from .state import RANGES
 
         self.state, self.name, self.log = state, name, bool(log)
         self.lo, self.hi = float(span[0]), float(span[1])
@@ -201,7 +201,7 @@ class ControlPanel(QWidget):
 
     def __init__(self, state, parent=None):
         super().__init__(parent)
-        from gui.state import DISPLAYS, EYES
+        from .state import DISPLAYS, EYES
 
         self.state = state
         self.controls = {}

@@ -230,7 +230,7 @@ class ViewerState:
     def request(self):
         """A frozen :class:`gui.workers.PatternRequest` of the current state (serial numbers
         increase by one per call)."""
-        from gui.workers import PatternRequest
+        from .workers import PatternRequest
 
         self._serial += 1
         v = self._v

@@ -27,10 +27,10 @@ from PyQt6.QtWidgets import (QApplication, QFileDialog, QMainWindow, QMessageBox
                              QSplitter, QVBoxLayout, QWidget)
 
 from retina.errors import InputError
-from gui.panels import ControlPanel, ReadoutPanel
-from gui.state import ViewerState
-from gui.views import HeadView, MapView
-from gui.workers import QtPatternWorker
+from .panels import ControlPanel, ReadoutPanel
+from .state import ViewerState
+from .views import HeadView, MapView
+from .workers import QtPatternWorker
 
 __all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "main"]
 
@@ -286,7 +286,7 @@ def main(argv=None, *, scenario=None, quick: bool | None = None, screenshot=None
     force : bool
         Replace an existing screenshot file.
     """
-    from gui.views import ensure_backend
+    from .views import ensure_backend
 
     sc = load_start_scenario(scenario, quick=quick)  # InputError before any window exists
     if screenshot is not None:
