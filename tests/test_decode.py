@@ -198,4 +198,5 @@ def test_scan_decoding_blocks_match_a_per_pose_reference(gain):
     j = np.argmax(ll, axis=1)
     d = ((res.heading_deg - dec.headings_deg[j] + 180.0) % 360.0) - 180.0
     assert np.all(np.abs(d) <= 0.5 * dec.step_deg + 1e-9)   # parabolic refinement stays in the cell
-    np.testing.assert_array_equal(dec.decode_scan(c, off).heading_deg, res.heading_deg)
+    # Blocks change the BLAS summation order, so the refined headings agree to rounding, not bit for bit.
+    np.testing.assert_allclose(dec.decode_scan(c, off).heading_deg, res.heading_deg, rtol=0, atol=1e-8)
