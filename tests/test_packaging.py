@@ -27,3 +27,33 @@ def test_viewer_folder_is_installed_as_retina_viewer():
     import retina_viewer
 
     assert Path(retina_viewer.__file__).resolve().parent == ROOT / "gui"
+
+
+def test_bundled_files_are_byte_identical_to_assets():
+    # assets/ is the source; retina/data/ holds the copies shipped in the wheel.
+    from retina.data import BUNDLED, bundled_path
+
+    for name in BUNDLED:
+        assert bundled_path(name).read_bytes() == (ROOT / "assets" / name).read_bytes(), \
+            f"retina/data/{name} differs from assets/{name}: copy assets/{name} over it"
+    listed = {p.name for p in (ROOT / "retina" / "data").glob("*.toml")}
+    assert listed == set(BUNDLED)
+
+
+def test_bundled_demo_scenario_loads_with_its_pair():
+    from retina.data import demo_scenario_path
+    from retina.scenario import load_scenario
+
+    sc = load_scenario(demo_scenario_path())
+    kind, path = sc.yield_source
+    assert kind == "system" and path.is_file() and path.parent == demo_scenario_path().parent
+
+
+def test_unknown_bundled_name_is_an_input_error():
+    import pytest
+
+    from retina.data import bundled_path
+    from retina.errors import InputError
+
+    with pytest.raises(InputError, match="expected one of"):
+        bundled_path("nothing.toml")
