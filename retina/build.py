@@ -16,6 +16,7 @@ arrays.  The sampled-molecules retina draws from the stage name ``"molecules"``.
 
 from __future__ import annotations
 
+import logging
 import zlib
 from dataclasses import dataclass
 from typing import Any, Callable
@@ -29,6 +30,8 @@ __all__ = [
     "Built", "build_all", "stage_rng", "quick_scenario", "build_field", "build_eyes", "build_ordering",
     "build_yield_function", "build_retina", "build_sky", "field_uT", "ProgressFactory", "no_progress",
 ]
+
+_log = logging.getLogger(__name__)
 
 ProgressFactory = Callable[[str, int], Callable[[int, int], None] | None]
 """``factory(description, total) -> progress(done, total)`` (or None): one callback per long step."""
@@ -162,6 +165,8 @@ def build_yield_function(sc: Scenario, *, progress=None):
 
     kind, path = sc.yield_source
     degree = sc["yield"]["degree"]
+    _log.info("yield function: %s %s, degree %d", {"system": "spin system", "file": "file"}.get(kind, "table"),
+              path, degree)
     if kind == "system":
         from retina.spin.io import load_system
 

@@ -7,6 +7,7 @@
 
 from __future__ import annotations
 
+import logging
 import os
 from pathlib import Path
 
@@ -17,6 +18,8 @@ from retina.outputs.text import key_numbers
 from retina.results import Results, save_results as _save
 
 __all__ = ["write_outputs"]
+
+_log = logging.getLogger(__name__)
 
 
 def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, formats=("png", "svg"),
@@ -64,5 +67,6 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
                 os.replace(src, dst)
     finally:
         shutil.rmtree(stage, ignore_errors=True)
+    _log.info("wrote %s (results.h5, figures/, index.html, report.md)", outdir)
     return {"results": outdir / "results.h5", "html": outdir / "index.html", "markdown": outdir / "report.md",
             "figures": outdir / "figures"}
