@@ -363,7 +363,8 @@ class YieldFunction:
         cache : bool
             Look the result up in, and store it into, the content-hash cache (:mod:`retina.cache`).
         cache_dir : str or Path, optional
-            Cache folder (default: ``$RETINA_CACHE`` or ``~/.cache/retina-compass``).
+            Cache folder (default: :func:`retina.cache.default_cache_dir`: ``$RETINA_CACHE``, else
+            ``$XDG_CACHE_HOME/retina-compass``, else ``~/.cache/retina-compass``).
         check_points : int
             Number of independent check directions (>= 1).
         max_bytes : int, optional

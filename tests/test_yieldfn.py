@@ -378,3 +378,20 @@ def test_engine_methods_give_the_same_yield_function(system):
     for m in ("hilbert", "liouville"):
         np.testing.assert_allclose(fits[m].coeffs, fits["separable"].coeffs, atol=1e-10)
         assert fits[m].provenance["method"] == m
+
+
+def test_cache_folder_follows_retina_cache_then_xdg_cache_home(monkeypatch, tmp_path):
+    # Source: XDG Base Directory Specification 0.8 ($XDG_CACHE_HOME, default $HOME/.cache; a
+    # relative path in it is invalid and ignored).  RETINA_CACHE overrides both.
+    from retina.cache import default_cache_dir
+
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "mine"))
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert default_cache_dir() == tmp_path / "mine"
+    monkeypatch.delenv("RETINA_CACHE")
+    assert default_cache_dir() == tmp_path / "xdg" / "retina-compass"
+    monkeypatch.setenv("XDG_CACHE_HOME", "relative/cache")
+    monkeypatch.setenv("HOME", str(tmp_path / "home"))
+    assert default_cache_dir() == tmp_path / "home" / ".cache" / "retina-compass"
+    monkeypatch.delenv("XDG_CACHE_HOME")
+    assert default_cache_dir() == tmp_path / "home" / ".cache" / "retina-compass"
