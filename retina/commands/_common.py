@@ -60,9 +60,14 @@ def apply_overrides(sc: Scenario, args) -> Scenario:
 
 
 def run_command(args, stages, *, scenario_path=None, title: str | None = None) -> int:
-    """Load the scenario, run ``stages``, write results, figures and report; print a summary."""
+    """Load the scenario, run ``stages``, write results, figures and report; print a summary.
+
+    ``--quick`` reduces the scenario first and the command-line overrides (``--headings``,
+    ``--seed``, ``--dpi``, ...) apply after it, so what the user typed is never cut back.
+    """
     import time
 
+    from retina.build import quick_scenario
     from retina.outputs import write_outputs
     from retina.outputs.text import summary_text
     from retina.pipeline import run
@@ -70,7 +75,10 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     from retina.scenario import load_scenario
 
     t0 = time.perf_counter()
-    sc = apply_overrides(load_scenario(scenario_path or args.scenario), args)
+    sc = load_scenario(scenario_path or args.scenario)
+    if args.quick:
+        sc = quick_scenario(sc)
+    sc = apply_overrides(sc, args)
     out = args.output
     if out is None:
         out = sc["output"]["dir"]
@@ -82,7 +90,8 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
         raise InputError(f"folder {out.parent} does not exist", source=out)
     bars = ProgressBars(enabled=not args.quiet)
     try:
-        res = run(sc, quick=args.quick, stages=stages, progress_factory=bars)
+        res = run(sc, stages=stages, progress_factory=bars)
+        res.provenance["quick"] = bool(args.quick)
         o = res.scenario["output"]
         paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
                               animation=o["animation"], title=title, progress_factory=bars)
