@@ -179,7 +179,8 @@ def key_numbers(res: Results) -> list:
             "it reads, so it decodes geographic heading. A bird whose decode is ambiguous (two likelihood peaks, "
             "typically 180 deg apart) picks one at random, which is included in the rms decoding error. "
             "Rayleigh test p from Zar's approximation; V-test "
-            "against the goal, p from the normal tail (Zar 2010, ch. 27).")))
+            "against the goal, p exact for the sample size (the distribution tabulated in Zar 2010, "
+            "Appendix Table B.35; ch. 27).")))
     return secs
 
 
