@@ -7,7 +7,7 @@ from scipy import stats
 from retina.errors import InputError
 from retina.readout import circstats as cs
 
-# Source: Zar, Biostatistical Analysis, 5th ed. (2010), Example 27.1 (transcribed, see references.md)
+# Source: Zar, Biostatistical Analysis, 5th ed. (2010), Example 27.1 (transcribed)
 ZAR_27_1 = [45, 55, 81, 96, 110, 117, 132, 154]
 # Source: Zar (2010), Example 27.2 (transcribed)
 ZAR_27_2 = [66, 75, 86, 88, 88, 93, 97, 101, 118, 130]

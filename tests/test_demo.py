@@ -113,8 +113,9 @@ def _patterns(sc):
 
 
 def test_reversed_field_gives_the_same_pattern(synthetic):
-    # Source: references.md, facts of the trade (common practice): a radical-pair yield is unchanged
-    # when the field is reversed, so the compass reads the axis only.
+    # Common practice, no source (a fact of the trade): a radical-pair yield is unchanged when the
+    # field is reversed (Phi(b) = Phi(-b), the evenness retina.yieldfn relies on), so the compass
+    # reads the axis only.
     a = _patterns(synthetic(field={"inclination_deg": 60.0, "declination_deg": 10.0}))
     b = _patterns(synthetic(field={"inclination_deg": -60.0, "declination_deg": -170.0}))
     assert np.allclose(a["b_head"], -b["b_head"], atol=1e-12)
@@ -122,8 +123,9 @@ def test_reversed_field_gives_the_same_pattern(synthetic):
 
 
 def test_north_in_the_north_equals_south_in_the_south(synthetic):
-    # Source: references.md, facts of the trade: a bird facing magnetic north in the northern hemisphere
-    # and one facing magnetic south in the southern hemisphere (same |inclination|) see the same pattern.
+    # Derived: with I -> -I the world field (F cos I, 0, F sin I) becomes (F cos I, 0, -F sin I); a
+    # 180 deg yaw maps head (x, y, z) to world (-x, -y, z), so the southern field seen at heading 180
+    # is -(northern field at heading 0) in the head frame, and the yield is even in the field.
     a = _patterns(synthetic(field={"inclination_deg": 55.0}, pose={"headings_deg": [0.0]}))
     b = _patterns(synthetic(field={"inclination_deg": -55.0}, pose={"headings_deg": [180.0]}))
     assert np.allclose(a["yields"], b["yields"], rtol=0, atol=1e-12)
@@ -179,7 +181,8 @@ def test_quick_scenario_is_smaller_and_valid():
 
 
 def test_field_from_a_location_and_date(synthetic):
-    # Source: World Magnetic Model 2025 official test values (references.md, transcribed): 80 N 0 E,
+    # Source: The US/UK World Magnetic Model for 2025-2030, technical report (NOAA NCEI and BGS),
+    # official test values (transcribed): 80 N 0 E,
     # 2025.0, height 0 km: X 6521.6, Y 145.9, Z 54791.5 nT, I 83.21 deg, D 1.28 deg.  The scenario's
     # location goes through the IGRF; the two models agree within about 100 nT and 0.2 deg.
     sc = synthetic(field={"latitude_deg": 80.0, "longitude_deg": 0.0, "altitude_km": 0.0, "date": "2025-01-01"})

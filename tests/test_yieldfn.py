@@ -311,8 +311,8 @@ def test_hilbert_yields_are_even_so_one_hemisphere_suffices(system):
     from retina.spin import hilbert
 
     d = random_dirs(12)
-    # Source: /work/shared/references.md, facts of the trade -- a radical-pair yield is unchanged
-    # when the field is reversed (Phi(b) = Phi(-b)), which from_system relies on.
+    # Common practice, no source (a fact of the trade): a radical-pair yield is unchanged when the
+    # field is reversed (Phi(b) = Phi(-b)), which from_system relies on.
     np.testing.assert_allclose(hilbert.yields(system, 50.0, -d), hilbert.yields(system, 50.0, d), atol=1e-12)
 
 
