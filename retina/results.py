@@ -1,7 +1,7 @@
 """The results of a run: the :class:`Results` container and its HDF5 file.
 
 Schema of ``results.h5`` (format "retina-compass results", version 1)
---------------------------------------------------------------------
+---------------------------------------------------------------------
 One group per stage, written by :func:`save_results`.  Inside a group, every array is a dataset,
 every number, flag or string is an attribute, and a nested dict is a sub-group.  Units are in the
 names (``_deg`` degrees, ``_uT`` microtesla); ``N`` receptors, ``H`` headings, ``F`` scan poses,

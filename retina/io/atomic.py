@@ -55,8 +55,8 @@ def atomic_path(path: str | Path, *, force: bool = False, suffix: str = ".part")
         Ending of the temporary name (a writer that picks its format from the name, such as
         Pillow's, needs the real extension, e.g. ``".gif"``).
 
-    Example
-    -------
+    Examples
+    --------
     >>> with atomic_path("out.h5") as tmp:          # doctest: +SKIP
     ...     write_everything(tmp)
     """
