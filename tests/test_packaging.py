@@ -57,3 +57,17 @@ def test_unknown_bundled_name_is_an_input_error():
 
     with pytest.raises(InputError, match="expected one of"):
         bundled_path("nothing.toml")
+
+
+def test_developers_module_map_matches_the_tree_one_to_one():
+    # DEVELOPERS.md, "Architecture map": one row per Python file of retina/ and gui/.
+    import re
+
+    text = (ROOT / "DEVELOPERS.md").read_text()
+    section = text[text.index("## Architecture map"):text.index("## Conventions")]
+    listed = re.findall(r"^\| `([^`]+\.py)` \|", section, flags=re.M)
+    tree = sorted(str(p.relative_to(ROOT)) for d in ("retina", "gui") for p in (ROOT / d).rglob("*.py"))
+    dup = sorted({p for p in listed if listed.count(p) > 1})
+    assert not dup, f"listed twice in DEVELOPERS.md: {dup}"
+    assert sorted(listed) == tree, (f"DEVELOPERS.md module map: missing {sorted(set(tree) - set(listed))}, "
+                                    f"not in the tree {sorted(set(listed) - set(tree))}")
