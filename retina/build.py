@@ -38,7 +38,18 @@ ProgressFactory = Callable[[str, int], Callable[[int, int], None] | None]
 
 
 def no_progress(desc: str, total: int):
-    """The progress factory that shows nothing."""
+    """The progress factory that shows nothing.
+
+    Parameters
+    ----------
+    desc : str
+    total : int
+
+    Returns
+    -------
+    None
+        The core treats a None callback as no progress.
+    """
     return None
 
 
@@ -94,7 +105,16 @@ def quick_scenario(sc: Scenario) -> Scenario:
 
 
 def build_field(sc: Scenario):
-    """The :class:`retina.eye.field.Field` of the scenario (given components or IGRF at a place)."""
+    """The field of the scenario: its given components, or IGRF-14 at its place and date.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    retina.eye.field.Field
+    """
     from retina.eye.field import Field, field_at
 
     f = sc["field"]
@@ -104,7 +124,22 @@ def build_field(sc: Scenario):
 
 
 def build_eyes(sc: Scenario) -> list:
-    """The :class:`retina.eye.geometry.Eye` objects of the scenario (in file order)."""
+    """The eyes of the scenario.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    list of retina.eye.geometry.Eye
+        In file order.
+
+    Raises
+    ------
+    InputError
+        Naming the eye (``eyes[i].key``) for an invalid value.
+    """
     from retina.eye.geometry import Eye
 
     out = []
@@ -124,6 +159,11 @@ def build_ordering(sc: Scenario, kappa: float | None = None):
     sc : Scenario
     kappa : float, optional
         Use a von Mises-Fisher cone of this concentration instead of the scenario's model.
+
+    Returns
+    -------
+    Aligned, FreeRotation, Isotropic, Cone or Composite
+        A model of :mod:`retina.eye.ordering`.
     """
     from scipy.spatial.transform import Rotation
 
@@ -146,7 +186,17 @@ def build_ordering(sc: Scenario, kappa: float | None = None):
 
 
 def field_uT(sc: Scenario) -> float:
-    """The field strength (uT) the yield function is computed at: ``[yield] field_uT`` or the field's F."""
+    """The field strength the yield function is computed at.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    float
+        Microtesla: ``[yield] field_uT`` when given, else the scenario field's intensity.
+    """
     if sc["yield"]["field_uT"] is not None:
         return float(sc["yield"]["field_uT"])
     return float(build_field(sc).F_uT)
@@ -160,6 +210,11 @@ def build_yield_function(sc: Scenario, *, progress=None):
     sc : Scenario
     progress : callable(done, total), optional
         Called while the spin engine works.
+
+    Returns
+    -------
+    retina.yieldfn.YieldFunction
+        Computed from ``[yield] system``, read from ``file`` or fitted to ``table``.
     """
     from retina.yieldfn import YieldFunction
 
@@ -192,6 +247,11 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
     kappa : float, optional
         Replace the ordering by a cone of this concentration, in ensemble mode (disorder sweep).
     progress : callable(done, total), optional
+
+    Returns
+    -------
+    retina.eye.pattern.RetinaModel
+        Sampled molecules draw from :func:`stage_rng` ``(seed, "molecules")``.
     """
     from retina.eye.geometry import build_receptors
     from retina.eye.pattern import RetinaModel
@@ -205,7 +265,16 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
 
 
 def build_sky(sc: Scenario):
-    """The sky model of ``[light]`` (:mod:`retina.signal.light`)."""
+    """The sky model of ``[light]``.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    retina.signal.light.UniformSky or retina.signal.light.HorizonSky
+    """
     from retina.signal.light import HorizonSky, UniformSky
 
     li = sc["light"]

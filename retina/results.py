@@ -182,6 +182,15 @@ def save_results(results: Results, path: str | Path, *, force: bool = False) -> 
 def load_results(path: str | Path) -> Results:
     """Read a results file written by :func:`save_results`.
 
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Results
+        ``scenario`` is None (the scenario text is in ``provenance["scenario_toml"]``).
+
     Raises
     ------
     InputError

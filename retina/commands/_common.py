@@ -13,7 +13,16 @@ __all__ = ["add_common_arguments", "apply_overrides", "run_command"]
 
 
 def add_common_arguments(p, *, output_required: bool = False, default_output: str | None = None) -> None:
-    """The options every scenario subcommand shares."""
+    """Add the options every scenario subcommand shares.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+    output_required : bool
+        ``-o`` must be given.
+    default_output : str, optional
+        Default of ``-o`` (else the scenario's ``[output] dir``).
+    """
     p.add_argument("-o", "--output", metavar="DIR", required=output_required, default=default_output,
                    help="output folder (results.h5, figures/, index.html, report.md); default: the "
                         "scenario's [output] dir" if default_output is None else
@@ -30,6 +39,23 @@ def add_common_arguments(p, *, output_required: bool = False, default_output: st
 
 
 def apply_overrides(sc: Scenario, args) -> Scenario:
+    """The scenario with the command-line options ``--seed``, ``--headings``, ``--formats``,
+    ``--dpi`` and ``--no-animation`` applied.
+
+    Parameters
+    ----------
+    sc : Scenario
+    args : argparse.Namespace
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    InputError
+        Naming the option, for a bad value.
+    """
     changes: dict = {}
     if getattr(args, "seed", None) is not None:
         if args.seed < 0:
@@ -64,6 +90,22 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
 
     ``--quick`` reduces the scenario first and the command-line overrides (``--headings``,
     ``--seed``, ``--dpi``, ...) apply after it, so what the user typed is never cut back.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed options of :func:`add_common_arguments` (and ``scenario``).
+    stages : sequence of str
+        Stage names (:data:`retina.stages.STAGES`).
+    scenario_path : str or Path, optional
+        Instead of ``args.scenario``.
+    title : str, optional
+        Report title.
+
+    Returns
+    -------
+    int
+        The exit status, 0.
     """
     import time
 

@@ -43,7 +43,17 @@ def _data_folder() -> Path:
 
 
 def bundled_path(name: str) -> Path:
-    """The path of the bundled file ``name`` (one of :data:`BUNDLED`).
+    """The path of a bundled file.
+
+    Parameters
+    ----------
+    name : str
+        One of :data:`BUNDLED`.
+
+    Returns
+    -------
+    Path
+        A real file (extracted once when the package is zipped).
 
     Raises
     ------
@@ -60,5 +70,11 @@ def bundled_path(name: str) -> Path:
 
 
 def demo_scenario_path() -> Path:
-    """The path of the bundled demo scenario (``demo_scenario.toml``, which uses ``demo_pair.toml``)."""
+    """The bundled demo scenario.
+
+    Returns
+    -------
+    Path
+        ``demo_scenario.toml``, beside the ``demo_pair.toml`` it uses.
+    """
     return bundled_path("demo_scenario.toml")

@@ -30,7 +30,36 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
     ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
     replaced and other files are kept).  Everything is first written into a hidden staging folder
     beside ``outdir`` and moved in only when complete, so an interrupted or failed run leaves
-    ``outdir`` as it was.  Returns the paths written.
+    ``outdir`` as it was.
+
+    Parameters
+    ----------
+    res : Results
+    outdir : str or Path
+    force : bool
+        Write into an existing, non-empty folder.
+    formats : sequence of str
+        Figure formats among "png", "svg", "pdf".
+    dpi : int
+        PNG resolution.
+    animation : bool
+        Also write the head-scan GIF (when the results hold a scan).
+    title : str, optional
+        Report title (default from the scenario name).
+    progress_factory : callable(description, total), optional
+        Progress callbacks (one step per figure).
+    save_results : bool
+        Write ``results.h5`` (False when redrawing from the same file).
+
+    Returns
+    -------
+    dict
+        Paths: ``results``, ``html``, ``markdown``, ``figures``.
+
+    Raises
+    ------
+    InputError
+        When ``outdir`` is a file, is not empty without ``force``, or its parent is missing.
     """
     import shutil
     import tempfile

@@ -16,7 +16,27 @@ __all__ = ["make_figures"]
 
 def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300,
                  animation: bool = True, progress=None) -> list:
-    """Draw every figure the results allow into ``folder`` and return their report entries."""
+    """Draw every figure the results allow into ``folder``.
+
+    Parameters
+    ----------
+    res : Results
+    folder : str or Path
+        Created when missing.
+    formats : sequence of str
+        Formats among "png", "svg", "pdf".
+    dpi : int
+        PNG resolution (the GIF uses at most 100).
+    animation : bool
+        Also write the head-scan GIF.
+    progress : callable(done, total), optional
+        After each figure.
+
+    Returns
+    -------
+    list of retina.outputs.report.FigureEntry
+        The report entries, in drawing order.
+    """
     from retina import figures as F
     from retina.outputs.report import FigureEntry
     from retina.yieldfn import YieldFunction

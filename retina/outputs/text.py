@@ -15,7 +15,17 @@ __all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_
 
 
 def params_text(res: Results) -> str:
-    """One line of the run's main parameters, for figure captions."""
+    """One line of the run's main parameters, for figure captions.
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    str
+        Field, ordering, sky, receptor count and seed.
+    """
     p = res.provenance
     f = res.groups["field"]
     n = res.groups["receptors"]["eye_index"].size
@@ -25,7 +35,18 @@ def params_text(res: Results) -> str:
 
 
 def light_levels(res: Results):
-    """``(names, photons)`` of the light levels of a run (trial levels when present)."""
+    """The light levels of a run (the trial levels when present, else the scenario's ``[light]``).
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    names : list of str
+    photons : list of float
+        Photons per receptor per look, one per name.
+    """
     import tomllib
 
     try:
@@ -57,7 +78,19 @@ _COMPARE_TEXT = {"receptor_gain": "a head-fixed texture (every receptor's sensit
 
 
 def bound_text(bound_deg: float) -> str:
-    """A bound in degrees, or "not informative" (:func:`retina.readout.fisher.bound_is_informative`)."""
+    """A bound as report text.
+
+    Parameters
+    ----------
+    bound_deg : float
+        Cramer-Rao bound in degrees.
+
+    Returns
+    -------
+    str
+        The number to three digits, "not informative" above
+        :data:`retina.readout.fisher.INFORMATIVE_BOUND_DEG`, or "no information" when infinite.
+    """
     from retina.readout.fisher import bound_is_informative
 
     if not np.isfinite(bound_deg):
@@ -72,7 +105,17 @@ def _typical_tilt_deg(kappa: float) -> float:
 
 
 def key_numbers(res: Results) -> list:
-    """The report's tables of key numbers (:class:`retina.outputs.report.Section`)."""
+    """The report's tables of key numbers.
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    list of retina.outputs.report.Section
+        One table per group present (yield function, field and retina, and one per stage).
+    """
     from retina.outputs.report import Section
 
     g = res.groups
@@ -191,7 +234,20 @@ def _informative() -> float:
 
 
 def summary_text(res: Results, paths: dict, seconds: float) -> str:
-    """A few lines in words for stdout."""
+    """A few lines in words for stdout.
+
+    Parameters
+    ----------
+    res : Results
+    paths : dict
+        As returned by :func:`retina.outputs.write_outputs`.
+    seconds : float
+        Wall time of the run.
+
+    Returns
+    -------
+    str
+    """
     g = res.groups
     y = g["yield_function"]
     lines = [f"scenario '{res.provenance.get('scenario_name')}' (seed {res.provenance.get('seed')}"

@@ -26,12 +26,29 @@ STAGES: dict[str, Stage] = {s.name: s for s in (patterns.STAGE, scan.STAGE, prec
 
 
 def register(stage: Stage) -> None:
-    """Add ``stage`` to :data:`STAGES` (after the others); a name may be registered once."""
+    """Add a stage to :data:`STAGES`, after the others.
+
+    Parameters
+    ----------
+    stage : Stage
+        Its name must be new.
+
+    Raises
+    ------
+    ValueError
+        When a stage of that name is registered already.
+    """
     if stage.name in STAGES:
         raise ValueError(f"a stage named {stage.name!r} is registered already")
     STAGES[stage.name] = stage
 
 
 def stage_names() -> tuple[str, ...]:
-    """The registered stage names, in computing order."""
+    """The registered stage names.
+
+    Returns
+    -------
+    tuple of str
+        In computing order.
+    """
     return tuple(STAGES)
