@@ -4,9 +4,13 @@ The key is the sha256 of a canonical JSON record of everything that determines t
 canonical spin-system document (:func:`retina.spin.io.dump_system`), the field strength (as the
 shortest round-tripping decimal), the degree, the resolved engine method, the number of check points
 and the retina version.  Entries are native HDF5 files ``<key>.h5`` (:mod:`retina.io.hdf5`) in the
-cache folder: ``$RETINA_CACHE`` when set, else ``~/.cache/retina-compass``.  Writes are atomic; an
+cache folder: ``$RETINA_CACHE`` when set, else ``$XDG_CACHE_HOME/retina-compass`` (XDG Base
+Directory specification), else ``~/.cache/retina-compass``.  Writes are atomic; an
 unreadable entry, or one whose coefficients do not match the ``content_hash`` stored with them,
 counts as a miss and is removed.
+
+The cache stores and returns plain :class:`retina.io.hdf5.YieldRecord` contents and never imports
+:mod:`retina.yieldfn` (which uses it).
 """
 
 from __future__ import annotations
@@ -20,9 +24,19 @@ __all__ = ["default_cache_dir", "cache_key", "YieldCache"]
 
 
 def default_cache_dir() -> Path:
-    """``$RETINA_CACHE`` if set and non-empty, else ``~/.cache/retina-compass``."""
+    """``$RETINA_CACHE`` if set and non-empty; else ``$XDG_CACHE_HOME/retina-compass`` if
+    ``XDG_CACHE_HOME`` is set to an absolute path; else ``~/.cache/retina-compass``.
+
+    The XDG Base Directory specification says a relative ``XDG_CACHE_HOME`` is invalid and is to
+    be ignored.
+    """
     env = os.environ.get("RETINA_CACHE")
-    return Path(env).expanduser() if env else Path.home() / ".cache" / "retina-compass"
+    if env:
+        return Path(env).expanduser()
+    xdg = os.environ.get("XDG_CACHE_HOME")
+    if xdg and Path(xdg).is_absolute():
+        return Path(xdg) / "retina-compass"
+    return Path.home() / ".cache" / "retina-compass"
 
 
 def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int) -> str:
@@ -59,27 +73,28 @@ class YieldCache:
         return self.folder / f"{key}.h5"
 
     def get(self, key: str):
-        """The cached :class:`YieldFunction` for ``key``, or None."""
-        from retina.errors import InputError
-        from retina.io.hdf5 import load_yield_function
+        """The cached yield function for ``key`` as a :class:`retina.io.hdf5.YieldRecord`, or None.
 
-        from retina.yieldfn import content_hash
+        :meth:`retina.yieldfn.YieldFunction.from_record` turns it into a yield function.
+        """
+        from retina.errors import InputError
+        from retina.io.hdf5 import content_hash, read_yield_function
 
         path = self.path_for(key)
         if not path.exists():
             return None
         try:
-            yf = load_yield_function(path)
+            rec = read_yield_function(path)
         except (InputError, OSError, KeyError, ValueError):
             self._discard(path)
             return None
-        if yf.provenance.get("input_hash") != key:
+        if rec.provenance.get("input_hash") != key:
             return None
-        if yf.provenance.get("content_hash") != content_hash(yf.coeffs, yf.degree):
+        if rec.provenance.get("content_hash") != content_hash(rec.coeffs, rec.degree):
             # the coefficients no longer match the hash written with them: a damaged entry
             self._discard(path)
             return None
-        return yf
+        return rec
 
     @staticmethod
     def _discard(path: Path) -> None:
@@ -89,7 +104,8 @@ class YieldCache:
             pass
 
     def put(self, key: str, yf) -> Path:
-        """Store ``yf`` under ``key`` (atomically, replacing any older entry)."""
+        """Store ``yf`` (a :class:`retina.yieldfn.YieldFunction`) under ``key`` (atomically, replacing
+        any older entry)."""
         from retina.io.hdf5 import save_yield_function
 
         self.folder.mkdir(parents=True, exist_ok=True)

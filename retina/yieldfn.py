@@ -30,7 +30,7 @@ Conventions (owned here)
 from __future__ import annotations
 
 import datetime as _dt
-import hashlib
+import logging
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -42,10 +42,12 @@ from scipy.spatial.transform import Rotation
 
 from retina import sphere
 from retina.errors import InputError
+from retina.io.hdf5 import BASIS, content_hash  # noqa: F401  (BASIS: public here too)
+
+_log = logging.getLogger(__name__)
 
 __all__ = ["YieldFunction", "Anisotropy", "content_hash", "package_versions", "canonical_axis"]
 
-BASIS = "real-sh-even-orthonormal-no-cs"
 DEFAULT_DEGREE = 16
 DEFAULT_CHECK_POINTS = 200
 #: Check directions whose antipodes are computed too, to confirm ``Phi(b) = Phi(-b)`` on every run.
@@ -88,14 +90,6 @@ def canonical_axis(v) -> np.ndarray:
         if abs(c) > 1e-12:
             return v if c > 0 else -v
     return v
-
-
-def content_hash(coeffs: np.ndarray, degree: int) -> str:
-    """sha256 hex digest of ``degree`` and the little-endian float64 bytes of ``coeffs``."""
-    h = hashlib.sha256()
-    h.update(f"{BASIS}:{int(degree)}:".encode())
-    h.update(np.ascontiguousarray(coeffs, dtype="<f8").tobytes())
-    return h.hexdigest()
 
 
 def package_versions() -> dict[str, str]:
@@ -272,10 +266,25 @@ class YieldFunction:
 
     @classmethod
     def load(cls, path: str | Path) -> "YieldFunction":
-        """Read a native HDF5 file written by :meth:`save`."""
-        from retina.io.hdf5 import load_yield_function
+        """Read a native HDF5 file written by :meth:`save`.
 
-        return load_yield_function(path)
+        Raises
+        ------
+        InputError
+            When the file is missing, not HDF5 or not a yield-function file (:mod:`retina.io.hdf5`).
+        """
+        from retina.io.hdf5 import read_yield_function
+
+        rec = read_yield_function(path)
+        try:
+            return cls.from_record(rec)
+        except ValueError as exc:
+            raise InputError(str(exc), source=path, key="/yield_function/coeffs") from None
+
+    @classmethod
+    def from_record(cls, rec) -> "YieldFunction":
+        """The yield function of a :class:`retina.io.hdf5.YieldRecord` (a file's or the cache's content)."""
+        return cls(rec.coeffs, rec.degree, rec.provenance, rec.fit_error)
 
     # ------------------------------------------------------------------ constructors
 
@@ -354,7 +363,8 @@ class YieldFunction:
         cache : bool
             Look the result up in, and store it into, the content-hash cache (:mod:`retina.cache`).
         cache_dir : str or Path, optional
-            Cache folder (default: ``$RETINA_CACHE`` or ``~/.cache/retina-compass``).
+            Cache folder (default: :func:`retina.cache.default_cache_dir`: ``$RETINA_CACHE``, else
+            ``$XDG_CACHE_HOME/retina-compass``, else ``~/.cache/retina-compass``).
         check_points : int
             Number of independent check directions (>= 1).
         max_bytes : int, optional
@@ -381,9 +391,12 @@ class YieldFunction:
 
             store = YieldCache(cache_dir)
             key = cache_key(system, field_uT, degree, resolved, check_points=int(check_points))
-            hit = store.get(key)
-            if hit is not None:
+            rec = store.get(key)
+            if rec is not None:
+                hit = cls.from_record(rec)
                 hit.from_cache = True
+                _log.info("yield function of %r at %g uT, degree %d: taken from the cache %s", system.name,
+                          field_uT, degree, store.path_for(key))
                 return hit
 
         grid = sphere.grid_for_degree(degree)
@@ -391,6 +404,8 @@ class YieldFunction:
         check = sphere.fibonacci(int(check_points), hemisphere=True)
         n_anti = min(ANTIPODAL_POINTS, len(check))
         dirs = np.concatenate([grid.points[half], check.points, -check.points[:n_anti]], axis=0)
+        _log.info("yield function of %r at %g uT, degree %d: method %s, %d field directions", system.name,
+                  field_uT, degree, resolved, dirs.shape[0])
         t0 = time.perf_counter()
         values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
                                                   max_bytes=max_bytes), dtype=float)
@@ -410,6 +425,8 @@ class YieldFunction:
         err = sphere.evaluate(coeffs, check.points) - values[h:h + n_check]
         err_max = float(np.max(np.abs(err)))
         err_rms = float(np.sqrt(np.mean(err**2)))
+        _log.info("yield function of %r: computed in %.1f s, truncation error %.2e (max), %.2e (rms)",
+                  system.name, seconds, err_max, err_rms)
 
         from retina.spin.io import dump_system
 

@@ -1,7 +1,7 @@
 """``retina demo``: the whole job on the bundled, invented scenario, into a report folder.
 
-The bundled scenario (``assets/demo_scenario.toml``) computes the yield function of an invented
-radical pair (``assets/demo_pair.toml``), builds two eyes with partially ordered receptors, and
+The bundled scenario (``demo_scenario.toml`` in :mod:`retina.data`, source ``assets/``) computes
+the yield function of an invented radical pair (``demo_pair.toml``), builds two eyes with partially ordered receptors, and
 runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep and
 simulated orientation trials.  README.md, section "The demo", says how to read the output.
 """
@@ -11,8 +11,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from retina import pipeline
-from retina.errors import InputError
+from retina.commands import _common
 
 DEFAULT_OUTPUT = "retina-demo"
 
@@ -31,14 +30,10 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def bundled_scenario() -> Path:
-    """Path of the bundled demo scenario (``assets/demo_scenario.toml`` of the source tree)."""
-    import retina
+    """Path of the bundled demo scenario (:func:`retina.data.demo_scenario_path`)."""
+    from retina.data import demo_scenario_path
 
-    path = Path(retina.__file__).resolve().parent.parent / "assets" / "demo_scenario.toml"
-    if not path.is_file():
-        raise InputError("the bundled demo scenario is missing (expected in the source checkout's assets/ "
-                         "folder); pass --scenario FILE", source=path)
-    return path
+    return demo_scenario_path()
 
 
 def register(subparsers) -> None:
@@ -50,10 +45,10 @@ def register(subparsers) -> None:
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
                    help="run this scenario instead of the bundled one")
-    pipeline.add_common_arguments(p, default_output=DEFAULT_OUTPUT)
+    _common.add_common_arguments(p, default_output=DEFAULT_OUTPUT)
 
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return pipeline.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
-                                scenario_path=path)
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+                               scenario_path=path)

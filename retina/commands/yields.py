@@ -23,9 +23,9 @@ examples:
   retina yields pair.toml -o pair47.h5 --field-uT 47 --degree 24
   retina yields pair.toml -o pair.h5 --method liouville --max-memory-gb 2 --force
 
-The result is cached by content (spin system, field, degree, method, version) in $RETINA_CACHE or
-~/.cache/retina-compass; --no-cache always recomputes.  Load it in Python with
-retina.yieldfn.YieldFunction.load("pair.h5").
+The result is cached by content (spin system, field, degree, method, version) in $RETINA_CACHE,
+else $XDG_CACHE_HOME/retina-compass, else ~/.cache/retina-compass; --no-cache always recomputes.
+Load it in Python with retina.yieldfn.YieldFunction.load("pair.h5").
 """
 
 
@@ -54,7 +54,8 @@ def register(subparsers) -> None:
     p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     p.add_argument("--no-cache", action="store_true", help="neither read nor write the result cache")
     p.add_argument("--cache-dir", metavar="DIR", default=None,
-                   help="cache folder (default: $RETINA_CACHE or ~/.cache/retina-compass)")
+                   help="cache folder (default: $RETINA_CACHE, else $XDG_CACHE_HOME/retina-compass, "
+                        "else ~/.cache/retina-compass)")
     p.add_argument("-q", "--quiet", action="store_true", help="no estimate, no progress bar, summary only")
 
 
@@ -110,7 +111,8 @@ def summary(yf, output, wall_seconds: float) -> str:
 def run(args) -> int:
     from retina import sphere
     from retina.cache import YieldCache, cache_key
-    from retina.commands._spin_args import ProgressBar, common_inputs
+    from retina.commands._spin_args import common_inputs
+    from retina.progress import ProgressBar
     from retina.spin import engine
     from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
 
@@ -133,7 +135,7 @@ def run(args) -> int:
               f"{n} directions: about {_fmt_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
               file=sys.stderr)
 
-    with ProgressBar(not args.quiet and cached is None, "yields", n) as progress:
+    with ProgressBar(not args.quiet and cached is None, "yields", n, unit="dir") as progress:
         yf = YieldFunction.from_system(system, field, degree, method=method, progress=progress,
                                        cache=use_cache, cache_dir=args.cache_dir,
                                        check_points=args.check_points, max_bytes=max_bytes)

@@ -19,17 +19,21 @@ estimated memory exceeds ``max_bytes`` (default: 60 % of ``MemAvailable`` in ``/
 from __future__ import annotations
 
 import functools
+import logging
 import time
 from dataclasses import dataclass
 
 import numpy as np
 
 from retina.errors import InputError, ResourceError
+from retina.spin import memory
+from retina.spin.memory import available_bytes  # noqa: F401  (public here too: engine.available_bytes)
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
 
 METHODS = ("separable", "hilbert", "liouville")
 _GIB = 2**30
+_log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -97,18 +101,6 @@ _PER_DIRECTION = 3e-5
 
 def _t_eigh(d: int) -> float:
     return max(_eigh_constant() * d**3, 2e-6)
-
-
-def available_bytes() -> int:
-    """``MemAvailable`` from /proc/meminfo in bytes (8 GiB when it cannot be read)."""
-    try:
-        with open("/proc/meminfo") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    return 8 * _GIB
 
 
 def _check_method(method: str) -> str:
@@ -242,8 +234,10 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         method = "hilbert"
     dirs = np.asarray(directions, dtype=float)
     n = dirs.shape[0] if dirs.ndim == 2 else 1
-    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
+    limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
+    _log.debug("%r: method %s, %d directions, estimated %.3g s and %s (limit %s)", system.name, method, n,
+               cost.seconds, _fmt_gib(cost.bytes), _fmt_gib(limit))
     if cost.bytes > limit:
         hint = _resource_hint(system, method)
         raise ResourceError(
