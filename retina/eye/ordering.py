@@ -79,7 +79,7 @@ def _is_real(v) -> bool:
 __all__ = ["Ordering", "Aligned", "FreeRotation", "Cone", "ConeNoTwist", "Planar", "Isotropic",
            "Composite", "kappa_from_order_parameter", "order_parameter_from_kappa",
            "girdle_order_parameter", "vmf_cos_rule", "girdle_cos_rule", "swing_diagonal",
-           "twist_factors", "as_generator"]
+           "twist_factors", "as_generator", "from_settings", "MODELS", "TWISTS"]
 
 
 def as_generator(rng) -> np.random.Generator:
@@ -771,3 +771,52 @@ class Composite(Ordering):
         for s in self.steps:
             Q = s.sample(n, g) * Q
         return Q
+
+
+#: The ordering models a scenario or the viewer can name (:func:`from_settings`).
+MODELS = ("aligned", "axial", "cone", "cone_no_twist", "plane", "isotropic")
+#: The twist choices of the cone and plane models.
+TWISTS = ("tied", "free", "fixed", "restrained")
+
+
+def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist_kappa: float = 1.0,
+                  orientation_deg=(0.0, 0.0, 0.0)) -> Ordering:
+    """The ordering model named by the settings of a scenario's ``[ordering]`` section.
+
+    Parameters
+    ----------
+    model : {"aligned", "axial", "cone", "cone_no_twist", "plane", "isotropic"}
+        ``"aligned"``: :class:`Aligned` at the orientation; ``"axial"``: :class:`FreeRotation` with
+        the tilt and twist of the orientation; ``"cone"``: :class:`Cone` about the orientation
+        (reaches isotropy as ``kappa`` and the twist concentration go to 0); ``"cone_no_twist"``:
+        ``Cone(twist="fixed")``, the swing without twist (what ``"cone"`` meant before the twist
+        was modelled; not isotropic at ``kappa = 0``); ``"plane"``: :class:`Planar` with the
+        orientation as its reference; ``"isotropic"``.
+    kappa : float
+        Tilt (cone) or girdle (plane) concentration, ``>= 0``, ``inf`` allowed.
+    twist : {"tied", "free", "fixed", "restrained"}
+        Twist of the cone and plane models; ``"restrained"`` uses ``twist_kappa``.
+    twist_kappa : float
+        Von Mises concentration of a restrained twist (``>= 0``).
+    orientation_deg : sequence of 3 floats
+        z-y-z Euler angles (degrees) of the mean (cone) or reference (plane) orientation, molecule to
+        receptor.
+    """
+    if model not in MODELS:
+        raise InputError(f"expected one of {', '.join(MODELS)}, got {model!r}", key="ordering.model")
+    if twist not in TWISTS:
+        raise InputError(f"expected one of {', '.join(TWISTS)}, got {twist!r}", key="ordering.twist")
+    a, b, c = (float(x) for x in orientation_deg)
+    base = Rotation.from_euler("ZYZ", [a, b, c], degrees=True)
+    tw = float(twist_kappa) if twist == "restrained" else twist
+    if model == "aligned":
+        return Aligned(base)
+    if model == "axial":
+        return FreeRotation(tilt_deg=b, twist_deg=c)
+    if model == "isotropic":
+        return Isotropic()
+    if model == "cone":
+        return Cone(kappa=float(kappa), twist=tw, mean=base)
+    if model == "cone_no_twist":
+        return Cone(kappa=float(kappa), twist="fixed", mean=base)
+    return Planar(kappa=float(kappa), twist=tw, mean=base)
