@@ -389,3 +389,25 @@ def test_isotropic_limit_gives_a_flat_pattern_and_no_information(model):
     mn = RetinaModel(coeffs_of(f_general, 8), rec, near)
     assert np.all(fisher.heading_information(SignalModel(mn, inclination_deg=60.0, photons=1e4),
                                              [0.0, 45.0]).information > 0)
+
+
+def test_study_cases_join_the_restraint_classes():
+    # Derived (limits of the laws): each curve's kappa = inf and kappa = 0 ends are the restraint
+    # classes named in its label; the cone without twist does not reach isotropy.
+    c = _random_coeffs(3)
+    from retina.eye.ordering import concentration_curves, restraint_classes
+
+    cls = {s.key: s.build.ensemble(c) for s in restraint_classes(MEAN)}
+    ends = {"cone_tied": ("aligned", "isotropic"), "cone_free": ("restrained_two", "isotropic"),
+            "plane_free": ("restrained_one", "isotropic"),
+            "twist_axis": ("aligned", "restrained_two"),
+            "twist_plane": ("restrained_two", "restrained_one")}
+    curves = {s.key: s.build for s in concentration_curves(MEAN)}
+    for key, (hi, lo) in ends.items():
+        np.testing.assert_allclose(curves[key](math.inf).ensemble(c), cls[hi], atol=1e-14)
+        np.testing.assert_allclose(curves[key](0.0).ensemble(c), cls[lo], atol=1e-14)
+    assert np.linalg.norm(curves["cone_no_twist"](0.0).ensemble(c)[1:]) > 1e-2
+    # Less freedom, more anisotropy left (for this generic function).
+    norms = [np.linalg.norm(cls[k][1:]) for k in ("aligned", "restrained_two", "restrained_one",
+                                                   "isotropic")]
+    assert norms[0] > norms[1] > norms[2] > norms[3] == 0

@@ -79,7 +79,8 @@ def _is_real(v) -> bool:
 __all__ = ["Ordering", "Aligned", "FreeRotation", "Cone", "ConeNoTwist", "Planar", "Isotropic",
            "Composite", "kappa_from_order_parameter", "order_parameter_from_kappa",
            "girdle_order_parameter", "vmf_cos_rule", "girdle_cos_rule", "swing_diagonal",
-           "twist_factors", "as_generator", "from_settings", "MODELS", "TWISTS"]
+           "twist_factors", "as_generator", "from_settings", "MODELS", "TWISTS",
+           "StudyCase", "restraint_classes", "concentration_curves"]
 
 
 def as_generator(rng) -> np.random.Generator:
@@ -820,3 +821,59 @@ def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist
     if model == "cone_no_twist":
         return Cone(kappa=float(kappa), twist="fixed", mean=base)
     return Planar(kappa=float(kappa), twist=tw, mean=base)
+
+
+@dataclass(frozen=True)
+class StudyCase:
+    """One ordering model of the order study: a key, a label for figures and tables, and the model
+    (or, for a curve, a function of the concentration that builds it)."""
+
+    key: str
+    label: str
+    build: object
+
+
+def restraint_classes(mean: Rotation | None = None) -> tuple[StudyCase, ...]:
+    """The four restraint classes of the order study, in the order of decreasing order.
+
+    With ``M = mean`` (identity by default): aligned, ``Aligned(M)``; restrained in two (free in
+    one), ``Cone(kappa=inf, twist="free", mean=M)``, free rotation about the receptor axis of the
+    molecular direction ``M^-1 z``; restrained in one (free in two), ``Planar(kappa=inf,
+    twist="free", mean=M)``, the molecular direction ``M^-1 x`` in the membrane plane with a free
+    twist; isotropic.
+    """
+    M = Rotation.identity() if mean is None else mean
+    return (
+        StudyCase("aligned", "aligned (restrained in three)", Aligned(M)),
+        StudyCase("restrained_two", "restrained in two, free in one",
+                  Cone(kappa=math.inf, twist="free", mean=M)),
+        StudyCase("restrained_one", "restrained in one, free in two",
+                  Planar(kappa=math.inf, twist="free", mean=M)),
+        StudyCase("isotropic", "isotropic (free in three)", Isotropic()),
+    )
+
+
+def concentration_curves(mean: Rotation | None = None) -> tuple[StudyCase, ...]:
+    """The curves of the order study: each varies one concentration of one model (``build(kappa)
+    -> Ordering``); the labels give the limits at ``kappa = inf`` and 0.
+
+    The first three reach isotropy at 0 (tilt with tied twist, tilt with free twist, the plane's
+    girdle with free twist); the two twist curves join restraint classes; the last is the cone
+    without twist, for comparison (not isotropic at 0).
+    """
+    M = Rotation.identity() if mean is None else mean
+    inf = math.inf
+    return (
+        StudyCase("cone_tied", "cone, twist tied: aligned to isotropic",
+                  lambda k: Cone(kappa=k, twist="tied", mean=M)),
+        StudyCase("cone_free", "cone, free twist: restrained in two to isotropic",
+                  lambda k: Cone(kappa=k, twist="free", mean=M)),
+        StudyCase("plane_free", "plane girdle, free twist: restrained in one to isotropic",
+                  lambda k: Planar(kappa=k, twist="free", mean=M)),
+        StudyCase("twist_axis", "twist about the axis: aligned to restrained in two",
+                  lambda k: Cone(kappa=inf, twist=k, mean=M)),
+        StudyCase("twist_plane", "twist in the plane: restrained in two to restrained in one",
+                  lambda k: Planar(kappa=inf, twist=k, mean=M)),
+        StudyCase("cone_no_twist", "cone without twist (not isotropic at 0)",
+                  lambda k: Cone(kappa=k, twist="fixed", mean=M)),
+    )
