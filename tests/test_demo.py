@@ -22,7 +22,7 @@ from retina.scenario import load_scenario, scenario_from_dict
 from retina.yieldfn import YieldFunction
 
 ASSETS = Path(__file__).resolve().parent.parent / "assets"
-FIGURES = ("yield_sphere", "modulation_fields", "scan_filmstrip", "precision_curves", "disorder_tolerance",
+FIGURES = ("yield_sphere", "modulation_fields", "scan_filmstrip", "precision_curves", "disorder_tolerance", "order_study",
            "trial_histograms")
 
 
@@ -311,6 +311,9 @@ def test_report_states_order_parameter_depth_and_north(demo_dir):
         p2 = 1 - 3 * (1 / np.tanh(k) - 1 / k) / k
         assert f"kappa = {k:g} (<P2> = {p2:.3f}" in md
     assert "(largest - smallest) / mean of the receptor yields" in md
+    # The demo's disorder sweep says which model it varies and that it is isotropic at kappa = 0.
+    assert "Model swept: cone (Cone), twist tied; isotropic at kappa = 0" in md
+    assert "How much order the compass needs" in md
     assert "clockwise from geographic north" in md and f"lies {decl:g} deg east" in md
     # Source: Zar (2010) eq. 27.1-27.2, Rayleigh z = R^2 / n = n r^2; r from scipy.stats.directional_stats.
     a = np.radians(dim)

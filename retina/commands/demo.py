@@ -2,8 +2,8 @@
 
 The bundled scenario (``assets/demo_scenario.toml``) computes the yield function of an invented
 radical pair (``assets/demo_pair.toml``), builds two eyes with partially ordered receptors, and
-runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep and
-simulated orientation trials.  README.md, section "The demo", says how to read the output.
+runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep, the
+order study (how much molecular order the compass needs) and simulated orientation trials.  README.md, section "The demo", says how to read the output.
 """
 
 from __future__ import annotations
@@ -45,7 +45,7 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
-                    "trials) on the bundled invented scenario and write results.h5, figures and an "
+                    "order study, trials) on the bundled invented scenario and write results.h5, figures and an "
                     "HTML + Markdown report.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
@@ -55,5 +55,5 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials"),
                                scenario_path=path)
