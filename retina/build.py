@@ -121,16 +121,18 @@ def build_ordering(sc: Scenario, kappa: float | None = None, *, model: str | Non
     ----------
     sc : Scenario
     kappa : float, optional
-        Replace the scenario's concentration.  When the model has none ("aligned", "axial",
-        "isotropic"), a cone ("cone", with the scenario's twist) of this concentration is used.
+        Replace the scenario's concentration.  When the scenario's model has none ("aligned",
+        "axial", "isotropic") and ``model`` is not given, a cone ("cone", with the scenario's
+        twist) of this concentration is used.
     model : str, optional
-        Replace the scenario's model (one of :data:`retina.eye.ordering.MODELS`).
+        Replace the scenario's model (one of :data:`retina.eye.ordering.MODELS`); ``kappa`` is
+        ignored by a model without a concentration.
     """
     from retina.eye import ordering as om
 
     o = sc["ordering"]
     name = o["model"] if model is None else model
-    if kappa is not None and name not in KAPPA_MODELS:
+    if kappa is not None and model is None and name not in KAPPA_MODELS:
         name = "cone"
     return om.from_settings(name, kappa=float(o["kappa"] if kappa is None else kappa), twist=o["twist"],
                             twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"])
