@@ -51,8 +51,12 @@ def order_study(classes: Mapping[str, tuple[str, float, float]],
         cur[key] = (lab, k[o], d[o], bd[o])
     pos = np.concatenate([c[1][c[1] > 0] for c in cur.values()])
     lin = float(pos.min()) if pos.size else 1.0
+    kmax = max(float(c[1].max()) for c in cur.values())
+    ticks = [0.0] + [10.0 ** e for e in range(int(np.ceil(np.log10(lin))), int(np.floor(np.log10(kmax))) + 1)]
     with style():
-        fig = new_figure(DOUBLE_IN, 2.9)
+        from matplotlib.ticker import FixedLocator, FuncFormatter, NullLocator
+
+        fig = new_figure(DOUBLE_IN, 3.3)
         ax0 = fig.add_subplot(1, 3, 1)
         labels = [v[0] for v in classes.values()]
         dep = np.array([v[1] for v in classes.values()], float)
@@ -64,9 +68,10 @@ def order_study(classes: Mapping[str, tuple[str, float, float]],
                                           else "no heading")
             ax0.text(100 * dp, yi, " " + txt, va="center", ha="left", fontsize=6)
         ax0.set_yticks(y)
-        ax0.set_yticklabels([lab.replace(", ", ",\n") for lab in labels], fontsize=6.5)
+        ax0.set_yticklabels([lab.replace(", ", ",\n").replace(" (", "\n(") for lab in labels], fontsize=6.5)
         ax0.set_xlabel("modulation depth, %")
-        ax0.set_xlim(0, 100 * max(float(dep.max()), 1e-12) * 1.9)
+        ax0.set_xlim(0, 100 * max(float(dep.max()), 1e-12) * 2.1)
+        ax0.set_title("restraint classes (depth, bound)", fontsize=7)
         ax0.grid(True, axis="x", lw=0.3, color="0.85")
         ax1 = fig.add_subplot(1, 3, 2)
         ax2 = fig.add_subplot(1, 3, 3)
@@ -75,24 +80,30 @@ def order_study(classes: Mapping[str, tuple[str, float, float]],
             ls = _DASHES.get(key, "-")
             ax1.plot(k, 100 * d, marker="o", ms=2.8, lw=1.0, ls=ls, color=f"C{i}", label=lab)
             shown = np.where(np.isfinite(bd), bd, np.nan)
-            ax2.plot(k, shown, marker="o", ms=2.8, lw=1.0, ls=ls, color=f"C{i}", label=lab)
+            ax2.plot(k, shown, marker="o", ms=2.8, lw=1.0, ls=ls, color=f"C{i}")
             if np.isfinite(bd).any():
                 tops.append(float(np.nanmax(shown)) * 1.2)
         for ax in (ax1, ax2):
             ax.set_xscale("symlog", linthresh=lin, linscale=0.5)
-            ax.set_xlim(left=0)
-            ax.set_xlabel(r"concentration $\kappa$ (0 = no restraint)")
+            ax.set_xlim(0, kmax * 1.3)
+            ax.xaxis.set_major_locator(FixedLocator(ticks))
+            ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+            ax.xaxis.set_minor_locator(NullLocator())
+            ax.set_xlabel(r"concentration $\kappa$ (0 = free)")
             ax.grid(True, lw=0.3, color="0.85")
         ax1.set_ylabel("modulation depth, %")
         ax1.set_ylim(bottom=0)
+        ax1.set_title("depth against concentration", fontsize=7)
         top = max(tops)
         ax2.set_yscale("log")
         ax2.axhline(CHANCE_RMS_DEG, color="0.3", lw=0.7, ls="--")
         _shade_uninformative(ax2, top)
         ax2.set_ylim(top=top)
-        ax2.set_ylabel("heading bound (s.d.), deg" + (f", {light_label}" if light_label else ""))
-        ax1.legend(frameon=False, fontsize=5.5, loc="upper left")
-        fig.subplots_adjust(left=0.17, wspace=0.42, bottom=0.17)
+        ax2.set_ylabel("heading bound (s.d.), deg")
+        ax2.set_title("bound" + (f", {light_label}" if light_label else ""), fontsize=7)
+        fig.legend(*ax1.get_legend_handles_labels(), loc="lower center", ncol=3, frameon=False, fontsize=6,
+                   bbox_to_anchor=(0.62, 0.0))
+        fig.subplots_adjust(left=0.16, right=0.985, wspace=0.42, bottom=0.29, top=0.92)
     caption = ("Left: modulation depth (%) of the receptor yields over both retinas, and the heading bound (deg), "
                "for the restraint classes: aligned; restrained in two rotation angles and free in one (free rotation "
                "about the receptor axis); restrained in one and free in two (a molecular direction in the membrane "
