@@ -135,7 +135,8 @@ def build_ordering(sc: Scenario, kappa: float | None = None, *, model: str | Non
     if kappa is not None and model is None and name not in KAPPA_MODELS:
         name = "cone"
     return om.from_settings(name, kappa=float(o["kappa"] if kappa is None else kappa), twist=o["twist"],
-                            twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"])
+                            twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"],
+                            axis=o["axis"] if name in KAPPA_MODELS else None)
 
 
 KAPPA_MODELS = ("cone", "cone_no_twist", "plane")

@@ -37,6 +37,11 @@ Schema (section, key, type, default; units in the key name)
     ``twist_kappa`` (float >= 0, ``inf`` allowed, 1.0): the twist concentration for "restrained",
     ``orientation_deg`` (3 floats, [0, 0, 0]): z-y-z Euler angles of the mean molecular frame in
     the receptor frame (the reference frame of "plane"),
+    ``axis`` (3 floats, optional; "cone", "cone_no_twist" and "plane" only, not with a non-zero
+    ``orientation_deg``): the restrained molecular direction (molecular frame, any non-zero
+    vector); the mean orientation is then the smallest rotation taking it to the receptor axis
+    (cone) or to the receptor x axis (plane) (:meth:`retina.eye.ordering.Cone.restraining`,
+    :meth:`retina.eye.ordering.Planar.restraining`),
     ``mode`` ("ensemble" | "molecules", "ensemble"): annealed average or a finite sample,
     ``n_molecules`` (int >= 1, 1000): molecules per receptor in "molecules" mode,
     ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the cone concentrations of the
@@ -180,6 +185,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "twist": Key("choice", "tied", choices=("tied", "free", "fixed", "restrained")),
         "twist_kappa": Key("float", 1.0, check=_rng(0.0), allow_inf=True),
         "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3),
+        "axis": Key("floats", None, length=3,
+                    check=lambda v: "a non-zero direction" if not any(v) else None),
         "mode": Key("choice", "ensemble", choices=("ensemble", "molecules")),
         "n_molecules": Key("int", 1000, check=_rng(1, 10**7)),
         "disorder_kappas": Key("floats", [1.0, 3.0, 10.0, 30.0, 100.0],
@@ -525,6 +532,15 @@ def _cross_checks(d: dict, src) -> None:
     if loc and f["date"] is not None and not (1900 <= f["date"].year <= 2030):
         raise InputError(f"expected a date within the IGRF range 1900-2030, got {f['date']}",
                          source=src, key="field.date")
+
+    o = d["ordering"]
+    if o["axis"] is not None:
+        if o["model"] not in ("cone", "cone_no_twist", "plane"):
+            raise InputError(f"ordering.axis is used by the models cone, cone_no_twist and plane, not "
+                             f"{o['model']!r}", source=src, key="ordering.axis")
+        if any(o["orientation_deg"]):
+            raise InputError("give ordering.orientation_deg or ordering.axis, not both", source=src,
+                             key="ordering.axis")
 
     light = d["light"]
     if len(light["names"]) != len(light["photons"]):

@@ -84,6 +84,14 @@ def test_ordering_keys_old_cone_inf_and_the_model_built(folder):
     o = sc2["ordering"]
     m = om.from_settings(o["model"], kappa=o["kappa"], twist=o["twist"], twist_kappa=o["twist_kappa"])
     assert isinstance(m, om.Planar) and m.twist_kappa == 2.0 and m.p2 == -0.5
+    # ordering.axis: any molecular direction, restrained by the cone (on the receptor axis) or
+    # held in the plane (along the receptor x axis).
+    from retina.build import build_ordering
+
+    sc3 = load_scenario(write(folder, MINIMAL + "\n[ordering]\naxis = [1.0, 1.0, 0.0]\n", "a.toml"))
+    u = [2 ** -0.5, 2 ** -0.5, 0.0]
+    assert build_ordering(sc3).mean.apply(u) == pytest.approx([0, 0, 1.0], abs=1e-14)
+    assert build_ordering(sc3, model="plane").mean.apply(u) == pytest.approx([1.0, 0, 0], abs=1e-14)
 
 
 def test_location_and_native_toml_date(folder):
@@ -112,6 +120,10 @@ def test_location_and_native_toml_date(folder):
     (MINIMAL + "\n[ordering]\nkappa = -0.5\n", "ordering.kappa", ">= 0"),
     (MINIMAL + "\n[ordering]\nstudy_kappas = [0.0, -1.0]\n", "ordering.study_kappas", ">= 0"),
     (MINIMAL + "\n[pose]\npitch_deg = inf\n", "pose.pitch_deg", "a finite number"),
+    (MINIMAL + "\n[ordering]\naxis = [0.0, 0.0, 0.0]\n", "ordering.axis", "a non-zero direction"),
+    (MINIMAL + "\n[ordering]\nmodel = 'axial'\naxis = [1.0, 0.0, 0.0]\n", "ordering.axis", "not 'axial'"),
+    (MINIMAL + "\n[ordering]\naxis = [1.0, 0.0, 0.0]\norientation_deg = [0.0, 10.0, 0.0]\n", "ordering.axis",
+     "not both"),
     (MINIMAL.replace("pair.toml", "nowhere.toml"), "yield.system", "file not found"),
     (MINIMAL.replace('system = "pair.toml"', 'system = "pair.toml"\nfile = "pair.toml"'), "yield", "exactly one"),
     (MINIMAL.replace("declination_deg = -2.0", ""), "field.declination_deg", "missing declination_deg"),

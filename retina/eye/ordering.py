@@ -781,7 +781,7 @@ TWISTS = ("tied", "free", "fixed", "restrained")
 
 
 def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist_kappa: float = 1.0,
-                  orientation_deg=(0.0, 0.0, 0.0)) -> Ordering:
+                  orientation_deg=(0.0, 0.0, 0.0), axis=None) -> Ordering:
     """The ordering model named by the settings of a scenario's ``[ordering]`` section.
 
     Parameters
@@ -802,6 +802,9 @@ def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist
     orientation_deg : sequence of 3 floats
         z-y-z Euler angles (degrees) of the mean (cone) or reference (plane) orientation, molecule to
         receptor.
+    axis : sequence of 3 floats, optional
+        For "cone", "cone_no_twist" and "plane": the restrained molecular direction; replaces
+        ``orientation_deg`` by :meth:`Cone.restraining` / :meth:`Planar.restraining`.
     """
     if model not in MODELS:
         raise InputError(f"expected one of {', '.join(MODELS)}, got {model!r}", key="ordering.model")
@@ -816,6 +819,9 @@ def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist
         return FreeRotation(tilt_deg=b, twist_deg=c)
     if model == "isotropic":
         return Isotropic()
+    if axis is not None:
+        maker = Planar.restraining if model == "plane" else Cone.restraining
+        base = maker(axis, kappa=float(kappa)).mean
     if model == "cone":
         return Cone(kappa=float(kappa), twist=tw, mean=base)
     if model == "cone_no_twist":

@@ -1,7 +1,8 @@
 """Stage ``order``: how much molecular order the compass needs, and in which dimension.
 
 Two parts, both from the ensemble (annealed) response of :mod:`retina.eye.ordering` models placed
-at the scenario's mean orientation ``M`` (``[ordering] orientation_deg``):
+at the scenario's mean orientation ``M`` (``[ordering] orientation_deg``, or the smallest rotation
+taking ``[ordering] axis`` to the receptor axis):
 
 - the restraint classes (:func:`retina.eye.ordering.restraint_classes`): aligned (restrained in
   three), restrained in two and free in one (free rotation about the receptor axis of the molecular
@@ -67,6 +68,10 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
 
     o = sc["ordering"]
     mean = Rotation.from_euler("ZYZ", list(o["orientation_deg"]), degrees=True)
+    if o["axis"] is not None:  # the cone's convention: the axis on the receptor axis
+        from retina.eye.ordering import Cone
+
+        mean = Cone.restraining(o["axis"], kappa=0.0).mean
     light = np.asarray(sc["light"]["photons"], float)
     kap = np.asarray(o["study_kappas"], float)
     p = sc["pose"]
