@@ -8,7 +8,8 @@ Conventions (owned here)
   receptor per look, :mod:`retina.signal.light`), the molecular ordering model ``ordering``
   (``"scenario"``: the scenario's own model, or one of :data:`retina.eye.ordering.MODELS`) and its
   concentration ``kappa`` (``None``: the scenario's own; 0 reaches isotropy for "cone" and "plane",
-  :func:`retina.build.build_ordering`) and the display choice (``"modulation"`` or ``"yields"``; eye ``"both"``, ``"left"`` or ``"right"``).
+  :func:`retina.build.build_ordering`) and the display choice (``"modulation"`` or ``"yields"``;
+  eye ``"both"``, ``"left"`` or ``"right"``).
 - Every field is a validating property: a bad value raises :class:`retina.errors.InputError`
   naming the key and what was expected (``source`` is the scenario file when there is one); a
   value equal to the current one emits nothing; a changed value emits exactly one

@@ -3,7 +3,8 @@
 The bundled scenario (``assets/demo_scenario.toml``) computes the yield function of an invented
 radical pair (``assets/demo_pair.toml``), builds two eyes with partially ordered receptors, and
 runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep, the
-order study (how much molecular order the compass needs) and simulated orientation trials.  README.md, section "The demo", says how to read the output.
+order study (how much molecular order the compass needs) and simulated orientation trials.
+README.md, section "The demo", says how to read the output.
 """
 
 from __future__ import annotations

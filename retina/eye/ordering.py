@@ -340,6 +340,17 @@ def twist_factors(kappa: float, L: int) -> np.ndarray:
     ``kappa = 0`` is a free twist (``A_m = 0`` for m > 0, exactly); ``kappa = inf`` a fixed one
     (all ones).  A twist by ``delta`` about ``z`` turns the degree-l pair ``(m, -m)`` by ``m
     delta``, so its average scales the pair by ``A_|m|``.
+
+    Parameters
+    ----------
+    kappa : float
+        Von Mises concentration, ``>= 0`` (``inf`` allowed).
+    L : int
+        Largest order ``m``.
+
+    Returns
+    -------
+    ndarray, shape (L + 1,)
     """
     from scipy.special import ive
 
@@ -561,8 +572,18 @@ def _twist_sample(kt: float, g: np.random.Generator, n: int) -> np.ndarray:
 
 
 def girdle_order_parameter(kappa: float) -> float:
-    """``<P2(cos theta)>`` of a direction with the Watson girdle density ``exp(-kappa cos^2 theta)``
-    (0 at kappa = 0, -1/2 at kappa = inf: the direction lies in the plane)."""
+    """``<P2(cos theta)>`` of a direction with the Watson girdle density ``exp(-kappa cos^2 theta)``.
+
+    Parameters
+    ----------
+    kappa : float
+        Girdle concentration, ``>= 0`` (``inf`` allowed).
+
+    Returns
+    -------
+    float
+        0 at kappa = 0, -1/2 at kappa = inf (the direction lies in the plane).
+    """
     if math.isinf(kappa):
         return -0.5
     t, w = girdle_cos_rule(float(kappa), 2)
@@ -805,6 +826,10 @@ def from_settings(model: str, *, kappa: float = 20.0, twist: str = "tied", twist
     axis : sequence of 3 floats, optional
         For "cone", "cone_no_twist" and "plane": the restrained molecular direction; replaces
         ``orientation_deg`` by :meth:`Cone.restraining` / :meth:`Planar.restraining`.
+
+    Returns
+    -------
+    Ordering
     """
     if model not in MODELS:
         raise InputError(f"expected one of {', '.join(MODELS)}, got {model!r}", key="ordering.model")
@@ -847,6 +872,16 @@ def restraint_classes(mean: Rotation | None = None) -> tuple[StudyCase, ...]:
     molecular direction ``M^-1 z``; restrained in one (free in two), ``Planar(kappa=inf,
     twist="free", mean=M)``, the molecular direction ``M^-1 x`` in the membrane plane with a free
     twist; isotropic.
+
+    Parameters
+    ----------
+    mean : scipy Rotation, optional
+        The mean orientation ``M`` (molecule to receptor).
+
+    Returns
+    -------
+    tuple of StudyCase
+        Keys "aligned", "restrained_two", "restrained_one", "isotropic"; ``build`` is the model.
     """
     M = Rotation.identity() if mean is None else mean
     return (
@@ -866,6 +901,17 @@ def concentration_curves(mean: Rotation | None = None) -> tuple[StudyCase, ...]:
     The first three reach isotropy at 0 (tilt with tied twist, tilt with free twist, the plane's
     girdle with free twist); the two twist curves join restraint classes; the last is the cone
     without twist, for comparison (not isotropic at 0).
+
+    Parameters
+    ----------
+    mean : scipy Rotation, optional
+        The mean orientation ``M`` (molecule to receptor), as in :func:`restraint_classes`.
+
+    Returns
+    -------
+    tuple of StudyCase
+        Keys "cone_tied", "cone_free", "plane_free", "twist_axis", "twist_plane",
+        "cone_no_twist"; ``build(kappa)`` makes the model.
     """
     M = Rotation.identity() if mean is None else mean
     inf = math.inf

@@ -33,7 +33,14 @@ def order_study(classes: Mapping[str, tuple[str, float, float]],
         One curve per varied concentration (>= 0; 0 is drawn on the linear part of a symmetric-log
         axis).
     light_label : str
-        The light level of the bounds, for the axis label.
+        The light level of the bounds, for the panel title.
+    params : str
+        Run parameters for the caption.
+    title : str
+    path : str or Path, optional
+        File stem to write (:func:`retina.figures.save_figure`).
+    formats : sequence of str
+    dpi : int
 
     Returns
     -------

@@ -63,7 +63,17 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
 
 
 def swept_model_text(sc: Scenario) -> str:
-    """Which model the sweep varies, and where its kappa -> 0 end lies."""
+    """Which model the sweep varies, and where its kappa -> 0 end lies.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    str
+        For example "cone (Cone), twist tied; isotropic at kappa = 0".
+    """
     o = sc["ordering"]
     name = o["model"] if o["model"] in KAPPA_MODELS else "cone"
     twist = o["twist"] if o["twist"] != "restrained" else f"restrained (twist kappa {o['twist_kappa']:g})"

@@ -34,7 +34,17 @@ __all__ = ["compute_order", "STAGE", "n_steps"]
 
 
 def n_steps(sc: Scenario) -> int:
-    """Models evaluated: four classes plus one per curve and concentration."""
+    """The number of models the study evaluates (its progress total).
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    int
+        Four restraint classes plus one per curve and concentration of ``ordering.study_kappas``.
+    """
     from retina.eye.ordering import concentration_curves
 
     return 4 + len(concentration_curves()) * len(sc["ordering"]["study_kappas"])
