@@ -44,8 +44,9 @@ Schema (section, key, type, default; units in the key name)
     :meth:`retina.eye.ordering.Planar.restraining`),
     ``mode`` ("ensemble" | "molecules", "ensemble"): annealed average or a finite sample,
     ``n_molecules`` (int >= 1, 1000): molecules per receptor in "molecules" mode,
-    ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the cone concentrations of the
-    disorder-tolerance sweep,
+    ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the concentrations of the
+    disorder-tolerance sweep (stage "disorder"), applied to the scenario's model when it has a
+    kappa ("cone", "cone_no_twist", "plane") and otherwise to a "cone" with the scenario's twist,
     ``study_kappas`` (list of floats >= 0, [0, 0.3, 1, 3, 10, 30, 100]): the concentrations of the
     order study (stage "order", :mod:`retina.stages.order`): each curve varies one concentration
     of one model over this list.
