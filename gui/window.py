@@ -36,7 +36,7 @@ __all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "
 
 #: Fields whose change needs a new pattern.
 _REQUEST_FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg",
-                   "declination_deg", "photons", "kappa")
+                   "declination_deg", "photons", "ordering", "kappa")
 
 
 def load_start_scenario(path=None, *, quick: bool | None = None):

@@ -29,6 +29,7 @@ from retina.scenario import Scenario
 __all__ = [
     "Built", "build_all", "stage_rng", "quick_scenario", "build_field", "build_eyes", "build_ordering",
     "build_yield_function", "build_retina", "build_sky", "field_uT", "ProgressFactory", "no_progress",
+    "KAPPA_MODELS",
 ]
 
 _log = logging.getLogger(__name__)
@@ -151,38 +152,38 @@ def build_eyes(sc: Scenario) -> list:
     return out
 
 
-def build_ordering(sc: Scenario, kappa: float | None = None):
-    """The ordering model of the scenario (:mod:`retina.eye.ordering`).
+def build_ordering(sc: Scenario, kappa: float | None = None, *, model: str | None = None):
+    """The ordering model of the scenario (:func:`retina.eye.ordering.from_settings`).
 
     Parameters
     ----------
     sc : Scenario
     kappa : float, optional
-        Use a von Mises-Fisher cone of this concentration instead of the scenario's model.
+        Replace the scenario's concentration.  When the scenario's model has none ("aligned",
+        "axial", "isotropic") and ``model`` is not given, a cone ("cone", with the scenario's
+        twist) of this concentration is used.
+    model : str, optional
+        Replace the scenario's model (one of :data:`retina.eye.ordering.MODELS`); ``kappa`` is
+        ignored by a model without a concentration.
 
     Returns
     -------
-    Aligned, FreeRotation, Isotropic, Cone or Composite
+    Ordering
         A model of :mod:`retina.eye.ordering`.
     """
-    from scipy.spatial.transform import Rotation
-
     from retina.eye import ordering as om
 
     o = sc["ordering"]
-    a, b, c = o["orientation_deg"]
-    base = Rotation.from_euler("ZYZ", [a, b, c], degrees=True)
-    model = o["model"] if kappa is None else "cone"
-    if model == "aligned":
-        return om.Aligned(base)
-    if model == "axial":
-        return om.FreeRotation(tilt_deg=b, twist_deg=c)
-    if model == "isotropic":
-        return om.Isotropic()
-    cone = om.Cone(kappa=float(o["kappa"] if kappa is None else kappa))
-    if np.allclose(base.as_matrix(), np.eye(3)):
-        return cone
-    return om.Composite(om.Aligned(base), cone)
+    name = o["model"] if model is None else model
+    if kappa is not None and model is None and name not in KAPPA_MODELS:
+        name = "cone"
+    return om.from_settings(name, kappa=float(o["kappa"] if kappa is None else kappa), twist=o["twist"],
+                            twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"],
+                            axis=o["axis"] if name in KAPPA_MODELS else None)
+
+
+KAPPA_MODELS = ("cone", "cone_no_twist", "plane")
+"""The ordering models that have a concentration ``kappa``."""
 
 
 def field_uT(sc: Scenario) -> float:
@@ -235,7 +236,8 @@ def build_yield_function(sc: Scenario, *, progress=None):
     return import_table(path, degree)
 
 
-def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None, progress=None):
+def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None, ordering=None,
+                 progress=None):
     """The :class:`retina.eye.pattern.RetinaModel` of the scenario.
 
     Parameters
@@ -245,7 +247,10 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
     receptors : Receptors, optional
         Default: built from the scenario's eyes.
     kappa : float, optional
-        Replace the ordering by a cone of this concentration, in ensemble mode (disorder sweep).
+        Replace the concentration of the ordering (:func:`build_ordering`), in ensemble mode
+        (disorder sweep).
+    ordering : Ordering, optional
+        Use this ordering model instead, in ensemble mode (order study).
     progress : callable(done, total), optional
 
     Returns
@@ -259,8 +264,9 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
     if receptors is None:
         receptors = build_receptors(build_eyes(sc))
     o = sc["ordering"]
-    mode = o["mode"] if kappa is None else "ensemble"
-    return RetinaModel(yf, receptors, build_ordering(sc, kappa), mode=mode, n_molecules=o["n_molecules"],
+    mode = o["mode"] if kappa is None and ordering is None else "ensemble"
+    order = build_ordering(sc, kappa) if ordering is None else ordering
+    return RetinaModel(yf, receptors, order, mode=mode, n_molecules=o["n_molecules"],
                        seed=stage_rng(sc.seed, "molecules"), progress=progress)
 
 

@@ -31,7 +31,8 @@ __all__ = ["run"]
 _log = logging.getLogger(__name__)
 
 
-def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "precision", "disorder", "trials"),
+def run(sc: Scenario, *, quick: bool = False,
+        stages=("patterns", "scan", "precision", "disorder", "order", "trials"),
         progress_factory: ProgressFactory | None = None, yield_function=None) -> Results:
     """Run the scenario's stages and collect their results.
 
@@ -42,7 +43,7 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
         Apply :func:`retina.build.quick_scenario` first.
     stages : sequence of str
         Names in :data:`retina.stages.STAGES` ("patterns", "scan", "precision", "disorder",
-        "trials"); they run in the registry's order.  The yield function and the retina are always
+        "order", "trials"); they run in the registry's order.  The yield function and the retina are always
         built.
     progress_factory : callable(description, total) -> progress(done, total), optional
         Makes a progress callback for each long step (the CLI passes :class:`retina.progress.ProgressBars`).

@@ -1,9 +1,10 @@
 """``retina demo``: the whole job on the bundled, invented scenario, into a report folder.
 
 The bundled scenario (``demo_scenario.toml`` in :mod:`retina.data`, source ``assets/``) computes
-the yield function of an invented radical pair (``demo_pair.toml``), builds two eyes with partially ordered receptors, and
-runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep and
-simulated orientation trials.  README.md, section "The demo", says how to read the output.
+the yield function of an invented radical pair (``demo_pair.toml``), builds two eyes with partially
+ordered receptors, and runs the patterns, a head scan, precision curves at bright and dim light, a
+disorder sweep, the order study (how much molecular order the compass needs) and simulated
+orientation trials.  README.md, section "The demo", says how to read the output.
 """
 
 from __future__ import annotations
@@ -40,7 +41,7 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
-                    "trials) on the bundled invented scenario and write results.h5, figures and an "
+                    "order study, trials) on the bundled invented scenario and write results.h5, figures and an "
                     "HTML + Markdown report.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
@@ -50,5 +51,5 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials"),
                                scenario_path=path)

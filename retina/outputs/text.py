@@ -199,10 +199,13 @@ def key_numbers(res: Results) -> list:
                 rows.append((f"kappa = {k:g}: bound, {nm} ({ph:g} photons)", bound_text(d["bound_deg"][i][j]),
                              "deg"))
         secs.append(Section("Disorder tolerance", rows, note=(
-            "Molecular z axes in a von Mises-Fisher cone of concentration kappa about each receptor axis; "
-            "<P2> = <(3 cos^2 theta - 1) / 2> is the order parameter (1 perfect order, 0 none) and the typical "
-            "tilt is arccos<cos theta>. Modulation depth as above, averaged over the scenario's headings; bound "
-            f"from the heading-averaged information of a single pose. {_UNINFORMATIVE_NOTE}")))
+            f"Model swept: {d.get('model', 'cone')}. The restrained molecular direction lies in a von Mises-Fisher "
+            "cone of concentration kappa about each receptor axis; <P2> = <(3 cos^2 theta - 1) / 2> is its order "
+            "parameter (1 perfect order, 0 none) and the typical tilt is arccos<cos theta>. Modulation depth as "
+            "above, averaged over the scenario's headings; bound from the heading-averaged information of a single "
+            f"pose. {_UNINFORMATIVE_NOTE}")))
+    if "order" in g:
+        secs.append(_order_section(res))
     if "trials" in g:
         t = g["trials"]
         rows = []
@@ -225,6 +228,38 @@ def key_numbers(res: Results) -> list:
             "against the goal, p exact for the sample size (the distribution tabulated in Zar 2010, "
             "Appendix Table B.35; ch. 27).")))
     return secs
+
+
+def _order_section(res: Results):
+    """The order study's table: the restraint classes, then each curve's ends and middle."""
+    from retina.outputs.report import Section
+
+    o = res.groups["order"]
+    names, _ = light_levels(res)
+    light = list(o["light_photons"])
+    lv = [names[i] if i < len(names) else f"{ph:g} photons" for i, ph in enumerate(light)]
+    rows = []
+    for key in str(o["class_order"]).split(","):
+        c = o["classes"][key]
+        rows.append((f"{c['label']}: modulation depth", f"{100 * c['depth']:.3f}", "%"))
+        rows.append((f"{c['label']}: bound, " + ", ".join(f"{n} ({ph:g} photons)" for n, ph in zip(lv, light)),
+                     ", ".join(bound_text(b) for b in np.atleast_1d(c["bound_deg"])), "deg"))
+    for key in str(o["curve_order"]).split(","):
+        c = o["curves"][key]
+        ks = np.asarray(c["kappas"])
+        rows.append((f"{c['label']}: depth at kappa = " + ", ".join(f"{k:g}" for k in ks),
+                     ", ".join(f"{100 * d:.3g}" for d in c["depth"]), "%"))
+        rows.append((f"{c['label']}: bound, {lv[-1]} ({light[-1]:g} photons), at the same kappas",
+                     ", ".join(bound_text(b) for b in np.asarray(c["bound_deg"])[-1]), "deg"))
+    return Section("How much order the compass needs", rows, note=(
+        "Restraint classes count the rotation angles of a molecule that are fixed: aligned (all three); "
+        "restrained in two and free in one (free rotation about the receptor axis); restrained in one and free "
+        "in two (one molecular direction in the membrane plane normal to the receptor axis, free in azimuth and in "
+        "twist about itself); isotropic (none). Each curve varies one von Mises-Fisher (cone), Watson girdle "
+        "(plane) or von Mises (twist) concentration kappa between the classes named in its label (kappa = inf "
+        "to kappa = 0). The cone without twist is shown for comparison: it keeps a pattern at kappa = 0 for a "
+        "yield function that is not axially symmetric. Depth and bound as in the disorder table. "
+        + _UNINFORMATIVE_NOTE))
 
 
 def _informative() -> float:

@@ -9,19 +9,21 @@ group of the results file (:mod:`retina.results`).  :data:`STAGES` lists them in
 - :mod:`retina.stages.scan` - the pattern through a head scan;
 - :mod:`retina.stages.precision` - heading bounds and decoding errors against light;
 - :mod:`retina.stages.disorder` - depth and bounds over molecular disorder;
+- :mod:`retina.stages.order` - how much order the compass needs: restraint classes and curves
+  against each concentration;
 - :mod:`retina.stages.trials` - simulated orientation trials;
 - :mod:`retina.stages._common` - what they share (generators, signal model, decoder grid).
 """
 
 from __future__ import annotations
 
-from retina.stages import disorder, patterns, precision, scan, trials
+from retina.stages import disorder, order, patterns, precision, scan, trials
 from retina.stages._common import Stage
 
 __all__ = ["Stage", "STAGES", "register", "stage_names"]
 
 STAGES: dict[str, Stage] = {s.name: s for s in (patterns.STAGE, scan.STAGE, precision.STAGE, disorder.STAGE,
-                                                trials.STAGE)}
+                                                order.STAGE, trials.STAGE)}
 """Every stage by name, in computing order."""
 
 
