@@ -264,3 +264,37 @@ def test_csv_with_byte_order_mark_and_semicolons(tmp_path):
     dirs, values, fmt = read_table(path)
     assert fmt == "csv (cartesian)" and np.array_equal(values, vals)
     np.testing.assert_allclose(dirs, d, atol=1e-15)
+
+
+def test_normal_equations_agree_with_the_svd_driver_and_fall_back_when_ill_conditioned():
+    d = _dirs(2000, seed=4)
+    vals = 0.3 + 0.05 * d[:, 2] ** 2 + 0.01 * d[:, 0] ** 6
+    c_auto, rep = fit_least_squares(d, vals, 8)
+    c_svd, rep_svd = fit_least_squares(d, vals, 8, method="svd")
+    # Reference: scipy.linalg.lstsq (gelsd) on the same design matrix; the condition estimate from the
+    # Gram matrix's eigenvalues equals the ratio of singular values (derived: sv(Y)^2 = eig(Y^T Y)).
+    assert rep.solver.startswith("normal") and rep_svd.solver.endswith("gelsd")
+    np.testing.assert_allclose(c_auto, c_svd, atol=1e-12)
+    assert rep.condition == pytest.approx(rep_svd.condition, rel=1e-6)
+    # Derived: points on one great circle leave harmonics vanishing there undetermined, so the
+    # Gram matrix is singular and the SVD driver (minimum-norm solution, exact rank) takes over.
+    ring = np.stack([np.cos(np.linspace(0, np.pi, 60)), np.sin(np.linspace(0, np.pi, 60)), np.zeros(60)], 1)
+    _, rep_ring = fit_least_squares(ring, np.full(60, 0.5), 4)
+    assert rep_ring.solver.endswith("gelsd") and rep_ring.rank < rep_ring.n_coeffs
+    with pytest.raises(ValueError, match="well-conditioned"):
+        fit_least_squares(ring, np.full(60, 0.5), 4, method="normal")
+
+
+def test_fast_csv_reader_equals_the_line_reader(tmp_path):
+    from retina.io import importers
+
+    d = _dirs(500, seed=8)
+    vals = 0.4 + 0.02 * d[:, 1] ** 2
+    path = tmp_path / "t.csv"
+    path.write_text("x, y, z, value\n" + "\n".join(f"{x:.17g}, {y:.17g}, {z:.17g}, {v:.17g}" for (x, y, z), v in zip(d, vals)))
+    lines = [(i + 1, ln) for i, ln in enumerate(path.read_text().splitlines())]
+    assert len(lines) == 501
+    fast = importers._csv_fast(lines, ",", [0, 1, 2, 3], 4)
+    slow = importers._csv_slow(path, lines, ",", importers._CART, [0, 1, 2, 3], 4)
+    # Reference: Python's float() on each cell (the line reader); both must round identically.
+    assert fast is not None and np.array_equal(fast, slow)
