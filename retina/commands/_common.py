@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from retina.commands._types import MAX_MEMORY_GB, whole
 from retina.errors import InputError
 from retina.scenario import Scenario
 
@@ -21,11 +22,14 @@ def add_common_arguments(p, *, output_required: bool = False, default_output: st
     p.add_argument("--force", action="store_true", help="write into an existing, non-empty output folder")
     p.add_argument("--quick", action="store_true",
                    help="reduced grids, receptors, repeats and trials (a smoke test, not a result)")
-    p.add_argument("--seed", type=int, default=None, help="override the scenario's [scenario] seed")
+    p.add_argument("--seed", type=whole("a seed", low=0, high=2**63 - 1), default=None, help="override the scenario's [scenario] seed")
     p.add_argument("--formats", default=None, metavar="LIST",
                    help="figure formats, comma-separated among png,svg,pdf (default: the scenario's)")
-    p.add_argument("--dpi", type=int, default=None, help="PNG resolution (default: the scenario's, 300)")
+    p.add_argument("--dpi", type=whole("a resolution in dots per inch", low=50, high=1200), default=None, help="PNG resolution (default: the scenario's, 300)")
     p.add_argument("--no-animation", action="store_true", help="skip the head-scan GIF")
+    p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
+                   help="refuse to start a stage whose memory estimate exceeds this (default: 60 %% of "
+                        "the available memory)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bars; print only the summary")
 
 

@@ -6,6 +6,7 @@ import argparse
 import time
 from pathlib import Path
 
+from retina.commands._types import whole
 from retina.errors import InputError
 
 _EXAMPLES = """\
@@ -31,7 +32,7 @@ def register(subparsers) -> None:
     p.add_argument("--force", action="store_true", help="write into an existing, non-empty folder")
     p.add_argument("--formats", default="png,svg", metavar="LIST",
                    help="figure formats among png,svg,pdf (default: png,svg)")
-    p.add_argument("--dpi", type=int, default=300, help="PNG resolution (default: 300)")
+    p.add_argument("--dpi", type=whole("a resolution in dots per inch", low=50, high=1200), default=300, help="PNG resolution (default: 300)")
     p.add_argument("--no-animation", action="store_true", help="skip the head-scan GIF")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bars")
 
