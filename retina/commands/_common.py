@@ -84,6 +84,9 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
         raise InputError("output folder exists and is not empty; pass --force to overwrite it", source=out)
     if not out.parent.exists():
         raise InputError(f"folder {out.parent} does not exist", source=out)
+    from retina.io.atomic import check_folder_writable
+
+    check_folder_writable(out.parent)  # before any computation
     bars = ProgressBars(enabled=not args.quiet)
     try:
         res = run(sc, quick=args.quick, stages=stages, progress_factory=bars)

@@ -54,6 +54,13 @@ def run(args) -> int:
     src = Path(args.results)
     res = load_results(src)
     out = Path(args.output)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.force:
+        raise InputError("output folder exists and is not empty; pass --force to overwrite it", source=out)
+    if not out.parent.exists():
+        raise InputError(f"folder {out.parent} does not exist", source=out)
+    from retina.io.atomic import check_folder_writable
+
+    check_folder_writable(out.parent)
     same = out.exists() and (out / "results.h5").exists() and (out / "results.h5").resolve() == src.resolve()
     bars = ProgressBars(enabled=not args.quiet)
     try:
