@@ -38,8 +38,10 @@ Schema (section, key, type, default; units in the key name)
     1..200000, 400), ``density`` ("uniform" | "central"), ``central_ratio`` (>= 1, 4.0),
     ``central_width_deg`` (> 0, 20.0).  Default: a left and a right eye at azimuth -/+ 60 deg.
 ``[light]``
-    ``photons`` (list of floats > 0, [100, 10000]): mean photon count per receptor per integration
-    window for each light level, ``names`` (list of str, ["dim", "bright"]), same length;
+    ``photons`` (list of floats in (0, 1e12], [100, 10000]): mean photon count per receptor per
+    integration window for each light level, ``names`` (list of str, ["dim", "bright"]), same
+    length, each 1-64 letters, digits, spaces, ``_ - + .`` (they name HDF5 groups), starting with a
+    letter, digit or ``_``;
     ``sky`` ("uniform" | "horizon", "uniform"): a uniform sky, or a bright sky over darker ground
     with ``ground_ratio`` (0..1, 0.2), ``horizon_deg`` (0.0) and ``softness_deg`` (5.0)
     (:mod:`retina.signal.light`).
@@ -54,7 +56,7 @@ Schema (section, key, type, default; units in the key name)
     ``heading_deg`` (float, 0.0): centre of the head scan, ``amplitude_deg`` (float 0..180, 60.0):
     the scan sweeps heading +/- amplitude, ``steps`` (int 2..721, 25), ``pitch_deg`` (0.0).
 ``[readout]``
-    ``photons`` (list of floats > 0, log-spaced 10..1e6): photon levels of the precision curves,
+    ``photons`` (list of floats in (0, 1e12], log-spaced 10..1e6): photon levels of the precision curves,
     ``decode_repeats`` (int >= 1, 200): noisy decodings per photon level for the decoding error,
     ``nuisance`` ("none" | "gain", "gain"): whether the readout must also infer the overall light
     level (see :mod:`retina.readout.fisher`),
@@ -72,6 +74,11 @@ Schema (section, key, type, default; units in the key name)
 ``[output]``
     ``dir`` (path, "retina-results"), ``formats`` (list from "png", "svg", "pdf", ["png", "svg"]),
     ``dpi`` (int 50..1200, 300), ``animation`` (bool, true).
+
+Limits for every key: strings are printable (no control characters), at most 10,000 characters;
+lists hold at most 10,000 entries; angles not listed above lie within +/- 3600 degrees
+(``orientation_deg`` within +/- 720); the file is at most 1 MiB.  How much memory the stages of a
+scenario need is checked before they start (:mod:`retina.stages`; ``--max-memory-gb``).
 
 Relative paths resolve from the folder of the scenario file.  Unknown keys and sections raise
 :class:`retina.errors.InputError` with a "did you mean" suggestion; every error names the file and
@@ -131,6 +138,28 @@ def _even_degree(v):
     return None
 
 
+MAX_PHOTONS = 1e12
+"""Largest photon count of a light or readout level: far above daylight catches, and safely inside
+what Poisson samplers take (numpy refuses means near 1e19)."""
+MAX_LIST = 10_000
+"""Longest list accepted for any list key."""
+MAX_TEXT = 10_000
+"""Longest string accepted (a description); names are limited to 64 characters."""
+MAX_FILE_BYTES = 1 << 20
+"""Scenario files larger than 1 MiB are refused before parsing."""
+
+
+def _level_name(v):
+    import re
+
+    for x in v:
+        if not re.fullmatch(r"[A-Za-z0-9_]([A-Za-z0-9_ .+-]{0,62}[A-Za-z0-9_.+-])?", x):
+            return ("names of 1 to 64 letters, digits, spaces, '_', '-', '+' or '.', starting with a letter, "
+                    "digit or '_' and not ending in a space "
+                    f"(they name HDF5 groups and files; {x!r} is not)")
+    return None
+
+
 def _nonempty(v):
     return "a non-empty list" if len(v) == 0 else None
 
@@ -162,7 +191,7 @@ SCHEMA: dict[str, dict[str, Key]] = {
     "ordering": {
         "model": Key("choice", "cone", choices=("aligned", "axial", "cone", "isotropic")),
         "kappa": Key("float", 20.0, check=_rng(0.0, 1e6, lo_open=True)),
-        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3),
+        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3, check=_rng(-720.0, 720.0)),
         "mode": Key("choice", "ensemble", choices=("ensemble", "molecules")),
         "n_molecules": Key("int", 1000, check=_rng(1, 10**7)),
         "disorder_kappas": Key("floats", [1.0, 3.0, 10.0, 30.0, 100.0],
@@ -179,8 +208,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "central_width_deg": Key("float", 20.0, check=_rng(0.0, 180.0, lo_open=True)),
     },
     "light": {
-        "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
-        "names": Key("strs", ["dim", "bright"], check=_nonempty),
+        "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
+        "names": Key("strs", ["dim", "bright"], check=_both(_nonempty, _level_name)),
         "sky": Key("choice", "uniform", choices=("uniform", "horizon")),
         "ground_ratio": Key("float", 0.2, check=_rng(0.0, 1.0)),
         "horizon_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
@@ -196,26 +225,26 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "date": Key("date", None),
     },
     "pose": {
-        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=_nonempty),
+        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=_both(_nonempty, _rng(-3600.0, 3600.0))),
         "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
         "roll_deg": Key("float", 0.0, check=_rng(-180.0, 180.0)),
     },
     "scan": {
-        "heading_deg": Key("float", 0.0),
+        "heading_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
         "amplitude_deg": Key("float", 60.0, check=_rng(0.0, 180.0)),
         "steps": Key("int", 25, check=_rng(2, 721)),
         "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
     },
     "readout": {
         "photons": Key("floats", [10.0, 100.0, 1e3, 1e4, 1e5, 1e6],
-                       check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
+                       check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
         "decode_repeats": Key("int", 200, check=_rng(1, 10**6)),
         "nuisance": Key("choice", "gain", choices=("none", "gain")),
         "compare_nuisance": Key("choice", "receptor_gain", choices=("receptor_gain", "pose_gain", "none")),
     },
     "trials": {
         "n_trials": Key("int", 40, check=_rng(1, 10**6)),
-        "goal_deg": Key("float", 0.0),
+        "goal_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
         "scan_steps": Key("int", 9, check=_rng(1, 721)),
     },
     "output": {
@@ -318,17 +347,23 @@ def load_scenario(path: str | Path) -> Scenario:
         The file is missing or not TOML, a key is unknown, of the wrong type or out of range, or a
         named file does not exist; the message names the file and the dotted key.
     """
+    from retina.spin.io import read_text_capped
+
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = read_text_capped(path, MAX_FILE_BYTES).decode("utf-8")
     except FileNotFoundError:
         raise InputError("scenario file not found", source=path) from None
+    except IsADirectoryError:
+        raise InputError("is a folder; expected a scenario TOML file", source=path) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise InputError(f"cannot read the scenario file ({exc})", source=path) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=path) from None
+    except RecursionError:
+        raise InputError("arrays or tables nested too deeply; expected a scenario TOML file", source=path) from None
     return scenario_from_dict(doc, source=path.resolve(), base_dir=path.resolve().parent, text=text)
 
 
@@ -413,6 +448,7 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if not isinstance(v, str):
             bad()
         val = v
+        _printable(val, src, key)
     elif kind == "choice":
         if not isinstance(v, str):
             bad()
@@ -437,6 +473,7 @@ def _convert(v, spec: Key, src, key: str, base: Path):
     elif kind == "path":
         if not isinstance(v, str) or not v.strip():
             bad()
+        _printable(v, src, key)
         val = (base / Path(v).expanduser()).resolve()
     elif kind == "date":
         if isinstance(v, _dt.datetime):
@@ -460,6 +497,8 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if not isinstance(v, list) or any(not isinstance(x, str) for x in v):
             bad()
         val = list(v)
+        for x in val:
+            _printable(x, src, key)
         if spec.choices:
             for x in val:
                 if x not in spec.choices:
@@ -467,6 +506,8 @@ def _convert(v, spec: Key, src, key: str, base: Path):
                                      f"{_suggest(x, spec.choices)}", source=src, key=key)
     else:  # pragma: no cover - schema error
         raise AssertionError(kind)
+    if isinstance(val, list) and len(val) > MAX_LIST:
+        raise InputError(f"expected at most {MAX_LIST:,} entries, got {len(val):,}", source=src, key=key)
     if spec.length is not None and len(val) != spec.length:
         bad()
     if spec.check is not None:
@@ -474,6 +515,14 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if msg:
             raise InputError(f"expected {msg}, got {v!r}", source=src, key=key)
     return val
+
+
+def _printable(x: str, src, key: str) -> None:
+    if len(x) > MAX_TEXT:
+        raise InputError(f"expected at most {MAX_TEXT:,} characters, got {len(x):,}", source=src, key=key)
+    bad = next((c for c in x if (ord(c) < 32 and c not in "\t\n") or ord(c) == 127), None)
+    if bad is not None:
+        raise InputError(f"expected printable text, got the control character {bad!r}", source=src, key=key)
 
 
 def _cross_checks(d: dict, src) -> None:
