@@ -22,12 +22,14 @@ from retina.errors import InputError
 from retina.results import Results, make_provenance
 from retina.scenario import Scenario
 from retina.stages import STAGES
+from retina.stages.memory import check_memory
 
 __all__ = ["run"]
 
 
 def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "precision", "disorder", "trials"),
-        progress_factory: ProgressFactory | None = None, yield_function=None) -> Results:
+        progress_factory: ProgressFactory | None = None, yield_function=None,
+        max_bytes: int | None = None) -> Results:
     """Run the scenario's stages and collect their results.
 
     Parameters
@@ -43,6 +45,14 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
         Makes a progress callback for each long step (the CLI passes :class:`retina.progress.ProgressBars`).
     yield_function : YieldFunction, optional
         Use this instead of computing/loading the scenario's.
+    max_bytes : int, optional
+        Memory limit of every step (default 60 % of the available memory): checked before anything
+        is built (:func:`retina.stages.memory.check_memory`) and passed to the spin engine.
+
+    Raises
+    ------
+    ResourceError
+        When a step's memory estimate exceeds ``max_bytes``.
 
     Returns
     -------
@@ -55,6 +65,7 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
         raise InputError(f"unknown stage(s) {sorted(bad)}", key="stages")
     if quick:
         sc = quick_scenario(sc)
+    check_memory(sc, stages, max_bytes)
     pf = progress_factory or no_progress
     built = build_all(sc, yield_function=yield_function, progress_factory=pf)
     yf, receptors, fld = built.yield_function, built.receptors, built.field

@@ -89,7 +89,8 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     check_folder_writable(out.parent)  # before any computation
     bars = ProgressBars(enabled=not args.quiet)
     try:
-        res = run(sc, quick=args.quick, stages=stages, progress_factory=bars)
+        max_bytes = None if args.max_memory_gb is None else int(args.max_memory_gb * 2**30)
+        res = run(sc, quick=args.quick, stages=stages, progress_factory=bars, max_bytes=max_bytes)
         o = res.scenario["output"]
         paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
                               animation=o["animation"], title=title, progress_factory=bars)
