@@ -38,7 +38,7 @@ RESULTS_VERSION = 1
 
 def _n_coeffs(degree: int) -> int:
     if degree < 2 or degree % 2 or degree > 64:
-        raise ValueError(degree)
+        raise ValueError("an even degree between 2 and 64")
     return (degree + 1) * (degree + 2) // 2
 
 

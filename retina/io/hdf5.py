@@ -48,7 +48,7 @@ MAX_DEGREE = 64
 
 def _n_coeffs(degree: int) -> int:
     if degree < 0 or degree % 2 or degree > MAX_DEGREE:
-        raise ValueError(degree)
+        raise ValueError("an even degree between 2 and 64")
     return (degree + 1) * (degree + 2) // 2
 
 

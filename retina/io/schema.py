@@ -218,8 +218,8 @@ def validate(h5, schema: FileSchema, source) -> dict:
             if raw.dtype.kind in "iu" and raw.shape == ():
                 try:
                     dims[letter] = (int(fn(int(raw))), f"/{gpath}@{attr}")
-                except (ValueError, OverflowError):
-                    pass
+                except (ValueError, OverflowError) as exc:
+                    raise _fail(src, f"/{gpath}@{attr}", f"expected {exc}, got {int(raw)}") from None
     for grp in schema.groups:
         for gpath, obj in _members(h5, grp.path):
             gkey = f"/{gpath}"
