@@ -591,3 +591,86 @@ def test_memory_guard_refuses_oversized_scenarios(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert status == 2 and "precision stage" in err and str(f) in err and len(err.splitlines()) == 1
     assert not (tmp_path / "o").exists()
+
+
+# ------------------------------------------------------------------------------ folders published whole
+
+
+def test_publish_folder_is_one_rename_and_keeps_other_files(tmp_path):
+    from retina.io.atomic import make_stage_folder, publish_folder
+
+    out = tmp_path / "report"
+    stage = make_stage_folder(out)
+    (stage / "a.txt").write_text("new a")
+    publish_folder(stage, out)
+    assert sorted(p.name for p in out.iterdir()) == ["a.txt"] and not stage.exists()
+    (out / "mine.txt").write_text("kept")
+    stage = make_stage_folder(out)
+    (stage / "a.txt").write_text("newer a")
+    publish_folder(stage, out)
+    # common practice, no source: --force replaces files of the same names and keeps the others
+    assert (out / "a.txt").read_text() == "newer a" and (out / "mine.txt").read_text() == "kept"
+    assert [p.name for p in tmp_path.iterdir()] == ["report"]  # nothing left beside it
+
+
+def test_stale_folders_of_a_killed_run_are_replaced(tmp_path):
+    import subprocess
+    import sys
+
+    from retina.io.atomic import clean_stale_folders
+
+    out = tmp_path / "report"
+    # a dead process's staging folder (a pid that has exited) and a superseded folder whose
+    # replacement never arrived (killed between the two renames of publish_folder)
+    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True,
+                          text=True).stdout.strip()
+    stale = tmp_path / ".report.abc.partial"
+    stale.mkdir()
+    (stale / "index.html").write_text("half")
+    (stale / ".owner-pid").write_text(dead)
+    aside = tmp_path / ".report.def.old"
+    aside.mkdir()
+    (aside / "index.html").write_text("the previous complete report")
+    (aside / ".owner-pid").write_text(dead)
+    removed = clean_stale_folders(out)
+    assert removed == [stale] and not stale.exists()
+    assert (out / "index.html").read_text() == "the previous complete report"
+    # a live process's staging folder is left alone
+    live = tmp_path / ".report.ghi.partial"
+    live.mkdir()
+    (live / ".owner-pid").write_text(str(__import__("os").getppid()))
+    assert clean_stale_folders(out) == [] and live.exists()
+
+
+def test_report_killed_while_publishing_leaves_old_or_new_folder(tmp_path):
+    # A SIGKILL at any point of write_outputs leaves either no folder or a complete one: the
+    # staging folder is renamed once.  Simulated by failing the rename-aside step of a --force
+    # rerun; the old report must be intact and a rerun must succeed.
+    import os
+
+    from retina.io import atomic
+
+    out = tmp_path / "rep"
+    out.mkdir()
+    (out / "index.html").write_text("old")
+    stage = atomic.make_stage_folder(out)
+    (stage / "index.html").write_text("new")
+    real_rename = os.rename
+    calls = []
+
+    def killed(src, dst):
+        calls.append((src, dst))
+        if len(calls) == 2:  # after moving the old folder aside, before the new one arrives
+            raise KeyboardInterrupt
+        return real_rename(src, dst)
+
+    atomic.os.rename = killed
+    try:
+        with pytest.raises(KeyboardInterrupt):
+            atomic.publish_folder(stage, out)
+    finally:
+        atomic.os.rename = real_rename
+    assert not out.exists()  # the window between the two renames
+    (next(tmp_path.glob(".rep.*.old")) / ".owner-pid").write_text("999999999")  # its process is gone
+    atomic.clean_stale_folders(out)
+    assert (out / "index.html").read_text() == "old"
