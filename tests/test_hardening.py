@@ -674,3 +674,23 @@ def test_report_killed_while_publishing_leaves_old_or_new_folder(tmp_path):
     (next(tmp_path.glob(".rep.*.old")) / ".owner-pid").write_text("999999999")  # its process is gone
     atomic.clean_stale_folders(out)
     assert (out / "index.html").read_text() == "old"
+
+
+# ------------------------------------------------------------------------------ exact dimensions
+
+
+@pytest.mark.parametrize("n", [63, 64])
+def test_hilbert_dimension_is_exact_and_the_engine_refuses(n):
+    from retina.errors import ResourceError
+    from retina.spin import engine
+    from retina.spin.io import loads_system
+
+    nuclei = "".join("[[radical_a.nuclei]]\nspin = 0.5\nhyperfine_mT = 0.5\n" for _ in range(n))
+    system = loads_system(f'[pair]\nname = "wide"\n[radical_a]\n{nuclei}[radical_b]\n[kinetics]\nlifetime_us = 1.0\n',
+                          source="wide.toml")
+    # Derived: 2 electrons x n spin-1/2 nuclei span 2 * 2 * 2^n states (a 64-bit product wraps at n = 62).
+    assert system.dimension == 4 * 2**n
+    cost = engine.estimate_cost(system, 100)
+    assert cost.bytes >= 16 * (4 * 2**n) ** 2 and not math.isfinite(cost.seconds)
+    with pytest.raises(ResourceError, match=f"Hilbert dimension {4 * 2**n}"):
+        engine.compute_yields(system, 50.0, np.eye(3), max_bytes=2**40)

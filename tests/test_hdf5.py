@@ -298,3 +298,26 @@ def test_fast_csv_reader_equals_the_line_reader(tmp_path):
     slow = importers._csv_slow(path, lines, ",", importers._CART, [0, 1, 2, 3], 4)
     # Reference: Python's float() on each cell (the line reader); both must round identically.
     assert fast is not None and np.array_equal(fast, slow)
+
+
+def test_import_refuses_a_fit_beyond_the_memory_limit(tmp_path):
+    from retina.errors import ResourceError
+    from retina.io.importers import fit_bytes
+
+    d = _dirs(200, seed=2)
+    np.savez(tmp_path / "t.npz", directions=d, values=0.3 + 0.01 * d[:, 2] ** 2)
+    # Derived: 2 float64 copies of the (200, 45) design matrix of degree 8 = 2 * 8 * 200 * 45 bytes.
+    assert fit_bytes(200, 8) == 2 * 8 * 200 * 45
+    with pytest.raises(ResourceError, match="needs"):
+        import_table(tmp_path / "t.npz", 8, max_bytes=fit_bytes(200, 8) - 1)
+    assert import_table(tmp_path / "t.npz", 8, max_bytes=fit_bytes(200, 8)).degree == 8
+
+
+def test_degree_limit_of_yield_files_matches_the_lebedev_rules():
+    # The schema's degree cap is the largest degree retina.yieldfn accepts (scipy's Lebedev rules).
+    from retina.io.hdf5 import MAX_DEGREE
+    from retina.yieldfn import _check_degree
+
+    assert _check_degree(MAX_DEGREE) == MAX_DEGREE
+    with pytest.raises(InputError):
+        _check_degree(MAX_DEGREE + 2)

@@ -400,12 +400,12 @@ def fit_bytes(n_points: int, degree: int) -> int:
 
 def check_fit_memory(n_points: int, degree: int, *, max_bytes: int | None = None, source=None) -> None:
     """Refuse (:class:`~retina.errors.ResourceError`) a fit whose working memory exceeds ``max_bytes``
-    or, when that is None, the machine's available memory."""
+    or, when that is None, 60 % of the machine's available memory (the spin engine's default)."""
     from retina.errors import ResourceError
     from retina.spin.memory import available_bytes
 
     need = fit_bytes(n_points, degree)
-    limit = available_bytes() if max_bytes is None else int(max_bytes)
+    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
     if need > limit:
         raise ResourceError(f"{source}: fitting {n_points:,} points at degree {degree} needs "
                             f"{need / 2**30:.3g} GiB, more than the {limit / 2**30:.3g} GiB allowed; "
