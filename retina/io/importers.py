@@ -440,7 +440,7 @@ def import_table(path: str | Path, degree: int, *, directions_key: str = "direct
         "import_format": fmt,
         "import_points": int(dirs.shape[0]),
         "degree": degree,
-        "fit": f"least squares ({rep.solver})",
+        "fit": f"least squares; {rep.solver}",
         "residual_rms": rep.rms,
         "residual_max": rep.max,
         "fit_rank": rep.rank,
