@@ -694,3 +694,21 @@ def test_hilbert_dimension_is_exact_and_the_engine_refuses(n):
     assert cost.bytes >= 16 * (4 * 2**n) ** 2 and not math.isfinite(cost.seconds)
     with pytest.raises(ResourceError, match=f"Hilbert dimension {4 * 2**n}"):
         engine.compute_yields(system, 50.0, np.eye(3), max_bytes=2**40)
+
+
+def test_stage_memory_estimates_follow_the_scenario_sizes():
+    from retina.scenario import scenario_from_dict
+    from retina.stages.memory import HEADROOM, estimate_bytes
+
+    d = copy.deepcopy(_SCENARIO)
+    d["ordering"].update(mode="molecules", n_molecules=1000)
+    est = estimate_bytes(scenario_from_dict(d, base_dir=ASSETS))
+    N, K, L, G = 20, 15, 4, 360
+    # Derived (the models in retina/stages/memory.py, float64): the build keeps N x n molecule
+    # quaternions (4 numbers each) beside the receptors' 7 + 2K numbers and three 64 MiB batches;
+    # the precision stage holds 2 grid models of 6 G N + 2 (2L + 1) N numbers and the Poisson draws
+    # of R = 5 decodes x P = 5 poses x N receptors, three times.
+    assert est["build"] == HEADROOM * 8 * (N * (7 + 2 * K) + 4 * N * 1000 + 3 * 64 * 2**20 // 8)
+    grid = 6 * G * N + 2 * (2 * L + 1) * N
+    assert est["precision"] == HEADROOM * 8 * (2 * grid + 3 * 5 * 5 * N + 3 * 5 * N + 2 * 5 * G)
+    assert set(est) == {"build", "patterns", "scan", "precision", "disorder", "trials"}
