@@ -25,6 +25,7 @@ from retina.errors import InputError
 from retina.results import Results, make_provenance
 from retina.scenario import Scenario
 from retina.stages import STAGES
+from retina.stages.memory import check_memory
 
 __all__ = ["run"]
 
@@ -33,7 +34,8 @@ _log = logging.getLogger(__name__)
 
 def run(sc: Scenario, *, quick: bool = False,
         stages=("patterns", "scan", "precision", "disorder", "order", "trials"),
-        progress_factory: ProgressFactory | None = None, yield_function=None) -> Results:
+        progress_factory: ProgressFactory | None = None, yield_function=None,
+        max_bytes: int | None = None) -> Results:
     """Run the scenario's stages and collect their results.
 
     Parameters
@@ -49,6 +51,14 @@ def run(sc: Scenario, *, quick: bool = False,
         Makes a progress callback for each long step (the CLI passes :class:`retina.progress.ProgressBars`).
     yield_function : YieldFunction, optional
         Use this instead of computing/loading the scenario's.
+    max_bytes : int, optional
+        Memory limit of every step (default 60 % of the available memory): checked before anything
+        is built (:func:`retina.stages.memory.check_memory`) and passed to the spin engine.
+
+    Raises
+    ------
+    ResourceError
+        When a step's memory estimate exceeds ``max_bytes``.
 
     Returns
     -------
@@ -61,6 +71,7 @@ def run(sc: Scenario, *, quick: bool = False,
         raise InputError(f"unknown stage(s) {sorted(bad)}", key="stages")
     if quick:
         sc = quick_scenario(sc)
+    check_memory(sc, stages, max_bytes)
     pf = progress_factory or no_progress
     t0 = time.perf_counter()
     built = build_all(sc, yield_function=yield_function, progress_factory=pf)

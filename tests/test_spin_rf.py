@@ -352,8 +352,12 @@ def test_command_bad_input_names_the_option(tmp_path, extra, key):
     argv = [str(system), "-o", str(tmp_path / "x.h5")] + [x for kv in base.items() for x in kv]
     if extra[0] == "--spectrum":
         argv += extra
-    with pytest.raises(InputError, match=key):
-        cmd.run(parse(argv))
+        with pytest.raises(InputError, match=key):
+            cmd.run(parse(argv))
+    else:  # numeric options are checked while parsing (retina.commands._types): a usage error, exit 2
+        with pytest.raises(SystemExit) as info:
+            parse(argv)
+        assert info.value.code == 2
     assert not (tmp_path / "x.h5").exists()
 
 
