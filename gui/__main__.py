@@ -1,4 +1,4 @@
-"""``python -m gui [SCENARIO.toml]``: the same as ``retina view``."""
+"""``python -m retina_viewer [SCENARIO.toml]``: the same as ``retina view``."""
 
 import sys
 

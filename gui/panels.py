@@ -2,12 +2,12 @@
 
 Conventions (owned here)
 ------------------------
-- A widget writes through the state's validating setter (:mod:`gui.state`) and listens to the
+- A widget writes through the state's validating setter (:mod:`retina_viewer.state`) and listens to the
   state's event for its field; while it shows a value that came from the state it blocks its own
   signals, so a change never echoes back (no feedback loop).
 - Numeric controls pair a slider (coarse, drag) with a spin box (exact, typed); log-scaled fields
   (photons, kappa) move the slider in equal steps of ``log10``.
-- The readout panel shows the numbers of the latest worker result (:mod:`gui.workers`) with their
+- The readout panel shows the numbers of the latest worker result (:mod:`retina_viewer.workers`) with their
   units; it never computes anything itself.
 """
 
@@ -51,7 +51,7 @@ class BoundSlider(QWidget):
 
     Parameters
     ----------
-    state : gui.state.ViewerState
+    state : retina_viewer.state.ViewerState
     name : str
         The state field.
     label, unit : str

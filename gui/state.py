@@ -6,14 +6,14 @@ Conventions (owned here)
   (yaw, pitch, roll; degrees, :mod:`retina.eye.pose`), the field (intensity in microtesla,
   inclination and declination in degrees, :mod:`retina.eye.field`), the light level (photons per
   receptor per look, :mod:`retina.signal.light`), the cone concentration ``kappa`` of the molecular
-  ordering (``None``: the scenario's own ordering, :func:`retina.pipeline.build_ordering`) and the
+  ordering (``None``: the scenario's own ordering, :func:`retina.build.build_ordering`) and the
   display choice (``"modulation"`` or ``"yields"``; eye ``"both"``, ``"left"`` or ``"right"``).
 - Every field is a validating property: a bad value raises :class:`retina.errors.InputError`
   naming the key and what was expected (``source`` is the scenario file when there is one); a
   value equal to the current one emits nothing; a changed value emits exactly one
   :class:`Event` named after the field.  Yaw is wrapped into [0, 360).
 - Derived state (the current pattern and its readout numbers) is not computed here: the window
-  asks a worker (:mod:`gui.workers`) with :meth:`ViewerState.request` and stores the answer with
+  asks a worker (:mod:`retina_viewer.workers`) with :meth:`ViewerState.request` and stores the answer with
   :meth:`ViewerState.set_result`, which emits ``"result"``.
 - The model never knows its views: views and panels subscribe with :meth:`EventEmitter.connect`.
 """
@@ -213,9 +213,9 @@ class ViewerState:
 
         if not isinstance(scenario, Scenario):
             raise InputError(f"expected a Scenario, got {type(scenario).__name__}", key="scenario")
-        from retina import pipeline
+        from retina.build import build_field
 
-        fld = pipeline.build_field(scenario)
+        fld = build_field(scenario)
         p = scenario["pose"]
         old = self._scenario
         self._scenario = scenario
@@ -228,7 +228,7 @@ class ViewerState:
 
     # ---------------------------------------------------------------- derived state
     def request(self):
-        """A frozen :class:`gui.workers.PatternRequest` of the current state (serial numbers
+        """A frozen :class:`retina_viewer.workers.PatternRequest` of the current state (serial numbers
         increase by one per call)."""
         from .workers import PatternRequest
 
@@ -242,7 +242,7 @@ class ViewerState:
 
     @property
     def result(self):
-        """The latest :class:`gui.workers.PatternResult` (or None before the first)."""
+        """The latest :class:`retina_viewer.workers.PatternResult` (or None before the first)."""
         return self._result
 
     def set_result(self, result) -> None:

@@ -61,7 +61,7 @@ def colour_values(result, display: str, eye: str):
 
     Parameters
     ----------
-    result : gui.workers.PatternResult
+    result : retina_viewer.workers.PatternResult
     display : {"modulation", "yields"}
     eye : {"both", "left", "right"}
 
@@ -176,7 +176,7 @@ class HeadView(_Subscriber):
 
     Parameters
     ----------
-    state : gui.state.ViewerState
+    state : retina_viewer.state.ViewerState
     size : tuple of int
         Initial canvas size in pixels.
     parent : QWidget, optional

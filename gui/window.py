@@ -3,11 +3,11 @@
 Conventions (owned here)
 ------------------------
 - Start-up: the scenario given, else the bundled demo scenario (``assets/demo_scenario.toml``)
-  reduced by :func:`retina.pipeline.quick_scenario` ("quick settings"; ``quick=False`` keeps it
+  reduced by :func:`retina.build.quick_scenario` ("quick settings"; ``quick=False`` keeps it
   whole).  A scenario that fails validation is reported in a dialog (or raised before the window
   exists), never as a traceback.
-- Every change of a field that affects the pattern sends :meth:`gui.state.ViewerState.request`
-  to the single worker (:mod:`gui.workers`); display and eye choices only recolour.
+- Every change of a field that affects the pattern sends :meth:`retina_viewer.state.ViewerState.request`
+  to the single worker (:mod:`retina_viewer.workers`); display and eye choices only recolour.
 - Keyboard: Left/Right turn the head 5 degrees (with Shift 1 degree), Up/Down pitch it 5 degrees,
   Page Up/Page Down roll it 5 degrees; Ctrl+O opens a scenario, Ctrl+S saves a screenshot, Ctrl+Q
   quits.
@@ -42,7 +42,7 @@ _REQUEST_FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclinat
 def load_start_scenario(path=None, *, quick: bool | None = None):
     """The scenario to start from (module docstring).  ``quick=None`` means quick for the bundled
     scenario and as-is for a given one."""
-    from retina import pipeline
+    from retina.build import quick_scenario
     from retina.scenario import load_scenario
 
     if path is None:
@@ -51,7 +51,7 @@ def load_start_scenario(path=None, *, quick: bool | None = None):
         path = bundled_scenario()
         quick = True if quick is None else quick
     sc = load_scenario(path)
-    return pipeline.quick_scenario(sc) if quick else sc
+    return quick_scenario(sc) if quick else sc
 
 
 def png_bytes(image: QImage) -> bytes:
@@ -87,11 +87,11 @@ class MainWindow(QMainWindow):
 
     Attributes
     ----------
-    state : gui.state.ViewerState
-    worker : gui.workers.QtPatternWorker
-    head_view, map_view : gui.views.HeadView, gui.views.MapView
-    controls : gui.panels.ControlPanel
-    readout : gui.panels.ReadoutPanel
+    state : retina_viewer.state.ViewerState
+    worker : retina_viewer.workers.QtPatternWorker
+    head_view, map_view : retina_viewer.views.HeadView, retina_viewer.views.MapView
+    controls : retina_viewer.panels.ControlPanel
+    readout : retina_viewer.panels.ReadoutPanel
     """
 
     def __init__(self, scenario=None, *, synchronous: bool = False, parent=None):

@@ -2,7 +2,7 @@
 
 Conventions (owned here)
 ------------------------
-- The GUI thread builds a small frozen :class:`PatternRequest` (:meth:`gui.state.ViewerState.request`)
+- The GUI thread builds a small frozen :class:`PatternRequest` (:meth:`retina_viewer.state.ViewerState.request`)
   and hands it to :meth:`LatestOnlyWorker.submit`.  One worker thread computes; while it is busy,
   a newer request replaces the pending one, so only the newest pending request is ever computed
   (the replaced ones are counted in :attr:`LatestOnlyWorker.dropped`).  A request still computing
@@ -15,7 +15,7 @@ Conventions (owned here)
   :class:`retina.eye.pattern.RetinaModel` (rebuilt only when the yield function or ``kappa``
   changes), the pattern, and the readout numbers.
 - Readout numbers: modulation depth ``(max - min) / mean`` of the receptor yields over both eyes
-  (the convention of :mod:`retina.pipeline`); the Cramer-Rao bound on heading at the current pose
+  (the convention of :mod:`retina.stages._common`); the Cramer-Rao bound on heading at the current pose
   and light level, ``1 / sqrt(I(psi))`` with ``I`` from :func:`retina.readout.fisher.heading_information`
   (the scenario's ``readout.nuisance``); and the bound on the rms heading error over uniformly
   distributed true headings at the same pitch, roll and light, ``sqrt(mean_h 1 / I(h))`` over 360
@@ -44,7 +44,7 @@ __all__ = ["PatternRequest", "PatternResult", "PatternComputer", "LatestOnlyWork
 
 @dataclass(frozen=True)
 class PatternRequest:
-    """What to compute: a scenario and the user's settings (units as :mod:`gui.state`)."""
+    """What to compute: a scenario and the user's settings (units as :mod:`retina_viewer.state`)."""
 
     serial: int
     scenario: Any
@@ -120,19 +120,19 @@ class PatternComputer:
         self.yield_builds = 0
 
     def _reset(self, sc):
-        from retina import pipeline
+        from retina import build
 
         self._scenario = sc
         self._yfs.clear()
         from retina.eye.geometry import build_receptors
 
-        self._receptors = build_receptors(pipeline.build_eyes(sc))
+        self._receptors = build_receptors(build.build_eyes(sc))
         self._model = self._model_yf = self._model_kappa = None
         self._curve_key = self._curve = None
 
     def yield_function(self, sc, intensity_uT: float, *, progress=None):
         """The yield function a request for ``sc`` at ``intensity_uT`` needs, and a note."""
-        from retina import pipeline
+        from retina import build
 
         if sc is not self._scenario:
             self._reset(sc)
@@ -142,11 +142,11 @@ class PatternComputer:
             return self._yfs[key]
         kind, path = sc.yield_source
         if key[0] == "system":
-            yf = pipeline.build_yield_function(sc.replace(**{"yield": {"field_uT": key[1]}}),
+            yf = build.build_yield_function(sc.replace(**{"yield": {"field_uT": key[1]}}),
                                                progress=progress)
             entry = (yf, key[1], f"computed from {path.name} at {key[1]:g} uT")
         else:
-            yf = pipeline.build_yield_function(sc, progress=progress)
+            yf = build.build_yield_function(sc, progress=progress)
             if kind == "system":
                 F = float(sc["yield"]["field_uT"])
                 note = (f"computed from {path.name} at the scenario's yield.field_uT = {F:g} uT; "
@@ -166,10 +166,10 @@ class PatternComputer:
 
     def model(self, sc, yf, kappa):
         """The retina model for a yield function and ``kappa`` (rebuilt only when they change)."""
-        from retina import pipeline
+        from retina import build
 
         if self._model is None or self._model_yf is not yf or self._model_kappa != kappa:
-            self._model = pipeline.build_retina(sc, yf, self._receptors, kappa=kappa)
+            self._model = build.build_retina(sc, yf, self._receptors, kappa=kappa)
             self._model_yf, self._model_kappa = yf, kappa
             self._curve_key = self._curve = None
             self.model_builds += 1

@@ -7,6 +7,9 @@ and the retina version.  Entries are native HDF5 files ``<key>.h5`` (:mod:`retin
 cache folder: ``$RETINA_CACHE`` when set, else ``~/.cache/retina-compass``.  Writes are atomic; an
 unreadable entry, or one whose coefficients do not match the ``content_hash`` stored with them,
 counts as a miss and is removed.
+
+The cache stores and returns plain :class:`retina.io.hdf5.YieldRecord` contents and never imports
+:mod:`retina.yieldfn` (which uses it).
 """
 
 from __future__ import annotations
@@ -59,27 +62,28 @@ class YieldCache:
         return self.folder / f"{key}.h5"
 
     def get(self, key: str):
-        """The cached :class:`YieldFunction` for ``key``, or None."""
-        from retina.errors import InputError
-        from retina.io.hdf5 import load_yield_function
+        """The cached yield function for ``key`` as a :class:`retina.io.hdf5.YieldRecord`, or None.
 
-        from retina.yieldfn import content_hash
+        :meth:`retina.yieldfn.YieldFunction.from_record` turns it into a yield function.
+        """
+        from retina.errors import InputError
+        from retina.io.hdf5 import content_hash, read_yield_function
 
         path = self.path_for(key)
         if not path.exists():
             return None
         try:
-            yf = load_yield_function(path)
+            rec = read_yield_function(path)
         except (InputError, OSError, KeyError, ValueError):
             self._discard(path)
             return None
-        if yf.provenance.get("input_hash") != key:
+        if rec.provenance.get("input_hash") != key:
             return None
-        if yf.provenance.get("content_hash") != content_hash(yf.coeffs, yf.degree):
+        if rec.provenance.get("content_hash") != content_hash(rec.coeffs, rec.degree):
             # the coefficients no longer match the hash written with them: a damaged entry
             self._discard(path)
             return None
-        return yf
+        return rec
 
     @staticmethod
     def _discard(path: Path) -> None:
@@ -89,7 +93,8 @@ class YieldCache:
             pass
 
     def put(self, key: str, yf) -> Path:
-        """Store ``yf`` under ``key`` (atomically, replacing any older entry)."""
+        """Store ``yf`` (a :class:`retina.yieldfn.YieldFunction`) under ``key`` (atomically, replacing
+        any older entry)."""
         from retina.io.hdf5 import save_yield_function
 
         self.folder.mkdir(parents=True, exist_ok=True)

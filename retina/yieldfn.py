@@ -30,7 +30,6 @@ Conventions (owned here)
 from __future__ import annotations
 
 import datetime as _dt
-import hashlib
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -42,10 +41,10 @@ from scipy.spatial.transform import Rotation
 
 from retina import sphere
 from retina.errors import InputError
+from retina.io.hdf5 import BASIS, content_hash  # noqa: F401  (BASIS: public here too)
 
 __all__ = ["YieldFunction", "Anisotropy", "content_hash", "package_versions", "canonical_axis"]
 
-BASIS = "real-sh-even-orthonormal-no-cs"
 DEFAULT_DEGREE = 16
 DEFAULT_CHECK_POINTS = 200
 #: Check directions whose antipodes are computed too, to confirm ``Phi(b) = Phi(-b)`` on every run.
@@ -88,14 +87,6 @@ def canonical_axis(v) -> np.ndarray:
         if abs(c) > 1e-12:
             return v if c > 0 else -v
     return v
-
-
-def content_hash(coeffs: np.ndarray, degree: int) -> str:
-    """sha256 hex digest of ``degree`` and the little-endian float64 bytes of ``coeffs``."""
-    h = hashlib.sha256()
-    h.update(f"{BASIS}:{int(degree)}:".encode())
-    h.update(np.ascontiguousarray(coeffs, dtype="<f8").tobytes())
-    return h.hexdigest()
 
 
 def package_versions() -> dict[str, str]:
@@ -272,10 +263,25 @@ class YieldFunction:
 
     @classmethod
     def load(cls, path: str | Path) -> "YieldFunction":
-        """Read a native HDF5 file written by :meth:`save`."""
-        from retina.io.hdf5 import load_yield_function
+        """Read a native HDF5 file written by :meth:`save`.
 
-        return load_yield_function(path)
+        Raises
+        ------
+        InputError
+            When the file is missing, not HDF5 or not a yield-function file (:mod:`retina.io.hdf5`).
+        """
+        from retina.io.hdf5 import read_yield_function
+
+        rec = read_yield_function(path)
+        try:
+            return cls.from_record(rec)
+        except ValueError as exc:
+            raise InputError(str(exc), source=path, key="/yield_function/coeffs") from None
+
+    @classmethod
+    def from_record(cls, rec) -> "YieldFunction":
+        """The yield function of a :class:`retina.io.hdf5.YieldRecord` (a file's or the cache's content)."""
+        return cls(rec.coeffs, rec.degree, rec.provenance, rec.fit_error)
 
     # ------------------------------------------------------------------ constructors
 
@@ -381,8 +387,9 @@ class YieldFunction:
 
             store = YieldCache(cache_dir)
             key = cache_key(system, field_uT, degree, resolved, check_points=int(check_points))
-            hit = store.get(key)
-            if hit is not None:
+            rec = store.get(key)
+            if rec is not None:
+                hit = cls.from_record(rec)
                 hit.from_cache = True
                 return hit
 

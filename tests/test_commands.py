@@ -154,15 +154,15 @@ def test_report_rebuilds_from_results(scenario, tmp_path, capsys):
 
 
 def test_interrupt_exits_130_and_leaves_no_output(scenario, tmp_path, monkeypatch, capsys):
-    from retina import pipeline
+    from retina.outputs import figures
 
-    real = pipeline.make_figures
+    real = figures.make_figures
 
     def interrupted(res, folder, **kw):
         real(res, folder, **{**kw, "animation": False})  # some files exist in the staging folder now
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(pipeline, "make_figures", interrupted)
+    monkeypatch.setattr(figures, "make_figures", interrupted)
     out = tmp_path / "o"
     assert main(["patterns", str(scenario), "-o", str(out), "-q"]) == 130
     assert "interrupted" in capsys.readouterr().err

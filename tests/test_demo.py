@@ -9,7 +9,13 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from retina import pipeline as P
+from retina import build as B
+from retina.stages import _common as C
+from retina.stages.disorder import compute_disorder
+from retina.stages.patterns import compute_patterns
+from retina.stages.precision import compute_precision
+from retina.stages.scan import compute_scan
+from retina.stages.trials import compute_trials
 from retina import sphere
 from retina.cli import main
 from retina.scenario import load_scenario, scenario_from_dict
@@ -102,8 +108,8 @@ def synthetic(tmp_path_factory):
 
 
 def _patterns(sc):
-    yf = P.build_yield_function(sc)
-    return P.compute_patterns(sc, P.build_retina(sc, yf), P.build_field(sc))
+    yf = B.build_yield_function(sc)
+    return compute_patterns(sc, B.build_retina(sc, yf), B.build_field(sc))
 
 
 def test_reversed_field_gives_the_same_pattern(synthetic):
@@ -130,11 +136,11 @@ def test_isotropic_molecules_carry_no_heading(synthetic):
     # Derived: the Haar average of any function over rotations is its sphere mean, so every receptor
     # gives the mean yield for every field: zero modulation and zero Fisher information.
     sc = synthetic(ordering={"model": "isotropic"}, readout={"photons": [100.0, 1e4], "decode_repeats": 20})
-    yf = P.build_yield_function(sc)
-    m = P.build_retina(sc, yf)
-    pat = P.compute_patterns(sc, m, P.build_field(sc))
+    yf = B.build_yield_function(sc)
+    m = B.build_retina(sc, yf)
+    pat = compute_patterns(sc, m, B.build_field(sc))
     assert np.allclose(pat["yields"], yf.mean, rtol=0, atol=1e-12) and np.abs(pat["modulation"]).max() < 1e-12
-    q = P.compute_precision(sc, m, P.build_field(sc))
+    q = compute_precision(sc, m, B.build_field(sc))
     assert np.all(q["info_per_photon_single"] < 1e-20) and np.all(np.isinf(q["bound_single_deg"]))
 
 
@@ -145,28 +151,28 @@ def test_decoder_reaches_the_cramer_rao_bound_in_bright_light(synthetic):
     # Signal Processing: Estimation Theory, 1993, ch. 7; from memory).  With n = 1500 decodes the rms has
     # a relative standard error of about 1/sqrt(2n) = 1.8 %; we allow 8 %.
     sc = synthetic(readout={"photons": [1e5], "decode_repeats": 1500}, scenario={"seed": 4})
-    yf = P.build_yield_function(sc)
-    q = P.compute_precision(sc, P.build_retina(sc, yf), P.build_field(sc))
+    yf = B.build_yield_function(sc)
+    q = compute_precision(sc, B.build_retina(sc, yf), B.build_field(sc))
     assert q["decoded_single_rms_deg"][0] == pytest.approx(q["bound_single_deg"][0], rel=0.08)
     assert q["decoded_scan_rms_deg"][0] == pytest.approx(q["bound_scan_deg"][0], rel=0.08)
     # Derived: bounds scale as photons^-1/2 (information is linear in the light level).
-    q2 = P.compute_precision(sc.replace(readout={"photons": [1e3, 1e5], "decode_repeats": 1}),
-                             P.build_retina(sc, yf), P.build_field(sc))
+    q2 = compute_precision(sc.replace(readout={"photons": [1e3, 1e5], "decode_repeats": 1}),
+                             B.build_retina(sc, yf), B.build_field(sc))
     assert q2["bound_single_deg"][0] / q2["bound_single_deg"][1] == pytest.approx(10.0, rel=1e-9)
 
 
 def test_trials_point_to_the_goal_in_bright_light(synthetic):
     # Derived: as the decoding error vanishes the chosen direction goal - error tends to the goal.
     sc = synthetic(light={"photons": [1e6], "names": ["very bright"]}, trials={"n_trials": 30, "goal_deg": 250.0})
-    yf = P.build_yield_function(sc)
-    t = P.compute_trials(sc, P.build_retina(sc, yf), P.build_field(sc))["levels"]["very bright"]
+    yf = B.build_yield_function(sc)
+    t = compute_trials(sc, B.build_retina(sc, yf), B.build_field(sc))["levels"]["very bright"]
     assert t["r"] > 0.99 and abs((t["mean_deg"] - 250.0 + 180) % 360 - 180) < 2.0
     assert t["rayleigh_p"] < 1e-6
 
 
 def test_quick_scenario_is_smaller_and_valid():
     sc = load_scenario(ASSETS / "demo_scenario.toml")
-    q = P.quick_scenario(sc)
+    q = B.quick_scenario(sc)
     assert q["yield"]["degree"] <= 8 and all(e["n_receptors"] <= 120 for e in q["eyes"])
     assert len(q["readout"]["photons"]) <= 4 and q["trials"]["n_trials"] <= 20
     assert q["light"] == sc["light"] and q.seed == sc.seed
@@ -177,12 +183,12 @@ def test_field_from_a_location_and_date(synthetic):
     # 2025.0, height 0 km: X 6521.6, Y 145.9, Z 54791.5 nT, I 83.21 deg, D 1.28 deg.  The scenario's
     # location goes through the IGRF; the two models agree within about 100 nT and 0.2 deg.
     sc = synthetic(field={"latitude_deg": 80.0, "longitude_deg": 0.0, "altitude_km": 0.0, "date": "2025-01-01"})
-    f = P.build_field(sc)
+    f = B.build_field(sc)
     F_wmm = np.sqrt(6521.6 ** 2 + 145.9 ** 2 + 54791.5 ** 2) * 1e-3  # uT
     assert f.F_uT == pytest.approx(F_wmm, abs=0.1)
     assert f.I_deg == pytest.approx(83.21, abs=0.2) and f.D_deg == pytest.approx(1.28, abs=0.2)
     # and the yield computation would use that intensity when yield.field_uT is not given
-    assert P._field_uT(sc) == pytest.approx(f.F_uT)
+    assert B.field_uT(sc) == pytest.approx(f.F_uT)
 
 
 def test_disorder_scales_a_quadrupolar_pattern_by_the_order_parameter(tmp_path):
@@ -201,10 +207,10 @@ def test_disorder_scales_a_quadrupolar_pattern_by_the_order_parameter(tmp_path):
            "ordering": {"disorder_kappas": kap}}
     sc = scenario_from_dict(doc)
     ya = _patterns(sc.replace(ordering={"model": "aligned"}))["yields"]  # (headings, receptors)
-    yf = P.build_yield_function(sc)
+    yf = B.build_yield_function(sc)
     from retina.eye.geometry import build_receptors
 
-    d = P.compute_disorder(sc, yf, build_receptors(P.build_eyes(sc)), P.build_field(sc))
+    d = compute_disorder(sc, yf, build_receptors(B.build_eyes(sc)), B.build_field(sc))
     k = np.asarray(kap)
     p2 = 1 - 3 / (k * np.tanh(k)) + 3 / k ** 2
     a = 0.3  # the sphere mean: P2 averages to zero
@@ -235,8 +241,8 @@ def test_sky_model_reaches_the_readout(synthetic):
     for name, light in {"uniform": {"sky": "uniform"}, "flat": {"sky": "horizon", "ground_ratio": 1.0},
                         "dark ground": {"sky": "horizon", "ground_ratio": 0.05}}.items():
         sc = synthetic(light=light, **base)
-        yf = P.build_yield_function(sc)
-        infos[name] = P.compute_precision(sc, P.build_retina(sc, yf), P.build_field(sc))["info_per_photon_single"]
+        yf = B.build_yield_function(sc)
+        infos[name] = compute_precision(sc, B.build_retina(sc, yf), B.build_field(sc))["info_per_photon_single"]
     assert np.allclose(infos["flat"], infos["uniform"], rtol=1e-12)
     assert np.all(infos["dark ground"] < infos["uniform"])
 
@@ -246,8 +252,8 @@ def test_interpolated_expected_counts_match_direct_evaluation(synthetic):
     # truth model interpolates 2L + 1 headings exactly (a degree-L response is a degree-L trigonometric
     # polynomial in the heading), so both agree to rounding.
     sc = synthetic()
-    yf = P.build_yield_function(sc)
-    m = P._Model(P._signal(sc, P.build_retina(sc, yf), P.build_field(sc)), yf.degree, "free")
+    yf = B.build_yield_function(sc)
+    m = C.GridModel(C.signal_model(sc, B.build_retina(sc, yf), B.build_field(sc)), yf.degree, "free")
     h = np.random.default_rng(2).uniform(0, 360, 40)
     direct = m.truth(7.0).expected(h)
     assert np.allclose(m.expected(h, 7.0), direct, rtol=1e-12, atol=1e-12 * direct.max())
@@ -259,10 +265,10 @@ def test_pattern_change_per_degree_matches_finite_differences(synthetic):
     from retina.eye.pose import head_field, pose_rotation
 
     sc = synthetic()
-    yf = P.build_yield_function(sc)
-    m = P.build_retina(sc, yf)
-    fld = P.build_field(sc)
-    s = P.compute_scan(sc, m, fld)
+    yf = B.build_yield_function(sc)
+    m = B.build_retina(sc, yf)
+    fld = B.build_field(sc)
+    s = compute_scan(sc, m, fld)
     h = 0.01
     yp = m.yields(head_field(pose_rotation(s["yaw_deg"] + h), fld.vector))
     ym = m.yields(head_field(pose_rotation(s["yaw_deg"] - h), fld.vector))

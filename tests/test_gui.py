@@ -39,12 +39,12 @@ HAVE_VIEWER = importlib.util.find_spec("PyQt6") is not None and importlib.util.f
 def quick_yield_file(tmp_path_factory):
     """The bundled scenario in quick settings with its yield function computed once and saved, so
     the window tests read it instead of recomputing it (about 2-3 s each)."""
-    from retina import pipeline
+    from retina import build
     from retina.scenario import load_scenario
 
-    sc = pipeline.quick_scenario(load_scenario(DEMO))
+    sc = build.quick_scenario(load_scenario(DEMO))
     path = tmp_path_factory.mktemp("viewer") / "demo_quick.h5"
-    pipeline.build_yield_function(sc).save(path)
+    build.build_yield_function(sc).save(path)
     return sc, path
 
 
@@ -100,7 +100,7 @@ def qapp(display):
     from PyQt6.QtWidgets import QApplication
 
     app = QApplication.instance() or QApplication(["test_gui"])
-    from gui.views import ensure_backend
+    from retina_viewer.views import ensure_backend
 
     ensure_backend()
     yield app
@@ -113,7 +113,7 @@ def _worker_threads():
 @pytest.fixture()
 def window(qapp, file_scenario):
     """A hidden, synchronous main window; fails the test if it leaks its worker thread."""
-    from gui.window import MainWindow
+    from retina_viewer.window import MainWindow
 
     before = len(_worker_threads())
     win = MainWindow(file_scenario, synchronous=True)
@@ -138,7 +138,7 @@ def _process_until(qapp, cond, timeout=30.0):
 
 def test_state_emits_one_event_per_changed_field():
     # Contract of gui/state.py (common practice, no source: model-view state with change events).
-    from gui.state import ViewerState
+    from retina_viewer.state import ViewerState
 
     st = ViewerState()
     seen = []
@@ -156,7 +156,7 @@ def test_state_emits_one_event_per_changed_field():
 
 
 def test_state_wraps_yaw_and_rejects_bad_values_with_the_key():
-    from gui.state import ViewerState
+    from retina_viewer.state import ViewerState
 
     st = ViewerState()
     st.yaw_deg = -90
@@ -181,7 +181,7 @@ def test_state_wraps_yaw_and_rejects_bad_values_with_the_key():
 
 def test_state_update_is_all_or_nothing_and_names_the_scenario_file():
     from retina.scenario import load_scenario
-    from gui.state import ViewerState
+    from retina_viewer.state import ViewerState
 
     st = ViewerState(load_scenario(DEMO))
     seen = []
@@ -195,7 +195,7 @@ def test_state_update_is_all_or_nothing_and_names_the_scenario_file():
 
 def test_state_takes_pose_field_and_light_from_the_scenario():
     from retina.scenario import load_scenario
-    from gui.state import ViewerState
+    from retina_viewer.state import ViewerState
 
     sc = load_scenario(DEMO)
     st = ViewerState()
@@ -224,7 +224,7 @@ class _Req:
 
 
 def test_synchronous_worker_computes_every_request_in_the_callers_thread():
-    from gui.workers import LatestOnlyWorker
+    from retina_viewer.workers import LatestOnlyWorker
 
     out = []
     w = LatestOnlyWorker(lambda r, cancel: (r.serial, threading.current_thread().name), out.append,
@@ -237,7 +237,7 @@ def test_synchronous_worker_computes_every_request_in_the_callers_thread():
 
 
 def test_threaded_worker_drops_stale_requests_and_joins():
-    from gui.workers import LatestOnlyWorker
+    from retina_viewer.workers import LatestOnlyWorker
 
     gate, started = threading.Event(), threading.Event()
     out = []
@@ -264,7 +264,7 @@ def test_threaded_worker_drops_stale_requests_and_joins():
 
 
 def test_threaded_worker_cancels_a_computation_a_newer_request_supersedes():
-    from gui.workers import LatestOnlyWorker
+    from retina_viewer.workers import LatestOnlyWorker
 
     started = threading.Event()
     out, errors = [], []
@@ -289,7 +289,7 @@ def test_threaded_worker_cancels_a_computation_a_newer_request_supersedes():
 
 
 def test_worker_reports_errors_without_dying():
-    from gui.workers import LatestOnlyWorker
+    from retina_viewer.workers import LatestOnlyWorker
 
     out, errors = [], []
 
@@ -308,8 +308,8 @@ def test_worker_reports_errors_without_dying():
 
 
 def test_computer_rebuilds_the_model_only_when_kappa_changes(file_scenario):
-    from gui.state import ViewerState
-    from gui.workers import PatternComputer
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
 
     st = ViewerState(file_scenario)
     c = PatternComputer()
@@ -328,16 +328,16 @@ def test_computer_rebuilds_the_model_only_when_kappa_changes(file_scenario):
 
 
 def test_readout_numbers_match_an_independent_computation(file_scenario):
-    from retina import pipeline
-    from gui.state import ViewerState
-    from gui.workers import PatternComputer
+    from retina import build
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
 
     st = ViewerState(file_scenario)
     st.update(yaw_deg=37.0, pitch_deg=12.0, roll_deg=-8.0, inclination_deg=63.0, declination_deg=-4.0,
               photons=250.0, kappa=5.0)
     res = PatternComputer().compute(st.request())
-    yf = pipeline.build_yield_function(file_scenario)
-    model = pipeline.build_retina(file_scenario, yf, kappa=5.0)
+    yf = build.build_yield_function(file_scenario)
+    model = build.build_retina(file_scenario, yf, kappa=5.0)
 
     def b_head(yaw):
         # Reference: scipy Rotation, intrinsic z-y-x (DEVELOPERS.md pose and field conventions)
@@ -426,13 +426,13 @@ def test_retina_view_is_a_subcommand(capsys):
 def test_the_core_stays_free_of_qt_when_the_command_module_is_imported():
     # DEVELOPERS.md "Layers": retina/ never imports Qt or vispy; the command imports gui lazily.
     code = ("import sys, retina.commands.view, retina.cli\n"
-            "print(sorted(m for m in sys.modules if m.split('.')[0] in ('PyQt6', 'vispy', 'gui')))")
+            "print(sorted(m for m in sys.modules if m.split('.')[0] in ('PyQt6', 'vispy', 'retina_viewer')))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "[]"
     # the state model is plain Python too (gui/state.py docstring)
-    code = ("import sys, gui.state\n"
-            "gui.state.ViewerState().yaw_deg = 10\n"
+    code = ("import sys, retina_viewer.state\n"
+            "retina_viewer.state.ViewerState().yaw_deg = 10\n"
             "print(sorted(m for m in sys.modules if m.split('.')[0] in ('PyQt6', 'vispy')))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, cwd=ROOT)
     assert out.returncode == 0, out.stderr
@@ -444,8 +444,8 @@ def test_the_core_stays_free_of_qt_when_the_command_module_is_imported():
 
 
 def test_head_view_places_the_beak_by_the_pose_convention(qapp, file_scenario):
-    from gui.state import ViewerState
-    from gui.views import HeadView
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import HeadView
 
     st = ViewerState(file_scenario)
     v = HeadView(st, size=(200, 160))
@@ -471,8 +471,8 @@ def test_head_view_places_the_beak_by_the_pose_convention(qapp, file_scenario):
 
 
 def test_map_marks_follow_the_field_and_pose_conventions(qapp, file_scenario):
-    from gui.state import ViewerState
-    from gui.views import MapView
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import MapView
 
     st = ViewerState(file_scenario)
     v = MapView(st, size=(240, 160))
@@ -582,7 +582,7 @@ def test_arrow_keys_turn_the_head(window, qapp):
 
 
 def test_threaded_window_delivers_results_and_leaves_no_thread(qapp, file_scenario):
-    from gui.window import MainWindow
+    from retina_viewer.window import MainWindow
 
     before = len(_worker_threads())
     win = MainWindow(file_scenario)               # the real threaded worker
@@ -613,10 +613,10 @@ def test_open_scenario_rejects_a_bad_file_and_keeps_the_old_one(window, tmp_path
 def test_python_m_gui_saves_a_screenshot_and_exits_0(display, tmp_path):
     out = tmp_path / "win.png"
     env = dict(os.environ, RETINA_CACHE=str(tmp_path / "cache"))
-    r = subprocess.run([sys.executable, "-m", "gui", "--screenshot", str(out)], cwd=ROOT, env=env,
+    r = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
                        capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr[-2000:]
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    r2 = subprocess.run([sys.executable, "-m", "gui", "--screenshot", str(out)], cwd=ROOT, env=env,
+    r2 = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
                         capture_output=True, text=True, timeout=300)
     assert r2.returncode == 2 and "exists already" in r2.stderr

@@ -12,7 +12,7 @@ import pytest
 import scipy.constants as sc
 
 from retina.errors import ResourceError
-from retina.spin import engine, liouville
+from retina.spin import engine, liouville, memory
 from retina.spin.system import Nucleus, Radical, Relaxation, SpinSystem
 from tests._dynamics import liouville_solve_yields
 
@@ -89,7 +89,7 @@ def test_krylov_refuses_a_sparse_fallback_that_cannot_fit(monkeypatch):
     system = rich_system(5, (0.5,), (1.0,))
     monkeypatch.setattr(liouville, "_KRYLOV_MAXITER", 1)
     monkeypatch.setattr(liouville, "_KRYLOV_RESTARTS", 0)
-    monkeypatch.setattr(engine, "available_bytes", lambda: 2**20)
+    monkeypatch.setattr(memory, "available_bytes", lambda: 2**20)
     with pytest.raises(ResourceError, match="did not converge.*GiB"):
         liouville.yields(system, 50.0, unit(np.random.default_rng(6), 1), solver="krylov")
 

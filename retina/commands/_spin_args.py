@@ -1,8 +1,10 @@
-"""What the spin commands (``yields``, ``rf``) share: checking the common options and a progress bar."""
+"""What the spin commands (``yields``, ``rf``) share: checking the common options.
+
+Their progress bar is :class:`retina.progress.ProgressBar`.
+"""
 
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
 from retina.errors import InputError
@@ -34,33 +36,3 @@ def common_inputs(args):
                          key="--output")
     check_writable(args.output, force=args.force)
     return system, field, degree, max_bytes
-
-
-class ProgressBar:
-    """A tqdm bar on stderr driven by ``progress(done, total)`` callbacks; silent when disabled.
-
-    Use as a context manager; the callback is the instance itself.
-    """
-
-    def __init__(self, enabled: bool, desc: str, total: int | None = None):
-        self.bar = None
-        if enabled:
-            from tqdm import tqdm
-
-            self.bar = tqdm(total=total, file=sys.stderr, unit="dir", desc=desc, leave=False,
-                            dynamic_ncols=True)
-
-    def __call__(self, done: int, total: int) -> None:
-        if self.bar is None:
-            return
-        if self.bar.total != total:
-            self.bar.total = total
-        self.bar.update(done - self.bar.n)
-
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        if self.bar is not None:
-            self.bar.close()
-        return False

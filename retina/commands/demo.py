@@ -11,7 +11,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from retina import pipeline
+from retina.commands import _common
 from retina.errors import InputError
 
 DEFAULT_OUTPUT = "retina-demo"
@@ -50,10 +50,10 @@ def register(subparsers) -> None:
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
                    help="run this scenario instead of the bundled one")
-    pipeline.add_common_arguments(p, default_output=DEFAULT_OUTPUT)
+    _common.add_common_arguments(p, default_output=DEFAULT_OUTPUT)
 
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return pipeline.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
-                                scenario_path=path)
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+                               scenario_path=path)

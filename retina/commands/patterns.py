@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from retina import pipeline
+from retina.commands import _common
 
 _EXAMPLES = """\
 examples:
@@ -28,8 +28,8 @@ def register(subparsers) -> None:
     p.add_argument("scenario", metavar="SCENARIO.toml", help="the scenario file")
     p.add_argument("--headings", default=None, metavar="LIST",
                    help="comma-separated headings in degrees, replacing [pose] headings_deg")
-    pipeline.add_common_arguments(p)
+    _common.add_common_arguments(p)
 
 
 def run(args) -> int:
-    return pipeline.run_command(args, ("patterns",), title=None)
+    return _common.run_command(args, ("patterns",), title=None)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from retina import pipeline
+from retina.commands import _common
 
 _EXAMPLES = """\
 examples:
@@ -27,8 +27,8 @@ def register(subparsers) -> None:
                     "for one pose and for the head scan, and sweep the molecular disorder.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("scenario", metavar="SCENARIO.toml", help="the scenario file")
-    pipeline.add_common_arguments(p)
+    _common.add_common_arguments(p)
 
 
 def run(args) -> int:
-    return pipeline.run_command(args, ("scan", "precision", "disorder"))
+    return _common.run_command(args, ("scan", "precision", "disorder"))

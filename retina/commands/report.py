@@ -6,7 +6,6 @@ import argparse
 import time
 from pathlib import Path
 
-from retina import pipeline
 from retina.errors import InputError
 
 _EXAMPLES = """\
@@ -38,6 +37,11 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    from retina.outputs import write_outputs
+    from retina.outputs.text import summary_text
+    from retina.progress import ProgressBars
+    from retina.results import load_results
+
     t0 = time.perf_counter()
     formats = [f.strip() for f in args.formats.split(",") if f.strip()]
     for f in formats:
@@ -47,15 +51,15 @@ def run(args) -> int:
     if not 50 <= args.dpi <= 1200:
         raise InputError(f"expected a dpi between 50 and 1200, got {args.dpi}", source="command line", key="--dpi")
     src = Path(args.results)
-    res = pipeline.load_results(src)
+    res = load_results(src)
     out = Path(args.output)
     same = out.exists() and (out / "results.h5").exists() and (out / "results.h5").resolve() == src.resolve()
-    bars = pipeline.TqdmProgress(enabled=not args.quiet)
+    bars = ProgressBars(enabled=not args.quiet)
     try:
-        paths = pipeline.write_outputs(res, out, force=args.force or False, formats=formats, dpi=args.dpi,
-                                       animation=not args.no_animation, progress_factory=bars,
-                                       save_results=not same)
+        paths = write_outputs(res, out, force=args.force or False, formats=formats, dpi=args.dpi,
+                              animation=not args.no_animation, progress_factory=bars,
+                              save_results=not same)
     finally:
         bars.close()
-    print(pipeline.summary_text(res, paths, time.perf_counter() - t0))
+    print(summary_text(res, paths, time.perf_counter() - t0))
     return 0

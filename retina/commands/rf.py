@@ -131,7 +131,8 @@ def spectrum_table(spec) -> str:
 
 
 def run(args) -> int:
-    from retina.commands._spin_args import ProgressBar, common_inputs
+    from retina.commands._spin_args import common_inputs
+    from retina.progress import ProgressBar
     from retina.spin import rf
     from retina.yieldfn import YieldFunction
 
@@ -146,7 +147,7 @@ def run(args) -> int:
     freqs = parse_spectrum(args.spectrum) if args.spectrum is not None else None
     rf._check_memory(system, 4, "auto", max_bytes)
 
-    with ProgressBar(not args.quiet, "rf yields") as progress:
+    with ProgressBar(not args.quiet, "rf yields", unit="dir") as progress:
         static = YieldFunction.from_system(system, field, degree)
         rfyf = rf.rf_yield_function(system, field, rf_MHz=args.rf_MHz, rf_nT=args.rf_nT,
                                     rf_direction=args.direction, degree=degree, progress=progress, tol=tol,

@@ -1,7 +1,8 @@
 """``retina view [SCENARIO.toml]``: open the desktop viewer (vispy + PyQt6).
 
-The viewer lives in the ``gui`` package and needs the optional "viewer" extra; this module imports
-it only inside :func:`run`, so the core and the rest of the command line never load Qt or vispy.
+The viewer lives in the ``retina_viewer`` package (folder ``gui/``) and needs the optional "viewer"
+extra; this module imports it only inside :func:`run`, so the core and the rest of the command line
+never load Qt or vispy.
 Without the extra, or without a display, the command prints one line and exits with status 2.
 """
 
@@ -74,7 +75,7 @@ def run(args) -> int:
         print(f"retina: error: {NO_DISPLAY}", file=sys.stderr)
         return 2
     try:
-        from gui import window
+        from retina_viewer import window
     except ImportError as exc:  # e.g. a Qt library of the system is missing
         print(f"retina: error: {MISSING_EXTRA} ({' '.join(str(exc).split())})", file=sys.stderr)
         return 2
@@ -83,8 +84,8 @@ def run(args) -> int:
 
 
 def main(argv=None) -> int:
-    """Stand-alone entry point (``python -m gui``): parse, run, print an InputError as one line."""
-    p = argparse.ArgumentParser(prog="python -m gui", description="retina-compass viewer",
+    """Stand-alone entry point (``python -m retina_viewer``): parse, run, print an InputError as one line."""
+    p = argparse.ArgumentParser(prog="python -m retina_viewer", description="retina-compass viewer",
                                 epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_arguments(p)
     args = p.parse_args(argv)

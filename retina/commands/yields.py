@@ -110,7 +110,8 @@ def summary(yf, output, wall_seconds: float) -> str:
 def run(args) -> int:
     from retina import sphere
     from retina.cache import YieldCache, cache_key
-    from retina.commands._spin_args import ProgressBar, common_inputs
+    from retina.commands._spin_args import common_inputs
+    from retina.progress import ProgressBar
     from retina.spin import engine
     from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
 
@@ -133,7 +134,7 @@ def run(args) -> int:
               f"{n} directions: about {_fmt_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
               file=sys.stderr)
 
-    with ProgressBar(not args.quiet and cached is None, "yields", n) as progress:
+    with ProgressBar(not args.quiet and cached is None, "yields", n, unit="dir") as progress:
         yf = YieldFunction.from_system(system, field, degree, method=method, progress=progress,
                                        cache=use_cache, cache_dir=args.cache_dir,
                                        check_points=args.check_points, max_bytes=max_bytes)

@@ -16,23 +16,62 @@ Layout (format version 1)
 
 Writing is atomic (:mod:`retina.io.atomic`); reading returns the coefficients bit for bit and the
 provenance as the same Python types (str, int, float, bool, dict).
+
+This module sits below :mod:`retina.yieldfn` and :mod:`retina.cache` and imports neither: it
+writes any object with ``coeffs``, ``degree``, ``mean``, ``fit_error`` and ``provenance`` and
+reads into a plain :class:`YieldRecord` (:meth:`retina.yieldfn.YieldFunction.load` turns it into
+a yield function).  It also owns :data:`BASIS` and :func:`content_hash`, the checksum stored in the
+provenance of every yield function.
 """
 
 from __future__ import annotations
 
+import hashlib
 import threading
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 
 from retina.errors import InputError
 from retina.io.atomic import atomic_path
 
-__all__ = ["save_yield_function", "load_yield_function", "FORMAT", "FORMAT_VERSION"]
+__all__ = ["save_yield_function", "read_yield_function", "YieldRecord", "content_hash", "BASIS", "FORMAT",
+           "FORMAT_VERSION"]
 
 FORMAT = "retina-compass yield function"
 FORMAT_VERSION = 1
+BASIS = "real-sh-even-orthonormal-no-cs"
+"""The coefficient basis: real, orthonormal, even-degree spherical harmonics without the
+Condon-Shortley phase (:mod:`retina.sphere`)."""
 _LONG_STRING = 1024
+
+
+def content_hash(coeffs: np.ndarray, degree: int) -> str:
+    """sha256 hex digest of :data:`BASIS`, ``degree`` and the little-endian float64 bytes of ``coeffs``."""
+    h = hashlib.sha256()
+    h.update(f"{BASIS}:{int(degree)}:".encode())
+    h.update(np.ascontiguousarray(coeffs, dtype="<f8").tobytes())
+    return h.hexdigest()
+
+
+class YieldRecord(NamedTuple):
+    """The content of a yield-function file.
+
+    Attributes
+    ----------
+    coeffs : ndarray (K,)
+        Even-degree coefficients, ``K = (L + 1)(L + 2) / 2``.
+    degree : int
+        ``L``.
+    provenance : dict
+    fit_error : float or None
+    """
+
+    coeffs: np.ndarray
+    degree: int
+    provenance: dict
+    fit_error: float | None
 
 #: HDF5 is not thread-safe: every file access of this module holds this lock (worker threads of the
 #: viewer may save and load concurrently).
@@ -92,14 +131,24 @@ def _read_dict(group) -> dict:
 def save_yield_function(yf, path: str | Path, *, force: bool = False) -> Path:
     """Write ``yf`` (a :class:`retina.yieldfn.YieldFunction`) to ``path`` atomically.
 
+    Parameters
+    ----------
+    yf : YieldFunction
+        Any object with ``coeffs (K,)``, ``degree``, ``mean``, ``fit_error`` and ``provenance``.
+    path : str or Path
+    force : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    Path
+
     Raises
     ------
     InputError
         When ``path`` exists and ``force`` is false, or its folder does not exist.
     """
     import h5py
-
-    from retina.yieldfn import BASIS
 
     path = Path(path)
     with HDF5_LOCK, atomic_path(path, force=force) as tmp:
@@ -117,8 +166,12 @@ def save_yield_function(yf, path: str | Path, *, force: bool = False) -> Path:
     return path
 
 
-def load_yield_function(path: str | Path):
+def read_yield_function(path: str | Path) -> YieldRecord:
     """Read a native yield-function file.
+
+    Returns
+    -------
+    YieldRecord
 
     Raises
     ------
@@ -137,7 +190,6 @@ def _load(path: Path):
     import h5py
 
     from retina import sphere
-    from retina.yieldfn import BASIS, YieldFunction
 
     try:
         f = h5py.File(path, "r")
@@ -165,7 +217,4 @@ def _load(path: Path):
                              source=path, key="/yield_function/coeffs")
         fit_error = _plain(ds.attrs["fit_error"]) if "fit_error" in ds.attrs else None
         prov = _read_dict(f["provenance"]) if "provenance" in f else {}
-    try:
-        return YieldFunction(coeffs, degree, prov, fit_error)
-    except ValueError as exc:
-        raise InputError(str(exc), source=path, key="/yield_function/coeffs") from None
+    return YieldRecord(coeffs, degree, prov, fit_error)

@@ -25,6 +25,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from retina.errors import InputError, ResourceError
+from retina.spin import memory
+from retina.spin.memory import available_bytes  # noqa: F401  (public here too: engine.available_bytes)
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
 
@@ -97,18 +99,6 @@ _PER_DIRECTION = 3e-5
 
 def _t_eigh(d: int) -> float:
     return max(_eigh_constant() * d**3, 2e-6)
-
-
-def available_bytes() -> int:
-    """``MemAvailable`` from /proc/meminfo in bytes (8 GiB when it cannot be read)."""
-    try:
-        with open("/proc/meminfo") as fh:
-            for line in fh:
-                if line.startswith("MemAvailable:"):
-                    return int(line.split()[1]) * 1024
-    except (OSError, ValueError, IndexError):
-        pass
-    return 8 * _GIB
 
 
 def _check_method(method: str) -> str:
@@ -242,7 +232,7 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         method = "hilbert"
     dirs = np.asarray(directions, dtype=float)
     n = dirs.shape[0] if dirs.ndim == 2 else 1
-    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
+    limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
     if cost.bytes > limit:
         hint = _resource_hint(system, method)

@@ -281,10 +281,10 @@ def sparse_lu_bytes(dimension: int) -> int:
 def _check_sparse_fallback_fits(system, d, resid) -> None:
     """Refuse (ResourceError) instead of starting a sparse fallback that cannot fit in memory."""
     from retina.errors import ResourceError
-    from retina.spin.engine import available_bytes
+    from retina.spin import memory
 
     need = sparse_lu_bytes(d)
-    limit = int(0.6 * available_bytes())
+    limit = int(0.6 * memory.available_bytes())
     if need > limit:
         raise ResourceError(
             f"{system.name!r}: the relaxation solver (GMRES) did not converge for a field direction "

@@ -226,9 +226,9 @@ def floquet_bytes(system, harmonics: int = 4, solver: str = "auto") -> int:
 
 
 def _check_memory(system, harmonics, solver, max_bytes):
-    from retina.spin.engine import available_bytes
+    from retina.spin import memory
 
-    limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)
+    limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     need = floquet_bytes(system, harmonics, solver)
     if need > limit:
         d = system.dimension

@@ -1,0 +1,259 @@
+"""Scenario -> built objects: the field, the eyes and their receptors, the molecular ordering, the
+yield function, the retina model and the sky, each from a validated
+:class:`retina.scenario.Scenario`.
+
+:func:`build_all` makes everything the stages (:mod:`retina.stages`) need, as one :class:`Built`;
+the single builders serve notebooks, the viewer and tests.  :func:`quick_scenario` is the reduced
+copy behind ``--quick``.
+
+Randomness (owned here)
+-----------------------
+Every stage draws from its own generator
+``numpy.random.default_rng(SeedSequence([seed, crc32(stage name)]))`` (:func:`stage_rng`), so a
+stage's numbers do not depend on which other stages ran; the same scenario and seed give identical
+arrays.  The sampled-molecules retina draws from the stage name ``"molecules"``.
+"""
+
+from __future__ import annotations
+
+import zlib
+from dataclasses import dataclass
+from typing import Any, Callable
+
+import numpy as np
+
+from retina.errors import InputError
+from retina.scenario import Scenario
+
+__all__ = [
+    "Built", "build_all", "stage_rng", "quick_scenario", "build_field", "build_eyes", "build_ordering",
+    "build_yield_function", "build_retina", "build_sky", "field_uT", "ProgressFactory", "no_progress",
+]
+
+ProgressFactory = Callable[[str, int], Callable[[int, int], None] | None]
+"""``factory(description, total) -> progress(done, total)`` (or None): one callback per long step."""
+
+
+def no_progress(desc: str, total: int):
+    """The progress factory that shows nothing."""
+    return None
+
+
+def stage_rng(seed: int, stage: str) -> np.random.Generator:
+    """The generator of one stage (module docstring, "Randomness").
+
+    Parameters
+    ----------
+    seed : int
+        The scenario's seed.
+    stage : str
+        The stage name (``"precision"``, ``"trials/dim"``, ``"molecules"``, ...).
+
+    Returns
+    -------
+    numpy.random.Generator
+    """
+    return np.random.default_rng(np.random.SeedSequence([int(seed), zlib.crc32(stage.encode())]))
+
+
+def quick_scenario(sc: Scenario) -> Scenario:
+    """A reduced copy for smoke tests and ``--quick``.
+
+    Degree <= 8, <= 120 receptors per eye, <= 4 photon levels, few repeats, trials and sweep points,
+    the first two headings, PNG at 100 dpi.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    Scenario
+    """
+    eyes = [dict(e, n_receptors=min(e["n_receptors"], 120)) for e in sc["eyes"]]
+    ro = sc["readout"]
+    ph = ro["photons"]
+    if len(ph) > 4:
+        ph = [ph[i] for i in np.unique(np.round(np.linspace(0, len(ph) - 1, 4)).astype(int))]
+    kap = sc["ordering"]["disorder_kappas"]
+    if len(kap) > 3:
+        kap = [kap[0], kap[len(kap) // 2], kap[-1]]
+    return sc.replace(
+        **{"yield": {"degree": min(sc["yield"]["degree"], 8)},
+           "eyes": eyes,
+           "ordering": {"disorder_kappas": kap, "n_molecules": min(sc["ordering"]["n_molecules"], 50)},
+           "readout": {"photons": ph, "decode_repeats": min(ro["decode_repeats"], 40)},
+           "scan": {"steps": min(sc["scan"]["steps"], 9)},
+           "trials": {"n_trials": min(sc["trials"]["n_trials"], 20),
+                      "scan_steps": min(sc["trials"]["scan_steps"], 5)},
+           "pose": {"headings_deg": sc["pose"]["headings_deg"][:2]},
+           "output": {"dpi": 100}})
+
+
+def build_field(sc: Scenario):
+    """The :class:`retina.eye.field.Field` of the scenario (given components or IGRF at a place)."""
+    from retina.eye.field import Field, field_at
+
+    f = sc["field"]
+    if sc.field_uses_location:
+        return field_at(f["latitude_deg"], f["longitude_deg"], f["altitude_km"], f["date"])
+    return Field(f["intensity_uT"], f["inclination_deg"], f["declination_deg"], source="scenario")
+
+
+def build_eyes(sc: Scenario) -> list:
+    """The :class:`retina.eye.geometry.Eye` objects of the scenario (in file order)."""
+    from retina.eye.geometry import Eye
+
+    out = []
+    for i, e in enumerate(sc["eyes"]):
+        try:
+            out.append(Eye(**e))
+        except InputError as exc:
+            raise InputError(exc.detail, source=sc.source, key=f"eyes[{i}].{(exc.key or '').split('.')[-1]}") from None
+    return out
+
+
+def build_ordering(sc: Scenario, kappa: float | None = None):
+    """The ordering model of the scenario (:mod:`retina.eye.ordering`).
+
+    Parameters
+    ----------
+    sc : Scenario
+    kappa : float, optional
+        Use a von Mises-Fisher cone of this concentration instead of the scenario's model.
+    """
+    from scipy.spatial.transform import Rotation
+
+    from retina.eye import ordering as om
+
+    o = sc["ordering"]
+    a, b, c = o["orientation_deg"]
+    base = Rotation.from_euler("ZYZ", [a, b, c], degrees=True)
+    model = o["model"] if kappa is None else "cone"
+    if model == "aligned":
+        return om.Aligned(base)
+    if model == "axial":
+        return om.FreeRotation(tilt_deg=b, twist_deg=c)
+    if model == "isotropic":
+        return om.Isotropic()
+    cone = om.Cone(kappa=float(o["kappa"] if kappa is None else kappa))
+    if np.allclose(base.as_matrix(), np.eye(3)):
+        return cone
+    return om.Composite(om.Aligned(base), cone)
+
+
+def field_uT(sc: Scenario) -> float:
+    """The field strength (uT) the yield function is computed at: ``[yield] field_uT`` or the field's F."""
+    if sc["yield"]["field_uT"] is not None:
+        return float(sc["yield"]["field_uT"])
+    return float(build_field(sc).F_uT)
+
+
+def build_yield_function(sc: Scenario, *, progress=None):
+    """Compute, load or import the scenario's yield function (:class:`retina.yieldfn.YieldFunction`).
+
+    Parameters
+    ----------
+    sc : Scenario
+    progress : callable(done, total), optional
+        Called while the spin engine works.
+    """
+    from retina.yieldfn import YieldFunction
+
+    kind, path = sc.yield_source
+    degree = sc["yield"]["degree"]
+    if kind == "system":
+        from retina.spin.io import load_system
+
+        system = load_system(path)
+        return YieldFunction.from_system(system, field_uT(sc), degree=degree, method=sc["yield"]["method"],
+                                         progress=progress)
+    if kind == "file":
+        return YieldFunction.load(path)
+    from retina.io.importers import import_table
+
+    return import_table(path, degree)
+
+
+def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None, progress=None):
+    """The :class:`retina.eye.pattern.RetinaModel` of the scenario.
+
+    Parameters
+    ----------
+    sc : Scenario
+    yf : YieldFunction
+    receptors : Receptors, optional
+        Default: built from the scenario's eyes.
+    kappa : float, optional
+        Replace the ordering by a cone of this concentration, in ensemble mode (disorder sweep).
+    progress : callable(done, total), optional
+    """
+    from retina.eye.geometry import build_receptors
+    from retina.eye.pattern import RetinaModel
+
+    if receptors is None:
+        receptors = build_receptors(build_eyes(sc))
+    o = sc["ordering"]
+    mode = o["mode"] if kappa is None else "ensemble"
+    return RetinaModel(yf, receptors, build_ordering(sc, kappa), mode=mode, n_molecules=o["n_molecules"],
+                       seed=stage_rng(sc.seed, "molecules"), progress=progress)
+
+
+def build_sky(sc: Scenario):
+    """The sky model of ``[light]`` (:mod:`retina.signal.light`)."""
+    from retina.signal.light import HorizonSky, UniformSky
+
+    li = sc["light"]
+    if li["sky"] == "horizon":
+        return HorizonSky(horizon_deg=li["horizon_deg"], softness_deg=li["softness_deg"],
+                          ground_ratio=li["ground_ratio"])
+    return UniformSky()
+
+
+@dataclass
+class Built:
+    """Everything the stages work on, built from one scenario.
+
+    Attributes
+    ----------
+    scenario : Scenario
+        The scenario actually run (after ``--quick``).
+    field : retina.eye.field.Field
+    yield_function : retina.yieldfn.YieldFunction
+    receptors : retina.eye.geometry.Receptors
+        ``N`` receptors over both eyes.
+    model : retina.eye.pattern.RetinaModel
+        The retina with the scenario's ordering.
+    """
+
+    scenario: Scenario
+    field: Any
+    yield_function: Any
+    receptors: Any
+    model: Any
+
+
+def build_all(sc: Scenario, *, yield_function=None, progress_factory: ProgressFactory | None = None) -> Built:
+    """Build the field, yield function, receptors and retina model of ``sc``.
+
+    Parameters
+    ----------
+    sc : Scenario
+    yield_function : YieldFunction, optional
+        Use this instead of computing, loading or importing the scenario's.
+    progress_factory : callable(description, total), optional
+        Progress callbacks for the yield function and the molecule sampling.
+
+    Returns
+    -------
+    Built
+    """
+    from retina.eye.geometry import build_receptors
+
+    pf = progress_factory or no_progress
+    fld = build_field(sc)
+    yf = yield_function if yield_function is not None else build_yield_function(sc, progress=pf("yield function", 0))
+    yf.anisotropy()
+    receptors = build_receptors(build_eyes(sc))
+    model = build_retina(sc, yf, receptors, progress=pf("molecules", 0))
+    return Built(sc, fld, yf, receptors, model)

@@ -1,0 +1,92 @@
+"""Command-line glue shared by the scenario subcommands (demo, patterns, scan, precision, trials):
+the common options, the command-line overrides of a scenario and :func:`run_command`.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from retina.errors import InputError
+from retina.scenario import Scenario
+
+__all__ = ["add_common_arguments", "apply_overrides", "run_command"]
+
+
+def add_common_arguments(p, *, output_required: bool = False, default_output: str | None = None) -> None:
+    """The options every scenario subcommand shares."""
+    p.add_argument("-o", "--output", metavar="DIR", required=output_required, default=default_output,
+                   help="output folder (results.h5, figures/, index.html, report.md); default: the "
+                        "scenario's [output] dir" if default_output is None else
+                        f"output folder (default: {default_output})")
+    p.add_argument("--force", action="store_true", help="write into an existing, non-empty output folder")
+    p.add_argument("--quick", action="store_true",
+                   help="reduced grids, receptors, repeats and trials (a smoke test, not a result)")
+    p.add_argument("--seed", type=int, default=None, help="override the scenario's [scenario] seed")
+    p.add_argument("--formats", default=None, metavar="LIST",
+                   help="figure formats, comma-separated among png,svg,pdf (default: the scenario's)")
+    p.add_argument("--dpi", type=int, default=None, help="PNG resolution (default: the scenario's, 300)")
+    p.add_argument("--no-animation", action="store_true", help="skip the head-scan GIF")
+    p.add_argument("-q", "--quiet", action="store_true", help="no progress bars; print only the summary")
+
+
+def apply_overrides(sc: Scenario, args) -> Scenario:
+    changes: dict = {}
+    if getattr(args, "seed", None) is not None:
+        if args.seed < 0:
+            raise InputError(f"expected a seed >= 0, got {args.seed}", key="--seed")
+        changes["scenario"] = {"seed": int(args.seed)}
+    if getattr(args, "headings", None):
+        try:
+            hs = [float(x) for x in args.headings.split(",") if x.strip()]
+        except ValueError:
+            raise InputError(f"expected comma-separated numbers, got {args.headings!r}", source="command line",
+                             key="--headings") from None
+        changes["pose"] = {"headings_deg": hs}
+    out = {}
+    if getattr(args, "formats", None):
+        out["formats"] = [f.strip() for f in args.formats.split(",") if f.strip()]
+    if getattr(args, "dpi", None) is not None:
+        out["dpi"] = int(args.dpi)
+    if getattr(args, "no_animation", False):
+        out["animation"] = False
+    if out:
+        changes["output"] = out
+    if not changes:
+        return sc
+    try:
+        return sc.replace(**changes)
+    except InputError as exc:
+        raise InputError(exc.detail, source="command line", key=exc.key) from None
+
+
+def run_command(args, stages, *, scenario_path=None, title: str | None = None) -> int:
+    """Load the scenario, run ``stages``, write results, figures and report; print a summary."""
+    import time
+
+    from retina.outputs import write_outputs
+    from retina.outputs.text import summary_text
+    from retina.pipeline import run
+    from retina.progress import ProgressBars
+    from retina.scenario import load_scenario
+
+    t0 = time.perf_counter()
+    sc = apply_overrides(load_scenario(scenario_path or args.scenario), args)
+    out = args.output
+    if out is None:
+        out = sc["output"]["dir"]
+    out = Path(out)
+    # Refuse early, before any computation, when the output would be overwritten.
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.force:
+        raise InputError("output folder exists and is not empty; pass --force to overwrite it", source=out)
+    if not out.parent.exists():
+        raise InputError(f"folder {out.parent} does not exist", source=out)
+    bars = ProgressBars(enabled=not args.quiet)
+    try:
+        res = run(sc, quick=args.quick, stages=stages, progress_factory=bars)
+        o = res.scenario["output"]
+        paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
+                              animation=o["animation"], title=title, progress_factory=bars)
+    finally:
+        bars.close()
+    print(summary_text(res, paths, time.perf_counter() - t0))
+    return 0

@@ -1,0 +1,68 @@
+"""Outputs of a run: figures, key numbers and the report, written together by :func:`write_outputs`.
+
+- :mod:`retina.outputs.figures` - every figure a :class:`~retina.results.Results` allows;
+- :mod:`retina.outputs.text` - the key-number tables and the command line's summary;
+- :mod:`retina.outputs.report` - the HTML and Markdown report pages.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from retina.build import ProgressFactory, no_progress
+from retina.errors import InputError
+from retina.outputs import figures
+from retina.outputs.text import key_numbers
+from retina.results import Results, save_results as _save
+
+__all__ = ["write_outputs"]
+
+
+def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, formats=("png", "svg"),
+                  dpi: int = 300, animation: bool = True, title: str | None = None,
+                  progress_factory: ProgressFactory | None = None, save_results: bool = True) -> dict:
+    """Write ``results.h5``, ``figures/`` and the report (``index.html``, ``report.md``) into ``outdir``.
+
+    ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
+    replaced and other files are kept).  Everything is first written into a hidden staging folder
+    beside ``outdir`` and moved in only when complete, so an interrupted or failed run leaves
+    ``outdir`` as it was.  Returns the paths written.
+    """
+    import shutil
+    import tempfile
+
+    from retina.outputs.report import write_report
+
+    outdir = Path(outdir)
+    if outdir.exists() and not outdir.is_dir():
+        raise InputError("exists and is not a folder", source=outdir)
+    if outdir.exists() and any(outdir.iterdir()) and not force:
+        raise InputError("folder exists and is not empty; pass --force to overwrite it", source=outdir)
+    if not outdir.parent.exists():
+        raise InputError(f"folder {outdir.parent} does not exist", source=outdir)
+    pf = progress_factory or no_progress
+    stage = Path(tempfile.mkdtemp(prefix=f".{outdir.name}.", suffix=".partial", dir=outdir.parent))
+    try:
+        if save_results:
+            _save(res, stage / "results.h5", force=True)
+        entries = figures.make_figures(res, stage / "figures", formats=formats, dpi=dpi, animation=animation,
+                                       progress=pf("figures", 7))
+        name = res.provenance.get("scenario_name", "scenario")
+        write_report(
+            stage, title or f"retina-compass report: {name}", key_numbers(res), entries,
+            intro=f"Scenario '{name}', seed {res.provenance.get('seed')}. Results in results.h5.",
+            scenario_text=res.provenance.get("scenario_toml", ""),
+            provenance={k: v for k, v in res.provenance.items() if k not in ("scenario_toml", "yield_provenance")},
+            force=True)
+        outdir.mkdir(exist_ok=True)
+        for src in sorted(stage.rglob("*")):
+            if src.is_file():
+                dst = outdir / src.relative_to(stage)
+                dst.parent.mkdir(parents=True, exist_ok=True)
+                os.chmod(src, 0o644)  # staging files are private (mkstemp); a report is for reading
+                os.replace(src, dst)
+    finally:
+        shutil.rmtree(stage, ignore_errors=True)
+    return {"results": outdir / "results.h5", "html": outdir / "index.html", "markdown": outdir / "report.md",
+            "figures": outdir / "figures"}

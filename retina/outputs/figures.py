@@ -1,0 +1,110 @@
+"""Figures of a :class:`retina.results.Results`: every figure its groups allow, drawn with the
+builders of :mod:`retina.figures`, with captions carrying units and parameters.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from retina.outputs.text import COMPARE_SHORT, light_levels, params_text
+from retina.results import Results
+
+__all__ = ["make_figures"]
+
+
+def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300,
+                 animation: bool = True, progress=None) -> list:
+    """Draw every figure the results allow into ``folder`` and return their report entries."""
+    from retina import figures as F
+    from retina.outputs.report import FigureEntry
+    from retina.yieldfn import YieldFunction
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    g = res.groups
+    params = params_text(res)
+    entries = []
+    formats = tuple(formats)
+    plan = [k for k in ("yield", "patterns", "scan", "gif", "precision", "disorder", "trials")]
+    done = 0
+
+    def add(fig, stem, anim=False, fmts=formats):
+        nonlocal done
+        entries.append(FigureEntry(f"{folder.name}/{stem}", fig.retina_title, fig.retina_caption,
+                                   tuple(fmts), anim))
+        done += 1
+        if progress:
+            progress(done, len(plan))
+
+    yfg = g["yield_function"]
+    yf = YieldFunction(yfg["coeffs"], int(yfg["degree"]))
+    fig = F.yield_sphere(yf, argmax=yfg["argmax"], argmin=yfg["argmin"],
+                         params=f"Spherical-harmonic degree {int(yfg['degree'])}; relative anisotropy "
+                                f"{100 * yfg['relative']:.3g} %; field {g['field']['F_uT']:.1f} uT",
+                         path=folder / "yield_sphere", formats=formats, dpi=dpi)
+    add(fig, "yield_sphere")
+    rec = g["receptors"]
+    if "patterns" in g:
+        p = g["patterns"]
+        fig = F.modulation_fields(rec["visual_dirs"], rec["eye_index"], p["modulation"], p["headings_deg"],
+                                  p["b_head"], params=params, path=folder / "modulation_fields",
+                                  formats=formats, dpi=dpi)
+        add(fig, "modulation_fields")
+    if "scan" in g:
+        s = g["scan"]
+        fig = F.scan_filmstrip(rec["visual_dirs"], rec["eye_index"], s["modulation"], s["yaw_deg"], s["b_head"],
+                               params=params, path=folder / "scan_filmstrip", formats=formats, dpi=dpi)
+        add(fig, "scan_filmstrip")
+        if animation:
+            F.scan_animation(rec["visual_dirs"], rec["eye_index"], s["modulation"], s["yaw_deg"], s["b_head"],
+                             folder / "scan_animation.gif", params=params, dpi=min(dpi, 100))
+            entries.append(FigureEntry(f"{folder.name}/scan_animation", "Head scan animation",
+                                       "The modulation pattern through the head scan, one frame per pose "
+                                       f"(GIF). {params}.", (), True))
+    if "precision" in g:
+        q = g["precision"]
+        n_scan = len(q["scan_offsets_deg"])
+        light = dict(zip(*light_levels(res)))
+        bounds = {"single pose": q["bound_single_deg"], f"head scan ({n_scan} poses)": q["bound_scan_deg"]}
+        cmp_n = q.get("compare_nuisance")
+        if cmp_n:
+            short = COMPARE_SHORT.get(cmp_n, cmp_n)
+            for lab, key in (("single pose", "bound_single_compare_deg"), ("head scan", "bound_scan_compare_deg")):
+                if np.isfinite(q[key]).any():
+                    bounds[f"{lab}, {short}"] = q[key]
+        fig = F.precision_curves(q["photons"], bounds,
+                                 decoded_deg={"single pose": q["decoded_single_rms_deg"],
+                                              f"head scan ({n_scan} poses)": q["decoded_scan_rms_deg"]},
+                                 light_levels=light, params=params + _compare_caption(cmp_n),
+                                 path=folder / "precision_curves",
+                                 formats=formats, dpi=dpi)
+        add(fig, "precision_curves")
+    if "disorder" in g:
+        d = g["disorder"]
+        names, _ = light_levels(res)
+        fig = F.disorder_tolerance(d["kappas"], d["depth"],
+                                   {f"{nm} ({ph:g})": d["bound_deg"][i] for i, (nm, ph) in
+                                    enumerate(zip(names, d["light_photons"]))},
+                                   marked_kappa=d.get("scenario_kappa"),
+                                   params=params + "; single pose, heading-averaged information",
+                                   path=folder / "disorder_tolerance", formats=formats, dpi=dpi)
+        add(fig, "disorder_tolerance")
+    if "trials" in g:
+        t = g["trials"]
+        data = {f"{nm} light ({lv['photons']:g} photons)": lv["chosen_deg"] for nm, lv in t["levels"].items()}
+        fig = F.trial_histograms(data, t["goal_deg"], params=params + f"; head scan of "
+                                 f"{len(t['scan_offsets_deg'])} poses per trial",
+                                 path=folder / "trial_histograms", formats=formats, dpi=dpi)
+        add(fig, "trial_histograms")
+    return entries
+
+
+def _compare_caption(cmp_n) -> str:
+    if cmp_n == "receptor_gain":
+        return ("; 'unknown texture': every receptor's sensitivity is also unknown (a head-fixed texture), so a "
+                "single pose carries no heading information (not drawn) and only the head scan recovers it")
+    if cmp_n == "pose_gain":
+        return "; 'unknown light per pose': the light level of every pose of the scan is also unknown"
+    return ""

@@ -1,0 +1,212 @@
+"""Key numbers and summary text of a :class:`retina.results.Results`: the report's tables
+(:class:`retina.outputs.report.Section`) and the few lines the command line prints.
+
+Every number a reader sees carries its unit; bounds above
+:data:`retina.readout.fisher.INFORMATIVE_BOUND_DEG` are shown in words as not informative.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from retina.results import Results
+
+__all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_text"]
+
+
+def params_text(res: Results) -> str:
+    """One line of the run's main parameters, for figure captions."""
+    p = res.provenance
+    f = res.groups["field"]
+    n = res.groups["receptors"]["eye_index"].size
+    return (f"Field {f['F_uT']:.1f} uT, inclination {f['I_deg']:.1f} deg, declination {f['D_deg']:.1f} deg; "
+            f"ordering {p.get('ordering', '?')}; {p.get('sky', 'uniform')} sky; {n} receptors; "
+            f"seed {p.get('seed', '?')}")
+
+
+def light_levels(res: Results):
+    """``(names, photons)`` of the light levels of a run (trial levels when present)."""
+    import tomllib
+
+    try:
+        light = tomllib.loads(res.provenance["scenario_toml"]).get("light", {})
+        names = light.get("names", ["dim", "bright"])
+        photons = light.get("photons", [100.0, 10000.0])
+    except (tomllib.TOMLDecodeError, KeyError):
+        names, photons = [], []
+    if "trials" in res.groups:
+        lv = res.groups["trials"]["levels"]
+        names, photons = list(lv), [lv[n]["photons"] for n in lv]
+    return list(names), [float(p) for p in photons]
+
+
+def _uninformative_note() -> str:
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG, UNIFORM_RMS_DEG
+
+    return (f"Bounds above {INFORMATIVE_BOUND_DEG:g} deg are shown as \"not informative\": the Cramer-Rao bound "
+            "is a local Gaussian approximation and means nothing once it spans much of the circle, where the "
+            f"decoding error saturates at the random-guess value {UNIFORM_RMS_DEG:.1f} deg instead (the numbers "
+            "are kept in results.h5).")
+
+
+_UNINFORMATIVE_NOTE = _uninformative_note()
+_HEADING_NOTE = "Headings are degrees clockwise from geographic north."
+COMPARE_SHORT = {"receptor_gain": "unknown texture", "pose_gain": "unknown light per pose"}
+_COMPARE_TEXT = {"receptor_gain": "a head-fixed texture (every receptor's sensitivity)",
+                 "pose_gain": "the light level of every pose"}
+
+
+def bound_text(bound_deg: float) -> str:
+    """A bound in degrees, or "not informative" (:func:`retina.readout.fisher.bound_is_informative`)."""
+    from retina.readout.fisher import bound_is_informative
+
+    if not np.isfinite(bound_deg):
+        return "no information"
+    return f"{bound_deg:.3g}" if bool(bound_is_informative(bound_deg)) else "not informative"
+
+
+def _typical_tilt_deg(kappa: float) -> float:
+    """arccos<cos theta> of a von Mises-Fisher cone, ``<cos theta> = coth kappa - 1 / kappa``."""
+    k = min(max(float(kappa), 1e-6), 1e6)
+    return float(np.degrees(np.arccos(1.0 / np.tanh(k) - 1.0 / k)))
+
+
+def key_numbers(res: Results) -> list:
+    """The report's tables of key numbers (:class:`retina.outputs.report.Section`)."""
+    from retina.outputs.report import Section
+
+    g = res.groups
+    y = g["yield_function"]
+    secs = [Section("Yield function", [
+        ("mean yield", f"{y['mean']:.5f}", "dimensionless"),
+        ("largest yield", f"{y['max']:.5f}", "dimensionless"),
+        ("smallest yield", f"{y['min']:.5f}", "dimensionless"),
+        ("relative anisotropy (max - min) / mean", f"{100 * y['relative']:.3f}", "%"),
+        ("harmonic degree", f"{int(y['degree'])}", ""),
+        ("fit (truncation) error, max", "n/a" if not np.isfinite(y["fit_error"]) else f"{y['fit_error']:.2e}",
+         "yield units"),
+    ])]
+    f = g["field"]
+    secs.append(Section("Field and retina", [
+        ("field intensity", f"{f['F_uT']:.2f}", "uT"), ("inclination", f"{f['I_deg']:.2f}", "deg"),
+        ("declination", f"{f['D_deg']:.2f}", "deg"),
+        ("receptors (both eyes)", f"{g['receptors']['eye_index'].size}", ""),
+        ("ordering", res.provenance.get("ordering", "?"), ""),
+    ]))
+    if "patterns" in g:
+        p = g["patterns"]
+        rows = [(f"modulation depth at heading {h:g} deg", f"{100 * d:.3f}", "%")
+                for h, d in zip(p["headings_deg"], p["depth"])]
+        rows.append(("largest |relative modulation|", f"{100 * np.abs(p['modulation']).max():.3f}", "%"))
+        secs.append(Section("Modulation pattern", rows, note=(
+            "Modulation depth: (largest - smallest) / mean of the receptor yields, taken over the receptors "
+            "of both eyes together. Relative modulation: each receptor's yield relative to the solid-angle-"
+            f"weighted mean yield of its own eye. {_HEADING_NOTE}")))
+    if "scan" in g:
+        s = g["scan"]
+        secs.append(Section("Head scan", [
+            ("poses", f"{s['yaw_deg'].size}", ""),
+            ("yaw range", f"{s['yaw_deg'].min():g} to {s['yaw_deg'].max():g}", "deg"),
+            ("pattern change per degree of head turn (rms over receptors, mean over the scan)",
+             f"{100 * np.mean(s['change_per_degree']):.3f}", "% per deg"),
+            ("modulation depth over the scan, min-max",
+             f"{100 * s['depth'].min():.2f}-{100 * s['depth'].max():.2f}", "%")]))
+    if "precision" in g:
+        q = g["precision"]
+        rows = []
+        n_scan = len(q["scan_offsets_deg"])
+        cmp_n = q.get("compare_nuisance")
+        for i, ph in enumerate(q["photons"]):
+            rows.append((f"{ph:g} photons/receptor: bound single pose, scan | rms decoding error single pose, scan",
+                         f"{bound_text(q['bound_single_deg'][i])}, {bound_text(q['bound_scan_deg'][i])} | "
+                         f"{q['decoded_single_rms_deg'][i]:.3g}, {q['decoded_scan_rms_deg'][i]:.3g}", "deg"))
+        if cmp_n:
+            for i, ph in enumerate(q["photons"]):
+                rows.append((f"{ph:g} photons/receptor, {COMPARE_SHORT.get(cmp_n, cmp_n)}: bound single pose, scan",
+                             f"{bound_text(q['bound_single_compare_deg'][i])}, "
+                             f"{bound_text(q['bound_scan_compare_deg'][i])}", "deg"))
+        note = ("Cramer-Rao bound on the heading standard deviation (rms over uniformly distributed headings) "
+                "and the rms error of maximum-likelihood decoding at random headings, for one pose and for the "
+                f"head scan ({n_scan} poses sharing the same light). {_UNINFORMATIVE_NOTE} "
+                "With only the overall light level unknown, the scan's bound equals the single pose's: the scan "
+                "splits the same photon budget over its poses and information adds over poses, so it only "
+                "averages the single-pose information over the headings it visits (the small remaining gain comes "
+                "from that average being taken before the bound is inverted, and from one light level being shared "
+                "by all poses).")
+        if cmp_n:
+            note += (f" With {_COMPARE_TEXT.get(cmp_n, cmp_n)} also unknown (scenario key "
+                     f"readout.compare_nuisance = \"{cmp_n}\"; bounds only), "
+                     + ("a single pose carries no heading information at all (each receptor's count is explained "
+                        "by its own sensitivity), while the scan, which moves the field across the fixed receptors, "
+                        "recovers it: this is where scanning helps." if cmp_n == "receptor_gain" else
+                        "each pose's count total is spent on its own light level."))
+        secs.append(Section("Heading precision", rows, note=note))
+    if "disorder" in g:
+        d = g["disorder"]
+        from retina.eye.ordering import order_parameter_from_kappa
+
+        names, _ = light_levels(res)
+        rows = []
+        for j, (k, dp) in enumerate(zip(d["kappas"], d["depth"])):
+            tilt = _typical_tilt_deg(k)
+            rows.append((f"kappa = {k:g} (<P2> = {order_parameter_from_kappa(k):.3f}, typical tilt "
+                         f"{tilt:.0f} deg): modulation depth", f"{100 * dp:.3f}", "%"))
+            for i, ph in enumerate(d["light_photons"]):
+                nm = names[i] if i < len(names) else f"{ph:g} photons"
+                rows.append((f"kappa = {k:g}: bound, {nm} ({ph:g} photons)", bound_text(d["bound_deg"][i][j]),
+                             "deg"))
+        secs.append(Section("Disorder tolerance", rows, note=(
+            "Molecular z axes in a von Mises-Fisher cone of concentration kappa about each receptor axis; "
+            "<P2> = <(3 cos^2 theta - 1) / 2> is the order parameter (1 perfect order, 0 none) and the typical "
+            "tilt is arccos<cos theta>. Modulation depth as above, averaged over the scenario's headings; bound "
+            f"from the heading-averaged information of a single pose. {_UNINFORMATIVE_NOTE}")))
+    if "trials" in g:
+        t = g["trials"]
+        rows = []
+        for nm, lv in t["levels"].items():
+            rows += [(f"{nm} ({lv['photons']:g} photons): mean heading", f"{lv['mean_deg']:.1f}", "deg"),
+                     (f"{nm}: mean vector length r", f"{lv['r']:.3f}", ""),
+                     (f"{nm}: Rayleigh z = n r^2", f"{len(lv['chosen_deg']) * lv['r'] ** 2:.3g}", ""),
+                     (f"{nm}: Rayleigh p", f"{lv['rayleigh_p']:.3g}", ""),
+                     (f"{nm}: V-test u (goal {t['goal_deg']:g} deg)", f"{lv['v_u']:.2f} (p = {lv['v_p']:.2g})", ""),
+                     (f"{nm}: ambiguous decodes", f"{100 * np.mean(lv['ambiguous']):.0f}", "%"),
+                     (f"{nm}: rms decoding error", f"{np.sqrt(np.mean(np.asarray(lv['error_deg']) ** 2)):.2f}",
+                      "deg"),
+                     (f"{nm}: trials", f"{len(lv['chosen_deg'])}", "")]
+        secs.append(Section("Simulated orientation trials", rows, note=(
+            f"Chosen headings, their mean and the goal are in degrees clockwise from geographic north; magnetic "
+            f"north lies {g['field']['D_deg']:g} deg east of it (declination). The simulated bird knows the field "
+            "it reads, so it decodes geographic heading. A bird whose decode is ambiguous (two likelihood peaks, "
+            "typically 180 deg apart) picks one at random, which is included in the rms decoding error. "
+            "Rayleigh test p from Zar's approximation; V-test "
+            "against the goal, p from the normal tail (Zar 2010, ch. 27).")))
+    return secs
+
+
+def _informative() -> float:
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+    return INFORMATIVE_BOUND_DEG
+
+
+def summary_text(res: Results, paths: dict, seconds: float) -> str:
+    """A few lines in words for stdout."""
+    g = res.groups
+    y = g["yield_function"]
+    lines = [f"scenario '{res.provenance.get('scenario_name')}' (seed {res.provenance.get('seed')}"
+             + (", quick" if res.provenance.get("quick") else "") + f") done in {seconds:.1f} s",
+             f"  yield function: mean {y['mean']:.4f}, relative anisotropy {100 * y['relative']:.2f} %"]
+    if "patterns" in g:
+        lines.append(f"  modulation depth {100 * g['patterns']['depth'].min():.2f}-"
+                     f"{100 * g['patterns']['depth'].max():.2f} % over {g['patterns']['depth'].size} headings")
+    if "precision" in g:
+        q = g["precision"]
+        lines.append("  heading bound (single pose): " + ", ".join(
+            (f"{b:.3g} deg" if np.isfinite(b) and b <= _informative() else "not informative")
+            + f" at {p:g} photons" for p, b in zip(q["photons"], q["bound_single_deg"])))
+    if "trials" in g:
+        for nm, lv in g["trials"]["levels"].items():
+            lines.append(f"  trials, {nm} light: mean {lv['mean_deg']:.0f} deg, r = {lv['r']:.2f}, "
+                         f"Rayleigh p = {lv['rayleigh_p']:.2g}")
+    lines.append(f"  report: {paths['html']}  (Markdown: {paths['markdown'].name}, data: {paths['results'].name})")
+    return "\n".join(lines)

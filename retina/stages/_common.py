@@ -1,0 +1,190 @@
+"""What the stages share: the per-stage generator, the signal model of a pose, the one-degree
+decoder grid and its expected counts, decoding errors and the rms bound.
+
+Conventions (owned here)
+------------------------
+- Randomness: :func:`stage_rng` (defined in :mod:`retina.build`, module docstring "Randomness").
+- Headings are yaw angles in degrees clockwise from geographic north (the world x axis,
+  :mod:`retina.eye.pose`); the field's declination turns magnetic north away from it.
+- Modulation depth of a pattern: ``(max - min) / mean`` of the receptor yields over both eyes
+  (dimensionless; reported in %), :func:`depth`.
+- A head scan is a sweep of ``scan.steps`` yaw angles, evenly spaced over
+  ``heading +/- amplitude`` (offsets rounded to the one-degree decoder grid, :func:`grid_offsets`).
+  A light level is a photon budget per receptor for the whole look: a scan splits it equally over
+  its poses (:mod:`retina.readout.scans`), so a scan and a single pose get the same light.  With
+  ``readout.nuisance = "gain"`` one overall light level, common to all poses of a scan, is unknown
+  (Schur complement, "global_gain"; the decoder profiles the same gain out).
+- Bounds: :func:`rms_bound` is the Cramer-Rao bound on the rms heading error over uniformly
+  distributed true headings, ``sqrt(mean_h 1 / I(h))`` over the 360 grid headings.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+
+from retina.build import build_sky, stage_rng
+from retina.scenario import Scenario
+
+__all__ = ["Stage", "stage_rng", "signal_model", "depth", "scan_yaws", "per_photon_info", "GRID", "GridModel",
+           "grid_offsets", "decode_errors", "rms_bound"]
+
+@dataclass(frozen=True)
+class Stage:
+    """One stage of a run, as listed in the registry (:data:`retina.stages.STAGES`).
+
+    Attributes
+    ----------
+    name : str
+        The stage name and the name of its group in the results file.
+    compute : callable(built, progress) -> dict
+        Computes the stage from a :class:`retina.build.Built`; ``progress(done, total)`` or None.
+        Returns the group: arrays, scalars, strings and nested dicts.
+    label : str
+        Progress-bar description; empty for a stage too quick to show one.
+    steps : callable(scenario) -> int
+        The progress total for a scenario (0 when unknown).
+    """
+
+    name: str
+    compute: Callable
+    label: str = ""
+    steps: Callable = lambda sc: 0
+
+
+GRID = 360
+"""Decoder grid size: one-degree steps, so integer-degree scan offsets are grid shifts."""
+
+
+def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photons: float = 1.0):
+    """The :class:`retina.signal.noise.SignalModel` of ``model`` in the scenario's sky and field.
+
+    Parameters
+    ----------
+    sc : Scenario
+    model : RetinaModel
+    fld : Field
+    pitch : float, optional
+        Head pitch in degrees (then roll 0); default the scenario's ``[pose]`` pitch and roll.
+    photons : float
+        Photon budget per receptor.
+    """
+    from retina.signal.noise import SignalModel
+
+    return SignalModel(model, inclination_deg=fld.I_deg, declination_deg=fld.D_deg, photons=photons,
+                       sky=build_sky(sc),
+                       pitch_deg=sc["pose"]["pitch_deg"] if pitch is None else pitch,
+                       roll_deg=sc["pose"]["roll_deg"] if pitch is None else 0.0)
+
+
+def depth(yields: np.ndarray) -> np.ndarray:
+    """Modulation depth ``(max - min) / mean`` of yields ``(H, N)`` (or ``(N,)``) -> ``(H,)``."""
+    y = np.atleast_2d(yields)
+    return (y.max(axis=1) - y.min(axis=1)) / y.mean(axis=1)
+
+
+def scan_yaws(sc: Scenario, steps: int | None = None) -> np.ndarray:
+    """The yaw angles ``(F,)`` in degrees of the scenario's head scan (``steps`` overrides ``scan.steps``)."""
+    s = sc["scan"]
+    n = s["steps"] if steps is None else steps
+    return s["heading_deg"] + np.linspace(-s["amplitude_deg"], s["amplitude_deg"], n)
+
+
+def per_photon_info(signal, degree: int, nuisance: str, headings) -> np.ndarray:
+    """Heading Fisher information per photon ``(H,)`` at ``headings`` (:mod:`retina.readout.fisher`)."""
+    from retina.readout.fisher import heading_information
+
+    return heading_information(signal, headings, nuisance=nuisance, degree=degree).per_photon
+
+
+class GridModel:
+    """Expected counts per photon on the decoder grid for one signal model, with decoders and
+    Poisson draws for a single look or a head scan (photon budget split over the poses,
+    :mod:`retina.readout.scans`).
+
+    Parameters
+    ----------
+    signal : SignalModel
+    degree : int
+        Harmonic degree ``L`` of the yield function (the model is a trigonometric polynomial of
+        degree ``L`` in the heading).
+    gain : {"known", "free"}
+        Whether the decoder profiles out one overall light level.
+
+    Attributes
+    ----------
+    grid : ndarray (G,)
+        Grid headings in degrees (``G = GRID``).
+    lam1, dlam1 : ndarray (G, N)
+        Expected counts and their heading derivative (per radian) at one photon per receptor.
+    """
+
+    def __init__(self, signal, degree: int, gain: str):
+        self.signal = signal
+        self.degree = int(degree)
+        self.gain = gain
+        self.grid = np.arange(GRID) * 360.0 / GRID
+        lam, dlam = signal.expected_and_derivative_fourier(self.grid, degree)
+        self.lam1 = np.maximum(lam, 0.0)     # (G, N) at photons = 1
+        self.dlam1 = dlam
+
+    def decoder(self, photons: float):
+        """The :class:`retina.readout.decode.HeadingDecoder` at ``photons`` per receptor."""
+        from retina.readout.decode import HeadingDecoder
+
+        return HeadingDecoder(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
+
+    def truth(self, photons: float):
+        """The signal model at ``photons`` per receptor."""
+        return dataclasses.replace(self.signal, photons=float(photons))
+
+    def expected(self, headings_deg, photons: float) -> np.ndarray:
+        """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
+        from ``2 L + 1`` headings (``SignalModel.expected_and_derivative_fourier``), far cheaper than
+        evaluating every receptor's harmonics at thousands of random headings."""
+        lam = self.truth(photons).expected_and_derivative_fourier(np.asarray(headings_deg, float), self.degree)[0]
+        return np.maximum(lam, 0.0)
+
+    def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
+        """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""
+        from retina.readout.scans import scan_information_arrays
+
+        sh = np.round(np.asarray(offsets_deg) * GRID / 360.0).astype(int)
+        P = sh.size
+        idx = (np.arange(GRID)[:, None] + sh[None, :]) % GRID
+        return np.array([scan_information_arrays(self.lam1[r] / P, self.dlam1[r] / P, nuisance) for r in idx])
+
+
+def grid_offsets(offsets_deg) -> np.ndarray:
+    """Scan offsets ``(P,)`` in degrees rounded to the decoder grid."""
+    step = 360.0 / GRID
+    return np.round(np.asarray(offsets_deg, float) / step) * step
+
+
+def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np.ndarray:
+    """Signed decoding errors ``(n,)`` in degrees at ``n`` uniformly random true headings (one pose,
+    or a scan over ``offsets (P,)`` degrees)."""
+    from retina.readout.circstats import circular_difference
+    from retina.signal.noise import sample_counts
+
+    true = rng.uniform(0.0, 360.0, n)
+    dec = m.decoder(photons)
+    if offsets is None:
+        est = dec.decode(sample_counts(m.expected(true, photons), rng))
+    else:
+        lam = m.expected((true[:, None] + offsets[None, :]).ravel(), photons).reshape(n, offsets.size, -1)
+        est = dec.decode_scan(sample_counts(lam / offsets.size, rng), offsets)
+    return circular_difference(est.heading_deg, true)
+
+
+def rms_bound(photons: np.ndarray, info_per_photon: np.ndarray) -> np.ndarray:
+    """``sqrt(mean_h CRB(h)^2)`` in degrees for each photon level ``(M,)``: the bound on the rms
+    error over uniformly distributed true headings (what the decoding error measures); inf if any
+    heading carries no information.  ``info_per_photon`` is ``(G,)``."""
+    from retina.readout.fisher import cramer_rao_deg
+
+    crb = cramer_rao_deg(np.asarray(photons, float)[:, None] * np.asarray(info_per_photon, float)[None, :])
+    return np.sqrt(np.mean(crb ** 2, axis=1))

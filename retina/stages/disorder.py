@@ -1,0 +1,61 @@
+"""Stage ``disorder``: modulation depth and heading bounds over a sweep of molecular disorder
+(von Mises-Fisher cone concentrations ``ordering.disorder_kappas``).
+
+The bound here is from the heading-averaged information of a single pose,
+``1 / sqrt(mean_h I(h))`` over headings 0, 10, ..., 350 deg.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from retina.build import build_retina
+from retina.scenario import Scenario
+from retina.stages._common import Stage, depth, per_photon_info, signal_model
+
+__all__ = ["compute_disorder", "STAGE"]
+
+
+def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
+    """Modulation depth and bounds over the cone concentrations ``ordering.disorder_kappas``.
+
+    Parameters
+    ----------
+    sc : Scenario
+    yf : YieldFunction
+    receptors : Receptors
+    fld : Field
+    progress : callable(done, total), optional
+        After each concentration.
+
+    Returns
+    -------
+    dict
+        ``kappas (K,)``, ``depth (K,)`` (mean over the scenario's headings), ``info_per_photon (K,)``,
+        ``light_photons (M,)``, ``bound_deg (M, K)`` and, for a cone ordering, ``scenario_kappa``.
+    """
+    from retina.eye.pose import head_field, pose_rotation
+    from retina.readout.fisher import cramer_rao_deg
+
+    kap = np.asarray(sc["ordering"]["disorder_kappas"], float)
+    light = np.asarray(sc["light"]["photons"], float)
+    p = sc["pose"]
+    b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
+                   fld.vector)
+    hs = np.arange(0.0, 360.0, 10.0)
+    dep, info = [], []
+    for i, k in enumerate(kap):
+        m = build_retina(sc, yf, receptors, kappa=float(k))
+        dep.append(float(np.mean(depth(m.yields(b)))))
+        info.append(float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, sc["readout"]["nuisance"], hs))))
+        if progress:
+            progress(i + 1, kap.size)
+    info = np.array(info)
+    own = float(sc["ordering"]["kappa"]) if sc["ordering"]["model"] == "cone" else None
+    return {"kappas": kap, "depth": np.array(dep), "info_per_photon": info, **({"scenario_kappa": own} if own else {}),
+            "light_photons": light, "bound_deg": cramer_rao_deg(light[:, None] * info[None, :])}
+
+
+STAGE = Stage("disorder", lambda b, progress: compute_disorder(b.scenario, b.yield_function, b.receptors, b.field,
+                                                               progress=progress),
+              label="disorder sweep", steps=lambda sc: len(sc["ordering"]["disorder_kappas"]))
