@@ -29,7 +29,7 @@ In the eigenbasis of ``H0`` (energies ``E_i``) ``L0`` is diagonal, ``(L0 X)_ij =
 
 Each line sits at ``|w| = |E_i - E_j|`` with the recombination width ``k``.  ``V`` is linear in the
 RF vector, ``V = B1 sum_c n_c V_c``, so the weights are a quadratic form in ``n``: one computation
-per static field direction (``W_cd,ij = (Z_c)_ji (Y_d)_ij`` for the three axes ``c, d``) gives the
+per static field direction (``W_cd,ij = -(1/4)(Z_c)_ji (Y_d)_ij`` for the three axes ``c, d``) gives the
 response to every frequency, polarisation and amplitude, ``dPhi = B1^2 sum_cd <n_c n_d> R_cd(w)``.
 The polarisation enters only through the tensor ``<n n^T>``: ``b b^T`` for a field parallel to the
 static field ``b``, ``(1 - b b^T) / 2`` perpendicular and averaged over the azimuth, and
@@ -178,8 +178,9 @@ class Response:
     field_uT : float
     delta : ndarray (L,)
         Line positions ``(E_i - E_j) / k``.
-    weights : ndarray (3, 3, L) complex
-        ``W_cd`` per line, for an RF field of 1 T along axes ``c, d`` (the ``-1/4`` included).
+    zt, y : ndarray (3, L) complex
+        ``(Z_c)_ji`` and ``(Y_c)_ij`` per line ``ij`` for an RF field of 1 T along axis ``c``; the
+        line weights are ``W_cd = -(1/4) zt_c y_d`` (the ``-1/4`` of the docstring included).
     """
 
     k: float
@@ -187,11 +188,13 @@ class Response:
     direction: np.ndarray
     field_uT: float
     delta: np.ndarray
-    weights: np.ndarray
+    zt: np.ndarray
+    y: np.ndarray
 
     def lines(self, pol: np.ndarray) -> np.ndarray:
-        """Line weights ``sum_cd pol_cd W_cd`` (L,) for a polarisation tensor ``<n n^T>``."""
-        return np.einsum("cd,cdl->l", np.asarray(pol, dtype=float), self.weights)
+        """Line weights ``sum_cd pol_cd W_cd`` (L,) for a polarisation tensor ``<n n^T>`` (3, 3)."""
+        py = np.asarray(pol, dtype=float) @ self.y                  # (3, L): sum_d pol_cd y_d
+        return -0.25 * np.sum(self.zt * py, axis=0)
 
     def tone(self, freqs_MHz, pol) -> np.ndarray:
         """Yield change per nT^2 of a single tone of amplitude ``B1`` at each frequency, (F,)."""
@@ -267,12 +270,11 @@ class _Basis:
         va, vb = v
         da, db = self.da, self.db
         d = da * db
-        if left:
-            x4 = x.reshape(da, db, d)
-            out = np.einsum("ij,jql->iql", va, x4) + np.einsum("pq,jql->jpl", vb, x4)
-        else:
+        if left:      # (A x 1) X + (1 x B) X, rows indexed (j, q)
+            out = (va @ x.reshape(da, db * d)).reshape(da, db, d) + np.matmul(vb[None], x.reshape(da, db, d))
+        else:         # X (A x 1) + X (1 x B), columns indexed (j, q)
             x4 = x.reshape(d, da, db)
-            out = np.einsum("rjq,ji->riq", x4, va) + np.einsum("rjq,qp->rjp", x4, vb)
+            out = np.matmul(va.T[None], x4) + x4 @ vb
         return out.reshape(d, d)
 
     def comm(self, c, x):
@@ -314,14 +316,11 @@ def response(system, field_uT, direction) -> Response:
     ys = [basis.comm(c, rho1) for c in range(3)]
     # Z_c = -i [P/G^T, V_c] = -i (phat V_c - V_c phat); we need its transpose
     zs = [-1j * (basis.vmul(c, phat, False) - basis.vmul(c, phat, True)) for c in range(3)]
-    w = np.empty((3, 3, e.size * e.size), dtype=complex)
-    for c in range(3):
-        zt = zs[c].T
-        for dd in range(3):
-            w[c, dd] = -0.25 * (zt * ys[dd]).reshape(-1)
+    zt = np.stack([np.ascontiguousarray(z.T).reshape(-1) for z in zs])
+    yv = np.stack([yy.reshape(-1) for yy in ys])
     static = float(np.real(np.sum(basis.proj.T * (basis.rho0 / -g))))     # k Tr[P (-L0^-1) rho0]
     return Response(k=float(system.k_singlet), static=static, direction=bd, field_uT=float(b * 1e6),
-                    delta=delta.reshape(-1), weights=w)
+                    delta=delta.reshape(-1), zt=zt, y=yv)
 
 
 def band_yields(system, field_uT, directions, band_MHz, *, rf_direction="perpendicular", angle_deg=None,
