@@ -278,8 +278,9 @@ class _Basis:
         return out.reshape(d, d)
 
     def comm(self, c, x):
-        """``-i [V_c, x]``."""
-        return -1j * (self.vmul(c, x, True) - self.vmul(c, x, False))
+        """``-i [V_c, x]`` for a Hermitian ``x`` (then ``x V_c = (V_c x)^+``: one product)."""
+        a = self.vmul(c, x, True)
+        return -1j * (a - a.conj().T)
 
 
 def response(system, field_uT, direction) -> Response:
@@ -313,9 +314,9 @@ def response(system, field_uT, direction) -> Response:
     g = -1.0 - 1j * delta
     rho1 = basis.rho0 / g
     phat = basis.proj / g.T
+    # rho0 / G and P / G^T are Hermitian (G_ji = conj(G_ij)), so each commutator is one product
     ys = [basis.comm(c, rho1) for c in range(3)]
-    # Z_c = -i [P/G^T, V_c] = -i (phat V_c - V_c phat); we need its transpose
-    zs = [-1j * (basis.vmul(c, phat, False) - basis.vmul(c, phat, True)) for c in range(3)]
+    zs = [-basis.comm(c, phat) for c in range(3)]        # Z_c = -i [P / G^T, V_c] = i [V_c, P / G^T]
     zt = np.stack([np.ascontiguousarray(z.T).reshape(-1) for z in zs])
     yv = np.stack([yy.reshape(-1) for yy in ys])
     static = float(np.real(np.sum(basis.proj.T * (basis.rho0 / -g))))     # k Tr[P (-L0^-1) rho0]

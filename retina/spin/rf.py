@@ -735,10 +735,12 @@ def choose_rf_method(system, method="auto") -> str:
 
 
 def rf_yields(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perpendicular", method="auto",
-              harmonics="auto", tol=1e-10, progress=None, max_bytes=None, return_info=False):
+              harmonics="auto", tol=1e-10, progress=None, max_bytes=None, return_info=False, angle_deg=90.0):
     """Phase-averaged RF yields by the cheapest exact method (see :func:`choose_rf_method`).
 
-    Parameters as in :func:`yields_rf`; ``method`` one of :data:`RF_METHODS`.  ``info`` (with
+    Parameters as in :func:`yields_rf`; ``method`` one of :data:`RF_METHODS`; ``angle_deg`` (with
+    ``rf_direction="perpendicular"``, separable method only) tilts the azimuth-averaged RF direction
+    to that angle from the static field (:func:`retina.spin.rf_separable.yields_rf`).  ``info`` (with
     ``return_info``) holds ``method`` and the per-direction ``harmonics`` and ``azimuths``.
     """
     m = choose_rf_method(system, method)
@@ -747,8 +749,12 @@ def rf_yields(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
 
         y, info = rf_separable.yields_rf(system, field_uT, directions, rf_MHz=rf_MHz, rf_nT=rf_nT,
                                          rf_direction=rf_direction, harmonics=harmonics, tol=tol,
-                                         progress=progress, return_info=True)
+                                         progress=progress, return_info=True, angle_deg=angle_deg)
     else:
+        if float(angle_deg) != 90.0:
+            raise InputError("an RF direction at an angle other than 90 degrees to the static field needs the "
+                             "separable RF method (a pair without electron-electron coupling, equal rates)",
+                             source=system.source, key="angle_deg")
         y, info = yields_rf(system, field_uT, directions, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rf_direction,
                             harmonics=harmonics, tol=tol, progress=progress, max_bytes=max_bytes,
                             return_info=True)
@@ -760,7 +766,7 @@ def rf_yields(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
 
 def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendicular", degree=8,
                       progress: Callable[[int, int], None] | None = None, check_points: int = 20, tol=1e-10,
-                      harmonics="auto", max_bytes=None, method="auto"):
+                      harmonics="auto", max_bytes=None, method="auto", angle_deg=90.0):
     """The phase-averaged yield under RF as a :class:`~retina.yieldfn.YieldFunction`.
 
     Computed like :meth:`YieldFunction.from_system`: on one hemisphere of the smallest Lebedev rule
@@ -782,6 +788,8 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
         Independent check directions (>= 1).
     method : {"auto", "separable", "floquet"}
         See :func:`choose_rf_method`.
+    angle_deg : float
+        See :func:`rf_yields` (recorded as ``rf_angle_deg``).
 
     Returns
     -------
@@ -807,7 +815,7 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
     t0 = time.perf_counter()
     values, info = rf_yields(system, field_uT, dirs, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rfdir,
                              harmonics=harmonics, tol=tol, progress=progress, max_bytes=max_bytes,
-                             return_info=True, method=method)
+                             return_info=True, method=method, angle_deg=angle_deg)
     seconds = time.perf_counter() - t0
     h = half.size
     coeffs = sphere.fit_even(values[:h][full_from_half], grid, degree)
@@ -825,6 +833,7 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
         "rf_MHz": float(rf_MHz),
         "rf_nT": float(rf_nT),
         "rf_direction": rfdir if isinstance(rfdir, str) else " ".join(f"{x:.17g}" for x in rfdir),
+        "rf_angle_deg": float(angle_deg),
         "rf_phase": "averaged",
         "rf_harmonics_max": int(np.max(info["harmonics"])),
         "rf_azimuths_max": int(np.max(info["azimuths"])),

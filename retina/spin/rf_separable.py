@@ -287,7 +287,8 @@ def _pair_value(ra, rb, b_t, b1_t, w, harmonics, tol):
 
 
 def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perpendicular", harmonics="auto",
-              tol=1e-10, azimuths="auto", progress: Callable[[int, int], None] | None = None, return_info=False):
+              tol=1e-10, azimuths="auto", progress: Callable[[int, int], None] | None = None, return_info=False,
+              angle_deg=90.0):
     """The phase-averaged reported yield under static plus RF field, by the separable RF method.
 
     Parameters
@@ -304,6 +305,10 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
         RF amplitude ``B1``, nT (>= 0); the field is ``B1 n cos(w t + theta)``.
     rf_direction : {"perpendicular", "parallel"} or array_like, shape (3,)
         As in :func:`retina.spin.rf.yields_rf`.
+    angle_deg : float
+        With "perpendicular": the RF direction makes this angle with the static field and is
+        averaged over its azimuth about it (90, the default, is perpendicular; other angles use
+        azimuths over the whole circle, since ``n -> -n`` then leaves the cone).
     harmonics : "auto" or int
         Floquet truncation ``N`` per radical.
     tol : float
@@ -334,6 +339,15 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
         raise InputError(f"expected 'auto' or a divisor of {MAX_AZIMUTHS} azimuths, got {azimuths!r}",
                          source=src, key="azimuths")
     b, dirs = validate_field(field_uT, directions, src)
+    try:
+        alpha = float(np.radians(float(angle_deg)))
+    except (TypeError, ValueError):
+        alpha = float("nan")
+    if not (np.isfinite(alpha) and 0.0 <= alpha <= np.pi):
+        raise InputError(f"expected an angle to the static field in 0..180 degrees, got {angle_deg!r}", source=src,
+                         key="angle_deg")
+    ca, sa = (0.0, 1.0) if float(angle_deg) == 90.0 else (np.cos(alpha), np.sin(alpha))
+    span = np.pi if float(angle_deg) == 90.0 else 2 * np.pi
     k = float(system.k_singlet)
     scale = 1.0 / k                                   # dimensionless: frequencies in units of k
     ra, rb = (_Radical(r, scale) for r in system.radicals)
@@ -353,9 +367,9 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
             def at(j, kk):
                 key = j * (MAX_AZIMUTHS // kk)
                 if key not in vals:
-                    phi = np.pi * j / kk
-                    val, o, err = _pair_value(ra, rb, b * bd, b1 * (np.cos(phi) * e1 + np.sin(phi) * e2), w,
-                                              harmonics, tol)
+                    phi = span * j / kk
+                    nrf = ca * bd + sa * (np.cos(phi) * e1 + np.sin(phi) * e2)
+                    val, o, err = _pair_value(ra, rb, b * bd, b1 * nrf, w, harmonics, tol)
                     vals[key] = val
                     orders[i] = max(orders[i], o)
                     ortho[i] = max(ortho[i], err)
