@@ -31,6 +31,17 @@ offsets, ``T`` trials.  A group is present when its stage ran::
                            attrs photons, mean_deg, r, rayleigh_p, v_u, v_p, r_axial,
                            rayleigh_p_axial, preferred_analysis
 
+    /rf                    light_photons (V,); attrs names, light_names (JSON lists), degree
+    /rf/conditions/c<i>    coeffs, depth (H,), bound_single_deg (V,), bound_scan_deg (V,), trial_r (V,),
+                           trial_mean_deg (V,), rayleigh_p (V,), v_p (V,); attrs name, record (JSON),
+                           method, relative_anisotropy, mean_yield, fit_error; bands also eta,
+                           weak_valid, b_rms_nT
+    /rf_sweep              freqs_MHz (F,), lifetimes_us (T,), light_photons (V,), eta (T,),
+                           control_bound_deg (T, V), control_r (T,), control_anisotropy (T,),
+                           perp_/par_bound_deg (T, F, V), perp_/par_r (T, F), perp_/par_anisotropy (T, F),
+                           onset_MHz (T,), effect_onset_MHz (T,); attrs amplitude_nT, sweep_light,
+                           light_names, method (JSON lists), onset_factor, degree
+
 What each stage's numbers mean: the module docstrings of :mod:`retina.stages`.  The file is
 written atomically (:mod:`retina.io.atomic`).
 """

@@ -223,9 +223,10 @@ def compute_rf(built, progress=None) -> dict | None:
     Returns
     -------
     dict
-        ``names`` (list of C names, the control "off" first unless the scenario names its own),
-        ``light_names``, ``light_photons (V,)``, ``degree``, and per condition a sub-group
-        ``conditions/<name>`` with ``record`` (JSON text), ``coeffs``, ``relative_anisotropy``,
+        ``names`` (JSON list of the C condition names, the control "off" first unless the scenario
+        lists its own), ``light_names`` (JSON list), ``light_photons (V,)``, ``degree``, and per
+        condition ``i`` a sub-group ``conditions/c<i>`` with ``name``, ``record`` (JSON text),
+        ``coeffs``, ``relative_anisotropy``,
         ``mean_yield``, ``fit_error``, ``depth (H,)``, ``bound_single_deg (V,)``,
         ``bound_scan_deg (V,)``, ``trial_r``, ``trial_mean_deg``, ``rayleigh_p``, ``v_p`` (V,),
         ``method`` and, for bands, ``eta`` and ``weak_valid``.
@@ -240,7 +241,7 @@ def compute_rf(built, progress=None) -> dict | None:
     system = _system(sc)
     field = _field_uT(sc, built.field)
     L = int(rfc["degree"])
-    out = {"names": [c["name"] for c in conds], "light_names": list(sc["light"]["names"]),
+    out = {"names": json.dumps([c["name"] for c in conds]), "light_names": json.dumps(list(sc["light"]["names"])),
            "light_photons": np.asarray(sc["light"]["photons"], float), "degree": L, "conditions": {}}
     for i, c in enumerate(conds):
         rec = condition_record(c, built.field)
@@ -254,7 +255,7 @@ def compute_rf(built, progress=None) -> dict | None:
                                        tol=rfc["tol"], cache=rfc["cache"])
             method = str(yf.provenance.get("method", ""))
         an = yf.anisotropy()
-        grp = {"record": json.dumps(rec, sort_keys=True), "coeffs": np.asarray(yf.coeffs),
+        grp = {"name": c["name"], "record": json.dumps(rec, sort_keys=True), "coeffs": np.asarray(yf.coeffs),
                "relative_anisotropy": float(an.relative), "mean_yield": float(an.mean),
                "fit_error": float(yf.fit_error) if yf.fit_error is not None else float("nan"), "method": method}
         if c["kind"] == "band":
@@ -262,7 +263,7 @@ def compute_rf(built, progress=None) -> dict | None:
             grp["weak_valid"] = int(bool(yf.provenance["rf_weak_valid"]))
             grp["b_rms_nT"] = float(yf.provenance["rf_b_rms_nT"])
         grp.update(_metrics(sc, built, yf))
-        out["conditions"][c["name"]] = grp
+        out["conditions"][f"c{i}"] = grp
         if progress:
             progress(i + 1, len(conds))
     return out
@@ -281,8 +282,8 @@ def compute_rf_sweep(built, progress=None) -> dict | None:
     Returns
     -------
     dict
-        ``freqs_MHz (F,)``, ``amplitude_nT``, ``lifetimes_us (T,)``, ``light_names``,
-        ``light_photons (V,)``, ``sweep_light``, ``eta (T,)``, ``method`` (T strings),
+        ``freqs_MHz (F,)``, ``amplitude_nT``, ``lifetimes_us (T,)``, ``light_names`` (JSON list),
+        ``light_photons (V,)``, ``sweep_light``, ``eta (T,)``, ``method`` (JSON list of T strings),
         ``control_bound_deg (T, V)``, ``control_r (T,)``, ``perp_bound_deg``/``par_bound_deg``
         ``(T, F, V)``, ``perp_r``/``par_r (T, F)``, ``perp_anisotropy``/``par_anisotropy (T, F)``,
         ``control_anisotropy (T,)``, ``onset_MHz (T,)`` (NaN: none in the sweep),
@@ -371,8 +372,8 @@ def compute_rf_sweep(built, progress=None) -> dict | None:
         if np.any(rel > 0):
             effect_onset[t] = float(np.min(freqs[rel >= 0.5 * rel.max()]))
     out = {"freqs_MHz": freqs, "amplitude_nT": amp, "lifetimes_us": np.asarray(lifetimes, float),
-           "light_names": names, "light_photons": np.asarray(sc["light"]["photons"], float), "sweep_light": light,
-           "eta": etas, "method": methods, "control_bound_deg": control_b, "control_r": control_r,
+           "light_names": json.dumps(names), "light_photons": np.asarray(sc["light"]["photons"], float),
+           "sweep_light": light, "eta": etas, "method": json.dumps(methods), "control_bound_deg": control_b, "control_r": control_r,
            "control_anisotropy": control_an, "onset_MHz": onset, "onset_factor": ONSET_FACTOR,
            "effect_onset_MHz": effect_onset, "degree": L}
     out.update(res)
