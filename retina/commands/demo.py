@@ -45,8 +45,10 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
-                    "trials) on the bundled invented scenario and write results.h5, figures and an "
-                    "HTML + Markdown report.",
+                    "trials, RF conditions and RF frequency sweep) on the bundled invented scenario and write "
+                    "results.h5, figures and an HTML + Markdown report.  RF exposure: the RF results describe a "
+                    "model; work with RF transmitters follows the usual cautions and local regulations, and "
+                    "animal experiments need ethics approval.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
                    help="run this scenario instead of the bundled one")
@@ -55,5 +57,5 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials", "rf", "rf_sweep"),
                                scenario_path=path)

@@ -292,5 +292,7 @@ def summary_text(res: Results, paths: dict, seconds: float) -> str:
         lines.append("  RF sweep onset of disorientation: " + ", ".join(
             f"{tau:g} us: " + ("none" if not np.isfinite(o) else f"{o:g} MHz")
             for tau, o in zip(w["lifetimes_us"], w["onset_MHz"])) + f" (at {w['amplitude_nT']:g} nT)")
+    if "rf" in g or "rf_sweep" in g:
+        lines.append("  " + RF_CAUTION)
     lines.append(f"  report: {paths['html']}  (Markdown: {paths['markdown'].name}, data: {paths['results'].name})")
     return "\n".join(lines)
