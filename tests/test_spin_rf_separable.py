@@ -303,3 +303,24 @@ def test_band_yields_report_the_validity_limit():
         bb.band_yields(sys_, 50.0, dirs, (10.0, 0.1), rms_nT=10.0)
     with pytest.raises(InputError, match="asd_nT_per_rtHz"):
         bb.band_yields(sys_, 50.0, dirs, (0.1, 10.0), rms_nT=10.0, asd_nT_per_rtHz=1.0)
+
+
+def test_rf_direction_at_an_angle():
+    # Derived: at 90 deg the azimuth-averaged direction is the perpendicular one, at 0 deg the
+    # parallel one; at 60 deg and weak amplitude the change is cos^2 60 (parallel) + sin^2 60
+    # (perpendicular) of the second-order response (retina.spin.broadband, polarisation tensor).
+    sys_ = invented_pair()
+    b = unit([[0.2, -0.4, 1.0]])
+    kw = dict(rf_MHz=1.4, rf_nT=3000.0, tol=1e-12)
+    perp = rs.yields_rf(sys_, 50.0, b, rf_direction="perpendicular", **kw)
+    np.testing.assert_allclose(rs.yields_rf(sys_, 50.0, b, angle_deg=90.0, **kw), perp, atol=1e-14, rtol=0)
+    par = rs.yields_rf(sys_, 50.0, b, rf_direction="parallel", **kw)
+    np.testing.assert_allclose(rs.yields_rf(sys_, 50.0, b, angle_deg=0.0, **kw), par, atol=1e-12, rtol=0)
+    static = separable.yields(sys_, 50.0, b)[0]
+    weak = dict(rf_MHz=1.4, rf_nT=50.0, tol=1e-14)
+    y60 = rs.yields_rf(sys_, 50.0, b, angle_deg=60.0, **weak)[0] - static
+    r = bb.response(sys_, 50.0, b[0])
+    pred = r.tone(1.4, bb.polarisation_tensor(r.direction, "angle", angle_deg=60.0))[0] * 50.0**2
+    assert y60 == pytest.approx(pred, rel=1e-3)
+    with pytest.raises(InputError, match="angle_deg"):
+        rs.yields_rf(sys_, 50.0, b, angle_deg=200.0, **kw)
