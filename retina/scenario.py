@@ -582,9 +582,6 @@ def _rf_checks(d: dict, src) -> None:
                                  source=src, key=f"{key}.asd_nT_per_rtHz")
         if c["direction"] == "coil" and not any(c["coil"]):
             raise InputError("expected a non-zero coil direction", source=src, key=f"{key}.coil")
-    if (rf["conditions"] or rf["sweep_MHz"]) and d["yield"]["system"] is None:
-        raise InputError("RF conditions and sweeps need the spin system (yield.system), not a loaded or imported "
-                         "yield function", source=src, key="rf")
     if rf["sweep_light"] and rf["sweep_light"] not in d["light"]["names"]:
         raise InputError(f"expected one of the light level names {d['light']['names']}, got {rf['sweep_light']!r}",
                          source=src, key="rf.sweep_light")

@@ -145,3 +145,16 @@ def test_rf_yield_functions_are_cached_by_content(tmp_path):
     np.testing.assert_array_equal(a.coeffs, b.coeffs)
     c = rfs.rf_yield_function_for(system, 50.0, dict(rec, amplitude_nT=900.0), degree=2, check_points=2)
     assert not c.from_cache
+
+
+def test_rf_needs_the_spin_system(tmp_path):
+    from retina.build import build_all
+    from retina.yieldfn import YieldFunction
+
+    sc = scenario(tmp_path, {"degree": 2, "sweep_MHz": [1.0]})
+    built = build_all(sc, yield_function=None)
+    path = built.yield_function.save(tmp_path / "yf.h5")
+    sc2 = sc.replace(**{"yield": {"system": None, "file": str(path)}})
+    assert isinstance(YieldFunction.load(path), YieldFunction)
+    with pytest.raises(InputError, match="yield.system"):
+        rfs.compute_rf_sweep(build_all(sc2))

@@ -58,9 +58,15 @@ ONSET_FACTOR = 2.0
 
 
 def _system(sc: Scenario):
+    from retina.errors import InputError
     from retina.spin.io import load_system
 
-    return load_system(sc["yield"]["system"])
+    kind, path = sc.yield_source
+    if kind != "system":
+        raise InputError(f"RF conditions and sweeps need the spin system (yield.system), but the yield function "
+                         f"comes from yield.{kind}; remove [rf] conditions and sweep_MHz or name the system",
+                         source=sc.source, key="rf")
+    return load_system(path)
 
 
 def _field_uT(sc: Scenario, fld) -> float:
