@@ -75,7 +75,8 @@ def quick_scenario(sc: Scenario) -> Scenario:
     """A reduced copy for smoke tests and ``--quick``.
 
     Degree <= 8, <= 120 receptors per eye, <= 4 photon levels, few repeats, trials and sweep points,
-    the first two headings, PNG at 100 dpi.
+    the first two headings, RF degree <= 4 with <= 2 check points, <= 4 RF sweep frequencies and
+    <= 2 lifetimes, PNG at 100 dpi.
 
     Parameters
     ----------
@@ -102,6 +103,9 @@ def quick_scenario(sc: Scenario) -> Scenario:
            "trials": {"n_trials": min(sc["trials"]["n_trials"], 20),
                       "scan_steps": min(sc["trials"]["scan_steps"], 5)},
            "pose": {"headings_deg": sc["pose"]["headings_deg"][:2]},
+           "rf": {"degree": min(sc["rf"]["degree"], 4), "check_points": min(sc["rf"]["check_points"], 2),
+                  "sweep_MHz": sc["rf"]["sweep_MHz"][:: max(1, -(-len(sc["rf"]["sweep_MHz"]) // 4))],
+                  "sweep_lifetimes_us": sc["rf"]["sweep_lifetimes_us"][:2]},
            "output": {"dpi": 100}})
 
 

@@ -101,6 +101,31 @@ def _items():
                            I("info_per_photon", shape=("S",), **NF, low=0),
                            I("bound_deg", shape=("V", "S"), **NF, low=0, **deg), I("label", "str", **A)),
         "trials": (I("scan_offsets_deg", shape=("Q",), **deg), I("goal_deg", **A, **NF, **deg)),
+        "rf": (I("light_photons", shape=("V",), low=0), I("names", "json", **A), I("light_names", "json", **A),
+               I("degree", "int", **A, low=2, high=64)),
+        "rf/conditions/*": (
+            I("coeffs", shape=("R",)), I("depth", shape=("W",), **NF, low=0),
+            I("bound_single_deg", shape=("V",), **NF, low=0, **deg), I("bound_scan_deg", shape=("V",), **NF, low=0, **deg),
+            I("trial_r", shape=("V",), **NF, low=0, high=1), I("trial_mean_deg", shape=("V",), **NF, **deg),
+            I("rayleigh_p", shape=("V",), **NF, low=0, high=1), I("v_p", shape=("V",), **NF, low=0, high=1),
+            I("name", "str", **A), I("record", "json", **A), I("method", "str", **A, required=False),
+            I("relative_anisotropy", **A, **NF, low=0), I("mean_yield", **A, **NF, required=False),
+            I("fit_error", **A, **NF, required=False), I("eta", **A, **NF, low=0, required=False),
+            I("weak_valid", "int", **A, low=0, high=1, required=False), I("b_rms_nT", **A, **NF, low=0, required=False),
+        ),
+        "rf_sweep": (
+            I("freqs_MHz", shape=("Z",), low=0, unit="MHz"), I("lifetimes_us", shape=("L",), low=0, unit="us"),
+            I("light_photons", shape=("V",), low=0), I("eta", shape=("L",), **NF, low=0),
+            I("control_bound_deg", shape=("L", "V"), **NF, low=0, **deg), I("control_r", shape=("L",), **NF),
+            I("perp_bound_deg", shape=("L", "Z", "V"), **NF, low=0, **deg),
+            I("par_bound_deg", shape=("L", "Z", "V"), **NF, low=0, **deg),
+            I("perp_r", shape=("L", "Z"), **NF), I("par_r", shape=("L", "Z"), **NF),
+            I("onset_MHz", shape=("L",), **NF, unit="MHz", doc="NaN: no onset in the sweep"),
+            I("effect_onset_MHz", shape=("L",), **NF, unit="MHz"),
+            I("amplitude_nT", **A, low=0, unit="nT"), I("sweep_light", "str", **A),
+            I("light_names", "json", **A), I("method", "json", **A), I("onset_factor", **A, low=1),
+            I("degree", "int", **A, low=2, high=64),
+        ),
         "trials/levels/*": (
             I("start_deg", shape=("T",), **deg), I("decoded_deg", shape=("T",), **NF, **deg),
             I("error_deg", shape=("T",), **NF, **deg), I("chosen_deg", shape=("T",), **NF, **deg),
@@ -125,11 +150,14 @@ def _schema():
 
     items = _items()
     optional = {"patterns", "scan", "precision", "disorder", "order", "order/classes/*", "order/curves/*",
-                "trials", "trials/levels/*"}
+                "trials", "trials/levels/*", "rf", "rf/conditions/*", "rf_sweep"}
     docs = {"provenance": "the run's provenance", "trials/levels/*": "one group per light level",
             "order/classes/*": "one group per restraint class (aligned, restrained_two, restrained_one, "
                                "isotropic)",
-            "order/curves/*": "one group per concentration curve (S = ordering.study_kappas)"}
+            "order/curves/*": "one group per concentration curve (S = ordering.study_kappas)",
+            "rf/conditions/*": "one group per RF condition, c0 = the control (R = the RF degree's coefficients, "
+                               "W = patterns' headings)",
+            "rf_sweep": "Z swept frequencies, L lifetimes"}
     groups = tuple(Group(name, its, required=name not in optional, doc=docs.get(name, ""))
                    for name, its in items.items())
     return FileSchema(RESULTS_FORMAT, RESULTS_VERSION, groups,

@@ -90,6 +90,24 @@ Schema (section, key, type, default; units in the key name)
     ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take (degrees clockwise
     from geographic north, like every heading here; magnetic north lies ``declination_deg`` east),
     ``scan_steps`` (int >= 1, 9): head-scan poses integrated per trial.
+``[rf]`` (optional; radio-frequency conditions, :mod:`retina.stages.rf`)
+    ``degree`` (even int 2..40, 4): degree of the RF yield functions (the control uses the static
+    yield function truncated to it), ``check_points`` (int 1..200, 6): independent check
+    directions of each RF fit, ``tol`` (float > 0, 1e-8): convergence tolerance of the exact RF
+    method (yield units), ``cache`` (bool, true): keep RF yield functions in the content-hash
+    cache (:mod:`retina.cache`);
+    ``[[rf.conditions]]`` (array of tables, none): each has ``name`` (str, required), ``kind``
+    ("off" | "tone" | "band", required); a tone has ``frequency_MHz`` (> 0) and ``amplitude_nT``
+    (>= 0); a band has ``band_MHz`` ([f1, f2], 0 < f1 < f2) and exactly one of
+    ``asd_nT_per_rtHz`` (amplitude spectral density, one-sided) or ``rms_nT`` (rms over the band);
+    both take ``direction`` ("perpendicular" | "parallel" | "angle" | "coil", "perpendicular"),
+    relative to the static field (azimuth-averaged about it) except "coil", ``angle_deg`` (0..180,
+    90; for "angle") and ``coil`` (3 floats, [0, 1, 0]: a fixed direction in the world frame,
+    north-east-down, like a coil's axis; see :mod:`retina.stages.rf` for how it is treated);
+    ``sweep_MHz`` (list of floats > 0, none): frequencies of the sweep stage ``rf_sweep``,
+    ``sweep_nT`` (float > 0, 50.0): its amplitude, ``sweep_lifetimes_us`` (list of floats > 0,
+    none: the pair's own lifetime): pair lifetimes swept (equal rates ``k = 1 / lifetime``),
+    ``sweep_light`` (str, "": the last light level): the light level of the sweep's trials.
 ``[output]``
     ``dir`` (path, "retina-results"), ``formats`` (list from "png", "svg", "pdf", ["png", "svg"]),
     ``dpi`` (int 50..1200, 300), ``animation`` (bool, true).
@@ -138,6 +156,7 @@ class Key:
     length: int | None = None
     doc: str = ""
     allow_inf: bool = False
+    table: dict | None = None        # for kind "tables": the schema of each table
 
 
 def _rng(lo=None, hi=None, *, lo_open=False):
@@ -282,6 +301,28 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "n_trials": Key("int", 40, check=_rng(1, 10**6)),
         "goal_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
         "scan_steps": Key("int", 9, check=_rng(1, 721)),
+    },
+    "rf": {
+        "degree": Key("int", 4, check=_even_degree),
+        "check_points": Key("int", 6, check=_rng(1, 200)),
+        "tol": Key("float", 1e-8, check=_rng(0.0, 1.0, lo_open=True)),
+        "cache": Key("bool", True),
+        "conditions": Key("tables", [], table={
+            "name": Key("str"),
+            "kind": Key("choice", choices=("off", "tone", "band")),
+            "frequency_MHz": Key("float", None, check=_rng(0.0, 1e5, lo_open=True)),
+            "amplitude_nT": Key("float", None, check=_rng(0.0, 1e9)),
+            "direction": Key("choice", "perpendicular", choices=("perpendicular", "parallel", "angle", "coil")),
+            "angle_deg": Key("float", 90.0, check=_rng(0.0, 180.0)),
+            "coil": Key("floats", [0.0, 1.0, 0.0], length=3),
+            "band_MHz": Key("floats", None, length=2, check=_rng(0.0, 1e5, lo_open=True)),
+            "asd_nT_per_rtHz": Key("float", None, check=_rng(0.0, 1e9)),
+            "rms_nT": Key("float", None, check=_rng(0.0, 1e9)),
+        }),
+        "sweep_MHz": Key("floats", [], check=_rng(0.0, 1e5, lo_open=True)),
+        "sweep_nT": Key("float", 50.0, check=_rng(0.0, 1e9, lo_open=True)),
+        "sweep_lifetimes_us": Key("floats", [], check=_rng(0.0, 1e6, lo_open=True)),
+        "sweep_light": Key("str", ""),
     },
     "output": {
         "dir": Key("path", "retina-results"),
@@ -467,7 +508,8 @@ def _describe(spec: Key) -> str:
     names = {"str": "a string", "int": "an integer", "float": "a number", "bool": "true or false",
              "path": "a file path (string)", "date": "a date (1990-05-17 or \"1990-05-17\")",
              "floats": "a list of numbers", "strs": "a list of strings",
-             "choice": "one of " + ", ".join(f'"{c}"' for c in spec.choices)}
+             "choice": "one of " + ", ".join(f'"{c}"' for c in spec.choices),
+             "tables": "an array of tables ([[...]])"}
     s = names[spec.kind]
     if spec.length:
         s += f" of length {spec.length}"
@@ -540,6 +582,10 @@ def _convert(v, spec: Key, src, key: str, base: Path):
                 if x not in spec.choices:
                     raise InputError(f"expected entries among {', '.join(spec.choices)}, got {x!r}"
                                      f"{_suggest(x, spec.choices)}", source=src, key=key)
+    elif kind == "tables":
+        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
+            bad()
+        val = [_section(x, spec.table, src, f"{key}[{i}]", base) for i, x in enumerate(v)]
     else:  # pragma: no cover - schema error
         raise AssertionError(kind)
     if isinstance(val, list) and len(val) > MAX_LIST:
@@ -607,6 +653,32 @@ def _cross_checks(d: dict, src) -> None:
                          f"got {len(light['names'])}", source=src, key="light.names")
     if len(set(light["names"])) != len(light["names"]):
         raise InputError(f"light level names must differ, got {light['names']}", source=src, key="light.names")
+    _rf_checks(d, src)
+
+
+def _rf_checks(d: dict, src) -> None:
+    rf = d["rf"]
+    names = [c["name"] for c in rf["conditions"]]
+    if len(set(names)) != len(names):
+        raise InputError(f"RF condition names must differ, got {names}", source=src, key="rf.conditions")
+    for i, c in enumerate(rf["conditions"]):
+        key = f"rf.conditions[{i}]"
+        if c["kind"] == "tone":
+            for k in ("frequency_MHz", "amplitude_nT"):
+                if c[k] is None:
+                    raise InputError(f"a tone needs {k}", source=src, key=f"{key}.{k}")
+        if c["kind"] == "band":
+            if c["band_MHz"] is None or not c["band_MHz"][0] < c["band_MHz"][1]:
+                raise InputError(f"a band needs band_MHz = [f1, f2] with 0 < f1 < f2, got {c['band_MHz']}",
+                                 source=src, key=f"{key}.band_MHz")
+            if (c["asd_nT_per_rtHz"] is None) == (c["rms_nT"] is None):
+                raise InputError("a band needs exactly one of asd_nT_per_rtHz (nT/sqrt(Hz)) or rms_nT (nT)",
+                                 source=src, key=f"{key}.asd_nT_per_rtHz")
+        if c["direction"] == "coil" and not any(c["coil"]):
+            raise InputError("expected a non-zero coil direction", source=src, key=f"{key}.coil")
+    if rf["sweep_light"] and rf["sweep_light"] not in d["light"]["names"]:
+        raise InputError(f"expected one of the light level names {d['light']['names']}, got {rf['sweep_light']!r}",
+                         source=src, key="rf.sweep_light")
 
 
 # ----------------------------------------------------------------------------------------------
@@ -633,7 +705,7 @@ def dump_scenario(scenario: Scenario) -> str:
 
     plain = _to_plain(scenario.data)
     order = ["scenario", "yield", "ordering", "eyes", "light", "field", "pose", "scan", "readout",
-             "trials", "output"]
+             "trials", "rf", "output"]
     return tomli_w.dumps({k: plain[k] for k in order if k in plain})
 
 

@@ -481,7 +481,7 @@ def synthetic_results(path: Path) -> Path:
     """A small valid results file generated from RESULTS_SCHEMA itself (every item, in range)."""
     from retina.results import RESULTS_SCHEMA, Results, save_results
 
-    sizes = {"N": 6, "H": 2, "F": 3, "M": 2, "G": 360, "K": 2, "P": 3, "Q": 2, "T": 4, "V": 2, "C": 15, "S": 3}
+    sizes = {"N": 6, "H": 2, "F": 3, "M": 2, "G": 360, "K": 2, "P": 3, "Q": 2, "T": 4, "V": 2, "C": 15, "S": 3, "R": 6, "W": 2, "Z": 3, "L": 2}
     groups: dict = {}
     prov: dict = {}
     for grp in RESULTS_SCHEMA.groups:
@@ -495,7 +495,8 @@ def synthetic_results(path: Path) -> Path:
                 if it.kind == "str":
                     val = "text"
                 elif it.kind == "json":
-                    val = {"a": 1}
+                    # provenance dicts are encoded by the writer; stage groups store JSON text themselves
+                    val = {"a": 1} if grp.path == "provenance" else '{"a": 1}'
                 elif it.kind == "bool":
                     val = True
                 elif it.kind == "int":
@@ -511,10 +512,15 @@ def synthetic_results(path: Path) -> Path:
             if grp.path == "provenance":
                 target["scenario_toml"] = tomli_w.dumps(_SCENARIO)
                 prov = target
-            elif name is None:
-                groups[grp.path] = target
             else:
-                groups.setdefault("trials", {}).setdefault("levels", {})[name] = target
+                *parents, last = grp.path.split("/")
+                node = groups
+                for part in parents:
+                    node = node.setdefault(part, {})
+                if name is None:
+                    node.setdefault(last, {}).update(target)
+                else:
+                    node[name] = target
     save_results(Results(groups, prov), path)
     return path
 

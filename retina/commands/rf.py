@@ -26,7 +26,8 @@ examples:
 
 The RF field is B1 cos(2 pi f t + theta) along the chosen direction, averaged over the phase theta at
 which the pair is born; "perpendicular" also averages over the azimuth of the RF field about the
-static field.  The method (Floquet, exact) is described in retina/spin/rf.py.
+static field.  The methods (exact: separable RF when the pair allows it, else whole-pair Floquet)
+are described in retina/spin/rf_separable.py and retina/spin/rf.py.
 
 Modelling only; RF transmitters are regulated: follow local rules on licensing and exposure.
 """
@@ -35,7 +36,7 @@ Modelling only; RF transmitters are regulated: follow local rules on licensing a
 def register(subparsers) -> None:
     p = subparsers.add_parser(
         "rf",
-        help="the yield function under a radio-frequency field (exact Floquet method) into an HDF5 file",
+        help="the yield function under a radio-frequency field (exact RF methods) into an HDF5 file",
         description="Compute a radical pair's phase-averaged yield function under a static field plus a "
                     "linearly polarised radio-frequency field, compare it with the static yield function, "
                     "and write the RF one with its provenance to HDF5.",
