@@ -8,7 +8,7 @@ Rules (owned here)
 - The remaining dimensions (further axes and the output's own ``readout_photons``,
   ``light_level``, ``disorder_kappa``): the first with at most :data:`MAX_FACETS` values is
   *faceted* (one panel per value for heat maps, one line per value for line plots, in the
-  Okabe-Ito colour-blind-safe palette); every other is *fixed* at one value, its last one
+  Okabe-Ito colour-blind-safe palette), unless ``fixed`` names it; every other is *fixed* at one value, its last one
   (the brightest light, the strongest order) unless ``fixed`` says otherwise.  The caption names
   every fixed value and the figure's metadata carries it.
 - Logarithmic axes (and colour scales) for positive values spanning more than a factor 20.
@@ -78,8 +78,8 @@ def plot_output(ds, name: str, *, x: str | None = None, y: str | None = None, fi
         if d is not None and d not in da.dims:
             raise InputError(f"{name} has no dimension {d!r} (has {', '.join(da.dims)})", key="x/y")
     rest = [d for d in da.dims if d not in (x, y)]
-    facet = next((d for d in rest if da.sizes[d] <= MAX_FACETS), None)
     fixed = dict(fixed or {})
+    facet = next((d for d in rest if da.sizes[d] <= MAX_FACETS and d not in fixed), None)
     sel = {}
     for d in rest:
         if d == facet:

@@ -197,9 +197,11 @@ class Point:
         return ", ".join(f"{k} = {_fmt(v)}" for k, v in self.params.items())
 
     def digest(self) -> str:
-        """sha256 (16 hex digits) of the point's scenario text and its index: names its result file."""
-        h = hashlib.sha256(f"{self.index}\n{self.scenario.text}".encode()).hexdigest()
-        return h[:16]
+        """sha256 (16 hex digits) of the index, the axis values and the seed: names the point's result
+        file (independent of where the folder lies; the sweep as a whole is checked by
+        :meth:`SweepSpec.fingerprint`)."""
+        rec = json.dumps([self.index, _jsonable(self.params), self.scenario.seed], sort_keys=True)
+        return hashlib.sha256(rec.encode()).hexdigest()[:16]
 
 
 def _fmt(v) -> str:
