@@ -37,7 +37,7 @@ from retina.errors import InputError
 from retina.eye.pose import head_field, head_field_dyaw
 from retina.signal.light import HorizonSky, SceneTexture, UniformSky, light_level
 
-__all__ = ["make_rng", "expected_counts", "sample_counts", "SignalModel", "field_direction",
+__all__ = ["make_rng", "expected_counts", "sample_counts", "sample_counts_split", "SPLIT_MEAN", "SignalModel", "field_direction",
            "field_direction_dincl", "trig_interp_matrix"]
 
 # Bytes of scratch memory per chunk of poses for (P, N, 3) gradient arrays.
@@ -77,6 +77,73 @@ def sample_counts(lam, rng=None, size: int | None = None) -> np.ndarray:
     rng = make_rng(rng)
     shape = lam.shape if size is None else (size,) + lam.shape
     return rng.poisson(lam, size=shape).astype(float)
+
+
+SPLIT_MEAN = 0.5
+"""Rows whose mean expected count per receptor is below this are sampled by splitting
+(:func:`sample_counts_split`): a handful of photons placed among many receptors."""
+
+
+def sample_counts_split(lam, rng=None) -> np.ndarray:
+    """Poisson counts with means ``lam``, drawn row by row as a Poisson total split among the row.
+
+    The same distribution as :func:`sample_counts` (independent Poisson counts), drawn in less
+    time when most expected counts are small, as in dim light or a head scan that shares a photon
+    budget over many poses.
+
+    Derived: independent ``n_i ~ Poisson(lam_i)`` have the joint law of ``T ~ Poisson(sum lam)``
+    followed by ``T`` independent placements, each in cell ``i`` with probability
+    ``lam_i / sum lam`` (the multinomial split of a Poisson total; equivalently, the points of
+    a Poisson process thinned by cell).  Rows whose mean expected count is below
+    :data:`SPLIT_MEAN` are drawn so: one Poisson total per row, then ``T`` uniforms placed by a
+    search in the row's cumulative sum (sorted first, so that the searches run through the row in order; ``N`` Poisson draws become
+    one Poisson draw, ``T`` uniforms and a pass over the row); the other
+    rows are drawn directly.  Placement precision: the cumulative sums are exact to rounding
+    (relative ``1e-16`` times the number of rows searched at once).
+
+    Parameters
+    ----------
+    lam : array_like, shape (..., N)
+        Expected counts (>= 0); the last axis is a row.
+    rng : numpy.random.Generator or int, optional
+
+    Returns
+    -------
+    ndarray, shape like ``lam``, float
+    """
+    lam = np.asarray(lam, dtype=float)
+    if np.any(lam < 0) or not np.all(np.isfinite(lam)):
+        raise InputError("expected finite non-negative expected counts", key="lam")
+    rng = make_rng(rng)
+    shape = lam.shape
+    if lam.ndim == 0 or lam.size == 0:
+        return rng.poisson(lam).astype(float)
+    rows = lam.reshape(-1, shape[-1])
+    R, N = rows.shape
+    totals = rows.sum(axis=1)
+    split = totals < SPLIT_MEAN * N
+    out = np.zeros((R, N))
+    dense = np.flatnonzero(~split)
+    if dense.size:
+        out[dense] = rng.poisson(rows[dense])
+    sp = np.flatnonzero(split & (totals > 0))
+    # blocks of rows, so that the offsets added below stay small against the uniforms' resolution
+    block = 512
+    for b in range(0, sp.size, block):
+        idx = sp[b:b + block]
+        r = rows[idx]
+        n_tot = rng.poisson(totals[idx])
+        cum = np.cumsum(r, axis=1)
+        cum /= cum[:, -1:]
+        cum[:, -1] = 1.0
+        row_of = np.repeat(np.arange(idx.size), n_tot)
+        # sorted keys: each search starts where the previous one ended (far fewer cache misses);
+        # the counts depend only on the set of placements, not on their order
+        keys = np.sort(rng.random(row_of.size) + row_of)
+        cum += np.arange(idx.size)[:, None]
+        pos = np.searchsorted(cum.ravel(), keys, side="right")
+        out[idx] = np.bincount(pos, minlength=idx.size * N).reshape(idx.size, N)
+    return out.reshape(shape)
 
 
 def field_direction(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:
