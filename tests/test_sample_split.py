@@ -81,3 +81,12 @@ def test_decoding_error_statistics_match_direct_poisson_draws():
         errs.append(np.abs((e + 180.0) % 360.0 - 180.0))
     assert stats.ks_2samp(errs[0], errs[1]).pvalue > 1e-3
     assert 0 < np.mean(errs[1]) < 90
+
+
+def test_counts_do_not_depend_on_the_thread_count():
+    # common practice, no source: fixed blocks with spawned generators make parallel draws reproducible
+    lam = np.random.default_rng(0).uniform(0.0, 3.0, (700, 3000))
+    lam[::3] *= 0.05                     # a mix of split and direct rows
+    a = sample_counts_split(lam, np.random.default_rng(9), threads=1)
+    b = sample_counts_split(lam, np.random.default_rng(9), threads=2)
+    np.testing.assert_array_equal(a, b)

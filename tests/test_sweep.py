@@ -213,13 +213,12 @@ def test_order_deepens_the_modulation(done):
 
 @pytest.mark.slow
 def test_identical_numbers_for_one_worker_two_workers_and_dask(done, tmp_path):
-    from distributed import Client, LocalCluster
+    from distributed import LocalCluster
 
     f, out = done
     two = run_sweep(load_sweep(f), tmp_path / "two", jobs=2, write=False)
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cl, \
-            Client(cl) as client:
-        dk = run_sweep(load_sweep(f), tmp_path / "dask", scheduler=client, write=False)
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cl:
+        dk = run_sweep(load_sweep(f), tmp_path / "dask", scheduler=cl.scheduler_address, write=False)
     for other in (two, dk):
         assert other.computed == 4
         for v in out.dataset.data_vars:
