@@ -6,7 +6,8 @@ Run: ``python benchmarks/bench_demo.py [--check] [--quick]``
    120 decodes of one pose and of a 37-pose head scan per level).  Reference, same run: the old
    path, every count drawn as its own Poisson variate (``retina.signal.noise.sample_counts``),
    where the new path draws dim rows as a Poisson total split among the receptors
-   (``sample_counts_split``; same law, see its docstring).  Both on one BLAS thread.
+   (``sample_counts_split``; same law, see its docstring) in blocks on numba's thread count (both
+   cores here).  Both with one BLAS thread for the decoding products.
 2. ``retina demo`` end to end (yield function from the cache, figures, report), new path against
    the old path, same run (skipped with ``--quick``).  Target: the demo <= 20 s.
 
@@ -35,7 +36,7 @@ def old_sampler():
     from retina.signal import noise
 
     new = noise.sample_counts_split
-    noise.sample_counts_split = lambda lam, rng=None: noise.sample_counts(lam, rng)
+    noise.sample_counts_split = lambda lam, rng=None, threads=1: noise.sample_counts(lam, rng)
     try:
         yield
     finally:

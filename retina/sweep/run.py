@@ -531,7 +531,8 @@ def run_sweep(spec: SweepSpec, out_dir: str | Path, *, jobs: int | None = None, 
                     progress(reused + computed + len(failures), n)
                 left = n_todo - 1
                 estimate = (f"estimate: {left} more point(s) at about {rec['seconds']:.1f} s each (measured on the "
-                            f"first) on {ex.workers} worker(s): about {_duration(rec['seconds'] * left / ex.workers)}")
+                            f"first" + (", while the workers started: on the high side" if ex.workers > 1 else "")
+                            + f") on {ex.workers} worker(s): about {_duration(rec['seconds'] * left / ex.workers)}")
                 say(estimate)
                 for recs in results:
                     for rec in recs:
