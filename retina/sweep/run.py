@@ -253,11 +253,15 @@ class _Executor:
         self._client = None
         self._own_client = False
         if scheduler is not None:
-            from distributed import Client
+            try:
+                from distributed import Client
+            except ImportError:
+                raise InputError("--scheduler needs dask.distributed (pip install 'retina-compass[cluster]')",
+                                 source=str(scheduler), key="--scheduler") from None
 
             if isinstance(scheduler, str):
                 try:
-                    self._client = Client(scheduler, timeout="20s")
+                    self._client = Client(scheduler, timeout="10s")
                 except (OSError, TimeoutError) as exc:
                     raise InputError(f"cannot reach the Dask scheduler ({exc})", source=scheduler,
                                      key="--scheduler") from None
