@@ -2,7 +2,7 @@
 
 Run: ``python benchmarks/bench_sweep.py [--check] [--quick] [--points N]``
 
-The sweep: the bundled demo scenario reduced (degree 8, 2 x 500 receptors, 4 photon levels,
+The sweep: the bundled demo scenario reduced (degree 8, 2 x 1000 receptors, 5 photon levels,
 60 decodes, 30 trials: a point takes a few seconds), over ``ordering.kappa`` x ``field.inclination_deg``
 (4 x 4 = 16 points by default), collecting the modulation depth, the bounds, the decoding errors
 and the trial statistics.  Its one yield function is computed into a temporary cache first, so
@@ -43,8 +43,8 @@ outputs = ["modulation_depth", "bound_single_deg", "bound_scan_deg", "decoder_er
 
 [set]
 "yield.degree" = 8
-"eyes.n_receptors" = 500
-"readout.photons" = [10.0, 100.0, 1000.0, 10000.0]
+"eyes.n_receptors" = 1000
+"readout.photons" = [10.0, 100.0, 1000.0, 10000.0, 100000.0]
 "readout.decode_repeats" = 60
 "trials.n_trials" = 30
 "output.animation" = false
