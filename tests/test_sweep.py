@@ -346,3 +346,20 @@ def test_command_runs_resumes_and_refuses_another_sweeps_folder(done, tmp_path, 
     other = write(tmp_path, SWEEP.replace("values = [2.0, 50.0]", "values = [3.0, 50.0]"))
     assert main(["sweep", str(other), "-o", str(tmp_path / "o"), "-q"]) == 2
     assert "--force" in capsys.readouterr().err
+
+
+def test_a_changed_pair_file_is_not_taken_for_finished_points(tmp_path):
+    pair = tmp_path / "pair.toml"
+    pair.write_text((ASSETS / "demo_pair.toml").read_text())
+    text = SWEEP.replace('''[[axes]]
+key = "system.kinetics.lifetime_us"
+values = [1.0, 4.0]
+''', "")
+    f = write(tmp_path, text, SCENARIO.replace((ASSETS / "demo_pair.toml").as_posix(), pair.as_posix()))
+    first = run_sweep(load_sweep(f), tmp_path / "out", jobs=1, write=False)
+    assert first.computed == 2
+    same = run_sweep(load_sweep(f), tmp_path / "out", jobs=1, write=False)
+    assert (same.computed, same.reused) == (0, 2)
+    pair.write_text(pair.read_text().replace("lifetime_us = 2.0", "lifetime_us = 3.0"))
+    changed = run_sweep(load_sweep(f), tmp_path / "out", jobs=1, write=False)
+    assert (changed.computed, changed.reused) == (2, 0)

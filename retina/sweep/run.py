@@ -26,7 +26,9 @@ same numbers bit for bit, whatever the order in which points finish.
 Resuming and failures
 ---------------------
 The output folder keeps ``points/`` (one ``.npz`` per finished point, written atomically by the
-client) and ``plan.json`` (the sweep's fingerprint).  Running the same sweep into the same folder
+client, named by a digest of the point's values, its seed and its yield function's key, so a
+changed pair file is not mistaken for a finished point) and ``plan.json`` (the sweep's
+fingerprint).  Running the same sweep into the same folder
 computes only the points without a file; a folder of a different sweep is refused unless
 ``force``.  A point that raises is recorded in ``points/*.failed.json`` with its parameters and
 message; the other points go on, the dataset holds NaN there and ``failed`` marks it.  Ctrl-C (or
@@ -315,15 +317,15 @@ class _Executor:
 # the point files
 
 
-def _point_file(work: Path, p: Point) -> Path:
-    return work / f"p{p.index:07d}-{p.digest()}.npz"
+def _point_file(work: Path, p: Point, key: str) -> Path:
+    return work / f"p{p.index:07d}-{p.digest(key)}.npz"
 
 
-def _failed_file(work: Path, p: Point) -> Path:
-    return work / f"p{p.index:07d}-{p.digest()}.failed.json"
+def _failed_file(work: Path, p: Point, key: str) -> Path:
+    return work / f"p{p.index:07d}-{p.digest(key)}.failed.json"
 
 
-def _save_point(work: Path, p: Point, rec: dict) -> None:
+def _save_point(work: Path, p: Point, key: str, rec: dict) -> None:
     import io
 
     from retina.io.atomic import atomic_write_bytes, atomic_write_text
@@ -331,16 +333,16 @@ def _save_point(work: Path, p: Point, rec: dict) -> None:
     if rec["ok"]:
         buf = io.BytesIO()
         np.savez(buf, __seconds=np.float64(rec["seconds"]), **rec["values"])
-        atomic_write_bytes(_point_file(work, p), buf.getvalue(), force=True)
-        _failed_file(work, p).unlink(missing_ok=True)
+        atomic_write_bytes(_point_file(work, p, key), buf.getvalue(), force=True)
+        _failed_file(work, p, key).unlink(missing_ok=True)
     else:
-        atomic_write_text(_failed_file(work, p), json.dumps(
+        atomic_write_text(_failed_file(work, p, key), json.dumps(
             {"index": p.index, "params": {k: (v if not isinstance(v, Path) else str(v)) for k, v in p.params.items()},
              "error": rec["error"]}, indent=1), force=True)
 
 
-def _load_point(work: Path, p: Point, outputs) -> dict | None:
-    f = _point_file(work, p)
+def _load_point(work: Path, p: Point, key: str, outputs) -> dict | None:
+    f = _point_file(work, p, key)
     if not f.is_file():
         return None
     try:
@@ -473,9 +475,10 @@ def run_sweep(spec: SweepSpec, out_dir: str | Path, *, jobs: int | None = None, 
     plan = plan_sweep(spec, out)
     pts = plan.points
     n = len(pts)
+    key_of = {i: k for k, idx in plan.groups.items() for i in idx}
     done: dict[int, dict] = {}
     for p in pts:
-        rec = _load_point(work, p, spec.outputs)
+        rec = _load_point(work, p, key_of[p.index], spec.outputs)
         if rec is not None:
             done[p.index] = rec
     reused = len(done)
@@ -530,7 +533,7 @@ def run_sweep(spec: SweepSpec, out_dir: str | Path, *, jobs: int | None = None, 
             results = ex.map_unordered(evaluate_batch, tasks)
             try:
                 (rec,) = evaluate_batch([pts[i0]], yfs[first_key], plan.stages, spec.outputs)
-                computed += _collect(work, pts, rec, done, failures)
+                computed += _collect(work, pts, key_of, rec, done, failures)
                 if progress:
                     progress(reused + computed + len(failures), n)
                 left = n_todo - 1
@@ -540,7 +543,7 @@ def run_sweep(spec: SweepSpec, out_dir: str | Path, *, jobs: int | None = None, 
                 say(estimate)
                 for recs in results:
                     for rec in recs:
-                        computed += _collect(work, pts, rec, done, failures)
+                        computed += _collect(work, pts, key_of, rec, done, failures)
                     if progress:
                         progress(reused + computed + len(failures), n)
             finally:
@@ -579,9 +582,9 @@ def _store_yield(store, key: str, job: dict, yf):
     return yf
 
 
-def _collect(work: Path, pts: list, rec: dict, done: dict, failures: list) -> int:
+def _collect(work: Path, pts: list, key_of: dict, rec: dict, done: dict, failures: list) -> int:
     p = pts[rec["index"]]
-    _save_point(work, p, rec)
+    _save_point(work, p, key_of[p.index], rec)
     if rec["ok"]:
         done[p.index] = rec
         return 1

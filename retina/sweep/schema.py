@@ -196,11 +196,12 @@ class Point:
         """``name = value, ...`` for messages."""
         return ", ".join(f"{k} = {_fmt(v)}" for k, v in self.params.items())
 
-    def digest(self) -> str:
-        """sha256 (16 hex digits) of the index, the axis values and the seed: names the point's result
-        file (independent of where the folder lies; the sweep as a whole is checked by
+    def digest(self, extra: str = "") -> str:
+        """sha256 (16 hex digits) of the index, the axis values, the seed and ``extra`` (the run passes
+        the yield function's key, which hashes the pair file's content): names the point's result
+        file, independent of where the folder lies (the sweep as a whole is checked by
         :meth:`SweepSpec.fingerprint`)."""
-        rec = json.dumps([self.index, _jsonable(self.params), self.scenario.seed], sort_keys=True)
+        rec = json.dumps([self.index, _jsonable(self.params), self.scenario.seed, extra], sort_keys=True)
         return hashlib.sha256(rec.encode()).hexdigest()[:16]
 
 
