@@ -363,3 +363,10 @@ values = [1.0, 4.0]
     pair.write_text(pair.read_text().replace("lifetime_us = 2.0", "lifetime_us = 3.0"))
     changed = run_sweep(load_sweep(f), tmp_path / "out", jobs=1, write=False)
     assert (changed.computed, changed.reused) == (2, 0)
+
+
+@pytest.mark.parametrize("name", ["sweep", "export"])
+def test_help_has_examples_and_exit_statuses(name, capsys):
+    assert main([name, "--help"]) == 0
+    out = capsys.readouterr().out
+    assert "examples:" in out and "exit status: 0 done" in out and "2 bad input" in out
