@@ -370,3 +370,23 @@ def test_help_has_examples_and_exit_statuses(name, capsys):
     assert main([name, "--help"]) == 0
     out = capsys.readouterr().out
     assert "examples:" in out and "exit status: 0 done" in out and "2 bad input" in out
+
+
+def test_a_failing_yield_function_fails_only_its_points(tmp_path, monkeypatch):
+    import retina.sweep.run as R
+
+    f = write(tmp_path)
+    orig = R.compute_yield
+
+    def broken(job):
+        if job["system"].k_singlet == pytest.approx(1e6 / 4.0):
+            raise MemoryError("invented shortage")
+        return orig(job)
+
+    monkeypatch.setattr(R, "compute_yield", broken)
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "cache"))      # nothing cached: both computed
+    out = run_sweep(load_sweep(f), tmp_path / "out", jobs=1)
+    assert [p.params["lifetime_us"] for p, _ in out.failures] == [4.0, 4.0]
+    assert out.failures[0][1].startswith("yield function: MemoryError: invented shortage")
+    assert out.dataset["failed"].values.tolist() == [[0, 0], [1, 1]]
+    assert np.isfinite(out.dataset["modulation_depth"].values[0]).all()

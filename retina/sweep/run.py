@@ -217,6 +217,14 @@ def compute_yield(job: dict):
         return import_table(job["path"], job["degree"])
 
 
+def _try_yield(job: dict):
+    """:func:`compute_yield`, returning the one-line error message instead of raising."""
+    try:
+        return compute_yield(job)
+    except Exception as exc:  # noqa: BLE001 - reported with the points that needed it
+        return " ".join(f"{type(exc).__name__}: {exc}".split())
+
+
 def evaluate_batch(points: list, yf, stages: tuple, outputs: tuple) -> list[dict]:
     """Run points that share the yield function ``yf`` (a task).
 
@@ -519,8 +527,17 @@ def run_sweep(spec: SweepSpec, out_dir: str | Path, *, jobs: int | None = None, 
             if y_est:
                 say(f"estimate: {len(missing)} yield function(s), about {_duration(y_est / ex.workers)} "
                     f"on {ex.workers} worker(s) (the engine's cost model)")
-            for key, yf in zip(missing, _ordered(ex, compute_yield, [(plan.jobs[k],) for k in missing])):
-                yfs[key] = _store_yield(store, key, plan.jobs[key], yf)
+            for key, got in zip(missing, _ordered(ex, _try_yield, [(plan.jobs[k],) for k in missing])):
+                if isinstance(got, str):
+                    # the yield function failed: its points fail with the message, the others go on
+                    for i in todo_groups.pop(key):
+                        computed += _collect(work, pts, key_of, {"index": i, "ok": False, "seconds": 0.0,
+                                                                 "error": f"yield function: {got}"}, done, failures)
+                    if progress:
+                        progress(reused + computed + len(failures), n)
+                else:
+                    yfs[key] = _store_yield(store, key, plan.jobs[key], got)
+            n_todo = sum(len(v) for v in todo_groups.values())
         if n_todo:
             # the first point runs here, timed, for the estimate (its result is kept like any other);
             # the workers start on the others meanwhile
