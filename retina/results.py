@@ -42,14 +42,24 @@ offsets, ``T`` trials.  A group is present when its stage ran::
                            bound_{single,scan}_compare_deg (M) deg
     /disorder              kappas (kappas: K) 1, depth (K) 1, info_per_photon (K) rad^-2,
                            light_photons (light_photons: V) "photons per receptor",
-                           bound_deg (V, K) deg; attr scenario_kappa (cone ordering only)
+                           bound_deg (V, K) deg; attrs model (the model swept), scenario_kappa
+                           (when the scenario's model has a kappa)
+    /order                 light_photons (light_photons: V) "photons per receptor",
+                           mean_orientation_deg (euler_zyz: 3) deg; attrs class_order,
+                           curve_order (comma-separated keys)
+    /order/classes/<key>   bound_deg (light_level: V) deg; attrs label, depth, info_per_photon
+                           (keys: aligned, restrained_two, restrained_one, isotropic)
+    /order/curves/<key>    kappas (kappas: S) 1, depth (S) 1, info_per_photon (S) rad^-2,
+                           bound_deg (light_level: V, S) deg; attr label (keys: cone_tied,
+                           cone_free, plane_free, twist_axis, twist_plane, cone_no_twist;
+                           S = ordering.study_kappas)
     /trials                scan_offsets_deg (scan_offsets_deg: P) deg; attr goal_deg
     /trials/levels/<name>  start_deg, decoded_deg, error_deg, chosen_deg (trial: T) deg,
                            ambiguous (T) int8 1; attrs photons, mean_deg, r, rayleigh_p, v_u, v_p,
                            r_axial, rayleigh_p_axial, preferred_analysis
 
 Version 1 files (no scales, no units) are read the same way.  ``retina export results.h5
---csv/--json`` writes the key numbers (:func:`retina.outputs.text.key_numbers`).
+--csv/--json`` writes the key numbers (:mod:`retina.outputs.export`).
 
 What each stage's numbers mean: the module docstrings of :mod:`retina.stages`.  The file is
 written atomically (:mod:`retina.io.atomic`).
@@ -98,6 +108,10 @@ DIMENSIONS: dict[str, dict[str, tuple[tuple[str, ...], str]]] = {
                   "decoded_single_rms_deg": (("photons",), "deg"), "decoded_scan_rms_deg": (("photons",), "deg")},
     "disorder": {"kappas": (("kappas",), "1"), "depth": (("kappas",), "1"), "info_per_photon": (("kappas",), "rad^-2"),
                  "light_photons": (("light_photons",), _PH), "bound_deg": (("light_photons", "kappas"), "deg")},
+    "order": {"light_photons": (("light_photons",), _PH), "mean_orientation_deg": (("euler_zyz",), "deg")},
+    "order/classes/*": {"bound_deg": (("light_level",), "deg")},
+    "order/curves/*": {"kappas": (("kappas",), "1"), "depth": (("kappas",), "1"),
+                       "info_per_photon": (("kappas",), "rad^-2"), "bound_deg": (("light_level", "kappas"), "deg")},
     "trials": {"scan_offsets_deg": (("scan_offsets_deg",), "deg")},
     "trials/levels/*": {"start_deg": (("trial",), "deg"), "decoded_deg": (("trial",), "deg"),
                         "error_deg": (("trial",), "deg"), "chosen_deg": (("trial",), "deg"),
@@ -110,11 +124,26 @@ _ATTR_UNITS = {"F_uT": "uT", "I_deg": "deg", "D_deg": "deg", "goal_deg": "deg", 
 
 
 def dims_and_units(group: str, name: str, ndim: int) -> tuple[tuple[str, ...], str]:
-    """``(dimension names, units)`` of dataset ``name`` in ``group`` (a path such as
-    ``"trials/levels/dim"``); unknown datasets get ``dim_0, ...`` and units "".
+    """The dimension names and units of one dataset of the results file.
+
+    Parameters
+    ----------
+    group : str
+        Group path, such as ``"precision"`` or ``"trials/levels/dim"``.
+    name : str
+        Dataset name.
+    ndim : int
+        Its number of dimensions.
+
+    Returns
+    -------
+    dims : tuple of str
+        From :data:`DIMENSIONS`; ``<name>_dim_0, ...`` for an unknown dataset.
+    units : str
+        "" for an unknown dataset.
     """
     parts = group.split("/")
-    key = "trials/levels/*" if len(parts) == 3 and parts[:2] == ["trials", "levels"] else group
+    key = "/".join(parts[:2]) + "/*" if len(parts) == 3 else group
     dims, units = DIMENSIONS.get(key, {}).get(name, (None, ""))
     if dims is None or len(dims) != ndim:
         dims = tuple(f"{name}_dim_{i}" for i in range(ndim))
@@ -194,7 +223,10 @@ def _jsonable(d):
 def _ordering_text(sc) -> str:
     o = sc["ordering"]
     s = f"{o['model']}"
-    if o["model"] == "cone":
+    if o["model"] in ("cone", "plane"):
+        tw = o["twist"] if o["twist"] != "restrained" else f"restrained, twist kappa = {o['twist_kappa']:g}"
+        s += f" (kappa = {o['kappa']:g}, twist {tw})"
+    elif o["model"] == "cone_no_twist":
         s += f" (kappa = {o['kappa']:g})"
     s += f", {o['mode']}"
     if o["mode"] == "molecules":
@@ -315,6 +347,15 @@ def save_results(results: Results, path: str | Path, *, force: bool = False) -> 
 
 def load_results(path: str | Path) -> Results:
     """Read a results file written by :func:`save_results`.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Results
+        ``scenario`` is None (the scenario text is in ``provenance["scenario_toml"]``).
 
     Raises
     ------

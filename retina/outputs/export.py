@@ -28,7 +28,11 @@ def _row(group, name, value, units, coord="", cv="", coord2="", cv2=""):
 
 
 def key_number_rows(res) -> list[dict]:
-    """The key numbers of a :class:`retina.results.Results` (module docstring).
+    """The key numbers of a run (module docstring).
+
+    Parameters
+    ----------
+    res : retina.results.Results
 
     Returns
     -------
@@ -72,7 +76,18 @@ def key_number_rows(res) -> list[dict]:
 
 
 def rows_to_csv(rows: list[dict]) -> str:
-    """CSV text with a header line (:data:`COLUMNS`); numbers written with full precision (repr)."""
+    """CSV text of key-number rows.
+
+    Parameters
+    ----------
+    rows : list of dict
+        From :func:`key_number_rows`.
+
+    Returns
+    -------
+    str
+        A header line (:data:`COLUMNS`), then one line per row; numbers at full precision (repr).
+    """
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=COLUMNS, lineterminator="\n")
     w.writeheader()
@@ -82,8 +97,21 @@ def rows_to_csv(rows: list[dict]) -> str:
 
 
 def rows_to_json(rows: list[dict], provenance: dict | None = None) -> str:
-    """JSON text ``{"format": "retina-compass key numbers", "provenance": {...}, "rows": [...]}``
-    (non-finite values as null)."""
+    """JSON text of key-number rows.
+
+    Parameters
+    ----------
+    rows : list of dict
+        From :func:`key_number_rows`.
+    provenance : dict, optional
+        The run's provenance; its name, seed, date, field, ordering and stages are kept.
+
+    Returns
+    -------
+    str
+        ``{"format": "retina-compass key numbers", "provenance": {...}, "rows": [...]}``;
+        non-finite values as null.
+    """
     def clean(v):
         return None if isinstance(v, float) and not np.isfinite(v) else v
 

@@ -19,6 +19,7 @@ estimated memory exceeds ``max_bytes`` (default: 60 % of ``MemAvailable`` in ``/
 from __future__ import annotations
 
 import functools
+import logging
 import time
 from dataclasses import dataclass
 
@@ -32,6 +33,7 @@ __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields"
 
 METHODS = ("separable", "hilbert", "liouville")
 _GIB = 2**30
+_log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -234,6 +236,8 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     n = dirs.shape[0] if dirs.ndim == 2 else 1
     limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
+    _log.debug("%r: method %s, %d directions, estimated %.3g s and %s (limit %s)", system.name, method, n,
+               cost.seconds, _fmt_gib(cost.bytes), _fmt_gib(limit))
     if cost.bytes > limit:
         hint = _resource_hint(system, method)
         raise ResourceError(

@@ -146,6 +146,14 @@ def plot_output(ds, name: str, *, x: str | None = None, y: str | None = None, fi
 def sweep_figures(ds, folder: str | Path, *, formats=("png", "svg"), dpi: int = 200) -> list[Path]:
     """One figure per output of ``ds`` into ``folder`` (created), named after the output.
 
+    Parameters
+    ----------
+    ds : xarray.Dataset
+    folder : str or Path
+    formats : sequence of {"png", "svg", "pdf"}
+    dpi : int
+        PNG resolution.
+
     Returns
     -------
     list of Path

@@ -119,7 +119,18 @@ OUTPUT_DIMS = tuple(_DIM_UNITS)
 
 
 def stages_for(names) -> tuple[str, ...]:
-    """The stages needed for the outputs ``names``, in the registry's order."""
+    """The stages needed for some outputs.
+
+    Parameters
+    ----------
+    names : iterable of str
+        Output names.
+
+    Returns
+    -------
+    tuple of str
+        In the registry's order.
+    """
     from retina.stages import STAGES
 
     need = {OUTPUTS[n].stage for n in names}
@@ -127,18 +138,50 @@ def stages_for(names) -> tuple[str, ...]:
 
 
 def output_coords(sc) -> dict:
-    """The coordinates of the outputs' own dimensions for scenario ``sc``: ``{"readout_photons": (M,)
-    floats, "light_level": (V,) names, "disorder_kappa": (K,) floats}``."""
+    """The coordinates of the outputs' own dimensions.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    dict
+        ``{"readout_photons": (M,) floats, "light_level": (V,) names, "disorder_kappa": (K,) floats}``.
+    """
     return {"readout_photons": np.asarray(sc["readout"]["photons"], float),
             "light_level": np.asarray(sc["light"]["names"], dtype=str),
             "disorder_kappa": np.asarray(sc["ordering"]["disorder_kappas"], float)}
 
 
 def dim_units(dim: str) -> str:
-    """The ``units`` attribute of an output dimension."""
+    """The ``units`` attribute of an output dimension.
+
+    Parameters
+    ----------
+    dim : str
+        One of :data:`OUTPUT_DIMS`.
+
+    Returns
+    -------
+    str
+    """
     return _DIM_UNITS.get(dim, "")
 
 
 def extract(groups: dict, names) -> dict:
-    """``{name: float ndarray}`` of the outputs ``names`` from a run's ``Results.groups``."""
+    """Read outputs from a run.
+
+    Parameters
+    ----------
+    groups : dict
+        ``Results.groups`` of the run.
+    names : iterable of str
+        Output names.
+
+    Returns
+    -------
+    dict
+        ``{name: float ndarray}`` shaped by each output's own dimensions.
+    """
     return {n: np.asarray(OUTPUTS[n].read(groups), dtype=float) for n in names}

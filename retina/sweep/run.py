@@ -107,6 +107,10 @@ def single_threaded():
 def yield_key(sc) -> tuple[str, dict]:
     """The key of a scenario's yield function and what is needed to compute it.
 
+    Parameters
+    ----------
+    sc : Scenario
+
     Returns
     -------
     key : str
@@ -167,6 +171,16 @@ class Plan:
 def plan_sweep(spec: SweepSpec, work_dir: str | Path | None = None) -> Plan:
     """Expand ``spec`` and group its points by yield function (module docstring).
 
+    Parameters
+    ----------
+    spec : SweepSpec
+    work_dir : str or Path, optional
+        The output folder (changed spin systems are written to its ``systems/``).
+
+    Returns
+    -------
+    Plan
+
     Raises
     ------
     InputError
@@ -203,7 +217,17 @@ def plan_sweep(spec: SweepSpec, work_dir: str | Path | None = None) -> Plan:
 
 
 def compute_yield(job: dict):
-    """Compute or load one yield function (a task): returns a :class:`retina.yieldfn.YieldFunction`."""
+    """Compute or load one yield function (a task), with one BLAS and one numba thread.
+
+    Parameters
+    ----------
+    job : dict
+        From :func:`yield_key`.
+
+    Returns
+    -------
+    retina.yieldfn.YieldFunction
+    """
     from retina.yieldfn import YieldFunction
 
     with single_threaded():
@@ -227,6 +251,16 @@ def _try_yield(job: dict):
 
 def evaluate_batch(points: list, yf, stages: tuple, outputs: tuple) -> list[dict]:
     """Run points that share the yield function ``yf`` (a task).
+
+    Parameters
+    ----------
+    points : list of Point
+    yf : YieldFunction
+        Their yield function.
+    stages : tuple of str
+        The stages to run.
+    outputs : tuple of str
+        The outputs to collect.
 
     Returns
     -------

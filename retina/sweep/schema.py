@@ -71,7 +71,17 @@ _SUFFIX_UNITS = (("_uT", "uT"), ("_deg", "deg"), ("_us", "us"), ("_mT", "mT"), (
 
 
 def units_for_key(key: str) -> str:
-    """The ``units`` attribute of a swept key, from its suffix (module docstring)."""
+    """The ``units`` attribute of a swept key, from its suffix (module docstring).
+
+    Parameters
+    ----------
+    key : str
+        Dotted key.
+
+    Returns
+    -------
+    str
+    """
     last = re.sub(r"\[\d+\]$", "", key.split(".")[-1])
     for suf, u in _SUFFIX_UNITS:
         if last.endswith(suf):
@@ -299,8 +309,21 @@ def sweep_from_dict(doc: dict, *, source: str | Path | None = None, text: str | 
                     base_dir: str | Path | None = None) -> SweepSpec:
     """Validate a parsed sweep document (as from ``tomllib``).
 
-    Relative paths resolve from ``base_dir`` (default: the folder of ``source``, else the current
-    folder).
+    Parameters
+    ----------
+    doc : dict
+        The parsed document.
+    source : str or Path, optional
+        The file it came from (error messages, provenance).
+    text : str, optional
+        The file's text (default: a JSON dump of ``doc``).
+    base_dir : str or Path, optional
+        Where relative paths resolve from (default: the folder of ``source``, else the current
+        folder).
+
+    Returns
+    -------
+    SweepSpec
     """
     from retina.scenario import load_scenario
     from retina.sweep.outputs import OUTPUTS
@@ -489,8 +512,13 @@ def apply_key(scen_doc: dict, sys_doc: dict | None, key: str, value, *, src=None
         Spin-system document (None when the scenario has no ``yield.system``).
     key : str
     value : object
-    src, where
-        For error messages.
+    src : Path, optional
+        The sweep file, for error messages.
+    where : str
+        The dotted location in the sweep file, for error messages.
+    scenario_keys : set of str, optional
+        Every key the sweep sets (a scalar ``light.photons`` renames ``light.names`` unless it is
+        among them).
     """
     from retina.scenario import SCHEMA
 
