@@ -207,14 +207,20 @@ def field_uT(sc: Scenario) -> float:
     return float(build_field(sc).F_uT)
 
 
-def build_yield_function(sc: Scenario, *, progress=None):
+def build_yield_function(sc: Scenario, *, progress=None, cache: bool = True):
     """Compute, load or import the scenario's yield function (:class:`retina.yieldfn.YieldFunction`).
+
+    A computed yield function goes through the content-hash cache (:mod:`retina.cache`): a run
+    that changes only the retina, the light or the read-out reuses it instead of recomputing it.
 
     Parameters
     ----------
     sc : Scenario
     progress : callable(done, total), optional
         Called while the spin engine works.
+    cache : bool
+        Look the yield function up in, and store it into, the cache (``$RETINA_CACHE`` or
+        ``~/.cache/retina-compass``).
 
     Returns
     -------
@@ -232,7 +238,7 @@ def build_yield_function(sc: Scenario, *, progress=None):
 
         system = load_system(path)
         return YieldFunction.from_system(system, field_uT(sc), degree=degree, method=sc["yield"]["method"],
-                                         progress=progress)
+                                         progress=progress, cache=cache)
     if kind == "file":
         return YieldFunction.load(path)
     from retina.io.importers import import_table

@@ -1,16 +1,28 @@
 """The results of a run: the :class:`Results` container and its HDF5 file.
 
-Schema of ``results.h5`` (format "retina-compass results", version 1)
----------------------------------------------------------------------
+Schema of ``results.h5`` (format "retina-compass results", version 2)
+--------------------------------------------------------------------
+This docstring is the one place that documents the results file; README.md points here.
+
 One group per stage, written by :func:`save_results`.  Inside a group, every array is a dataset,
-every number, flag or string is an attribute, and a nested dict is a sub-group.  Units are in the
-names (``_deg`` degrees, ``_uT`` microtesla); ``N`` receptors, ``H`` headings, ``F`` scan poses,
-``M`` photon levels, ``V`` light levels (``[light]``), ``G`` decoder-grid headings (360),
-``K`` disorder concentrations, ``P`` precision scan offsets, ``Q`` trial scan offsets, ``T`` trials,
-``C`` coefficients (from the degree).  A stage's group is present when the stage ran.  The table
-below is rendered from :data:`RESULTS_SCHEMA`, which :func:`save_results` checks its own file
-against before publishing it and :func:`load_results` checks every file against
-(:mod:`retina.io.schema`); items not listed are allowed and ignored.
+every number, flag or string is an attribute, and a nested dict is a sub-group.  Every dataset
+carries a ``units`` attribute ("1" for dimensionless numbers and indices) and HDF5 dimension
+scales (h5py ``dims``) naming its axes, so ``xarray.open_dataset(path, group="precision",
+engine="h5netcdf")`` shows named dimensions with their coordinates, and
+:meth:`Results.to_xarray` gives the same from memory.  Coordinate datasets are their own scales
+(``headings_deg``, ``yaw_deg``, ``photons``, ``info_headings_deg``, ``scan_offsets_deg``,
+``kappas``, ``light_photons``); axes without a natural coordinate get an index scale in the group
+(``receptor``, ``xyz``, ``coeff``, ``trial``, values ``0 .. n - 1``).  Dimension letters:
+``N`` receptors, ``H`` headings, ``F`` scan poses, ``M`` photon levels, ``V`` light levels
+(``[light]``), ``G`` decoder-grid headings (360), ``K`` disorder concentrations, ``P`` precision
+scan offsets, ``Q`` trial scan offsets, ``T`` trials, ``C`` coefficients (from the degree), ``S``
+order-study concentrations, ``R``, ``W``, ``Z``, ``L`` the RF degree's coefficients, the RF
+conditions' headings, the RF sweep's frequencies and lifetimes.  A stage's group is present when
+the stage ran.  The table below is rendered from :data:`RESULTS_SCHEMA`, which
+:func:`save_results` checks its own file against before publishing it and :func:`load_results`
+checks every file against (:mod:`retina.io.schema`); items not listed (such as the dimension
+scales) are allowed and ignored.  Version 1 files (no scales, no units) are read the same way.
+``retina export results.h5 --csv/--json`` writes the key numbers (:mod:`retina.outputs.export`).
 
 {schema}
 What each stage's numbers mean: the module docstrings of :mod:`retina.stages`.  The file is
@@ -30,10 +42,76 @@ import numpy as np
 from retina.errors import InputError
 
 __all__ = ["Results", "save_results", "load_results", "make_provenance", "RESULTS_FORMAT", "RESULTS_VERSION",
-           "RESULTS_SCHEMA"]
+           "RESULTS_SCHEMA", "DIMENSIONS", "dims_and_units"]
 
 RESULTS_FORMAT = "retina-compass results"
-RESULTS_VERSION = 1
+RESULTS_VERSION = 2
+
+
+# group -> dataset -> (dimension names, units); a dimension named like a dataset of the same group
+# is that coordinate; the others are index scales (module docstring).
+_PH = "photons per receptor"
+DIMENSIONS: dict[str, dict[str, tuple[tuple[str, ...], str]]] = {
+    "yield_function": {"coeffs": (("coeff",), "1"), "argmax": (("xyz",), "1"), "argmin": (("xyz",), "1")},
+    "receptors": {"visual_dirs": (("receptor", "xyz"), "1"), "axes": (("receptor", "xyz"), "1"),
+                  "solid_angle": (("receptor",), "sr"), "eye_index": (("receptor",), "1")},
+    "patterns": {"headings_deg": (("headings_deg",), "deg"), "b_head": (("headings_deg", "xyz"), "1"),
+                 "yields": (("headings_deg", "receptor"), "1"), "modulation": (("headings_deg", "receptor"), "1"),
+                 "depth": (("headings_deg",), "1")},
+    "scan": {"yaw_deg": (("yaw_deg",), "deg"), "b_head": (("yaw_deg", "xyz"), "1"),
+             "yields": (("yaw_deg", "receptor"), "1"), "modulation": (("yaw_deg", "receptor"), "1"),
+             "depth": (("yaw_deg",), "1"), "change_per_degree": (("yaw_deg",), "deg^-1")},
+    "precision": {"photons": (("photons",), _PH), "info_headings_deg": (("info_headings_deg",), "deg"),
+                  "info_per_photon_single": (("info_headings_deg",), "rad^-2"),
+                  "info_per_photon_scan": (("info_headings_deg",), "rad^-2"),
+                  "info_per_photon_single_compare": (("info_headings_deg",), "rad^-2"),
+                  "info_per_photon_scan_compare": (("info_headings_deg",), "rad^-2"),
+                  "bound_single_deg": (("photons",), "deg"), "bound_scan_deg": (("photons",), "deg"),
+                  "bound_single_compare_deg": (("photons",), "deg"), "bound_scan_compare_deg": (("photons",), "deg"),
+                  "scan_offsets_deg": (("scan_offsets_deg",), "deg"),
+                  "decoded_single_rms_deg": (("photons",), "deg"), "decoded_scan_rms_deg": (("photons",), "deg")},
+    "disorder": {"kappas": (("kappas",), "1"), "depth": (("kappas",), "1"), "info_per_photon": (("kappas",), "rad^-2"),
+                 "light_photons": (("light_photons",), _PH), "bound_deg": (("light_photons", "kappas"), "deg")},
+    "order": {"light_photons": (("light_photons",), _PH), "mean_orientation_deg": (("euler_zyz",), "deg")},
+    "order/classes/*": {"bound_deg": (("light_level",), "deg")},
+    "order/curves/*": {"kappas": (("kappas",), "1"), "depth": (("kappas",), "1"),
+                       "info_per_photon": (("kappas",), "rad^-2"), "bound_deg": (("light_level", "kappas"), "deg")},
+    "trials": {"scan_offsets_deg": (("scan_offsets_deg",), "deg")},
+    "trials/levels/*": {"start_deg": (("trial",), "deg"), "decoded_deg": (("trial",), "deg"),
+                        "error_deg": (("trial",), "deg"), "chosen_deg": (("trial",), "deg"),
+                        "ambiguous": (("trial",), "1")},
+}
+"""The dimensions and units of every dataset of the results file (module docstring)."""
+
+_ATTR_UNITS = {"F_uT": "uT", "I_deg": "deg", "D_deg": "deg", "goal_deg": "deg", "mean_deg": "deg",
+               "photons": _PH, "scenario_kappa": "1"}
+
+
+def dims_and_units(group: str, name: str, ndim: int) -> tuple[tuple[str, ...], str]:
+    """The dimension names and units of one dataset of the results file.
+
+    Parameters
+    ----------
+    group : str
+        Group path, such as ``"precision"`` or ``"trials/levels/dim"``.
+    name : str
+        Dataset name.
+    ndim : int
+        Its number of dimensions.
+
+    Returns
+    -------
+    dims : tuple of str
+        From :data:`DIMENSIONS`; ``<name>_dim_0, ...`` for an unknown dataset.
+    units : str
+        "" for an unknown dataset.
+    """
+    parts = group.split("/")
+    key = "/".join(parts[:2]) + "/*" if len(parts) == 3 else group
+    dims, units = DIMENSIONS.get(key, {}).get(name, (None, ""))
+    if dims is None or len(dims) != ndim:
+        dims = tuple(f"{name}_dim_{i}" for i in range(ndim))
+    return dims, units
 
 
 def _n_coeffs(degree: int) -> int:
@@ -198,6 +276,42 @@ class Results:
     provenance: dict = field(default_factory=dict)
     scenario: object = None
 
+    def to_xarray(self):
+        """The results as an ``xarray.DataTree``: one node per group (``/precision``,
+        ``/trials/levels/dim``, ...), named dimensions with coordinates and ``units`` attributes
+        (:data:`DIMENSIONS`), scalars and strings as node attributes, the provenance as the root's
+        attributes.
+
+        Returns
+        -------
+        xarray.DataTree
+        """
+        import xarray as xr
+
+        nodes = {"/": xr.Dataset(attrs={k: (json.dumps(v, sort_keys=True) if isinstance(v, dict) else v)
+                                        for k, v in self.provenance.items()})}
+
+        def add(path: str, d: dict):
+            data, attrs = {}, {}
+            for k, v in d.items():
+                if isinstance(v, dict):
+                    add(f"{path}/{k}", v)
+                elif isinstance(v, str) or np.isscalar(v) or isinstance(v, (bool, np.bool_)):
+                    attrs[k] = v
+                else:
+                    a = np.asarray(v)
+                    dims, units = dims_and_units(path, k, a.ndim)
+                    data[k] = xr.Variable(dims, a, {"units": units})
+            coords = {k: data.pop(k) for k in list(data) if data[k].dims == (k,)}
+            for k, u in _ATTR_UNITS.items():
+                if k in attrs:
+                    attrs[f"{k}_units"] = u
+            nodes["/" + path] = xr.Dataset(data, coords=coords, attrs=attrs)
+
+        for name, d in self.groups.items():
+            add(name, d)
+        return xr.DataTree.from_dict(nodes)
+
 
 def _jsonable(d):
     if isinstance(d, dict):
@@ -254,16 +368,42 @@ def make_provenance(sc, yf, fld, *, quick: bool, stages) -> dict:
                     if sc["light"]["sky"] == "horizon" else "uniform")}
 
 
-def _write_group(grp, d: dict):
+def _write_group(grp, d: dict, path: str = ""):
+    arrays = {}
     for k, v in d.items():
+        sub = f"{path}/{k}" if path else k
         if isinstance(v, dict):
-            _write_group(grp.create_group(k), v)
+            _write_group(grp.create_group(k), v, sub)
         elif isinstance(v, str):
             grp.attrs[k] = v
         elif np.isscalar(v) or isinstance(v, (bool, np.bool_)):
             grp.attrs[k] = v
         else:
-            grp.create_dataset(k, data=np.asarray(v))
+            arrays[k] = grp.create_dataset(k, data=np.asarray(v))
+    if not path:
+        return
+    # units and dimension scales (module docstring); coordinates first, so they can be attached
+    dims_of = {k: dims_and_units(path, k, ds.ndim) for k, ds in arrays.items()}
+    scales = {}
+    for k, ds in arrays.items():
+        dims, units = dims_of[k]
+        ds.attrs["units"] = units
+        if dims == (k,):
+            ds.make_scale(k)
+            scales[k] = ds
+    for k, ds in arrays.items():
+        dims, _ = dims_of[k]
+        for i, dim in enumerate(dims):
+            if dim not in scales:
+                if dim in grp:   # a dataset of that name with another shape: leave the axis unnamed
+                    continue
+                idx = grp.create_dataset(dim, data=np.arange(ds.shape[i]))
+                idx.attrs["units"] = "1"
+                idx.attrs["index_scale"] = 1     # not part of the results: skipped on reading
+                idx.make_scale(dim)
+                scales[dim] = idx
+            if scales[dim].shape[0] == ds.shape[i] and scales[dim] is not ds:
+                ds.dims[i].attach_scale(scales[dim])
 
 
 def _read_group(grp) -> dict:
@@ -273,7 +413,10 @@ def _read_group(grp) -> dict:
     for k, v in grp.attrs.items():
         out[k] = v.item() if isinstance(v, np.generic) else v
     for k, v in grp.items():
-        out[k] = _read_group(v) if isinstance(v, h5py.Group) else v[()]
+        if isinstance(v, h5py.Group):
+            out[k] = _read_group(v)
+        elif "index_scale" not in v.attrs:
+            out[k] = v[()]
     return out
 
 
@@ -303,7 +446,8 @@ def save_results(results: Results, path: str | Path, *, force: bool = False) -> 
             pg = h.create_group("provenance")
             for k, v in results.provenance.items():
                 pg.attrs[k] = json.dumps(v, sort_keys=True) if isinstance(v, dict) else v
-            _write_group(h, results.groups)
+            for name, g in results.groups.items():
+                _write_group(h.create_group(name), g, name)
         check_written(tmp, RESULTS_SCHEMA, target=path)
     return Path(path)
 
