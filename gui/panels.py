@@ -436,8 +436,9 @@ class BoundPlot(QWidget):
         self.setMinimumSize(200, 150)
         self.setToolTip("Cramer-Rao bound on heading (degrees, log scale) at every heading, at this "
                         "pitch, roll, field and light level; the vertical line is the current heading")
+        self._path_key = None
+        self._path = None
         self._unsub = [state.events.connect("result", lambda e: self.update()),
-                       state.events.connect("yaw_deg", lambda e: self.update()),
                        state.events.connect("scenario", lambda e: self.update())]
 
     def message(self) -> str:
@@ -477,7 +478,7 @@ class BoundPlot(QWidget):
         res = self.state.result
         c = None if res is None or res.curve_bound_deg is None else np.asarray(res.curve_bound_deg, float)
         finite = c[np.isfinite(c)] if c is not None else np.zeros(0)
-        lo_dec = math.floor(math.log10(max(float(finite.min()), 1e-3))) if finite.size else -1
+        lo_dec = math.floor(math.log10(max(0.5 * float(finite.min()), 1e-3))) if finite.size else -1
         ymin, ymax = 10.0 ** lo_dec, 180.0
 
         def X(h):
@@ -502,13 +503,21 @@ class BoundPlot(QWidget):
         p.drawText(QRectF(left, top + ph + 13, pw, 14), Qt.AlignmentFlag.AlignCenter,
                    "heading (deg); grey: not informative")
         if c is not None and res.status != "none":
-            path = QPainterPath()
-            for h, v in enumerate(c):
-                pt = QPointF(X(h), Y(v if np.isfinite(v) else ymax))
-                path.moveTo(pt) if h == 0 else path.lineTo(pt)
+            q = res.request
+            key = (id(q.scenario), q.pitch_deg, q.roll_deg, q.intensity_uT, q.inclination_deg,
+                   q.declination_deg, q.photons, q.kappa, W, H)
+            if key != self._path_key:  # the curve changes with pitch, roll, field, light only
+                xs = left + pw * (np.arange(c.size) / 360.0)
+                v = np.clip(np.where(np.isfinite(c), c, ymax), ymin, ymax)
+                ys = top + ph * (1.0 - (np.log10(v) - math.log10(ymin)) / (math.log10(ymax) - math.log10(ymin)))
+                path = QPainterPath(QPointF(xs[0], ys[0]))
+                for x, y in zip(xs[1:].tolist(), ys[1:].tolist()):
+                    path.lineTo(x, y)
+                self._path, self._path_key = path, key
             p.setPen(QPen(QColor(20, 70, 160), 1.6))
-            p.drawPath(path)
-        yaw = float(self.state.yaw_deg)
+            p.drawPath(self._path)
+        # the heading of the pattern shown (it moves with the result, drawn once per step)
+        yaw = float(res.request.yaw_deg) if res is not None else float(self.state.yaw_deg)
         p.setPen(QPen(QColor(200, 60, 30), 1.5))
         p.drawLine(QPointF(X(yaw), top), QPointF(X(yaw), top + ph))
         if res is not None and res.ambiguous:

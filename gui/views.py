@@ -429,6 +429,8 @@ class MapView(_Subscriber):
 
     Attributes
     ----------
+    widget : QWidget
+        The canvas with its title and caption (Qt labels); put this in a layout.
     canvas : vispy.scene.SceneCanvas
     image : vispy.scene.visuals.Image
         :attr:`rgba` holds the image last set ``(E, A, 4)``.
@@ -447,33 +449,45 @@ class MapView(_Subscriber):
         self._unsub = []
         self.draws = 0
         self.on_hover = None
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
+        from PyQt6.QtWidgets import QLabel, QVBoxLayout, QWidget
+
+        # Static words live in Qt labels around the canvas, not in GL text: every distinct glyph
+        # of GL text costs a freetype rendering at start-up, per canvas.
+        self.widget = QWidget(parent)
+        lay = QVBoxLayout(self.widget)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(0)
+        self.title_label = QLabel("")
+        self.caption_label = QLabel("")
+        for lab in (self.title_label, self.caption_label):
+            lab.setWordWrap(True)
+            lab.setStyleSheet("background: rgb(31, 31, 36); color: rgb(230, 230, 230); padding: 2px;")
+        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=self.widget)
         self.canvas.events.draw.connect(self._count_draw)
+        lay.addWidget(self.title_label)
+        lay.addWidget(self.canvas.native, 1)
+        lay.addWidget(self.caption_label)
         grid = self.canvas.central_widget.add_grid(spacing=0)
-        self.title = scene.Label("", color="w", font_size=9)
-        self.title.height_max = 26
-        grid.add_widget(self.title, row=0, col=0, col_span=2)
-        self.yaxis = scene.AxisWidget(orientation="left", axis_label="elevation (deg)",
-                                      axis_font_size=8, axis_label_margin=34, tick_label_margin=6,
-                                      tick_font_size=7)
-        self.yaxis.width_max = 48
-        grid.add_widget(self.yaxis, row=1, col=0)
-        self.view = grid.add_view(row=1, col=1)
-        self.xaxis = scene.AxisWidget(orientation="bottom", axis_label="azimuth from the beak (deg, right +)",
-                                      axis_font_size=8, axis_label_margin=30, tick_label_margin=14,
-                                      tick_font_size=7)
-        self.xaxis.height_max = 42
-        grid.add_widget(self.xaxis, row=2, col=1)
-        self.cbar_view = grid.add_view(row=3, col=0, col_span=2)
-        self.cbar_view.height_max = 44
+        self.yaxis = scene.AxisWidget(orientation="left", tick_label_margin=6, tick_font_size=7)
+        self.yaxis.width_max = 40
+        grid.add_widget(self.yaxis, row=0, col=0)
+        self.view = grid.add_view(row=0, col=1)
+        self.xaxis = scene.AxisWidget(orientation="bottom", tick_label_margin=14, tick_font_size=7)
+        self.xaxis.height_max = 26
+        grid.add_widget(self.xaxis, row=1, col=1)
+        self.cbar_view = grid.add_view(row=2, col=0, col_span=2)
+        self.cbar_view.height_max = 26
         self.cbar_view.camera = scene.PanZoomCamera()
-        self.cbar_view.camera.set_range(x=(-160.0, 160.0), y=(-22.0, 8.0), margin=0.0)
+        self.cbar_view.camera.set_range(x=(-160.0, 160.0), y=(-5.0, 6.0), margin=0.0)
         self.cbar_view.camera.interactive = False
         self.view.camera = scene.PanZoomCamera(aspect=1.0)
         self.view.camera.interactive = True
         self.reset_range()
         self.yaxis.link_view(self.view)
         self.xaxis.link_view(self.view)
+        # an axis maps its ends through its own place in the grid, which is known only after the
+        # layout: map them again after every resize (vispy re-maps them only on camera changes)
+        self.canvas.events.resize.connect(self._relayout_axes)
         root = self.view.scene
         s = MAP_STEP_DEG
         self.az = np.arange(-180.0 + s / 2, 180.0, s)
@@ -502,13 +516,15 @@ class MapView(_Subscriber):
         self.label_texts = ["N", "E", "S", "W", "beak", self.marks["field"].label,
                             self.marks["field_opposite"].label]
         self._label_colours = np.array([(0.3, 0.95, 0.4, 1.0)] * 4 + [(1.0, 1.0, 1.0, 1.0)] * 3)
+        self.labels.text = self.label_texts   # set once: only the positions follow the pose
+        self.labels.color = self._label_colours
         # colour bar in its own fixed view
         self._ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
         self.cbar = scene.visuals.Image(np.zeros((2, 256, 4), np.float32), interpolation="linear",
                                         parent=self.cbar_view.scene)
         self.cbar.transform = scene.STTransform(scale=(200.0 / 256, 5.0), translate=(-100.0, -2.0))
-        self.cbar_text = scene.visuals.Text(["", "", ""], pos=np.array(
-            [(-128.0, 0.5), (128.0, 0.5), (0.0, -13.0)]), color="w", font_size=8,
+        self.cbar_text = scene.visuals.Text(["", ""], pos=np.array(
+            [(-128.0, 0.5), (128.0, 0.5)]), color="w", font_size=8,
             parent=self.cbar_view.scene, anchor_x="center", anchor_y="center")
         self._cbar_key = None
         for node in (self.edges, self.horizon, self.beak, self.field_marks):
@@ -530,6 +546,17 @@ class MapView(_Subscriber):
 
     def _count_draw(self, event=None):
         self.draws += 1
+
+    def _relayout_axes(self, event=None):
+        from PyQt6.QtCore import QTimer
+
+        def again():
+            for ax in (self.xaxis, self.yaxis):
+                if hasattr(ax, "_view_changed"):
+                    ax._view_changed()
+            self.canvas.update()
+
+        QTimer.singleShot(0, again)
 
     def reset_range(self) -> None:
         """Show the whole visual field."""
@@ -601,9 +628,7 @@ class MapView(_Subscriber):
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
         sizes = np.array([(len(t_) * 4.0 + 2.0, 6.0) for t_ in self.label_texts])
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors)
-        self.labels.text = self.label_texts
         self.labels.pos = self.label_positions
-        self.labels.color = self._label_colours
         if draw:
             self.canvas.update()
 
@@ -649,13 +674,13 @@ class MapView(_Subscriber):
         if key != self._cbar_key:  # text is laid out again only when it changes
             cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
             self.cbar.set_data(cmap(self._ramp).astype(np.float32))
-            self.cbar_text.text = [ends[0], ends[1], caption]
+            self.cbar_text.text = [ends[0], ends[1]]
+            self.caption_label.setText("across: azimuth from the beak (deg, right +); up: elevation "
+                                       f"(deg). Colours: {caption}.")
             self._cbar_key = key
-        p = res.request
-        from .workers import format_deg
-
-        self.title.text = (f"{eye} eye{'s' if eye == 'both' else ''}: heading {format_deg(p.yaw_deg, 0)}, "
-                           f"pitch {format_deg(p.pitch_deg, 0)}, roll {format_deg(p.roll_deg, 0)}")
+        title = f"{eye} eye{'s' if eye == 'both' else ''}, head frame (the heading is in the readout)"
+        if self.title_label.text() != title:
+            self.title_label.setText(title)
         self.canvas.update()
 
     # ---------------------------------------------------------------- receptor under the cursor

@@ -161,7 +161,8 @@ class MainWindow(QMainWindow):
         for v in (self.head_view, self.map_view):
             v.canvas.native.setMinimumSize(160, 160)
             v.canvas.native.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
-            split.addWidget(v.canvas.native)
+        split.addWidget(self.head_view.canvas.native)
+        split.addWidget(self.map_view.widget)
         split.setSizes([620, 640])
         side = QWidget()
         sl = QVBoxLayout(side)

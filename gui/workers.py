@@ -259,8 +259,7 @@ class PatternComputer:
         it returns True the computation raises :class:`retina.errors.Cancelled`."""
         from retina.eye.field import Field
         from retina.eye.pose import Pose
-        from retina.readout.fisher import (INFORMATIVE_BOUND_DEG, cramer_rao_deg, heading_information,
-                                           interpolated_information)
+        from retina.readout.fisher import INFORMATIVE_BOUND_DEG, cramer_rao_deg, interpolated_information
         from retina.signal.noise import SignalModel, trig_interp_matrix
 
         if req.scenario is None:
@@ -283,7 +282,6 @@ class PatternComputer:
                           declination_deg=req.declination_deg, photons=1.0,
                           pitch_deg=req.pitch_deg, roll_deg=req.roll_deg)
         # information is linear in the light level (retina.readout.fisher): per photon, then scale
-        info1 = float(heading_information(sig, [req.yaw_deg], nuisance=nuisance).per_photon[0])
         ckey = (req.inclination_deg, req.declination_deg, req.pitch_deg, req.roll_deg)
         L = int(model.degree)
         if self._curve_key != ckey:
@@ -293,6 +291,9 @@ class PatternComputer:
             self._curve = interpolated_information(W, self._nodes[1], self._nodes[2], nuisance)
             self._curve_key = ckey
         nodes_rad, lam_n, dlam_n = np.deg2rad(self._nodes[0]), self._nodes[1], self._nodes[2]
+        # information here from the same nodes (exact: a trigonometric polynomial of degree L)
+        W1 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg]), L)
+        info1 = float(interpolated_information(W1, lam_n, dlam_n, nuisance)[0])
         bound = float(cramer_rao_deg(req.photons * info1))
         crb = cramer_rao_deg(req.photons * self._curve)
         rms = float(np.sqrt(np.mean(crb ** 2)))

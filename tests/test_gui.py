@@ -622,3 +622,150 @@ def test_python_m_gui_saves_a_screenshot_and_exits_0(display, tmp_path):
     r2 = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
                         capture_output=True, text=True, timeout=300)
     assert r2.returncode == 2 and "exists already" in r2.stderr
+
+
+# ------------------------------------------------------------------------------------------------
+# issue 14: features and defects (state and worker: no Qt)
+
+
+def test_scan_yaws_sweep_out_and_back():
+    from retina_viewer.state import scan_yaws
+
+    # Derived: steps looks from centre - A to centre + A, back again (turning points once),
+    # repeats times, ending at the start: L = repeats * 2 * (steps - 1) + 1.
+    y = scan_yaws(10.0, 20.0, 3, 2)
+    np.testing.assert_allclose(y, [350, 10, 30, 10, 350, 10, 30, 10, 350])
+    assert len(scan_yaws(0.0, 45.0, 13, 3)) == 3 * 2 * 12 + 1
+    np.testing.assert_allclose(scan_yaws(5.0, 0.0, 4, 1), 5.0)
+
+
+def test_undo_redo_merges_a_drag_into_one_step():
+    # Contract of gui/state.py History (common practice, no source: undo stacks that merge
+    # rapid changes of one control).
+    from retina_viewer.state import History, ViewerState
+
+    now = {"t": 0.0}
+    st = ViewerState()
+    st.history = History(clock=lambda: now["t"])
+    for yaw in (1, 2, 3, 4):          # a slider drag: 0.1 s apart
+        st.yaw_deg = yaw
+        now["t"] += 0.1
+    now["t"] += 5.0
+    st.pitch_deg = 10.0
+    now["t"] += 5.0
+    st.update(roll_deg=20.0, inclination_deg=50.0)   # one step for both
+    st.set("photons", 50.0, record=False)            # not recorded (scan playback, loading)
+    assert st.undo() == ["roll_deg", "inclination_deg"]
+    assert (st.roll_deg, st.inclination_deg) == (0.0, 60.0)
+    assert st.undo() == ["pitch_deg"] and st.pitch_deg == 0.0
+    assert st.undo() == ["yaw_deg"] and st.yaw_deg == 0.0     # the whole drag at once
+    assert st.undo() == [] and not st.history.can_undo
+    assert st.redo() == ["yaw_deg"] and st.yaw_deg == 4.0
+    st.yaw_deg = 100.0                                      # a new change clears the redo stack
+    assert not st.history.can_redo and st.photons == 50.0
+
+
+def test_state_saved_as_a_scenario_reproduces_the_pattern(file_scenario, tmp_path):
+    # The saved scenario, run through the patterns stage that `retina patterns` uses, gives the
+    # viewer's pattern (the same core, so equal to rounding).
+    from retina import build
+    from retina.scenario import load_scenario, save_scenario
+    from retina.stages.patterns import compute_patterns
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(file_scenario)
+    st.update(yaw_deg=123.0, pitch_deg=-7.0, roll_deg=4.0, inclination_deg=48.0, declination_deg=-11.0,
+              photons=77.0, kappa=6.0)
+    res = PatternComputer().compute(st.request())
+    path = save_scenario(st.to_scenario(), tmp_path / "state.toml")
+    sc = load_scenario(path)
+    yf = build.build_yield_function(sc)
+    out = compute_patterns(sc, build.build_retina(sc, yf), build.build_field(sc))
+    np.testing.assert_allclose(out["yields"][0], res.pattern.yields, rtol=1e-12)
+    assert sc["light"]["photons"] == [77.0] and sc["ordering"]["kappa"] == 6.0
+    st2 = ViewerState(sc)                     # opening it again restores the state
+    for k in ("yaw_deg", "pitch_deg", "roll_deg", "inclination_deg", "photons"):
+        assert st2.get(k) == pytest.approx(st.get(k), abs=1e-9)
+
+
+def test_vertical_field_says_no_information_and_horizontal_field_is_ambiguous(file_scenario):
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer, describe_bound
+
+    st = ViewerState(file_scenario)
+    c = PatternComputer()
+    # Derived: with the field along the yaw axis (inclination 90, level head) turning the head does
+    # not change b_head, so the information is zero; the bound must read in words, not 1e17 deg.
+    st.inclination_deg = 90.0
+    r = c.compute(st.request())
+    assert r.status == "none" and describe_bound(r.bound_deg, r.status) == "no heading information"
+    # Derived: a horizontal field and a level head: heading + 180 turns b_head into -b_head and
+    # Phi(b) = Phi(-b) (design.md), so the two patterns are equal and d' = 0 to rounding.
+    st.inclination_deg = 0.0
+    r = c.compute(st.request())
+    assert r.status == "ok" and r.ambiguous and r.mirror_dprime < 1e-6
+    assert "ambiguous" in describe_bound(r.bound_deg, r.status, r.ambiguous)
+    np.testing.assert_allclose(r.curve_bound_deg[:180], r.curve_bound_deg[180:], rtol=1e-8)
+    # inclined field: the two are told apart and the curve has the bound of this heading
+    st.inclination_deg = 66.0
+    r = c.compute(st.request())
+    assert not r.ambiguous and r.mirror_dprime > 1.0
+    assert r.curve_bound_deg[int(st.yaw_deg)] == pytest.approx(r.bound_deg, rel=1e-9)
+    # very dim light: above the informative limit the report's words (retina.readout.fisher)
+    st.photons = 0.01
+    r = c.compute(st.request())
+    assert r.status == "not_informative" and describe_bound(r.bound_deg, r.status).startswith("not informative")
+
+
+def test_format_deg_never_shows_minus_zero():
+    from retina_viewer.workers import describe_bound, format_deg
+
+    assert format_deg(-0.04) == "0.0 deg" and format_deg(-0.0) == "0.0 deg"
+    assert format_deg(-0.06) == "-0.1 deg" and format_deg(359.96, 0) == "360 deg"
+    assert describe_bound(float("inf")) == "no heading information"
+    assert describe_bound(12.345) == "12.35 deg"
+
+
+def test_scan_bound_adds_information_over_looks(file_scenario):
+    import dataclasses
+
+    from retina import build
+    from retina.readout.fisher import heading_information
+    from retina.signal.noise import SignalModel
+    from retina_viewer.state import ViewerState, scan_yaws
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(file_scenario)
+    st.update(yaw_deg=20.0, photons=40.0)
+    yaws = scan_yaws(20.0, 30.0, 5, 1)
+    req = dataclasses.replace(st.request(), scan_yaws=tuple(yaws[:6]), scan_centre_deg=20.0)
+    r = PatternComputer().compute(req)
+    # Derived: with an unknown light level per look (readout.nuisance = "gain") the Fisher
+    # information of independent looks adds (retina.readout.scans "pose_gain"); here each look is
+    # evaluated directly (no trigonometric interpolation) as an independent check.
+    model = build.build_retina(file_scenario, build.build_yield_function(file_scenario))
+    sig = SignalModel(model, inclination_deg=st.inclination_deg, declination_deg=st.declination_deg,
+                      photons=40.0)
+    info = heading_information(sig, yaws[:6], nuisance="gain").information
+    assert r.scan_bound_deg == pytest.approx(math.degrees(1 / math.sqrt(info.sum())), rel=1e-7)
+    centre = heading_information(sig, [20.0], nuisance="gain").information[0]
+    assert r.look_bound_deg == pytest.approx(math.degrees(1 / math.sqrt(6 * centre)), rel=1e-7)
+
+
+def test_figures_and_viewer_share_the_marks():
+    from matplotlib.lines import Line2D
+
+    from retina.figures import modulation_fields
+    from retina.figures.marks import MARKS
+
+    # one panel of a tiny invented pattern: the beak and field marks use the shared codes
+    rng = np.random.default_rng(1)
+    d = rng.normal(size=(60, 3))
+    d[:, 0] = np.abs(d[:, 0]) + 0.5
+    d /= np.linalg.norm(d, axis=1, keepdims=True)
+    fig = modulation_fields(d, (d[:, 1] > 0).astype(int), rng.normal(size=(1, 60)) * 0.01, [0.0],
+                            np.array([[0.4, 0.0, 0.9165]]))
+    markers = {ln.get_marker() for ax in fig.axes for ln in ax.get_lines() if isinstance(ln, Line2D)}
+    assert {MARKS["beak"].mpl, MARKS["field"].mpl} <= markers
+    assert MARKS["field"].face != MARKS["field_opposite"].face   # filled vs open
