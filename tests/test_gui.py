@@ -769,3 +769,301 @@ def test_figures_and_viewer_share_the_marks():
     markers = {ln.get_marker() for ax in fig.axes for ln in ax.get_lines() if isinstance(ln, Line2D)}
     assert {MARKS["beak"].mpl, MARKS["field"].mpl} <= markers
     assert MARKS["field"].face != MARKS["field_opposite"].face   # filled vs open
+
+
+# ------------------------------------------------------------------------------------------------
+# issue 14: window features and defects (Qt + display)
+
+
+def _settle(qapp, seconds=0.05):
+    end = time.monotonic() + seconds
+    while time.monotonic() < end:
+        qapp.processEvents()
+
+
+def test_one_draw_per_heading_step(window, qapp):
+    window.show()
+    _settle(qapp, 0.5)
+    for yaw in (11.0, 12.0, 13.0):
+        h0, m0 = window.head_view.draws, window.map_view.draws
+        window.state.yaw_deg = yaw
+        _settle(qapp, 0.1)
+        assert (window.head_view.draws - h0, window.map_view.draws - m0) == (1, 1)
+    # the pose drawn is the pose of the colours: both come from the result's request
+    assert window.state.result.request.yaw_deg == 13.0
+    assert window.map_view._marks_key[0] == 13.0
+
+
+def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
+    from PyQt6.QtCore import Qt
+    from PyQt6.QtTest import QTest
+
+    window.show()
+    window.activateWindow()
+    spin = window.controls.controls["intensity_uT"].spin
+    spin.setFocus()
+    _settle(qapp)
+    i0, p0 = window.state.intensity_uT, window.state.pitch_deg
+    QTest.keyClick(spin, Qt.Key.Key_Up)
+    _settle(qapp)
+    assert window.state.intensity_uT == pytest.approx(i0 + 1.0) and window.state.pitch_deg == p0
+    slider = window.controls.controls["roll_deg"].slider
+    slider.setFocus()
+    r0 = window.state.roll_deg
+    QTest.keyClick(slider, Qt.Key.Key_PageUp)
+    _settle(qapp)
+    assert window.state.roll_deg != r0 and window.state.pitch_deg == p0   # the slider moved itself
+
+
+def test_heading_box_wraps_360_and_negative_values_and_the_slider_end(window):
+    c = window.controls.controls["yaw_deg"]
+    c.spin.setValue(360.0)
+    assert window.state.yaw_deg == 0.0 and c.spin.value() == 0.0        # not 36.0
+    c.spin.setValue(-10.0)
+    assert window.state.yaw_deg == 350.0 and c.spin.value() == 350.0
+    c.slider.setValue(c.slider.maximum())
+    assert window.state.yaw_deg == pytest.approx(359.0)
+    assert c.slider.value() == c.slider.maximum()                       # stays at the right end
+
+
+def test_zero_width_view_gives_a_message_not_a_crash(window, qapp, tmp_path):
+    window.dialogs = False
+    window.show()
+    split = window.views_widget
+    split.setSizes([1200, 0])
+    window.resize(700, 700)
+    _settle(qapp, 0.2)
+    assert window.map_view.widget.width() >= 160    # the views keep a minimum; nothing collapses
+    window.map_view.canvas.native.setMinimumSize(0, 0)
+    window.map_view.canvas.native.resize(0, 300)    # forced to nothing anyway
+    with pytest.raises(InputError, match="too small to render"):
+        window.save_view_image("map", tmp_path / "m.png")
+    window._run_action(lambda: window.save_view_image("map", tmp_path / "m2.png"))  # a menu action
+    assert "too small to render" in window.last_error and not (tmp_path / "m2.png").exists()
+    window._run_action(lambda: 1 / 0)               # even an unexpected error stays in the slot
+    assert window.last_error.startswith("ZeroDivisionError")
+
+
+def test_invalid_spin_system_on_open_keeps_the_old_state_and_says_why(window, tmp_path, monkeypatch):
+    from PyQt6.QtWidgets import QFileDialog
+
+    bad_pair = tmp_path / "bad_pair.toml"
+    bad_pair.write_text("[radical_a]\nthis is not valid = = toml\n")
+    sc_path = tmp_path / "scenario.toml"
+    sc_path.write_text(DEMO.read_text().replace('system = "demo_pair.toml"', f'system = "{bad_pair.as_posix()}"'))
+    old, old_yaw = window.state.scenario, window.state.yaw_deg
+    old_result = window.state.result
+    with pytest.raises(InputError) as exc:
+        window.open_scenario(sc_path)
+    assert "bad_pair.toml" in str(exc.value)
+    assert window.state.scenario is old and window.state.result is old_result
+    window.dialogs = False
+    monkeypatch.setattr(QFileDialog, "getOpenFileName", lambda *a, **k: (str(sc_path), ""))
+    window._run_action(window.open_dialog)
+    assert "bad_pair.toml" in window.last_error and window.state.scenario is old
+    assert window.state.yaw_deg == old_yaw
+
+
+def test_offscreen_platform_is_refused_with_a_clear_message(tmp_path):
+    from retina_viewer.window import check_platform
+
+    fake = type("App", (), {"platformName": lambda self: "offscreen"})()
+    with pytest.raises(InputError, match="cannot draw its OpenGL views on Qt's 'offscreen' platform"):
+        check_platform(fake)
+    out = tmp_path / "x.png"
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
+    env.pop("DISPLAY", None)
+    r = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
+                       capture_output=True, text=True, timeout=300)
+    assert r.returncode == 2 and "offscreen" in r.stderr and "xvfb-run" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and not out.exists()
+
+
+def test_status_bar_does_not_claim_a_recomputation_for_a_file_yield_function(window):
+    window.state.intensity_uT = 30.0
+    msg = window.statusBar().currentMessage()
+    assert "computing" not in msg
+    window.state.yaw_deg = 5.0    # the status then reports the new pattern
+    assert "computing" not in window.statusBar().currentMessage()
+    assert "read from demo_quick.h5" in window.state.result.yield_note
+
+
+def test_flat_pattern_is_drawn_flat(qapp, file_scenario):
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import colour_values
+    from retina_viewer.workers import PatternComputer
+
+    # Derived: an isotropic ordering averages the yield over all molecular orientations, so every
+    # receptor has the same yield whatever the field (modulation 0 up to rounding).
+    sc = file_scenario.replace(ordering={"model": "isotropic"})
+    st = ViewerState(sc)
+    r = PatternComputer().compute(st.request())
+    assert r.flat and np.max(np.abs(r.pattern.modulation)) < 1e-9
+    for display in ("modulation", "yields"):
+        _, rgba, _, _ = colour_values(r, display, "both")
+        assert np.ptp(rgba[:, :3], axis=0).max() == 0.0        # one colour for every receptor
+    _, rgba, _, _ = colour_values(r, "modulation", "both")
+    np.testing.assert_allclose(rgba[0, :3], np.array(__import__("matplotlib").colormaps["RdBu_r"](0.5))[:3])
+
+
+def test_locked_colour_scale_lets_a_weaker_pattern_fade(window):
+    st = window.state
+    st.kappa = 50.0
+    strong = np.array(window.head_view.face_colors, copy=True)
+    st.lock_scale = True
+    lim = st.locked_limits["modulation"]
+    st.kappa = 0.5                                    # much weaker order: weaker modulation
+    faded = window.head_view.face_colors
+    white = np.array(__import__("matplotlib").colormaps["RdBu_r"](0.5))[:3]
+    dist = lambda c: np.abs(c[:, :3] - white).max(axis=1).mean()   # noqa: E731
+    assert dist(faded) < 0.5 * dist(strong)           # fades toward the middle colour
+    assert st.locked_limits["modulation"] == lim
+    st.lock_scale = False                             # unlocked: stretched to the full scale again
+    assert dist(window.head_view.face_colors) > dist(faded)
+
+
+def test_map_labels_do_not_overlap_at_a_horizontal_field(window):
+    st = window.state
+    st.update(inclination_deg=0.0, declination_deg=0.0, yaw_deg=0.0, pitch_deg=0.0, roll_deg=0.0)
+    mv = window.map_view
+    pos = mv.label_positions
+    sizes = np.array([(len(t) * 4.0 + 2.0, 6.0) for t in mv.label_texts])
+    # B, the beak and N all sit at (0, 0) here; every label box must be clear of the others
+    for i in range(len(pos)):
+        for j in range(i + 1, len(pos)):
+            sep_x = abs(pos[i, 0] - pos[j, 0]) >= 0.5 * (sizes[i, 0] + sizes[j, 0])
+            sep_y = abs(pos[i, 1] - pos[j, 1]) >= 0.5 * (sizes[i, 1] + sizes[j, 1])
+            assert sep_x or sep_y, (mv.label_texts[i], mv.label_texts[j])
+    # and clear of the marks at the centre
+    for k, p in enumerate(pos):
+        assert abs(p[0]) >= 0.5 * sizes[k, 0] or abs(p[1]) >= 0.5 * sizes[k, 1]
+
+
+def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
+    window.show()
+    _settle(qapp, 0.3)
+    mv = window.map_view
+    before = (mv.xaxis.axis.domain, mv.cbar_view.camera.rect)
+    mv.view.camera.zoom(0.25)
+    _settle(qapp, 0.2)
+    # the axes follow the zoom (their numbers change) but stay in their own widgets; the colour
+    # bar's view does not move at all
+    assert mv.xaxis.parent is not mv.view.scene and mv.cbar.parent is mv.cbar_view.scene
+    assert mv.cbar_view.camera.rect == before[1]
+    d0, d1 = before[0], mv.xaxis.axis.domain
+    assert (d1[1] - d1[0]) == pytest.approx(0.25 * (d0[1] - d0[0]), rel=1e-3)
+
+
+def test_receptor_under_the_cursor(window):
+    mv = window.map_view
+    res = window.state.result
+    rec = res.pattern.receptors
+    k = int(np.argmax(res.pattern.modulation))
+    d = rec.visual_dirs[k]
+    az = math.degrees(math.atan2(d[1], d[0]))
+    el = math.degrees(math.asin(-d[2]))
+    j = mv.receptor_at(az, el)
+    assert j is not None
+    # the pixel holds the receptor nearest in visual direction (retina.eye.pattern.resample):
+    # within a few degrees of receptor k
+    cosang = float(np.dot(rec.visual_dirs[j], d))
+    assert math.degrees(math.acos(min(1.0, cosang))) < 8.0
+    info = mv.receptor_info(j)
+    assert info["yield"] == res.pattern.yields[j] and info["modulation"] == res.pattern.modulation[j]
+    window.readout.show_receptor(info)
+    assert f"#{j}" in window.readout.labels["hover"].text()
+    assert mv.receptor_at(179.0, -89.0) is None          # no eye sees straight down behind
+
+
+def test_export_figure_uses_the_figure_builder_and_writes_three_formats(window, tmp_path):
+    files = window.export_figure(tmp_path / "fig")
+    names = sorted(p.name for p in files)
+    assert names == ["fig.pdf", "fig.png", "fig.svg"]
+    assert (tmp_path / "fig.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"   # ISO/IEC 15948
+    assert (tmp_path / "fig.pdf").read_bytes()[:5] == b"%PDF-"              # ISO 32000
+    assert b"<svg" in (tmp_path / "fig.svg").read_bytes()[:2000]
+    with pytest.raises(InputError, match="exists already"):
+        window.export_figure(tmp_path / "fig", ("png",))
+
+
+def test_save_scenario_then_open_it_again(window, tmp_path):
+    st = window.state
+    st.update(yaw_deg=77.0, pitch_deg=3.0)
+    p = window.save_scenario(tmp_path / "state")
+    assert p.name == "state.toml"
+    st.update(yaw_deg=5.0)
+    window.open_scenario(p)
+    assert st.yaw_deg == 77.0 and st.pitch_deg == 3.0 and st.result.request.yaw_deg == 77.0
+    with pytest.raises(InputError, match="exists already"):
+        window.save_scenario(p)
+
+
+def test_undo_and_redo_from_the_menu(window):
+    c = window.controls.controls["pitch_deg"]
+    c.spin.setValue(25.0)
+    assert window.state.pitch_deg == 25.0
+    window.actions["undo"].trigger()
+    assert window.state.pitch_deg == 0.0 and c.spin.value() == 0.0
+    assert window.state.result.request.pitch_deg == 0.0
+    window.actions["redo"].trigger()
+    assert window.state.pitch_deg == 25.0
+
+
+def test_played_scan_shows_the_bound_so_far(window):
+    st = window.state
+    st.update(scan_amplitude_deg=30.0, scan_steps=4, scan_repeats=1)
+    st.history.clear()
+    start = st.yaw_deg
+    window.play_scan()
+    window._scan_timer.stop()            # step by hand
+    n = 1
+    while window.scan_step():
+        n += 1
+    assert n == 2 * 4 - 1 and len(st.result.request.scan_yaws) == n
+    text = window.controls.scan_label.text()
+    assert f"look {n} of {n}" in text and "straight at" in text and "deg" in text
+    window._stop_scan(restore=True)
+    assert st.yaw_deg == start and not window.controls.play.isChecked()
+    assert not st.history.can_undo       # playback is not an undoable change
+
+
+def test_every_control_has_a_tooltip_with_its_unit(window):
+    from retina_viewer.panels import CONTROLS
+
+    for c in CONTROLS:
+        w = window.controls.controls[c.name]
+        tip = w.spin.toolTip()
+        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count"))
+    assert window.controls.controls["photons"].spin.suffix() == " photons"
+    for name in ("display", "eye", "lock_scale"):
+        assert window.controls.controls[name].toolTip()
+    assert window.controls.play.toolTip()
+
+
+def test_bound_plot_says_what_the_numbers_cannot(window):
+    st, plot = window.state, window.bound_plot
+    st.inclination_deg = 90.0
+    assert plot.message() == "no heading information at any heading"
+    st.inclination_deg = 0.0
+    assert plot.message().startswith("ambiguous")
+    st.inclination_deg = 66.0
+    assert plot.message() == ""
+    img = plot.grab().toImage()
+    assert img.width() > 0 and window.readout.labels["bound"].text().endswith("deg")
+    st.inclination_deg = 90.0
+    assert window.readout.labels["bound"].text() == "no heading information"
+    assert "e+" not in window.readout.labels["rms"].text()
+
+
+def test_readme_names_the_menu_items_and_keys():
+    text = (ROOT / "gui" / "README.md").read_text()
+    from retina_viewer import window as w
+
+    assert "Ctrl+Q" in text
+    src = Path(w.__file__).read_text()
+    import re
+
+    items = re.findall(r'\("\w+", "([^"]*&[^"]*)",', src)      # the menu items (with & accelerators)
+    assert len(items) >= 10
+    for item in items:
+        assert item.replace("&", "").rstrip(".") in text.replace("...", ""), item
