@@ -347,7 +347,7 @@ class ControlPanel(QWidget):
 class ReadoutPanel(QGroupBox):
     """Live numbers of the latest result (module docstring)."""
 
-    ROWS = (("depth", "modulation depth"), ("bound", "Cramer-Rao bound here"),
+    ROWS = (("pose", "pattern shown for"), ("depth", "modulation depth"), ("bound", "Cramer-Rao bound here"),
             ("rms", "bound, rms over headings"), ("mirror", "heading + 180 deg"),
             ("light", "light level"), ("bhead", "field in head (az, el)"),
             ("yield", "yield function"), ("time", "computed in"), ("hover", "under the cursor"))
@@ -383,6 +383,9 @@ class ReadoutPanel(QGroupBox):
         az = math.degrees(math.atan2(b[1], b[0]))
         el = math.degrees(math.asin(max(-1.0, min(1.0, -b[2]))))
         nuis = res.request.scenario["readout"]["nuisance"]
+        q = res.request
+        self.labels["pose"].setText(f"heading {format_deg(q.yaw_deg)}, pitch {format_deg(q.pitch_deg)}, "
+                                    f"roll {format_deg(q.roll_deg)}")
         self.labels["depth"].setText("0 % (flat pattern)" if res.flat else f"{100.0 * res.depth:.2f} %")
         self.labels["bound"].setText(describe_bound(res.bound_deg, res.status))
         rms_status = "none" if res.status == "none" else "ok"

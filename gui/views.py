@@ -136,7 +136,7 @@ def _state_limits(state, result):
     return state.locked_limits.get(state.display)
 
 
-def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0):
+def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: float = 1.0):
     """Place text labels beside their anchor points so that no two overlap and none covers a mark.
 
     Parameters
@@ -146,7 +146,7 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0):
     sizes : array_like, shape (K, 2)
         Width and height of each label box (map degrees).
     obstacles : array_like, shape (M, 2)
-        Marks a label must not cover (each counted as a box of ``2 x 2`` degrees plus ``gap``).
+        Marks a label must not cover (each a square of half-width ``mark_half`` degrees).
     gap : float
         Free space kept around every box (degrees).
 
@@ -159,7 +159,7 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0):
     anchors = np.asarray(anchors, float).reshape(-1, 2)
     sizes = np.asarray(sizes, float).reshape(-1, 2)
     obst = np.asarray(obstacles, float).reshape(-1, 2)
-    boxes = [(p[0], p[1], 1.0 + gap, 1.0 + gap) for p in obst]  # centre x, y, half w, half h
+    boxes = [(p[0], p[1], mark_half, mark_half) for p in obst]  # centre x, y, half w, half h
     out = np.zeros_like(anchors)
     for k, (a, (w, h)) in enumerate(zip(anchors, sizes)):
         hw, hh = 0.5 * w, 0.5 * h
@@ -626,11 +626,20 @@ class MapView(_Subscriber):
                                   face_color=np.array([f.face, o.face]),
                                   edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
-        sizes = np.array([(len(t_) * 4.0 + 2.0, 6.0) for t_ in self.label_texts])
-        self.label_positions = layout_labels(anchors, sizes, obstacles=anchors)
+        sizes = self.label_sizes()
+        self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
+                                             gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
         self.labels.pos = self.label_positions
         if draw:
             self.canvas.update()
+
+    def label_sizes(self) -> np.ndarray:
+        """Label boxes ``(K, 2)`` in map degrees: 7 x 13 pixels per character (8 pt text) at the
+        whole-field zoom (the labels only get farther apart when the map is zoomed in)."""
+        w_px, h_px = (float(x) for x in self.view.size) if self.view.size[0] > 10 else (600.0, 400.0)
+        deg_per_px = max((MAP_RANGE[0][1] - MAP_RANGE[0][0]) / w_px,
+                         (MAP_RANGE[1][1] - MAP_RANGE[1][0]) / h_px)
+        return np.array([((7.0 * len(t) + 4.0) * deg_per_px, 13.0 * deg_per_px) for t in self.label_texts])
 
     def _clear(self):
         self._show_pose(*self._pose_of(None), draw=False)

@@ -173,6 +173,8 @@ class MainWindow(QMainWindow):
         sl.addWidget(self.bound_plot)
         sl.addWidget(self.controls)
         scroll = QScrollArea()
+        self.side_scroll = scroll
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         scroll.setWidget(side)
         scroll.setWidgetResizable(True)
         scroll.setMinimumWidth(200)   # the views keep their own minimum; nothing squeezes them away

@@ -927,7 +927,7 @@ def test_map_labels_do_not_overlap_at_a_horizontal_field(window):
     st.update(inclination_deg=0.0, declination_deg=0.0, yaw_deg=0.0, pitch_deg=0.0, roll_deg=0.0)
     mv = window.map_view
     pos = mv.label_positions
-    sizes = np.array([(len(t) * 4.0 + 2.0, 6.0) for t in mv.label_texts])
+    sizes = mv.label_sizes()
     # B, the beak and N all sit at (0, 0) here; every label box must be clear of the others
     for i in range(len(pos)):
         for j in range(i + 1, len(pos)):
