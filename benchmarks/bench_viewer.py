@@ -22,9 +22,14 @@ Cases (every reference is measured in the same run, on the same machine):
    thread records the longest gap between its ticks.  Reference: the same computation on a
    worker thread with a plain loop of 5 ms sleeps on the main thread and no window.
    Target <= 50 ms.
-4. Rapid changes: 100 heading changes 10 ms apart; the time from the first change until the last
-   heading is drawn, and how many requests were computed and frames drawn (coalescing: the latest
-   state wins).  Reference: 100 x 10 ms, the time the changes themselves take.
+4. Rapid changes: 100 heading changes 10 ms apart on the wall clock (a change whose time has come
+   is applied even if the GUI was busy, as mouse moves arrive); the time from the first change
+   until the last heading is drawn, and how many requests were computed and frames drawn
+   (coalescing: the latest state wins).  Reference: 100 x 10 ms, the time the changes take.
+
+Also printed: the GUI thread's own CPU time per drag step (``time.thread_time``), which a shared
+machine disturbs far less than the wall time; the rest of a step is spent in Mesa's renderer
+threads, the X server and the worker.
 
 The machine may be shared with other work: absolute times are noisy, the ratios less so.
 """
@@ -157,14 +162,15 @@ def _run(args) -> int:
         for _ in range(20):
             app.processEvents()
         y0 = win.state.yaw_deg
-        times, draws = [], []
+        times, draws, cpu = [], [], []
         for i in range(1, n_steps + 1):
             target = (y0 + i) % 360.0
             h0, m0 = win.head_view.draws, win.map_view.draws
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.thread_time()
             ctrl.slider.setValue(ctrl.to_ticks(target))
             _pump(app, lambda: frames.drawn(target))
             times.append(time.perf_counter() - t0)
+            cpu.append(time.thread_time() - c0)
             # let a second, unwanted draw show up if there is one
             t_settle = time.perf_counter() + 0.01
             while time.perf_counter() < t_settle:
@@ -189,6 +195,12 @@ def _run(args) -> int:
                          reference=f"{np.percentile(t_ref, 95):.1f} ms",
                          ratio=f"{p95 / np.percentile(t_ref, 95):.2f}", target="<= 50 ms",
                          passed=p95 <= 50.0 or args.quick))
+        cpu = np.array(cpu) * 1e3
+        rows.append(dict(name="GUI-thread CPU per drag step (median)", measured=f"{np.median(cpu):.1f} ms",
+                         reference=f"{med:.1f} ms", ratio=f"{np.median(cpu) / med:.2f}", target="(info)",
+                         passed=True,
+                         note="reference: the wall time per step; the rest is the software renderer, the X "
+                              "server and the worker (and, on a shared machine, waiting for a core)"))
         per_view = draws.mean(axis=0)
         rows.append(dict(name="draws per step (head view, map view)",
                          measured=f"{per_view[0]:.2f}, {per_view[1]:.2f}", reference="1, 1",
@@ -201,23 +213,26 @@ def _run(args) -> int:
         rows.append(dict(name="requests computed at start-up", measured=str(n_start), reference="1",
                          ratio=f"{n_start:.0f}", target="= 1", passed=n_start == 1))
 
-        # 4. rapid changes: 100 headings 10 ms apart
+        # 4. rapid changes: 100 headings 10 ms apart on the wall clock (as a mouse drag delivers
+        # them: a change whose time has come is applied even when the GUI was busy drawing)
         h0, m0 = win.head_view.draws, win.map_view.draws
         c0 = len(win.worker.worker.computed)
         y0 = win.state.yaw_deg
         n_burst = 100
-        k = {"i": 0}
+        k = {"i": 0, "t0": None}
         timer = QTimer()
 
         def tick():
-            k["i"] += 1
-            win.state.yaw_deg = (y0 + 2 * k["i"]) % 360.0
+            due = min(n_burst, int((time.perf_counter() - k["t0"]) / 0.010) + 1)
+            while k["i"] < due:
+                k["i"] += 1
+                win.state.yaw_deg = (y0 + 2 * k["i"]) % 360.0
             if k["i"] >= n_burst:
                 timer.stop()
 
         timer.timeout.connect(tick)
         last = (y0 + 2 * n_burst) % 360.0
-        t0 = time.perf_counter()
+        t0 = k["t0"] = time.perf_counter()
         timer.start(10)
         _pump(app, lambda: k["i"] >= n_burst and frames.drawn(last))
         t_burst = time.perf_counter() - t0
@@ -226,7 +241,7 @@ def _run(args) -> int:
         rows.append(dict(name="100 changes 10 ms apart, until the last is drawn", measured=f"{t_burst:.2f} s",
                          reference=f"{n_burst * 0.010:.2f} s", ratio=f"{t_burst / (n_burst * 0.010):.2f}",
                          target="(info)", passed=True,
-                         note=f"{n_comp} requests computed, {n_draw} frames drawn per view"))
+                         note=f"{n_comp} requests computed, {n_draw} frames drawn per view (latest wins)"))
         win.close()
         app.processEvents()
 
