@@ -181,6 +181,21 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
     return out
 
 
+def _share_fonts(texts) -> None:
+    """Give the Text visuals of one canvas one glyph atlas.
+
+    vispy gives every Text visual its own font manager, so each renders every glyph it shows
+    again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
+    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all.
+    """
+    from vispy.visuals.text.text import FontManager
+
+    fm = FontManager(method="cpu")
+    for t in texts:
+        t._font_manager = fm
+        t._update_font()
+
+
 def _rotation_to(z_to: np.ndarray) -> np.ndarray:
     """A rotation matrix taking (0, 0, 1) to the unit vector ``z_to``."""
     z = z_to / np.linalg.norm(z_to)
@@ -339,12 +354,13 @@ class HeadView(_Subscriber):
             scene.visuals.Mesh(verts, faces, color=col, shading=None, parent=root)
             label_pos.append(origin + v * 1.25)
         # one Text visual for all world labels (one glyph atlas, one draw call)
-        scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos), color=np.array(cols),
-                           font_size=11, parent=root)
+        world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
+                                          color=np.array(cols), font_size=11, parent=root)
         # field axis (rebuilt when the field direction changes)
         self.field_mesh = scene.visuals.Mesh(shading=None, color=(0.95, 0.45, 0.9, 1.0), parent=root)
         self.field_label = scene.visuals.Text("B", color=(0.95, 0.45, 0.9, 1.0), font_size=13,
                                               parent=root)
+        _share_fonts([world_labels, self.field_label])
         # head node: everything in the head frame, one transform
         self.head = scene.Node(parent=root)
         self.head.transform = MatrixTransform()
@@ -531,6 +547,8 @@ class MapView(_Subscriber):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
         self.labels.order = 11
+        _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
+                                                       for v in (ax.axis._text, ax.axis._axis_label_vis)])
         self._index = None
         self._receptors = None
         self._marks_key = None
