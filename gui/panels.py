@@ -110,6 +110,22 @@ TIPS = {
 }
 
 
+def _guarded(widget, fn, *args):
+    """Run a widget's slot so that no exception escapes into Qt: an error is handed to the
+    ``on_error(title, exception)`` of the widget (the window's report), else printed."""
+    try:
+        return fn(*args)
+    except Exception as exc:  # noqa: BLE001 - a slot must never raise into Qt
+        handler = getattr(widget, "on_error", None)
+        if handler is not None:
+            handler("Could not apply that change", exc)
+        else:
+            import sys
+
+            print(f"retina viewer: {type(exc).__name__}: {exc}", file=sys.stderr)
+        return None
+
+
 def _scenario_kappa(state) -> float:
     sc = state.scenario
     if sc is None:
@@ -163,10 +179,11 @@ class BoundSlider(QWidget):
             self.reset = QToolButton()
             self.reset.setText("scenario")
             self.reset.setToolTip("use the scenario's own ordering model (kappa dimensionless)")
-            self.reset.clicked.connect(lambda: self.state.set("kappa", None))
+            self.reset.clicked.connect(lambda: _guarded(self, self.state.set, "kappa", None))
             lay.addWidget(self.reset, 1, 2)
-        self.slider.valueChanged.connect(self._from_slider)
-        self.spin.valueChanged.connect(self._from_spin)
+        self.on_error = None
+        self.slider.valueChanged.connect(lambda k: _guarded(self, self._from_slider, k))
+        self.spin.valueChanged.connect(lambda v: _guarded(self, self._from_spin, v))
         self._unsub = [state.events.connect(name, lambda e: self.sync()),
                        state.events.connect("scenario", lambda e: self.sync())]
         self.sync()
@@ -242,7 +259,8 @@ class ChoiceBox(QComboBox):
         self.state, self.name = state, name
         self.addItems(list(choices))
         self.setToolTip(TIPS.get(name, ""))
-        self.currentTextChanged.connect(lambda t: self.state.set(self.name, t))
+        self.on_error = None
+        self.currentTextChanged.connect(lambda t: _guarded(self, self.state.set, self.name, t))
         self._unsub = [state.events.connect(name, lambda e: self.sync())]
         self.sync()
 
@@ -266,7 +284,8 @@ class CheckBox(QCheckBox):
         super().__init__(text, parent)
         self.state, self.name = state, name
         self.setToolTip(TIPS.get(name, ""))
-        self.toggled.connect(lambda on: self.state.set(self.name, bool(on)))
+        self.on_error = None
+        self.toggled.connect(lambda on: _guarded(self, self.state.set, self.name, bool(on)))
         self._unsub = [state.events.connect(name, lambda e: self.sync())]
         self.sync()
 
@@ -338,6 +357,11 @@ class ControlPanel(QWidget):
         scan_box.addWidget(self.play)
         scan_box.addWidget(self.scan_label)
         lay.addStretch(1)
+
+    def set_error_handler(self, on_error) -> None:
+        """Errors raised while a control applies a change go to ``on_error(title, exception)``."""
+        for w in self.controls.values():
+            w.on_error = on_error
 
     def close_bindings(self) -> None:
         for w in self.controls.values():

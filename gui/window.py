@@ -182,6 +182,8 @@ class MainWindow(QMainWindow):
         outer.setStretchFactor(0, 1)
         outer.setSizes([1180, 380])
         self.map_view.on_hover = self.readout.show_receptor
+        self.controls.set_error_handler(
+            lambda title, exc: self.report_error(title, exc, unexpected=not isinstance(exc, (InputError, OSError))))
         self.controls.play.toggled.connect(self._on_play)
         self._build_menus()
         self._build_shortcuts()

@@ -1067,3 +1067,16 @@ def test_readme_names_the_menu_items_and_keys():
     assert len(items) >= 10
     for item in items:
         assert item.replace("&", "").rstrip(".") in text.replace("...", ""), item
+
+
+def test_an_error_inside_a_control_slot_is_reported_not_raised(window):
+    window.dialogs = False
+
+    def boom(event):
+        raise RuntimeError("a subscriber failed")
+
+    stop = window.state.events.connect("roll_deg", boom)
+    c = window.controls.controls["roll_deg"]
+    c.spin.setValue(12.0)                       # Qt calls the slot; the error must stay inside it
+    stop()
+    assert window.last_error == "RuntimeError: a subscriber failed"
