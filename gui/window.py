@@ -351,7 +351,8 @@ class MainWindow(QMainWindow):
                 result.request.scenario is self.state.scenario:
             return  # an older result overtaken by a newer one: latest wins
         self._applied_serial = result.request.serial
-        self._fallback = None  # the scenario produced a pattern: no way back needed
+        if result.request.scenario is self.state.scenario:
+            self._fallback = None  # the scenario produced a pattern: no way back needed
         self.state.set_result(result)
         if self._scan is not None:
             self._show_scan(result)
@@ -361,14 +362,19 @@ class MainWindow(QMainWindow):
     @_slot
     def _on_failed(self, request, message: str) -> None:
         if self._fallback is not None and request.scenario is self.state.scenario:
-            old, values = self._fallback
-            self._fallback = None
-            self.state.load_scenario(old)
-            self.state.update(record=False, **values)
-            self.report_error("Could not open the scenario", f"{message} (the previous scenario is kept)")
+            fallback, self._fallback = self._fallback, None
+            # restore from the event loop, not inside the new scenario's own events
+            QTimer.singleShot(0, lambda: self._restore(fallback, message))
             return
         self.statusBar().showMessage(f"error: {message}")
         self.last_error = message
+
+    @_slot
+    def _restore(self, fallback, message) -> None:
+        old, values = fallback
+        self.state.load_scenario(old)
+        self.state.update(record=False, **values)
+        self.report_error("Could not open the scenario", f"{message} (the previous scenario is kept)")
 
     # ---------------------------------------------------------------- head scan playback
     @_slot

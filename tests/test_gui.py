@@ -1080,3 +1080,18 @@ def test_an_error_inside_a_control_slot_is_reported_not_raised(window):
     c.spin.setValue(12.0)                       # Qt calls the slot; the error must stay inside it
     stop()
     assert window.last_error == "RuntimeError: a subscriber failed"
+
+
+def test_a_scenario_whose_first_pattern_fails_is_rolled_back(window, qapp, tmp_path):
+    window.dialogs = False
+    junk = tmp_path / "junk.h5"
+    junk.write_bytes(b"not an HDF5 file at all")
+    sc_path = tmp_path / "junk.toml"
+    sc_path.write_text(DEMO.read_text().replace('system = "demo_pair.toml"', f'file = "{junk.as_posix()}"'))
+    old = window.state.scenario
+    window.state.yaw_deg = 33.0
+    window.open_scenario(sc_path)          # valid scenario file; its yield file fails in the worker
+    _settle(qapp, 0.3)
+    assert window.state.scenario is old and window.state.yaw_deg == 33.0
+    assert "previous scenario is kept" in window.last_error and "junk.h5" in window.last_error
+    assert window.state.result is not None and window.state.result.request.scenario is old
