@@ -782,6 +782,8 @@ def _settle(qapp, seconds=0.05):
 
 
 def test_one_draw_per_heading_step(window, qapp):
+    # Contract of gui/views.py (common practice, no source: a view redraws once per model change,
+    # never with the new pose and the old colours in between).
     window.show()
     _settle(qapp, 0.5)
     for yaw in (11.0, 12.0, 13.0):
@@ -795,6 +797,8 @@ def test_one_draw_per_heading_step(window, qapp):
 
 
 def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
+    # Common practice, no source: keys go to the focused control (Qt's focus model); global
+    # shortcuts must not take them over.
     from PyQt6.QtCore import Qt
     from PyQt6.QtTest import QTest
 
@@ -816,6 +820,8 @@ def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
 
 
 def test_heading_box_wraps_360_and_negative_values_and_the_slider_end(window):
+    # Derived: headings are angles modulo 360 (design.md, clockwise from north), so 360 -> 0 and
+    # -10 -> 350; the slider's right end must stay a heading near 360, not jump to 0.
     c = window.controls.controls["yaw_deg"]
     c.spin.setValue(360.0)
     assert window.state.yaw_deg == 0.0 and c.spin.value() == 0.0        # not 36.0
@@ -827,6 +833,8 @@ def test_heading_box_wraps_360_and_negative_values_and_the_slider_end(window):
 
 
 def test_zero_width_view_gives_a_message_not_a_crash(window, qapp, tmp_path):
+    # Quality bar (common practice, no source): no exception escapes a Qt slot; bad requests
+    # give a one-line message.
     window.dialogs = False
     window.show()
     split = window.views_widget
@@ -923,6 +931,8 @@ def test_locked_colour_scale_lets_a_weaker_pattern_fade(window):
 
 
 def test_map_labels_do_not_overlap_at_a_horizontal_field(window):
+    # Derived: inclination 0, declination 0, a level head facing north sees B at azimuth 0,
+    # elevation 0 (the beak) and north there too; the labels must still be apart.
     st = window.state
     st.update(inclination_deg=0.0, declination_deg=0.0, yaw_deg=0.0, pitch_deg=0.0, roll_deg=0.0)
     mv = window.map_view
@@ -1028,6 +1038,7 @@ def test_played_scan_shows_the_bound_so_far(window):
 
 
 def test_every_control_has_a_tooltip_with_its_unit(window):
+    # style.md "What we add": every number a user sees carries its unit.
     from retina_viewer.panels import CONTROLS
 
     for c in CONTROLS:
@@ -1095,3 +1106,17 @@ def test_a_scenario_whose_first_pattern_fails_is_rolled_back(window, qapp, tmp_p
     assert window.state.scenario is old and window.state.yaw_deg == 33.0
     assert "previous scenario is kept" in window.last_error and "junk.h5" in window.last_error
     assert window.state.result is not None and window.state.result.request.scenario is old
+
+
+def test_moving_the_mouse_over_the_map_names_the_receptor(window, qapp):
+    window.show()
+    _settle(qapp, 0.3)
+    mv = window.map_view
+    # the canvas pixel of map point (40, 10): invert the scene -> canvas transform
+    tr = mv.view.scene.node_transform(mv.canvas.scene)
+    px = tr.map(np.array([40.0, 10.0]))[:2]
+    np.testing.assert_allclose(mv.map_point(px), (40.0, 10.0), atol=1e-6)
+    mv.canvas.events.mouse_move(pos=px, button=None, buttons=[], modifiers=())
+    k = mv.receptor_at(40.0, 10.0)
+    assert k is not None and f"#{k}" in window.readout.labels["hover"].text()
+    assert "az" in window.readout.labels["hover"].text() and "%" in window.readout.labels["hover"].text()
