@@ -147,6 +147,7 @@ class MainWindow(QMainWindow):
         self._applied_serial = -1
         self._fallback = None        # (scenario, values) to restore if a new scenario fails
         self._scan = None            # playback: dict(yaws, k, centre)
+        self._scan_len = 0
         self._scan_timer = QTimer(self)
         self._scan_timer.timeout.connect(self._scan_tick)
         outer = QSplitter(Qt.Orientation.Horizontal)
@@ -354,7 +355,7 @@ class MainWindow(QMainWindow):
         if result.request.scenario is self.state.scenario:
             self._fallback = None  # the scenario produced a pattern: no way back needed
         self.state.set_result(result)
-        if self._scan is not None:
+        if result.request.scan_yaws:
             self._show_scan(result)
         self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} "
                                      f"({1000 * result.seconds:.1f} ms)", 4000)
@@ -391,6 +392,7 @@ class MainWindow(QMainWindow):
         step = 2.0 * st.scan_amplitude_deg / max(st.scan_steps - 1, 1)
         interval = 1000.0 * step / st.scan_speed_deg_s if step > 0 else 100.0
         self._scan = {"yaws": yaws, "k": 0, "centre": st.yaw_deg}
+        self._scan_len = len(yaws)
         self.controls.play.blockSignals(True)
         self.controls.play.setChecked(True)
         self.controls.play.setText("Stop scan")
@@ -411,8 +413,7 @@ class MainWindow(QMainWindow):
     @_slot
     def _scan_tick(self):
         if not self.scan_step():
-            self._scan_timer.stop()
-            self._scan_done()
+            self._stop_scan(restore=True)  # the scan has ended: back to the start heading
 
     def _scan_done(self):
         self.controls.play.blockSignals(True)
@@ -430,14 +431,12 @@ class MainWindow(QMainWindow):
     def _show_scan(self, res) -> None:
         from .workers import describe_bound
 
-        sc = self._scan
-        k = len(res.request.scan_yaws)
-        if k == 0:
-            return
+        q = res.request
+        k = len(q.scan_yaws)
         self.controls.scan_label.setText(
-            f"look {k} of {len(sc['yaws'])}: bound after the scan so far "
+            f"look {k} of {self._scan_len}: bound after the scan so far "
             f"{describe_bound(res.scan_bound_deg)}; after {k} looks straight at "
-            f"{format_deg(sc['centre'])}: {describe_bound(res.look_bound_deg)}")
+            f"{format_deg(q.scan_centre_deg)}: {describe_bound(res.look_bound_deg)}")
 
     # ---------------------------------------------------------------- files
     def open_scenario(self, path) -> None:

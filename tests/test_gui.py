@@ -1032,8 +1032,9 @@ def test_played_scan_shows_the_bound_so_far(window):
     assert n == 2 * 4 - 1 and len(st.result.request.scan_yaws) == n
     text = window.controls.scan_label.text()
     assert f"look {n} of {n}" in text and "straight at" in text and "deg" in text
-    window._stop_scan(restore=True)
+    window._scan_tick()                  # the tick after the last look ends the scan
     assert st.yaw_deg == start and not window.controls.play.isChecked()
+    assert f"look {n} of {n}" in window.controls.scan_label.text()   # the final numbers stay
     assert not st.history.can_undo       # playback is not an undoable change
 
 
