@@ -5,39 +5,127 @@ Conventions (owned here)
 - A widget writes through the state's validating setter (:mod:`retina_viewer.state`) and listens to the
   state's event for its field; while it shows a value that came from the state it blocks its own
   signals, so a change never echoes back (no feedback loop).
+- The controls are table-driven: :data:`CONTROLS` describes every numeric control (label, unit,
+  slider span, decimals, step, log scale, tooltip) and :data:`GROUPS` places them in boxes, so a new
+  control is one row in each table (plus its state field).  Every control has a tooltip that gives
+  its unit.
 - Numeric controls pair a slider (coarse, drag) with a spin box (exact, typed); log-scaled fields
   (photons, kappa) move the slider in equal steps of ``log10``; the far left of the kappa slider
-  is 0 (no order: isotropic for the "cone" and "plane" models).
-- The readout panel shows the numbers of the latest worker result (:mod:`retina_viewer.workers`) with their
-  units; it never computes anything itself.
+  is 0 (no order: isotropic for the "cone" and "plane" models).  The heading spin box takes any
+  angle (360 is 0, -10 is 350: the state wraps it) and its slider ends at 359 deg.
+- Arrow keys belong to the focused control: the window's head-turning keys act only when a view
+  has the focus (:mod:`retina_viewer.window`).
+- The readout panel and the bound plot show the numbers of the latest worker result
+  (:mod:`retina_viewer.workers`) with their units, in words where a number would mislead
+  (:func:`retina_viewer.workers.describe_bound`); they never compute anything themselves.
 """
 
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
-from PyQt6.QtCore import Qt
-from PyQt6.QtWidgets import (QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout, QGroupBox,
-                             QLabel, QSlider, QToolButton, QVBoxLayout, QWidget)
+from PyQt6.QtCore import QPointF, QRectF, Qt
+from PyQt6.QtGui import QColor, QPainter, QPainterPath, QPen
+from PyQt6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout, QGroupBox,
+                             QLabel, QPushButton, QSlider, QToolButton, QVBoxLayout, QWidget)
 
 from retina.errors import InputError
 
-__all__ = ["BoundSlider", "ChoiceBox", "ControlPanel", "ReadoutPanel", "CONTROLS"]
+__all__ = ["Control", "CONTROLS", "GROUPS", "BoundSlider", "ChoiceBox", "CheckBox", "ControlPanel",
+           "ReadoutPanel", "BoundPlot"]
 
 _TICKS = 1000
 
-#: (field, label, unit suffix, slider range, decimals, spin step, log scale) of every numeric control.
+
+@dataclass(frozen=True)
+class Control:
+    """One numeric control: state field, label, spin-box suffix (the unit), slider span, decimals,
+    spin step, log-scaled slider, tooltip."""
+
+    name: str
+    label: str
+    unit: str
+    span: tuple
+    decimals: int = 1
+    step: float = 1.0
+    log: bool = False
+    tip: str = ""
+
+
+#: Every numeric control (module docstring).
 CONTROLS = (
-    ("yaw_deg", "heading (yaw)", " deg", (0.0, 360.0), 1, 1.0, False),
-    ("pitch_deg", "pitch (nose up +)", " deg", (-90.0, 90.0), 1, 1.0, False),
-    ("roll_deg", "roll (right down +)", " deg", (-180.0, 180.0), 1, 1.0, False),
-    ("intensity_uT", "intensity", " uT", (10.0, 100.0), 1, 1.0, False),
-    ("inclination_deg", "inclination (down +)", " deg", (-90.0, 90.0), 1, 1.0, False),
-    ("declination_deg", "declination (east +)", " deg", (-180.0, 180.0), 1, 1.0, False),
-    ("photons", "light (photons/receptor)", "", (1.0, 1e6), 1, 10.0, True),
-    ("kappa", "ordering kappa", "", (0.1, 1000.0), 2, 1.0, True),
+    Control("yaw_deg", "heading (yaw)", " deg", (0.0, 359.0), 1, 1.0, False,
+            "Heading of the beak, degrees clockwise from geographic north (0-360; typed values "
+            "wrap, -10 is 350). Keys in a view: Left/Right 5 deg, with Shift 1 deg."),
+    Control("pitch_deg", "pitch (nose up +)", " deg", (-90.0, 90.0), 1, 1.0, False,
+            "Head pitch, degrees, nose up positive (-90 to 90). Keys in a view: Up/Down."),
+    Control("roll_deg", "roll (right down +)", " deg", (-180.0, 180.0), 1, 1.0, False,
+            "Head roll, degrees, right side down positive (-180 to 180). Keys in a view: "
+            "Page Up/Page Down."),
+    Control("intensity_uT", "intensity", " uT", (10.0, 100.0), 1, 1.0, False,
+            "Total field intensity F, microtesla. A yield function computed from a spin system is "
+            "recomputed at this field; one read from a file is not."),
+    Control("inclination_deg", "inclination (down +)", " deg", (-90.0, 90.0), 1, 1.0, False,
+            "Field inclination I, degrees below the horizontal (-90 to 90; 0 horizontal, "
+            "90 straight down)."),
+    Control("declination_deg", "declination (east +)", " deg", (-180.0, 180.0), 1, 1.0, False,
+            "Field declination D, degrees east of geographic north (-180 to 180)."),
+    Control("photons", "light level", " photons", (1.0, 1e6), 1, 10.0, True,
+            "Light level: mean photons (radical pairs formed) per receptor per look; log slider."),
+    Control("kappa", "ordering kappa", "", (0.1, 1000.0), 2, 1.0, True,
+            "Concentration kappa of the ordering model (cone: von Mises-Fisher concentration of the "
+            "molecular axis about the receptor axis; plane: Watson girdle concentration; "
+            "dimensionless, larger is better ordered); log slider, far left is 0 (no order). "
+            "'scenario' returns to the scenario's own kappa."),
+    Control("scan_amplitude_deg", "scan amplitude (+/-)", " deg", (0.0, 180.0), 0, 5.0, False,
+            "Half-width of the head scan, degrees: the scan sweeps heading +/- amplitude about the "
+            "heading at which it starts."),
+    Control("scan_steps", "scan looks per sweep", " looks", (2.0, 73.0), 0, 1.0, False,
+            "Looks (poses) from one end of the sweep to the other, a count (2-721)."),
+    Control("scan_repeats", "scan repeats", " sweeps", (1.0, 10.0), 0, 1.0, False,
+            "How many times the scan goes out and back, a count (1-100)."),
+    Control("scan_speed_deg_s", "scan playback speed", " deg/s", (5.0, 720.0), 0, 5.0, True,
+            "How fast the head turns while the scan plays, degrees per second (playback only; "
+            "the bound depends on the looks, not on the speed)."),
 )
+
+#: Boxes of the control panel: (title, fields).
+GROUPS = (
+    ("Head pose (keys in a view turn and tilt)", ("yaw_deg", "pitch_deg", "roll_deg")),
+    ("Geomagnetic field", ("intensity_uT", "inclination_deg", "declination_deg")),
+    ("Receptors and light", ("photons", "ordering", "kappa")),
+    ("Head scan", ("scan_amplitude_deg", "scan_steps", "scan_repeats", "scan_speed_deg_s")),
+)
+
+#: Tooltips of the non-numeric controls.
+TIPS = {
+    "display": "What the colours show: relative modulation (yield / mean - 1 of each eye, %) or the "
+               "yield itself (dimensionless, 0-1).",
+    "eye": "Show both eyes, or one (the other is drawn faint grey).",
+    "lock_scale": "Keep the colour limits of the pattern shown now, so weaker patterns visibly fade "
+                  "(units of the colour bar: % modulation or yield).",
+    "play": "Play the head scan from the current heading (Stop returns to it). The readout compares "
+            "the bound after the looks so far with as many looks straight at the start heading "
+            "(degrees).",
+}
+
+
+def _guarded(widget, fn, *args):
+    """Run a widget's slot so that no exception escapes into Qt: an error is handed to the
+    ``on_error(title, exception)`` of the widget (the window's report), else printed."""
+    try:
+        return fn(*args)
+    except Exception as exc:  # noqa: BLE001 - a slot must never raise into Qt
+        handler = getattr(widget, "on_error", None)
+        if handler is not None:
+            handler("Could not apply that change", exc)
+        else:
+            import sys
+
+            print(f"retina viewer: {type(exc).__name__}: {exc}", file=sys.stderr)
+        return None
 
 
 def _scenario_kappa(state) -> float:
@@ -53,42 +141,36 @@ class BoundSlider(QWidget):
     Parameters
     ----------
     state : retina_viewer.state.ViewerState
-    name : str
-        The state field.
-    label, unit : str
-    span : tuple of float
-        Slider range (the spin box accepts the state's full range where it is wider).
-    decimals : int
-    step : float
-        Spin-box step (for log fields: a multiplicative step is not used; the step is additive).
-    log : bool
-        Log-scaled slider.
+    control : Control
+        The row of :data:`CONTROLS` (label, unit, span, decimals, step, log, tooltip).
     """
 
-    def __init__(self, state, name, label, unit, span, decimals=1, step=1.0, log=False, parent=None):
+    def __init__(self, state, control: Control, parent=None):
         super().__init__(parent)
         from .state import RANGES
 
-        self.state, self.name, self.log = state, name, bool(log)
-        self.lo, self.hi = float(span[0]), float(span[1])
-        self.label = QLabel(label)
+        c = control
+        name = c.name
+        self.state, self.name, self.log = state, name, bool(c.log)
+        self.lo, self.hi = float(c.span[0]), float(c.span[1])
+        self.label = QLabel(c.label)
         self.slider = QSlider(Qt.Orientation.Horizontal)
         self.slider.setRange(0, _TICKS)
-        self.slider.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
+        self.slider.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         self.spin = QDoubleSpinBox()
-        full = RANGES.get(name, span)
+        full = RANGES.get(name, c.span)
         if name == "yaw_deg":
-            self.spin.setRange(0.0, 359.9)
+            self.spin.setRange(-360.0, 720.0)  # any typed angle; the state wraps it into [0, 360)
         else:
-            lo = max(full[0], 10.0 ** -decimals) if log and name != "kappa" else full[0]
+            lo = max(full[0], 10.0 ** -c.decimals) if c.log and name != "kappa" else full[0]
             self.spin.setRange(lo, full[1])
-        if name == "yaw_deg":
-            self.spin.setWrapping(True)
-        self.spin.setDecimals(decimals)
-        self.spin.setSingleStep(step)
-        self.spin.setSuffix(unit)
+        self.spin.setDecimals(c.decimals)
+        self.spin.setSingleStep(c.step)
+        self.spin.setSuffix(c.unit)
         self.spin.setKeyboardTracking(False)
-        self.spin.setMinimumWidth(92)
+        self.spin.setMinimumWidth(96)
+        for w in (self.label, self.slider, self.spin):
+            w.setToolTip(c.tip)
         self.reset = None
         lay = QGridLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -98,11 +180,12 @@ class BoundSlider(QWidget):
         if name == "kappa":
             self.reset = QToolButton()
             self.reset.setText("scenario")
-            self.reset.setToolTip("use the scenario's own ordering model")
-            self.reset.clicked.connect(lambda: self.state.set("kappa", None))
+            self.reset.setToolTip("use the scenario's own ordering model (kappa dimensionless)")
+            self.reset.clicked.connect(lambda: _guarded(self, self.state.set, "kappa", None))
             lay.addWidget(self.reset, 1, 2)
-        self.slider.valueChanged.connect(self._from_slider)
-        self.spin.valueChanged.connect(self._from_spin)
+        self.on_error = None
+        self.slider.valueChanged.connect(lambda k: _guarded(self, self._from_slider, k))
+        self.spin.valueChanged.connect(lambda v: _guarded(self, self._from_spin, v))
         self._unsub = [state.events.connect(name, lambda e: self.sync()),
                        state.events.connect("scenario", lambda e: self.sync())]
         self.sync()
@@ -151,6 +234,9 @@ class BoundSlider(QWidget):
             self.state.set(self.name, v)
         except InputError:
             self.sync()  # out of range: show the state's value again
+        else:
+            if self.name == "yaw_deg" and self.spin.value() != self.value():
+                self.sync()  # a typed 360 or -10 shows the wrapped heading
 
     def _from_slider(self, k: int) -> None:
         v = self.from_ticks(k)
@@ -183,7 +269,9 @@ class ChoiceBox(QComboBox):
         super().__init__(parent)
         self.state, self.name = state, name
         self.addItems(list(choices))
-        self.currentTextChanged.connect(lambda t: self.state.set(self.name, t))
+        self.setToolTip(TIPS.get(name, ""))
+        self.on_error = None
+        self.currentTextChanged.connect(lambda t: _guarded(self, self.state.set, self.name, t))
         self._unsub = [state.events.connect(name, lambda e: self.sync())]
         self.sync()
 
@@ -200,13 +288,42 @@ class ChoiceBox(QComboBox):
         self._unsub.clear()
 
 
+class CheckBox(QCheckBox):
+    """A check box bound to a true/false field of the state (``lock_scale``)."""
+
+    def __init__(self, state, name, text, parent=None):
+        super().__init__(text, parent)
+        self.state, self.name = state, name
+        self.setToolTip(TIPS.get(name, ""))
+        self.on_error = None
+        self.toggled.connect(lambda on: _guarded(self, self.state.set, self.name, bool(on)))
+        self._unsub = [state.events.connect(name, lambda e: self.sync())]
+        self.sync()
+
+    def sync(self) -> None:
+        self.blockSignals(True)
+        try:
+            self.setChecked(bool(self.state.get(self.name)))
+        finally:
+            self.blockSignals(False)
+
+    def close_binding(self) -> None:
+        for u in self._unsub:
+            u()
+        self._unsub.clear()
+
+
 class ControlPanel(QWidget):
-    """All controls: head pose, field, receptors and light, display.
+    """All controls (:data:`GROUPS`), the display choices and the scan's play button.
 
     Attributes
     ----------
     controls : dict
-        Field name -> :class:`BoundSlider` or :class:`ChoiceBox`.
+        Field name -> :class:`BoundSlider`, :class:`ChoiceBox` or :class:`CheckBox`.
+    play : QPushButton
+        Checkable; the window plays the scan while it is checked.
+    scan_label : QLabel
+        The scan's progress and bounds (set by the window).
     """
 
     def __init__(self, state, parent=None):
@@ -221,16 +338,17 @@ class ControlPanel(QWidget):
         row = QGridLayout(box)
         self.controls["display"] = ChoiceBox(state, "display", DISPLAYS)
         self.controls["eye"] = ChoiceBox(state, "eye", EYES)
-        row.addWidget(QLabel("colour by"), 0, 0)
-        row.addWidget(self.controls["display"], 0, 1)
-        row.addWidget(QLabel("eye"), 0, 2)
-        row.addWidget(self.controls["eye"], 0, 3)
+        self.controls["lock_scale"] = CheckBox(state, "lock_scale", "lock colour scale")
+        for col, (text, key) in enumerate((("colour by", "display"), ("eye", "eye"))):
+            lab = QLabel(text)
+            lab.setToolTip(TIPS[key])
+            row.addWidget(lab, 0, 2 * col)
+            row.addWidget(self.controls[key], 0, 2 * col + 1)
+        row.addWidget(self.controls["lock_scale"], 1, 0, 1, 4)
         lay.addWidget(box)
-        groups = (("Head pose (arrow keys turn and tilt)", ("yaw_deg", "pitch_deg", "roll_deg")),
-                  ("Geomagnetic field", ("intensity_uT", "inclination_deg", "declination_deg")),
-                  ("Receptors and light", ("photons", "ordering", "kappa")))
-        spec = {c[0]: c for c in CONTROLS}
-        for title, names in groups:
+        spec = {c.name: c for c in CONTROLS}
+        self.boxes = {}
+        for title, names in GROUPS:
             box = QGroupBox(title)
             bl = QVBoxLayout(box)
             bl.setSpacing(2)
@@ -240,32 +358,44 @@ class ControlPanel(QWidget):
 
                     self.controls[n] = ChoiceBox(state, n, ORDERINGS)
                     self.controls[n].setToolTip(_ORDERING_TIP)
-                    bl.addWidget(QLabel("ordering model"))
+                    lab = QLabel("ordering model")
+                    lab.setToolTip(_ORDERING_TIP)
+                    bl.addWidget(lab)
                     bl.addWidget(self.controls[n])
                     continue
-                _, label, unit, span, dec, step, log = spec[n]
-                w = BoundSlider(state, n, label, unit, span, dec, step, log)
+                w = BoundSlider(state, spec[n])
                 self.controls[n] = w
                 bl.addWidget(w)
+            self.boxes[title] = (box, bl)
             lay.addWidget(box)
+        scan_box = self.boxes["Head scan"][1]
+        self.play = QPushButton("Play scan")
+        self.play.setCheckable(True)
+        self.play.setToolTip(TIPS["play"])
+        self.scan_label = QLabel("not playing")
+        self.scan_label.setWordWrap(True)
+        self.scan_label.setToolTip(TIPS["play"])
+        scan_box.addWidget(self.play)
+        scan_box.addWidget(self.scan_label)
         lay.addStretch(1)
+
+    def set_error_handler(self, on_error) -> None:
+        """Errors raised while a control applies a change go to ``on_error(title, exception)``."""
+        for w in self.controls.values():
+            w.on_error = on_error
 
     def close_bindings(self) -> None:
         for w in self.controls.values():
             w.close_binding()
 
 
-def _fmt_deg(v: float) -> str:
-    return "no information (infinite)" if not np.isfinite(v) else f"{v:.2f} deg"
-
-
 class ReadoutPanel(QGroupBox):
     """Live numbers of the latest result (module docstring)."""
 
-    ROWS = (("depth", "modulation depth"), ("bound", "Cramer-Rao bound here"),
-            ("rms", "bound, rms over headings"), ("light", "light level"),
-            ("bhead", "field in head (az, el)"), ("yield", "yield function"),
-            ("time", "computed in"))
+    ROWS = (("pose", "pattern shown for"), ("depth", "modulation depth"), ("bound", "Cramer-Rao bound here"),
+            ("rms", "bound, rms over headings"), ("mirror", "heading + 180 deg"),
+            ("light", "light level"), ("bhead", "field in head (az, el)"),
+            ("yield", "yield function"), ("time", "computed in"), ("hover", "under the cursor"))
 
     def __init__(self, state, parent=None):
         super().__init__("Readout", parent)
@@ -275,8 +405,11 @@ class ReadoutPanel(QGroupBox):
         for key, text in self.ROWS:
             lab = QLabel("-")
             lab.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+            lab.setWordWrap(True)
             self.labels[key] = lab
             fl.addRow(text, lab)
+        self.labels["hover"].setToolTip("The receptor under the mouse in the map: eye, visual "
+                                        "direction (azimuth, elevation, deg), yield, modulation (%)")
         self._unsub = [state.events.connect("result", lambda e: self.refresh()),
                        state.events.connect("scenario", lambda e: self.clear())]
 
@@ -285,6 +418,8 @@ class ReadoutPanel(QGroupBox):
             lab.setText("-")
 
     def refresh(self) -> None:
+        from .workers import describe_bound, format_deg
+
         res = self.state.result
         if res is None:
             self.clear()
@@ -293,17 +428,157 @@ class ReadoutPanel(QGroupBox):
         az = math.degrees(math.atan2(b[1], b[0]))
         el = math.degrees(math.asin(max(-1.0, min(1.0, -b[2]))))
         nuis = res.request.scenario["readout"]["nuisance"]
-        self.labels["depth"].setText(f"{100.0 * res.depth:.2f} %")
-        self.labels["bound"].setText(_fmt_deg(res.bound_deg))
-        self.labels["rms"].setText(_fmt_deg(res.rms_bound_deg))
-        self.labels["light"].setText(f"{res.request.photons:.4g} photons"
+        q = res.request
+        self.labels["pose"].setText(f"heading {format_deg(q.yaw_deg)}, pitch {format_deg(q.pitch_deg)}, "
+                                    f"roll {format_deg(q.roll_deg)}")
+        self.labels["depth"].setText("0 % (flat pattern)" if res.flat else f"{100.0 * res.depth:.2f} %")
+        self.labels["bound"].setText(describe_bound(res.bound_deg, res.status))
+        rms_status = "none" if res.status == "none" else "ok"
+        self.labels["rms"].setText(describe_bound(res.rms_bound_deg, rms_status))
+        if res.status == "none":
+            mirror = "-"
+        elif res.ambiguous:
+            mirror = (f"ambiguous: gives the same pattern (d' = {res.mirror_dprime:.2g} < 1); "
+                      "heading known only up to 180 deg")
+        else:
+            mirror = f"told apart (d' = {res.mirror_dprime:.3g})"
+        self.labels["mirror"].setText(mirror)
+        self.labels["light"].setText(f"{res.request.photons:.4g} photons per receptor per look"
                                      + (", gain unknown" if nuis == "gain" else ""))
-        self.labels["bhead"].setText(f"{az:.1f} deg, {el:.1f} deg")
+        self.labels["bhead"].setText(f"{format_deg(az)}, {format_deg(el)}")
         F = res.yield_field_uT
         self.labels["yield"].setText((f"at {F:g} uT" if np.isfinite(F) else "field not recorded")
                                      + " (hover: source)")
         self.labels["yield"].setToolTip(res.yield_note)
         self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms")
+
+    def show_receptor(self, info) -> None:
+        """Show :meth:`retina_viewer.views.MapView.receptor_info` (None: off the eyes)."""
+        from .workers import format_deg
+
+        if info is None:
+            self.labels["hover"].setText("-")
+            return
+        self.labels["hover"].setText(
+            f"{info['eye']} eye #{info['index']}: az {format_deg(info['azimuth_deg'])}, "
+            f"el {format_deg(info['elevation_deg'])}; yield {info['yield']:.5f}, "
+            f"modulation {100.0 * info['modulation']:+.3f} %")
+
+    def close_binding(self) -> None:
+        for u in self._unsub:
+            u()
+        self._unsub.clear()
+
+
+class BoundPlot(QWidget):
+    """The Cramer-Rao bound against heading over the whole circle, the current heading marked.
+
+    Log scale in degrees; the band above :data:`retina.readout.fisher.INFORMATIVE_BOUND_DEG` is
+    grey ("not informative").  Without information, or with a 180 deg ambiguity, it says so in
+    words (:meth:`message`).
+    """
+
+    def __init__(self, state, parent=None):
+        super().__init__(parent)
+        self.state = state
+        self.setMinimumSize(200, 150)
+        self.setToolTip("Cramer-Rao bound on heading (degrees, log scale) at every heading, at this "
+                        "pitch, roll, field and light level; the vertical line is the current heading")
+        self._path_key = None
+        self._path = None
+        self._unsub = [state.events.connect("result", lambda e: self.update()),
+                       state.events.connect("scenario", lambda e: self.update())]
+
+    def message(self) -> str:
+        """The words shown over the plot ('' when the curve speaks for itself)."""
+        from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+        res = self.state.result
+        if res is None or res.curve_bound_deg is None:
+            return "computing..."
+        if res.status == "none":
+            return "no heading information at any heading"
+        c = np.asarray(res.curve_bound_deg)
+        if np.all(c > INFORMATIVE_BOUND_DEG):
+            return "not informative at any heading at this light level"
+        if res.ambiguous:
+            return "ambiguous: heading and heading + 180 deg give the same pattern"
+        return ""
+
+    def paintEvent(self, event):  # noqa: N802 - Qt name
+        try:
+            self._paint()
+        except Exception:  # noqa: BLE001 - nothing may escape a Qt slot
+            pass
+
+    def _paint(self):
+        from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+        p = QPainter(self)
+        p.setRenderHint(QPainter.RenderHint.Antialiasing)
+        W, H = self.width(), self.height()
+        p.fillRect(0, 0, W, H, QColor(250, 250, 250))
+        left, right, top, bottom = 44, 10, 18, 28
+        pw, ph = max(W - left - right, 1), max(H - top - bottom, 1)
+        p.setPen(QColor(30, 30, 30))
+        p.drawText(QRectF(left, 0, pw, top), Qt.AlignmentFlag.AlignCenter,
+                   "bound on heading (deg) vs heading")
+        res = self.state.result
+        c = None if res is None or res.curve_bound_deg is None else np.asarray(res.curve_bound_deg, float)
+        finite = c[np.isfinite(c)] if c is not None else np.zeros(0)
+        lo_dec = math.floor(math.log10(max(0.5 * float(finite.min()), 1e-3))) if finite.size else -1
+        ymin, ymax = 10.0 ** lo_dec, 180.0
+
+        def X(h):
+            return left + pw * (h / 360.0)
+
+        def Y(v):
+            v = min(max(v, ymin), ymax)
+            return top + ph * (1.0 - (math.log10(v) - math.log10(ymin)) / (math.log10(ymax) - math.log10(ymin)))
+
+        # not-informative band
+        p.fillRect(QRectF(left, top, pw, Y(INFORMATIVE_BOUND_DEG) - top), QColor(225, 225, 225))
+        p.setPen(QPen(QColor(120, 120, 120), 1))
+        p.drawRect(QRectF(left, top, pw, ph))
+        for d in range(lo_dec, 3):
+            v = 10.0 ** d
+            if v > ymax:
+                break
+            p.drawText(QRectF(0, Y(v) - 8, left - 4, 16),
+                       Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter, f"{v:g}")
+        for h in (0, 90, 180, 270, 360):
+            p.drawText(QRectF(X(h) - 20, top + ph + 2, 40, 14), Qt.AlignmentFlag.AlignCenter, str(h))
+        p.drawText(QRectF(left, top + ph + 13, pw, 14), Qt.AlignmentFlag.AlignCenter,
+                   "heading (deg); grey: not informative")
+        if c is not None and res.status != "none":
+            q = res.request
+            key = (id(q.scenario), q.pitch_deg, q.roll_deg, q.intensity_uT, q.inclination_deg,
+                   q.declination_deg, q.photons, q.kappa, W, H)
+            if key != self._path_key:  # the curve changes with pitch, roll, field, light only
+                xs = left + pw * (np.arange(c.size) / 360.0)
+                v = np.clip(np.where(np.isfinite(c), c, ymax), ymin, ymax)
+                ys = top + ph * (1.0 - (np.log10(v) - math.log10(ymin)) / (math.log10(ymax) - math.log10(ymin)))
+                path = QPainterPath(QPointF(xs[0], ys[0]))
+                for x, y in zip(xs[1:].tolist(), ys[1:].tolist()):
+                    path.lineTo(x, y)
+                self._path, self._path_key = path, key
+            p.setPen(QPen(QColor(20, 70, 160), 1.6))
+            p.drawPath(self._path)
+        # the heading of the pattern shown (it moves with the result, drawn once per step)
+        yaw = float(res.request.yaw_deg) if res is not None else float(self.state.yaw_deg)
+        p.setPen(QPen(QColor(200, 60, 30), 1.5))
+        p.drawLine(QPointF(X(yaw), top), QPointF(X(yaw), top + ph))
+        if res is not None and res.ambiguous:
+            p.setPen(QPen(QColor(200, 60, 30), 1.0, Qt.PenStyle.DashLine))
+            m = (yaw + 180.0) % 360.0
+            p.drawLine(QPointF(X(m), top), QPointF(X(m), top + ph))
+        msg = self.message()
+        if msg:
+            p.setPen(QColor(150, 20, 20))
+            p.drawText(QRectF(left + 4, top + 2, pw - 8, ph - 4),
+                       Qt.AlignmentFlag.AlignHCenter | Qt.AlignmentFlag.AlignBottom | Qt.TextFlag.TextWordWrap,
+                       msg)
+        p.end()
 
     def close_binding(self) -> None:
         for u in self._unsub:

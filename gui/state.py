@@ -17,6 +17,18 @@ Conventions (owned here)
 - Derived state (the current pattern and its readout numbers) is not computed here: the window
   asks a worker (:mod:`retina_viewer.workers`) with :meth:`ViewerState.request` and stores the answer with
   :meth:`ViewerState.set_result`, which emits ``"result"``.
+- Colour scale: ``lock_scale`` keeps the colour limits taken when it was switched on
+  (:attr:`ViewerState.locked_limits`, set by the window from the result shown then), so a weaker
+  pattern visibly fades instead of being stretched to the full scale again.
+- Head scan playback (``scan_amplitude_deg``, ``scan_steps``, ``scan_repeats``,
+  ``scan_speed_deg_s``): a triangular yaw sweep about the heading at which play starts,
+  :func:`scan_yaws`.
+- Undo and redo (:class:`History`): every user change (:meth:`ViewerState.set` and
+  :meth:`ViewerState.update` with ``record=True``) is one step; rapid changes of the same field
+  (a slider drag, less than :data:`MERGE_SECONDS` apart) merge into one step.  Loading a scenario
+  clears the history; scan playback does not record.
+- :meth:`ViewerState.to_scenario` writes the current pose, field, light level and ordering into a
+  copy of the scenario, so ``retina patterns`` on it reproduces what the viewer shows.
 - The model never knows its views: views and panels subscribe with :meth:`EventEmitter.connect`.
 """
 
@@ -29,7 +41,8 @@ from typing import Any, Callable
 
 from retina.errors import InputError
 
-__all__ = ["Event", "EventEmitter", "ViewerState", "FIELDS", "DISPLAYS", "EYES", "ORDERINGS", "RANGES"]
+__all__ = ["Event", "EventEmitter", "ViewerState", "History", "FIELDS", "DISPLAYS", "EYES", "ORDERINGS",
+           "RANGES", "INTEGER_FIELDS", "MERGE_SECONDS", "scan_yaws"]
 
 #: Display choices: what the colours show.
 DISPLAYS = ("modulation", "yields")
@@ -48,11 +61,46 @@ RANGES: dict[str, tuple[float, float]] = {
     "declination_deg": (-180.0, 180.0),
     "photons": (1e-3, 1e9),
     "kappa": (0.0, 1e6),
+    "scan_amplitude_deg": (0.0, 180.0),
+    "scan_steps": (2.0, 721.0),
+    "scan_repeats": (1.0, 100.0),
+    "scan_speed_deg_s": (1.0, 2000.0),
 }
+
+#: Numeric fields that take whole numbers only.
+INTEGER_FIELDS = ("scan_steps", "scan_repeats")
+
+#: Units of the numeric fields, for messages and tooltips.
+UNITS = {"yaw_deg": "degrees", "pitch_deg": "degrees", "roll_deg": "degrees", "intensity_uT": "uT",
+         "inclination_deg": "degrees", "declination_deg": "degrees", "photons": "photons",
+         "kappa": "", "scan_amplitude_deg": "degrees", "scan_steps": "steps",
+         "scan_repeats": "sweeps", "scan_speed_deg_s": "deg/s"}
+
+#: Changes of one field closer together than this (seconds) merge into one undo step.
+MERGE_SECONDS = 0.6
 
 #: The user-settable fields, in the order panels show them.
 FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg", "declination_deg",
-          "photons", "ordering", "kappa", "display", "eye")
+          "photons", "ordering", "kappa", "display", "eye", "lock_scale", "scan_amplitude_deg",
+          "scan_steps",
+          "scan_repeats", "scan_speed_deg_s")
+
+
+def scan_yaws(centre_deg: float, amplitude_deg: float, steps: int, repeats: int):
+    """Yaw of every look of a played head scan, degrees, shape ``(L,)``.
+
+    A triangular sweep: ``steps`` looks evenly spaced from ``centre - amplitude`` to
+    ``centre + amplitude`` and back, ``repeats`` times (out and back is one repeat; the turning
+    points are not visited twice), ending where it started; ``L = repeats * 2 * (steps - 1) + 1``.
+    Amplitude 0 is ``L`` looks at the centre.
+    """
+    import numpy as np
+
+    steps, repeats = int(steps), int(repeats)
+    out = np.linspace(centre_deg - amplitude_deg, centre_deg + amplitude_deg, steps)
+    one = np.concatenate([out, out[-2::-1]])  # out and back: 2 * steps - 1 looks
+    yaws = np.concatenate([one[:-1]] * repeats + [one[-1:]])
+    return yaws % 360.0
 
 
 @dataclass(frozen=True)
@@ -111,6 +159,68 @@ def _number(name: str, value, source) -> float:
     return v
 
 
+class History:
+    """Undo and redo of user changes (module docstring).
+
+    Each step maps field names to ``(old, new)`` values.  ``clock`` returns seconds (injectable for
+    tests).
+    """
+
+    def __init__(self, clock=None, merge_seconds: float = MERGE_SECONDS):
+        import time
+
+        self._clock = clock or time.monotonic
+        self.merge_seconds = float(merge_seconds)
+        self._undo: list[dict] = []
+        self._redo: list[dict] = []
+        self._last = None  # (time, names) of the last recorded step, for merging
+
+    def record(self, changes: dict) -> None:
+        """Record one step ``{name: (old, new)}``."""
+        if not changes:
+            return
+        now = self._clock()
+        names = frozenset(changes)
+        if (self._undo and self._last is not None and self._last[1] == names
+                and now - self._last[0] < self.merge_seconds):
+            step = self._undo[-1]
+            for k, (_, new) in changes.items():
+                step[k] = (step[k][0], new)
+        else:
+            self._undo.append(dict(changes))
+        self._last = (now, names)
+        self._redo.clear()
+
+    def clear(self) -> None:
+        self._undo.clear()
+        self._redo.clear()
+        self._last = None
+
+    @property
+    def can_undo(self) -> bool:
+        return bool(self._undo)
+
+    @property
+    def can_redo(self) -> bool:
+        return bool(self._redo)
+
+    def pop_undo(self) -> dict | None:
+        if not self._undo:
+            return None
+        step = self._undo.pop()
+        self._redo.append(step)
+        self._last = None
+        return {k: old for k, (old, _) in step.items()}
+
+    def pop_redo(self) -> dict | None:
+        if not self._redo:
+            return None
+        step = self._redo.pop()
+        self._undo.append(step)
+        self._last = None
+        return {k: new for k, (_, new) in step.items()}
+
+
 class ViewerState:
     """Everything the viewer shows, with validating setters and one event per changed field.
 
@@ -124,6 +234,8 @@ class ViewerState:
     ----------
     events : EventEmitter
         Event names: the :data:`FIELDS`, ``"scenario"`` and ``"result"``.
+    history : History
+        Undo and redo of user changes.
     """
 
     def __init__(self, scenario=None):
@@ -133,10 +245,14 @@ class ViewerState:
             "yaw_deg": 0.0, "pitch_deg": 0.0, "roll_deg": 0.0, "intensity_uT": 50.0,
             "inclination_deg": 60.0, "declination_deg": 0.0, "photons": 300.0, "ordering": "scenario",
             "kappa": None,
-            "display": "modulation", "eye": "both",
+            "display": "modulation", "eye": "both", "lock_scale": False,
+            "scan_amplitude_deg": 45.0, "scan_steps": 13, "scan_repeats": 1, "scan_speed_deg_s": 90.0,
         }
         self._result = None
         self._serial = 0
+        self.history = History()
+        #: Colour limits per display kept while ``lock_scale`` is on: {"modulation": (lo, hi), ...}.
+        self.locked_limits: dict = {}
         if scenario is not None:
             self.load_scenario(scenario)
 
@@ -156,9 +272,13 @@ class ViewerState:
             v = _number(name, value, src)
             lo, hi = RANGES[name]
             if not lo <= v <= hi:
-                unit = {"intensity_uT": " uT", "photons": " photons", "kappa": ""}.get(name, " degrees")
-                raise InputError(f"expected a value in [{lo:g}, {hi:g}]{unit}, got {value!r}",
-                                 source=src, key=name)
+                unit = UNITS.get(name, "")
+                raise InputError(f"expected a value in [{lo:g}, {hi:g}]{' ' + unit if unit else ''}, "
+                                 f"got {value!r}", source=src, key=name)
+            if name in INTEGER_FIELDS:
+                if v != int(v):
+                    raise InputError(f"expected a whole number, got {value!r}", source=src, key=name)
+                return int(v)
             return v
         if name == "display":
             if value not in DISPLAYS:
@@ -172,16 +292,22 @@ class ViewerState:
             if value not in EYES:
                 raise InputError(f"expected one of {EYES}, got {value!r}", source=src, key=name)
             return value
+        if name == "lock_scale":
+            if not isinstance(value, bool):
+                raise InputError(f"expected true or false, got {value!r}", source=src, key=name)
+            return value
         raise InputError(f"unknown viewer setting {name!r}; expected one of {FIELDS}", key=name)
 
-    def set(self, name: str, value) -> bool:
+    def set(self, name: str, value, *, record: bool = True) -> bool:
         """Validate and set one field; emit its event if the value changed.  Returns whether it
-        changed."""
+        changed.  ``record``: make the change one undo step (:class:`History`)."""
         v = self._validate(name, value)
         old = self._v[name]
         if v == old:
             return False
         self._v[name] = v
+        if record:
+            self.history.record({name: (old, v)})
         self.events.emit(name, v, old)
         return True
 
@@ -190,15 +316,30 @@ class ViewerState:
             raise InputError(f"unknown viewer setting {name!r}; expected one of {FIELDS}", key=name)
         return self._v[name]
 
-    def update(self, **values) -> list[str]:
+    def update(self, *, record: bool = True, **values) -> list[str]:
         """Validate every value first, then set them (one event per changed field, in
-        :data:`FIELDS` order).  Returns the names that changed."""
+        :data:`FIELDS` order).  Returns the names that changed; ``record``: as one undo step."""
         checked = {k: self._validate(k, v) for k, v in values.items()}
-        changed = []
+        changed, step = [], {}
         for k in FIELDS:
-            if k in checked and self.set(k, checked[k]):
-                changed.append(k)
+            if k in checked:
+                old = self._v[k]
+                if self.set(k, checked[k], record=False):
+                    changed.append(k)
+                    step[k] = (old, self._v[k])
+        if record:
+            self.history.record(step)
         return changed
+
+    def undo(self) -> list[str]:
+        """Undo the last user change; returns the fields changed (empty when nothing to undo)."""
+        vals = self.history.pop_undo()
+        return [] if vals is None else self.update(record=False, **vals)
+
+    def redo(self) -> list[str]:
+        """Redo the last undone change; returns the fields changed."""
+        vals = self.history.pop_redo()
+        return [] if vals is None else self.update(record=False, **vals)
 
     # ---------------------------------------------------------------- scenario
     @property
@@ -217,7 +358,9 @@ class ViewerState:
         Field: the given components, or the IGRF field at the scenario's place and date.  Light:
         the brightest of ``light.photons``.  Ordering: the scenario's own (``ordering =
         "scenario"``, ``kappa = None``).
-        Emits ``"scenario"`` and then one event per changed field.
+        Scan: ``scan.amplitude_deg`` and ``scan.steps``.  Emits only ``"scenario"``, after every
+        value is set (subscribers read the new values from the state), so one change of scenario
+        makes one request.  Clears the undo history.
         """
         from retina.scenario import Scenario
 
@@ -227,14 +370,52 @@ class ViewerState:
 
         fld = build_field(scenario)
         p = scenario["pose"]
+        sc_scan = scenario["scan"]
+        values = dict(yaw_deg=p["headings_deg"][0], pitch_deg=p["pitch_deg"],
+                      roll_deg=p["roll_deg"], intensity_uT=fld.F_uT, inclination_deg=fld.I_deg,
+                      declination_deg=((fld.D_deg + 180.0) % 360.0) - 180.0,
+                      photons=max(scenario["light"]["photons"]), ordering="scenario", kappa=None,
+                      scan_amplitude_deg=sc_scan["amplitude_deg"], scan_steps=sc_scan["steps"])
         old = self._scenario
         self._scenario = scenario
+        checked = {k: self._validate(k, v) for k, v in values.items()}
+        self._v.update(checked)
         self._result = None
         self.events.emit("scenario", scenario, old)
-        self.update(yaw_deg=p["headings_deg"][0], pitch_deg=p["pitch_deg"],
-                    roll_deg=p["roll_deg"], intensity_uT=fld.F_uT, inclination_deg=fld.I_deg,
-                    declination_deg=((fld.D_deg + 180.0) % 360.0) - 180.0,
-                    photons=max(scenario["light"]["photons"]), ordering="scenario", kappa=None)
+        self.history.clear()
+
+    def to_scenario(self):
+        """A copy of the scenario with the current pose, field, light and ordering (module
+        docstring): ``pose.headings_deg = [yaw]``, pitch and roll; the field as intensity,
+        inclination and declination; ``light.photons = [photons]``; with a model or kappa override,
+        the scenario's ordering with that model and kappa in ensemble mode; ``yield.field_uT`` kept.
+        Raises InputError without a scenario."""
+        sc = self._scenario
+        if sc is None:
+            raise InputError("no scenario loaded; open one with File > Open scenario", key="scenario")
+        v = self._v
+        field = {"intensity_uT": v["intensity_uT"], "inclination_deg": v["inclination_deg"],
+                 "declination_deg": v["declination_deg"], "latitude_deg": None,
+                 "longitude_deg": None, "date": None}
+        sections = {"pose": {"headings_deg": [v["yaw_deg"]], "pitch_deg": v["pitch_deg"],
+                             "roll_deg": v["roll_deg"]},
+                    "field": field,
+                    "light": {"photons": [v["photons"]], "names": ["viewer"]},
+                    "scan": {"heading_deg": v["yaw_deg"], "amplitude_deg": v["scan_amplitude_deg"],
+                             "steps": v["scan_steps"], "pitch_deg": v["pitch_deg"]}}
+        if sc["rf"].get("sweep_light") is not None:
+            sections["rf"] = {"sweep_light": "viewer"}  # the one light level a saved state has
+        if v["kappa"] is not None or v["ordering"] != "scenario":
+            o = dict(sc["ordering"])
+            if v["ordering"] != "scenario":
+                o["model"] = v["ordering"]
+            elif v["kappa"] is not None and o["model"] in ("aligned", "axial", "isotropic"):
+                o["model"] = "cone"  # a kappa override of a model without one: a cone (build_ordering)
+            if v["kappa"] is not None:
+                o["kappa"] = v["kappa"]
+            o["mode"] = "ensemble"
+            sections["ordering"] = o
+        return sc.replace(**sections)
 
     # ---------------------------------------------------------------- derived state
     def request(self):

@@ -12,12 +12,21 @@ Conventions (owned here)
   bird's right) across, elevation (degrees, positive up) upward, 2-degree pixels.  Each pixel takes
   the value of the receptor whose visual direction is nearest (:func:`retina.eye.pattern.resample`);
   with both eyes shown, a direction seen by both takes the eye whose optical axis is nearer.
-  Marks: the beak (0, 0), the world horizon (the head-frame directions of the horizontal plane)
-  with the cardinal points on it, both ends of the field axis (``B`` and ``-B``; yields are even),
-  and each eye's visual-field edge.
+  Marks (:data:`retina.figures.marks.MARKS`, the same as the figures'): the beak (+, at 0, 0), both
+  ends of the field axis (filled circle ``B``, open circle ``-B``; yields are even), the world
+  horizon (the head-frame directions of the horizontal plane) with the cardinal points on it, and
+  each eye's visual-field edge.  Labels are placed by :func:`layout_labels` so that they never
+  overlap each other or a mark.  The axes and the colour bar sit outside the zoomable scene.
 - Colours: "RdBu_r" for the modulation, symmetric about 0 with limits +/- the largest shown
   ``|modulation|``; "viridis" for yields between the shown minimum and maximum (the colour maps
-  of :mod:`retina.figures`).  Receptors of a hidden eye are drawn faint grey.
+  of :mod:`retina.figures`).  A flat pattern (range below
+  :data:`retina_viewer.workers.FLAT_MODULATION`) is drawn in the middle colour, never stretched;
+  with ``lock_scale`` the limits stay those of :attr:`retina_viewer.state.ViewerState.locked_limits`.
+  Receptors of a hidden eye are drawn faint grey.
+- One draw per change: in the window the views follow *results* (``follow="result"``): the pose,
+  the field marks and the colours all come from the result's request, so a heading step is drawn
+  once, with matching pose and colours.  A view alone (``follow="state"``) follows the pose and
+  field events directly.
 - Views subscribe to the state model in their constructor and only update their scene nodes; the
   model never knows its views.
 """
@@ -29,18 +38,21 @@ from types import SimpleNamespace
 
 import numpy as np
 
-__all__ = ["HeadView", "MapView", "colour_values", "DISPLAY_FROM_NED", "MAP_STEP_DEG",
-           "ensure_backend"]
+__all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
+           "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
 #: Pixel size of the visual-field map, degrees.
 MAP_STEP_DEG = 2.0
+#: The map's home range (degrees): azimuth, elevation.
+MAP_RANGE = ((-180.0, 180.0), (-90.0, 90.0))
 _BG = (0.12, 0.12, 0.14, 1.0)
 _HIDDEN = np.array([0.55, 0.55, 0.55, 0.18])
 _NO_DATA = np.array([0.22, 0.22, 0.25, 1.0])
 _POSE_EVENTS = ("yaw_deg", "pitch_deg", "roll_deg")
 _FIELD_EVENTS = ("inclination_deg", "declination_deg")
+_COLOUR_EVENTS = ("display", "eye", "lock_scale")
 
 
 def ensure_backend() -> None:
@@ -56,7 +68,36 @@ def _cmap(name: str):
     return matplotlib.colormaps[name]
 
 
-def colour_values(result, display: str, eye: str):
+def _shown(result, eye: str) -> np.ndarray:
+    idx = result.pattern.receptors.eye_index
+    return np.ones(idx.shape, bool) if eye == "both" else idx == (0 if eye == "left" else 1)
+
+
+def colour_limits(result, display: str, eye: str) -> tuple[float, float]:
+    """The automatic colour-scale limits ``(lo, hi)`` of a result (module docstring).
+
+    A flat pattern (range below :data:`retina_viewer.workers.FLAT_MODULATION`, relative) gets
+    limits around its value so that every receptor takes the middle colour.
+    """
+    from .workers import FLAT_MODULATION
+
+    pat = result.pattern
+    values = np.asarray(pat.modulation if display == "modulation" else pat.yields, dtype=float)
+    shown = _shown(result, eye)
+    v = values[shown] if np.any(shown) else values
+    if display == "modulation":
+        h = float(np.max(np.abs(v)))
+        if h < FLAT_MODULATION:
+            h = 1.0  # flat: 0 is the middle colour; rounding noise stays invisible
+        return -h, h
+    lo, hi = float(v.min()), float(v.max())
+    mid = 0.5 * (lo + hi)
+    if hi - lo < FLAT_MODULATION * max(abs(mid), 1e-300):
+        return mid - 1.0, mid + 1.0
+    return lo, hi
+
+
+def colour_values(result, display: str, eye: str, limits=None):
     """Colours of every receptor for a worker result.
 
     Parameters
@@ -64,6 +105,8 @@ def colour_values(result, display: str, eye: str):
     result : retina_viewer.workers.PatternResult
     display : {"modulation", "yields"}
     eye : {"both", "left", "right"}
+    limits : tuple of float, optional
+        Fixed colour-scale limits (a locked scale); default :func:`colour_limits`.
 
     Returns
     -------
@@ -77,20 +120,80 @@ def colour_values(result, display: str, eye: str):
     """
     pat = result.pattern
     values = np.asarray(pat.modulation if display == "modulation" else pat.yields, dtype=float)
-    idx = pat.receptors.eye_index
-    shown = np.ones(values.shape, bool) if eye == "both" else idx == (0 if eye == "left" else 1)
-    v = values[shown] if np.any(shown) else values
-    if display == "modulation":
-        h = float(np.max(np.abs(v))) or 1e-12
-        lo, hi, cmap = -h, h, _cmap("RdBu_r")
-    else:
-        lo, hi = float(v.min()), float(v.max())
-        if hi <= lo:
-            hi = lo + 1e-12
-        cmap = _cmap("viridis")
+    shown = _shown(result, eye)
+    lo, hi = colour_limits(result, display, eye) if limits is None else (float(limits[0]), float(limits[1]))
+    if hi <= lo:
+        hi = lo + 1e-12
+    cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
     rgba = cmap(np.clip((values - lo) / (hi - lo), 0.0, 1.0))
     rgba[~shown] = _HIDDEN
     return values, rgba, (lo, hi), shown
+
+
+def _state_limits(state, result):
+    if not state.lock_scale:
+        return None
+    return state.locked_limits.get(state.display)
+
+
+def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: float = 1.0):
+    """Place text labels beside their anchor points so that no two overlap and none covers a mark.
+
+    Parameters
+    ----------
+    anchors : array_like, shape (K, 2)
+        The point each label belongs to (map degrees).
+    sizes : array_like, shape (K, 2)
+        Width and height of each label box (map degrees).
+    obstacles : array_like, shape (M, 2)
+        Marks a label must not cover (each a square of half-width ``mark_half`` degrees).
+    gap : float
+        Free space kept around every box (degrees).
+
+    Returns
+    -------
+    ndarray, shape (K, 2)
+        Label centres.  Candidates are tried in a fixed order (above, below, right, left, the
+        diagonals, then farther out); a label that finds no free place takes its first candidate.
+    """
+    anchors = np.asarray(anchors, float).reshape(-1, 2)
+    sizes = np.asarray(sizes, float).reshape(-1, 2)
+    obst = np.asarray(obstacles, float).reshape(-1, 2)
+    boxes = [(p[0], p[1], mark_half, mark_half) for p in obst]  # centre x, y, half w, half h
+    out = np.zeros_like(anchors)
+    for k, (a, (w, h)) in enumerate(zip(anchors, sizes)):
+        hw, hh = 0.5 * w, 0.5 * h
+        cands = []
+        for r in (1.0, 2.0, 3.0):
+            dy, dx = r * (hh + 2.5), r * (hw + 2.5)
+            cands += [(0, dy), (0, -dy), (dx, 0), (-dx, 0), (dx, dy), (-dx, dy), (dx, -dy), (-dx, -dy)]
+        chosen = None
+        for cx, cy in cands:
+            c = (a[0] + cx, a[1] + cy)
+            if all(abs(c[0] - b[0]) >= hw + b[2] + gap or abs(c[1] - b[1]) >= hh + b[3] + gap
+                   for b in boxes):
+                chosen = c
+                break
+        if chosen is None:
+            chosen = (a[0] + cands[0][0], a[1] + cands[0][1])
+        out[k] = chosen
+        boxes.append((chosen[0], chosen[1], hw, hh))
+    return out
+
+
+def _share_fonts(texts) -> None:
+    """Give the Text visuals of one canvas one glyph atlas.
+
+    vispy gives every Text visual its own font manager, so each renders every glyph it shows
+    again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
+    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all.
+    """
+    from vispy.visuals.text.text import FontManager
+
+    fm = FontManager(method="cpu")
+    for t in texts:
+        t._font_manager = fm
+        t._update_font()
 
 
 def _rotation_to(z_to: np.ndarray) -> np.ndarray:
@@ -132,28 +235,32 @@ def _az_el(d: np.ndarray):
     return np.degrees(np.arctan2(d[:, 1], d[:, 0])), np.degrees(np.arcsin(np.clip(-d[:, 2], -1, 1)))
 
 
-def _pose_matrix(state) -> np.ndarray:
+def _pose_matrix(yaw, pitch, roll) -> np.ndarray:
     from retina.eye.pose import pose_rotation
 
-    return pose_rotation(state.yaw_deg, state.pitch_deg, state.roll_deg).as_matrix()
+    return pose_rotation(yaw, pitch, roll).as_matrix()
 
 
-def _field_direction(state) -> np.ndarray:
+def _field_direction(inclination, declination) -> np.ndarray:
     from retina.eye.field import field_vector
 
-    v = field_vector(1.0, state.inclination_deg, state.declination_deg)
+    v = field_vector(1.0, inclination, declination)
     return v / np.linalg.norm(v)
 
 
-def _render(canvas) -> np.ndarray:
-    """``canvas.render()``, refused for a canvas inside a window that has never been shown: Qt
+def _render(canvas, what: str = "view") -> np.ndarray:
+    """``canvas.render()``, refused for a canvas inside a window that has never been shown (Qt
     creates the GL context of an embedded GL widget when its window first shows and would discard
-    one made earlier (with everything uploaded to it)."""
+    one made earlier) and for a canvas squeezed to no pixels."""
     from retina.errors import InputError
 
     w = canvas.native
     if w.parentWidget() is not None and not w.isVisible():
         raise InputError("show the window before rendering one of its views", key="view")
+    width, height = w.width(), w.height()
+    if width < 2 or height < 2:
+        raise InputError(f"the {what} is too small to render ({width} x {height} pixels); widen it "
+                         "(drag the splitter or enlarge the window)", key="view")
     return canvas.render()
 
 
@@ -163,6 +270,24 @@ class _Subscriber:
     def _subscribe(self, state, names, handler):
         for n in names:
             self._unsub.append(state.events.connect(n, handler))
+
+    def _subscribe_pose(self, state, follow):
+        if follow not in ("state", "result"):
+            from retina.errors import InputError
+
+            raise InputError(f"expected follow 'state' or 'result', got {follow!r}", key="follow")
+        self.follow = follow
+        if follow == "state":
+            self._subscribe(state, _POSE_EVENTS + _FIELD_EVENTS, lambda e: self._show_pose(
+                state.yaw_deg, state.pitch_deg, state.roll_deg, state.inclination_deg,
+                state.declination_deg, draw=True))
+
+    def _pose_of(self, res):
+        if self.follow == "result" and res is not None:
+            p = res.request
+            return p.yaw_deg, p.pitch_deg, p.roll_deg, p.inclination_deg, p.declination_deg
+        st = self.state
+        return st.yaw_deg, st.pitch_deg, st.roll_deg, st.inclination_deg, st.declination_deg
 
     def close(self) -> None:
         for u in self._unsub:
@@ -183,6 +308,8 @@ class HeadView(_Subscriber):
         The Qt parent of the canvas widget.  A canvas that will live in a window should be created
         inside it: Qt recreates the GL context of a GL widget moved to another top-level window,
         which loses the uploaded scene.
+    follow : {"state", "result"}
+        Where the pose comes from (module docstring).
 
     Attributes
     ----------
@@ -190,16 +317,20 @@ class HeadView(_Subscriber):
         ``canvas.native`` is the Qt widget.
     markers : vispy.scene.visuals.Markers
         One marker per receptor; :attr:`face_colors` holds the colours last set ``(N, 4)``.
+    draws : int
+        How many times the canvas has been drawn.
     """
 
-    def __init__(self, state, *, size=(640, 520), parent=None):
+    def __init__(self, state, *, size=(640, 520), parent=None, follow="state"):
         ensure_backend()
         from vispy import scene
         from vispy.visuals.transforms import MatrixTransform
 
         self.state = state
         self._unsub = []
+        self.draws = 0
         self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
+        self.canvas.events.draw.connect(self._count_draw)
         self.view = self.canvas.central_widget.add_view()
         self.view.camera = scene.TurntableCamera(fov=30.0, elevation=20.0, azimuth=-55.0,
                                                  distance=82.0, center=(0.0, 0.0, -4.0))
@@ -214,17 +345,22 @@ class HeadView(_Subscriber):
                            parent=root)
         D = DISPLAY_FROM_NED
         origin = np.array([0.0, 0.0, z0])
-        for vec, col, label in (((1, 0, 0), (0.95, 0.35, 0.3, 1), "N"), ((0, 1, 0), (0.95, 0.8, 0.3, 1), "E"),
-                                ((0, 0, 1), (0.5, 0.9, 0.5, 1), "down")):
+        cols = ((0.95, 0.35, 0.3, 1), (0.95, 0.8, 0.3, 1), (0.5, 0.9, 0.5, 1))
+        label_pos = []
+        for vec, col, label in (((1, 0, 0), cols[0], "N"), ((0, 1, 0), cols[1], "E"),
+                                ((0, 0, 1), cols[2], "down")):
             v = D @ np.array(vec, float) * (9.0 if label != "down" else 6.0)
             verts, faces = _arrow_mesh(origin, v, 0.25, 1.6, 0.7)
             scene.visuals.Mesh(verts, faces, color=col, shading=None, parent=root)
-            scene.visuals.Text(label, pos=origin + v * 1.25, color=col, font_size=11, bold=True,
-                               parent=root)
-        # field axis (rebuilt on field events)
+            label_pos.append(origin + v * 1.25)
+        # one Text visual for all world labels (one glyph atlas, one draw call)
+        world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
+                                          color=np.array(cols), font_size=11, parent=root)
+        # field axis (rebuilt when the field direction changes)
         self.field_mesh = scene.visuals.Mesh(shading=None, color=(0.95, 0.45, 0.9, 1.0), parent=root)
         self.field_label = scene.visuals.Text("B", color=(0.95, 0.45, 0.9, 1.0), font_size=13,
-                                              bold=True, parent=root)
+                                              parent=root)
+        _share_fonts([world_labels, self.field_label])
         # head node: everything in the head frame, one transform
         self.head = scene.Node(parent=root)
         self.head.transform = MatrixTransform()
@@ -240,30 +376,35 @@ class HeadView(_Subscriber):
                                        parent=self.head)
         self.face_colors = None
         self._receptors = None
-        self._update_pose()
-        self._update_field()
-        self._subscribe(state, _POSE_EVENTS, lambda e: self._update_pose())
-        self._subscribe(state, _FIELD_EVENTS, lambda e: self._update_field())
-        self._subscribe(state, ("result", "display", "eye"), lambda e: self._update_colours())
+        self._sizes = None
+        self._field_key = None
+        self._subscribe_pose(state, follow)
+        self._show_pose(*self._pose_of(None), draw=False)
+        self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_colours())
         self._subscribe(state, ("scenario",), lambda e: self._clear())
         if state.result is not None:
             self._update_colours()
 
-    def _update_pose(self):
-        M = np.eye(4)
-        M[:3, :3] = (DISPLAY_FROM_NED @ _pose_matrix(self.state)).T  # vispy: row vectors
-        self.head.transform.matrix = M
-        self.canvas.update()
+    def _count_draw(self, event=None):
+        self.draws += 1
 
-    def _update_field(self):
-        b = DISPLAY_FROM_NED @ _field_direction(self.state)
-        L = 13.0
-        verts, faces = _arrow_mesh(-L * b, 2 * L * b, 0.2, 2.2, 0.8)
-        self.field_mesh.set_data(vertices=verts, faces=faces, color=(0.95, 0.45, 0.9, 1.0))
-        self.field_label.pos = (L + 2.0) * b + np.array([0.0, 0.0, 1.5])
-        self.canvas.update()
+    def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
+        M = np.eye(4)
+        M[:3, :3] = (DISPLAY_FROM_NED @ _pose_matrix(yaw, pitch, roll)).T  # vispy: row vectors
+        self.head.transform.matrix = M
+        key = (inclination, declination)
+        if key != self._field_key:
+            b = DISPLAY_FROM_NED @ _field_direction(inclination, declination)
+            L = 13.0
+            verts, faces = _arrow_mesh(-L * b, 2 * L * b, 0.2, 2.2, 0.8)
+            self.field_mesh.set_data(vertices=verts, faces=faces, color=(0.95, 0.45, 0.9, 1.0))
+            self.field_label.pos = (L + 2.0) * b + np.array([0.0, 0.0, 1.5])
+            self._field_key = key
+        if draw:
+            self.canvas.update()
 
     def _clear(self):
+        self._show_pose(*self._pose_of(None), draw=False)
         self._receptors = None
         self.face_colors = None
         self.markers.set_data(np.zeros((0, 3), np.float32))
@@ -273,43 +414,96 @@ class HeadView(_Subscriber):
         res = self.state.result
         if res is None:
             return
+        if self.follow == "result":
+            self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
-        _, rgba, _, shown = colour_values(res, self.state.display, self.state.eye)
+        _, rgba, _, shown = colour_values(res, self.state.display, self.state.eye,
+                                          _state_limits(self.state, res))
         self.face_colors = rgba
-        self._receptors = rec
-        # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
-        spacing = np.sqrt(np.mean(rec.solid_angle)) * np.mean([e.radius_mm for e in rec.eyes])
-        size = np.where(shown, 1.2 * spacing, 0.7 * spacing)
-        self.markers.set_data(np.asarray(rec.positions, np.float32), face_color=rgba,
-                              edge_color=rgba, edge_width=0.0, size=size)
+        if rec is not self._receptors or self._sizes is None or self._sizes[0] is not self.state.eye:
+            # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
+            spacing = np.sqrt(np.mean(rec.solid_angle)) * np.mean([e.radius_mm for e in rec.eyes])
+            self._sizes = (self.state.eye, np.where(shown, 1.2 * spacing, 0.7 * spacing),
+                           np.asarray(rec.positions, np.float32))
+            self._receptors = rec
+        self.markers.set_data(self._sizes[2], face_color=rgba, edge_color=rgba, edge_width=0.0,
+                              size=self._sizes[1])
         self.canvas.update()
 
     def render(self) -> np.ndarray:
         """The canvas as an RGBA image ``(H, W, 4)`` uint8 (off-screen render)."""
-        return _render(self.canvas)
+        return _render(self.canvas, "head view")
 
 
 class MapView(_Subscriber):
     """The pattern over the visual field of both eyes (azimuth-elevation image, module docstring).
 
+    Parameters
+    ----------
+    state, size, parent, follow
+        As for :class:`HeadView`.
+
     Attributes
     ----------
+    widget : QWidget
+        The canvas with its title and caption (Qt labels); put this in a layout.
     canvas : vispy.scene.SceneCanvas
     image : vispy.scene.visuals.Image
         :attr:`rgba` holds the image last set ``(E, A, 4)``.
+    on_hover : callable(dict or None), optional
+        Called with :meth:`receptor_info` of the receptor under the mouse (None off the eyes).
+    draws : int
+        How many times the canvas has been drawn.
     """
 
-    def __init__(self, state, *, size=(720, 460), parent=None):
+    def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
         ensure_backend()
         from vispy import scene
+        from retina.figures.marks import MARKS
 
         self.state = state
         self._unsub = []
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
-        self.view = self.canvas.central_widget.add_view()
+        self.draws = 0
+        self.on_hover = None
+        from PyQt6.QtWidgets import QLabel, QVBoxLayout, QWidget
+
+        # Static words live in Qt labels around the canvas, not in GL text: every distinct glyph
+        # of GL text costs a freetype rendering at start-up, per canvas.
+        self.widget = QWidget(parent)
+        lay = QVBoxLayout(self.widget)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(0)
+        self.title_label = QLabel("")
+        self.caption_label = QLabel("")
+        for lab in (self.title_label, self.caption_label):
+            lab.setWordWrap(True)
+            lab.setStyleSheet("background: rgb(31, 31, 36); color: rgb(230, 230, 230); padding: 2px;")
+        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=self.widget)
+        self.canvas.events.draw.connect(self._count_draw)
+        lay.addWidget(self.title_label)
+        lay.addWidget(self.canvas.native, 1)
+        lay.addWidget(self.caption_label)
+        grid = self.canvas.central_widget.add_grid(spacing=0)
+        self.yaxis = scene.AxisWidget(orientation="left", tick_label_margin=6, tick_font_size=7)
+        self.yaxis.width_max = 40
+        grid.add_widget(self.yaxis, row=0, col=0)
+        self.view = grid.add_view(row=0, col=1)
+        self.xaxis = scene.AxisWidget(orientation="bottom", tick_label_margin=14, tick_font_size=7)
+        self.xaxis.height_max = 26
+        grid.add_widget(self.xaxis, row=1, col=1)
+        self.cbar_view = grid.add_view(row=2, col=0, col_span=2)
+        self.cbar_view.height_max = 26
+        self.cbar_view.camera = scene.PanZoomCamera()
+        self.cbar_view.camera.set_range(x=(-160.0, 160.0), y=(-5.0, 6.0), margin=0.0)
+        self.cbar_view.camera.interactive = False
         self.view.camera = scene.PanZoomCamera(aspect=1.0)
-        self.view.camera.set_range(x=(-214.0, 186.0), y=(-134.0, 104.0), margin=0.0)
         self.view.camera.interactive = True
+        self.reset_range()
+        self.yaxis.link_view(self.view)
+        self.xaxis.link_view(self.view)
+        # an axis maps its ends through its own place in the grid, which is known only after the
+        # layout: map them again after every resize (vispy re-maps them only on camera changes)
+        self.canvas.events.resize.connect(self._relayout_axes)
         root = self.view.scene
         s = MAP_STEP_DEG
         self.az = np.arange(-180.0 + s / 2, 180.0, s)
@@ -317,7 +511,6 @@ class MapView(_Subscriber):
         self.rgba = np.tile(_NO_DATA, (self.el.size, self.az.size, 1)).astype(np.float32)
         self.image = scene.visuals.Image(self.rgba, interpolation="nearest", parent=root)
         self.image.transform = scene.STTransform(scale=(s, s), translate=(-180.0, -90.0))
-        # static marks: beak, eye edges; dynamic: horizon, cardinal points, field ends
         grid_lines = []
         for a in range(-180, 181, 30):
             grid_lines += [(a, -90), (a, 90)]
@@ -325,48 +518,67 @@ class MapView(_Subscriber):
             grid_lines += [(-180, e), (180, e)]
         scene.visuals.Line(np.array(grid_lines, np.float32), connect="segments",
                            color=(1, 1, 1, 0.12), parent=root)
-        ticks = [(str(a), (a, -97.0)) for a in range(-180, 181, 30)]
-        ticks += [(str(e), (-186.0, e)) for e in range(-90, 91, 30)]
-        scene.visuals.Text([t for t, _ in ticks], pos=np.array([p for _, p in ticks], float),
-                           color=(0.85, 0.85, 0.85, 1), font_size=7, parent=root)
-        scene.visuals.Text("azimuth from the beak (deg, right +)", pos=(0.0, -106.0),
-                           color=(0.85, 0.85, 0.85, 1), font_size=8, parent=root)
-        scene.visuals.Text("elevation (deg)", pos=(-203.0, 0.0), rotation=-90.0,
-                           color=(0.85, 0.85, 0.85, 1), font_size=8, parent=root)
         self.edges = scene.visuals.Line(color=(0.9, 0.9, 0.9, 0.8), width=1.5, parent=root)
         self.horizon = scene.visuals.Line(color=(0.3, 0.95, 0.4, 1.0), width=2.0, parent=root)
-        self.cardinals = scene.visuals.Text(color=(0.3, 0.95, 0.4, 1.0), font_size=9, bold=True,
-                                            parent=root)
+        self.marks = {name: MARKS[name] for name in ("beak", "field", "field_opposite")}
         self.beak = scene.visuals.Markers(parent=root)
-        self.beak.set_data(np.array([[0.0, 0.0]], np.float32), symbol="triangle_up", size=14,
-                           face_color=(0.95, 0.75, 0.25, 1), edge_color="k", edge_width=1)
-        scene.visuals.Text("beak", pos=(18, 0), color=(0.95, 0.75, 0.25, 1), font_size=9, bold=True,
-                           parent=root)
+        mk = self.marks["beak"]
+        self.beak.set_data(np.array([[0.0, 0.0]], np.float32), symbol=mk.vispy, size=2 * mk.size_pt,
+                           face_color=mk.face, edge_color=mk.edge, edge_width=mk.edge_width)
         self.field_marks = scene.visuals.Markers(parent=root)
-        self.field_text = scene.visuals.Text(color=(0.95, 0.45, 0.9, 1.0), font_size=10, bold=True,
-                                             parent=root)
-        # colour bar under the map
-        ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
+        # every label of a point mark in one Text visual: cardinals, beak, B, -B
+        self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
+                                         anchor_y="center")
+        self.label_texts = ["N", "E", "S", "W", "beak", self.marks["field"].label,
+                            self.marks["field_opposite"].label]
+        self._label_colours = np.array([(0.3, 0.95, 0.4, 1.0)] * 4 + [(1.0, 1.0, 1.0, 1.0)] * 3)
+        self.labels.text = self.label_texts   # set once: only the positions follow the pose
+        self.labels.color = self._label_colours
+        # colour bar in its own fixed view
+        self._ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
         self.cbar = scene.visuals.Image(np.zeros((2, 256, 4), np.float32), interpolation="linear",
-                                        parent=root)
-        self.cbar.transform = scene.STTransform(scale=(180.0 / 256, 4.0), translate=(-90.0, -122.0))
-        self._ramp = ramp
-        self.cbar_text = scene.visuals.Text(color="w", font_size=8, parent=root,
-                                            anchor_x="center", anchor_y="center")
-        self.title = scene.visuals.Text("", pos=(0, 97), color="w", font_size=9, parent=root)
+                                        parent=self.cbar_view.scene)
+        self.cbar.transform = scene.STTransform(scale=(200.0 / 256, 5.0), translate=(-100.0, -2.0))
+        self.cbar_text = scene.visuals.Text(["", ""], pos=np.array(
+            [(-128.0, 0.5), (128.0, 0.5)]), color="w", font_size=8,
+            parent=self.cbar_view.scene, anchor_x="center", anchor_y="center")
+        self._cbar_key = None
         for node in (self.edges, self.horizon, self.beak, self.field_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
-        for node in (self.cardinals, self.field_text, self.title, self.cbar_text):
-            node.order = 11
+        self.labels.order = 11
+        _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
+                                                       for v in (ax.axis._text, ax.axis._axis_label_vis)])
         self._index = None
         self._receptors = None
-        self._update_marks()
-        self._subscribe(state, _POSE_EVENTS + _FIELD_EVENTS, lambda e: self._update_marks())
-        self._subscribe(state, ("result", "display", "eye"), lambda e: self._update_image())
+        self._marks_key = None
+        self.mark_positions = None
+        self.label_positions = None
+        self._subscribe_pose(state, follow)
+        self._show_pose(*self._pose_of(None), draw=False)
+        self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_image())
         self._subscribe(state, ("scenario",), lambda e: self._clear())
+        self.canvas.events.mouse_move.connect(self._on_mouse_move)
         if state.result is not None:
             self._update_image()
+
+    def _count_draw(self, event=None):
+        self.draws += 1
+
+    def _relayout_axes(self, event=None):
+        from PyQt6.QtCore import QTimer
+
+        def again():
+            for ax in (self.xaxis, self.yaxis):
+                if hasattr(ax, "_view_changed"):
+                    ax._view_changed()
+            self.canvas.update()
+
+        QTimer.singleShot(0, again)
+
+    def reset_range(self) -> None:
+        """Show the whole visual field."""
+        self.view.camera.set_range(x=MAP_RANGE[0], y=MAP_RANGE[1], margin=0.02)
 
     # ---------------------------------------------------------------- geometry
     def _index_maps(self, rec):
@@ -407,8 +619,12 @@ class MapView(_Subscriber):
             n0 += len(t)
         return np.vstack(pts).astype(np.float32), np.array(conn, np.uint32)
 
-    def _update_marks(self):
-        R = _pose_matrix(self.state)
+    def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
+        key = (yaw, pitch, roll, inclination, declination)
+        if key == self._marks_key:
+            return
+        self._marks_key = key
+        R = _pose_matrix(yaw, pitch, roll)
         t = np.radians(np.arange(0.0, 360.0, 1.0))
         h_world = np.stack([np.cos(t), np.sin(t), np.zeros_like(t)], axis=-1)
         az, el = _az_el(h_world @ R)  # rows: R^T h, the head-frame directions
@@ -417,18 +633,34 @@ class MapView(_Subscriber):
                         np.uint32)
         self.horizon.set_data(np.stack([az, el], axis=-1).astype(np.float32), connect=conn)
         idx = [0, 90, 180, 270]
-        self.cardinals.text = ["N", "E", "S", "W"]
-        self.cardinals.pos = np.stack([az[idx], el[idx] + 9.0], axis=-1)
-        b = R.T @ _field_direction(self.state)
+        cardinal = np.stack([az[idx], el[idx]], axis=-1)
+        b = R.T @ _field_direction(inclination, declination)
         baz, bel = _az_el(np.stack([b, -b]))
         pos = np.stack([baz, bel], axis=-1).astype(np.float32)
-        self.field_marks.set_data(pos, symbol="star", size=15, face_color=(0.95, 0.45, 0.9, 1),
-                                  edge_color="k", edge_width=1)
-        self.field_text.text = ["B", "-B"]
-        self.field_text.pos = pos + np.array([0.0, 9.0], np.float32)
-        self.canvas.update()
+        self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
+                               "field_opposite": pos[1]}
+        f, o = self.marks["field"], self.marks["field_opposite"]
+        self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
+                                  face_color=np.array([f.face, o.face]),
+                                  edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
+        anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
+        sizes = self.label_sizes()
+        self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
+                                             gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
+        self.labels.pos = self.label_positions
+        if draw:
+            self.canvas.update()
+
+    def label_sizes(self) -> np.ndarray:
+        """Label boxes ``(K, 2)`` in map degrees: 7 x 13 pixels per character (8 pt text) at the
+        whole-field zoom (the labels only get farther apart when the map is zoomed in)."""
+        w_px, h_px = (float(x) for x in self.view.size) if self.view.size[0] > 10 else (600.0, 400.0)
+        deg_per_px = max((MAP_RANGE[0][1] - MAP_RANGE[0][0]) / w_px,
+                         (MAP_RANGE[1][1] - MAP_RANGE[1][0]) / h_px)
+        return np.array([((7.0 * len(t) + 4.0) * deg_per_px, 13.0 * deg_per_px) for t in self.label_texts])
 
     def _clear(self):
+        self._show_pose(*self._pose_of(None), draw=False)
         self._index = None
         self._receptors = None
         self.rgba = np.tile(_NO_DATA, (self.el.size, self.az.size, 1)).astype(np.float32)
@@ -439,6 +671,8 @@ class MapView(_Subscriber):
         res = self.state.result
         if res is None:
             return
+        if self.follow == "result":
+            self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
         if rec is not self._receptors:
             self._index = self._index_maps(rec)
@@ -446,26 +680,72 @@ class MapView(_Subscriber):
             self.edges.set_data(pts, connect=conn)
             self._receptors = rec
         display, eye = self.state.display, self.state.eye
-        values, rgba, (lo, hi), _ = colour_values(res, display, eye)
+        values, rgba, (lo, hi), _ = colour_values(res, display, eye, _state_limits(self.state, res))
         idx = self._index[{"both": 0, "left": 1, "right": 2}[eye]]
         img = np.where((idx >= 0)[..., None], rgba[np.maximum(idx, 0)], _NO_DATA)
         self.rgba = img.astype(np.float32)
         self.image.set_data(self.rgba)
-        cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
-        self.cbar.set_data(cmap(self._ramp).astype(np.float32))
+        flat = bool(getattr(res, "flat", False))
+        locked = bool(self.state.lock_scale)
         if display == "modulation":
-            labels = [f"{100 * lo:+.1f} %", "0", f"{100 * hi:+.1f} %"]
-            name = "relative modulation"
+            ends = [f"{100 * lo:+.3g} %", f"{100 * hi:+.3g} %"]
+            name = "relative modulation (0 in the middle)"
         else:
-            labels = [f"{lo:.4f}", f"{0.5 * (lo + hi):.4f}", f"{hi:.4f}"]
+            ends = [f"{lo:.4f}", f"{hi:.4f}"]
             name = "yield"
-        self.cbar_text.text = labels
-        self.cbar_text.pos = np.array([(-106.0, -120.0), (0.0, -128.0), (108.0, -120.0)])
-        p = res.request
-        self.title.text = (f"{name}, {eye} eye{'s' if eye == 'both' else ''}: heading {p.yaw_deg:.0f}, "
-                           f"pitch {p.pitch_deg:.0f}, roll {p.roll_deg:.0f} deg")
+        scale = "locked" if locked else "fitted to this pattern"
+        caption = f"{name}, colour scale {scale}"
+        if flat:
+            ends, caption = ["", ""], "flat pattern: every receptor the same (no modulation)"
+        key = (display, tuple(ends), caption)
+        if key != self._cbar_key:  # text is laid out again only when it changes
+            cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
+            self.cbar.set_data(cmap(self._ramp).astype(np.float32))
+            self.cbar_text.text = [ends[0], ends[1]]
+            self.caption_label.setText("across: azimuth from the beak (deg, right +); up: elevation "
+                                       f"(deg). Colours: {caption}.")
+            self._cbar_key = key
+        title = f"{eye} eye{'s' if eye == 'both' else ''}, head frame (the heading is in the readout)"
+        if self.title_label.text() != title:
+            self.title_label.setText(title)
         self.canvas.update()
+
+    # ---------------------------------------------------------------- receptor under the cursor
+    def receptor_at(self, az_deg: float, el_deg: float):
+        """Index of the receptor drawn at map point ``(az, el)`` degrees, or None."""
+        if self._index is None or not (-180.0 <= az_deg < 180.0 and -90.0 <= el_deg < 90.0):
+            return None
+        j = min(int((az_deg + 180.0) // MAP_STEP_DEG), self.az.size - 1)
+        i = min(int((el_deg + 90.0) // MAP_STEP_DEG), self.el.size - 1)
+        k = int(self._index[{"both": 0, "left": 1, "right": 2}[self.state.eye], i, j])
+        return None if k < 0 else k
+
+    def receptor_info(self, k: int) -> dict:
+        """Receptor ``k`` of the current result: its eye, visual direction (azimuth, elevation,
+        degrees), yield and relative modulation."""
+        res = self.state.result
+        rec = res.pattern.receptors
+        az, el = _az_el(np.asarray(rec.visual_dirs[k], float))
+        return {"index": int(k), "eye": "left" if rec.eye_index[k] == 0 else "right",
+                "azimuth_deg": float(az[0]), "elevation_deg": float(el[0]),
+                "yield": float(res.pattern.yields[k]), "modulation": float(res.pattern.modulation[k])}
+
+    def map_point(self, pos) -> tuple[float, float]:
+        """Map coordinates (azimuth, elevation, degrees) of a canvas pixel position."""
+        tr = self.canvas.scene.node_transform(self.view.scene)
+        p = tr.map(np.asarray(pos, float)[:2])
+        return float(p[0]), float(p[1])
+
+    def _on_mouse_move(self, event):
+        if self.on_hover is None:
+            return
+        try:
+            az, el = self.map_point(event.pos)
+            k = self.receptor_at(az, el) if self.state.result is not None else None
+            self.on_hover(None if k is None else self.receptor_info(k))
+        except Exception:  # noqa: BLE001 - a hover readout must never break the event loop
+            self.on_hover(None)
 
     def render(self) -> np.ndarray:
         """The canvas as an RGBA image ``(H, W, 4)`` uint8 (off-screen render)."""
-        return _render(self.canvas)
+        return _render(self.canvas, "map view")

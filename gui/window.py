@@ -5,38 +5,73 @@ Conventions (owned here)
 - Start-up: the scenario given, else the bundled demo scenario (:func:`retina.data.demo_scenario_path`)
   reduced by :func:`retina.build.quick_scenario` ("quick settings"; ``quick=False`` keeps it
   whole).  A scenario that fails validation is reported in a dialog (or raised before the window
-  exists), never as a traceback.
-- Every change of a field that affects the pattern sends :meth:`retina_viewer.state.ViewerState.request`
-  to the single worker (:mod:`retina_viewer.workers`); display and eye choices only recolour.
-- Keyboard: Left/Right turn the head 5 degrees (with Shift 1 degree), Up/Down pitch it 5 degrees,
-  Page Up/Page Down roll it 5 degrees; Ctrl+O opens a scenario, Ctrl+S saves a screenshot, Ctrl+Q
-  quits.
-- Screenshots are PNG files written atomically (:mod:`retina.io.atomic`): the whole window
-  (``QWidget.grab``) or one view (the vispy canvas ``render()``).
+  exists), never as a traceback.  The first request is sent once the scenario is loaded (nothing
+  is computed for the defaults before it).
+- Every change of a field that affects the pattern asks for a new pattern; display, eye and colour
+  lock only recolour.  Coalescing, latest wins: requests are sent from a zero-delay timer (many
+  changes in one pass of the event loop make one request), the worker keeps only the newest
+  pending request, and results are applied from a zero-delay timer too (only the newest result
+  waiting is drawn).  ``synchronous=True`` sends and applies at once (tests, scripts).
+- Keyboard: in a view, Left/Right turn the head 5 degrees (with Shift 1 degree), Up/Down pitch
+  it, Page Up/Page Down roll it; in a control the keys belong to the control.  Ctrl+O opens a
+  scenario, Ctrl+Shift+S saves the state as a scenario, Ctrl+E exports a publication figure,
+  Ctrl+S saves a screenshot, Ctrl+Z / Ctrl+Shift+Z undo and redo, Ctrl+Q quits.
+- Files are written atomically (:mod:`retina.io.atomic`): screenshots (the whole window,
+  ``QWidget.grab``, or one view, the vispy canvas ``render()``), scenarios
+  (:func:`retina.scenario.save_scenario`) and figures (:func:`retina.figures.modulation_fields`, the
+  builder ``retina patterns`` uses).
+- No exception escapes a Qt slot: every slot is wrapped by :func:`_slot`, which shows the message
+  in a dialog (an :class:`~retina.errors.InputError` or ``OSError``) or in the status bar.
+- Opening a scenario first loads what its yield source names (a spin-system file is validated);
+  if that, or the first pattern of the new scenario, fails, the previous scenario is restored and
+  a dialog says why.
 """
 
 from __future__ import annotations
 
+import dataclasses
+import functools
 import sys
 from pathlib import Path
 
 import numpy as np
-from PyQt6.QtCore import QBuffer, QByteArray, QIODevice, Qt
+from PyQt6.QtCore import QBuffer, QByteArray, QIODevice, Qt, QTimer
 from PyQt6.QtGui import QAction, QImage, QKeySequence, QShortcut
 from PyQt6.QtWidgets import (QApplication, QFileDialog, QMainWindow, QMessageBox, QScrollArea,
                              QSplitter, QVBoxLayout, QWidget)
 
 from retina.errors import InputError
-from .panels import ControlPanel, ReadoutPanel
-from .state import ViewerState
-from .views import HeadView, MapView
-from .workers import QtPatternWorker
+from .panels import BoundPlot, ControlPanel, ReadoutPanel
+from .state import ViewerState, scan_yaws
+from .views import HeadView, MapView, colour_limits
+from .workers import QtPatternWorker, format_deg
 
-__all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "main"]
+__all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "main",
+           "OFFSCREEN_MESSAGE"]
 
 #: Fields whose change needs a new pattern.
 _REQUEST_FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg",
                    "declination_deg", "photons", "ordering", "kappa")
+
+OFFSCREEN_MESSAGE = ("the viewer cannot draw its OpenGL views on Qt's '{}' platform (they would be "
+                     "blank); run it on a display or under a virtual X server: xvfb-run -s "
+                     "\"-screen 0 1600x1000x24\" retina view")
+
+
+def _slot(fn):
+    """Wrap a Qt slot so that no exception escapes it (module docstring)."""
+
+    @functools.wraps(fn)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return fn(self, *args, **kwargs)
+        except (InputError, OSError) as exc:
+            self.report_error("Could not do that", exc)
+        except Exception as exc:  # noqa: BLE001 - a slot must never raise into Qt
+            self.report_error("Unexpected error", exc, unexpected=True)
+        return None
+
+    return wrapper
 
 
 def load_start_scenario(path=None, *, quick: bool | None = None):
@@ -83,7 +118,7 @@ class MainWindow(QMainWindow):
     scenario : retina.scenario.Scenario, optional
         Default: :func:`load_start_scenario` ``()``.
     synchronous : bool
-        Compute on the GUI thread (tests and scripts).
+        Compute on the GUI thread and apply results at once (tests and scripts).
 
     Attributes
     ----------
@@ -92,70 +127,133 @@ class MainWindow(QMainWindow):
     head_view, map_view : retina_viewer.views.HeadView, retina_viewer.views.MapView
     controls : retina_viewer.panels.ControlPanel
     readout : retina_viewer.panels.ReadoutPanel
+    bound_plot : retina_viewer.panels.BoundPlot
+    dialogs : bool
+        Show errors in dialogs (tests set False and read :attr:`last_error`).
     """
 
     def __init__(self, scenario=None, *, synchronous: bool = False, parent=None):
         super().__init__(parent)
         self.setWindowTitle("retina-compass viewer")
+        self.synchronous = bool(synchronous)
+        self.dialogs = True
+        self.last_error = None
         self.state = ViewerState()
         self.worker = QtPatternWorker(synchronous=synchronous, parent=self)
         self.worker.finished.connect(self._on_result)
         self.worker.failed.connect(self._on_failed)
+        self._request_pending = False
+        self._pending_result = None
+        self._applied_serial = -1
+        self._fallback = None        # (scenario, values) to restore if a new scenario fails
+        self._scan = None            # playback: dict(yaws, k, centre)
+        self._scan_len = 0
+        self._scan_timer = QTimer(self)
+        self._scan_timer.timeout.connect(self._scan_tick)
         outer = QSplitter(Qt.Orientation.Horizontal)
+        outer.setChildrenCollapsible(False)
         self.setCentralWidget(outer)  # canvases are created inside the window (views.HeadView)
         split = QSplitter(Qt.Orientation.Horizontal)
+        split.setChildrenCollapsible(False)
         outer.addWidget(split)
-        self.head_view = HeadView(self.state, parent=split)
-        self.map_view = MapView(self.state, parent=split)
+        self.views_widget = split
+        self.head_view = HeadView(self.state, parent=split, follow="result")
+        self.map_view = MapView(self.state, parent=split, follow="result")
+        for v in (self.head_view, self.map_view):
+            v.canvas.native.setMinimumSize(160, 160)
+            v.canvas.native.setFocusPolicy(Qt.FocusPolicy.StrongFocus)
         split.addWidget(self.head_view.canvas.native)
-        split.addWidget(self.map_view.canvas.native)
-        split.setSizes([640, 620])
+        split.addWidget(self.map_view.widget)
+        split.setSizes([620, 640])
         side = QWidget()
         sl = QVBoxLayout(side)
         self.controls = ControlPanel(self.state)
         self.readout = ReadoutPanel(self.state)
+        self.bound_plot = BoundPlot(self.state)
         sl.addWidget(self.readout)
+        sl.addWidget(self.bound_plot)
         sl.addWidget(self.controls)
         scroll = QScrollArea()
+        self.side_scroll = scroll
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         scroll.setWidget(side)
         scroll.setWidgetResizable(True)
-        scroll.setMinimumWidth(420)
+        scroll.setMinimumWidth(200)   # the views keep their own minimum; nothing squeezes them away
         outer.addWidget(scroll)
         outer.setStretchFactor(0, 1)
+        outer.setSizes([1180, 380])
+        self.map_view.on_hover = self.readout.show_receptor
+        self.controls.set_error_handler(
+            lambda title, exc: self.report_error(title, exc, unexpected=not isinstance(exc, (InputError, OSError))))
+        self.controls.play.toggled.connect(self._on_play)
         self._build_menus()
         self._build_shortcuts()
         self._unsub = [self.state.events.connect(n, self._on_change) for n in _REQUEST_FIELDS]
         self._unsub.append(self.state.events.connect("scenario", self._on_scenario))
-        self.resize(1560, 820)
+        self._unsub.append(self.state.events.connect("lock_scale", self._on_lock))
+        self.resize(1560, 860)
         self.state.load_scenario(scenario if scenario is not None else load_start_scenario())
+        self.head_view.canvas.native.setFocus()
+
+    # ---------------------------------------------------------------- errors
+    def report_error(self, title: str, exc, *, unexpected: bool = False) -> None:
+        """Show an error in a dialog (or the status bar without dialogs); never raises."""
+        text = " ".join(str(exc).split())
+        if unexpected:
+            text = f"{type(exc).__name__}: {text}"
+        self.last_error = text
+        try:
+            self.statusBar().showMessage(f"error: {text}")
+            if self.dialogs:
+                QMessageBox.warning(self, title, text)
+        except Exception:  # noqa: BLE001 - reporting must not fail
+            pass
 
     # ---------------------------------------------------------------- menus and keys
     def _build_menus(self):
-        m = self.menuBar().addMenu("&File")
-        for text, key, slot in (("&Open scenario...", QKeySequence.StandardKey.Open, self.open_dialog),
-                                ("&Save screenshot...", QKeySequence.StandardKey.Save, self.screenshot_dialog),
-                                ("Save &head view image...", None, lambda: self.view_image_dialog("head")),
-                                ("Save &map image...", None, lambda: self.view_image_dialog("map")),
-                                ("&Quit", QKeySequence.StandardKey.Quit, self.close)):
-            a = QAction(text, self)
-            if key is not None:
-                a.setShortcut(QKeySequence(key))
-            a.triggered.connect(slot)
-            m.addAction(a)
-        v = self.menuBar().addMenu("&View")
-        a = QAction("&Reset camera", self)
-        a.triggered.connect(self.reset_camera)
-        v.addAction(a)
+        self.actions = {}
+        SK = QKeySequence.StandardKey
+        menus = (
+            ("&File", (("open", "&Open scenario...", SK.Open, self.open_dialog),
+                       ("save_scenario", "Save state as &scenario...", "Ctrl+Shift+S", self.save_scenario_dialog),
+                       ("export", "&Export figure (PNG/SVG/PDF)...", "Ctrl+E", self.export_dialog),
+                       ("screenshot", "Save screens&hot...", SK.Save, self.screenshot_dialog),
+                       ("head_image", "Save &head view image...", None, lambda: self.view_image_dialog("head")),
+                       ("map_image", "Save &map image...", None, lambda: self.view_image_dialog("map")),
+                       ("quit", "&Quit", "Ctrl+Q", self.close))),
+            ("&Edit", (("undo", "&Undo", SK.Undo, self.undo),
+                       ("redo", "&Redo", SK.Redo, self.redo))),
+            ("&View", (("reset_camera", "&Reset views", None, self.reset_camera),)),
+        )
+        for title, items in menus:
+            m = self.menuBar().addMenu(title)
+            for key, text, shortcut, fn in items:
+                a = QAction(text, self)
+                if shortcut is not None:
+                    a.setShortcut(QKeySequence(shortcut))
+                a.triggered.connect(lambda checked=False, f=fn: self._run_action(f))
+                m.addAction(a)
+                self.actions[key] = a
+
+    @_slot
+    def _run_action(self, fn):
+        fn()
 
     def _build_shortcuts(self):
+        """Head-turning keys, active only while a view (or the splitter holding them) has focus."""
         self._shortcuts = []
         for key, name, step in ((Qt.Key.Key_Left, "yaw_deg", -5.0), (Qt.Key.Key_Right, "yaw_deg", 5.0),
                                 (Qt.Key.Key_Up, "pitch_deg", 5.0), (Qt.Key.Key_Down, "pitch_deg", -5.0),
                                 (Qt.Key.Key_PageUp, "roll_deg", -5.0), (Qt.Key.Key_PageDown, "roll_deg", 5.0)):
             for mod, k in ((Qt.KeyboardModifier.NoModifier, 1.0), (Qt.KeyboardModifier.ShiftModifier, 0.2)):
-                sc = QShortcut(QKeySequence(mod.value | key.value), self)
-                sc.activated.connect(lambda n=name, s=step * k: self.nudge(n, s))
+                sc = QShortcut(QKeySequence(mod.value | key.value), self.views_widget)
+                sc.setContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+                sc.activated.connect(lambda n=name, s=step * k: self._nudge_slot(n, s))
                 self._shortcuts.append(sc)
+
+    @_slot
+    def _nudge_slot(self, name, step):
+        self.nudge(name, step)
 
     def nudge(self, name: str, step: float) -> None:
         """Change a pose angle by ``step`` degrees (pitch clamped to [-90, 90], roll wrapped)."""
@@ -169,40 +267,194 @@ class MainWindow(QMainWindow):
     def reset_camera(self) -> None:
         cam = self.head_view.view.camera
         cam.elevation, cam.azimuth, cam.distance = 20.0, -55.0, 82.0
-        self.map_view.view.camera.set_range(x=(-214.0, 186.0), y=(-134.0, 104.0), margin=0.0)
+        self.map_view.reset_range()
+
+    def undo(self) -> None:
+        if not self.state.undo():
+            self.statusBar().showMessage("nothing to undo", 2000)
+
+    def redo(self) -> None:
+        if not self.state.redo():
+            self.statusBar().showMessage("nothing to redo", 2000)
 
     # ---------------------------------------------------------------- state -> worker
     def _on_change(self, event) -> None:
         if event.name == "intensity_uT":
-            self.statusBar().showMessage(f"computing the yield function at {event.value:g} uT...")
-        self.request()
+            sc = self.state.scenario
+            if sc is not None and self.worker.computer.yield_is_computed(sc, event.value):
+                self.statusBar().showMessage(f"computing the yield function at {event.value:g} uT...")
+            elif sc is not None:
+                kind, path = sc.yield_source
+                what = ("computed at the scenario's yield.field_uT" if kind == "system"
+                        else f"read from {Path(path).name}")
+                self.statusBar().showMessage(f"the yield function is {what}; the intensity changes "
+                                             "the field direction only", 6000)
+        self._schedule_request()
 
     def _on_scenario(self, event) -> None:
         sc = event.value
         self.setWindowTitle(f"retina-compass viewer - {sc.name}"
                             + (f" ({Path(sc.source).name})" if sc.source else ""))
-        self.statusBar().showMessage("computing the yield function...")
+        self._stop_scan(restore=False)
+        if self.worker.computer.yield_is_computed(sc, self.state.intensity_uT):
+            self.statusBar().showMessage("computing the yield function...")
+        else:
+            self.statusBar().showMessage(f"reading the yield function from {Path(sc.yield_source[1]).name}...")
+        self._schedule_request()
+
+    def _on_lock(self, event) -> None:
+        res = self.state.result
+        if event.value and res is not None:
+            self.state.locked_limits = {d: colour_limits(res, d, self.state.eye)
+                                        for d in ("modulation", "yields")}
+
+    def _schedule_request(self) -> None:
+        if self.synchronous:
+            self.request()
+        elif not self._request_pending:
+            self._request_pending = True
+            QTimer.singleShot(0, self._send_request)
+
+    @_slot
+    def _send_request(self):
+        self._request_pending = False
         self.request()
 
     def request(self) -> None:
-        """Send the current state to the worker."""
-        if self.state.scenario is not None:
-            self.worker.submit(self.state.request())
+        """Send the current state to the worker (with the scan's looks while one plays)."""
+        if self.state.scenario is None:
+            return
+        req = self.state.request()
+        if self._scan is not None:
+            sc = self._scan
+            req = dataclasses.replace(req, scan_yaws=tuple(sc["yaws"][:sc["k"]]),
+                                      scan_centre_deg=sc["centre"])
+        self.worker.submit(req)
 
+    @_slot
     def _on_result(self, result) -> None:
+        if self.synchronous:
+            self._apply_result(result)
+            return
+        first = self._pending_result is None
+        self._pending_result = result
+        if first:
+            QTimer.singleShot(0, self._apply_pending)
+
+    @_slot
+    def _apply_pending(self):
+        res, self._pending_result = self._pending_result, None
+        if res is not None:
+            self._apply_result(res)
+
+    def _apply_result(self, result) -> None:
+        if result.request.serial <= self._applied_serial and \
+                result.request.scenario is self.state.scenario:
+            return  # an older result overtaken by a newer one: latest wins
+        self._applied_serial = result.request.serial
+        if result.request.scenario is self.state.scenario:
+            self._fallback = None  # the scenario produced a pattern: no way back needed
         self.state.set_result(result)
-        self.statusBar().showMessage(f"pattern for heading {result.request.yaw_deg:.1f} deg "
+        if result.request.scan_yaws:
+            self._show_scan(result)
+        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} "
                                      f"({1000 * result.seconds:.1f} ms)", 4000)
 
+    @_slot
     def _on_failed(self, request, message: str) -> None:
+        if self._fallback is not None and request.scenario is self.state.scenario:
+            fallback, self._fallback = self._fallback, None
+            # restore from the event loop, not inside the new scenario's own events
+            QTimer.singleShot(0, lambda: self._restore(fallback, message))
+            return
         self.statusBar().showMessage(f"error: {message}")
+        self.last_error = message
+
+    @_slot
+    def _restore(self, fallback, message) -> None:
+        old, values = fallback
+        self.state.load_scenario(old)
+        self.state.update(record=False, **values)
+        self.report_error("Could not open the scenario", f"{message} (the previous scenario is kept)")
+
+    # ---------------------------------------------------------------- head scan playback
+    @_slot
+    def _on_play(self, on: bool) -> None:
+        if on:
+            self.play_scan()
+        else:
+            self._stop_scan(restore=True)
+
+    def play_scan(self) -> None:
+        """Start playing the head scan from the current heading (state.py :func:`scan_yaws`)."""
+        st = self.state
+        yaws = scan_yaws(st.yaw_deg, st.scan_amplitude_deg, st.scan_steps, st.scan_repeats)
+        step = 2.0 * st.scan_amplitude_deg / max(st.scan_steps - 1, 1)
+        interval = 1000.0 * step / st.scan_speed_deg_s if step > 0 else 100.0
+        self._scan = {"yaws": yaws, "k": 0, "centre": st.yaw_deg}
+        self._scan_len = len(yaws)
+        self.controls.play.blockSignals(True)
+        self.controls.play.setChecked(True)
+        self.controls.play.setText("Stop scan")
+        self.controls.play.blockSignals(False)
+        self._scan_timer.start(max(15, int(round(interval))))
+        self._scan_tick()
+
+    def scan_step(self) -> bool:
+        """Advance the playing scan by one look; returns False when it has ended."""
+        sc = self._scan
+        if sc is None or sc["k"] >= len(sc["yaws"]):
+            return False
+        sc["k"] += 1
+        self.state.set("yaw_deg", float(sc["yaws"][sc["k"] - 1]), record=False)
+        self._schedule_request()  # the yaw may not change at a turning point; the looks do
+        return True
+
+    @_slot
+    def _scan_tick(self):
+        if not self.scan_step():
+            self._stop_scan(restore=True)  # the scan has ended: back to the start heading
+
+    def _scan_done(self):
+        self.controls.play.blockSignals(True)
+        self.controls.play.setChecked(False)
+        self.controls.play.setText("Play scan")
+        self.controls.play.blockSignals(False)
+
+    def _stop_scan(self, restore: bool) -> None:
+        self._scan_timer.stop()
+        sc, self._scan = self._scan, None
+        self._scan_done()
+        if sc is not None and restore:
+            self.state.set("yaw_deg", sc["centre"], record=False)
+
+    def _show_scan(self, res) -> None:
+        from .workers import describe_bound
+
+        q = res.request
+        k = len(q.scan_yaws)
+        self.controls.scan_label.setText(
+            f"look {k} of {self._scan_len}: bound after the scan so far "
+            f"{describe_bound(res.scan_bound_deg)}; after {k} looks straight at "
+            f"{format_deg(q.scan_centre_deg)}: {describe_bound(res.look_bound_deg)}")
 
     # ---------------------------------------------------------------- files
     def open_scenario(self, path) -> None:
-        """Load a scenario file (as given, not reduced); raises InputError when it is invalid."""
+        """Load a scenario file (as given, not reduced).  Raises InputError, keeping the current
+        scenario, when the file or what its yield source names is invalid (module docstring)."""
         from retina.scenario import load_scenario
 
-        self.state.load_scenario(load_scenario(path))
+        sc = load_scenario(path)
+        kind, ypath = sc.yield_source
+        if kind == "system":
+            from retina.spin.io import load_system
+
+            load_system(ypath)   # a broken spin-system file fails here, before anything changes
+        old = self.state.scenario
+        if old is not None:
+            values = {k: self.state.get(k) for k in _REQUEST_FIELDS}
+            self._fallback = (old, values)
+        self.state.load_scenario(sc)
 
     def open_dialog(self) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Open scenario", "", "Scenario (*.toml);;All files (*)")
@@ -211,7 +463,45 @@ class MainWindow(QMainWindow):
         try:
             self.open_scenario(path)
         except InputError as exc:
-            QMessageBox.warning(self, "Invalid scenario", " ".join(str(exc).split()))
+            self.report_error("Invalid scenario", exc)
+
+    def save_scenario(self, path, *, force: bool = False) -> Path:
+        """Save the current state as a scenario file (:meth:`ViewerState.to_scenario`), atomically."""
+        from retina.scenario import save_scenario
+
+        path = Path(path)
+        if path.suffix.lower() != ".toml":
+            path = path.with_name(path.name + ".toml")
+        return save_scenario(self.state.to_scenario(), path, force=force)
+
+    def export_figure(self, stem, formats=("png", "svg", "pdf"), *, dpi: int = 300, force: bool = False):
+        """Write the current pattern as a publication figure with the figure builder the
+        ``patterns`` command uses (:func:`retina.figures.modulation_fields`, one panel); returns the
+        files written."""
+        from retina.figures import modulation_fields, save_figure
+        from retina.io.atomic import check_writable
+
+        res = self.state.result
+        if res is None:
+            raise InputError("no pattern to export yet", key="figure")
+        stem = Path(stem)
+        if stem.suffix.lower() in (".png", ".svg", ".pdf"):
+            stem = stem.with_suffix("")
+        for f in formats:
+            check_writable(stem.with_name(f"{stem.name}.{f}"), force=force)
+        p = res.request
+        rec = res.pattern.receptors
+        sc = p.scenario
+        params = (f"Scenario {sc.name}; pitch {p.pitch_deg:g} deg, roll {p.roll_deg:g} deg; field "
+                  f"{p.intensity_uT:g} uT, inclination {p.inclination_deg:g} deg, declination "
+                  f"{p.declination_deg:g} deg; ordering "
+                  + (f"cone kappa {p.kappa:g}" if p.kappa is not None else sc["ordering"]["model"])
+                  + f"; {len(rec)} receptors; exported from the viewer")
+        fig = modulation_fields(rec.visual_dirs, rec.eye_index, res.pattern.modulation[None, :],
+                                [p.yaw_deg], np.asarray(res.pattern.b_head, float)[None, :],
+                                params=params, ncols=1,
+                                title=f"Modulation over the visual fields, heading {p.yaw_deg:g} deg")
+        return save_figure(fig, stem, formats, dpi=dpi, force=True)
 
     def save_screenshot(self, path, *, force: bool = False) -> Path:
         """Save the whole window as PNG (atomic write)."""
@@ -228,29 +518,47 @@ class MainWindow(QMainWindow):
             raise InputError(f"expected 'head' or 'map', got {which!r}", key="view")
         return atomic_write_bytes(path, rgba_png_bytes(views[which].render()), force=force)
 
-    def _ask_png(self, title):
-        path, _ = QFileDialog.getSaveFileName(self, title, "retina-view.png", "PNG image (*.png)")
-        if path and not path.lower().endswith(".png"):
-            path += ".png"
+    def _ask(self, title, default, filters):
+        path, _ = QFileDialog.getSaveFileName(self, title, default, filters)
         return path
 
     def screenshot_dialog(self) -> None:
-        path = self._ask_png("Save screenshot")
+        path = self._ask("Save screenshot", "retina-view.png", "PNG image (*.png)")
         if path:  # the dialog has asked before replacing a file
+            if not path.lower().endswith(".png"):
+                path += ".png"
             self._report_write(lambda: self.save_screenshot(path, force=True))
 
     def view_image_dialog(self, which: str) -> None:
-        path = self._ask_png(f"Save {which} view image")
+        path = self._ask(f"Save {which} view image", f"retina-{which}.png", "PNG image (*.png)")
         if path:
+            if not path.lower().endswith(".png"):
+                path += ".png"
             self._report_write(lambda: self.save_view_image(which, path, force=True))
+
+    def save_scenario_dialog(self) -> None:
+        path = self._ask("Save state as scenario", "viewer-state.toml", "Scenario (*.toml)")
+        if path:
+            self._report_write(lambda: self.save_scenario(path, force=True))
+
+    def export_dialog(self) -> None:
+        path, filt = QFileDialog.getSaveFileName(
+            self, "Export figure (the suffix picks the format; no suffix: PNG, SVG and PDF)",
+            "retina-pattern", "PNG, SVG and PDF (*);;PNG (*.png);;SVG (*.svg);;PDF (*.pdf)")
+        if not path:
+            return
+        suffix = Path(path).suffix.lower().lstrip(".")
+        formats = (suffix,) if suffix in ("png", "svg", "pdf") else ("png", "svg", "pdf")
+        self._report_write(lambda: self.export_figure(path, formats, force=True))
 
     def _report_write(self, fn) -> None:
         try:
             p = fn()
         except (InputError, OSError) as exc:
-            QMessageBox.warning(self, "Could not save", " ".join(str(exc).split()))
+            self.report_error("Could not save", exc)
             return
-        self.statusBar().showMessage(f"saved {p}", 5000)
+        shown = ", ".join(str(x) for x in p) if isinstance(p, (list, tuple)) else str(p)
+        self.statusBar().showMessage(f"saved {shown}", 5000)
 
     # ---------------------------------------------------------------- teardown
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt name
@@ -259,6 +567,7 @@ class MainWindow(QMainWindow):
 
     def shutdown(self) -> None:
         """Stop the worker thread and disconnect views and panels (idempotent)."""
+        self._scan_timer.stop()
         self.worker.close()
         for u in self._unsub:
             u()
@@ -267,6 +576,14 @@ class MainWindow(QMainWindow):
         self.map_view.close()
         self.controls.close_bindings()
         self.readout.close_binding()
+        self.bound_plot.close_binding()
+
+
+def check_platform(app) -> None:
+    """Raise InputError on a Qt platform that cannot draw OpenGL views (offscreen, minimal)."""
+    name = app.platformName()
+    if name in ("offscreen", "minimal"):
+        raise InputError(OFFSCREEN_MESSAGE.format(name), key="QT_QPA_PLATFORM")
 
 
 def main(argv=None, *, scenario=None, quick: bool | None = None, screenshot=None,
@@ -282,7 +599,8 @@ def main(argv=None, *, scenario=None, quick: bool | None = None, screenshot=None
     quick : bool, optional
         Reduce the scenario (default: only the bundled one).
     screenshot : str or Path, optional
-        Save the window as PNG once the first pattern is shown, then quit.
+        Save the window as PNG once the first pattern is shown, then quit.  The views must have
+        drawn something: blank views give an error (status 1), not a blank file.
     force : bool
         Replace an existing screenshot file.
     """
@@ -294,14 +612,21 @@ def main(argv=None, *, scenario=None, quick: bool | None = None, screenshot=None
 
         check_writable(screenshot, force=force)
     app = QApplication.instance() or QApplication(list(argv) if argv is not None else sys.argv[:1])
+    check_platform(app)
     ensure_backend()
     win = MainWindow(sc)
     status = {"code": 0, "shot": False}
     if screenshot is not None:
-        from PyQt6.QtCore import QTimer
-
         def shoot():
             try:
+                for v in (win.head_view, win.map_view):
+                    img = v.render()[..., :3]
+                    if img.reshape(-1, 3).std(axis=0).max() < 1.0:
+                        print("retina: error: the views drew nothing (blank); the OpenGL driver "
+                              "does not work here, try xvfb-run", file=sys.stderr)
+                        status["code"] = 1
+                        win.close()
+                        return
                 win.save_screenshot(screenshot, force=force)
             except (InputError, OSError) as exc:
                 print(f"retina: error: {' '.join(str(exc).split())}", file=sys.stderr)

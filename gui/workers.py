@@ -20,6 +20,26 @@ Conventions (owned here)
   (the scenario's ``readout.nuisance``); and the bound on the rms heading error over uniformly
   distributed true headings at the same pitch, roll and light, ``sqrt(mean_h 1 / I(h))`` over 360
   one-degree headings (the pipeline's precision-curve convention).  Degrees.
+- Information over the whole circle: the per-photon information at 360 one-degree headings (exact
+  trigonometric interpolation from ``2 L + 1`` node headings, :func:`retina.signal.noise.trig_interp_matrix`)
+  is kept per pitch, roll and field direction; :attr:`PatternResult.curve_bound_deg` is the bound
+  over the circle at the requested light level.
+- What the bound means (:attr:`PatternResult.status`, :func:`describe_bound`): ``"none"`` when the
+  pattern carries no heading information at any heading (the largest per-photon information is
+  below :data:`NO_INFORMATION` times the number of receptors, i.e. rounding noise: a vertical field
+  or a flat pattern); ``"not_informative"`` when the bound exceeds
+  :data:`retina.readout.fisher.INFORMATIVE_BOUND_DEG` (as in the report); else ``"ok"``.
+  ``ambiguous``: the headings ``psi`` and ``psi + 180`` deg cannot be told apart at this light level,
+  i.e. ``d'^2 < 1`` with ``d'^2 = sum (lam_1 - lam_2)^2 / lam_bar`` (minus the gain term
+  ``(sum (lam_1 - lam_2))^2 / sum lam_bar`` when the gain is unknown), the Poisson analogue of the
+  bound's Fisher information for a finite step (derived from ``log`` likelihood ratios to second
+  order; common practice, no source).  A horizontal field of a level head gives ``d' = 0``
+  exactly: the pattern of ``psi + 180`` is the same (``Phi(b) = Phi(-b)``).
+- Head scans played in the window: ``PatternRequest.scan_yaws`` are the looks so far, each with
+  ``photons`` pairs per receptor; the information adds over looks (the per-look nuisance, an
+  unknown light level per look when ``readout.nuisance = "gain"``, adds too:
+  :mod:`retina.readout.scans` "pose_gain").  :attr:`PatternResult.scan_bound_deg` is compared with
+  :attr:`PatternResult.look_bound_deg`, the same number of looks all at the scan centre.
 - Results reach the GUI thread through a Qt signal (:class:`QtPatternWorker`); Qt queues a signal
   emitted on the worker thread to the receiver's thread.  ``synchronous=True`` computes inside
   :meth:`~LatestOnlyWorker.submit` on the caller's thread (for tests and scripts).
@@ -39,7 +59,37 @@ import numpy as np
 from retina.errors import Cancelled, InputError
 
 __all__ = ["PatternRequest", "PatternResult", "PatternComputer", "LatestOnlyWorker",
-           "QtPatternWorker", "HAVE_QT"]
+           "QtPatternWorker", "HAVE_QT", "describe_bound", "format_deg", "NO_INFORMATION",
+           "FLAT_MODULATION"]
+
+#: Per-photon information (rad^-2) per receptor below which a pattern carries no heading
+#: information (rounding noise of a heading-independent pattern is about 1e-30).
+NO_INFORMATION = 1e-20
+#: Modulation depth below which a pattern counts as flat (rounding noise is about 1e-16).
+FLAT_MODULATION = 1e-9
+
+
+def format_deg(v: float, decimals: int = 1) -> str:
+    """``v`` with ``decimals`` decimals and " deg", never "-0.0 deg"."""
+    s = f"{float(v):.{decimals}f}"
+    if float(s) == 0.0:
+        s = s.lstrip("-")
+    return f"{s} deg"
+
+
+def describe_bound(bound_deg: float, status: str = "ok", ambiguous: bool = False) -> str:
+    """The words the viewer shows for a bound (module docstring): never an absurd number."""
+    from retina.readout.fisher import INFORMATIVE_BOUND_DEG
+
+    if status == "none" or not np.isfinite(bound_deg):
+        return "no heading information"
+    if bound_deg > INFORMATIVE_BOUND_DEG:
+        text = f"not informative (> {INFORMATIVE_BOUND_DEG:g} deg)"
+    else:
+        text = format_deg(bound_deg, 2)
+    if ambiguous:
+        text += "; ambiguous: heading + 180 deg looks the same"
+    return text
 
 
 @dataclass(frozen=True)
@@ -57,6 +107,8 @@ class PatternRequest:
     photons: float = 300.0
     ordering: str = "scenario"
     kappa: float | None = None
+    scan_yaws: tuple = ()
+    scan_centre_deg: float | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -80,6 +132,19 @@ class PatternResult:
         How the yield function was obtained.
     seconds : float
         Wall time of the computation, seconds.
+    curve_bound_deg : ndarray, shape (360,)
+        Bound at headings 0, 1, ..., 359 deg at this pitch, roll, field and light, degrees.
+    status : {"ok", "not_informative", "none"}
+        What the bound at this heading means (module docstring).
+    ambiguous : bool
+        Heading and heading + 180 deg cannot be told apart (``mirror_dprime < 1``).
+    mirror_dprime : float
+        Discriminability ``d'`` of the patterns at ``psi`` and ``psi + 180`` deg.
+    flat : bool
+        The pattern is flat (depth below :data:`FLAT_MODULATION`).
+    scan_bound_deg, look_bound_deg : float
+        With ``request.scan_yaws``: the bound after those looks, and after as many looks at the
+        scan centre; NaN without a scan.
     """
 
     request: PatternRequest
@@ -90,6 +155,13 @@ class PatternResult:
     yield_field_uT: float
     yield_note: str
     seconds: float
+    curve_bound_deg: Any = None
+    status: str = "ok"
+    ambiguous: bool = False
+    mirror_dprime: float = float("nan")
+    flat: bool = False
+    scan_bound_deg: float = float("nan")
+    look_bound_deg: float = float("nan")
 
 
 def _same_yield_key(sc, intensity_uT: float):
@@ -117,6 +189,7 @@ class PatternComputer:
         self._model = self._model_yf = self._model_kappa = None
         self._curve_key = None
         self._curve = None
+        self._nodes = None
         self.model_builds = 0  # diagnostics: how often a RetinaModel was built
         self.yield_builds = 0
 
@@ -179,17 +252,23 @@ class PatternComputer:
                 order = build.build_ordering(sc, kappa, model=ordering)
                 self._model = build.build_retina(sc, yf, self._receptors, ordering=order)
             self._model_yf, self._model_kappa = yf, key
-            self._curve_key = self._curve = None
+            self._curve_key = self._curve = self._nodes = None
             self.model_builds += 1
         return self._model
+
+    def yield_is_computed(self, sc, intensity_uT: float) -> bool:
+        """Whether a request for ``sc`` at ``intensity_uT`` must compute a yield function first."""
+        if sc is not self._scenario:
+            return sc.yield_source[0] == "system"
+        return _same_yield_key(sc, intensity_uT) not in self._yfs and sc.yield_source[0] == "system"
 
     def compute(self, req: PatternRequest, *, cancel: Callable[[], bool] | None = None) -> PatternResult:
         """Compute one request.  ``cancel()`` is polled while a yield function is computed; when
         it returns True the computation raises :class:`retina.errors.Cancelled`."""
         from retina.eye.field import Field
         from retina.eye.pose import Pose
-        from retina.readout.fisher import cramer_rao_deg, heading_information
-        from retina.signal.noise import SignalModel
+        from retina.readout.fisher import INFORMATIVE_BOUND_DEG, cramer_rao_deg, interpolated_information
+        from retina.signal.noise import SignalModel, trig_interp_matrix
 
         if req.scenario is None:
             raise InputError("no scenario loaded; open one with File > Open scenario", key="scenario")
@@ -211,18 +290,54 @@ class PatternComputer:
                           declination_deg=req.declination_deg, photons=1.0,
                           pitch_deg=req.pitch_deg, roll_deg=req.roll_deg)
         # information is linear in the light level (retina.readout.fisher): per photon, then scale
-        info1 = float(heading_information(sig, [req.yaw_deg], nuisance=nuisance).per_photon[0])
         ckey = (req.inclination_deg, req.declination_deg, req.pitch_deg, req.roll_deg)
+        L = int(model.degree)
         if self._curve_key != ckey:
-            self._curve = heading_information(sig, np.arange(360.0), nuisance=nuisance,
-                                              degree=model.degree).per_photon
+            self._nodes = sig.fourier_nodes(L)
+            nodes = np.deg2rad(self._nodes[0])
+            W = trig_interp_matrix(nodes, np.deg2rad(np.arange(360.0)), L)
+            self._curve = interpolated_information(W, self._nodes[1], self._nodes[2], nuisance)
             self._curve_key = ckey
+        nodes_rad, lam_n, dlam_n = np.deg2rad(self._nodes[0]), self._nodes[1], self._nodes[2]
+        # information here from the same nodes (exact: a trigonometric polynomial of degree L)
+        W1 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg]), L)
+        info1 = float(interpolated_information(W1, lam_n, dlam_n, nuisance)[0])
         bound = float(cramer_rao_deg(req.photons * info1))
         crb = cramer_rao_deg(req.photons * self._curve)
         rms = float(np.sqrt(np.mean(crb ** 2)))
+        n_rec = y.size
+        flat = bool(depth < FLAT_MODULATION)
+        if flat or float(np.max(self._curve)) < NO_INFORMATION * n_rec:
+            status = "none"
+        elif bound > INFORMATIVE_BOUND_DEG:
+            status = "not_informative"
+        else:
+            status = "ok"
+        # heading + 180: the Poisson discriminability of the two patterns (module docstring)
+        W2 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg, req.yaw_deg + 180.0]), L)
+        l1, l2 = req.photons * (W2 @ lam_n)
+        diff, lbar = l1 - l2, 0.5 * (l1 + l2)
+        ok = lbar > 0
+        d2 = float(np.sum(diff[ok] ** 2 / lbar[ok]))
+        if nuisance == "gain" and lbar.sum() > 0:
+            d2 = max(d2 - float(diff.sum() ** 2 / lbar.sum()), 0.0)
+        dprime = math.sqrt(d2)
+        scan_bound = look_bound = float("nan")
+        if req.scan_yaws:
+            yaws = np.asarray(req.scan_yaws, float)
+            Ws = trig_interp_matrix(nodes_rad, np.deg2rad(yaws), L)
+            info_scan = float(np.sum(interpolated_information(Ws, lam_n, dlam_n, nuisance)))
+            centre = req.yaw_deg if req.scan_centre_deg is None else req.scan_centre_deg
+            Wc = trig_interp_matrix(nodes_rad, np.deg2rad([centre]), L)
+            info_c = float(interpolated_information(Wc, lam_n, dlam_n, nuisance)[0])
+            scan_bound = float(cramer_rao_deg(req.photons * info_scan))
+            look_bound = float(cramer_rao_deg(req.photons * yaws.size * info_c))
         return PatternResult(request=req, pattern=pat, depth=depth, bound_deg=bound,
                              rms_bound_deg=rms, yield_field_uT=F_yield, yield_note=note,
-                             seconds=time.perf_counter() - t0)
+                             seconds=time.perf_counter() - t0, curve_bound_deg=crb, status=status,
+                             ambiguous=bool(status != "none" and dprime < 1.0),
+                             mirror_dprime=dprime, flat=flat, scan_bound_deg=scan_bound,
+                             look_bound_deg=look_bound)
 
     def needs_new_yield(self, a: PatternRequest, b: PatternRequest) -> bool:
         """True when request ``b`` needs another yield function than ``a``."""

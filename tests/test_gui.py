@@ -511,9 +511,9 @@ def test_map_marks_follow_the_field_and_pose_conventions(qapp, file_scenario):
     # up by p, north is seen at head direction Ry(p)^T (cos 30, -sin 30, 0), i.e. at azimuth
     # -atan(tan 30 / cos p), and the horizon straight ahead sits at elevation -p.
     st.update(yaw_deg=30)
-    assert np.asarray(v.cardinals.pos)[0, 0] == pytest.approx(-30.0, abs=1e-4)
+    assert v.mark_positions["cardinals"][0, 0] == pytest.approx(-30.0, abs=1e-4)
     st.update(pitch_deg=15)
-    card = np.asarray(v.cardinals.pos)[:, :2]
+    card = v.mark_positions["cardinals"]
     az_n = -math.degrees(math.atan(math.tan(math.radians(30)) / math.cos(math.radians(15))))
     assert card[0, 0] == pytest.approx(az_n, abs=1e-4)
     hz = v.horizon._pos
@@ -605,7 +605,11 @@ def test_arrow_keys_turn_the_head(window, qapp):
     from PyQt6.QtTest import QTest
 
     window.show()
+    window.raise_()
     window.activateWindow()
+    # Shortcuts act only in the active window; without a window manager activation may take a
+    # few event-loop passes after earlier tests' windows closed.
+    assert QTest.qWaitForWindowActive(window, 5000)
     window.head_view.canvas.native.setFocus()
     qapp.processEvents()
     y0 = window.state.yaw_deg
@@ -622,12 +626,14 @@ def test_threaded_window_delivers_results_and_leaves_no_thread(qapp, file_scenar
     win = MainWindow(file_scenario)               # the real threaded worker
     assert len(_worker_threads()) == before + 1
     assert _process_until(qapp, lambda: win.state.result is not None)
-    for yaw in range(0, 200, 10):                 # a fast drag: stale requests are dropped
-        win.state.yaw_deg = yaw
+    n0 = len(win.worker.worker.computed)
+    assert n0 == 1                                # start-up: one request, none for the defaults
+    for yaw in range(0, 200, 10):                 # a fast drag within one pass of the event loop:
+        win.state.yaw_deg = yaw                   # the GUI coalesces it into one request
     assert _process_until(qapp, lambda: win.worker.worker.idle() and
                           win.state.result.request.yaw_deg == 190.0)
     w = win.worker.worker
-    assert len(w.computed) + w.dropped + w.cancelled >= 21 and w.computed[-1] == win.state.result.request.serial
+    assert len(w.computed) == 2 and w.computed[-1] == win.state.result.request.serial
     win.close()
     qapp.processEvents()
     assert len(_worker_threads()) == before
@@ -654,3 +660,502 @@ def test_python_m_gui_saves_a_screenshot_and_exits_0(display, tmp_path):
     r2 = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
                         capture_output=True, text=True, timeout=300)
     assert r2.returncode == 2 and "exists already" in r2.stderr
+
+
+# ------------------------------------------------------------------------------------------------
+# issue 14: features and defects (state and worker: no Qt)
+
+
+def test_scan_yaws_sweep_out_and_back():
+    from retina_viewer.state import scan_yaws
+
+    # Derived: steps looks from centre - A to centre + A, back again (turning points once),
+    # repeats times, ending at the start: L = repeats * 2 * (steps - 1) + 1.
+    y = scan_yaws(10.0, 20.0, 3, 2)
+    np.testing.assert_allclose(y, [350, 10, 30, 10, 350, 10, 30, 10, 350])
+    assert len(scan_yaws(0.0, 45.0, 13, 3)) == 3 * 2 * 12 + 1
+    np.testing.assert_allclose(scan_yaws(5.0, 0.0, 4, 1), 5.0)
+
+
+def test_undo_redo_merges_a_drag_into_one_step():
+    # Contract of gui/state.py History (common practice, no source: undo stacks that merge
+    # rapid changes of one control).
+    from retina_viewer.state import History, ViewerState
+
+    now = {"t": 0.0}
+    st = ViewerState()
+    st.history = History(clock=lambda: now["t"])
+    for yaw in (1, 2, 3, 4):          # a slider drag: 0.1 s apart
+        st.yaw_deg = yaw
+        now["t"] += 0.1
+    now["t"] += 5.0
+    st.pitch_deg = 10.0
+    now["t"] += 5.0
+    st.update(roll_deg=20.0, inclination_deg=50.0)   # one step for both
+    st.set("photons", 50.0, record=False)            # not recorded (scan playback, loading)
+    assert st.undo() == ["roll_deg", "inclination_deg"]
+    assert (st.roll_deg, st.inclination_deg) == (0.0, 60.0)
+    assert st.undo() == ["pitch_deg"] and st.pitch_deg == 0.0
+    assert st.undo() == ["yaw_deg"] and st.yaw_deg == 0.0     # the whole drag at once
+    assert st.undo() == [] and not st.history.can_undo
+    assert st.redo() == ["yaw_deg"] and st.yaw_deg == 4.0
+    st.yaw_deg = 100.0                                      # a new change clears the redo stack
+    assert not st.history.can_redo and st.photons == 50.0
+
+
+def test_state_saved_as_a_scenario_reproduces_the_pattern(file_scenario, tmp_path):
+    # The saved scenario, run through the patterns stage that `retina patterns` uses, gives the
+    # viewer's pattern (the same core, so equal to rounding).
+    from retina import build
+    from retina.scenario import load_scenario, save_scenario
+    from retina.stages.patterns import compute_patterns
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(file_scenario)
+    st.update(yaw_deg=123.0, pitch_deg=-7.0, roll_deg=4.0, inclination_deg=48.0, declination_deg=-11.0,
+              photons=77.0, kappa=6.0)
+    res = PatternComputer().compute(st.request())
+    path = save_scenario(st.to_scenario(), tmp_path / "state.toml")
+    sc = load_scenario(path)
+    yf = build.build_yield_function(sc)
+    out = compute_patterns(sc, build.build_retina(sc, yf), build.build_field(sc))
+    np.testing.assert_allclose(out["yields"][0], res.pattern.yields, rtol=1e-12)
+    assert sc["light"]["photons"] == [77.0] and sc["ordering"]["kappa"] == 6.0
+    st2 = ViewerState(sc)                     # opening it again restores the state
+    for k in ("yaw_deg", "pitch_deg", "roll_deg", "inclination_deg", "photons"):
+        assert st2.get(k) == pytest.approx(st.get(k), abs=1e-9)
+
+
+def test_vertical_field_says_no_information_and_horizontal_field_is_ambiguous(file_scenario):
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer, describe_bound
+
+    st = ViewerState(file_scenario)
+    c = PatternComputer()
+    # Derived: with the field along the yaw axis (inclination 90, level head) turning the head does
+    # not change b_head, so the information is zero; the bound must read in words, not 1e17 deg.
+    st.inclination_deg = 90.0
+    r = c.compute(st.request())
+    assert r.status == "none" and describe_bound(r.bound_deg, r.status) == "no heading information"
+    # Derived: a horizontal field and a level head: heading + 180 turns b_head into -b_head and
+    # Phi(b) = Phi(-b) (design.md), so the two patterns are equal and d' = 0 to rounding.
+    st.inclination_deg = 0.0
+    r = c.compute(st.request())
+    assert r.status == "ok" and r.ambiguous and r.mirror_dprime < 1e-6
+    assert "ambiguous" in describe_bound(r.bound_deg, r.status, r.ambiguous)
+    np.testing.assert_allclose(r.curve_bound_deg[:180], r.curve_bound_deg[180:], rtol=1e-8)
+    # inclined field: the two are told apart and the curve has the bound of this heading
+    st.inclination_deg = 66.0
+    r = c.compute(st.request())
+    assert not r.ambiguous and r.mirror_dprime > 1.0
+    assert r.curve_bound_deg[int(st.yaw_deg)] == pytest.approx(r.bound_deg, rel=1e-9)
+    # very dim light: above the informative limit the report's words (retina.readout.fisher)
+    st.photons = 0.01
+    r = c.compute(st.request())
+    assert r.status == "not_informative" and describe_bound(r.bound_deg, r.status).startswith("not informative")
+
+
+def test_format_deg_never_shows_minus_zero():
+    from retina_viewer.workers import describe_bound, format_deg
+
+    assert format_deg(-0.04) == "0.0 deg" and format_deg(-0.0) == "0.0 deg"
+    assert format_deg(-0.06) == "-0.1 deg" and format_deg(359.96, 0) == "360 deg"
+    assert describe_bound(float("inf")) == "no heading information"
+    assert describe_bound(12.345) == "12.35 deg"
+
+
+def test_scan_bound_adds_information_over_looks(file_scenario):
+    import dataclasses
+
+    from retina import build
+    from retina.readout.fisher import heading_information
+    from retina.signal.noise import SignalModel
+    from retina_viewer.state import ViewerState, scan_yaws
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(file_scenario)
+    st.update(yaw_deg=20.0, photons=40.0)
+    yaws = scan_yaws(20.0, 30.0, 5, 1)
+    req = dataclasses.replace(st.request(), scan_yaws=tuple(yaws[:6]), scan_centre_deg=20.0)
+    r = PatternComputer().compute(req)
+    # Derived: with an unknown light level per look (readout.nuisance = "gain") the Fisher
+    # information of independent looks adds (retina.readout.scans "pose_gain"); here each look is
+    # evaluated directly (no trigonometric interpolation) as an independent check.
+    model = build.build_retina(file_scenario, build.build_yield_function(file_scenario))
+    sig = SignalModel(model, inclination_deg=st.inclination_deg, declination_deg=st.declination_deg,
+                      photons=40.0)
+    info = heading_information(sig, yaws[:6], nuisance="gain").information
+    assert r.scan_bound_deg == pytest.approx(math.degrees(1 / math.sqrt(info.sum())), rel=1e-7)
+    centre = heading_information(sig, [20.0], nuisance="gain").information[0]
+    assert r.look_bound_deg == pytest.approx(math.degrees(1 / math.sqrt(6 * centre)), rel=1e-7)
+
+
+def test_figures_and_viewer_share_the_marks():
+    from matplotlib.lines import Line2D
+
+    from retina.figures import modulation_fields
+    from retina.figures.marks import MARKS
+
+    # one panel of a tiny invented pattern: the beak and field marks use the shared codes
+    rng = np.random.default_rng(1)
+    d = rng.normal(size=(60, 3))
+    d[:, 0] = np.abs(d[:, 0]) + 0.5
+    d /= np.linalg.norm(d, axis=1, keepdims=True)
+    fig = modulation_fields(d, (d[:, 1] > 0).astype(int), rng.normal(size=(1, 60)) * 0.01, [0.0],
+                            np.array([[0.4, 0.0, 0.9165]]))
+    markers = {ln.get_marker() for ax in fig.axes for ln in ax.get_lines() if isinstance(ln, Line2D)}
+    assert {MARKS["beak"].mpl, MARKS["field"].mpl} <= markers
+    assert MARKS["field"].face != MARKS["field_opposite"].face   # filled vs open
+
+
+# ------------------------------------------------------------------------------------------------
+# issue 14: window features and defects (Qt + display)
+
+
+def _settle(qapp, seconds=0.05):
+    end = time.monotonic() + seconds
+    while time.monotonic() < end:
+        qapp.processEvents()
+
+
+def test_one_draw_per_heading_step(window, qapp):
+    # Contract of gui/views.py (common practice, no source: a view redraws once per model change,
+    # never with the new pose and the old colours in between).
+    window.show()
+    _settle(qapp, 0.5)
+    for yaw in (11.0, 12.0, 13.0):
+        h0, m0 = window.head_view.draws, window.map_view.draws
+        window.state.yaw_deg = yaw
+        _settle(qapp, 0.1)
+        assert (window.head_view.draws - h0, window.map_view.draws - m0) == (1, 1)
+    # the pose drawn is the pose of the colours: both come from the result's request
+    assert window.state.result.request.yaw_deg == 13.0
+    assert window.map_view._marks_key[0] == 13.0
+
+
+def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
+    # Common practice, no source: keys go to the focused control (Qt's focus model); global
+    # shortcuts must not take them over.
+    from PyQt6.QtCore import Qt
+    from PyQt6.QtTest import QTest
+
+    window.show()
+    window.activateWindow()
+    spin = window.controls.controls["intensity_uT"].spin
+    spin.setFocus()
+    _settle(qapp)
+    i0, p0 = window.state.intensity_uT, window.state.pitch_deg
+    QTest.keyClick(spin, Qt.Key.Key_Up)
+    _settle(qapp)
+    assert window.state.intensity_uT == pytest.approx(i0 + 1.0) and window.state.pitch_deg == p0
+    slider = window.controls.controls["roll_deg"].slider
+    slider.setFocus()
+    r0 = window.state.roll_deg
+    QTest.keyClick(slider, Qt.Key.Key_PageUp)
+    _settle(qapp)
+    assert window.state.roll_deg != r0 and window.state.pitch_deg == p0   # the slider moved itself
+
+
+def test_heading_box_wraps_360_and_negative_values_and_the_slider_end(window):
+    # Derived: headings are angles modulo 360 (design.md, clockwise from north), so 360 -> 0 and
+    # -10 -> 350; the slider's right end must stay a heading near 360, not jump to 0.
+    c = window.controls.controls["yaw_deg"]
+    c.spin.setValue(360.0)
+    assert window.state.yaw_deg == 0.0 and c.spin.value() == 0.0        # not 36.0
+    c.spin.setValue(-10.0)
+    assert window.state.yaw_deg == 350.0 and c.spin.value() == 350.0
+    c.slider.setValue(c.slider.maximum())
+    assert window.state.yaw_deg == pytest.approx(359.0)
+    assert c.slider.value() == c.slider.maximum()                       # stays at the right end
+
+
+def test_zero_width_view_gives_a_message_not_a_crash(window, qapp, tmp_path):
+    # Quality bar (common practice, no source): no exception escapes a Qt slot; bad requests
+    # give a one-line message.
+    window.dialogs = False
+    window.show()
+    split = window.views_widget
+    split.setSizes([1200, 0])
+    window.resize(700, 700)
+    _settle(qapp, 0.2)
+    assert window.map_view.widget.width() >= 160    # the views keep a minimum; nothing collapses
+    window.map_view.canvas.native.setMinimumSize(0, 0)
+    window.map_view.canvas.native.resize(0, 300)    # forced to nothing anyway
+    with pytest.raises(InputError, match="too small to render"):
+        window.save_view_image("map", tmp_path / "m.png")
+    window._run_action(lambda: window.save_view_image("map", tmp_path / "m2.png"))  # a menu action
+    assert "too small to render" in window.last_error and not (tmp_path / "m2.png").exists()
+    window._run_action(lambda: 1 / 0)               # even an unexpected error stays in the slot
+    assert window.last_error.startswith("ZeroDivisionError")
+
+
+def test_invalid_spin_system_on_open_keeps_the_old_state_and_says_why(window, tmp_path, monkeypatch):
+    from PyQt6.QtWidgets import QFileDialog
+
+    bad_pair = tmp_path / "bad_pair.toml"
+    bad_pair.write_text("[radical_a]\nthis is not valid = = toml\n")
+    sc_path = tmp_path / "scenario.toml"
+    sc_path.write_text(DEMO.read_text().replace('system = "demo_pair.toml"', f'system = "{bad_pair.as_posix()}"'))
+    old, old_yaw = window.state.scenario, window.state.yaw_deg
+    old_result = window.state.result
+    with pytest.raises(InputError) as exc:
+        window.open_scenario(sc_path)
+    assert "bad_pair.toml" in str(exc.value)
+    assert window.state.scenario is old and window.state.result is old_result
+    window.dialogs = False
+    monkeypatch.setattr(QFileDialog, "getOpenFileName", lambda *a, **k: (str(sc_path), ""))
+    window._run_action(window.open_dialog)
+    assert "bad_pair.toml" in window.last_error and window.state.scenario is old
+    assert window.state.yaw_deg == old_yaw
+
+
+def test_offscreen_platform_is_refused_with_a_clear_message(tmp_path):
+    from retina_viewer.window import check_platform
+
+    fake = type("App", (), {"platformName": lambda self: "offscreen"})()
+    with pytest.raises(InputError, match="cannot draw its OpenGL views on Qt's 'offscreen' platform"):
+        check_platform(fake)
+    out = tmp_path / "x.png"
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen")
+    env.pop("DISPLAY", None)
+    r = subprocess.run([sys.executable, "-m", "retina_viewer", "--screenshot", str(out)], cwd=ROOT, env=env,
+                       capture_output=True, text=True, timeout=300)
+    assert r.returncode == 2 and "offscreen" in r.stderr and "xvfb-run" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and not out.exists()
+
+
+def test_status_bar_does_not_claim_a_recomputation_for_a_file_yield_function(window):
+    window.state.intensity_uT = 30.0
+    msg = window.statusBar().currentMessage()
+    assert "computing" not in msg
+    window.state.yaw_deg = 5.0    # the status then reports the new pattern
+    assert "computing" not in window.statusBar().currentMessage()
+    assert "read from demo_quick.h5" in window.state.result.yield_note
+
+
+def test_flat_pattern_is_drawn_flat(qapp, file_scenario):
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import colour_values
+    from retina_viewer.workers import PatternComputer
+
+    # Derived: an isotropic ordering averages the yield over all molecular orientations, so every
+    # receptor has the same yield whatever the field (modulation 0 up to rounding).
+    sc = file_scenario.replace(ordering={"model": "isotropic"})
+    st = ViewerState(sc)
+    r = PatternComputer().compute(st.request())
+    assert r.flat and np.max(np.abs(r.pattern.modulation)) < 1e-9
+    for display in ("modulation", "yields"):
+        _, rgba, _, _ = colour_values(r, display, "both")
+        assert np.ptp(rgba[:, :3], axis=0).max() == 0.0        # one colour for every receptor
+    _, rgba, _, _ = colour_values(r, "modulation", "both")
+    np.testing.assert_allclose(rgba[0, :3], np.array(__import__("matplotlib").colormaps["RdBu_r"](0.5))[:3])
+
+
+def test_locked_colour_scale_lets_a_weaker_pattern_fade(window):
+    st = window.state
+    st.kappa = 50.0
+    strong = np.array(window.head_view.face_colors, copy=True)
+    st.lock_scale = True
+    lim = st.locked_limits["modulation"]
+    st.kappa = 0.5                                    # much weaker order: weaker modulation
+    faded = window.head_view.face_colors
+    white = np.array(__import__("matplotlib").colormaps["RdBu_r"](0.5))[:3]
+    dist = lambda c: np.abs(c[:, :3] - white).max(axis=1).mean()   # noqa: E731
+    assert dist(faded) < 0.5 * dist(strong)           # fades toward the middle colour
+    assert st.locked_limits["modulation"] == lim
+    st.lock_scale = False                             # unlocked: stretched to the full scale again
+    assert dist(window.head_view.face_colors) > dist(faded)
+
+
+def test_map_labels_do_not_overlap_at_a_horizontal_field(window):
+    # Derived: inclination 0, declination 0, a level head facing north sees B at azimuth 0,
+    # elevation 0 (the beak) and north there too; the labels must still be apart.
+    st = window.state
+    st.update(inclination_deg=0.0, declination_deg=0.0, yaw_deg=0.0, pitch_deg=0.0, roll_deg=0.0)
+    mv = window.map_view
+    pos = mv.label_positions
+    sizes = mv.label_sizes()
+    # B, the beak and N all sit at (0, 0) here; every label box must be clear of the others
+    for i in range(len(pos)):
+        for j in range(i + 1, len(pos)):
+            sep_x = abs(pos[i, 0] - pos[j, 0]) >= 0.5 * (sizes[i, 0] + sizes[j, 0])
+            sep_y = abs(pos[i, 1] - pos[j, 1]) >= 0.5 * (sizes[i, 1] + sizes[j, 1])
+            assert sep_x or sep_y, (mv.label_texts[i], mv.label_texts[j])
+    # and clear of the marks at the centre
+    for k, p in enumerate(pos):
+        assert abs(p[0]) >= 0.5 * sizes[k, 0] or abs(p[1]) >= 0.5 * sizes[k, 1]
+
+
+def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
+    window.show()
+    _settle(qapp, 0.3)
+    mv = window.map_view
+    before = (mv.xaxis.axis.domain, mv.cbar_view.camera.rect)
+    mv.view.camera.zoom(0.25)
+    _settle(qapp, 0.2)
+    # the axes follow the zoom (their numbers change) but stay in their own widgets; the colour
+    # bar's view does not move at all
+    assert mv.xaxis.parent is not mv.view.scene and mv.cbar.parent is mv.cbar_view.scene
+    assert mv.cbar_view.camera.rect == before[1]
+    d0, d1 = before[0], mv.xaxis.axis.domain
+    assert (d1[1] - d1[0]) == pytest.approx(0.25 * (d0[1] - d0[0]), rel=1e-3)
+
+
+def test_receptor_under_the_cursor(window):
+    mv = window.map_view
+    res = window.state.result
+    rec = res.pattern.receptors
+    k = int(np.argmax(res.pattern.modulation))
+    d = rec.visual_dirs[k]
+    az = math.degrees(math.atan2(d[1], d[0]))
+    el = math.degrees(math.asin(-d[2]))
+    j = mv.receptor_at(az, el)
+    assert j is not None
+    # the pixel holds the receptor nearest in visual direction (retina.eye.pattern.resample):
+    # within a few degrees of receptor k
+    cosang = float(np.dot(rec.visual_dirs[j], d))
+    assert math.degrees(math.acos(min(1.0, cosang))) < 8.0
+    info = mv.receptor_info(j)
+    assert info["yield"] == res.pattern.yields[j] and info["modulation"] == res.pattern.modulation[j]
+    window.readout.show_receptor(info)
+    assert f"#{j}" in window.readout.labels["hover"].text()
+    assert mv.receptor_at(179.0, -89.0) is None          # no eye sees straight down behind
+
+
+def test_export_figure_uses_the_figure_builder_and_writes_three_formats(window, tmp_path):
+    files = window.export_figure(tmp_path / "fig")
+    names = sorted(p.name for p in files)
+    assert names == ["fig.pdf", "fig.png", "fig.svg"]
+    assert (tmp_path / "fig.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"   # ISO/IEC 15948
+    assert (tmp_path / "fig.pdf").read_bytes()[:5] == b"%PDF-"              # ISO 32000
+    assert b"<svg" in (tmp_path / "fig.svg").read_bytes()[:2000]
+    with pytest.raises(InputError, match="exists already"):
+        window.export_figure(tmp_path / "fig", ("png",))
+
+
+def test_save_scenario_then_open_it_again(window, tmp_path):
+    st = window.state
+    st.update(yaw_deg=77.0, pitch_deg=3.0)
+    p = window.save_scenario(tmp_path / "state")
+    assert p.name == "state.toml"
+    st.update(yaw_deg=5.0)
+    window.open_scenario(p)
+    assert st.yaw_deg == 77.0 and st.pitch_deg == 3.0 and st.result.request.yaw_deg == 77.0
+    with pytest.raises(InputError, match="exists already"):
+        window.save_scenario(p)
+
+
+def test_undo_and_redo_from_the_menu(window):
+    c = window.controls.controls["pitch_deg"]
+    c.spin.setValue(25.0)
+    assert window.state.pitch_deg == 25.0
+    window.actions["undo"].trigger()
+    assert window.state.pitch_deg == 0.0 and c.spin.value() == 0.0
+    assert window.state.result.request.pitch_deg == 0.0
+    window.actions["redo"].trigger()
+    assert window.state.pitch_deg == 25.0
+
+
+def test_played_scan_shows_the_bound_so_far(window):
+    st = window.state
+    st.update(scan_amplitude_deg=30.0, scan_steps=4, scan_repeats=1)
+    st.history.clear()
+    start = st.yaw_deg
+    window.play_scan()
+    window._scan_timer.stop()            # step by hand
+    n = 1
+    while window.scan_step():
+        n += 1
+    assert n == 2 * 4 - 1 and len(st.result.request.scan_yaws) == n
+    text = window.controls.scan_label.text()
+    assert f"look {n} of {n}" in text and "straight at" in text and "deg" in text
+    window._scan_tick()                  # the tick after the last look ends the scan
+    assert st.yaw_deg == start and not window.controls.play.isChecked()
+    assert f"look {n} of {n}" in window.controls.scan_label.text()   # the final numbers stay
+    assert not st.history.can_undo       # playback is not an undoable change
+
+
+def test_every_control_has_a_tooltip_with_its_unit(window):
+    # style.md "What we add": every number a user sees carries its unit.
+    from retina_viewer.panels import CONTROLS
+
+    for c in CONTROLS:
+        w = window.controls.controls[c.name]
+        tip = w.spin.toolTip()
+        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count"))
+    assert window.controls.controls["photons"].spin.suffix() == " photons"
+    for name in ("display", "eye", "lock_scale"):
+        assert window.controls.controls[name].toolTip()
+    assert window.controls.play.toolTip()
+
+
+def test_bound_plot_says_what_the_numbers_cannot(window):
+    st, plot = window.state, window.bound_plot
+    st.inclination_deg = 90.0
+    assert plot.message() == "no heading information at any heading"
+    st.inclination_deg = 0.0
+    assert plot.message().startswith("ambiguous")
+    st.inclination_deg = 66.0
+    assert plot.message() == ""
+    img = plot.grab().toImage()
+    assert img.width() > 0 and window.readout.labels["bound"].text().endswith("deg")
+    st.inclination_deg = 90.0
+    assert window.readout.labels["bound"].text() == "no heading information"
+    assert "e+" not in window.readout.labels["rms"].text()
+
+
+def test_readme_names_the_menu_items_and_keys():
+    text = (ROOT / "gui" / "README.md").read_text()
+    from retina_viewer import window as w
+
+    assert "Ctrl+Q" in text
+    src = Path(w.__file__).read_text()
+    import re
+
+    items = re.findall(r'\("\w+", "([^"]*&[^"]*)",', src)      # the menu items (with & accelerators)
+    assert len(items) >= 10
+    for item in items:
+        assert item.replace("&", "").rstrip(".") in text.replace("...", ""), item
+
+
+def test_an_error_inside_a_control_slot_is_reported_not_raised(window):
+    window.dialogs = False
+
+    def boom(event):
+        raise RuntimeError("a subscriber failed")
+
+    stop = window.state.events.connect("roll_deg", boom)
+    c = window.controls.controls["roll_deg"]
+    c.spin.setValue(12.0)                       # Qt calls the slot; the error must stay inside it
+    stop()
+    assert window.last_error == "RuntimeError: a subscriber failed"
+
+
+def test_a_scenario_whose_first_pattern_fails_is_rolled_back(window, qapp, tmp_path):
+    window.dialogs = False
+    junk = tmp_path / "junk.h5"
+    junk.write_bytes(b"not an HDF5 file at all")
+    sc_path = tmp_path / "junk.toml"
+    sc_path.write_text(DEMO.read_text().replace('system = "demo_pair.toml"', f'file = "{junk.as_posix()}"'))
+    old = window.state.scenario
+    window.state.yaw_deg = 33.0
+    window.open_scenario(sc_path)          # valid scenario file; its yield file fails in the worker
+    _settle(qapp, 0.3)
+    assert window.state.scenario is old and window.state.yaw_deg == 33.0
+    assert "previous scenario is kept" in window.last_error and "junk.h5" in window.last_error
+    assert window.state.result is not None and window.state.result.request.scenario is old
+
+
+def test_moving_the_mouse_over_the_map_names_the_receptor(window, qapp):
+    window.show()
+    _settle(qapp, 0.3)
+    mv = window.map_view
+    # the canvas pixel of map point (40, 10): invert the scene -> canvas transform
+    tr = mv.view.scene.node_transform(mv.canvas.scene)
+    px = tr.map(np.array([40.0, 10.0]))[:2]
+    np.testing.assert_allclose(mv.map_point(px), (40.0, 10.0), atol=1e-6)
+    mv.canvas.events.mouse_move(pos=px, button=None, buttons=[], modifiers=())
+    k = mv.receptor_at(40.0, 10.0)
+    assert k is not None and f"#{k}" in window.readout.labels["hover"].text()
+    assert "az" in window.readout.labels["hover"].text() and "%" in window.readout.labels["hover"].text()

@@ -27,8 +27,10 @@ examples:
   retina view assets/demo_scenario.toml    a scenario as written (use --quick to reduce it)
   retina view my.toml --screenshot v.png   open, save the window once the pattern shows, quit
 
-In the window: drag in the head view to turn the camera; the sliders (or the arrow keys,
-Page Up/Down) turn the head; File > Save screenshot writes a PNG.
+In the window: drag in the head view to turn the camera; the sliders (or, in a view, the arrow
+keys and Page Up/Down) turn the head; Play scan plays a head scan; File > Export figure writes
+the pattern as PNG/SVG/PDF, File > Save state as scenario a scenario file, File > Save screenshot
+a PNG; Edit > Undo (Ctrl+Z) and Redo. Qt's offscreen platform cannot draw the views: use xvfb-run.
 
 exit status: 0 done, 1 failed, 2 bad input or the viewer cannot start
 """

@@ -5,7 +5,8 @@ y right, z down) on a Mollweide map of the head-centred sphere: azimuth ``atan2(
 the right of the beak) and elevation ``-asin(z)`` (positive up).  The receptors of each eye are
 triangulated separately so the gap between the eyes stays empty.  Marked on every panel: the beak
 (centre, "+"), the horizon (dashed), the field direction in the head frame ("B", filled circle) and
-its opposite ("-B", open circle; the compass is axial so both ends matter).
+its opposite ("-B", open circle; the compass is axial so both ends matter); the marks are
+:data:`retina.figures.marks.MARKS`, which the viewer's map uses too.
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from matplotlib.tri import Triangulation
 
 from retina.errors import InputError
 from retina.figures._base import DOUBLE_IN, annotate, finish, new_figure, style
+from retina.figures.marks import MARKS
 
 
 def head_lonlat(dirs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -72,11 +74,12 @@ class _FieldMap:
             art = ax.tripcolor(tri, values[sel], cmap=cmap, vmin=-vlim, vmax=vlim, shading="gouraud",
                                rasterized=True)
         ax.plot(np.linspace(-np.pi, np.pi, 181), np.zeros(181), ls="--", color="0.35", lw=0.6)
-        ax.plot([0], [0], "+", color="k", ms=8, mew=1.2)
+        beak = MARKS["beak"]
+        ax.plot([0], [0], beak.mpl, color=beak.face, ms=beak.size_pt, mew=beak.edge_width)
         bl, bb = head_lonlat(b[None, :])
         ml, mb = head_lonlat(-b[None, :])
-        ax.plot(bl, bb, "o", ms=5, mfc="k", mec="w", mew=0.8)
-        ax.plot(ml, mb, "o", ms=5, mfc="w", mec="k", mew=0.8)
+        for (lo, la), mk in (((bl, bb), MARKS["field"]), ((ml, mb), MARKS["field_opposite"])):
+            ax.plot(lo, la, mk.mpl, ms=mk.size_pt, mfc=mk.face, mec=mk.edge, mew=mk.edge_width)
         if label_marks:
             ax.annotate("beak", (0, 0), xytext=(3, -8), textcoords="offset points", fontsize=6)
             for side, lon0 in (("left eye", -1.0), ("right eye", 1.0)):  # azimuth < 0 is the bird's left
