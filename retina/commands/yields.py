@@ -15,7 +15,7 @@ import numpy as np
 
 from retina.errors import InputError
 
-METHODS = ("auto", "hilbert", "liouville", "separable")
+METHODS = ("auto", "hilbert", "liouville", "separable", "fast-separable")
 
 _EXAMPLES = """\
 examples:

@@ -3,7 +3,12 @@
 Methods (all exact for their scope):
 
 - ``"separable"`` (:mod:`retina.spin.separable`): no electron-electron coupling, equal rates, no
-  relaxation.  Cheapest: two radical-sized eigenproblems per direction.
+  relaxation.  Two radical-sized eigenproblems and a pair sum of ``d_A^2 d_B^2 / 2`` terms per
+  direction: cheapest for small radicals.
+- ``"fast-separable"`` (:mod:`retina.spin.fast_separable`): the same scope and quantity to an
+  absolute tolerance (default 1e-10, bound stated and checked) through each radical's correlation
+  functions on a time grid; its cost is set by the two eigendecompositions, so it takes over from
+  ``"separable"`` as the radicals grow.  ``RETINA_JOBS`` (environment) sets its worker processes.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
   Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it runs a
@@ -30,7 +35,9 @@ from retina.spin.memory import available_bytes  # noqa: F401  (public here too: 
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
 
-METHODS = ("separable", "hilbert", "liouville")
+METHODS = ("separable", "fast-separable", "hilbert", "liouville")
+#: Methods whose scope is a pair with uncoupled electrons, equal rates and no relaxation.
+SEPARABLE_METHODS = ("separable", "fast-separable")
 _GIB = 2**30
 
 
@@ -64,16 +71,30 @@ def _separable_available() -> bool:
     return True
 
 
-def choose_method(system) -> str:
+def in_scope(system, method: str) -> bool:
+    """True when ``method`` covers ``system`` (see the module docstring for each scope)."""
+    plain = system.equal_rates and not system.relaxation.any
+    if method in SEPARABLE_METHODS:
+        return plain and not system.electron_coupled
+    if method == "hilbert":
+        return plain
+    return method == "liouville"
+
+
+def choose_method(system, n_directions: int = 1) -> str:
     """The cheapest exact method whose scope covers ``system``.
 
-    ``"separable"`` when the electrons are uncoupled, the rates equal and there is no relaxation
-    (and :mod:`retina.spin.separable` imports); ``"hilbert"`` when the rates are equal and there is
-    no relaxation; ``"liouville"`` otherwise.
+    Among ``"separable"`` and ``"fast-separable"`` (uncoupled electrons, equal rates, no relaxation,
+    and :mod:`retina.spin.separable` imports) the one with the smaller estimated time; else
+    ``"hilbert"`` when the rates are equal and there is no relaxation; ``"liouville"`` otherwise.
+    Every method chosen here meets the default accuracy (rounding, or 1e-10 for
+    ``"fast-separable"``).
     """
     if system.equal_rates and not system.relaxation.any:
         if not system.electron_coupled and _separable_available():
-            return "separable"
+            n = max(int(n_directions), 1)
+            costs = {m: estimate_cost(system, n, m).seconds for m in SEPARABLE_METHODS}
+            return min(SEPARABLE_METHODS, key=lambda m: (costs[m], m != "separable"))
         return "hilbert"
     return "liouville"
 
@@ -107,8 +128,31 @@ def _check_method(method: str) -> str:
     return method
 
 
+def _jobs() -> int:
+    """Worker processes of the fast separable method: ``RETINA_JOBS`` (default 1)."""
+    import os
+
+    raw = os.environ.get("RETINA_JOBS", "1").strip() or "1"
+    try:
+        n = int(raw)
+    except ValueError:
+        raise InputError(f"expected a positive whole number of worker processes, got {raw!r}",
+                         key="RETINA_JOBS") from None
+    if n < 1:
+        raise InputError(f"expected a positive whole number of worker processes, got {raw!r}", key="RETINA_JOBS")
+    return n
+
+
+def _jobs_speedup() -> float:
+    import os
+
+    return float(min(_jobs(), os.cpu_count() or 1))
+
+
 def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     """Estimate the time and memory of ``compute_yields`` for ``n_directions`` directions.
+
+    When the estimate exceeds an hour, the note names a faster method in scope, if there is one.
 
     Parameters
     ----------
@@ -121,11 +165,30 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     -------
     Cost
     """
+    if method == "auto":
+        method = choose_method(system, n_directions)
+    cost = _estimate(system, n_directions, _check_method(method))
+    if cost.seconds > 3600:
+        others = [(m, _estimate(system, n_directions, m)) for m in METHODS if m != method and in_scope(system, m)]
+        faster = [(m, c) for m, c in others if c.seconds < 0.5 * cost.seconds]
+        if faster:
+            m, c = min(faster, key=lambda mc: mc[1].seconds)
+            cost = Cost(cost.seconds, cost.bytes, cost.method,
+                        f"{cost.note}; method={m!r} covers this pair in about {_fmt_duration(c.seconds)}")
+    return cost
+
+
+def _fmt_duration(s: float) -> str:
+    if s < 120:
+        return f"{s:.3g} s"
+    if s < 7200:
+        return f"{s / 60:.3g} min"
+    return f"{s / 3600:.3g} h"
+
+
+def _estimate(system, n_directions: int, method: str) -> Cost:
     from retina.spin.hilbert import chunk_size
 
-    if method == "auto":
-        method = choose_method(system)
-    _check_method(method)
     n = max(int(n_directions), 0)
     d = system.dimension
     base = 6 * 16 * d * d  # Hamiltonian parts and projectors
@@ -138,6 +201,16 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
         seconds = n * ((0.65 if d >= TRIDIAGONAL_FROM else 1.25) * _t_eigh(d) + _PER_DIRECTION)
         return Cost(seconds, int(base + batch * per), method,
                     f"{n} Hermitian eigendecompositions of size {d}")
+    if method == "fast-separable":
+        from retina.spin import fast_separable
+
+        dims = [r.dimension for r in system.radicals]
+        # per radical: eigh (evr driver, ~0.8 of the calibrated heevd) + two half-size products
+        # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
+        per = sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 for d in dims) + _PER_DIRECTION
+        return Cost(n * per / _jobs_speedup(), fast_separable.working_bytes(system) * _jobs(), method,
+                    f"{n} x 2 eigendecompositions of sizes {dims[0]} and {dims[1]} and correlation "
+                    f"functions on a time grid (absolute error <= {fast_separable.DEFAULT_TOL:g})")
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
@@ -181,8 +254,12 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
 def _resource_hint(system, method: str) -> str:
     """What the user can change when ``method`` would not fit in memory."""
     raise_limit = "raise the memory limit (max_bytes, or --max-memory-gb on the command line)"
-    if method != "separable" and choose_method(system) == "separable":
-        return f"method='separable' covers this pair at a far smaller cost; or use fewer nuclei, or {raise_limit}"
+    if method not in SEPARABLE_METHODS and in_scope(system, "separable") and _separable_available():
+        best = choose_method(system)
+        return f"method={best!r} covers this pair at a far smaller cost; or use fewer nuclei, or {raise_limit}"
+    if method == "separable":
+        return (f"method='fast-separable' covers this pair with radical-sized memory; or use fewer nuclei, "
+                f"or {raise_limit}")
     if method == "liouville":
         from retina.spin.liouville import solver_for
 
@@ -208,7 +285,7 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         Field strength, microtesla.
     directions : array_like, shape (N, 3)
         Field directions in the molecular frame (normalised).
-    method : {"auto", "separable", "hilbert", "liouville"}
+    method : {"auto", "separable", "fast-separable", "hilbert", "liouville"}
     progress : callable(done, total), optional
     max_bytes : int, optional
         Memory bound; default 60 % of the available memory.
@@ -225,13 +302,13 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     InputError
         Unknown method, or a system outside the method's scope.
     """
-    if method == "auto":
-        method = choose_method(system)
-    _check_method(method)
-    if method == "separable" and not _separable_available():
-        method = "hilbert"
     dirs = np.asarray(directions, dtype=float)
     n = dirs.shape[0] if dirs.ndim == 2 else 1
+    if method == "auto":
+        method = choose_method(system, n)
+    _check_method(method)
+    if method in SEPARABLE_METHODS and not _separable_available():
+        method = "hilbert"
     limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
     if cost.bytes > limit:
@@ -243,6 +320,10 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         from retina.spin import separable
 
         return separable.yields(system, field_uT, dirs, progress=progress)
+    if method == "fast-separable":
+        from retina.spin import fast_separable
+
+        return fast_separable.yields(system, field_uT, dirs, progress=progress, n_jobs=_jobs())
     if method == "hilbert":
         from retina.spin import hilbert
 
