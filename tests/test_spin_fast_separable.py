@@ -86,20 +86,24 @@ def test_nufft_error_is_measured_honestly():
     rng = np.random.default_rng(5)
     d = 12
     lam = np.sort(rng.normal(size=d)) * 1e8
-    sx, sy, sz = (rng.normal(size=(d, d)) + 1j * rng.normal(size=(d, d)) for _ in range(3))
+    sp, sz = (rng.normal(size=(d, d)) + 1j * rng.normal(size=(d, d)) for _ in range(2))
+    sz = sz + sz.conj().T
+    sx = 0.5 * (sp + sp.conj().T)
     w_spread = lam[-1] - lam[0]
     h = 0.5 * np.pi / (2 * w_spread)
     n_t = 64
     m, n = np.triu_indices(d, 1)
     om = lam[n] - lam[m]
     r_xx = np.abs(sx[m, n]) ** 2
+    sy = -0.5j * (sp - sp.conj().T)
     r_xy_anti = (sx[m, n] * sy[m, n].conj()).imag
     j = np.arange(n_t)
     direct_xx = np.sum(sx.diagonal().real ** 2) + 2 * (np.cos(np.outer(j, om * h)) @ r_xx)
     direct_xy = -2 * (np.sin(np.outer(j, om * h)) @ r_xy_anti)
+    assert np.allclose(sy, -0.5j * (sp - sp.conj().T))
     errs = []
     for width in (8, 12):
-        series, _, absw = fast_separable._radical_pass(lam, sx, sy, sz, h, n_t, width, 4, w_spread)
+        series, _, absw = fast_separable._radical_pass([(lam, sp, sz, 1)], h, n_t, width, 4, w_spread)
         e = max(np.max(np.abs(series[:, 0] - direct_xx)) / (2 * absw[0]),
                 np.max(np.abs(series[:, 6] - direct_xy)) / (2 * absw[6]))
         assert e <= fast_separable.nufft_error(width)

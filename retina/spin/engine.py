@@ -204,13 +204,17 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
     if method == "fast-separable":
         from retina.spin import fast_separable
 
+        from retina.spin.equivalence import reduced_dimensions
+
         dims = [r.dimension for r in system.radicals]
-        # per radical: eigh (evr driver, ~0.8 of the calibrated heevd) + two half-size products
+        blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
+        # per block: eigh (evr driver, ~0.8 of the calibrated heevd) + two half-size products
         # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
-        per = sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 for d in dims) + _PER_DIRECTION
+        per = sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + _PER_DIRECTION
         return Cost(n * per / _jobs_speedup(), fast_separable.working_bytes(system) * _jobs(), method,
-                    f"{n} x 2 eigendecompositions of sizes {dims[0]} and {dims[1]} and correlation "
-                    f"functions on a time grid (absolute error <= {fast_separable.DEFAULT_TOL:g})")
+                    f"{n} x {len(blocks)} eigendecompositions of sizes up to {max(blocks)} (radicals "
+                    f"{dims[0]} and {dims[1]}) and correlation functions on a time grid (absolute error "
+                    f"<= {fast_separable.DEFAULT_TOL:g})")
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0

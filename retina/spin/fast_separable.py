@@ -78,6 +78,10 @@ products (``S_z = V_up^+ V_up - 1/2``, ``S_+ = V_up^+ V_down``).  Cost per direc
 eigendecompositions (``O(d_A^3 + d_B^3)``), ``O(d_A^2 + d_B^2)`` spreading and ``O(N log N)`` FFTs
 with ``N ~ 28 W / (pi theta k)``.
 
+Groups of magnetically equivalent nuclei are reduced exactly: each radical is handled as its
+distinct total-spin blocks, each spread with its multiplicity as weight
+(:mod:`retina.spin.equivalence`, derivation there), so the eigendecompositions are of block size.
+
 Other starts and reported yields follow from the singlet-start singlet yield exactly as in
 :mod:`retina.spin.separable` (:func:`retina.spin.system.equal_rate_reported_yield`).
 """
@@ -93,7 +97,7 @@ import numpy as np
 import scipy.fft
 import scipy.linalg
 
-from retina.spin.separable import _check_inputs, check_scope, radical_operators
+from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
 __all__ = ["yields", "singlet_start_singlet_yield", "nufft_error", "working_bytes", "plan",
@@ -218,9 +222,14 @@ def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
 # ------------------------------------------------------------------------------------------------
 
 @numba.njit(cache=True, nogil=True)
-def _spread_and_moments(lam, sx, sy, sz, h, nf, width, beta, inv_w, n_mom, grid, mom, absw):
+def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, grid, mom, absw):
     """Spread the nine real weights of every pair ``m < n`` onto ``grid (nf, 9)``, accumulate the
-    Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` and the absolute weight sums ``absw (9,)``."""
+    Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` (sym components even orders, antisymmetric
+    components odd orders; the others vanish) and the absolute weight sums ``absw (9,)``.
+
+    ``sp`` is ``S_+`` in the eigenbasis (so ``S_x = (S_+ + S_+^+)/2``, ``S_y = (S_+ - S_+^+)/2i``),
+    ``sz`` holds ``S_z`` on and above the diagonal; every weight is multiplied by ``weight`` (a
+    block's multiplicity, :mod:`retina.spin.equivalence`)."""
     d = lam.shape[0]
     half = 0.5 * width
     scale = nf * h / (2.0 * np.pi)
@@ -229,8 +238,10 @@ def _spread_and_moments(lam, sx, sy, sz, h, nf, width, beta, inv_w, n_mom, grid,
     rr = np.empty(9)
     for m in range(d):
         for n in range(m + 1, d):
-            ax = sx[m, n]
-            ay = sy[m, n]
+            p_mn = sp[m, n]
+            p_nm = sp[n, m].conjugate()
+            ax = 0.5 * (p_mn + p_nm)
+            ay = -0.5j * (p_mn - p_nm)
             az = sz[m, n]
             rr[0] = ax.real * ax.real + ax.imag * ax.imag
             rr[1] = ay.real * ay.real + ay.imag * ay.imag
@@ -242,6 +253,8 @@ def _spread_and_moments(lam, sx, sy, sz, h, nf, width, beta, inv_w, n_mom, grid,
             rr[6] = ax.imag * ay.real - ax.real * ay.imag
             rr[7] = ax.imag * az.real - ax.real * az.imag
             rr[8] = ay.imag * az.real - ay.real * az.imag
+            for c in range(9):
+                rr[c] *= weight
             om = lam[n] - lam[m]
             u = om * scale
             i0 = int(np.ceil(u - half))
@@ -268,39 +281,38 @@ def _spread_and_moments(lam, sx, sy, sz, h, nf, width, beta, inv_w, n_mom, grid,
             for c in range(9):
                 r = rr[c]
                 absw[c] += abs(r)
-                for p in range(n_mom):
+                for p in range(0 if c < 6 else 1, n_mom, 2):
                     mom[c, p] += r * tp[p]
 
 
 def _eigen_spin(h_full, n_nuc):
-    """Eigenvalues (ascending) and the electron spin components in the eigenbasis."""
+    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis."""
     lam, v = scipy.linalg.eigh(h_full, driver="evr", overwrite_a=True, check_finite=False)
-    up = v[:n_nuc]
-    dn = v[n_nuc:]
-    sz = up.conj().T @ up
+    up = np.asfortranarray(v[:n_nuc])
+    dn = np.asfortranarray(v[n_nuc:])
+    # S_z = V_up^+ V_up - 1/2 (V is unitary); only the upper triangle is formed (zherk)
+    sz = scipy.linalg.blas.zherk(1.0, up, trans=2, lower=0)
     sz[np.diag_indices_from(sz)] -= 0.5
-    sp = up.conj().T @ dn
-    sx = 0.5 * (sp + sp.conj().T)
-    sy = -0.5j * (sp - sp.conj().T)
-    return lam, sx, sy, sz
+    sp = scipy.linalg.blas.zgemm(1.0, up, dn, trans_a=2)
+    return lam, np.ascontiguousarray(sp), np.ascontiguousarray(sz)
 
 
-def _radical_pass(lam, sx, sy, sz, h, n_t, width, n_mom, w_spread):
-    """Time series (n_t, 9) of Cs/Ca, Chebyshev moments of the full spectra (9, n_mom), abs sums."""
+def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
+    """One radical's time series (n_t, 9) of Cs/Ca, the Chebyshev moments of its full spectra
+    (9, n_mom) and its absolute weight sums (9,), from ``blocks = [(lam, sp, sz, multiplicity)]``."""
     nf = 4 * n_t
     grid = np.zeros((nf, 9))
     mom = np.zeros((9, n_mom))
     absw = np.zeros(9)
-    _spread_and_moments(lam, np.ascontiguousarray(sx), np.ascontiguousarray(sy),
-                        np.ascontiguousarray(sz), h, nf, width, _beta(width), 1.0 / w_spread, n_mom,
-                        grid, mom, absw)
+    diag = np.zeros(6)
+    for lam, sp, sz, mult in blocks:
+        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _beta(width), 1.0 / w_spread, n_mom,
+                            grid, mom, absw)
+        dp = sp.diagonal()
+        dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
+        diag += mult * np.array([dx @ dx, dy @ dy, dz @ dz, dx @ dy, dx @ dz, dy @ dz])
     spec = scipy.fft.rfft(grid, axis=0)[:n_t]                    # sum_g b_g e^{-2 pi i j g / nf}
     psi = _psi_grid(n_t, width)[:, None]
-    diag = np.array([np.sum(sx.diagonal().real ** 2), np.sum(sy.diagonal().real ** 2),
-                     np.sum(sz.diagonal().real ** 2),
-                     np.sum(sx.diagonal().real * sy.diagonal().real),
-                     np.sum(sx.diagonal().real * sz.diagonal().real),
-                     np.sum(sy.diagonal().real * sz.diagonal().real)])
     series = np.empty((n_t, 9))
     # G = conj(spec) / psi;  Cs = D + 2 Re G,  Ca = -2 Im G = 2 Im(spec) / psi
     series[:, :6] = diag[None, :] + 2.0 * spec[:, :6].real / psi
@@ -332,21 +344,27 @@ def plan(wa: float, wb: float, k: float, tol: float = DEFAULT_TOL) -> dict:
     return {"h": h, "n_t": n_t, "width": width, "eps_nufft": nufft_error(width)}
 
 
-def _one_direction(ops, n_nucs, bvec, k, tol):
-    """Singlet-start singlet yield and its error bound for one field vector ``bvec`` (tesla)."""
+def _one_direction(rads, bvec, k, tol):
+    """Singlet-start singlet yield and its error bound for one field vector ``bvec`` (tesla).
+
+    ``rads`` holds, per radical, its dimension and its blocks ``[Block]`` (one block when no nuclei
+    are equivalent)."""
     eig = []
-    for (s_e, h_hf, zee), n_nuc in zip(ops, n_nucs):
-        w = bvec @ zee
-        hmat = h_hf + np.einsum("j,jab->ab", w, s_e)
-        eig.append(_eigen_spin(hmat, n_nuc))
-    spreads = [max(e[0][-1] - e[0][0], 1e-30 * k) for e in eig]
+    for _, blocks in rads:
+        per = []
+        for blk in blocks:
+            w = bvec @ blk.zeeman
+            hmat = blk.h_hf + np.einsum("j,jab->ab", w, blk.s_e)
+            per.append(_eigen_spin(hmat, blk.dimension // 2) + (blk.multiplicity,))
+        eig.append(per)
+    spreads = [max(max(e[0][-1] - e[0][0] for e in per), 1e-30 * k) for per in eig]
     pl = plan(spreads[0], spreads[1], k, tol)
     h, n_t, width = pl["h"], pl["n_t"], pl["width"]
-    dims = [e[0].shape[0] for e in eig]
+    dims = [d for d, _ in rads]
     m_tot = dims[0] * dims[1] / 4.0
     cheb, cheb_err = _cheb_coeffs(k, h, spreads[0], spreads[1], tol / 4.0 / 2.25)
     n_mom = cheb.shape[0]
-    out = [_radical_pass(*e, h, n_t, width, n_mom, s) for e, s in zip(eig, spreads)]
+    out = [_radical_pass(per, h, n_t, width, n_mom, s) for per, s in zip(eig, spreads)]
     (sa, ma, aa), (sb, mb, ab) = out
     f = (sa * sb) @ _MULT                                        # F(t_j), (n_t,)
     kh = k * h
@@ -370,13 +388,16 @@ _BATCH = 8
 
 
 def _operators(system):
-    return [radical_operators(r) for r in system.radicals], [r.nuclear_dimension for r in system.radicals]
+    """Per radical: its dimension and its total-spin blocks (:mod:`retina.spin.equivalence`)."""
+    from retina.spin.equivalence import radical_blocks
+
+    return [(r.dimension, radical_blocks(r)) for r in system.radicals]
 
 
 def _batch(system, bvecs, k, tol):
     """Yields and bounds for a batch of field vectors (one worker task)."""
-    ops, n_nucs = _operators(system)
-    res = [_one_direction(ops, n_nucs, bv, k, tol) for bv in bvecs]
+    rads = _operators(system)
+    res = [_one_direction(rads, bv, k, tol) for bv in bvecs]
     return np.array([r[0] for r in res]), np.array([r[1] for r in res])
 
 
@@ -384,7 +405,9 @@ def working_bytes(system) -> int:
     """Peak working memory of :func:`yields`, bytes (per direction; directions run one at a time)."""
     # both radicals' eigenvalues and three spin components, plus the Hamiltonian, eigenvectors and
     # two products of the radical being decomposed (complex, 16 bytes), per worker
-    d2 = [r.dimension ** 2 for r in system.radicals]
+    from retina.spin.equivalence import reduced_dimensions
+
+    d2 = [d * d for r in system.radicals for d, _ in reduced_dimensions(r)]
     return int(16 * (3 * sum(d2) + 4 * max(d2)) + 2**20)
 
 
@@ -438,8 +461,8 @@ def singlet_start_singlet_yield(system, field_uT, directions, *, tol: float = DE
     bounds = np.empty(n_dir)
     n_jobs = _check_jobs(n_jobs)
     if n_jobs == 1:
-        ops, n_nucs = _operators(system)
-        results = (_one_direction(ops, n_nucs, b[i], k, tol) for i in range(n_dir))
+        rads = _operators(system)
+        results = (_one_direction(rads, b[i], k, tol) for i in range(n_dir))
         for i, (phi, bound) in enumerate(results):
             out[i], bounds[i] = phi, bound
             if progress is not None:
