@@ -15,7 +15,7 @@ import numpy as np
 
 from retina.errors import InputError
 
-METHODS = ("auto", "hilbert", "liouville", "separable", "fast-separable")
+METHODS = ("auto", "hilbert", "liouville", "separable", "fast-separable", "sampled")
 
 _EXAMPLES = """\
 examples:
@@ -104,6 +104,11 @@ def summary(yf, output, wall_seconds: float) -> str:
         + (" (taken from the cache)" if yf.from_cache else ""),
         f"  written to {output}",
     ]
+    if p.get("approximation"):
+        lines.insert(-1, f"  APPROXIMATION: {p['approximation']} with {p.get('sampling_states', '?')} random states; "
+                         f"standard error up to {p.get('sampling_standard_error_max', float('nan')):.2g} per direction "
+                         f"(errors shared across directions), deterministic bias <= "
+                         f"{p.get('sampling_bias_bound', float('nan')):.1g}")
     return "\n".join(lines)
 
 

@@ -9,6 +9,9 @@ Methods (all exact for their scope):
   absolute tolerance (default 1e-10, bound stated and checked) through each radical's correlation
   functions on a time grid; its cost is set by the two eigendecompositions, so it takes over from
   ``"separable"`` as the radicals grow.  ``RETINA_JOBS`` (environment) sets its worker processes.
+- ``"sampled"`` (:mod:`retina.spin.sampling`): the separable scope, by stochastic trace estimation
+  with random vectors propagated in time: **an approximation with error bars**, never chosen by
+  ``"auto"``; an exact estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
   Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it runs a
@@ -35,9 +38,11 @@ from retina.spin.memory import available_bytes  # noqa: F401  (public here too: 
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
 
-METHODS = ("separable", "fast-separable", "hilbert", "liouville")
+METHODS = ("separable", "fast-separable", "hilbert", "liouville", "sampled")
 #: Methods whose scope is a pair with uncoupled electrons, equal rates and no relaxation.
-SEPARABLE_METHODS = ("separable", "fast-separable")
+SEPARABLE_METHODS = ("separable", "fast-separable", "sampled")
+#: Exact methods (``"auto"`` chooses among these).
+EXACT_METHODS = ("separable", "fast-separable", "hilbert", "liouville")
 _GIB = 2**30
 
 
@@ -93,8 +98,9 @@ def choose_method(system, n_directions: int = 1) -> str:
     if system.equal_rates and not system.relaxation.any:
         if not system.electron_coupled and _separable_available():
             n = max(int(n_directions), 1)
-            costs = {m: estimate_cost(system, n, m).seconds for m in SEPARABLE_METHODS}
-            return min(SEPARABLE_METHODS, key=lambda m: (costs[m], m != "separable"))
+            exact = ("separable", "fast-separable")
+            costs = {m: _estimate(system, n, m).seconds for m in exact}
+            return min(exact, key=lambda m: (costs[m], m != "separable"))
         return "hilbert"
     return "liouville"
 
@@ -173,8 +179,9 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
         faster = [(m, c) for m, c in others if c.seconds < 0.5 * cost.seconds]
         if faster:
             m, c = min(faster, key=lambda mc: mc[1].seconds)
+            kind = "approximately (error bars from sampling)" if m == "sampled" else "exactly"
             cost = Cost(cost.seconds, cost.bytes, cost.method,
-                        f"{cost.note}; method={m!r} covers this pair in about {_fmt_duration(c.seconds)}")
+                        f"{cost.note}; method={m!r} covers this pair {kind} in about {_fmt_duration(c.seconds)}")
     return cost
 
 
@@ -215,6 +222,11 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
                     f"{n} x {len(blocks)} eigendecompositions of sizes up to {max(blocks)} (radicals "
                     f"{dims[0]} and {dims[1]}) and correlation functions on a time grid (absolute error "
                     f"<= {fast_separable.DEFAULT_TOL:g})")
+    if method == "sampled":
+        from retina.spin import sampling
+
+        secs, mem, note = sampling.cost_model(system, n)
+        return Cost(secs, mem, method, note)
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
@@ -279,7 +291,8 @@ def _fmt_gib(b: float) -> str:
     return f"{b / _GIB:.3g} GiB"
 
 
-def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None) -> np.ndarray:
+def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None,
+                   info: dict | None = None) -> np.ndarray:
     """The system's reported yield for each field direction.
 
     Parameters
@@ -289,10 +302,13 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         Field strength, microtesla.
     directions : array_like, shape (N, 3)
         Field directions in the molecular frame (normalised).
-    method : {"auto", "separable", "fast-separable", "hilbert", "liouville"}
+    method : {"auto", "separable", "fast-separable", "hilbert", "liouville", "sampled"}
     progress : callable(done, total), optional
     max_bytes : int, optional
         Memory bound; default 60 % of the available memory.
+    info : dict, optional
+        Filled with what an approximate method reports (``"sampled"``: the approximation's name,
+        the number of random states, the largest standard error and the bias bound).
 
     Returns
     -------
@@ -328,6 +344,19 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         from retina.spin import fast_separable
 
         return fast_separable.yields(system, field_uT, dirs, progress=progress, n_jobs=_jobs())
+    if method == "sampled":
+        from retina.spin import sampling
+        from retina.spin.system import equal_rate_reported_yield
+
+        res = sampling.sampled_yields(system, field_uT, dirs, progress=progress)
+        if info is not None:
+            # the reported yield is an affine map of the singlet-start one with slope +-1 or +-1/3
+            slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
+            info.update(approximation="stochastic trace estimation (sampled)",
+                        sampling_states=int(res.draws.shape[0]),
+                        sampling_standard_error_max=float(slope * np.max(res.standard_error)),
+                        sampling_bias_bound=float(slope * res.bias_bound))
+        return equal_rate_reported_yield(system, res.mean)
     if method == "hilbert":
         from retina.spin import hilbert
 

@@ -101,32 +101,42 @@ class Block:
 
     @property
     def dimension(self) -> int:
-        return self.h_hf.shape[0]
+        return int(self.h_hf.shape[0])
 
 
-def _block_operators(pseudo):
-    """Operators for an electron and pseudo-nuclei ``[(J, A_mT)]`` (as in radical_operators)."""
-    se = spin_matrices(0.5)
+def _block_operators(pseudo, sparse: bool = False):
+    """Operators for an electron and pseudo-nuclei ``[(J, A_mT)]`` (as in radical_operators);
+    scipy.sparse CSR matrices (``s_e`` a list of three) when ``sparse``."""
+    import scipy.sparse as sps
+
+    kron = (lambda x, y: sps.kron(x, y, format="csr")) if sparse else np.kron
+    eye = (lambda n: sps.identity(n, dtype=complex, format="csr")) if sparse else np.eye
+    se = [sps.csr_matrix(x) for x in spin_matrices(0.5)] if sparse else spin_matrices(0.5)
     mults = [int(round(2 * j)) + 1 for j, _ in pseudo]
     d_nuc = int(np.prod(mults)) if mults else 1
-    s_e = np.stack([np.kron(s, np.eye(d_nuc)) for s in se])
-    h_hf = np.zeros((2 * d_nuc, 2 * d_nuc), dtype=complex)
+    s_e = [kron(s, eye(d_nuc)) for s in se]
+    if not sparse:
+        s_e = np.stack(s_e)
+    h_hf = (sps.csr_matrix((2 * d_nuc, 2 * d_nuc), dtype=complex) if sparse
+            else np.zeros((2 * d_nuc, 2 * d_nuc), dtype=complex))
     for i, (j, a_mT) in enumerate(pseudo):
         before = int(np.prod(mults[:i])) if i else 1
         after = int(np.prod(mults[i + 1:])) if i + 1 < len(mults) else 1
-        jj = [np.kron(np.kron(np.eye(before), x), np.eye(after)) for x in spin_matrices(j)]
+        spins = [sps.csr_matrix(x) for x in spin_matrices(j)] if sparse else spin_matrices(j)
+        jj = [kron(kron(eye(before), x), eye(after)) for x in spins]
         a = np.asarray(a_mT, dtype=float) * 1e-3 * GAMMA_E
         for p in range(3):
             for q in range(3):
                 if a[p, q] != 0.0:
-                    h_hf += a[p, q] * np.kron(se[p], jj[q])
-    return s_e, h_hf
+                    h_hf = h_hf + a[p, q] * kron(se[p], jj[q])
+    return s_e, (h_hf.tocsr() if sparse else h_hf)
 
 
-def radical_blocks(radical) -> list[Block]:
+def radical_blocks(radical, *, sparse: bool = False) -> list[Block]:
     """The distinct total-spin blocks of ``radical`` with their multiplicities (module docstring).
 
-    Without equivalent nuclei this is one block, the radical itself, of multiplicity 1.
+    Without equivalent nuclei this is one block, the radical itself, of multiplicity 1.  With
+    ``sparse`` the operators are scipy.sparse CSR matrices (``s_e`` a list of three).
     """
     grp = groups(radical)
     options = []
@@ -138,7 +148,7 @@ def radical_blocks(radical) -> list[Block]:
     for choice in itertools.product(*options) if options else [()]:
         mult = int(np.prod([m for _, m in choice])) if choice else 1
         pseudo = [(j, radical.nuclei[g[0]].hyperfine_mT) for (j, _), g in zip(choice, grp) if j > 0]
-        s_e, h_hf = _block_operators(pseudo)
+        s_e, h_hf = _block_operators(pseudo, sparse)
         blocks.append(Block(tuple(j for j, _ in choice), mult, s_e, h_hf, zeeman))
     total = sum(b.multiplicity * b.dimension for b in blocks)
     assert total == radical.dimension, (total, radical.dimension)

@@ -45,14 +45,14 @@ the real part because ``F`` is real and even, so its spectrum is real and symmet
 trapezoid rule's aliasing (Poisson-summation) kernel: analytic on ``|Omega| < 2 pi / h`` and of size
 ``~ (k h)^2 / 12``; it is *not* an error term to be hoped small but an exact correction, evaluated as
 described next.  We take ``h = theta pi / W`` with ``W = W_A + W_B``, ``W_r`` the eigenvalue spread
-of radical ``r`` (so every ``|Omega| <= W``), ``theta = 1/2``, and ``h <= 0.1 / k``.
+of radical ``r`` (so every ``|Omega| <= W``), ``theta = 0.9``, and ``h <= 0.1 / k``.
 
 **Truncation.**  The sum stops at ``j = N - 1``.  By fact 2 the rest is at most
 ``(3M/4) k h exp(-k N h) / (1 - exp(-k h))``; ``N`` is chosen to make it ``<= tol M / 4``.
 
 **The correction term, exactly separable.**  ``sum_l c_l g(Omega_l)`` is a sum over all pairs of an
 A frequency ``x`` and a B frequency ``y`` of ``g(x + y)``.  On ``[-W_A, W_A] x [-W_B, W_B]`` ``g(x+y)``
-is analytic (nearest singularity at ``|x + y| = 2 pi / h = 4 W``), so a tensor Chebyshev expansion
+is analytic (nearest singularity at ``|x + y| = 2 pi / h = 2 W / theta``), so a tensor Chebyshev expansion
 ``g(x + y) ~ sum_pq c_pq T_p(x / W_A) T_q(y / W_B)`` converges geometrically, and the correction
 becomes ``sum_comp sum_pq c_pq mu^A_p mu^B_q`` with Chebyshev moments ``mu^r_p = sum c^r T_p(omega /
 W_r)`` of each radical's spectrum: ``O(d^2 P)`` work.  Its error is at most ``(9/4) M`` times the
@@ -106,7 +106,7 @@ __all__ = ["yields", "singlet_start_singlet_yield", "nufft_error", "working_byte
 #: Default absolute tolerance on each yield.
 DEFAULT_TOL = 1e-10
 #: Fraction of the aliasing-free step: ``h = THETA pi / (W_A + W_B)``.
-THETA = 0.5
+THETA = 0.9
 #: Upper bound on ``k h``.
 MAX_KH = 0.1
 #: Multiplicities of the nine correlation components (xx, yy, zz, xy, xz, yz sym; xy, xz, yz anti).
@@ -311,7 +311,8 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
         dp = sp.diagonal()
         dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
         diag += mult * np.array([dx @ dx, dy @ dy, dz @ dz, dx @ dy, dx @ dz, dy @ dz])
-    spec = scipy.fft.rfft(grid, axis=0)[:n_t]                    # sum_g b_g e^{-2 pi i j g / nf}
+    # sum_g b_g e^{-2 pi i j g / nf}, transformed along contiguous rows
+    spec = scipy.fft.rfft(np.ascontiguousarray(grid.T), axis=1)[:, :n_t].T
     psi = _psi_grid(n_t, width)[:, None]
     series = np.empty((n_t, 9))
     # G = conj(spec) / psi;  Cs = D + 2 Re G,  Ca = -2 Im G = 2 Im(spec) / psi
