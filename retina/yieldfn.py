@@ -401,7 +401,7 @@ class YieldFunction:
         t0 = time.perf_counter()
         # an approximate method reports its approximation and error bars through ``info``
         info: dict = {}
-        extra = {"info": info} if resolved == "sampled" else {}
+        extra = {"info": info} if resolved in ("sampled", "fast-separable") else {}
         values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
                                                   max_bytes=max_bytes, **extra), dtype=float)
         seconds = time.perf_counter() - t0

@@ -192,3 +192,20 @@ def test_engine_chooses_by_estimated_cost_and_dispatches():
             engine.estimate_cost(small, 10, "fast-separable")
         finally:
             del os.environ["RETINA_JOBS"]
+
+
+def test_yields_command_prints_the_stated_bound(tmp_path, monkeypatch, capsys):
+    # The CLI summary names the method and its stated error bound (provenance key
+    # method_error_bound_max), common practice, no source.
+    from retina.cli import main
+
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "cache"))
+    toml = tmp_path / "pair.toml"
+    toml.write_text('[pair]\nname = "invented pair"\n[radical_a]\n[[radical_a.nuclei]]\nspin = 1\n'
+                    'principal_mT = [0.1, 0.2, 1.0]\n[radical_b]\n[[radical_b.nuclei]]\nspin = 0.5\n'
+                    'hyperfine_mT = 0.4\ncount = 2\n[kinetics]\nlifetime_us = 1.0\n')
+    code = main(["yields", str(toml), "-o", str(tmp_path / "out.h5"), "--degree", "2",
+                 "--check-points", "4", "--method", "fast-separable", "-q"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "method fast-separable" in out and "stated error bound of the method" in out

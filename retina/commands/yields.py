@@ -104,6 +104,8 @@ def summary(yf, output, wall_seconds: float) -> str:
         + (" (taken from the cache)" if yf.from_cache else ""),
         f"  written to {output}",
     ]
+    if p.get("method_error_bound_max") is not None:
+        lines.insert(-1, f"  stated error bound of the method: {p['method_error_bound_max']:.1g} per direction")
     if p.get("approximation"):
         lines.insert(-1, f"  APPROXIMATION: {p['approximation']} with {p.get('sampling_states', '?')} random states; "
                          f"standard error up to {p.get('sampling_standard_error_max', float('nan')):.2g} per direction "

@@ -307,8 +307,9 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     max_bytes : int, optional
         Memory bound; default 60 % of the available memory.
     info : dict, optional
-        Filled with what an approximate method reports (``"sampled"``: the approximation's name,
-        the number of random states, the largest standard error and the bias bound).
+        Filled with what a method reports: ``"fast-separable"`` its largest stated error bound
+        (``method_error_bound_max``); ``"sampled"`` the approximation's name, the number of random
+        states, the largest standard error and the bias bound.
 
     Returns
     -------
@@ -343,7 +344,14 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     if method == "fast-separable":
         from retina.spin import fast_separable
 
-        return fast_separable.yields(system, field_uT, dirs, progress=progress, n_jobs=_jobs())
+        if info is None:
+            return fast_separable.yields(system, field_uT, dirs, progress=progress, n_jobs=_jobs())
+        from retina.spin.system import equal_rate_reported_yield
+
+        phi, bound = fast_separable.singlet_start_singlet_yield(system, field_uT, dirs, progress=progress,
+                                                                n_jobs=_jobs(), return_bound=True)
+        info.update(method_error_bound_max=float(np.max(bound)) if bound.size else 0.0)
+        return equal_rate_reported_yield(system, phi)
     if method == "sampled":
         from retina.spin import sampling
         from retina.spin.system import equal_rate_reported_yield
