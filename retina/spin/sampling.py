@@ -58,6 +58,7 @@ import math
 from dataclasses import dataclass
 from typing import Callable
 
+import numba
 import numpy as np
 import scipy.sparse as sp
 import scipy.special
@@ -143,6 +144,21 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     return n_directions * secs, int(mem + 2**20), note
 
 
+@numba.njit(cache=True, nogil=True)
+def _cheb_step(indptr, indices, data, alpha, x, beta, y, out):
+    """``out = alpha * (A @ x) + beta * y`` for a CSR matrix ``A`` and dense (d, n) ``x``, ``y``
+    (rows contiguous, so the inner loop runs over the vectors)."""
+    n_rows, n_cols = x.shape
+    for i in range(n_rows):
+        for c in range(n_cols):
+            out[i, c] = beta * y[i, c]
+        for p in range(indptr[i], indptr[i + 1]):
+            a = alpha * data[p]
+            j = indices[p]
+            for c in range(n_cols):
+                out[i, c] += a * x[j, c]
+
+
 def _gershgorin(h):
     """Lower and upper bounds of the spectrum of a Hermitian sparse matrix."""
     diag = h.diagonal().real
@@ -164,19 +180,31 @@ def _cheb_coeffs(x: float, tol: float = 1e-13) -> np.ndarray:
     return c[: keep[-1] + 1]
 
 
-def _propagate(h_scaled, shift_phase, coeffs, v):
-    """``exp(-i H h) v`` by the Chebyshev recursion (``h_scaled = (H - c) / a``)."""
-    t_prev = v
-    out = coeffs[0] * v
-    if len(coeffs) == 1:
-        return shift_phase * out
-    t_cur = h_scaled @ v
-    out = out + coeffs[1] * t_cur
-    for c in coeffs[2:]:
-        t_next = 2.0 * (h_scaled @ t_cur) - t_prev
-        out = out + c * t_next
-        t_prev, t_cur = t_cur, t_next
-    return shift_phase * out
+#: Grid steps per Chebyshev expansion (states at the intermediate grid times come from the same
+#: Chebyshev vectors with other coefficients, so a long expansion serves several grid times).
+SUBSTEPS = 8
+
+
+def _sub_coeffs(a: float, c: float, h: float, m: int, tol: float = 1e-13) -> np.ndarray:
+    """``(N + 1, m)`` coefficients of ``exp(-i H tau_i)``, ``tau_i = i h`` (i = 1..m), on the
+    Chebyshev vectors ``T_n((H - c) / a) v``: ``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)``."""
+    longest = _cheb_coeffs(a * h * m, tol)
+    n = np.arange(longest.shape[0])
+    tau = h * np.arange(1, m + 1)
+    j = scipy.special.jv(n[:, None], a * tau[None, :])
+    return (2.0 - (n == 0))[:, None] * ((-1j) ** n)[:, None] * j * np.exp(-1j * c * tau)[None, :]
+
+
+def _correlations(v, s_e, r, mult, out_row):
+    """Add one time's draw estimates (9 combinations per draw) to ``out_row (R, 9)``."""
+    phi = v[:, :r]
+    sb = np.stack([s_e[k] @ phi for k in range(3)], axis=1)         # S_b U z, (d, 3, R)
+    chi = v[:, r:].reshape(v.shape[0], 3, r)                       # U S_a z, (d, 3, R)
+    cab = np.einsum("iar,ibr->abr", chi.conj(), sb).real * mult
+    for ci, (ia, ib) in enumerate(_PAIRS):
+        out_row[:, ci] += 0.5 * (cab[ia, ib] + cab[ib, ia])
+    for ci, (ia, ib) in enumerate(_PAIRS[3:]):
+        out_row[:, 6 + ci] += 0.5 * (cab[ia, ib] - cab[ib, ia])
 
 
 def _radical_series(blocks, vectors, bvec, h, n_t):
@@ -191,22 +219,29 @@ def _radical_series(blocks, vectors, bvec, h, n_t):
         c = 0.5 * (lo + hi)
         a = max(0.5 * (hi - lo), 1e-30)
         hs = ((hm - c * sp.identity(hm.shape[0], format="csr")) / a).tocsr()
-        coeffs = _cheb_coeffs(a * h)
-        phase = np.exp(-1j * c * h)
+        hs.sort_indices()
+        hs.data = hs.data.astype(complex)
+        coef = _sub_coeffs(a, c, h, SUBSTEPS)                          # (N + 1, m)
         # columns: z, S_x z, S_y z, S_z z for each draw
-        v = np.concatenate([z] + [s_e[k] @ z for k in range(3)], axis=1)
+        v = np.ascontiguousarray(np.concatenate([z] + [s_e[k] @ z for k in range(3)], axis=1))
         mult = blk.multiplicity
-        for j in range(n_t):
-            if j:
-                v = _propagate(hs, phase, coeffs, v)
-            phi = v[:, :r]
-            sb = np.stack([s_e[k] @ phi for k in range(3)], axis=1)         # S_b U z, (d, 3, R)
-            chi = v[:, r:].reshape(v.shape[0], 3, r)                       # U S_a z, (d, 3, R)
-            cab = np.einsum("iar,ibr->abr", chi.conj(), sb).real * mult
-            for ci, (ia, ib) in enumerate(_PAIRS):
-                out[:, j, ci] += 0.5 * (cab[ia, ib] + cab[ib, ia])
-            for ci, (ia, ib) in enumerate(_PAIRS[3:]):
-                out[:, j, 6 + ci] += 0.5 * (cab[ia, ib] - cab[ib, ia])
+        _correlations(v, s_e, r, mult, out[:, 0])
+        j = 1
+        while j < n_t:
+            m = min(SUBSTEPS, n_t - j)
+            # Chebyshev vectors of v, accumulated into the m later states at once
+            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by one matrix product
+            cheb = np.empty((coef.shape[0],) + v.shape, dtype=complex)
+            cheb[0] = v
+            if coef.shape[0] > 1:
+                _cheb_step(hs.indptr, hs.indices, hs.data, 1.0, v, 0.0, v, cheb[1])
+            for n in range(2, coef.shape[0]):
+                _cheb_step(hs.indptr, hs.indices, hs.data, 2.0, cheb[n - 1], -1.0, cheb[n - 2], cheb[n])
+            states = (coef[:, :m].T @ cheb.reshape(coef.shape[0], -1)).reshape((m,) + v.shape)
+            for i in range(m):
+                _correlations(states[i], s_e, r, mult, out[:, j + i])
+            v = states[m - 1]
+            j += m
     return out
 
 
