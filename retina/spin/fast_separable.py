@@ -156,28 +156,30 @@ def _psi_grid(n_t: int, width: int) -> np.ndarray:
 def nufft_error(width: int) -> float:
     """Largest relative error of the spread-FFT-divide approximation of ``e^{i j x}``, measured.
 
-    Over ``j / n_f`` in ``[0, 1/4]`` (2049 values; this module uses ``n_f = 4 N``) and the offset of
-    the point inside a grid cell (64 values), the quantity
+    Over ``j / n_f`` in ``[0, 1/4]`` (513 values; this module uses ``n_f = 4 N``) and the offset of
+    the point inside a grid cell (32 values), the quantity
     ``|sum_g phi((g - u)/(w/2)) e^{2 pi i rho (g - u)} / psi(rho) - 1|``; it depends on nothing
-    else (derived in the module docstring).  A safety factor 1.5 covers the sampling.
+    else (derived in the module docstring).  A safety factor 2 covers the sampling (on a four
+    times denser sampling the largest value grew by less than 10 %).
     """
     half = width / 2.0
     beta = _beta(width)
-    rho = np.linspace(0.0, 0.25, 2049)
+    rho = np.linspace(0.0, 0.25, 513)
     psi = _psi(rho, width)
     worst = 0.0
-    for frac in np.arange(64) / 64.0:
+    for frac in np.arange(32) / 32.0:
         u = frac
         i0 = math.ceil(u - half)
         g = i0 + np.arange(width + 1)
         ph = _phi((g - u) / half, beta)
         s = np.exp(2j * np.pi * rho[:, None] * (g - u)[None, :]) @ ph
         worst = max(worst, float(np.max(np.abs(s / psi - 1.0))))
-    return 1.5 * worst
+    return 2.0 * worst
 
 
 def _width_for(eps: float) -> int:
-    for w in range(6, 17):
+    # the error falls about tenfold per unit of width (measured by nufft_error); start just below
+    for w in range(max(6, int(-math.log10(eps)) - 1), 17):
         if nufft_error(w) <= eps:
             return w
     return 16

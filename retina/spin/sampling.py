@@ -28,10 +28,13 @@ anisotropy is resolved far better than the mean.  :func:`sampled_yields` returns
 values, from which the standard error of any linear functional (a difference, the anisotropic
 part, a harmonic coefficient) follows.
 
-Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by a
-Chebyshev expansion of ``exp(-i H h)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967 (1984),
-from memory), accurate to 1e-13 in norm, with the spectral interval bounded by Gershgorin discs (no
-eigendecomposition; sparse matrix products only).  Groups of equivalent nuclei are reduced to
+Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by
+Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967
+(1984), from memory), accurate to 1e-13 in norm, with the spectral interval bounded by Gershgorin
+discs (no eigendecomposition; sparse matrix products only).  One expansion covers ``SUBSTEPS`` grid
+steps: the Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the
+intermediate grid times are their combinations with the coefficients
+``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)`` (one matrix product).  Groups of equivalent nuclei are reduced to
 their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled with its multiplicity.
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
@@ -47,9 +50,9 @@ is real and even, ``sum_l c_l cos(j Omega_l h) = F(t_j)``, so the correction is
 ``(3/4) k h exp(-k T) / (1 - exp(-k h))``.  Their sum (``bias_bound``) is kept below ``bias_tol``
 (default 1e-7), far below the statistical error.
 
-Cost per direction: ``~ 4 R (T / h) n_cheb`` sparse products with each radical's Hamiltonian
-(``n_cheb ~ 12``), i.e. proportional to the hyperfine bandwidth times the lifetime, and linear in
-the radical dimension rather than cubic.
+Cost per direction: ``~ (T / h) (a h SUBSTEPS + 15) / SUBSTEPS`` sparse products of each radical's
+Hamiltonian with ``4 R`` vectors, i.e. proportional to the hyperfine bandwidth times the lifetime,
+and linear in the radical dimension rather than cubic.
 """
 
 from __future__ import annotations
@@ -121,9 +124,9 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
                field_uT: float = 50.0) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
-    Per direction and block: ``n_t = 17 / (k h)`` time steps of ``n_cheb ~ a h + 12`` sparse
-    products with ``4 R`` vectors (``~3e-9 s`` per stored entry and vector, plus ``2e-5 s`` per
-    product and ``1e-4 s`` per step of Python overhead; measured on small pairs).
+    Per direction and block: ``n_t = 17 / (k h)`` time steps of ``(a h SUBSTEPS + 15) / SUBSTEPS``
+    sparse products with ``4 R`` vectors (``~3e-9 s`` per stored entry and vector, plus ``2e-5 s``
+    per product and ``1e-4 s`` per step of Python overhead; rough, from small pairs).
     """
     from retina.spin.equivalence import reduced_dimensions
 
@@ -134,7 +137,7 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     secs = 0.0
     mem = 0
     for rad, spread in zip(system.radicals, spreads):
-        n_cheb = 0.5 * spread * h + 12
+        n_cheb = (0.5 * spread * h * SUBSTEPS + 15) / SUBSTEPS
         nnz_row = 1 + 6 * len(rad.nuclei)
         for dim, _ in reduced_dimensions(rad):
             secs += n_t * (n_cheb * (2e-5 + 3e-9 * nnz_row * dim * 4 * n_states) + 1e-4)
