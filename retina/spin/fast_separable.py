@@ -409,9 +409,15 @@ def working_bytes(system) -> int:
     # both radicals' eigenvalues and three spin components, plus the Hamiltonian, eigenvectors and
     # two products of the radical being decomposed (complex, 16 bytes), per worker
     from retina.spin.equivalence import reduced_dimensions
+    from retina.spin.sampling import _spread_bound
 
     d2 = [d * d for r in system.radicals for d, _ in reduced_dimensions(r)]
-    return int(16 * (3 * sum(d2) + 4 * max(d2)) + 2**20)
+    # time grid: n_t ~ 28 W / (pi theta k) samples; the spread grid (4 n_t x 9 doubles), its
+    # transpose and transform, and the two radicals' series take about 1100 bytes per sample
+    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    k = float(system.k_singlet)
+    n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
+    return int(16 * (3 * sum(d2) + 4 * max(d2)) + 1100 * n_t + 2**20)
 
 
 def _check_jobs(n_jobs) -> int:

@@ -141,10 +141,14 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
         nnz_row = 1 + 6 * len(rad.nuclei)
         for dim, _ in reduced_dimensions(rad):
             secs += n_t * (n_cheb * (2e-5 + 3e-9 * nnz_row * dim * 4 * n_states) + 1e-4)
-            mem = max(mem, 16 * dim * (4 * n_states * 6 + 4 * nnz_row))
+            # Chebyshev vectors (a h SUBSTEPS + 15 of them) and the states, 4 R columns each
+            n_vec = 0.5 * spread * h * SUBSTEPS + 15 + SUBSTEPS + 4
+            mem = max(mem, 16 * dim * (4 * n_states * n_vec + 4 * nnz_row))
+    # per-draw series of both radicals (R, n_t, 9) and their products
+    mem += 8 * n_states * n_t * (2 * 9 + 4)
     note = (f"{n_directions} x stochastic trace estimates with {n_states} random states per radical, "
             f"{int(n_t)} time steps (an approximation with error bars)")
-    return n_directions * secs, int(mem + 2**20), note
+    return n_directions * secs, int(1.3 * mem + 2**20), note
 
 
 @numba.njit(cache=True, nogil=True)
