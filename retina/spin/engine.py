@@ -217,7 +217,15 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
         blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
         # per block: eigh (evr driver, ~0.8 of the calibrated heevd) + two half-size products
         # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
-        per = sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + _PER_DIRECTION
+        # + the time grid: ~8e-7 s per sample for spreading-grid set-up, FFTs and series of both
+        # radicals (measured at 2e4-3e4 samples), n_t ~ 28 W / (0.9 pi k) (fast_separable.plan)
+        from retina.spin.sampling import _spread_bound
+
+        w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+        k = float(system.k_singlet)
+        n_t = 28.0 / (k * min(fast_separable.THETA * np.pi / max(w_tot, 1e-30), fast_separable.MAX_KH / k))
+        per = (sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + 8e-7 * n_t
+               + _PER_DIRECTION)
         return Cost(n * per / _jobs_speedup(), fast_separable.working_bytes(system) * _jobs(), method,
                     f"{n} x {len(blocks)} eigendecompositions of sizes up to {max(blocks)} (radicals "
                     f"{dims[0]} and {dims[1]}) and correlation functions on a time grid (absolute error "

@@ -112,11 +112,13 @@ def _sparse_ops(block):
 
 
 def _spread_bound(radical, field_uT: float) -> float:
-    """Gershgorin-like bound of the spectral spread of a radical, rad s^-1 (for estimates)."""
+    """Estimated spectral spread of a radical, rad s^-1 (cost estimates only): twice the energy of
+    the stretched configuration, ``|omega| / 2 + sum_i ||A_i||_2 I_i / 2``."""
     from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR
 
     zee = MU_B_OVER_HBAR * np.linalg.norm(np.asarray(radical.g_matrix, dtype=float), 2) * field_uT * 1e-6 / 2
-    hf = sum(GAMMA_E * 1e-3 * np.abs(np.asarray(n.hyperfine_mT)).sum() * 0.5 * n.spin for n in radical.nuclei)
+    hf = sum(GAMMA_E * 1e-3 * np.linalg.norm(np.asarray(n.hyperfine_mT, dtype=float), 2) * 0.5 * n.spin
+             for n in radical.nuclei)
     return 2.0 * (zee + hf)
 
 
