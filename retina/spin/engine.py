@@ -279,8 +279,8 @@ def _resource_hint(system, method: str) -> str:
     """What the user can change when ``method`` would not fit in memory."""
     raise_limit = "raise the memory limit (max_bytes, or --max-memory-gb on the command line)"
     if method not in SEPARABLE_METHODS and in_scope(system, "separable") and _separable_available():
-        best = choose_method(system)
-        return f"method={best!r} covers this pair at a far smaller cost; or use fewer nuclei, or {raise_limit}"
+        return ("method='separable' or method='fast-separable' (method='auto' picks the cheaper) covers this "
+                f"pair at a far smaller cost; or use fewer nuclei, or {raise_limit}")
     if method == "separable":
         return (f"method='fast-separable' covers this pair with radical-sized memory; or use fewer nuclei, "
                 f"or {raise_limit}")
