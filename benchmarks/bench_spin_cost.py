@@ -24,13 +24,13 @@ import tracemalloc  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-import bench_spin_exact  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
+import bench_spin  # noqa: E402  (benchmarks/ is on sys.path when run as a script)
 
 
 def invented_pair(n_a, n_b, *, exchange_mT=0.0, k_t=1e6, relax=(0.0, 0.0), seed=0):
     from retina.spin.system import Relaxation
 
-    return bench_spin_exact.invented_pair(n_a, n_b, exchange_mT=exchange_mT, k_t=k_t, seed=seed,
+    return bench_spin.invented_exchange_pair(n_a, n_b, exchange_mT=exchange_mT, k_t=k_t, seed=seed,
                                           relaxation=Relaxation(relax, 0.0))
 
 

@@ -3,10 +3,8 @@
 Run: ``python benchmarks/run_all.py [--check] [--quick]``
 
 Each benchmark runs in its own Python process (so its thread settings and imports stay its own)
-with the same flags; its table is printed as it comes.  A benchmark whose rows another benchmark
-already prints is skipped: a file ``bench_X.py`` is left out when another benchmark's source holds
-the quoted string ``"bench_X.py"`` (as ``bench_spin.py`` does to load the rows of
-``bench_spin_exact.py``).
+with the same flags; its table is printed as it comes.  Every case is timed in exactly one file
+(the spin methods all in ``bench_spin.py``), so nothing runs twice.
 Exit status: 0, or 1 with ``--check`` when any benchmark exits non-zero (a missed target or a
 failure).
 """
@@ -23,11 +21,8 @@ HERE = Path(__file__).resolve().parent
 
 
 def benchmark_files() -> list[Path]:
-    """The ``bench_*.py`` files to run, with the ones included by another benchmark left out."""
-    files = sorted(HERE.glob("bench_*.py"))
-    texts = {f: f.read_text(encoding="utf-8") for f in files}
-    included = {f for f in files for g in files if g != f and f'"{f.name}"' in texts[g]}
-    return [f for f in files if f not in included]
+    """The ``bench_*.py`` files to run, in name order."""
+    return sorted(HERE.glob("bench_*.py"))
 
 
 def main(argv=None) -> int:

@@ -6,7 +6,8 @@ Conventions (owned here)
   state's event for its field; while it shows a value that came from the state it blocks its own
   signals, so a change never echoes back (no feedback loop).
 - Numeric controls pair a slider (coarse, drag) with a spin box (exact, typed); log-scaled fields
-  (photons, kappa) move the slider in equal steps of ``log10``.
+  (photons, kappa) move the slider in equal steps of ``log10``; the far left of the kappa slider
+  is 0 (no order: isotropic for the "cone" and "plane" models).
 - The readout panel shows the numbers of the latest worker result (:mod:`retina_viewer.workers`) with their
   units; it never computes anything itself.
 """
@@ -35,7 +36,7 @@ CONTROLS = (
     ("inclination_deg", "inclination (down +)", " deg", (-90.0, 90.0), 1, 1.0, False),
     ("declination_deg", "declination (east +)", " deg", (-180.0, 180.0), 1, 1.0, False),
     ("photons", "light (photons/receptor)", "", (1.0, 1e6), 1, 10.0, True),
-    ("kappa", "ordering kappa (cone)", "", (0.1, 1000.0), 2, 1.0, True),
+    ("kappa", "ordering kappa", "", (0.1, 1000.0), 2, 1.0, True),
 )
 
 
@@ -79,7 +80,7 @@ class BoundSlider(QWidget):
         if name == "yaw_deg":
             self.spin.setRange(0.0, 359.9)
         else:
-            lo = max(full[0], 10.0 ** -decimals) if log else full[0]
+            lo = max(full[0], 10.0 ** -decimals) if log and name != "kappa" else full[0]
             self.spin.setRange(lo, full[1])
         if name == "yaw_deg":
             self.spin.setWrapping(True)
@@ -108,6 +109,8 @@ class BoundSlider(QWidget):
 
     # value <-> slider position
     def to_ticks(self, v: float) -> int:
+        if self.name == "kappa" and v <= 0:
+            return 0
         if self.log:
             t = (math.log10(max(v, 1e-300)) - math.log10(self.lo)) / (math.log10(self.hi) - math.log10(self.lo))
         else:
@@ -115,6 +118,8 @@ class BoundSlider(QWidget):
         return int(round(min(max(t, 0.0), 1.0) * _TICKS))
 
     def from_ticks(self, k: int) -> float:
+        if self.name == "kappa" and k == 0:
+            return 0.0  # the far left: no order
         t = k / _TICKS
         if self.log:
             return 10.0 ** (math.log10(self.lo) + t * (math.log10(self.hi) - math.log10(self.lo)))
@@ -137,9 +142,8 @@ class BoundSlider(QWidget):
                 w.blockSignals(False)
         if self.reset is not None:
             own = self.state.get("kappa") is None
-            sc = self.state.scenario
-            model = sc["ordering"]["model"] if sc is not None else "cone"
-            self.label.setText("ordering kappa (cone)" + (f": scenario's {model}" if own else ": override"))
+            self.label.setText("ordering kappa" + (": scenario's" if own else ": override")
+                               + (" (0 = isotropic)" if self.value() == 0 else ""))
             self.reset.setEnabled(not own)
 
     def _set(self, v: float) -> None:
@@ -166,8 +170,14 @@ class BoundSlider(QWidget):
         self._unsub.clear()
 
 
+_ORDERING_TIP = ("scenario: the scenario's own model; aligned; axial: free rotation about the receptor "
+                 "axis; cone: a vMF cone with the twist as the scenario says (tied: isotropic at kappa 0); "
+                 "cone_no_twist: the cone without twist (not isotropic at kappa 0); plane: a molecular "
+                 "direction in the membrane plane (Watson girdle kappa); isotropic: no order")
+
+
 class ChoiceBox(QComboBox):
-    """A combo box bound to a choice field of the state (``display`` or ``eye``)."""
+    """A combo box bound to a choice field of the state (``display``, ``eye`` or ``ordering``)."""
 
     def __init__(self, state, name, choices, parent=None):
         super().__init__(parent)
@@ -218,13 +228,21 @@ class ControlPanel(QWidget):
         lay.addWidget(box)
         groups = (("Head pose (arrow keys turn and tilt)", ("yaw_deg", "pitch_deg", "roll_deg")),
                   ("Geomagnetic field", ("intensity_uT", "inclination_deg", "declination_deg")),
-                  ("Receptors and light", ("photons", "kappa")))
+                  ("Receptors and light", ("photons", "ordering", "kappa")))
         spec = {c[0]: c for c in CONTROLS}
         for title, names in groups:
             box = QGroupBox(title)
             bl = QVBoxLayout(box)
             bl.setSpacing(2)
             for n in names:
+                if n == "ordering":
+                    from .state import ORDERINGS
+
+                    self.controls[n] = ChoiceBox(state, n, ORDERINGS)
+                    self.controls[n].setToolTip(_ORDERING_TIP)
+                    bl.addWidget(QLabel("ordering model"))
+                    bl.addWidget(self.controls[n])
+                    continue
                 _, label, unit, span, dec, step, log = spec[n]
                 w = BoundSlider(state, n, label, unit, span, dec, step, log)
                 self.controls[n] = w

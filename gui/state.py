@@ -5,9 +5,11 @@ Conventions (owned here)
 - One :class:`ViewerState` holds everything the user can change: the scenario, the head pose
   (yaw, pitch, roll; degrees, :mod:`retina.eye.pose`), the field (intensity in microtesla,
   inclination and declination in degrees, :mod:`retina.eye.field`), the light level (photons per
-  receptor per look, :mod:`retina.signal.light`), the cone concentration ``kappa`` of the molecular
-  ordering (``None``: the scenario's own ordering, :func:`retina.build.build_ordering`) and the
-  display choice (``"modulation"`` or ``"yields"``; eye ``"both"``, ``"left"`` or ``"right"``).
+  receptor per look, :mod:`retina.signal.light`), the molecular ordering model ``ordering``
+  (``"scenario"``: the scenario's own model, or one of :data:`retina.eye.ordering.MODELS`) and its
+  concentration ``kappa`` (``None``: the scenario's own; 0 reaches isotropy for "cone" and "plane",
+  :func:`retina.build.build_ordering`) and the display choice (``"modulation"`` or ``"yields"``;
+  eye ``"both"``, ``"left"`` or ``"right"``).
 - Every field is a validating property: a bad value raises :class:`retina.errors.InputError`
   naming the key and what was expected (``source`` is the scenario file when there is one); a
   value equal to the current one emits nothing; a changed value emits exactly one
@@ -27,15 +29,17 @@ from typing import Any, Callable
 
 from retina.errors import InputError
 
-__all__ = ["Event", "EventEmitter", "ViewerState", "FIELDS", "DISPLAYS", "EYES", "RANGES"]
+__all__ = ["Event", "EventEmitter", "ViewerState", "FIELDS", "DISPLAYS", "EYES", "ORDERINGS", "RANGES"]
 
 #: Display choices: what the colours show.
 DISPLAYS = ("modulation", "yields")
 #: Eye choices: which receptors are shown.
 EYES = ("both", "left", "right")
+#: Ordering choices: the scenario's own model or one of :data:`retina.eye.ordering.MODELS`.
+ORDERINGS = ("scenario", "aligned", "axial", "cone", "cone_no_twist", "plane", "isotropic")
 
 #: Accepted ranges (inclusive) of the numeric fields, in their units.  The intensity range is the
-#: scenario schema's (:mod:`retina.scenario`); photons and kappa must be positive.
+#: scenario schema's (:mod:`retina.scenario`); photons must be positive, kappa may be 0 (no order).
 RANGES: dict[str, tuple[float, float]] = {
     "pitch_deg": (-90.0, 90.0),
     "roll_deg": (-180.0, 180.0),
@@ -43,12 +47,12 @@ RANGES: dict[str, tuple[float, float]] = {
     "inclination_deg": (-90.0, 90.0),
     "declination_deg": (-180.0, 180.0),
     "photons": (1e-3, 1e9),
-    "kappa": (1e-3, 1e6),
+    "kappa": (0.0, 1e6),
 }
 
 #: The user-settable fields, in the order panels show them.
 FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg", "declination_deg",
-          "photons", "kappa", "display", "eye")
+          "photons", "ordering", "kappa", "display", "eye")
 
 
 @dataclass(frozen=True)
@@ -127,7 +131,8 @@ class ViewerState:
         self._scenario = None
         self._v: dict[str, Any] = {
             "yaw_deg": 0.0, "pitch_deg": 0.0, "roll_deg": 0.0, "intensity_uT": 50.0,
-            "inclination_deg": 60.0, "declination_deg": 0.0, "photons": 300.0, "kappa": None,
+            "inclination_deg": 60.0, "declination_deg": 0.0, "photons": 300.0, "ordering": "scenario",
+            "kappa": None,
             "display": "modulation", "eye": "both",
         }
         self._result = None
@@ -158,6 +163,10 @@ class ViewerState:
         if name == "display":
             if value not in DISPLAYS:
                 raise InputError(f"expected one of {DISPLAYS}, got {value!r}", source=src, key=name)
+            return value
+        if name == "ordering":
+            if value not in ORDERINGS:
+                raise InputError(f"expected one of {ORDERINGS}, got {value!r}", source=src, key=name)
             return value
         if name == "eye":
             if value not in EYES:
@@ -206,7 +215,8 @@ class ViewerState:
 
         Pose: the first of ``pose.headings_deg`` with ``pose.pitch_deg`` and ``pose.roll_deg``.
         Field: the given components, or the IGRF field at the scenario's place and date.  Light:
-        the brightest of ``light.photons``.  Ordering: the scenario's own (``kappa = None``).
+        the brightest of ``light.photons``.  Ordering: the scenario's own (``ordering =
+        "scenario"``, ``kappa = None``).
         Emits ``"scenario"`` and then one event per changed field.
         """
         from retina.scenario import Scenario
@@ -224,7 +234,7 @@ class ViewerState:
         self.update(yaw_deg=p["headings_deg"][0], pitch_deg=p["pitch_deg"],
                     roll_deg=p["roll_deg"], intensity_uT=fld.F_uT, inclination_deg=fld.I_deg,
                     declination_deg=((fld.D_deg + 180.0) % 360.0) - 180.0,
-                    photons=max(scenario["light"]["photons"]), kappa=None)
+                    photons=max(scenario["light"]["photons"]), ordering="scenario", kappa=None)
 
     # ---------------------------------------------------------------- derived state
     def request(self):
@@ -238,7 +248,7 @@ class ViewerState:
                               pitch_deg=v["pitch_deg"], roll_deg=v["roll_deg"],
                               intensity_uT=v["intensity_uT"], inclination_deg=v["inclination_deg"],
                               declination_deg=v["declination_deg"], photons=v["photons"],
-                              kappa=v["kappa"])
+                              ordering=v["ordering"], kappa=v["kappa"])
 
     @property
     def result(self):

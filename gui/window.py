@@ -2,7 +2,7 @@
 
 Conventions (owned here)
 ------------------------
-- Start-up: the scenario given, else the bundled demo scenario (``assets/demo_scenario.toml``)
+- Start-up: the scenario given, else the bundled demo scenario (:func:`retina.data.demo_scenario_path`)
   reduced by :func:`retina.build.quick_scenario` ("quick settings"; ``quick=False`` keeps it
   whole).  A scenario that fails validation is reported in a dialog (or raised before the window
   exists), never as a traceback.
@@ -36,7 +36,7 @@ __all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "
 
 #: Fields whose change needs a new pattern.
 _REQUEST_FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg",
-                   "declination_deg", "photons", "kappa")
+                   "declination_deg", "photons", "ordering", "kappa")
 
 
 def load_start_scenario(path=None, *, quick: bool | None = None):
@@ -46,9 +46,9 @@ def load_start_scenario(path=None, *, quick: bool | None = None):
     from retina.scenario import load_scenario
 
     if path is None:
-        from retina.commands.demo import bundled_scenario
+        from retina.data import demo_scenario_path
 
-        path = bundled_scenario()
+        path = demo_scenario_path()
         quick = True if quick is None else quick
     sc = load_scenario(path)
     return quick_scenario(sc) if quick else sc

@@ -55,6 +55,7 @@ class PatternRequest:
     inclination_deg: float = 60.0
     declination_deg: float = 0.0
     photons: float = 300.0
+    ordering: str = "scenario"
     kappa: float | None = None
 
 
@@ -164,13 +165,20 @@ class PatternComputer:
             self._yfs.popitem(last=False)
         return entry
 
-    def model(self, sc, yf, kappa):
-        """The retina model for a yield function and ``kappa`` (rebuilt only when they change)."""
+    def model(self, sc, yf, kappa, ordering="scenario"):
+        """The retina model for a yield function, ``kappa`` and the ordering choice (rebuilt only
+        when they change); ``ordering`` other than "scenario" replaces the scenario's model
+        (:func:`retina.build.build_ordering`), in ensemble mode."""
         from retina import build
 
-        if self._model is None or self._model_yf is not yf or self._model_kappa != kappa:
-            self._model = build.build_retina(sc, yf, self._receptors, kappa=kappa)
-            self._model_yf, self._model_kappa = yf, kappa
+        key = (kappa, ordering)
+        if self._model is None or self._model_yf is not yf or self._model_kappa != key:
+            if ordering == "scenario":
+                self._model = build.build_retina(sc, yf, self._receptors, kappa=kappa)
+            else:
+                order = build.build_ordering(sc, kappa, model=ordering)
+                self._model = build.build_retina(sc, yf, self._receptors, ordering=order)
+            self._model_yf, self._model_kappa = yf, key
             self._curve_key = self._curve = None
             self.model_builds += 1
         return self._model
@@ -193,7 +201,7 @@ class PatternComputer:
 
         sc = req.scenario
         yf, F_yield, note = self.yield_function(sc, req.intensity_uT, progress=progress)
-        model = self.model(sc, yf, req.kappa)
+        model = self.model(sc, yf, req.kappa, req.ordering)
         fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
         pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
         y = pat.yields

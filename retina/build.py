@@ -16,6 +16,7 @@ arrays.  The sampled-molecules retina draws from the stage name ``"molecules"``.
 
 from __future__ import annotations
 
+import logging
 import zlib
 from dataclasses import dataclass
 from typing import Any, Callable
@@ -28,14 +29,28 @@ from retina.scenario import Scenario
 __all__ = [
     "Built", "build_all", "stage_rng", "quick_scenario", "build_field", "build_eyes", "build_ordering",
     "build_yield_function", "build_retina", "build_sky", "field_uT", "ProgressFactory", "no_progress",
+    "KAPPA_MODELS",
 ]
+
+_log = logging.getLogger(__name__)
 
 ProgressFactory = Callable[[str, int], Callable[[int, int], None] | None]
 """``factory(description, total) -> progress(done, total)`` (or None): one callback per long step."""
 
 
 def no_progress(desc: str, total: int):
-    """The progress factory that shows nothing."""
+    """The progress factory that shows nothing.
+
+    Parameters
+    ----------
+    desc : str
+    total : int
+
+    Returns
+    -------
+    None
+        The core treats a None callback as no progress.
+    """
     return None
 
 
@@ -91,7 +106,16 @@ def quick_scenario(sc: Scenario) -> Scenario:
 
 
 def build_field(sc: Scenario):
-    """The :class:`retina.eye.field.Field` of the scenario (given components or IGRF at a place)."""
+    """The field of the scenario: its given components, or IGRF-14 at its place and date.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    retina.eye.field.Field
+    """
     from retina.eye.field import Field, field_at
 
     f = sc["field"]
@@ -101,7 +125,22 @@ def build_field(sc: Scenario):
 
 
 def build_eyes(sc: Scenario) -> list:
-    """The :class:`retina.eye.geometry.Eye` objects of the scenario (in file order)."""
+    """The eyes of the scenario.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    list of retina.eye.geometry.Eye
+        In file order.
+
+    Raises
+    ------
+    InputError
+        Naming the eye (``eyes[i].key``) for an invalid value.
+    """
     from retina.eye.geometry import Eye
 
     out = []
@@ -113,37 +152,52 @@ def build_eyes(sc: Scenario) -> list:
     return out
 
 
-def build_ordering(sc: Scenario, kappa: float | None = None):
-    """The ordering model of the scenario (:mod:`retina.eye.ordering`).
+def build_ordering(sc: Scenario, kappa: float | None = None, *, model: str | None = None):
+    """The ordering model of the scenario (:func:`retina.eye.ordering.from_settings`).
 
     Parameters
     ----------
     sc : Scenario
     kappa : float, optional
-        Use a von Mises-Fisher cone of this concentration instead of the scenario's model.
-    """
-    from scipy.spatial.transform import Rotation
+        Replace the scenario's concentration.  When the scenario's model has none ("aligned",
+        "axial", "isotropic") and ``model`` is not given, a cone ("cone", with the scenario's
+        twist) of this concentration is used.
+    model : str, optional
+        Replace the scenario's model (one of :data:`retina.eye.ordering.MODELS`); ``kappa`` is
+        ignored by a model without a concentration.
 
+    Returns
+    -------
+    Ordering
+        A model of :mod:`retina.eye.ordering`.
+    """
     from retina.eye import ordering as om
 
     o = sc["ordering"]
-    a, b, c = o["orientation_deg"]
-    base = Rotation.from_euler("ZYZ", [a, b, c], degrees=True)
-    model = o["model"] if kappa is None else "cone"
-    if model == "aligned":
-        return om.Aligned(base)
-    if model == "axial":
-        return om.FreeRotation(tilt_deg=b, twist_deg=c)
-    if model == "isotropic":
-        return om.Isotropic()
-    cone = om.Cone(kappa=float(o["kappa"] if kappa is None else kappa))
-    if np.allclose(base.as_matrix(), np.eye(3)):
-        return cone
-    return om.Composite(om.Aligned(base), cone)
+    name = o["model"] if model is None else model
+    if kappa is not None and model is None and name not in KAPPA_MODELS:
+        name = "cone"
+    return om.from_settings(name, kappa=float(o["kappa"] if kappa is None else kappa), twist=o["twist"],
+                            twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"],
+                            axis=o["axis"] if name in KAPPA_MODELS else None)
+
+
+KAPPA_MODELS = ("cone", "cone_no_twist", "plane")
+"""The ordering models that have a concentration ``kappa``."""
 
 
 def field_uT(sc: Scenario) -> float:
-    """The field strength (uT) the yield function is computed at: ``[yield] field_uT`` or the field's F."""
+    """The field strength the yield function is computed at.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    float
+        Microtesla: ``[yield] field_uT`` when given, else the scenario field's intensity.
+    """
     if sc["yield"]["field_uT"] is not None:
         return float(sc["yield"]["field_uT"])
     return float(build_field(sc).F_uT)
@@ -157,11 +211,18 @@ def build_yield_function(sc: Scenario, *, progress=None):
     sc : Scenario
     progress : callable(done, total), optional
         Called while the spin engine works.
+
+    Returns
+    -------
+    retina.yieldfn.YieldFunction
+        Computed from ``[yield] system``, read from ``file`` or fitted to ``table``.
     """
     from retina.yieldfn import YieldFunction
 
     kind, path = sc.yield_source
     degree = sc["yield"]["degree"]
+    _log.info("yield function: %s %s, degree %d", {"system": "spin system", "file": "file"}.get(kind, "table"),
+              path, degree)
     if kind == "system":
         from retina.spin.io import load_system
 
@@ -175,7 +236,8 @@ def build_yield_function(sc: Scenario, *, progress=None):
     return import_table(path, degree)
 
 
-def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None, progress=None):
+def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None, ordering=None,
+                 progress=None):
     """The :class:`retina.eye.pattern.RetinaModel` of the scenario.
 
     Parameters
@@ -185,8 +247,16 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
     receptors : Receptors, optional
         Default: built from the scenario's eyes.
     kappa : float, optional
-        Replace the ordering by a cone of this concentration, in ensemble mode (disorder sweep).
+        Replace the concentration of the ordering (:func:`build_ordering`), in ensemble mode
+        (disorder sweep).
+    ordering : Ordering, optional
+        Use this ordering model instead, in ensemble mode (order study).
     progress : callable(done, total), optional
+
+    Returns
+    -------
+    retina.eye.pattern.RetinaModel
+        Sampled molecules draw from :func:`stage_rng` ``(seed, "molecules")``.
     """
     from retina.eye.geometry import build_receptors
     from retina.eye.pattern import RetinaModel
@@ -194,13 +264,23 @@ def build_retina(sc: Scenario, yf, receptors=None, *, kappa: float | None = None
     if receptors is None:
         receptors = build_receptors(build_eyes(sc))
     o = sc["ordering"]
-    mode = o["mode"] if kappa is None else "ensemble"
-    return RetinaModel(yf, receptors, build_ordering(sc, kappa), mode=mode, n_molecules=o["n_molecules"],
+    mode = o["mode"] if kappa is None and ordering is None else "ensemble"
+    order = build_ordering(sc, kappa) if ordering is None else ordering
+    return RetinaModel(yf, receptors, order, mode=mode, n_molecules=o["n_molecules"],
                        seed=stage_rng(sc.seed, "molecules"), progress=progress)
 
 
 def build_sky(sc: Scenario):
-    """The sky model of ``[light]`` (:mod:`retina.signal.light`)."""
+    """The sky model of ``[light]``.
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    retina.signal.light.UniformSky or retina.signal.light.HorizonSky
+    """
     from retina.signal.light import HorizonSky, UniformSky
 
     li = sc["light"]

@@ -4,7 +4,8 @@ The key is the sha256 of a canonical JSON record of everything that determines t
 canonical spin-system document (:func:`retina.spin.io.dump_system`), the field strength (as the
 shortest round-tripping decimal), the degree, the resolved engine method, the number of check points
 and the retina version.  Entries are native HDF5 files ``<key>.h5`` (:mod:`retina.io.hdf5`) in the
-cache folder: ``$RETINA_CACHE`` when set, else ``~/.cache/retina-compass``.  Writes are atomic; an
+cache folder: ``$RETINA_CACHE`` when set, else ``$XDG_CACHE_HOME/retina-compass`` (XDG Base
+Directory specification), else ``~/.cache/retina-compass``.  Writes are atomic; an
 unreadable entry, or one whose coefficients do not match the ``content_hash`` stored with them,
 counts as a miss and is removed.
 
@@ -23,9 +24,19 @@ __all__ = ["default_cache_dir", "cache_key", "YieldCache"]
 
 
 def default_cache_dir() -> Path:
-    """``$RETINA_CACHE`` if set and non-empty, else ``~/.cache/retina-compass``."""
+    """``$RETINA_CACHE`` if set and non-empty; else ``$XDG_CACHE_HOME/retina-compass`` if
+    ``XDG_CACHE_HOME`` is set to an absolute path; else ``~/.cache/retina-compass``.
+
+    The XDG Base Directory specification says a relative ``XDG_CACHE_HOME`` is invalid and is to
+    be ignored.
+    """
     env = os.environ.get("RETINA_CACHE")
-    return Path(env).expanduser() if env else Path.home() / ".cache" / "retina-compass"
+    if env:
+        return Path(env).expanduser()
+    xdg = os.environ.get("XDG_CACHE_HOME")
+    if xdg and Path(xdg).is_absolute():
+        return Path(xdg) / "retina-compass"
+    return Path.home() / ".cache" / "retina-compass"
 
 
 def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int) -> str:

@@ -5,12 +5,18 @@ Subcommands live one per module in :mod:`retina.commands` (see its docstring).  
 (:class:`~retina.errors.InputError`, printed as one line on stderr, or a
 :class:`~retina.errors.ResourceError` refusal, printed with its advice) and 130 interrupted
 (Ctrl-C; outputs are written atomically, so no partial file is left).
+
+Diagnostics (owned here): the core logs through the ``retina`` logger; the command line shows
+warnings on stderr by default, ``-v`` adds the steps and their timings (INFO), ``-vv`` debug
+detail, and ``--quiet`` shows errors only (and turns the progress bars off).  Python warnings are
+routed through the same handler.
 """
 
 from __future__ import annotations
 
 import argparse
 import importlib
+import logging
 import sys
 
 from retina.errors import Cancelled, InputError, ResourceError
@@ -26,6 +32,8 @@ examples:
   retina yields assets/example_pair.toml -o pair.h5
       the yield function of the example pair at 50 uT, degree 16
   retina yields my_pair.toml -o my_pair.h5 --field-uT 47 --degree 24 --method liouville
+  retina -v demo --quick
+      the same with the steps and their timings on stderr
   retina COMMAND --help
       everything about one command
 
@@ -52,6 +60,10 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"retina-compass {retina.__version__}")
     parser.add_argument("--traceback", action="store_true",
                         help="on an unexpected failure, print the full Python traceback")
+    parser.add_argument("-v", "--verbose", action="count", default=0, dest="verbosity",
+                        help="more diagnostics on stderr: -v the steps and their timings, -vv debug detail")
+    parser.add_argument("-q", "--quiet", action="store_true", dest="log_quiet",
+                        help="errors only on stderr: no warnings, no diagnostics, no progress bars")
     subparsers = parser.add_subparsers(title="commands", metavar="COMMAND", dest="command")
     for name in COMMANDS:
         module = importlib.import_module(f"retina.commands.{name}")
@@ -60,6 +72,37 @@ def build_parser() -> argparse.ArgumentParser:
         for added in set(subparsers.choices) - before:
             subparsers.choices[added].set_defaults(_run=module.run)
     return parser
+
+
+class _Logging:
+    """Route the ``retina`` logger and Python warnings to stderr at the chosen level, for one run."""
+
+    def __init__(self, verbosity: int = 0, quiet: bool = False):
+        if quiet:
+            self.level = logging.ERROR
+        else:
+            self.level = (logging.WARNING, logging.INFO, logging.DEBUG)[min(max(int(verbosity), 0), 2)]
+        self.handler = logging.StreamHandler(sys.stderr)
+        self.handler.setFormatter(logging.Formatter("retina: %(levelname)s: %(message)s"))
+        self.loggers = (logging.getLogger("retina"), logging.getLogger("py.warnings"))
+        self.saved = []
+
+    def __enter__(self):
+        for lg in self.loggers:
+            self.saved.append((lg.level, lg.propagate))
+            lg.addHandler(self.handler)
+            lg.setLevel(self.level)
+            lg.propagate = False
+        logging.captureWarnings(True)
+        return self
+
+    def __exit__(self, *exc):
+        logging.captureWarnings(False)
+        for lg, (level, propagate) in zip(self.loggers, self.saved):
+            lg.removeHandler(self.handler)
+            lg.setLevel(level)
+            lg.propagate = propagate
+        return False
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -76,7 +119,10 @@ def main(argv: list[str] | None = None) -> int:
         if run is None:
             parser.print_help(sys.stderr)
             return EXIT_INPUT
-        return int(run(args))
+        if args.log_quiet and hasattr(args, "quiet"):
+            args.quiet = True
+        with _Logging(args.verbosity, args.log_quiet):
+            return int(run(args))
     except InputError as exc:
         print(f"retina: error: {_one_line(exc)}", file=sys.stderr)
         return EXIT_INPUT

@@ -15,6 +15,9 @@ registry), :mod:`retina.results` (the container and its HDF5 schema) and :mod:`r
 
 from __future__ import annotations
 
+import logging
+import time
+
 import numpy as np
 
 from retina.build import ProgressFactory, build_all, no_progress, quick_scenario
@@ -25,8 +28,11 @@ from retina.stages import STAGES
 
 __all__ = ["run"]
 
+_log = logging.getLogger(__name__)
 
-def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "precision", "disorder", "trials"),
+
+def run(sc: Scenario, *, quick: bool = False,
+        stages=("patterns", "scan", "precision", "disorder", "order", "trials"),
         progress_factory: ProgressFactory | None = None, yield_function=None) -> Results:
     """Run the scenario's stages and collect their results.
 
@@ -37,7 +43,7 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
         Apply :func:`retina.build.quick_scenario` first.
     stages : sequence of str
         Names in :data:`retina.stages.STAGES` ("patterns", "scan", "precision", "disorder",
-        "trials"); they run in the registry's order.  The yield function and the retina are always
+        "order", "trials"); they run in the registry's order.  The yield function and the retina are always
         built.
     progress_factory : callable(description, total) -> progress(done, total), optional
         Makes a progress callback for each long step (the CLI passes :class:`retina.progress.ProgressBars`).
@@ -56,7 +62,10 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
     if quick:
         sc = quick_scenario(sc)
     pf = progress_factory or no_progress
+    t0 = time.perf_counter()
     built = build_all(sc, yield_function=yield_function, progress_factory=pf)
+    _log.info("built the yield function and %d receptors in %.1f s", built.receptors.eye_index.size,
+              time.perf_counter() - t0)
     yf, receptors, fld = built.yield_function, built.receptors, built.field
     an = yf.anisotropy()
     g: dict = {}
@@ -70,5 +79,7 @@ def run(sc: Scenario, *, quick: bool = False, stages=("patterns", "scan", "preci
     for name, stage in STAGES.items():
         if name in stages:
             progress = pf(stage.label, stage.steps(sc)) if stage.label else None
+            t0 = time.perf_counter()
             g[name] = stage.compute(built, progress)
+            _log.info("stage %s: %.1f s", name, time.perf_counter() - t0)
     return Results(g, make_provenance(sc, yf, fld, quick=quick, stages=stages), scenario=sc)

@@ -21,7 +21,12 @@ __all__ = ["ProgressBar", "ProgressBars", "stderr_is_terminal"]
 
 
 def stderr_is_terminal() -> bool:
-    """True when stderr is an interactive terminal."""
+    """Whether stderr is an interactive terminal.
+
+    Returns
+    -------
+    bool
+    """
     try:
         return bool(sys.stderr.isatty())
     except (AttributeError, ValueError):  # replaced or closed stream

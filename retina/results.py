@@ -1,7 +1,7 @@
 """The results of a run: the :class:`Results` container and its HDF5 file.
 
 Schema of ``results.h5`` (format "retina-compass results", version 1)
---------------------------------------------------------------------
+---------------------------------------------------------------------
 One group per stage, written by :func:`save_results`.  Inside a group, every array is a dataset,
 every number, flag or string is an attribute, and a nested dict is a sub-group.  Units are in the
 names (``_deg`` degrees, ``_uT`` microtesla); ``N`` receptors, ``H`` headings, ``F`` scan poses,
@@ -25,7 +25,15 @@ offsets, ``T`` trials.  A group is present when its stage ran::
                            with a compare nuisance: attr compare_nuisance and
                            info_per_photon_{single,scan}_compare (G,), bound_{single,scan}_compare_deg (M,)
     /disorder              kappas (K,), depth (K,), info_per_photon (K,), light_photons (V,),
-                           bound_deg (V, K); attr scenario_kappa (cone ordering only)
+                           bound_deg (V, K); attrs model (the model swept), scenario_kappa (when the
+                           scenario's model has a kappa)
+    /order                 light_photons (V,), mean_orientation_deg (3,); attrs class_order,
+                           curve_order (comma-separated keys)
+    /order/classes/<key>   bound_deg (V,); attrs label, depth, info_per_photon (keys: aligned,
+                           restrained_two, restrained_one, isotropic)
+    /order/curves/<key>    kappas (S,), depth (S,), info_per_photon (S,), bound_deg (V, S); attr label
+                           (keys: cone_tied, cone_free, plane_free, twist_axis, twist_plane,
+                           cone_no_twist; S = ordering.study_kappas)
     /trials                scan_offsets_deg (P,); attr goal_deg
     /trials/levels/<name>  start_deg, decoded_deg, error_deg, chosen_deg (T,), ambiguous (T,) int8;
                            attrs photons, mean_deg, r, rayleigh_p, v_u, v_p, r_axial,
@@ -90,7 +98,10 @@ def _jsonable(d):
 def _ordering_text(sc) -> str:
     o = sc["ordering"]
     s = f"{o['model']}"
-    if o["model"] == "cone":
+    if o["model"] in ("cone", "plane"):
+        tw = o["twist"] if o["twist"] != "restrained" else f"restrained, twist kappa = {o['twist_kappa']:g}"
+        s += f" (kappa = {o['kappa']:g}, twist {tw})"
+    elif o["model"] == "cone_no_twist":
         s += f" (kappa = {o['kappa']:g})"
     s += f", {o['mode']}"
     if o["mode"] == "molecules":
@@ -181,6 +192,15 @@ def save_results(results: Results, path: str | Path, *, force: bool = False) -> 
 
 def load_results(path: str | Path) -> Results:
     """Read a results file written by :func:`save_results`.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Results
+        ``scenario`` is None (the scenario text is in ``provenance["scenario_toml"]``).
 
     Raises
     ------

@@ -18,19 +18,38 @@ Schema (section, key, type, default; units in the key name)
     ``field_uT`` (float > 0, optional): field strength for the spin computation; defaults to the
     scenario's field intensity,
     ``method`` ("auto" | "hilbert" | "liouville" | "separable", "auto").
-``[ordering]``
-    ``model`` ("aligned" | "axial" | "cone" | "isotropic", "cone"): how the molecules sit in a
-    receptor (fixed in the receptor frame; free rotation about the receptor axis; a von Mises-Fisher
-    cone of molecular z axes about the receptor axis; no order),
-    ``kappa`` (float > 0, 20.0): concentration of the cone (used by "cone"),
+``[ordering]`` (the models are those of :mod:`retina.eye.ordering`, built by
+:func:`retina.eye.ordering.from_settings`)
+    ``model`` ("aligned" | "axial" | "cone" | "cone_no_twist" | "plane" | "isotropic", "cone"):
+    how the molecules sit in a receptor: fixed in the receptor frame; free rotation about the
+    receptor axis; a von Mises-Fisher cone of the molecular direction that the orientation puts on
+    the receptor axis, with a twist about it (``Cone``); the same cone without twist
+    (``ConeNoTwist``, kept for comparison: not isotropic at kappa 0); the molecular direction that
+    the orientation puts on the receptor ``x`` axis restrained to the plane normal to the receptor
+    axis (a membrane), softened by a Watson girdle (``Planar``); no order.  Scenario files written
+    before the twist was modelled keep ``model = "cone"`` and now get the cone with the twist tied
+    to the tilt, which reaches isotropy as kappa goes to 0; ``"cone_no_twist"`` gives the old law.
+    ``kappa`` (float >= 0, ``inf`` allowed, 20.0): concentration of the cone or of the girdle
+    ("cone", "cone_no_twist", "plane"; 0 is uniform, ``inf`` no tilt / exactly in the plane),
+    ``twist`` ("tied" | "free" | "fixed" | "restrained", "tied"): the twist about the restrained
+    direction in "cone" and "plane": von Mises with the concentration ``kappa``, uniform, none, or
+    von Mises with ``twist_kappa``,
+    ``twist_kappa`` (float >= 0, ``inf`` allowed, 1.0): the twist concentration for "restrained",
     ``orientation_deg`` (3 floats, [0, 0, 0]): z-y-z Euler angles of the mean molecular frame in
-    the receptor frame; with "cone" the molecule is first placed in this orientation and the placed
-    molecule is then tipped in the von Mises-Fisher cone about the receptor axis (a wobble of the
-    receptor's membrane axis, ``Q = Q_cone Q_orientation``),
+    the receptor frame (the reference frame of "plane"),
+    ``axis`` (3 floats, optional; "cone", "cone_no_twist" and "plane" only, not with a non-zero
+    ``orientation_deg``): the restrained molecular direction (molecular frame, any non-zero
+    vector); the mean orientation is then the smallest rotation taking it to the receptor axis
+    (cone) or to the receptor x axis (plane) (:meth:`retina.eye.ordering.Cone.restraining`,
+    :meth:`retina.eye.ordering.Planar.restraining`),
     ``mode`` ("ensemble" | "molecules", "ensemble"): annealed average or a finite sample,
     ``n_molecules`` (int >= 1, 1000): molecules per receptor in "molecules" mode,
-    ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the cone concentrations of the
-    disorder-tolerance sweep.
+    ``disorder_kappas`` (list of floats > 0, [1, 3, 10, 30, 100]): the concentrations of the
+    disorder-tolerance sweep (stage "disorder"), applied to the scenario's model when it has a
+    kappa ("cone", "cone_no_twist", "plane") and otherwise to a "cone" with the scenario's twist,
+    ``study_kappas`` (list of floats >= 0, [0, 0.3, 1, 3, 10, 30, 100]): the concentrations of the
+    order study (stage "order", :mod:`retina.stages.order`): each curve varies one concentration
+    of one model over this list.
 ``[[eyes]]`` (one or two tables; the fields of :class:`retina.eye.geometry.Eye`)
     ``side`` ("left" | "right", required), ``azimuth_deg`` (optical axis azimuth from the beak,
     positive to the right, required), ``elevation_deg`` (optical axis elevation, positive up, 0),
@@ -102,7 +121,7 @@ class Key:
 
     ``kind`` is one of "str", "int", "float", "bool", "path", "date", "floats", "strs", "choice".
     ``check(value) -> str | None`` returns a description of what was expected when the value is
-    out of range.
+    out of range.  ``allow_inf`` lets a "float" be ``inf`` (a concentration with no disorder).
     """
 
     kind: str
@@ -111,6 +130,7 @@ class Key:
     check: Callable[[Any], str | None] | None = None
     length: int | None = None
     doc: str = ""
+    allow_inf: bool = False
 
 
 def _rng(lo=None, hi=None, *, lo_open=False):
@@ -160,13 +180,20 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "method": Key("choice", "auto", choices=("auto", "hilbert", "liouville", "separable")),
     },
     "ordering": {
-        "model": Key("choice", "cone", choices=("aligned", "axial", "cone", "isotropic")),
-        "kappa": Key("float", 20.0, check=_rng(0.0, 1e6, lo_open=True)),
+        "model": Key("choice", "cone", choices=("aligned", "axial", "cone", "cone_no_twist", "plane",
+                                                 "isotropic")),
+        "kappa": Key("float", 20.0, check=_rng(0.0), allow_inf=True),
+        "twist": Key("choice", "tied", choices=("tied", "free", "fixed", "restrained")),
+        "twist_kappa": Key("float", 1.0, check=_rng(0.0), allow_inf=True),
         "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3),
+        "axis": Key("floats", None, length=3,
+                    check=lambda v: "a non-zero direction" if not any(v) else None),
         "mode": Key("choice", "ensemble", choices=("ensemble", "molecules")),
         "n_molecules": Key("int", 1000, check=_rng(1, 10**7)),
         "disorder_kappas": Key("floats", [1.0, 3.0, 10.0, 30.0, 100.0],
                                check=_both(_nonempty, _rng(0.0, 1e6, lo_open=True))),
+        "study_kappas": Key("floats", [0.0, 0.3, 1.0, 3.0, 10.0, 30.0, 100.0],
+                            check=_both(_nonempty, _rng(0.0, 1e6))),
     },
     "eyes[]": {
         "side": Key("choice", choices=("left", "right")),
@@ -428,8 +455,8 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if isinstance(v, bool) or not isinstance(v, (int, float)):
             bad()
         val = float(v)
-        if val != val or val in (float("inf"), float("-inf")):
-            bad("a finite number")
+        if val != val or val == float("-inf") or (val == float("inf") and not spec.allow_inf):
+            bad("a finite number" if not spec.allow_inf else "a number or inf")
     elif kind == "bool":
         if not isinstance(v, bool):
             bad()
@@ -506,6 +533,15 @@ def _cross_checks(d: dict, src) -> None:
     if loc and f["date"] is not None and not (1900 <= f["date"].year <= 2030):
         raise InputError(f"expected a date within the IGRF range 1900-2030, got {f['date']}",
                          source=src, key="field.date")
+
+    o = d["ordering"]
+    if o["axis"] is not None:
+        if o["model"] not in ("cone", "cone_no_twist", "plane"):
+            raise InputError(f"ordering.axis is used by the models cone, cone_no_twist and plane, not "
+                             f"{o['model']!r}", source=src, key="ordering.axis")
+        if any(o["orientation_deg"]):
+            raise InputError("give ordering.orientation_deg or ordering.axis, not both", source=src,
+                             key="ordering.axis")
 
     light = d["light"]
     if len(light["names"]) != len(light["photons"]):

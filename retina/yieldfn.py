@@ -30,6 +30,7 @@ Conventions (owned here)
 from __future__ import annotations
 
 import datetime as _dt
+import logging
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -42,6 +43,8 @@ from scipy.spatial.transform import Rotation
 from retina import sphere
 from retina.errors import InputError
 from retina.io.hdf5 import BASIS, content_hash  # noqa: F401  (BASIS: public here too)
+
+_log = logging.getLogger(__name__)
 
 __all__ = ["YieldFunction", "Anisotropy", "content_hash", "package_versions", "canonical_axis"]
 
@@ -360,7 +363,8 @@ class YieldFunction:
         cache : bool
             Look the result up in, and store it into, the content-hash cache (:mod:`retina.cache`).
         cache_dir : str or Path, optional
-            Cache folder (default: ``$RETINA_CACHE`` or ``~/.cache/retina-compass``).
+            Cache folder (default: :func:`retina.cache.default_cache_dir`: ``$RETINA_CACHE``, else
+            ``$XDG_CACHE_HOME/retina-compass``, else ``~/.cache/retina-compass``).
         check_points : int
             Number of independent check directions (>= 1).
         max_bytes : int, optional
@@ -391,6 +395,8 @@ class YieldFunction:
             if rec is not None:
                 hit = cls.from_record(rec)
                 hit.from_cache = True
+                _log.info("yield function of %r at %g uT, degree %d: taken from the cache %s", system.name,
+                          field_uT, degree, store.path_for(key))
                 return hit
 
         grid = sphere.grid_for_degree(degree)
@@ -398,6 +404,8 @@ class YieldFunction:
         check = sphere.fibonacci(int(check_points), hemisphere=True)
         n_anti = min(ANTIPODAL_POINTS, len(check))
         dirs = np.concatenate([grid.points[half], check.points, -check.points[:n_anti]], axis=0)
+        _log.info("yield function of %r at %g uT, degree %d: method %s, %d field directions", system.name,
+                  field_uT, degree, resolved, dirs.shape[0])
         t0 = time.perf_counter()
         # an approximate method reports its approximation and error bars through ``info``
         info: dict = {}
@@ -420,6 +428,8 @@ class YieldFunction:
         err = sphere.evaluate(coeffs, check.points) - values[h:h + n_check]
         err_max = float(np.max(np.abs(err)))
         err_rms = float(np.sqrt(np.mean(err**2)))
+        _log.info("yield function of %r: computed in %.1f s, truncation error %.2e (max), %.2e (rms)",
+                  system.name, seconds, err_max, err_rms)
 
         from retina.spin.io import dump_system
 

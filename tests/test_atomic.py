@@ -43,3 +43,24 @@ def test_permissions_follow_the_umask(tmp_path):
     finally:
         os.umask(old)
     assert stat.S_IMODE(path.stat().st_mode) == 0o644
+
+
+def test_never_touches_the_umask_and_honours_it(tmp_path, monkeypatch):
+    # Common practice, no source: os.umask is process-wide and setting it is not thread-safe (the
+    # viewer writes from a worker thread), so the writer must let the kernel apply it (os.open with
+    # 0666) instead of reading it by setting it.
+    old = os.umask(0o027)
+    try:
+        def forbidden(mask):
+            raise AssertionError("os.umask called during a write")
+
+        monkeypatch.setattr(os, "umask", forbidden)
+        path = atomic_write_text(tmp_path / "q.txt", "x")
+        with atomic_path(tmp_path / "anim.gif", suffix=".gif") as tmp:
+            assert tmp.name.endswith(".gif") and tmp.parent == tmp_path
+            tmp.write_bytes(b"GIF89a")
+        monkeypatch.undo()
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(path.stat().st_mode) == 0o640
+    assert stat.S_IMODE((tmp_path / "anim.gif").stat().st_mode) == 0o640

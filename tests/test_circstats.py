@@ -7,7 +7,7 @@ from scipy import stats
 from retina.errors import InputError
 from retina.readout import circstats as cs
 
-# Source: Zar, Biostatistical Analysis, 5th ed. (2010), Example 27.1 (transcribed, see references.md)
+# Source: Zar, Biostatistical Analysis, 5th ed. (2010), Example 27.1 (transcribed)
 ZAR_27_1 = [45, 55, 81, 96, 110, 117, 132, 154]
 # Source: Zar (2010), Example 27.2 (transcribed)
 ZAR_27_2 = [66, 75, 86, 88, 88, 93, 97, 101, 118, 130]
@@ -97,3 +97,50 @@ def test_bad_input():
         cs.rayleigh_test([1.0, np.nan])
     with pytest.raises(InputError, match="kappa"):
         cs.von_mises_deg(0.0, -1.0, 3, np.random.default_rng(0))
+
+
+# Source: Zar (2010), Appendix Table B.35, critical values of u for the V test (transcribed), rows
+# n = 8 and n = 9 at alpha = 0.25, 0.10, 0.05, 0.025, 0.01, 0.005, 0.0025, 0.001.
+ZAR_B35_ALPHA = [0.25, 0.10, 0.05, 0.025, 0.01, 0.005, 0.0025, 0.001]
+ZAR_B35_U = {8: [0.688, 1.296, 1.649, 1.947, 2.280, 2.498, 2.691, 2.916],
+             9: [0.687, 1.294, 1.649, 1.948, 2.286, 2.507, 2.705, 2.937]}
+
+
+@pytest.mark.parametrize("n", [8, 9])
+def test_v_test_p_matches_zar_table_b35_critical_values(n):
+    # At the tabled critical value u_alpha the exact p must be alpha; the table is rounded to three
+    # decimals, so compare the critical value found from p to within 0.002 in u.
+    from scipy.optimize import brentq
+
+    for alpha, u_tab in zip(ZAR_B35_ALPHA, ZAR_B35_U[n]):
+        u_exact = brentq(lambda u: cs.v_test_p(u * np.sqrt(n / 2.0), n) - alpha, 0.0, np.sqrt(2.0 * n) - 1e-9)
+        assert u_exact == pytest.approx(u_tab, abs=0.002), (n, alpha)
+
+
+@pytest.mark.parametrize("n, u", [(3, 1.5), (6, 2.33), (6, 1.0), (12, 2.0)])
+def test_v_test_p_matches_a_seeded_monte_carlo_of_the_null(n, u):
+    # Reference: Monte Carlo of the null (uniform directions), 400,000 samples of n angles, seed 11;
+    # tolerance 4 binomial standard errors.  The case n = 6, u = 2.33: about 0.0080, where
+    # the normal tail says 0.0099.
+    rng = np.random.default_rng(11)
+    m = 400_000
+    V = np.cos(rng.uniform(0.0, 2.0 * np.pi, (m, n))).sum(axis=1)
+    p_mc = np.mean(V * np.sqrt(2.0 / n) >= u)
+    p = cs.v_test_p(u * np.sqrt(n / 2.0), n)
+    assert abs(p - p_mc) < 4 * np.sqrt(p_mc * (1 - p_mc) / m) + 1e-6
+    if (n, u) == (6, 2.33):
+        assert p == pytest.approx(0.00806, abs=5e-5) and abs(stats.norm.sf(u) - 0.0099) < 1e-4
+
+
+def test_v_test_p_small_n_closed_forms_and_large_n_limit():
+    # Derived: n = 1, V = cos(theta) with theta uniform: P(V >= v) = arccos(v) / pi.
+    for v in (-0.9, 0.0, 0.5, 0.99):
+        assert cs.v_test_p(v, 1) == pytest.approx(np.arccos(v) / np.pi, abs=1e-14)
+    # Derived: n = 2, P(V >= 0) = 1/2 by symmetry; V = 2 only when both angles are 0 (probability 0).
+    assert cs.v_test_p(0.0, 2) == pytest.approx(0.5, abs=1e-10)
+    assert cs.v_test_p(0.0, 7) == pytest.approx(0.5, abs=1e-10)
+    assert cs.v_test_p(2.0, 2) == 0.0 and cs.v_test_p(-3.0, 3) == 1.0
+    # Derived: central limit, u -> standard normal for large n (third-order terms vanish by
+    # symmetry, so the error is O(1/n)).
+    n = 400
+    assert cs.v_test_p(1.645 * np.sqrt(n / 2.0), n) == pytest.approx(stats.norm.sf(1.645), abs=2e-3)

@@ -258,3 +258,29 @@ def test_output_that_is_a_folder_is_bad_input(tiny, tmp_path, monkeypatch, capsy
     FakeEngine().install(monkeypatch)
     assert main(["yields", str(tiny), "-o", str(tmp_path), "--force"]) == 2
     assert "is a folder" in capsys.readouterr().err
+
+
+def test_verbose_shows_the_steps_and_quiet_hides_warnings(tiny, tmp_path, monkeypatch, capsys):
+    # Common practice, no source: diagnostics go to stderr through logging, at the level the
+    # top-level -v / --quiet choose; the summary on stdout is unchanged.
+    FakeEngine().install(monkeypatch)
+    assert main(["-v", "yields", str(tiny), "-o", str(tmp_path / "v.h5"), "--degree", "6", "--field-uT", "47",
+                 "--no-cache"]) == 0
+    cap = capsys.readouterr()
+    assert "retina: INFO: yield function of 'tiny pair' at 47 uT, degree 6: method hilbert" in cap.err
+    assert "computed in" in cap.err and "truncation error" in cap.err
+    assert main(["yields", str(tiny), "-o", str(tmp_path / "d.h5"), "--degree", "6", "--field-uT", "47",
+                 "--no-cache"]) == 0
+    assert "INFO" not in capsys.readouterr().err   # default: warnings only
+    # a Python warning (the cache folder cannot be written) is shown by default, hidden by --quiet
+    blocked = tmp_path / "blocked"
+    blocked.write_text("a file where the cache folder should be")
+    args = ["yields", str(tiny), "--degree", "6", "--field-uT", "47", "--cache-dir", str(blocked)]
+    assert main(args + ["-o", str(tmp_path / "w1.h5")]) == 0
+    assert "retina: WARNING:" in capsys.readouterr().err
+    assert main(["--quiet"] + args + ["-o", str(tmp_path / "w2.h5")]) == 0
+    err = capsys.readouterr().err
+    assert "WARNING" not in err and err == ""
+    import logging
+
+    assert logging.getLogger("retina").handlers[-1].__class__ is logging.NullHandler  # nothing left behind

@@ -9,6 +9,7 @@ import pytest
 import retina.commands
 from retina import sphere
 from retina.cli import main
+from retina.results import load_results
 from retina.yieldfn import YieldFunction
 
 MINE = ("demo", "patterns", "scan", "precision", "trials", "report")
@@ -167,3 +168,22 @@ def test_interrupt_exits_130_and_leaves_no_output(scenario, tmp_path, monkeypatc
     assert main(["patterns", str(scenario), "-o", str(out), "-q"]) == 130
     assert "interrupted" in capsys.readouterr().err
     assert not out.exists() and list(tmp_path.iterdir()) == []  # no partial folder, no staging left
+
+
+def test_quick_keeps_the_headings_and_dpi_given_on_the_command_line(scenario, tmp_path, capsys):
+    # --quick reduces the scenario to two headings and 100 dpi; options typed by the user win
+    # (issue 8, part 3; common practice, no source: explicit options override presets).
+    out = tmp_path / "q"
+    assert main(["patterns", str(scenario), "-o", str(out), "-q", "--quick", "--headings", "0,30,60,90",
+                 "--dpi", "70"]) == 0
+    res = load_results(out / "results.h5")
+    assert list(res.groups["patterns"]["headings_deg"]) == [0.0, 30.0, 60.0, 90.0]
+    assert res.provenance["quick"]
+    from PIL import Image
+
+    dpi = Image.open(out / "figures" / "modulation_fields.png").info["dpi"][0]
+    assert round(dpi) == 70
+    # without the options, --quick's preset applies (100 dpi instead of the scenario's 60)
+    out2 = tmp_path / "q2"
+    assert main(["patterns", str(scenario), "-o", str(out2), "-q", "--quick"]) == 0
+    assert round(Image.open(out2 / "figures" / "modulation_fields.png").info["dpi"][0]) == 100

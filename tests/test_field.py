@@ -35,7 +35,8 @@ def test_field_round_trip_and_reversal():
 
 
 def test_ppigrf_ships_igrf14_and_its_validity():
-    # Source: IAGA IGRF-14 (2024), valid 1900-2030 (see ../shared/references.md).  The package's
+    # Source: IAGA Working Group V-MOD, International Geomagnetic Reference Field, 14th generation
+    # (2024), valid 1900-2030.  The package's
     # default coefficient file must be the 14th generation with that validity.
     import ppigrf
 
@@ -46,8 +47,9 @@ def test_ppigrf_ships_igrf14_and_its_validity():
     assert (float(params[-2]), float(params[-1])) == IGRF_VALID == (1900.0, 2030.0)
 
 
-# Source: World Magnetic Model 2025 official test values, 2025.0, height 0 km (transcribed in
-# ../shared/references.md).  IGRF and WMM differ by tens of nT: tolerance 100 nT and 0.2 degrees.
+# Source: The US/UK World Magnetic Model for 2025-2030, technical report (NOAA NCEI and BGS), official
+# test values, 2025.0, height 0 km (transcribed).  IGRF and WMM differ by tens of nT: tolerance 100 nT
+# and 0.2 degrees.
 WMM2025 = [
     (80.0, 0.0, 6521.6, 145.9, 54791.5, 83.21, 1.28),
     (0.0, 120.0, 39677.8, -109.6, -10580.2, -14.93, -0.16),

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import os
+import stat
+
 import numpy as np
 import pytest
 from PIL import Image
@@ -134,10 +137,17 @@ def test_scan_filmstrip_and_animation(tmp_path, retina_points):
     yaw = np.linspace(-60, 60, 13)
     B = b_head_for(yaw)
     mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
-    F.scan_filmstrip(vis, eye, mod, yaw, B, n_frames=6, path=tmp_path / "s", dpi=80)
+    old = os.umask(0o022)
+    try:
+        F.scan_filmstrip(vis, eye, mod, yaw, B, n_frames=6, path=tmp_path / "s", dpi=80)
+        gif = F.scan_animation(vis, eye, mod, yaw, B, tmp_path / "scan", fps=5, dpi=50)
+    finally:
+        os.umask(old)
     check_files(tmp_path / "s", "Head scan film strip")
-    gif = F.scan_animation(vis, eye, mod, yaw, B, tmp_path / "scan", fps=5, dpi=50)
     assert gif.name == "scan.gif"
+    # the GIF goes through the same atomic writer as the other figures: mode 0666 & ~umask
+    # (common practice, no source)
+    assert stat.S_IMODE(gif.stat().st_mode) == stat.S_IMODE((tmp_path / "s.png").stat().st_mode) == 0o644
     im = Image.open(gif)
     assert im.n_frames == yaw.size
     im.seek(yaw.size // 2)

@@ -324,7 +324,32 @@ def test_computer_rebuilds_the_model_only_when_kappa_changes(file_scenario):
     st.intensity_uT = 30.0
     r = c.compute(st.request())
     assert c.yield_builds == 1 and "does not change it" in r.yield_note
-    assert r.yield_field_uT == pytest.approx(49.0)
+    assert r.yield_field_uT == pytest.approx(file_scenario["field"]["intensity_uT"])  # the file's own field
+
+
+def test_ordering_choice_reaches_isotropy(file_scenario):
+    # Derived: the Haar (isotropic) law leaves a constant response, so the pattern is flat, the
+    # depth is exactly 0 and the bound infinite (retina.eye.ordering); the scenario's cone (twist
+    # tied) reaches it at kappa = 0, and so does the plane with a free twist; the cone without
+    # twist does not.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(file_scenario)
+    c = PatternComputer()
+    assert c.compute(st.request()).depth > 1e-4
+    for ordering, kappa in (("scenario", 0.0), ("cone", 0.0), ("isotropic", None), ("isotropic", 5.0)):
+        st.update(ordering=ordering, kappa=kappa)
+        r = c.compute(st.request())
+        assert r.depth == 0.0 and math.isinf(r.bound_deg), (ordering, kappa)
+    st.update(ordering="cone_no_twist", kappa=0.0)
+    assert c.compute(st.request()).depth > 1e-5
+    st.update(ordering="plane", kappa=3.0)
+    assert c.compute(st.request()).depth > 1e-5
+    with pytest.raises(InputError, match="ordering: expected one of"):
+        st.ordering = "liquid crystal"
+    with pytest.raises(InputError, match="kappa: expected a value in"):
+        st.kappa = -1.0
 
 
 def test_readout_numbers_match_an_independent_computation(file_scenario):
@@ -531,6 +556,15 @@ def test_state_changes_update_the_widgets_without_feedback(window):
     assert st.kappa == pytest.approx(4.0) and k.reset.isEnabled()
     k.reset.click()
     assert st.kappa is None and not k.reset.isEnabled()
+    # the far left of the kappa slider is exactly 0 (no order), and the ordering box is bound
+    k.slider.setValue(0)
+    assert st.kappa == 0.0 and "isotropic" in k.label.text()
+    window.controls.controls["ordering"].setCurrentText("plane")
+    assert st.ordering == "plane"
+    st.ordering = "isotropic"
+    assert window.controls.controls["ordering"].currentText() == "isotropic"
+    k.reset.click()
+    st.ordering = "scenario"
     window.controls.controls["display"].setCurrentText("yields")
     assert st.display == "yields"
     window.controls.controls["eye"].setCurrentText("left")

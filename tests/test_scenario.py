@@ -66,6 +66,34 @@ def test_defaults_are_filled_and_relative_paths_resolve_from_the_file(folder):
     assert len(sc["eyes"]) == 2 and sc["eyes"][0]["azimuth_deg"] == -60.0
 
 
+def test_ordering_keys_old_cone_inf_and_the_model_built(folder):
+    # An old file's model = "cone" still loads and now means the cone with the twist tied to the
+    # tilt (isotropic at kappa = 0); kappa = inf (TOML) survives the round trip.
+    from retina.eye import ordering as om
+
+    sc = load_scenario(write(folder, MINIMAL + "\n[ordering]\nmodel = 'cone'\nkappa = 5.0\n"))
+    o = sc["ordering"]
+    assert (o["model"], o["twist"], o["kappa"]) == ("cone", "tied", 5.0)
+    m = om.from_settings(o["model"], kappa=o["kappa"], twist=o["twist"],
+                         twist_kappa=o["twist_kappa"], orientation_deg=o["orientation_deg"])
+    assert isinstance(m, om.Cone) and m.twist_kappa == 5.0
+    sc2 = load_scenario(write(folder, MINIMAL + "\n[ordering]\nmodel = 'plane'\nkappa = inf\n"
+                                      "twist = 'restrained'\ntwist_kappa = 2.0\n", "p.toml"))
+    assert sc2["ordering"]["kappa"] == float("inf")
+    assert tomllib.loads(dump_scenario(sc2))["ordering"]["kappa"] == float("inf")
+    o = sc2["ordering"]
+    m = om.from_settings(o["model"], kappa=o["kappa"], twist=o["twist"], twist_kappa=o["twist_kappa"])
+    assert isinstance(m, om.Planar) and m.twist_kappa == 2.0 and m.p2 == -0.5
+    # ordering.axis: any molecular direction, restrained by the cone (on the receptor axis) or
+    # held in the plane (along the receptor x axis).
+    from retina.build import build_ordering
+
+    sc3 = load_scenario(write(folder, MINIMAL + "\n[ordering]\naxis = [1.0, 1.0, 0.0]\n", "a.toml"))
+    u = [2 ** -0.5, 2 ** -0.5, 0.0]
+    assert build_ordering(sc3).mean.apply(u) == pytest.approx([0, 0, 1.0], abs=1e-14)
+    assert build_ordering(sc3, model="plane").mean.apply(u) == pytest.approx([1.0, 0, 0], abs=1e-14)
+
+
 def test_location_and_native_toml_date(folder):
     text = MINIMAL.split("[field]")[0] + "[field]\nlatitude_deg = 47.5\nlongitude_deg = 8.2\ndate = 2026-04-01\n"
     sc = load_scenario(write(folder, text))
@@ -87,6 +115,15 @@ def test_location_and_native_toml_date(folder):
     (MINIMAL + "\n[light]\nphotons = [10.0, 30.0]\nnames = ['a']\n", "light.names", "as many names"),
     (MINIMAL + "\n[ordering]\nmodel = 'conical'\n", "ordering.model", "did you mean 'cone'"),
     (MINIMAL + "\n[output]\nformats = ['png', 'jpg']\n", "output.formats", "expected entries among"),
+    (MINIMAL + "\n[ordering]\ntwist = 'loose'\n", "ordering.twist", '"tied", "free", "fixed", "restrained"'),
+    (MINIMAL + "\n[ordering]\nkappa = -inf\n", "ordering.kappa", "a number or inf"),
+    (MINIMAL + "\n[ordering]\nkappa = -0.5\n", "ordering.kappa", ">= 0"),
+    (MINIMAL + "\n[ordering]\nstudy_kappas = [0.0, -1.0]\n", "ordering.study_kappas", ">= 0"),
+    (MINIMAL + "\n[pose]\npitch_deg = inf\n", "pose.pitch_deg", "a finite number"),
+    (MINIMAL + "\n[ordering]\naxis = [0.0, 0.0, 0.0]\n", "ordering.axis", "a non-zero direction"),
+    (MINIMAL + "\n[ordering]\nmodel = 'axial'\naxis = [1.0, 0.0, 0.0]\n", "ordering.axis", "not 'axial'"),
+    (MINIMAL + "\n[ordering]\naxis = [1.0, 0.0, 0.0]\norientation_deg = [0.0, 10.0, 0.0]\n", "ordering.axis",
+     "not both"),
     (MINIMAL.replace("pair.toml", "nowhere.toml"), "yield.system", "file not found"),
     (MINIMAL.replace('system = "pair.toml"', 'system = "pair.toml"\nfile = "pair.toml"'), "yield", "exactly one"),
     (MINIMAL.replace("declination_deg = -2.0", ""), "field.declination_deg", "missing declination_deg"),

@@ -165,8 +165,9 @@ def test_spin_matrices_reject_bad_spin():
 
 
 def test_gamma_e_matches_reference_value():
-    # Source: /work/shared/references.md: free-electron gyromagnetic ratio 1.7609e11 rad s^-1 T^-1.
-    assert ops.GAMMA_E == pytest.approx(1.7609e11, rel=1e-4)
+    # Reference: CODATA through scipy.constants, "electron gyromag. ratio" (1.7609e11 rad s^-1 T^-1);
+    # the package builds it from the g factor and the Bohr magneton, so agreement is to rounding.
+    assert ops.GAMMA_E == pytest.approx(sc.physical_constants["electron gyromag. ratio"][0], rel=1e-9)
 
 
 def test_hamiltonian_against_qutip_rebuild():

@@ -165,12 +165,12 @@ def test_weak_field_effect_grows_as_amplitude_squared():
 
 
 def test_perpendicular_resonance_at_free_electron_larmor_frequency():
-    # Source: references.md, facts of the trade (common practice, no single source): an RF field
+    # Common practice, no source (a fact of the trade): an RF field
     # perpendicular to the static field near the free-electron Larmor frequency disturbs a pair with
     # a bare radical; a parallel one causes no transitions of a radical without hyperfine couplings.
     # Larmor frequency from scipy.constants: gamma_e B0 / (2 pi) = 1.401 MHz at 50 uT (g = g_e).
     larmor = GAMMA_E * 50e-6 / (2 * np.pi) / 1e6
-    assert larmor == pytest.approx(1.40, abs=0.005)  # Source: references.md, 1.40 MHz at 50 uT
+    assert larmor == pytest.approx(1.40, abs=0.005)  # Derived: CODATA gamma_e / 2 pi = 28.025 MHz/mT
     sys_, b = one_proton_pair(), np.array([0.0, 0.0, 1.0])
     freqs = np.linspace(0.8, 1.8, 21)  # 0.05 MHz steps
     perp = rf.rf_spectrum(sys_, 50.0, b, freqs, 50.0, rf_direction="perpendicular")

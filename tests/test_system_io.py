@@ -110,7 +110,8 @@ def test_axes_rows_give_the_same_tensor_as_the_equivalent_euler_angles():
 
 def test_point_dipole_magnitude_and_shape():
     # From memory: the electron-electron dipolar coupling constant is 52.04 MHz nm^3, i.e.
-    # 52.04 / 28.025 = 1.857 mT nm^3 (28.025 MHz/mT, /work/shared/references.md).
+    # 52.04 / 28.025 = 1.857 mT nm^3 (28.025 MHz/mT: CODATA electron gyromagnetic ratio / 2 pi,
+    # scipy.constants).
     d = point_dipole_mT(1.0, [0.0, 0.0, 1.0])
     np.testing.assert_allclose(np.diag(d), [1.857, 1.857, -2 * 1.857], rtol=2e-3)
     # Derived: (I - 3 n n^T) is traceless with eigenvalues (1, 1, -2) and eigenvector n for -2;

@@ -311,8 +311,8 @@ def test_hilbert_yields_are_even_so_one_hemisphere_suffices(system):
     from retina.spin import hilbert
 
     d = random_dirs(12)
-    # Source: /work/shared/references.md, facts of the trade -- a radical-pair yield is unchanged
-    # when the field is reversed (Phi(b) = Phi(-b)), which from_system relies on.
+    # Common practice, no source (a fact of the trade): a radical-pair yield is unchanged when the
+    # field is reversed (Phi(b) = Phi(-b)), which from_system relies on.
     np.testing.assert_allclose(hilbert.yields(system, 50.0, -d), hilbert.yields(system, 50.0, d), atol=1e-12)
 
 
@@ -378,3 +378,20 @@ def test_engine_methods_give_the_same_yield_function(system):
     for m in ("hilbert", "liouville"):
         np.testing.assert_allclose(fits[m].coeffs, fits["separable"].coeffs, atol=1e-10)
         assert fits[m].provenance["method"] == m
+
+
+def test_cache_folder_follows_retina_cache_then_xdg_cache_home(monkeypatch, tmp_path):
+    # Source: XDG Base Directory Specification 0.8 ($XDG_CACHE_HOME, default $HOME/.cache; a
+    # relative path in it is invalid and ignored).  RETINA_CACHE overrides both.
+    from retina.cache import default_cache_dir
+
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path / "mine"))
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert default_cache_dir() == tmp_path / "mine"
+    monkeypatch.delenv("RETINA_CACHE")
+    assert default_cache_dir() == tmp_path / "xdg" / "retina-compass"
+    monkeypatch.setenv("XDG_CACHE_HOME", "relative/cache")
+    monkeypatch.setenv("HOME", str(tmp_path / "home"))
+    assert default_cache_dir() == tmp_path / "home" / ".cache" / "retina-compass"
+    monkeypatch.delenv("XDG_CACHE_HOME")
+    assert default_cache_dir() == tmp_path / "home" / ".cache" / "retina-compass"

@@ -13,7 +13,16 @@ __all__ = ["add_common_arguments", "apply_overrides", "run_command"]
 
 
 def add_common_arguments(p, *, output_required: bool = False, default_output: str | None = None) -> None:
-    """The options every scenario subcommand shares."""
+    """Add the options every scenario subcommand shares.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+    output_required : bool
+        ``-o`` must be given.
+    default_output : str, optional
+        Default of ``-o`` (else the scenario's ``[output] dir``).
+    """
     p.add_argument("-o", "--output", metavar="DIR", required=output_required, default=default_output,
                    help="output folder (results.h5, figures/, index.html, report.md); default: the "
                         "scenario's [output] dir" if default_output is None else
@@ -30,6 +39,23 @@ def add_common_arguments(p, *, output_required: bool = False, default_output: st
 
 
 def apply_overrides(sc: Scenario, args) -> Scenario:
+    """The scenario with the command-line options ``--seed``, ``--headings``, ``--formats``,
+    ``--dpi`` and ``--no-animation`` applied.
+
+    Parameters
+    ----------
+    sc : Scenario
+    args : argparse.Namespace
+
+    Returns
+    -------
+    Scenario
+
+    Raises
+    ------
+    InputError
+        Naming the option, for a bad value.
+    """
     changes: dict = {}
     if getattr(args, "seed", None) is not None:
         if args.seed < 0:
@@ -60,9 +86,30 @@ def apply_overrides(sc: Scenario, args) -> Scenario:
 
 
 def run_command(args, stages, *, scenario_path=None, title: str | None = None) -> int:
-    """Load the scenario, run ``stages``, write results, figures and report; print a summary."""
+    """Load the scenario, run ``stages``, write results, figures and report; print a summary.
+
+    ``--quick`` reduces the scenario first and the command-line overrides (``--headings``,
+    ``--seed``, ``--dpi``, ...) apply after it, so what the user typed is never cut back.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The parsed options of :func:`add_common_arguments` (and ``scenario``).
+    stages : sequence of str
+        Stage names (:data:`retina.stages.STAGES`).
+    scenario_path : str or Path, optional
+        Instead of ``args.scenario``.
+    title : str, optional
+        Report title.
+
+    Returns
+    -------
+    int
+        The exit status, 0.
+    """
     import time
 
+    from retina.build import quick_scenario
     from retina.outputs import write_outputs
     from retina.outputs.text import summary_text
     from retina.pipeline import run
@@ -70,7 +117,10 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     from retina.scenario import load_scenario
 
     t0 = time.perf_counter()
-    sc = apply_overrides(load_scenario(scenario_path or args.scenario), args)
+    sc = load_scenario(scenario_path or args.scenario)
+    if args.quick:
+        sc = quick_scenario(sc)
+    sc = apply_overrides(sc, args)
     out = args.output
     if out is None:
         out = sc["output"]["dir"]
@@ -82,7 +132,8 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
         raise InputError(f"folder {out.parent} does not exist", source=out)
     bars = ProgressBars(enabled=not args.quiet)
     try:
-        res = run(sc, quick=args.quick, stages=stages, progress_factory=bars)
+        res = run(sc, stages=stages, progress_factory=bars)
+        res.provenance["quick"] = bool(args.quick)
         o = res.scenario["output"]
         paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
                               animation=o["animation"], title=title, progress_factory=bars)

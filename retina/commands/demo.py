@@ -1,9 +1,10 @@
 """``retina demo``: the whole job on the bundled, invented scenario, into a report folder.
 
-The bundled scenario (``assets/demo_scenario.toml``) computes the yield function of an invented
-radical pair (``assets/demo_pair.toml``), builds two eyes with partially ordered receptors, and
-runs the patterns, a head scan, precision curves at bright and dim light, a disorder sweep and
-simulated orientation trials.  README.md, section "The demo", says how to read the output.
+The bundled scenario (``demo_scenario.toml`` in :mod:`retina.data`, source ``assets/``) computes
+the yield function of an invented radical pair (``demo_pair.toml``), builds two eyes with partially
+ordered receptors, and runs the patterns, a head scan, precision curves at bright and dim light, a
+disorder sweep, the order study (how much molecular order the compass needs) and simulated
+orientation trials.  README.md, section "The demo", says how to read the output.
 """
 
 from __future__ import annotations
@@ -12,7 +13,6 @@ import argparse
 from pathlib import Path
 
 from retina.commands import _common
-from retina.errors import InputError
 
 DEFAULT_OUTPUT = "retina-demo"
 
@@ -31,21 +31,17 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def bundled_scenario() -> Path:
-    """Path of the bundled demo scenario (``assets/demo_scenario.toml`` of the source tree)."""
-    import retina
+    """Path of the bundled demo scenario (:func:`retina.data.demo_scenario_path`)."""
+    from retina.data import demo_scenario_path
 
-    path = Path(retina.__file__).resolve().parent.parent / "assets" / "demo_scenario.toml"
-    if not path.is_file():
-        raise InputError("the bundled demo scenario is missing (expected in the source checkout's assets/ "
-                         "folder); pass --scenario FILE", source=path)
-    return path
+    return demo_scenario_path()
 
 
 def register(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
-                    "trials) on the bundled invented scenario and write results.h5, figures and an "
+                    "order study, trials) on the bundled invented scenario and write results.h5, figures and an "
                     "HTML + Markdown report.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
@@ -55,5 +51,5 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "trials"),
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials"),
                                scenario_path=path)

@@ -12,8 +12,9 @@ examples:
   retina precision my_scenario.toml -o out --seed 7 --force
 
 Photon levels come from [readout] photons, the disorder sweep from [ordering] disorder_kappas,
-the named light levels from [light].  Writes OUT/results.h5, OUT/figures/ (precision_curves,
-disorder_tolerance) and OUT/index.html + OUT/report.md.
+the order study's concentrations from [ordering] study_kappas, the named light levels from
+[light].  Writes OUT/results.h5, OUT/figures/ (precision_curves, disorder_tolerance,
+order_study) and OUT/index.html + OUT/report.md.
 
 exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 """
@@ -24,11 +25,12 @@ def register(subparsers) -> None:
         "precision", help="Cramer-Rao bounds and decoding errors against photons; the disorder sweep",
         description="Compute the Fisher information on heading from Poisson receptor counts, its "
                     "Cramer-Rao bound and the error of a maximum-likelihood decoder at every photon level, "
-                    "for one pose and for the head scan, and sweep the molecular disorder.",
+                    "for one pose and for the head scan, sweep the molecular disorder and compare restraint "
+                    "classes (how much order the compass needs).",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("scenario", metavar="SCENARIO.toml", help="the scenario file")
     _common.add_common_arguments(p)
 
 
 def run(args) -> int:
-    return _common.run_command(args, ("scan", "precision", "disorder"))
+    return _common.run_command(args, ("scan", "precision", "disorder", "order"))

@@ -23,9 +23,9 @@ examples:
   retina yields pair.toml -o pair47.h5 --field-uT 47 --degree 24
   retina yields pair.toml -o pair.h5 --method liouville --max-memory-gb 2 --force
 
-The result is cached by content (spin system, field, degree, method, version) in $RETINA_CACHE or
-~/.cache/retina-compass; --no-cache always recomputes.  Load it in Python with
-retina.yieldfn.YieldFunction.load("pair.h5").
+The result is cached by content (spin system, field, degree, method, version) in $RETINA_CACHE,
+else $XDG_CACHE_HOME/retina-compass, else ~/.cache/retina-compass; --no-cache always recomputes.
+Load it in Python with retina.yieldfn.YieldFunction.load("pair.h5").
 """
 
 
@@ -54,7 +54,8 @@ def register(subparsers) -> None:
     p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     p.add_argument("--no-cache", action="store_true", help="neither read nor write the result cache")
     p.add_argument("--cache-dir", metavar="DIR", default=None,
-                   help="cache folder (default: $RETINA_CACHE or ~/.cache/retina-compass)")
+                   help="cache folder (default: $RETINA_CACHE, else $XDG_CACHE_HOME/retina-compass, "
+                        "else ~/.cache/retina-compass)")
     p.add_argument("-q", "--quiet", action="store_true", help="no estimate, no progress bar, summary only")
 
 

@@ -26,6 +26,7 @@ from __future__ import annotations
 
 from retina.figures._base import DOUBLE_IN, SINGLE_IN, save_figure
 from retina.figures.curves import disorder_tolerance, precision_curves
+from retina.figures.order import order_study
 from retina.figures.sphere_maps import yield_sphere
 from retina.figures.trials import trial_histograms
 from retina.figures.visual_fields import modulation_fields, scan_animation, scan_filmstrip
@@ -40,5 +41,6 @@ __all__ = [
     "scan_animation",
     "precision_curves",
     "disorder_tolerance",
+    "order_study",
     "trial_histograms",
 ]

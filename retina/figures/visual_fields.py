@@ -10,9 +10,6 @@ its opposite ("-B", open circle; the compass is axial so both ends matter).
 
 from __future__ import annotations
 
-import contextlib
-import os
-import tempfile
 from pathlib import Path
 from typing import Sequence
 
@@ -255,7 +252,7 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
     """
     from matplotlib.animation import PillowWriter
 
-    from retina.io.atomic import check_writable
+    from retina.io.atomic import atomic_path, check_writable
 
     visual_dirs, eye_index, modulation, b_head = _check(visual_dirs, eye_index, modulation, b_head,
                                                         "modulation")
@@ -272,11 +269,11 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
         ax = fig.add_axes([0.03, 0.26, 0.94, 0.66], projection="mollweide")
         cax = fig.add_axes([0.2, 0.16, 0.6, 0.035])
         annotate(fig, "Head scan animation", f"Modulation pattern through a head scan. {params}")
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=".gif", dir=path.parent)
-        os.close(fd)
-        try:
+        # the same atomic writer as every other file (mode 0666 & ~umask); Pillow picks the format
+        # from the temporary name, so it ends in .gif
+        with atomic_path(path, force=force, suffix=".gif") as tmp:
             writer = PillowWriter(fps=fps)
-            with writer.saving(fig, tmp, dpi):
+            with writer.saving(fig, str(tmp), dpi):
                 for k in range(pct.shape[0]):
                     ax.cla()
                     art = fm.draw(ax, pct[k], b_head[k], vlim, label_marks=True)
@@ -285,9 +282,4 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
                         cb = fig.colorbar(art, cax=cax, orientation="horizontal")
                         cb.set_label("relative modulation, %")
                     writer.grab_frame()
-            os.replace(tmp, path)
-        except BaseException:
-            with contextlib.suppress(FileNotFoundError):
-                os.unlink(tmp)
-            raise
     return path

@@ -7,6 +7,7 @@
 
 from __future__ import annotations
 
+import logging
 import os
 from pathlib import Path
 
@@ -18,6 +19,8 @@ from retina.results import Results, save_results as _save
 
 __all__ = ["write_outputs"]
 
+_log = logging.getLogger(__name__)
+
 
 def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, formats=("png", "svg"),
                   dpi: int = 300, animation: bool = True, title: str | None = None,
@@ -27,7 +30,36 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
     ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
     replaced and other files are kept).  Everything is first written into a hidden staging folder
     beside ``outdir`` and moved in only when complete, so an interrupted or failed run leaves
-    ``outdir`` as it was.  Returns the paths written.
+    ``outdir`` as it was.
+
+    Parameters
+    ----------
+    res : Results
+    outdir : str or Path
+    force : bool
+        Write into an existing, non-empty folder.
+    formats : sequence of str
+        Figure formats among "png", "svg", "pdf".
+    dpi : int
+        PNG resolution.
+    animation : bool
+        Also write the head-scan GIF (when the results hold a scan).
+    title : str, optional
+        Report title (default from the scenario name).
+    progress_factory : callable(description, total), optional
+        Progress callbacks (one step per figure).
+    save_results : bool
+        Write ``results.h5`` (False when redrawing from the same file).
+
+    Returns
+    -------
+    dict
+        Paths: ``results``, ``html``, ``markdown``, ``figures``.
+
+    Raises
+    ------
+    InputError
+        When ``outdir`` is a file, is not empty without ``force``, or its parent is missing.
     """
     import shutil
     import tempfile
@@ -64,5 +96,6 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
                 os.replace(src, dst)
     finally:
         shutil.rmtree(stage, ignore_errors=True)
+    _log.info("wrote %s (results.h5, figures/, index.html, report.md)", outdir)
     return {"results": outdir / "results.h5", "html": outdir / "index.html", "markdown": outdir / "report.md",
             "figures": outdir / "figures"}

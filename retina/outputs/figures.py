@@ -16,7 +16,27 @@ __all__ = ["make_figures"]
 
 def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300,
                  animation: bool = True, progress=None) -> list:
-    """Draw every figure the results allow into ``folder`` and return their report entries."""
+    """Draw every figure the results allow into ``folder``.
+
+    Parameters
+    ----------
+    res : Results
+    folder : str or Path
+        Created when missing.
+    formats : sequence of str
+        Formats among "png", "svg", "pdf".
+    dpi : int
+        PNG resolution (the GIF uses at most 100).
+    animation : bool
+        Also write the head-scan GIF.
+    progress : callable(done, total), optional
+        After each figure.
+
+    Returns
+    -------
+    list of retina.outputs.report.FigureEntry
+        The report entries, in drawing order.
+    """
     from retina import figures as F
     from retina.outputs.report import FigureEntry
     from retina.yieldfn import YieldFunction
@@ -27,7 +47,7 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     params = params_text(res)
     entries = []
     formats = tuple(formats)
-    plan = [k for k in ("yield", "patterns", "scan", "gif", "precision", "disorder", "trials")]
+    plan = [k for k in ("yield", "patterns", "scan", "gif", "precision", "disorder", "order", "trials")]
     done = 0
 
     def add(fig, stem, anim=False, fmts=formats):
@@ -88,9 +108,24 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
                                    {f"{nm} ({ph:g})": d["bound_deg"][i] for i, (nm, ph) in
                                     enumerate(zip(names, d["light_photons"]))},
                                    marked_kappa=d.get("scenario_kappa"),
-                                   params=params + "; single pose, heading-averaged information",
+                                   params=params + "; single pose, heading-averaged information; model swept: "
+                                   + str(d.get("model", "cone")),
                                    path=folder / "disorder_tolerance", formats=formats, dpi=dpi)
         add(fig, "disorder_tolerance")
+    if "order" in g:
+        o = g["order"]
+        names, _ = light_levels(res)
+        i = len(o["light_photons"]) - 1
+        light_label = f"{names[i] if i < len(names) else 'light'} ({o['light_photons'][i]:g} photons)"
+        classes = {k: (o["classes"][k]["label"], o["classes"][k]["depth"],
+                       float(np.atleast_1d(o["classes"][k]["bound_deg"])[i]))
+                   for k in str(o["class_order"]).split(",")}
+        curves = {k: (o["curves"][k]["label"], o["curves"][k]["kappas"], o["curves"][k]["depth"],
+                      np.asarray(o["curves"][k]["bound_deg"])[i]) for k in str(o["curve_order"]).split(",")}
+        fig = F.order_study(classes, curves, light_label=light_label,
+                            params=params + f"; bounds at {light_label}, single pose, heading-averaged information",
+                            path=folder / "order_study", formats=formats, dpi=dpi)
+        add(fig, "order_study")
     if "trials" in g:
         t = g["trials"]
         data = {f"{nm} light ({lv['photons']:g} photons)": lv["chosen_deg"] for nm, lv in t["levels"].items()}

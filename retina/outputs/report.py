@@ -80,7 +80,28 @@ pre { background: #f6f6f6; padding: 0.6rem; overflow-x: auto; font-size: 0.8rem;
 
 def render_html(title: str, sections: Sequence[Section], figures: Sequence[FigureEntry], *,
                 intro: str = "", scenario_text: str = "", provenance: dict | None = None) -> str:
-    """The report page as HTML text (see the module docstring)."""
+    """The report page as HTML text (see the module docstring).
+
+    Parameters
+    ----------
+    title : str
+        Page title.
+    sections : sequence of Section
+        Tables of key numbers.
+    figures : sequence of FigureEntry
+        Figures shown, in order.
+    intro : str
+        A paragraph under the title.
+    scenario_text : str
+        The scenario file, shown verbatim.
+    provenance : dict, optional
+        Shown as a table of ``key | value``.
+
+    Returns
+    -------
+    str
+        A self-contained HTML document.
+    """
     e = html.escape
     out = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
            f"<title>{e(title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
@@ -118,7 +139,18 @@ def _md_cell(s: str) -> str:
 
 def render_markdown(title: str, sections: Sequence[Section], figures: Sequence[FigureEntry], *,
                     intro: str = "", scenario_text: str = "", provenance: dict | None = None) -> str:
-    """The report as Markdown text (same content as :func:`render_html`)."""
+    """The report as Markdown text (same content as :func:`render_html`).
+
+    Parameters
+    ----------
+    title, sections, figures, intro, scenario_text, provenance
+        As in :func:`render_html`.
+
+    Returns
+    -------
+    str
+        The Markdown document.
+    """
     out = [f"# {title}", ""]
     if intro:
         out += [intro, ""]

@@ -15,7 +15,17 @@ __all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_
 
 
 def params_text(res: Results) -> str:
-    """One line of the run's main parameters, for figure captions."""
+    """One line of the run's main parameters, for figure captions.
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    str
+        Field, ordering, sky, receptor count and seed.
+    """
     p = res.provenance
     f = res.groups["field"]
     n = res.groups["receptors"]["eye_index"].size
@@ -25,7 +35,18 @@ def params_text(res: Results) -> str:
 
 
 def light_levels(res: Results):
-    """``(names, photons)`` of the light levels of a run (trial levels when present)."""
+    """The light levels of a run (the trial levels when present, else the scenario's ``[light]``).
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    names : list of str
+    photons : list of float
+        Photons per receptor per look, one per name.
+    """
     import tomllib
 
     try:
@@ -57,7 +78,19 @@ _COMPARE_TEXT = {"receptor_gain": "a head-fixed texture (every receptor's sensit
 
 
 def bound_text(bound_deg: float) -> str:
-    """A bound in degrees, or "not informative" (:func:`retina.readout.fisher.bound_is_informative`)."""
+    """A bound as report text.
+
+    Parameters
+    ----------
+    bound_deg : float
+        Cramer-Rao bound in degrees.
+
+    Returns
+    -------
+    str
+        The number to three digits, "not informative" above
+        :data:`retina.readout.fisher.INFORMATIVE_BOUND_DEG`, or "no information" when infinite.
+    """
     from retina.readout.fisher import bound_is_informative
 
     if not np.isfinite(bound_deg):
@@ -72,7 +105,17 @@ def _typical_tilt_deg(kappa: float) -> float:
 
 
 def key_numbers(res: Results) -> list:
-    """The report's tables of key numbers (:class:`retina.outputs.report.Section`)."""
+    """The report's tables of key numbers.
+
+    Parameters
+    ----------
+    res : Results
+
+    Returns
+    -------
+    list of retina.outputs.report.Section
+        One table per group present (yield function, field and retina, and one per stage).
+    """
     from retina.outputs.report import Section
 
     g = res.groups
@@ -156,10 +199,13 @@ def key_numbers(res: Results) -> list:
                 rows.append((f"kappa = {k:g}: bound, {nm} ({ph:g} photons)", bound_text(d["bound_deg"][i][j]),
                              "deg"))
         secs.append(Section("Disorder tolerance", rows, note=(
-            "Molecular z axes in a von Mises-Fisher cone of concentration kappa about each receptor axis; "
-            "<P2> = <(3 cos^2 theta - 1) / 2> is the order parameter (1 perfect order, 0 none) and the typical "
-            "tilt is arccos<cos theta>. Modulation depth as above, averaged over the scenario's headings; bound "
-            f"from the heading-averaged information of a single pose. {_UNINFORMATIVE_NOTE}")))
+            f"Model swept: {d.get('model', 'cone')}. The restrained molecular direction lies in a von Mises-Fisher "
+            "cone of concentration kappa about each receptor axis; <P2> = <(3 cos^2 theta - 1) / 2> is its order "
+            "parameter (1 perfect order, 0 none) and the typical tilt is arccos<cos theta>. Modulation depth as "
+            "above, averaged over the scenario's headings; bound from the heading-averaged information of a single "
+            f"pose. {_UNINFORMATIVE_NOTE}")))
+    if "order" in g:
+        secs.append(_order_section(res))
     if "trials" in g:
         t = g["trials"]
         rows = []
@@ -179,8 +225,41 @@ def key_numbers(res: Results) -> list:
             "it reads, so it decodes geographic heading. A bird whose decode is ambiguous (two likelihood peaks, "
             "typically 180 deg apart) picks one at random, which is included in the rms decoding error. "
             "Rayleigh test p from Zar's approximation; V-test "
-            "against the goal, p from the normal tail (Zar 2010, ch. 27).")))
+            "against the goal, p exact for the sample size (the distribution tabulated in Zar 2010, "
+            "Appendix Table B.35; ch. 27).")))
     return secs
+
+
+def _order_section(res: Results):
+    """The order study's table: the restraint classes, then each curve's ends and middle."""
+    from retina.outputs.report import Section
+
+    o = res.groups["order"]
+    names, _ = light_levels(res)
+    light = list(o["light_photons"])
+    lv = [names[i] if i < len(names) else f"{ph:g} photons" for i, ph in enumerate(light)]
+    rows = []
+    for key in str(o["class_order"]).split(","):
+        c = o["classes"][key]
+        rows.append((f"{c['label']}: modulation depth", f"{100 * c['depth']:.3f}", "%"))
+        rows.append((f"{c['label']}: bound, " + ", ".join(f"{n} ({ph:g} photons)" for n, ph in zip(lv, light)),
+                     ", ".join(bound_text(b) for b in np.atleast_1d(c["bound_deg"])), "deg"))
+    for key in str(o["curve_order"]).split(","):
+        c = o["curves"][key]
+        ks = np.asarray(c["kappas"])
+        rows.append((f"{c['label']}: depth at kappa = " + ", ".join(f"{k:g}" for k in ks),
+                     ", ".join(f"{100 * d:.3g}" for d in c["depth"]), "%"))
+        rows.append((f"{c['label']}: bound, {lv[-1]} ({light[-1]:g} photons), at the same kappas",
+                     ", ".join(bound_text(b) for b in np.asarray(c["bound_deg"])[-1]), "deg"))
+    return Section("How much order the compass needs", rows, note=(
+        "Restraint classes count the rotation angles of a molecule that are fixed: aligned (all three); "
+        "restrained in two and free in one (free rotation about the receptor axis); restrained in one and free "
+        "in two (one molecular direction in the membrane plane normal to the receptor axis, free in azimuth and in "
+        "twist about itself); isotropic (none). Each curve varies one von Mises-Fisher (cone), Watson girdle "
+        "(plane) or von Mises (twist) concentration kappa between the classes named in its label (kappa = inf "
+        "to kappa = 0). The cone without twist is shown for comparison: it keeps a pattern at kappa = 0 for a "
+        "yield function that is not axially symmetric. Depth and bound as in the disorder table. "
+        + _UNINFORMATIVE_NOTE))
 
 
 def _informative() -> float:
@@ -190,7 +269,20 @@ def _informative() -> float:
 
 
 def summary_text(res: Results, paths: dict, seconds: float) -> str:
-    """A few lines in words for stdout."""
+    """A few lines in words for stdout.
+
+    Parameters
+    ----------
+    res : Results
+    paths : dict
+        As returned by :func:`retina.outputs.write_outputs`.
+    seconds : float
+        Wall time of the run.
+
+    Returns
+    -------
+    str
+    """
     g = res.groups
     y = g["yield_function"]
     lines = [f"scenario '{res.provenance.get('scenario_name')}' (seed {res.provenance.get('seed')}"

@@ -391,7 +391,7 @@ def error_summary(errors_deg, *, axial: bool = False) -> dict:
 
     Returns a dict with ``bias_deg`` (circular mean error, in (-180, 180]), ``rms_deg`` (root mean
     square of the wrapped errors), ``circ_std_deg`` (Zar's circular standard deviation),
-    ``median_abs_deg``, ``p95_abs_deg`` and ``reversal_fraction`` (|error| > 90 deg).  With
+    ``median_abs_deg``, ``p95_abs_deg`` and ``reversal_fraction`` (``|error| > 90`` deg).  With
     ``axial=True`` errors are first folded to (-90, 90] (psi and psi + 180 counted equal).
     """
     e = np.asarray(errors_deg, dtype=float).ravel()

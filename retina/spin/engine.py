@@ -27,6 +27,7 @@ estimated memory exceeds ``max_bytes`` (default: 60 % of ``MemAvailable`` in ``/
 from __future__ import annotations
 
 import functools
+import logging
 import time
 from dataclasses import dataclass
 
@@ -44,6 +45,7 @@ SEPARABLE_METHODS = ("separable", "fast-separable", "sampled")
 #: Exact methods (``"auto"`` chooses among these).
 EXACT_METHODS = ("separable", "fast-separable", "hilbert", "liouville")
 _GIB = 2**30
+_log = logging.getLogger(__name__)
 
 
 @dataclass(frozen=True)
@@ -340,6 +342,8 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         method = "hilbert"
     limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
+    _log.debug("%r: method %s, %d directions, estimated %.3g s and %s (limit %s)", system.name, method, n,
+               cost.seconds, _fmt_gib(cost.bytes), _fmt_gib(limit))
     if cost.bytes > limit:
         hint = _resource_hint(system, method)
         raise ResourceError(

@@ -1,7 +1,7 @@
 """Exact eigen method: equal recombination rates, no relaxation (the exponential model).
 
 With ``k_S = k_T = k`` the reaction only multiplies ``rho(t)`` by ``exp(-k t)``, so with the
-eigen-decomposition ``H = sum_m w_m |m><m|`` (rad s^-1) and a singlet start ``rho0 = P_S / M``
+eigen-decomposition ``H = sum_m w_m |m><m|`` (rad s^-1) and a singlet start ``rho0 = P_S / M``::
 
     Phi_SS = k int_0^inf exp(-k t) Tr(P_S U(t) P_S U(t)^+) dt / M
            = (1 / M) sum_{m,n} |<m|P_S|n>|^2 k^2 / (k^2 + (w_m - w_n)^2).

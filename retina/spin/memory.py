@@ -12,7 +12,13 @@ _GIB = 2**30
 
 
 def available_bytes() -> int:
-    """``MemAvailable`` from /proc/meminfo in bytes (8 GiB when it cannot be read)."""
+    """The memory available to a new allocation.
+
+    Returns
+    -------
+    int
+        ``MemAvailable`` from /proc/meminfo in bytes (8 GiB when it cannot be read).
+    """
     try:
         with open("/proc/meminfo") as fh:
             for line in fh:

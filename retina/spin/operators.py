@@ -1,8 +1,9 @@
 """Spin operators, pair-space embedding, Hamiltonians, projectors and Liouville superoperators.
 
-Conventions (owned here; the Hamiltonian, reaction and relaxation terms themselves are those of
-:mod:`retina.spin.system`)
-------------------------------------------------------------------------------------------------
+Conventions (owned here)
+------------------------
+The Hamiltonian, reaction and relaxation terms themselves are those of :mod:`retina.spin.system`.
+
 - Single-spin basis: eigenstates of ``S_z`` ordered ``m = s, s-1, ..., -s`` (so for an electron
   index 0 is "up", 1 is "down"); ``S_y`` is imaginary; hbar = 1 in the spin matrices.
 - Pair space: Kronecker product in the order electron A, the nuclei of radical A (in their listed

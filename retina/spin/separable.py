@@ -29,7 +29,7 @@ the cross terms ``Tr[S_Aa S_Ba] = Tr_A[S_Aa] Tr_B[S_Ba]`` vanishing (a, b run ov
 
 In the eigenbasis of each radical (``H_A |m> = lambda_m |m>``, ``H_B |p> = mu_p |p>``),
 ``C^A_ab(t) = sum_mn (S_Aa)_mn (S_Ab)_nm exp(i (lambda_n - lambda_m) t)`` and likewise for B.  The
-sum over a, b of the product then regroups exactly into squared moduli,
+sum over a, b of the product then regroups exactly into squared moduli::
 
     sum_ab C^A_ab C^B_ab = sum_{mnpq} |X_{mp,nq}|^2 exp(i Omega t),
     X_{mp,nq} = sum_a (S_Aa)_mn (S_Ba)_pq = <m p| S_A . S_B |n q>,
@@ -38,7 +38,7 @@ sum over a, b of the product then regroups exactly into squared moduli,
 because ``(S_a)_nm = conj((S_a)_mn)`` (Hermitian).  The Laplace transform against ``k exp(-k t)``
 gives ``k / (k - i Omega)``; the terms ``(mn, pq)`` and ``(nm, qp)`` have the same weight and
 opposite ``Omega``, so the imaginary parts cancel in pairs and only the real part
-``k^2 / (k^2 + Omega^2)`` survives:
+``k^2 / (k^2 + Omega^2)`` survives::
 
     Phi_S(singlet start) = 1/4 + (1 / (M_A M_B)) sum_{m,n in A} sum_{p,q in B}
                            |<m p|S_A . S_B|n q>|^2  k^2 / (k^2 + Omega^2).

@@ -6,7 +6,7 @@ Units as stored: hyperfine, exchange and dipolar couplings in millitesla (field-
 multiplied by the free-electron gyromagnetic ratio ``gamma_e = g_e mu_B / hbar`` to become angular
 frequencies); rates in s^-1; g values dimensionless. All tensors are in the molecular frame.
 
-Spin Hamiltonian, in angular-frequency units (``H / hbar``), for a static field ``B`` (tesla):
+Spin Hamiltonian, in angular-frequency units (``H / hbar``), for a static field ``B`` (tesla)::
 
     H = sum_r (mu_B / hbar) B . g_r . S_r                       (electron Zeeman; g_r = g * 1 if isotropic)
       + gamma_e * sum_r sum_i S_r . A_ri . I_ri                 (hyperfine, A in tesla)

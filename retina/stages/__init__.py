@@ -9,29 +9,48 @@ group of the results file (:mod:`retina.results`).  :data:`STAGES` lists them in
 - :mod:`retina.stages.scan` - the pattern through a head scan;
 - :mod:`retina.stages.precision` - heading bounds and decoding errors against light;
 - :mod:`retina.stages.disorder` - depth and bounds over molecular disorder;
+- :mod:`retina.stages.order` - how much order the compass needs: restraint classes and curves
+  against each concentration;
 - :mod:`retina.stages.trials` - simulated orientation trials;
 - :mod:`retina.stages._common` - what they share (generators, signal model, decoder grid).
 """
 
 from __future__ import annotations
 
-from retina.stages import disorder, patterns, precision, scan, trials
+from retina.stages import disorder, order, patterns, precision, scan, trials
 from retina.stages._common import Stage
 
 __all__ = ["Stage", "STAGES", "register", "stage_names"]
 
 STAGES: dict[str, Stage] = {s.name: s for s in (patterns.STAGE, scan.STAGE, precision.STAGE, disorder.STAGE,
-                                                trials.STAGE)}
+                                                order.STAGE, trials.STAGE)}
 """Every stage by name, in computing order."""
 
 
 def register(stage: Stage) -> None:
-    """Add ``stage`` to :data:`STAGES` (after the others); a name may be registered once."""
+    """Add a stage to :data:`STAGES`, after the others.
+
+    Parameters
+    ----------
+    stage : Stage
+        Its name must be new.
+
+    Raises
+    ------
+    ValueError
+        When a stage of that name is registered already.
+    """
     if stage.name in STAGES:
         raise ValueError(f"a stage named {stage.name!r} is registered already")
     STAGES[stage.name] = stage
 
 
 def stage_names() -> tuple[str, ...]:
-    """The registered stage names, in computing order."""
+    """The registered stage names.
+
+    Returns
+    -------
+    tuple of str
+        In computing order.
+    """
     return tuple(STAGES)

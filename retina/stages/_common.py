@@ -71,6 +71,10 @@ def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photon
         Head pitch in degrees (then roll 0); default the scenario's ``[pose]`` pitch and roll.
     photons : float
         Photon budget per receptor.
+
+    Returns
+    -------
+    retina.signal.noise.SignalModel
     """
     from retina.signal.noise import SignalModel
 
@@ -81,20 +85,58 @@ def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photon
 
 
 def depth(yields: np.ndarray) -> np.ndarray:
-    """Modulation depth ``(max - min) / mean`` of yields ``(H, N)`` (or ``(N,)``) -> ``(H,)``."""
+    """Modulation depth ``(max - min) / mean`` over receptors.
+
+    Parameters
+    ----------
+    yields : ndarray (H, N) or (N,)
+
+    Returns
+    -------
+    ndarray (H,)
+        Dimensionless (H = 1 for one pattern).
+    """
     y = np.atleast_2d(yields)
     return (y.max(axis=1) - y.min(axis=1)) / y.mean(axis=1)
 
 
 def scan_yaws(sc: Scenario, steps: int | None = None) -> np.ndarray:
-    """The yaw angles ``(F,)`` in degrees of the scenario's head scan (``steps`` overrides ``scan.steps``)."""
+    """The yaw angles of the scenario's head scan.
+
+    Parameters
+    ----------
+    sc : Scenario
+    steps : int, optional
+        Overrides ``scan.steps``.
+
+    Returns
+    -------
+    ndarray (F,)
+        Degrees, evenly spaced over ``heading +/- amplitude``.
+    """
     s = sc["scan"]
     n = s["steps"] if steps is None else steps
     return s["heading_deg"] + np.linspace(-s["amplitude_deg"], s["amplitude_deg"], n)
 
 
 def per_photon_info(signal, degree: int, nuisance: str, headings) -> np.ndarray:
-    """Heading Fisher information per photon ``(H,)`` at ``headings`` (:mod:`retina.readout.fisher`)."""
+    """Heading Fisher information per photon (:func:`retina.readout.fisher.heading_information`).
+
+    Parameters
+    ----------
+    signal : SignalModel
+    degree : int
+        Harmonic degree of the yield function.
+    nuisance : str
+        ``readout.nuisance`` ("none" or "gain").
+    headings : ndarray (H,)
+        Degrees.
+
+    Returns
+    -------
+    ndarray (H,)
+        rad^-2 per photon per receptor.
+    """
     from retina.readout.fisher import heading_information
 
     return heading_information(signal, headings, nuisance=nuisance, degree=degree).per_photon
@@ -159,14 +201,40 @@ class GridModel:
 
 
 def grid_offsets(offsets_deg) -> np.ndarray:
-    """Scan offsets ``(P,)`` in degrees rounded to the decoder grid."""
+    """Scan offsets rounded to the decoder grid.
+
+    Parameters
+    ----------
+    offsets_deg : array_like (P,)
+
+    Returns
+    -------
+    ndarray (P,)
+        Degrees, multiples of ``360 / GRID``.
+    """
     step = 360.0 / GRID
     return np.round(np.asarray(offsets_deg, float) / step) * step
 
 
 def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np.ndarray:
-    """Signed decoding errors ``(n,)`` in degrees at ``n`` uniformly random true headings (one pose,
-    or a scan over ``offsets (P,)`` degrees)."""
+    """Signed decoding errors at uniformly random true headings.
+
+    Parameters
+    ----------
+    m : GridModel
+    photons : float
+        Photon budget per receptor (split over the poses of a scan).
+    n : int
+        Number of true headings.
+    rng : numpy.random.Generator
+    offsets : ndarray (P,), optional
+        Scan offsets in degrees; None for a single pose.
+
+    Returns
+    -------
+    ndarray (n,)
+        Degrees, in (-180, 180].
+    """
     from retina.readout.circstats import circular_difference
     from retina.signal.noise import sample_counts
 
@@ -181,9 +249,20 @@ def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np
 
 
 def rms_bound(photons: np.ndarray, info_per_photon: np.ndarray) -> np.ndarray:
-    """``sqrt(mean_h CRB(h)^2)`` in degrees for each photon level ``(M,)``: the bound on the rms
-    error over uniformly distributed true headings (what the decoding error measures); inf if any
-    heading carries no information.  ``info_per_photon`` is ``(G,)``."""
+    """The bound on the rms heading error over uniformly distributed true headings.
+
+    Parameters
+    ----------
+    photons : ndarray (M,)
+    info_per_photon : ndarray (G,)
+        Heading information per photon at the grid headings.
+
+    Returns
+    -------
+    ndarray (M,)
+        ``sqrt(mean_h CRB(h)^2)`` in degrees (what the decoding error measures); inf if any
+        heading carries no information.
+    """
     from retina.readout.fisher import cramer_rao_deg
 
     crb = cramer_rao_deg(np.asarray(photons, float)[:, None] * np.asarray(info_per_photon, float)[None, :])

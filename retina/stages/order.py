@@ -1,0 +1,123 @@
+"""Stage ``order``: how much molecular order the compass needs, and in which dimension.
+
+Two parts, both from the ensemble (annealed) response of :mod:`retina.eye.ordering` models placed
+at the scenario's mean orientation ``M`` (``[ordering] orientation_deg``, or the smallest rotation
+taking ``[ordering] axis`` to the receptor axis):
+
+- the restraint classes (:func:`retina.eye.ordering.restraint_classes`): aligned (restrained in
+  three), restrained in two and free in one (free rotation about the receptor axis of the molecular
+  direction ``M^-1 z``), restrained in one and free in two (the molecular direction ``M^-1 x`` in the
+  membrane plane, free in azimuth and free to twist about itself), isotropic (free in three);
+- curves against each concentration of ``[ordering] study_kappas``
+  (:func:`retina.eye.ordering.concentration_curves`): the cone with tied twist (aligned at
+  ``inf`` to isotropic at 0), the cone with free twist (restrained in two to isotropic), the plane's
+  girdle with free twist (restrained in one to isotropic), the twist concentration about the
+  receptor axis (aligned to restrained in two) and in the plane (restrained in two to restrained in
+  one), and the cone without twist for comparison (it keeps a pattern at 0).
+
+For each model: the modulation depth (``(max - min) / mean`` of the receptor yields over both
+eyes, averaged over the scenario's headings) and the heading information per photon of a single
+pose averaged over headings 0, 10, ..., 350 deg, with the bound ``1 / sqrt(photons * info)``
+(degrees) at every light level of ``[light]``, as in :mod:`retina.stages.disorder`.  An isotropic
+response is exactly constant, so its depth and information are exactly 0 and its bound infinite.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from retina.build import build_retina
+from retina.scenario import Scenario
+from retina.stages._common import Stage, depth, per_photon_info, signal_model
+
+__all__ = ["compute_order", "STAGE", "n_steps"]
+
+
+def n_steps(sc: Scenario) -> int:
+    """The number of models the study evaluates (its progress total).
+
+    Parameters
+    ----------
+    sc : Scenario
+
+    Returns
+    -------
+    int
+        Four restraint classes plus one per curve and concentration of ``ordering.study_kappas``.
+    """
+    from retina.eye.ordering import concentration_curves
+
+    return 4 + len(concentration_curves()) * len(sc["ordering"]["study_kappas"])
+
+
+def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
+    """Depth, information and bounds for the restraint classes and the concentration curves.
+
+    Parameters
+    ----------
+    sc : Scenario
+    yf : YieldFunction
+    receptors : Receptors
+    fld : Field
+    progress : callable(done, total), optional
+        After each model.
+
+    Returns
+    -------
+    dict
+        ``light_photons (V,)``; ``classes``: one sub-dict per class key with attrs ``label``,
+        ``depth``, ``info_per_photon`` and ``bound_deg (V,)``; ``curves``: one sub-dict per curve
+        key with attr ``label`` and ``kappas (K,)``, ``depth (K,)``, ``info_per_photon (K,)``,
+        ``bound_deg (V, K)``; attrs ``class_order`` and ``curve_order`` (comma-separated keys).
+    """
+    from scipy.spatial.transform import Rotation
+
+    from retina.eye.ordering import concentration_curves, restraint_classes
+    from retina.eye.pose import head_field, pose_rotation
+    from retina.readout.fisher import cramer_rao_deg
+
+    o = sc["ordering"]
+    mean = Rotation.from_euler("ZYZ", list(o["orientation_deg"]), degrees=True)
+    if o["axis"] is not None:  # the cone's convention: the axis on the receptor axis
+        from retina.eye.ordering import Cone
+
+        mean = Cone.restraining(o["axis"], kappa=0.0).mean
+    light = np.asarray(sc["light"]["photons"], float)
+    kap = np.asarray(o["study_kappas"], float)
+    p = sc["pose"]
+    b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
+                   fld.vector)
+    hs = np.arange(0.0, 360.0, 10.0)
+    total = n_steps(sc)
+    done = 0
+
+    def evaluate(ordering) -> tuple[float, float]:
+        nonlocal done
+        m = build_retina(sc, yf, receptors, ordering=ordering)
+        dp = float(np.mean(depth(m.yields(b))))
+        info = float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, sc["readout"]["nuisance"], hs)))
+        done += 1
+        if progress:
+            progress(done, total)
+        return dp, info
+
+    classes, curves = {}, {}
+    for case in restraint_classes(mean):
+        dp, info = evaluate(case.build)
+        classes[case.key] = {"label": case.label, "depth": dp, "info_per_photon": info,
+                             "bound_deg": cramer_rao_deg(light * info)}
+    for case in concentration_curves(mean):
+        dps, infos = zip(*(evaluate(case.build(float(k))) for k in kap))
+        info = np.array(infos)
+        curves[case.key] = {"label": case.label, "kappas": kap.copy(), "depth": np.array(dps),
+                            "info_per_photon": info, "bound_deg": cramer_rao_deg(light[:, None] * info[None, :])}
+    return {"light_photons": light, "classes": classes, "curves": curves,
+            "class_order": ",".join(classes), "curve_order": ",".join(curves),
+            "mean_orientation_deg": np.asarray(o["orientation_deg"], float)}
+
+
+def _compute(built, progress):
+    return compute_order(built.scenario, built.yield_function, built.receptors, built.field, progress=progress)
+
+
+STAGE = Stage("order", _compute, label="order study", steps=n_steps)
