@@ -75,7 +75,8 @@ def quick_scenario(sc: Scenario) -> Scenario:
     """A reduced copy for smoke tests and ``--quick``.
 
     Degree <= 8, <= 120 receptors per eye, <= 4 photon levels, few repeats, trials and sweep points,
-    the first two headings, PNG at 100 dpi.
+    the first two headings, RF degree <= 4 with <= 2 check points, <= 4 RF sweep frequencies and
+    <= 2 lifetimes, PNG at 100 dpi.
 
     Parameters
     ----------
@@ -102,6 +103,9 @@ def quick_scenario(sc: Scenario) -> Scenario:
            "trials": {"n_trials": min(sc["trials"]["n_trials"], 20),
                       "scan_steps": min(sc["trials"]["scan_steps"], 5)},
            "pose": {"headings_deg": sc["pose"]["headings_deg"][:2]},
+           "rf": {"degree": min(sc["rf"]["degree"], 4), "check_points": min(sc["rf"]["check_points"], 2),
+                  "sweep_MHz": sc["rf"]["sweep_MHz"][:: max(1, -(-len(sc["rf"]["sweep_MHz"]) // 4))],
+                  "sweep_lifetimes_us": sc["rf"]["sweep_lifetimes_us"][:2]},
            "output": {"dpi": 100}})
 
 
@@ -203,14 +207,20 @@ def field_uT(sc: Scenario) -> float:
     return float(build_field(sc).F_uT)
 
 
-def build_yield_function(sc: Scenario, *, progress=None):
+def build_yield_function(sc: Scenario, *, progress=None, cache: bool = True):
     """Compute, load or import the scenario's yield function (:class:`retina.yieldfn.YieldFunction`).
+
+    A computed yield function goes through the content-hash cache (:mod:`retina.cache`): a run
+    that changes only the retina, the light or the read-out reuses it instead of recomputing it.
 
     Parameters
     ----------
     sc : Scenario
     progress : callable(done, total), optional
         Called while the spin engine works.
+    cache : bool
+        Look the yield function up in, and store it into, the cache (``$RETINA_CACHE`` or
+        ``~/.cache/retina-compass``).
 
     Returns
     -------
@@ -228,7 +238,7 @@ def build_yield_function(sc: Scenario, *, progress=None):
 
         system = load_system(path)
         return YieldFunction.from_system(system, field_uT(sc), degree=degree, method=sc["yield"]["method"],
-                                         progress=progress)
+                                         progress=progress, cache=cache)
     if kind == "file":
         return YieldFunction.load(path)
     from retina.io.importers import import_table

@@ -45,12 +45,20 @@ def _one_line(text: str) -> str:
     return " ".join(part.strip() for part in str(text).splitlines() if part.strip())
 
 
+class _Parser(argparse.ArgumentParser):
+    """An argument parser whose usage errors are one line on stderr (exit 2), like every other
+    refusal of bad input; ``retina COMMAND --help`` shows the usage."""
+
+    def error(self, message: str):  # noqa: D102 - argparse API
+        self.exit(EXIT_INPUT, f"{self.prog}: error: {_one_line(message)} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The full parser, with every subcommand of :data:`retina.commands.COMMANDS` registered."""
     import retina
     from retina.commands import COMMANDS
 
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="retina",
         description="retina-compass: from a radical-pair yield function to the magnetic modulation "
                     "pattern over a bird's retinas, and the heading information it carries.",

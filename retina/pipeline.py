@@ -25,6 +25,7 @@ from retina.errors import InputError
 from retina.results import Results, make_provenance
 from retina.scenario import Scenario
 from retina.stages import STAGES
+from retina.stages.memory import check_memory
 
 __all__ = ["run"]
 
@@ -32,8 +33,9 @@ _log = logging.getLogger(__name__)
 
 
 def run(sc: Scenario, *, quick: bool = False,
-        stages=("patterns", "scan", "precision", "disorder", "order", "trials"),
-        progress_factory: ProgressFactory | None = None, yield_function=None) -> Results:
+        stages=("patterns", "scan", "precision", "disorder", "order", "trials", "rf", "rf_sweep"),
+        progress_factory: ProgressFactory | None = None, yield_function=None,
+        max_bytes: int | None = None) -> Results:
     """Run the scenario's stages and collect their results.
 
     Parameters
@@ -43,12 +45,22 @@ def run(sc: Scenario, *, quick: bool = False,
         Apply :func:`retina.build.quick_scenario` first.
     stages : sequence of str
         Names in :data:`retina.stages.STAGES` ("patterns", "scan", "precision", "disorder",
-        "order", "trials"); they run in the registry's order.  The yield function and the retina are always
+        "order", "trials", "rf", "rf_sweep"); they run in the registry's order.  A stage with nothing to do
+        (``rf`` and ``rf_sweep`` without an ``[rf]`` request) adds no group.  The yield function
+        and the retina are always
         built.
     progress_factory : callable(description, total) -> progress(done, total), optional
         Makes a progress callback for each long step (the CLI passes :class:`retina.progress.ProgressBars`).
     yield_function : YieldFunction, optional
         Use this instead of computing/loading the scenario's.
+    max_bytes : int, optional
+        Memory limit of every step (default 60 % of the available memory): checked before anything
+        is built (:func:`retina.stages.memory.check_memory`) and passed to the spin engine.
+
+    Raises
+    ------
+    ResourceError
+        When a step's memory estimate exceeds ``max_bytes``.
 
     Returns
     -------
@@ -61,6 +73,7 @@ def run(sc: Scenario, *, quick: bool = False,
         raise InputError(f"unknown stage(s) {sorted(bad)}", key="stages")
     if quick:
         sc = quick_scenario(sc)
+    check_memory(sc, stages, max_bytes)
     pf = progress_factory or no_progress
     t0 = time.perf_counter()
     built = build_all(sc, yield_function=yield_function, progress_factory=pf)
@@ -78,8 +91,12 @@ def run(sc: Scenario, *, quick: bool = False,
     g["field"] = {"F_uT": float(fld.F_uT), "I_deg": float(fld.I_deg), "D_deg": float(fld.D_deg)}
     for name, stage in STAGES.items():
         if name in stages:
+            if stage.steps(sc) == 0 and name in ("rf", "rf_sweep"):
+                continue
             progress = pf(stage.label, stage.steps(sc)) if stage.label else None
             t0 = time.perf_counter()
-            g[name] = stage.compute(built, progress)
+            out = stage.compute(built, progress)
+            if out is not None:
+                g[name] = out
             _log.info("stage %s: %.1f s", name, time.perf_counter() - t0)
     return Results(g, make_provenance(sc, yf, fld, quick=quick, stages=stages), scenario=sc)

@@ -29,12 +29,12 @@ Schema (section, key, type, default; units in the key name)
     axis (a membrane), softened by a Watson girdle (``Planar``); no order.  Scenario files written
     before the twist was modelled keep ``model = "cone"`` and now get the cone with the twist tied
     to the tilt, which reaches isotropy as kappa goes to 0; ``"cone_no_twist"`` gives the old law.
-    ``kappa`` (float >= 0, ``inf`` allowed, 20.0): concentration of the cone or of the girdle
+    ``kappa`` (float from 0 to 1e6, or ``inf``; 20.0): concentration of the cone or of the girdle
     ("cone", "cone_no_twist", "plane"; 0 is uniform, ``inf`` no tilt / exactly in the plane),
     ``twist`` ("tied" | "free" | "fixed" | "restrained", "tied"): the twist about the restrained
     direction in "cone" and "plane": von Mises with the concentration ``kappa``, uniform, none, or
     von Mises with ``twist_kappa``,
-    ``twist_kappa`` (float >= 0, ``inf`` allowed, 1.0): the twist concentration for "restrained",
+    ``twist_kappa`` (float from 0 to 1e6, or ``inf``; 1.0): the twist concentration for "restrained",
     ``orientation_deg`` (3 floats, [0, 0, 0]): z-y-z Euler angles of the mean molecular frame in
     the receptor frame (the reference frame of "plane"),
     ``axis`` (3 floats, optional; "cone", "cone_no_twist" and "plane" only, not with a non-zero
@@ -57,8 +57,10 @@ Schema (section, key, type, default; units in the key name)
     1..200000, 400), ``density`` ("uniform" | "central"), ``central_ratio`` (>= 1, 4.0),
     ``central_width_deg`` (> 0, 20.0).  Default: a left and a right eye at azimuth -/+ 60 deg.
 ``[light]``
-    ``photons`` (list of floats > 0, [100, 10000]): mean photon count per receptor per integration
-    window for each light level, ``names`` (list of str, ["dim", "bright"]), same length;
+    ``photons`` (list of floats in (0, 1e12], [100, 10000]): mean photon count per receptor per
+    integration window for each light level, ``names`` (list of str, ["dim", "bright"]), same
+    length, each 1-64 letters, digits, spaces, ``_ - + .`` (they name HDF5 groups), starting with a
+    letter, digit or ``_``;
     ``sky`` ("uniform" | "horizon", "uniform"): a uniform sky, or a bright sky over darker ground
     with ``ground_ratio`` (0..1, 0.2), ``horizon_deg`` (0.0) and ``softness_deg`` (5.0)
     (:mod:`retina.signal.light`).
@@ -73,7 +75,7 @@ Schema (section, key, type, default; units in the key name)
     ``heading_deg`` (float, 0.0): centre of the head scan, ``amplitude_deg`` (float 0..180, 60.0):
     the scan sweeps heading +/- amplitude, ``steps`` (int 2..721, 25), ``pitch_deg`` (0.0).
 ``[readout]``
-    ``photons`` (list of floats > 0, log-spaced 10..1e6): photon levels of the precision curves,
+    ``photons`` (list of floats in (0, 1e12], log-spaced 10..1e6): photon levels of the precision curves,
     ``decode_repeats`` (int >= 1, 200): noisy decodings per photon level for the decoding error,
     ``nuisance`` ("none" | "gain", "gain"): whether the readout must also infer the overall light
     level (see :mod:`retina.readout.fisher`),
@@ -88,9 +90,32 @@ Schema (section, key, type, default; units in the key name)
     ``goal_deg`` (float, 0.0): the heading the simulated bird intends to take (degrees clockwise
     from geographic north, like every heading here; magnetic north lies ``declination_deg`` east),
     ``scan_steps`` (int >= 1, 9): head-scan poses integrated per trial.
+``[rf]`` (optional; radio-frequency conditions, :mod:`retina.stages.rf`)
+    ``degree`` (even int 2..40, 4): degree of the RF yield functions (the control uses the static
+    yield function truncated to it), ``check_points`` (int 1..200, 6): independent check
+    directions of each RF fit, ``tol`` (float > 0, 1e-8): convergence tolerance of the exact RF
+    method (yield units), ``cache`` (bool, true): keep RF yield functions in the content-hash
+    cache (:mod:`retina.cache`);
+    ``[[rf.conditions]]`` (array of tables, none): each has ``name`` (str, required), ``kind``
+    ("off" | "tone" | "band", required); a tone has ``frequency_MHz`` (> 0) and ``amplitude_nT``
+    (>= 0); a band has ``band_MHz`` ([f1, f2], 0 < f1 < f2) and exactly one of
+    ``asd_nT_per_rtHz`` (amplitude spectral density, one-sided) or ``rms_nT`` (rms over the band);
+    both take ``direction`` ("perpendicular" | "parallel" | "angle" | "coil", "perpendicular"),
+    relative to the static field (azimuth-averaged about it) except "coil", ``angle_deg`` (0..180,
+    90; for "angle") and ``coil`` (3 floats, [0, 1, 0]: a fixed direction in the world frame,
+    north-east-down, like a coil's axis; see :mod:`retina.stages.rf` for how it is treated);
+    ``sweep_MHz`` (list of floats > 0, none): frequencies of the sweep stage ``rf_sweep``,
+    ``sweep_nT`` (float > 0, 50.0): its amplitude, ``sweep_lifetimes_us`` (list of floats > 0,
+    none: the pair's own lifetime): pair lifetimes swept (equal rates ``k = 1 / lifetime``),
+    ``sweep_light`` (str, "": the last light level): the light level of the sweep's trials.
 ``[output]``
     ``dir`` (path, "retina-results"), ``formats`` (list from "png", "svg", "pdf", ["png", "svg"]),
     ``dpi`` (int 50..1200, 300), ``animation`` (bool, true).
+
+Limits for every key: strings are printable (no control characters), at most 10,000 characters;
+lists hold at most 10,000 entries; angles not listed above lie within +/- 3600 degrees
+(``orientation_deg`` within +/- 720); the file is at most 1 MiB.  How much memory the stages of a
+scenario need is checked before they start (:mod:`retina.stages`; ``--max-memory-gb``).
 
 Relative paths resolve from the folder of the scenario file.  Unknown keys and sections raise
 :class:`retina.errors.InputError` with a "did you mean" suggestion; every error names the file and
@@ -131,6 +156,7 @@ class Key:
     length: int | None = None
     doc: str = ""
     allow_inf: bool = False
+    table: dict | None = None        # for kind "tables": the schema of each table
 
 
 def _rng(lo=None, hi=None, *, lo_open=False):
@@ -145,9 +171,40 @@ def _rng(lo=None, hi=None, *, lo_open=False):
     return check
 
 
+def _concentration(v):
+    """A concentration: 0 (uniform) to 1e6 (a tilt of about 0.06 deg), or ``inf`` (no disorder)."""
+    if v == float("inf"):
+        return None
+    if v < 0 or v > 1e6:
+        return ">= 0 and <= 1e6, or inf for no disorder"
+    return None
+
+
 def _even_degree(v):
     if v < 2 or v > 40 or v % 2:
         return "an even integer between 2 and 40"
+    return None
+
+
+MAX_PHOTONS = 1e12
+"""Largest photon count of a light or readout level: far above daylight catches, and safely inside
+what Poisson samplers take (numpy refuses means near 1e19)."""
+MAX_LIST = 10_000
+"""Longest list accepted for any list key."""
+MAX_TEXT = 10_000
+"""Longest string accepted (a description); names are limited to 64 characters."""
+MAX_FILE_BYTES = 1 << 20
+"""Scenario files larger than 1 MiB are refused before parsing."""
+
+
+def _level_name(v):
+    import re
+
+    for x in v:
+        if not re.fullmatch(r"[A-Za-z0-9_]([A-Za-z0-9_ .+-]{0,62}[A-Za-z0-9_.+-])?", x):
+            return ("names of 1 to 64 letters, digits, spaces, '_', '-', '+' or '.', starting with a letter, "
+                    "digit or '_' and not ending in a space "
+                    f"(they name HDF5 groups and files; {x!r} is not)")
     return None
 
 
@@ -182,10 +239,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
     "ordering": {
         "model": Key("choice", "cone", choices=("aligned", "axial", "cone", "cone_no_twist", "plane",
                                                  "isotropic")),
-        "kappa": Key("float", 20.0, check=_rng(0.0), allow_inf=True),
+        "kappa": Key("float", 20.0, check=_concentration, allow_inf=True),
         "twist": Key("choice", "tied", choices=("tied", "free", "fixed", "restrained")),
-        "twist_kappa": Key("float", 1.0, check=_rng(0.0), allow_inf=True),
-        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3),
+        "twist_kappa": Key("float", 1.0, check=_concentration, allow_inf=True),
+        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3, check=_rng(-720.0, 720.0)),
         "axis": Key("floats", None, length=3,
                     check=lambda v: "a non-zero direction" if not any(v) else None),
         "mode": Key("choice", "ensemble", choices=("ensemble", "molecules")),
@@ -206,8 +263,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "central_width_deg": Key("float", 20.0, check=_rng(0.0, 180.0, lo_open=True)),
     },
     "light": {
-        "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
-        "names": Key("strs", ["dim", "bright"], check=_nonempty),
+        "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
+        "names": Key("strs", ["dim", "bright"], check=_both(_nonempty, _level_name)),
         "sky": Key("choice", "uniform", choices=("uniform", "horizon")),
         "ground_ratio": Key("float", 0.2, check=_rng(0.0, 1.0)),
         "horizon_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
@@ -223,27 +280,49 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "date": Key("date", None),
     },
     "pose": {
-        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=_nonempty),
+        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=_both(_nonempty, _rng(-3600.0, 3600.0))),
         "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
         "roll_deg": Key("float", 0.0, check=_rng(-180.0, 180.0)),
     },
     "scan": {
-        "heading_deg": Key("float", 0.0),
+        "heading_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
         "amplitude_deg": Key("float", 60.0, check=_rng(0.0, 180.0)),
         "steps": Key("int", 25, check=_rng(2, 721)),
         "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
     },
     "readout": {
         "photons": Key("floats", [10.0, 100.0, 1e3, 1e4, 1e5, 1e6],
-                       check=_both(_nonempty, _rng(0.0, None, lo_open=True))),
+                       check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
         "decode_repeats": Key("int", 200, check=_rng(1, 10**6)),
         "nuisance": Key("choice", "gain", choices=("none", "gain")),
         "compare_nuisance": Key("choice", "receptor_gain", choices=("receptor_gain", "pose_gain", "none")),
     },
     "trials": {
         "n_trials": Key("int", 40, check=_rng(1, 10**6)),
-        "goal_deg": Key("float", 0.0),
+        "goal_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
         "scan_steps": Key("int", 9, check=_rng(1, 721)),
+    },
+    "rf": {
+        "degree": Key("int", 4, check=_even_degree),
+        "check_points": Key("int", 6, check=_rng(1, 200)),
+        "tol": Key("float", 1e-8, check=_rng(0.0, 1.0, lo_open=True)),
+        "cache": Key("bool", True),
+        "conditions": Key("tables", [], table={
+            "name": Key("str"),
+            "kind": Key("choice", choices=("off", "tone", "band")),
+            "frequency_MHz": Key("float", None, check=_rng(0.0, 1e5, lo_open=True)),
+            "amplitude_nT": Key("float", None, check=_rng(0.0, 1e9)),
+            "direction": Key("choice", "perpendicular", choices=("perpendicular", "parallel", "angle", "coil")),
+            "angle_deg": Key("float", 90.0, check=_rng(0.0, 180.0)),
+            "coil": Key("floats", [0.0, 1.0, 0.0], length=3),
+            "band_MHz": Key("floats", None, length=2, check=_rng(0.0, 1e5, lo_open=True)),
+            "asd_nT_per_rtHz": Key("float", None, check=_rng(0.0, 1e9)),
+            "rms_nT": Key("float", None, check=_rng(0.0, 1e9)),
+        }),
+        "sweep_MHz": Key("floats", [], check=_rng(0.0, 1e5, lo_open=True)),
+        "sweep_nT": Key("float", 50.0, check=_rng(0.0, 1e9, lo_open=True)),
+        "sweep_lifetimes_us": Key("floats", [], check=_rng(0.0, 1e6, lo_open=True)),
+        "sweep_light": Key("str", ""),
     },
     "output": {
         "dir": Key("path", "retina-results"),
@@ -345,17 +424,23 @@ def load_scenario(path: str | Path) -> Scenario:
         The file is missing or not TOML, a key is unknown, of the wrong type or out of range, or a
         named file does not exist; the message names the file and the dotted key.
     """
+    from retina.spin.io import read_text_capped
+
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = read_text_capped(path, MAX_FILE_BYTES).decode("utf-8")
     except FileNotFoundError:
         raise InputError("scenario file not found", source=path) from None
+    except IsADirectoryError:
+        raise InputError("is a folder; expected a scenario TOML file", source=path) from None
     except (OSError, UnicodeDecodeError) as exc:
         raise InputError(f"cannot read the scenario file ({exc})", source=path) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=path) from None
+    except RecursionError:
+        raise InputError("arrays or tables nested too deeply; expected a scenario TOML file", source=path) from None
     return scenario_from_dict(doc, source=path.resolve(), base_dir=path.resolve().parent, text=text)
 
 
@@ -423,7 +508,8 @@ def _describe(spec: Key) -> str:
     names = {"str": "a string", "int": "an integer", "float": "a number", "bool": "true or false",
              "path": "a file path (string)", "date": "a date (1990-05-17 or \"1990-05-17\")",
              "floats": "a list of numbers", "strs": "a list of strings",
-             "choice": "one of " + ", ".join(f'"{c}"' for c in spec.choices)}
+             "choice": "one of " + ", ".join(f'"{c}"' for c in spec.choices),
+             "tables": "an array of tables ([[...]])"}
     s = names[spec.kind]
     if spec.length:
         s += f" of length {spec.length}"
@@ -440,6 +526,7 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if not isinstance(v, str):
             bad()
         val = v
+        _printable(val, src, key)
     elif kind == "choice":
         if not isinstance(v, str):
             bad()
@@ -464,6 +551,7 @@ def _convert(v, spec: Key, src, key: str, base: Path):
     elif kind == "path":
         if not isinstance(v, str) or not v.strip():
             bad()
+        _printable(v, src, key)
         val = (base / Path(v).expanduser()).resolve()
     elif kind == "date":
         if isinstance(v, _dt.datetime):
@@ -487,13 +575,21 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if not isinstance(v, list) or any(not isinstance(x, str) for x in v):
             bad()
         val = list(v)
+        for x in val:
+            _printable(x, src, key)
         if spec.choices:
             for x in val:
                 if x not in spec.choices:
                     raise InputError(f"expected entries among {', '.join(spec.choices)}, got {x!r}"
                                      f"{_suggest(x, spec.choices)}", source=src, key=key)
+    elif kind == "tables":
+        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
+            bad()
+        val = [_section(x, spec.table, src, f"{key}[{i}]", base) for i, x in enumerate(v)]
     else:  # pragma: no cover - schema error
         raise AssertionError(kind)
+    if isinstance(val, list) and len(val) > MAX_LIST:
+        raise InputError(f"expected at most {MAX_LIST:,} entries, got {len(val):,}", source=src, key=key)
     if spec.length is not None and len(val) != spec.length:
         bad()
     if spec.check is not None:
@@ -501,6 +597,14 @@ def _convert(v, spec: Key, src, key: str, base: Path):
         if msg:
             raise InputError(f"expected {msg}, got {v!r}", source=src, key=key)
     return val
+
+
+def _printable(x: str, src, key: str) -> None:
+    if len(x) > MAX_TEXT:
+        raise InputError(f"expected at most {MAX_TEXT:,} characters, got {len(x):,}", source=src, key=key)
+    bad = next((c for c in x if (ord(c) < 32 and c not in "\t\n") or ord(c) == 127), None)
+    if bad is not None:
+        raise InputError(f"expected printable text, got the control character {bad!r}", source=src, key=key)
 
 
 def _cross_checks(d: dict, src) -> None:
@@ -549,6 +653,32 @@ def _cross_checks(d: dict, src) -> None:
                          f"got {len(light['names'])}", source=src, key="light.names")
     if len(set(light["names"])) != len(light["names"]):
         raise InputError(f"light level names must differ, got {light['names']}", source=src, key="light.names")
+    _rf_checks(d, src)
+
+
+def _rf_checks(d: dict, src) -> None:
+    rf = d["rf"]
+    names = [c["name"] for c in rf["conditions"]]
+    if len(set(names)) != len(names):
+        raise InputError(f"RF condition names must differ, got {names}", source=src, key="rf.conditions")
+    for i, c in enumerate(rf["conditions"]):
+        key = f"rf.conditions[{i}]"
+        if c["kind"] == "tone":
+            for k in ("frequency_MHz", "amplitude_nT"):
+                if c[k] is None:
+                    raise InputError(f"a tone needs {k}", source=src, key=f"{key}.{k}")
+        if c["kind"] == "band":
+            if c["band_MHz"] is None or not c["band_MHz"][0] < c["band_MHz"][1]:
+                raise InputError(f"a band needs band_MHz = [f1, f2] with 0 < f1 < f2, got {c['band_MHz']}",
+                                 source=src, key=f"{key}.band_MHz")
+            if (c["asd_nT_per_rtHz"] is None) == (c["rms_nT"] is None):
+                raise InputError("a band needs exactly one of asd_nT_per_rtHz (nT/sqrt(Hz)) or rms_nT (nT)",
+                                 source=src, key=f"{key}.asd_nT_per_rtHz")
+        if c["direction"] == "coil" and not any(c["coil"]):
+            raise InputError("expected a non-zero coil direction", source=src, key=f"{key}.coil")
+    if rf["sweep_light"] and rf["sweep_light"] not in d["light"]["names"]:
+        raise InputError(f"expected one of the light level names {d['light']['names']}, got {rf['sweep_light']!r}",
+                         source=src, key="rf.sweep_light")
 
 
 # ----------------------------------------------------------------------------------------------
@@ -575,7 +705,7 @@ def dump_scenario(scenario: Scenario) -> str:
 
     plain = _to_plain(scenario.data)
     order = ["scenario", "yield", "ordering", "eyes", "light", "field", "pose", "scan", "readout",
-             "trials", "output"]
+             "trials", "rf", "output"]
     return tomli_w.dumps({k: plain[k] for k in order if k in plain})
 
 

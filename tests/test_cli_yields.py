@@ -109,9 +109,11 @@ def test_existing_output_needs_force(tiny, tmp_path, monkeypatch, capsys):
     "extra, pattern",
     [
         (["--degree", "7"], "--degree: expected an even degree"),
-        (["--field-uT", "-3"], "--field-uT: expected a field strength > 0"),
-        (["--check-points", "0"], "--check-points: expected at least 1"),
-        (["--max-memory-gb", "0"], "--max-memory-gb: expected a positive"),
+        (["--field-uT", "-3"], "--field-uT: expected a field in microtesla: a finite number > 0"),
+        (["--check-points", "0"], "--check-points: expected a number of directions between 1 and"),
+        (["--max-memory-gb", "0"], "--max-memory-gb: expected gigabytes: a finite number > 0"),
+        (["--max-memory-gb", "inf"], "--max-memory-gb: expected gigabytes: a finite number > 0"),
+        (["--field-uT", "nan"], "--field-uT: expected a field in microtesla: a finite number > 0"),
     ],
 )
 def test_bad_options_are_one_line_exit_2(tiny, tmp_path, monkeypatch, capsys, extra, pattern):

@@ -12,7 +12,8 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.stages.scan", "retina.stages.precision", "retina.stages.disorder", "retina.stages.trials",
            "retina.results", "retina.outputs", "retina.outputs.figures", "retina.outputs.text",
            "retina.outputs.report", "retina.progress", "retina.data", "retina.commands._common",
-           "retina.spin.memory"]
+           "retina.spin.memory", "retina.sweep.schema", "retina.sweep.outputs", "retina.sweep.run",
+           "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export"]
 
 
 def _public_functions(name):

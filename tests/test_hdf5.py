@@ -100,7 +100,7 @@ def test_foreign_files_get_clear_errors(tmp_path):
         ds = f.create_dataset("yield_function/coeffs", data=np.zeros(6))
         ds.attrs["degree"] = 2
         ds.attrs["basis"] = "complex-sh"
-    with pytest.raises(InputError, match="basis is 'complex-sh'"):
+    with pytest.raises(InputError, match="expected one of real-sh-even-orthonormal-no-cs, got 'complex-sh'"):
         YieldFunction.load(wrong_basis)
 
     wrong_len = tmp_path / "len.h5"
@@ -108,7 +108,7 @@ def test_foreign_files_get_clear_errors(tmp_path):
         ds = f.create_dataset("yield_function/coeffs", data=np.zeros(7))
         ds.attrs["degree"] = 2
         ds.attrs["basis"] = BASIS
-    with pytest.raises(InputError, match="does not match degree 2"):
+    with pytest.raises(InputError, match=r"expected shape \(K,\) with K = 6 \(from /yield_function/coeffs@degree\), got \(7,\)"):
         YieldFunction.load(wrong_len)
 
 
@@ -264,3 +264,60 @@ def test_csv_with_byte_order_mark_and_semicolons(tmp_path):
     dirs, values, fmt = read_table(path)
     assert fmt == "csv (cartesian)" and np.array_equal(values, vals)
     np.testing.assert_allclose(dirs, d, atol=1e-15)
+
+
+def test_normal_equations_agree_with_the_svd_driver_and_fall_back_when_ill_conditioned():
+    d = _dirs(2000, seed=4)
+    vals = 0.3 + 0.05 * d[:, 2] ** 2 + 0.01 * d[:, 0] ** 6
+    c_auto, rep = fit_least_squares(d, vals, 8)
+    c_svd, rep_svd = fit_least_squares(d, vals, 8, method="svd")
+    # Reference: scipy.linalg.lstsq (gelsd) on the same design matrix; the condition estimate from the
+    # Gram matrix's eigenvalues equals the ratio of singular values (derived: sv(Y)^2 = eig(Y^T Y)).
+    assert rep.solver.startswith("normal") and rep_svd.solver.endswith("gelsd")
+    np.testing.assert_allclose(c_auto, c_svd, atol=1e-12)
+    assert rep.condition == pytest.approx(rep_svd.condition, rel=1e-6)
+    # Derived: points on one great circle leave harmonics vanishing there undetermined, so the
+    # Gram matrix is singular and the SVD driver (minimum-norm solution, exact rank) takes over.
+    ring = np.stack([np.cos(np.linspace(0, np.pi, 60)), np.sin(np.linspace(0, np.pi, 60)), np.zeros(60)], 1)
+    _, rep_ring = fit_least_squares(ring, np.full(60, 0.5), 4)
+    assert rep_ring.solver.endswith("gelsd") and rep_ring.rank < rep_ring.n_coeffs
+    with pytest.raises(ValueError, match="well-conditioned"):
+        fit_least_squares(ring, np.full(60, 0.5), 4, method="normal")
+
+
+def test_fast_csv_reader_equals_the_line_reader(tmp_path):
+    from retina.io import importers
+
+    d = _dirs(500, seed=8)
+    vals = 0.4 + 0.02 * d[:, 1] ** 2
+    path = tmp_path / "t.csv"
+    path.write_text("x, y, z, value\n" + "\n".join(f"{x:.17g}, {y:.17g}, {z:.17g}, {v:.17g}" for (x, y, z), v in zip(d, vals)))
+    lines = [(i + 1, ln) for i, ln in enumerate(path.read_text().splitlines())]
+    assert len(lines) == 501
+    fast = importers._csv_fast(lines, ",", [0, 1, 2, 3], 4)
+    slow = importers._csv_slow(path, lines, ",", importers._CART, [0, 1, 2, 3], 4)
+    # Reference: Python's float() on each cell (the line reader); both must round identically.
+    assert fast is not None and np.array_equal(fast, slow)
+
+
+def test_import_refuses_a_fit_beyond_the_memory_limit(tmp_path):
+    from retina.errors import ResourceError
+    from retina.io.importers import fit_bytes
+
+    d = _dirs(200, seed=2)
+    np.savez(tmp_path / "t.npz", directions=d, values=0.3 + 0.01 * d[:, 2] ** 2)
+    # Derived: 2 float64 copies of the (200, 45) design matrix of degree 8 = 2 * 8 * 200 * 45 bytes.
+    assert fit_bytes(200, 8) == 2 * 8 * 200 * 45
+    with pytest.raises(ResourceError, match="needs"):
+        import_table(tmp_path / "t.npz", 8, max_bytes=fit_bytes(200, 8) - 1)
+    assert import_table(tmp_path / "t.npz", 8, max_bytes=fit_bytes(200, 8)).degree == 8
+
+
+def test_degree_limit_of_yield_files_matches_the_lebedev_rules():
+    # The schema's degree cap is the largest degree retina.yieldfn accepts (scipy's Lebedev rules).
+    from retina.io.hdf5 import MAX_DEGREE
+    from retina.yieldfn import _check_degree
+
+    assert _check_degree(MAX_DEGREE) == MAX_DEGREE
+    with pytest.raises(InputError):
+        _check_degree(MAX_DEGREE + 2)

@@ -165,7 +165,8 @@ def test_replace_revalidates(folder):
        inc=st.floats(-90, 90, allow_nan=False),
        photons=st.lists(st.floats(1e-3, 1e9, allow_nan=False), min_size=1, max_size=5),
        degree=st.sampled_from([2, 4, 8, 16, 40]),
-       name=st.text(max_size=20))
+       # printable text: the schema refuses control characters (they break HDF5 attributes)
+       name=st.text(alphabet=st.characters(blacklist_categories=("Cc", "Cs")), max_size=20))
 def test_round_trip_property(seed, inc, photons, degree, name):
     # Derived: dump writes every value exactly (TOML floats round-trip through repr), so any valid
     # document loads back to an equal scenario.

@@ -245,7 +245,7 @@ def test_rf_yield_function_fits_and_records_provenance(tmp_path):
     yf = rf.rf_yield_function(sys_, 50.0, rf_MHz=1.4, rf_nT=500.0, degree=4, check_points=6)
     p = yf.provenance
     assert (p["rf_MHz"], p["rf_nT"], p["rf_direction"], p["rf_phase"]) == (1.4, 500.0, "perpendicular", "averaged")
-    assert p["rf_harmonics_max"] >= 2 and p["method"] == "floquet"
+    assert p["rf_harmonics_max"] >= 2 and p["method"] == "separable-floquet"  # chosen for an uncoupled pair
     dirs = unit(np.random.default_rng(5).normal(size=(3, 3)))
     direct = rf.yields_rf(sys_, 50.0, dirs, rf_MHz=1.4, rf_nT=500.0)
     static = YieldFunction.from_system(sys_, 50.0, 4)
@@ -352,8 +352,12 @@ def test_command_bad_input_names_the_option(tmp_path, extra, key):
     argv = [str(system), "-o", str(tmp_path / "x.h5")] + [x for kv in base.items() for x in kv]
     if extra[0] == "--spectrum":
         argv += extra
-    with pytest.raises(InputError, match=key):
-        cmd.run(parse(argv))
+        with pytest.raises(InputError, match=key):
+            cmd.run(parse(argv))
+    else:  # numeric options are checked while parsing (retina.commands._types): a usage error, exit 2
+        with pytest.raises(SystemExit) as info:
+            parse(argv)
+        assert info.value.code == 2
     assert not (tmp_path / "x.h5").exists()
 
 

@@ -5,4 +5,5 @@ collection) and ``run(args) -> int`` (the exit status).  :mod:`retina.cli` impor
 here, in this order, which is also the order of ``retina --help``.
 """
 
-COMMANDS: tuple[str, ...] = ("yields", "patterns", "scan", "precision", "trials", "report", "demo", "rf", "view")
+COMMANDS: tuple[str, ...] = ("yields", "patterns", "scan", "precision", "trials", "report", "demo", "sweep", "export", "rf",
+                             "view")

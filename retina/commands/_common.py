@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from retina.commands._types import MAX_MEMORY_GB, whole
 from retina.errors import InputError
 from retina.scenario import Scenario
 
@@ -30,11 +31,14 @@ def add_common_arguments(p, *, output_required: bool = False, default_output: st
     p.add_argument("--force", action="store_true", help="write into an existing, non-empty output folder")
     p.add_argument("--quick", action="store_true",
                    help="reduced grids, receptors, repeats and trials (a smoke test, not a result)")
-    p.add_argument("--seed", type=int, default=None, help="override the scenario's [scenario] seed")
+    p.add_argument("--seed", type=whole("a seed", low=0, high=2**63 - 1), default=None, help="override the scenario's [scenario] seed")
     p.add_argument("--formats", default=None, metavar="LIST",
                    help="figure formats, comma-separated among png,svg,pdf (default: the scenario's)")
-    p.add_argument("--dpi", type=int, default=None, help="PNG resolution (default: the scenario's, 300)")
+    p.add_argument("--dpi", type=whole("a resolution in dots per inch", low=50, high=1200), default=None, help="PNG resolution (default: the scenario's, 300)")
     p.add_argument("--no-animation", action="store_true", help="skip the head-scan GIF")
+    p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
+                   help="refuse to start a stage whose memory estimate exceeds this (default: 60 %% of "
+                        "the available memory)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bars; print only the summary")
 
 
@@ -130,9 +134,13 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
         raise InputError("output folder exists and is not empty; pass --force to overwrite it", source=out)
     if not out.parent.exists():
         raise InputError(f"folder {out.parent} does not exist", source=out)
+    from retina.io.atomic import check_folder_writable
+
+    check_folder_writable(out.parent)  # before any computation
     bars = ProgressBars(enabled=not args.quiet)
     try:
-        res = run(sc, stages=stages, progress_factory=bars)
+        max_bytes = None if args.max_memory_gb is None else int(args.max_memory_gb * 2**30)
+        res = run(sc, stages=stages, progress_factory=bars, max_bytes=max_bytes)
         res.provenance["quick"] = bool(args.quick)
         o = res.scenario["output"]
         paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],

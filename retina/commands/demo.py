@@ -41,8 +41,10 @@ def register(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
-                    "order study, trials) on the bundled invented scenario and write results.h5, figures and an "
-                    "HTML + Markdown report.",
+                    "order study, trials, RF conditions and RF frequency sweep) on the bundled invented scenario and write "
+                    "results.h5, figures and an HTML + Markdown report.  RF exposure: the RF results describe a "
+                    "model; work with RF transmitters follows the usual cautions and local regulations, and "
+                    "animal experiments need ethics approval.",
         epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--scenario", metavar="SCENARIO.toml", default=None,
                    help="run this scenario instead of the bundled one")
@@ -51,5 +53,6 @@ def register(subparsers) -> None:
 
 def run(args) -> int:
     path = Path(args.scenario) if args.scenario else bundled_scenario()
-    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials"),
+    return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials", "rf",
+                                      "rf_sweep"),
                                scenario_path=path)

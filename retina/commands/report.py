@@ -6,6 +6,7 @@ import argparse
 import time
 from pathlib import Path
 
+from retina.commands._types import whole
 from retina.errors import InputError
 
 _EXAMPLES = """\
@@ -31,7 +32,7 @@ def register(subparsers) -> None:
     p.add_argument("--force", action="store_true", help="write into an existing, non-empty folder")
     p.add_argument("--formats", default="png,svg", metavar="LIST",
                    help="figure formats among png,svg,pdf (default: png,svg)")
-    p.add_argument("--dpi", type=int, default=300, help="PNG resolution (default: 300)")
+    p.add_argument("--dpi", type=whole("a resolution in dots per inch", low=50, high=1200), default=300, help="PNG resolution (default: 300)")
     p.add_argument("--no-animation", action="store_true", help="skip the head-scan GIF")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bars")
 
@@ -53,6 +54,13 @@ def run(args) -> int:
     src = Path(args.results)
     res = load_results(src)
     out = Path(args.output)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.force:
+        raise InputError("output folder exists and is not empty; pass --force to overwrite it", source=out)
+    if not out.parent.exists():
+        raise InputError(f"folder {out.parent} does not exist", source=out)
+    from retina.io.atomic import check_folder_writable
+
+    check_folder_writable(out.parent)
     same = out.exists() and (out / "results.h5").exists() and (out / "results.h5").resolve() == src.resolve()
     bars = ProgressBars(enabled=not args.quiet)
     try:

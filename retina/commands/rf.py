@@ -15,6 +15,7 @@ import time
 
 import numpy as np
 
+from retina.commands._types import MAX_MEMORY_GB, real, whole
 from retina.errors import InputError
 
 _EXAMPLES = """\
@@ -25,7 +26,8 @@ examples:
 
 The RF field is B1 cos(2 pi f t + theta) along the chosen direction, averaged over the phase theta at
 which the pair is born; "perpendicular" also averages over the azimuth of the RF field about the
-static field.  The method (Floquet, exact) is described in retina/spin/rf.py.
+static field.  The methods (exact: separable RF when the pair allows it, else whole-pair Floquet)
+are described in retina/spin/rf_separable.py and retina/spin/rf.py.
 
 Modelling only; RF transmitters are regulated: follow local rules on licensing and exposure.
 """
@@ -34,7 +36,7 @@ Modelling only; RF transmitters are regulated: follow local rules on licensing a
 def register(subparsers) -> None:
     p = subparsers.add_parser(
         "rf",
-        help="the yield function under a radio-frequency field (exact Floquet method) into an HDF5 file",
+        help="the yield function under a radio-frequency field (exact RF methods) into an HDF5 file",
         description="Compute a radical pair's phase-averaged yield function under a static field plus a "
                     "linearly polarised radio-frequency field, compare it with the static yield function, "
                     "and write the RF one with its provenance to HDF5.",
@@ -43,19 +45,19 @@ def register(subparsers) -> None:
     )
     p.add_argument("system", metavar="SYSTEM.toml", help="the spin-system file (see assets/example_pair.toml)")
     p.add_argument("-o", "--output", metavar="OUT.h5", required=True, help="the HDF5 file to write (RF yield function)")
-    p.add_argument("--rf-MHz", type=float, required=True, metavar="F", help="RF frequency in MHz")
-    p.add_argument("--rf-nT", type=float, required=True, metavar="B1", help="RF amplitude in nanotesla")
-    p.add_argument("--field-uT", type=float, default=50.0, metavar="B",
+    p.add_argument("--rf-MHz", type=real("a frequency in MHz", low=0.0, low_open=True, high=1e6), required=True, metavar="F", help="RF frequency in MHz")
+    p.add_argument("--rf-nT", type=real("an amplitude in nT", low=0.0, low_open=True, high=1e9), required=True, metavar="B1", help="RF amplitude in nanotesla")
+    p.add_argument("--field-uT", type=real("a field in microtesla", low=0.0, low_open=True, high=1e7), default=50.0, metavar="B",
                    help="static field strength in microtesla (default: 50)")
     p.add_argument("--direction", choices=("perpendicular", "parallel"), default="perpendicular",
                    help="RF field relative to the static field (default: perpendicular, averaged over azimuth)")
-    p.add_argument("--degree", type=int, default=8, metavar="L",
+    p.add_argument("--degree", type=whole("an even degree", low=2, high=1000), default=8, metavar="L",
                    help="largest (even) spherical-harmonic degree of the fits (default: 8)")
-    p.add_argument("--tol", type=float, default=1e-10, metavar="T",
+    p.add_argument("--tol", type=real("a tolerance", low=0.0, low_open=True, high=0.1), default=1e-10, metavar="T",
                    help="convergence tolerance of the Floquet and azimuth expansions, yield units (default: 1e-10)")
     p.add_argument("--spectrum", metavar="START:STOP:COUNT", default=None,
                    help="also print the yield change against frequency, COUNT log-spaced values in MHz")
-    p.add_argument("--max-memory-gb", type=float, default=None, metavar="GB",
+    p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
                    help="refuse to start when the memory estimate exceeds this")
     p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar, summary only")

@@ -8,14 +8,19 @@ atomically, print a summary in words on stdout.
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 import time
 
 import numpy as np
 
+from retina.commands._types import MAX_MEMORY_GB, real, whole
 from retina.errors import InputError
 
 METHODS = ("auto", "hilbert", "liouville", "separable", "fast-separable", "sampled")
+MAX_CHECK_POINTS = 100_000
+"""More check directions than this add nothing to the truncation-error estimate and were not counted
+by the engine's memory estimate."""
 
 _EXAMPLES = """\
 examples:
@@ -41,15 +46,15 @@ def register(subparsers) -> None:
     )
     p.add_argument("system", metavar="SYSTEM.toml", help="the spin-system file (see assets/example_pair.toml)")
     p.add_argument("-o", "--output", metavar="OUT.h5", required=True, help="the HDF5 file to write")
-    p.add_argument("--field-uT", type=float, default=50.0, metavar="B",
+    p.add_argument("--field-uT", type=real("a field in microtesla", low=0.0, low_open=True, high=1e7), default=50.0, metavar="B",
                    help="field strength in microtesla (default: 50)")
-    p.add_argument("--degree", type=int, default=16, metavar="L",
+    p.add_argument("--degree", type=whole("an even degree", low=2, high=1000), default=16, metavar="L",
                    help="largest (even) spherical-harmonic degree of the fit (default: 16)")
     p.add_argument("--method", choices=METHODS, default="auto",
                    help="spin-dynamics method; auto picks the cheapest exact one (default: auto)")
-    p.add_argument("--check-points", type=int, default=200, metavar="N",
+    p.add_argument("--check-points", type=whole("a number of directions", low=1, high=MAX_CHECK_POINTS), default=200, metavar="N",
                    help="independent directions on which the truncation error is measured (default: 200)")
-    p.add_argument("--max-memory-gb", type=float, default=None, metavar="GB",
+    p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
                    help="refuse to start when the engine's memory estimate exceeds this")
     p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
     p.add_argument("--no-cache", action="store_true", help="neither read nor write the result cache")
@@ -60,6 +65,8 @@ def register(subparsers) -> None:
 
 
 def _fmt_seconds(s: float) -> str:
+    if not math.isfinite(s):
+        return "forever"
     if s < 1:
         return f"{s * 1e3:.0f} ms"
     if s < 120:
@@ -70,6 +77,8 @@ def _fmt_seconds(s: float) -> str:
 
 
 def _fmt_bytes(b: float) -> str:
+    if b >= 2**40 * 1024:  # an exact integer may be beyond the float range
+        return f"10^{int(math.log10(b)) - 9} GB"
     for unit, size in (("GB", 2**30), ("MB", 2**20), ("kB", 2**10)):
         if b >= size:
             return f"{b / size:.1f} {unit}"
@@ -124,8 +133,9 @@ def run(args) -> int:
     from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
 
     t0 = time.perf_counter()
-    if args.check_points < 1:
-        raise InputError(f"expected at least 1, got {args.check_points}", key="--check-points")
+    if not 1 <= args.check_points <= MAX_CHECK_POINTS:
+        raise InputError(f"expected 1 to {MAX_CHECK_POINTS:,} directions, got {args.check_points}",
+                         key="--check-points")
     system, field, degree, max_bytes = common_inputs(args)
 
     method = engine.choose_method(system) if args.method == "auto" else args.method

@@ -27,6 +27,7 @@ from __future__ import annotations
 from retina.figures._base import DOUBLE_IN, SINGLE_IN, save_figure
 from retina.figures.curves import disorder_tolerance, precision_curves
 from retina.figures.order import order_study
+from retina.figures.rf import rf_conditions, rf_sweep
 from retina.figures.sphere_maps import yield_sphere
 from retina.figures.trials import trial_histograms
 from retina.figures.visual_fields import modulation_fields, scan_animation, scan_filmstrip
@@ -43,4 +44,6 @@ __all__ = [
     "disorder_tolerance",
     "order_study",
     "trial_histograms",
+    "rf_conditions",
+    "rf_sweep",
 ]

@@ -1,19 +1,13 @@
 """The native HDF5 file of a yield function.
 
-Layout (format version 1)
--------------------------
-::
+Layout (format version 1; the table is rendered from :data:`YIELD_SCHEMA`, which the writer
+checks its own file against and the reader checks every file against; see :mod:`retina.io.schema`)
+---------------------------------------------------------------------------------------------------
+/provenance is a group: the provenance dict (retina.yieldfn docstring), one attribute per str /
+int / float / bool entry, a sub-group per nested dict, and a scalar UTF-8 dataset for strings longer
+than 1024 characters (e.g. spin_system_toml, the spin system as canonical TOML text).
 
-    /                            attrs: format = "retina-compass yield function", format_version = 1
-    /yield_function/coeffs       float64 (K,)  even-degree real-SH coefficients (retina.sphere layout)
-        attrs: degree (int), basis = "real-sh-even-orthonormal-no-cs", mean (float, informative),
-               fit_error (float; absent when unknown)
-    /provenance                  group: the provenance dict (retina.yieldfn docstring)
-        attrs                    one attribute per str / int / float / bool entry
-        <name> (group)           a nested dict, recursively
-        <name> (scalar dataset)  strings longer than 1024 characters, e.g. spin_system_toml
-                                 (the spin system as canonical TOML text), UTF-8
-
+{schema}
 Writing is atomic (:mod:`retina.io.atomic`); reading returns the coefficients bit for bit and the
 provenance as the same Python types (str, int, float, bool, dict).
 
@@ -27,6 +21,7 @@ provenance of every yield function.
 from __future__ import annotations
 
 import hashlib
+import math
 import threading
 from pathlib import Path
 from typing import NamedTuple
@@ -35,6 +30,7 @@ import numpy as np
 
 from retina.errors import InputError
 from retina.io.atomic import atomic_path
+from retina.io.schema import FileSchema, Group, Item, check_written, describe, validate
 
 __all__ = ["save_yield_function", "read_yield_function", "YieldRecord", "content_hash", "BASIS", "FORMAT",
            "FORMAT_VERSION"]
@@ -45,6 +41,44 @@ BASIS = "real-sh-even-orthonormal-no-cs"
 """The coefficient basis: real, orthonormal, even-degree spherical harmonics without the
 Condon-Shortley phase (:mod:`retina.sphere`)."""
 _LONG_STRING = 1024
+MAX_DEGREE = 64
+"""Largest degree a yield-function file may hold: the largest the Lebedev rules of scipy support
+(checked against :func:`retina.yieldfn._check_degree` in the tests)."""
+
+
+def _n_coeffs(degree: int) -> int:
+    if degree < 0 or degree % 2 or degree > MAX_DEGREE:
+        raise ValueError("an even degree between 2 and 64")
+    return (degree + 1) * (degree + 2) // 2
+
+
+def _mean_is_a_yield(values: dict) -> str:
+    c = values.get("yield_function/coeffs")
+    if c is None:
+        return ""
+    mean = float(np.asarray(c)[0]) / math.sqrt(4 * math.pi)
+    if not 0 < mean <= 1 + 1e-9:
+        return (f"the mean yield (first coefficient / sqrt(4 pi)) is {mean:.6g}; expected a reaction yield "
+                "in (0, 1]")
+    return ""
+
+
+YIELD_SCHEMA = FileSchema(
+    format="retina-compass yield function",
+    version=1,
+    groups=(
+        Group("yield_function", (
+            Item("coeffs", "float", ("K",), doc="even-degree real-SH coefficients (retina.sphere layout)"),
+            Item("coeffs@degree", "int", attr=True, low=2, high=MAX_DEGREE, doc="even L"),
+            Item("coeffs@basis", "str", attr=True, choices=(BASIS,)),
+            Item("coeffs@mean", "float", attr=True, required=False, low=0, high=1, doc="informative"),
+            Item("coeffs@fit_error", "float", attr=True, required=False, low=0, doc="absent when unknown"),
+        ), doc="the coefficients"),
+    ),
+    derived={"K": ("yield_function", "coeffs@degree", _n_coeffs)},
+    format_required=False,
+    checks=(("/yield_function/coeffs", _mean_is_a_yield),),
+)
 
 
 def content_hash(coeffs: np.ndarray, degree: int) -> str:
@@ -116,15 +150,25 @@ def _plain(value):
     return value
 
 
-def _read_dict(group) -> dict:
+def _read_dict(group, source=None, where: str = "/provenance") -> dict:
+    """A provenance group back to a dict; anything but scalars, strings and sub-groups is refused."""
     import h5py
 
-    out = {k: _plain(v) for k, v in group.attrs.items()}
+    out = {}
+    for k, v in group.attrs.items():
+        p = _plain(v)
+        if not isinstance(p, (str, int, float, bool)):
+            raise InputError(f"expected a number, flag or text, got an array of shape {np.shape(v)}",
+                             source=source, key=f"{where}@{k}")
+        out[k] = p
     for key, item in group.items():
         if isinstance(item, h5py.Group):
-            out[key] = _read_dict(item)
-        else:
+            out[key] = _read_dict(item, source, f"{where}/{key}")
+        elif item.shape == () and item.dtype.kind in "OSU":
             out[key] = _plain(item[()])
+        else:
+            raise InputError(f"expected a scalar text dataset, got {item.dtype} of shape {item.shape}",
+                             source=source, key=f"{where}/{key}")
     return out
 
 
@@ -163,6 +207,7 @@ def save_yield_function(yf, path: str | Path, *, force: bool = False) -> Path:
             if yf.fit_error is not None:
                 ds.attrs["fit_error"] = np.float64(yf.fit_error)
             _write_dict(f.create_group("provenance"), yf.provenance, "")
+        check_written(tmp, YIELD_SCHEMA, target=path)
     return path
 
 
@@ -197,24 +242,22 @@ def _load(path: Path):
         raise InputError("not an HDF5 file; expected a yield-function file written by retina-compass",
                          source=path) from None
     with f:
-        if "yield_function/coeffs" not in f:
+        if f.attrs.get("format") is None and "yield_function/coeffs" not in f:
             raise InputError("no dataset /yield_function/coeffs; not a retina-compass yield-function file "
                              "(import other engines' tables with retina.io.importers)", source=path,
                              key="/yield_function/coeffs")
-        ds = f["yield_function/coeffs"]
-        if not isinstance(ds, h5py.Dataset):
-            raise InputError("expected a dataset", source=path, key="/yield_function/coeffs")
-        if "degree" not in ds.attrs:
-            raise InputError("missing attribute 'degree'", source=path, key="/yield_function/coeffs")
-        basis = _plain(ds.attrs.get("basis", ""))
-        if basis != BASIS:
-            raise InputError(f"basis is {basis!r}; expected {BASIS!r}", source=path,
-                             key="/yield_function/coeffs.basis")
-        coeffs = np.asarray(ds[()], dtype=float)
-        degree = int(ds.attrs["degree"])
-        if coeffs.ndim != 1 or degree < 0 or degree % 2 or coeffs.shape[0] != sphere.n_coeffs(degree):
-            raise InputError(f"coefficient vector of shape {coeffs.shape} does not match degree {degree}",
-                             source=path, key="/yield_function/coeffs")
-        fit_error = _plain(ds.attrs["fit_error"]) if "fit_error" in ds.attrs else None
-        prov = _read_dict(f["provenance"]) if "provenance" in f else {}
+        values = validate(f, YIELD_SCHEMA, path)
+        coeffs = np.asarray(values["yield_function/coeffs"], dtype=float)
+        degree = int(values["yield_function/coeffs@degree"])
+        fe = values.get("yield_function/coeffs@fit_error")
+        fit_error = None if fe is None else float(fe)
+        prov = {}
+        if "provenance" in f:
+            if not isinstance(f["provenance"], h5py.Group):
+                raise InputError("expected a group of provenance attributes, got a dataset", source=path,
+                                 key="/provenance")
+            prov = _read_dict(f["provenance"], path, "/provenance")
     return YieldRecord(coeffs, degree, prov, fit_error)
+
+
+__doc__ = __doc__.replace("{schema}", describe(YIELD_SCHEMA))

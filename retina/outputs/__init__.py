@@ -8,7 +8,6 @@
 from __future__ import annotations
 
 import logging
-import os
 from pathlib import Path
 
 from retina.build import ProgressFactory, no_progress
@@ -29,8 +28,9 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
 
     ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
     replaced and other files are kept).  Everything is first written into a hidden staging folder
-    beside ``outdir`` and moved in only when complete, so an interrupted or failed run leaves
-    ``outdir`` as it was.
+    beside ``outdir`` and published in one rename when complete
+    (:func:`retina.io.atomic.publish_folder`), so an interrupted, failed or killed run leaves
+    ``outdir`` as it was; a later run removes the stale staging folder.
 
     Parameters
     ----------
@@ -62,8 +62,8 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
         When ``outdir`` is a file, is not empty without ``force``, or its parent is missing.
     """
     import shutil
-    import tempfile
 
+    from retina.io.atomic import check_folder_writable, clean_stale_folders, make_stage_folder, publish_folder
     from retina.outputs.report import write_report
 
     outdir = Path(outdir)
@@ -73,8 +73,10 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
         raise InputError("folder exists and is not empty; pass --force to overwrite it", source=outdir)
     if not outdir.parent.exists():
         raise InputError(f"folder {outdir.parent} does not exist", source=outdir)
+    check_folder_writable(outdir.parent)
+    clean_stale_folders(outdir)
     pf = progress_factory or no_progress
-    stage = Path(tempfile.mkdtemp(prefix=f".{outdir.name}.", suffix=".partial", dir=outdir.parent))
+    stage = make_stage_folder(outdir)
     try:
         if save_results:
             _save(res, stage / "results.h5", force=True)
@@ -87,13 +89,7 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
             scenario_text=res.provenance.get("scenario_toml", ""),
             provenance={k: v for k, v in res.provenance.items() if k not in ("scenario_toml", "yield_provenance")},
             force=True)
-        outdir.mkdir(exist_ok=True)
-        for src in sorted(stage.rglob("*")):
-            if src.is_file():
-                dst = outdir / src.relative_to(stage)
-                dst.parent.mkdir(parents=True, exist_ok=True)
-                os.chmod(src, 0o644)  # staging files are private (mkstemp); a report is for reading
-                os.replace(src, dst)
+        publish_folder(stage, outdir)
     finally:
         shutil.rmtree(stage, ignore_errors=True)
     _log.info("wrote %s (results.h5, figures/, index.html, report.md)", outdir)

@@ -4,6 +4,7 @@ builders of :mod:`retina.figures`, with captions carrying units and parameters.
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -47,7 +48,8 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     params = params_text(res)
     entries = []
     formats = tuple(formats)
-    plan = [k for k in ("yield", "patterns", "scan", "gif", "precision", "disorder", "order", "trials")]
+    plan = [k for k in ("yield", "patterns", "scan", "gif", "precision", "disorder", "order", "trials", "rf",
+                        "rf_sweep")]
     done = 0
 
     def add(fig, stem, anim=False, fmts=formats):
@@ -133,6 +135,29 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
                                  f"{len(t['scan_offsets_deg'])} poses per trial",
                                  path=folder / "trial_histograms", formats=formats, dpi=dpi)
         add(fig, "trial_histograms")
+    if "rf" in g:
+        from retina.outputs.text import RF_CAUTION
+
+        q = g["rf"]
+        conds = [q["conditions"][f"c{i}"] for i in range(len(json.loads(q["names"])))]
+        fig = F.rf_conditions([c["name"] for c in conds], np.array([c["bound_single_deg"] for c in conds]),
+                              np.array([c["trial_r"] for c in conds]), json.loads(q["light_names"]),
+                              params=params + f"; RF yield functions at degree {int(q['degree'])}. " + RF_CAUTION,
+                              path=folder / "rf_conditions", formats=formats, dpi=dpi)
+        add(fig, "rf_conditions")
+    if "rf_sweep" in g:
+        from retina.outputs.text import RF_CAUTION
+
+        w = g["rf_sweep"]
+        li = list(json.loads(w["light_names"])).index(w["sweep_light"])
+        fig = F.rf_sweep(w["freqs_MHz"], w["lifetimes_us"], w["control_bound_deg"][:, li],
+                         w["perp_bound_deg"][:, :, li], w["par_bound_deg"][:, :, li], w["control_r"], w["perp_r"],
+                         w["par_r"], amplitude_nT=float(w["amplitude_nT"]), light=str(w["sweep_light"]),
+                         onset_MHz=w["onset_MHz"],
+                         params=params + f"; degree {int(w['degree'])}; weak-field parameter gamma_e B1 / k = "
+                         + ", ".join(f"{e:.2g}" for e in w["eta"]) + ". " + RF_CAUTION,
+                         path=folder / "rf_sweep", formats=formats, dpi=dpi)
+        add(fig, "rf_sweep")
     return entries
 
 

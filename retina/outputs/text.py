@@ -11,7 +11,12 @@ import numpy as np
 
 from retina.results import Results
 
-__all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_text"]
+__all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_text", "RF_CAUTION"]
+
+#: Shown beside every RF result.
+RF_CAUTION = ("RF exposure: these numbers describe a model. Work with RF transmitters follows the usual cautions "
+              "(exposure limits for people, licensed frequencies and shielding) and local regulations, and "
+              "experiments with animals need the approval of the responsible ethics committee.")
 
 
 def params_text(res: Results) -> str:
@@ -227,6 +232,80 @@ def key_numbers(res: Results) -> list:
             "Rayleigh test p from Zar's approximation; V-test "
             "against the goal, p exact for the sample size (the distribution tabulated in Zar 2010, "
             "Appendix Table B.35; ch. 27).")))
+    secs += _rf_sections(g)
+    return secs
+
+
+def _rf_text(rec: dict) -> str:
+    """A condition record (:func:`retina.stages.rf.condition_record`) in words."""
+    if rec["kind"] == "off":
+        return "no RF (control)"
+    d = rec["direction"]
+    if d == "coil":
+        where = f"coil along {rec['coil']} (north-east-down), {rec['angle_deg']:.0f} deg to the field"
+    elif d == "angle":
+        where = f"{rec['angle_deg']:g} deg to the field"
+    else:
+        where = f"{d} to the field"
+    if rec["kind"] == "tone":
+        return f"{rec['frequency_MHz']:g} MHz, {rec['amplitude_nT']:g} nT, {where}"
+    dens = (f"{rec['asd_nT_per_rtHz']:g} nT/sqrt(Hz)" if rec.get("asd_nT_per_rtHz") is not None
+            else f"{rec['rms_nT']:g} nT rms")
+    return f"band {rec['band_MHz'][0]:g}-{rec['band_MHz'][1]:g} MHz, {dens}, {where}"
+
+
+def _rf_sections(g) -> list:
+    import json
+
+    from retina.outputs.report import Section
+
+    secs = []
+    if "rf" in g:
+        q = g["rf"]
+        names = json.loads(q["names"])
+        lights = json.loads(q["light_names"])
+        rows = []
+        for i, nm in enumerate(names):
+            c = q["conditions"][f"c{i}"]
+            rec = json.loads(c["record"])
+            rows.append((f"{nm}: {_rf_text(rec)}; relative anisotropy", f"{100 * c['relative_anisotropy']:.4f}", "%"))
+            for j, ln in enumerate(lights):
+                rows.append((f"{nm}, {ln} light: bound single pose, scan | trial r",
+                             f"{bound_text(c['bound_single_deg'][j])}, {bound_text(c['bound_scan_deg'][j])} | "
+                             f"{c['trial_r'][j]:.3f}", "deg | "))
+            if "eta" in c:
+                rows.append((f"{nm}: weak-field parameter gamma_e b_rms / k (second order holds for << 1)",
+                             f"{c['eta']:.3g}" + ("" if c["weak_valid"] else " (too strong: not valid)"), ""))
+        secs.append(Section("Radio-frequency conditions", rows, note=(
+            f"Every condition at spherical-harmonic degree {int(q['degree'])}, the control included (same grid). "
+            "Tones: exact (separable RF method or whole-pair Floquet), averaged over the RF phase and the azimuth "
+            "about the static field; bands: second order in the amplitude (incoherent sum of the frequency "
+            "components). Trials use the same random numbers for every condition. " + RF_CAUTION)))
+    if "rf_sweep" in g:
+        w = g["rf_sweep"]
+        li = json.loads(w["light_names"]).index(w["sweep_light"])
+        methods = json.loads(w["method"])
+        rows = []
+        for t, tau in enumerate(w["lifetimes_us"]):
+            on = w["onset_MHz"][t]
+            eff = w["effect_onset_MHz"][t]
+            rel = w["perp_bound_deg"][t, :, li] / w["control_bound_deg"][t, li] - 1.0
+            relp = w["par_bound_deg"][t, :, li] / w["control_bound_deg"][t, li] - 1.0
+            rows += [
+                (f"lifetime {tau:g} us: onset of disorientation (bound x {w['onset_factor']:g})",
+                 "none in the sweep" if not np.isfinite(on) else f"{on:g}", "MHz"),
+                (f"lifetime {tau:g} us: onset of the effect (half its largest size)",
+                 "n/a" if not np.isfinite(eff) else f"{eff:g}", "MHz"),
+                (f"lifetime {tau:g} us: largest bound change, perpendicular | parallel",
+                 f"{100 * rel[np.argmax(np.abs(rel))]:+.3g} | {100 * relp[np.argmax(np.abs(relp))]:+.3g}", "%"),
+                (f"lifetime {tau:g} us: trial r without RF | lowest with perpendicular RF",
+                 f"{w['control_r'][t]:.3f} | {np.min(w['perp_r'][t]):.3f}", ""),
+                (f"lifetime {tau:g} us: weak-field parameter gamma_e B1 / k; method",
+                 f"{w['eta'][t]:.3g}; {methods[t]}", "")]
+        secs.append(Section(f"RF frequency sweep ({w['amplitude_nT']:g} nT, {w['sweep_light']} light)", rows,
+                            note=("Frequencies " + ", ".join(f"{f:g}" for f in w["freqs_MHz"]) + " MHz. Onset of "
+                                  "disorientation: the lowest swept frequency at which the perpendicular field's "
+                                  "single-pose bound is at least twice the bound without RF. " + RF_CAUTION)))
     return secs
 
 
@@ -300,5 +379,12 @@ def summary_text(res: Results, paths: dict, seconds: float) -> str:
         for nm, lv in g["trials"]["levels"].items():
             lines.append(f"  trials, {nm} light: mean {lv['mean_deg']:.0f} deg, r = {lv['r']:.2f}, "
                          f"Rayleigh p = {lv['rayleigh_p']:.2g}")
+    if "rf_sweep" in g:
+        w = g["rf_sweep"]
+        lines.append("  RF sweep onset of disorientation: " + ", ".join(
+            f"{tau:g} us: " + ("none" if not np.isfinite(o) else f"{o:g} MHz")
+            for tau, o in zip(w["lifetimes_us"], w["onset_MHz"])) + f" (at {w['amplitude_nT']:g} nT)")
+    if "rf" in g or "rf_sweep" in g:
+        lines.append("  " + RF_CAUTION)
     lines.append(f"  report: {paths['html']}  (Markdown: {paths['markdown'].name}, data: {paths['results'].name})")
     return "\n".join(lines)

@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import functools
 import logging
+import math
 import time
 from dataclasses import dataclass
 
@@ -122,6 +123,10 @@ def _eigh_constant() -> float:
     return best / d**3
 
 
+#: Largest Hilbert dimension the time model is evaluated for; beyond it the estimate is infinite time
+#: and the exact byte count of the Hamiltonian (so the memory guard refuses; no float overflow).
+MAX_ESTIMATED_DIMENSION = 2**32
+
 #: Fixed Python and LAPACK-call overhead per direction, seconds (measured on small pairs, d = 16).
 _PER_DIRECTION = 3e-5
 
@@ -199,7 +204,11 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
     from retina.spin.hilbert import chunk_size
 
     n = max(int(n_directions), 0)
-    d = system.dimension
+    d = int(system.dimension)  # an exact Python integer (no 64-bit wrap)
+    if d > MAX_ESTIMATED_DIMENSION:
+        # beyond any machine: exact bytes of the Hamiltonian alone, no float time model (it would overflow)
+        return Cost(float("inf"), 6 * 16 * d * d, method,
+                    "a Hilbert space beyond the largest dimension this engine estimates (2^32)")
     base = 6 * 16 * d * d  # Hamiltonian parts and projectors
     if method == "hilbert":
         per = 4 * 16 * d * d
@@ -298,7 +307,10 @@ def _resource_hint(system, method: str) -> str:
 
 
 def _fmt_gib(b: float) -> str:
-    return f"{b / _GIB:.3g} GiB"
+    try:
+        return f"{b / _GIB:.3g} GiB"
+    except OverflowError:  # an exact integer beyond the float range
+        return f"10^{int(math.log10(b)) - 9} GiB"
 
 
 def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None,

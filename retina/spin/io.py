@@ -42,6 +42,28 @@ Tables and keys
 ``[relaxation]`` (optional)
     ``random_field_per_s`` (one float for both electrons, or ``[k_A, k_B]``), ``st_dephasing_per_s``.
 
+Physical ranges (:data:`LIMITS`; outside them the value is refused, naming the key)
+---------------------------------------------------------------------------------
+====================================================  ==========================================
+key                                                   accepted range
+====================================================  ==========================================
+``nuclei[i].spin``                                    1/2 ... 8 (no known nucleus exceeds 7,
+                                                      from memory)
+``hyperfine_mT``, ``principal_mT``, ``exchange_mT``,  each entry within +/- 1e4 mT (10 T; organic
+``dipolar_mT``                                        radicals couple below ~100 mT, common
+                                                      practice, no source)
+``g``; ``g_tensor`` entries (and its trace / 3)       0.1 ... 20; -20 ... 20 (and 0.1 ... 20)
+``dipolar.distance_nm``                               0.1 ... 1000 nm
+``dipolar.direction``, ``orientation.axes`` entries   within +/- 1e6 (the direction is normalised)
+``orientation.euler_zyz_deg``                         -720 ... 720 degrees
+``lifetime_us``                                       1e-6 ... 1e6 us (1 ps to 1 s)
+``k_*_per_s``, ``random_field_per_s``,                0 ... 1e13 s^-1
+``st_dephasing_per_s``
+``name``, ``label`` (strings)                         at most 200 printable characters
+``radical_x.nuclei``                                  at most 64 nuclei per radical
+the file                                              a regular file of at most 1 MiB
+====================================================  ==========================================
+
 Every problem raises one :class:`retina.errors.InputError` naming the file, the dotted key (for
 example ``radical_a.nuclei[1].spin``, counting from 0) and what was expected.  Unknown keys are
 errors too, with a "did you mean" suggestion.
@@ -78,6 +100,25 @@ __all__ = [
 
 FREE_ELECTRON_G = abs(sc.physical_constants["electron g factor"][0])
 
+LIMITS: dict[str, tuple[float, float, str]] = {
+    "spin": (0.5, 8.0, ""),
+    "coupling_mT": (-1e4, 1e4, " mT"),
+    "g": (0.1, 20.0, ""),
+    "g_tensor": (-20.0, 20.0, ""),
+    "distance_nm": (0.1, 1e3, " nm"),
+    "axes": (-1e6, 1e6, ""),
+    "angle_deg": (-720.0, 720.0, " degrees"),
+    "lifetime_us": (1e-6, 1e6, " us"),
+    "rate_per_s": (0.0, 1e13, " s^-1"),
+}
+"""Physical range of each kind of key: (lowest, highest, unit); see the module docstring."""
+MAX_NUCLEI = 64
+"""Most nuclei per radical (a file may describe more than any engine can compute; the memory guard
+of :mod:`retina.spin.engine` refuses those with the exact memory figure)."""
+MAX_NAME_CHARS = 200
+MAX_FILE_BYTES = 1 << 20
+"""Spin files larger than 1 MiB are refused before parsing."""
+
 _TOP_KEYS = ("pair", "radical_a", "radical_b", "coupling", "kinetics", "relaxation")
 _PAIR_KEYS = ("name", "initial_state", "reported_yield")
 _RADICAL_KEYS = ("label", "g", "g_tensor", "nuclei")
@@ -106,6 +147,7 @@ def point_dipole_mT(distance_nm: float, direction) -> np.ndarray:
         ``D = (mu_0 / 4 pi) (g_e mu_B / r^3) (I - 3 n n^T)`` in millitesla (CODATA constants).
     """
     n = np.asarray(direction, dtype=float)
+    n = n / np.max(np.abs(n))  # first to order 1, so the norm cannot overflow or underflow
     n = n / np.linalg.norm(n)
     r = float(distance_nm) * 1e-9
     d_tesla = sc.mu_0 / (4 * math.pi) * FREE_ELECTRON_G * sc.physical_constants["Bohr magneton"][0] / r**3
@@ -166,10 +208,15 @@ def _is_number(value: Any) -> bool:
 
 
 def _number(ctx: _Ctx, value: Any, where: str, *, minimum: float | None = None,
-            strict: bool = False, what: str = "a number") -> float:
+            strict: bool = False, what: str = "a number", limit: str | None = None) -> float:
+    """A finite number; ``limit`` names a row of :data:`LIMITS` (the physical range of the key)."""
     if not _is_number(value):
         raise ctx.fail(where, f"expected {what}, got {_type_name(value)}")
-    x = float(value)
+    try:
+        x = float(value)
+    except OverflowError:  # an integer beyond the float range
+        raise ctx.fail(where, f"expected {what} within the physical range, got an integer of "
+                              f"{len(str(abs(value)))} digits") from None
     if not math.isfinite(x):
         raise ctx.fail(where, f"expected a finite number, got {value!r}")
     if minimum is not None:
@@ -177,12 +224,21 @@ def _number(ctx: _Ctx, value: Any, where: str, *, minimum: float | None = None,
             raise ctx.fail(where, f"expected {what} > {minimum:g}, got {value!r}")
         if not strict and x < minimum:
             raise ctx.fail(where, f"expected {what} >= {minimum:g}, got {value!r}")
+    if limit is not None:
+        lo, hi, unit = LIMITS[limit]
+        if not lo <= x <= hi:
+            raise ctx.fail(where, f"expected {what} in [{lo:g}, {hi:g}]{unit} (the physical range), got {value!r}")
     return x
 
 
 def _string(ctx: _Ctx, value: Any, where: str, choices: tuple[str, ...] | None = None) -> str:
     if not isinstance(value, str):
         raise ctx.fail(where, f"expected a string, got {_type_name(value)}")
+    if len(value) > MAX_NAME_CHARS:
+        raise ctx.fail(where, f"expected at most {MAX_NAME_CHARS} characters, got {len(value)}")
+    bad = next((c for c in value if ord(c) < 32 or ord(c) == 127), None)
+    if bad is not None:
+        raise ctx.fail(where, f"expected printable text, got the control character {bad!r}")
     if choices is not None and value not in choices:
         close = difflib.get_close_matches(value, choices, n=1, cutoff=0.5)
         hint = f" (did you mean {close[0]!r}?)" if close else ""
@@ -190,13 +246,15 @@ def _string(ctx: _Ctx, value: Any, where: str, choices: tuple[str, ...] | None =
     return value
 
 
-def _vector(ctx: _Ctx, value: Any, where: str, n: int = 3) -> np.ndarray:
+def _vector(ctx: _Ctx, value: Any, where: str, n: int = 3, *, limit: str | None = None,
+            what: str = "a number") -> np.ndarray:
     if not isinstance(value, list) or len(value) != n:
         raise ctx.fail(where, f"expected an array of {n} numbers, got {_type_name(value)}")
-    return np.array([_number(ctx, v, f"{where}[{i}]") for i, v in enumerate(value)], dtype=float)
+    return np.array([_number(ctx, v, f"{where}[{i}]", limit=limit, what=what) for i, v in enumerate(value)],
+                    dtype=float)
 
 
-def _matrix(ctx: _Ctx, value: Any, where: str) -> np.ndarray:
+def _matrix(ctx: _Ctx, value: Any, where: str, *, limit: str | None = None, what: str = "a number") -> np.ndarray:
     shape_msg = "expected a 3x3 array of numbers [[a, b, c], [d, e, f], [g, h, i]]"
     if not isinstance(value, list) or len(value) != 3:
         rows = len(value) if isinstance(value, list) else None
@@ -208,7 +266,7 @@ def _matrix(ctx: _Ctx, value: Any, where: str) -> np.ndarray:
             got = f"a row of length {len(row)}" if isinstance(row, list) else _type_name(row)
             raise ctx.fail(f"{where}[{i}]", f"{shape_msg}, got {got}")
         for j, v in enumerate(row):
-            out[i, j] = _number(ctx, v, f"{where}[{i}][{j}]")
+            out[i, j] = _number(ctx, v, f"{where}[{i}][{j}]", limit=limit, what=what)
     return out
 
 
@@ -229,6 +287,9 @@ def _nucleus(ctx: _Ctx, table: Any, where: str, index: int) -> Nucleus:
     if "spin" not in table:
         raise ctx.fail(f"{where}.spin", "missing; expected the nuclear spin quantum number (1/2, 1, 3/2, ...)")
     spin = _number(ctx, table["spin"], f"{where}.spin", what="a positive multiple of 1/2")
+    if spin > LIMITS["spin"][1]:
+        raise ctx.fail(f"{where}.spin", f"expected a nuclear spin of at most {LIMITS['spin'][1]:g} "
+                                        f"(the physical range), got {table['spin']!r}")
     twice = round(2 * spin)
     if spin <= 0 or abs(2 * spin - twice) > 1e-9:
         raise ctx.fail(f"{where}.spin", f"expected a positive multiple of 1/2 (0.5, 1, 1.5, ...), got {table['spin']!r}")
@@ -245,11 +306,13 @@ def _nucleus(ctx: _Ctx, table: Any, where: str, index: int) -> Nucleus:
     if has_full:
         value = table["hyperfine_mT"]
         if _is_number(value):
-            tensor = _number(ctx, value, f"{where}.hyperfine_mT") * np.eye(3)
+            tensor = _number(ctx, value, f"{where}.hyperfine_mT", limit="coupling_mT",
+                             what="a coupling in mT") * np.eye(3)
         else:
-            tensor = _matrix(ctx, value, f"{where}.hyperfine_mT")
+            tensor = _matrix(ctx, value, f"{where}.hyperfine_mT", limit="coupling_mT", what="a coupling in mT")
     else:
-        principal = _vector(ctx, table["principal_mT"], f"{where}.principal_mT")
+        principal = _vector(ctx, table["principal_mT"], f"{where}.principal_mT", limit="coupling_mT",
+                            what="a coupling in mT")
         rot = np.eye(3)
         if "orientation" in table:
             rot = _orientation(ctx, table["orientation"], f"{where}.orientation")
@@ -262,8 +325,9 @@ def _nuclei(ctx: _Ctx, table: Any, where: str, index: int) -> tuple[Nucleus, ...
     count = 1
     if isinstance(table, dict) and "count" in table:
         raw = table["count"]
-        if isinstance(raw, bool) or not isinstance(raw, int) or raw < 1:
-            raise ctx.fail(f"{where}.count", f"expected a whole number of equivalent nuclei >= 1, got {raw!r}")
+        if isinstance(raw, bool) or not isinstance(raw, int) or not 1 <= raw <= MAX_NUCLEI:
+            raise ctx.fail(f"{where}.count", f"expected a whole number of equivalent nuclei from 1 to "
+                                             f"{MAX_NUCLEI}, got {raw!r}")
         count = raw
         table = {key: val for key, val in table.items() if key != "count"}
     nuc = _nucleus(ctx, table, where, index)
@@ -281,9 +345,10 @@ def _orientation(ctx: _Ctx, value: Any, where: str) -> np.ndarray:
     if len(value) != 1:
         raise ctx.fail(where, "expected exactly one of euler_zyz_deg or axes")
     if "euler_zyz_deg" in value:
-        angles = _vector(ctx, value["euler_zyz_deg"], f"{where}.euler_zyz_deg")
+        angles = _vector(ctx, value["euler_zyz_deg"], f"{where}.euler_zyz_deg", limit="angle_deg",
+                         what="an angle in degrees")
         return Rotation.from_euler("ZYZ", angles, degrees=True).as_matrix()
-    axes = _matrix(ctx, value["axes"], f"{where}.axes")
+    axes = _matrix(ctx, value["axes"], f"{where}.axes", limit="axes", what="an axis component")
     err = np.max(np.abs(axes @ axes.T - np.eye(3)))
     if err > 1e-6:
         raise ctx.fail(f"{where}.axes", f"expected orthonormal rows (unit length, mutually perpendicular); "
@@ -299,14 +364,23 @@ def _radical(ctx: _Ctx, doc: dict, key: str, default_label: str) -> Radical:
         raise ctx.fail(f"{key}.g_tensor", "give either g or g_tensor, not both")
     g, g_tensor = FREE_ELECTRON_G, None
     if "g" in table:
-        g = _number(ctx, table["g"], f"{key}.g", minimum=0.0, strict=True, what="a g value")
+        g = _number(ctx, table["g"], f"{key}.g", minimum=0.0, strict=True, what="a g value", limit="g")
     if "g_tensor" in table:
-        g_tensor = _readonly(_matrix(ctx, table["g_tensor"], f"{key}.g_tensor"))
+        g_tensor = _readonly(_matrix(ctx, table["g_tensor"], f"{key}.g_tensor", limit="g_tensor",
+                                     what="a g-tensor component"))
         g = float(np.trace(g_tensor) / 3.0)
+        if not LIMITS["g"][0] <= g <= LIMITS["g"][1]:
+            raise ctx.fail(f"{key}.g_tensor", f"expected an isotropic part (trace / 3) in "
+                                              f"[{LIMITS['g'][0]:g}, {LIMITS['g'][1]:g}], got {g:g}")
     nuclei_raw = table.get("nuclei", [])
     if not isinstance(nuclei_raw, list):
         raise ctx.fail(f"{key}.nuclei", f"expected an array of tables [[{key}.nuclei]], got {_type_name(nuclei_raw)}")
+    if len(nuclei_raw) > MAX_NUCLEI:
+        raise ctx.fail(f"{key}.nuclei", f"expected at most {MAX_NUCLEI} nuclei, got {len(nuclei_raw)}")
     nuclei = tuple(n for i, t in enumerate(nuclei_raw) for n in _nuclei(ctx, t, f"{key}.nuclei[{i}]", i))
+    if len(nuclei) > MAX_NUCLEI:
+        raise ctx.fail(f"{key}.nuclei", f"expected at most {MAX_NUCLEI} nuclei (counting each count = n "
+                                        f"entry n times), got {len(nuclei)}")
     return Radical(label=label, g=g, g_tensor=g_tensor, nuclei=nuclei)
 
 
@@ -347,21 +421,24 @@ def system_from_document(doc: dict, source: str | Path | None = None) -> SpinSys
     if coupling is not None:
         _check_keys(ctx, coupling, _COUPLING_KEYS, "coupling")
         if "exchange_mT" in coupling:
-            exchange = _number(ctx, coupling["exchange_mT"], "coupling.exchange_mT")
+            exchange = _number(ctx, coupling["exchange_mT"], "coupling.exchange_mT", limit="coupling_mT",
+                               what="a coupling in mT")
         if "dipolar_mT" in coupling and "dipolar" in coupling:
             raise ctx.fail("coupling.dipolar", "give either dipolar_mT or dipolar, not both")
         if "dipolar_mT" in coupling:
-            dipolar = _matrix(ctx, coupling["dipolar_mT"], "coupling.dipolar_mT")
+            dipolar = _matrix(ctx, coupling["dipolar_mT"], "coupling.dipolar_mT", limit="coupling_mT",
+                              what="a coupling in mT")
         elif "dipolar" in coupling:
             dip = _table(ctx, coupling, "dipolar", "coupling", required=True)
             _check_keys(ctx, dip, _DIPOLAR_KEYS, "coupling.dipolar")
             for k in _DIPOLAR_KEYS:
                 if k not in dip:
                     raise ctx.fail(f"coupling.dipolar.{k}", "missing; the point dipole needs distance_nm and direction")
-            r = _number(ctx, dip["distance_nm"], "coupling.dipolar.distance_nm", minimum=0.0, strict=True,
-                        what="a distance in nm")
-            n = _vector(ctx, dip["direction"], "coupling.dipolar.direction")
-            if not np.linalg.norm(n) > 0:
+            r = _number(ctx, dip["distance_nm"], "coupling.dipolar.distance_nm", what="a distance in nm",
+                        limit="distance_nm")
+            n = _vector(ctx, dip["direction"], "coupling.dipolar.direction", limit="axes",
+                        what="a direction component")
+            if not np.max(np.abs(n)) > 0:
                 raise ctx.fail("coupling.dipolar.direction", "expected a non-zero direction vector")
             dipolar = point_dipole_mT(r, n)
         if dipolar is not None:
@@ -375,13 +452,16 @@ def system_from_document(doc: dict, source: str | Path | None = None) -> SpinSys
                 raise ctx.fail(f"kinetics.{k}", "give either lifetime_us or k_singlet_per_s/k_triplet_per_s, not both")
         tau = _number(ctx, kin["lifetime_us"], "kinetics.lifetime_us", minimum=0.0, strict=True,
                       what="a lifetime in microseconds")
+        _number(ctx, tau, "kinetics.lifetime_us", what="a lifetime in microseconds", limit="lifetime_us")
         k_s = k_t = 1.0 / (tau * 1e-6)
     else:
         for k in ("k_singlet_per_s", "k_triplet_per_s"):
             if k not in kin:
                 raise ctx.fail(f"kinetics.{k}", "missing; give lifetime_us, or both k_singlet_per_s and k_triplet_per_s")
-        k_s = _number(ctx, kin["k_singlet_per_s"], "kinetics.k_singlet_per_s", minimum=0.0, what="a rate in s^-1")
-        k_t = _number(ctx, kin["k_triplet_per_s"], "kinetics.k_triplet_per_s", minimum=0.0, what="a rate in s^-1")
+        k_s = _number(ctx, kin["k_singlet_per_s"], "kinetics.k_singlet_per_s", minimum=0.0, what="a rate in s^-1",
+                      limit="rate_per_s")
+        k_t = _number(ctx, kin["k_triplet_per_s"], "kinetics.k_triplet_per_s", minimum=0.0, what="a rate in s^-1",
+                      limit="rate_per_s")
         reported_key = f"k_{reported}_per_s"
         if (k_s if reported == "singlet" else k_t) == 0.0:
             raise ctx.fail(f"kinetics.{reported_key}",
@@ -399,15 +479,17 @@ def system_from_document(doc: dict, source: str | Path | None = None) -> SpinSys
                 for i, v in enumerate(vec):
                     if v < 0:
                         raise ctx.fail(f"relaxation.random_field_per_s[{i}]", f"expected a rate >= 0 in s^-1, got {v:g}")
+                    _number(ctx, float(v), f"relaxation.random_field_per_s[{i}]", what="a rate in s^-1",
+                            limit="rate_per_s")
                 rf = (float(vec[0]), float(vec[1]))
             else:
                 k = _number(ctx, value, "relaxation.random_field_per_s", minimum=0.0,
-                            what="a rate in s^-1 (or [k_A, k_B])")
+                            what="a rate in s^-1 (or [k_A, k_B])", limit="rate_per_s")
                 rf = (k, k)
         std = 0.0
         if "st_dephasing_per_s" in rel:
             std = _number(ctx, rel["st_dephasing_per_s"], "relaxation.st_dephasing_per_s", minimum=0.0,
-                          what="a rate in s^-1")
+                          what="a rate in s^-1", limit="rate_per_s")
         relaxation = Relaxation(random_field=rf, st_dephasing=std)
 
     return SpinSystem(
@@ -431,7 +513,25 @@ def loads_system(text: str, source: str | Path | None = None) -> SpinSystem:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"TOML syntax error: {exc}", source=source) from None
+    except RecursionError:
+        raise InputError("arrays or tables nested too deeply; expected a spin-system TOML file",
+                         source=source) from None
     return system_from_document(doc, source)
+
+
+def read_text_capped(path: Path, max_bytes: int) -> bytes:
+    """The bytes of a regular file of at most ``max_bytes`` (a device such as /dev/zero, a FIFO or a
+    larger file is refused before it is read into memory)."""
+    import stat
+
+    st = path.stat()
+    if not stat.S_ISREG(st.st_mode) and not stat.S_ISDIR(st.st_mode):
+        raise InputError("not a regular file; expected a TOML text file", source=path)
+    with path.open("rb") as fh:
+        data = fh.read(max_bytes + 1)
+    if len(data) > max_bytes:
+        raise InputError(f"larger than {max_bytes // 1024} KiB; expected a TOML text file", source=path)
+    return data
 
 
 def load_system(path: str | Path) -> SpinSystem:
@@ -444,7 +544,9 @@ def load_system(path: str | Path) -> SpinSystem:
     """
     path = Path(path)
     try:
-        text = path.read_bytes().decode("utf-8-sig")  # a leading byte-order mark is not TOML text
+        text = read_text_capped(path, MAX_FILE_BYTES).decode("utf-8-sig")  # a byte-order mark is not TOML
+    except InputError:
+        raise
     except FileNotFoundError:
         raise InputError("file not found; expected a spin-system TOML file", source=path) from None
     except IsADirectoryError:

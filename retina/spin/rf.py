@@ -104,8 +104,11 @@ import scipy.sparse.linalg as spla
 from retina.errors import InputError, ResourceError
 from retina.spin import operators as ops
 
-__all__ = ["RFSpectrum", "yields_rf", "rf_yield_function", "rf_spectrum", "floquet_bytes",
-           "check_rf", "MAX_HARMONICS", "MAX_AZIMUTHS"]
+__all__ = ["RFSpectrum", "yields_rf", "rf_yields", "choose_rf_method", "rf_yield_function", "rf_spectrum",
+           "floquet_bytes", "check_rf", "MAX_HARMONICS", "MAX_AZIMUTHS", "RF_METHODS"]
+
+#: RF methods: the separable one (:mod:`retina.spin.rf_separable`) and the whole-pair Floquet solver here.
+RF_METHODS = ("auto", "separable", "floquet")
 
 #: Largest Floquet order tried by ``harmonics="auto"``.
 MAX_HARMONICS = 256
@@ -715,11 +718,55 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
     return res[0] if len(res) == 1 else res
 
 
+# ------------------------------------------------------------------------------------------ method choice
+
+def choose_rf_method(system, method="auto") -> str:
+    """``"separable"`` when ``system`` is in the separable scope (:mod:`retina.spin.rf_separable`:
+    no exchange or dipolar coupling, equal rates, no relaxation), else ``"floquet"`` (whole pair).
+    An explicit method is checked and returned."""
+    if method not in RF_METHODS:
+        raise InputError(f"expected an RF method among {RF_METHODS}, got {method!r}", source=system.source,
+                         key="method")
+    if method != "auto":
+        return method
+    from retina.spin.engine import choose_method
+
+    return "separable" if choose_method(system) == "separable" else "floquet"
+
+
+def rf_yields(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perpendicular", method="auto",
+              harmonics="auto", tol=1e-10, progress=None, max_bytes=None, return_info=False, angle_deg=90.0):
+    """Phase-averaged RF yields by the cheapest exact method (see :func:`choose_rf_method`).
+
+    Parameters as in :func:`yields_rf`; ``method`` one of :data:`RF_METHODS`; ``angle_deg`` (with
+    ``rf_direction="perpendicular"``, separable method only) tilts the azimuth-averaged RF direction
+    to that angle from the static field (:func:`retina.spin.rf_separable.yields_rf`).  ``info`` (with
+    ``return_info``) holds ``method`` and the per-direction ``harmonics`` and ``azimuths``.
+    """
+    m = choose_rf_method(system, method)
+    if m == "separable":
+        from retina.spin import rf_separable
+
+        y, info = rf_separable.yields_rf(system, field_uT, directions, rf_MHz=rf_MHz, rf_nT=rf_nT,
+                                         rf_direction=rf_direction, harmonics=harmonics, tol=tol,
+                                         progress=progress, return_info=True, angle_deg=angle_deg)
+    else:
+        if float(angle_deg) != 90.0:
+            raise InputError("an RF direction at an angle other than 90 degrees to the static field needs the "
+                             "separable RF method (a pair without electron-electron coupling, equal rates)",
+                             source=system.source, key="angle_deg")
+        y, info = yields_rf(system, field_uT, directions, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rf_direction,
+                            harmonics=harmonics, tol=tol, progress=progress, max_bytes=max_bytes,
+                            return_info=True)
+    info = dict(info, method="separable-floquet" if m == "separable" else "floquet")
+    return (y, info) if return_info else y
+
+
 # ------------------------------------------------------------------------------------------ yield function
 
 def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendicular", degree=8,
                       progress: Callable[[int, int], None] | None = None, check_points: int = 20, tol=1e-10,
-                      harmonics="auto", max_bytes=None):
+                      harmonics="auto", max_bytes=None, method="auto", angle_deg=90.0):
     """The phase-averaged yield under RF as a :class:`~retina.yieldfn.YieldFunction`.
 
     Computed like :meth:`YieldFunction.from_system`: on one hemisphere of the smallest Lebedev rule
@@ -739,11 +786,16 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
     progress : callable(done, total), optional
     check_points : int
         Independent check directions (>= 1).
+    method : {"auto", "separable", "floquet"}
+        See :func:`choose_rf_method`.
+    angle_deg : float
+        See :func:`rf_yields` (recorded as ``rf_angle_deg``).
 
     Returns
     -------
     YieldFunction
-        Provenance as in ``from_system`` (``kind = "rf_from_system"``, ``method = "floquet"``) plus
+        Provenance as in ``from_system`` (``kind = "rf_from_system"``, ``method`` "separable-floquet"
+        or "floquet") plus
         ``rf_MHz``, ``rf_nT``, ``rf_direction`` (a word or "x y z"), ``rf_phase`` ("averaged"),
         ``rf_harmonics_max``, ``rf_azimuths_max``, ``rf_tol``, ``rf_solver``.
     """
@@ -761,9 +813,9 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
     check = sphere.fibonacci(int(check_points), hemisphere=True)
     dirs = np.concatenate([grid.points[half], -check.points], axis=0)
     t0 = time.perf_counter()
-    values, info = yields_rf(system, field_uT, dirs, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rfdir,
+    values, info = rf_yields(system, field_uT, dirs, rf_MHz=rf_MHz, rf_nT=rf_nT, rf_direction=rfdir,
                              harmonics=harmonics, tol=tol, progress=progress, max_bytes=max_bytes,
-                             return_info=True)
+                             return_info=True, method=method, angle_deg=angle_deg)
     seconds = time.perf_counter() - t0
     h = half.size
     coeffs = sphere.fit_even(values[:h][full_from_half], grid, degree)
@@ -777,15 +829,16 @@ def rf_yield_function(system, field_uT, *, rf_MHz, rf_nT, rf_direction="perpendi
         "reported_yield": system.reported_yield,
         "initial_state": system.initial_state,
         "field_uT": field_uT,
-        "method": "floquet",
+        "method": info["method"],
         "rf_MHz": float(rf_MHz),
         "rf_nT": float(rf_nT),
         "rf_direction": rfdir if isinstance(rfdir, str) else " ".join(f"{x:.17g}" for x in rfdir),
+        "rf_angle_deg": float(angle_deg),
         "rf_phase": "averaged",
         "rf_harmonics_max": int(np.max(info["harmonics"])),
         "rf_azimuths_max": int(np.max(info["azimuths"])),
         "rf_tol": float(info["tol"]),
-        "rf_solver": info["solver"],
+        "rf_solver": info.get("solver", "separable"),
         "degree": degree,
         "grid": grid.name,
         "grid_order": int(grid.degree),
@@ -837,7 +890,7 @@ class RFSpectrum:
 
 def rf_spectrum(system, field_uT, direction, freqs_MHz, rf_nT, *, rf_direction="perpendicular", harmonics="auto",
                 tol=1e-10, anisotropy_degree=None, progress: Callable[[int, int], None] | None = None,
-                max_bytes=None) -> RFSpectrum:
+                max_bytes=None, method="auto") -> RFSpectrum:
     """Change of the phase-averaged yield (and optionally of the anisotropy) against RF frequency.
 
     Parameters
@@ -853,6 +906,8 @@ def rf_spectrum(system, field_uT, direction, freqs_MHz, rf_nT, *, rf_direction="
         RF amplitude, nT.
     rf_direction, harmonics, tol, max_bytes
         As in :func:`yields_rf`.
+    method : {"auto", "separable", "floquet"}
+        See :func:`choose_rf_method`.
     anisotropy_degree : int, optional
         When given (a small even degree such as 2 or 4), also fit the RF yield function at this degree
         for every frequency and report its relative anisotropy (cost: a hemisphere of a Lebedev rule
@@ -864,14 +919,14 @@ def rf_spectrum(system, field_uT, direction, freqs_MHz, rf_nT, *, rf_direction="
     -------
     RFSpectrum
     """
-    from retina.spin import liouville
+    from retina.spin import engine
 
     freqs = np.asarray(freqs_MHz, dtype=float).reshape(-1)
     if freqs.size == 0 or not np.all(np.isfinite(freqs)) or np.any(freqs <= 0):
         raise InputError(f"expected one or more RF frequencies > 0 MHz, got {freqs_MHz!r}", source=system.source,
                          key="freqs_MHz")
     d = np.asarray(direction, dtype=float).reshape(1, -1)
-    static = float(liouville.yields(system, field_uT, d)[0])
+    static = float(engine.compute_yields(system, field_uT, d)[0])
     ys = np.empty(freqs.size)
     orders = np.empty(freqs.size, dtype=int)
     aniso = np.empty(freqs.size) if anisotropy_degree is not None else None
@@ -883,16 +938,16 @@ def rf_spectrum(system, field_uT, direction, freqs_MHz, rf_nT, *, rf_direction="
         L = _check_degree(anisotropy_degree)
         grid = sphere.grid_for_degree(L)
         half, full = grid.hemisphere()
-        sv = liouville.yields(system, field_uT, grid.points[half])
+        sv = engine.compute_yields(system, field_uT, grid.points[half])
         static_aniso = YieldFunction(sphere.fit_even(sv[full], grid, L), L).anisotropy().relative
     for i, f in enumerate(freqs):
-        y, info = yields_rf(system, field_uT, d, rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
-                            harmonics=harmonics, tol=tol, max_bytes=max_bytes, return_info=True)
+        y, info = rf_yields(system, field_uT, d, rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
+                            harmonics=harmonics, tol=tol, max_bytes=max_bytes, return_info=True, method=method)
         ys[i] = y[0]
         orders[i] = info["harmonics"][0]
         if aniso is not None:
-            v = yields_rf(system, field_uT, grid.points[half], rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
-                          harmonics=harmonics, tol=tol, max_bytes=max_bytes)
+            v = rf_yields(system, field_uT, grid.points[half], rf_MHz=f, rf_nT=rf_nT, rf_direction=rf_direction,
+                          harmonics=harmonics, tol=tol, max_bytes=max_bytes, method=method)
             aniso[i] = YieldFunction(sphere.fit_even(v[full], grid, L), L).anisotropy().relative
         if progress is not None:
             progress(i + 1, freqs.size)

@@ -39,6 +39,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
+import math
+
 import numpy as np
 
 
@@ -80,7 +82,8 @@ class Radical:
 
     @property
     def nuclear_dimension(self) -> int:
-        return int(np.prod([n.multiplicity for n in self.nuclei])) if self.nuclei else 1
+        # exact Python integers: a numpy product wraps in 64 bits (64 spin-1/2 nuclei would give 0)
+        return math.prod(n.multiplicity for n in self.nuclei)
 
     @property
     def dimension(self) -> int:

@@ -219,6 +219,10 @@ def grid_offsets(offsets_deg) -> np.ndarray:
 def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np.ndarray:
     """Signed decoding errors at uniformly random true headings.
 
+    Counts are drawn by :func:`retina.signal.noise.sample_counts_split` (the Poisson law, drawn
+    faster in dim light, on as many threads as numba may use; the numbers do not depend on the
+    thread count).
+
     Parameters
     ----------
     m : GridModel
@@ -236,15 +240,18 @@ def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np
         Degrees, in (-180, 180].
     """
     from retina.readout.circstats import circular_difference
-    from retina.signal.noise import sample_counts
+    from retina.signal.noise import sample_counts_split
 
+    import numba
+
+    threads = numba.get_num_threads()     # 1 inside a sweep's task (retina.sweep.run.single_threaded)
     true = rng.uniform(0.0, 360.0, n)
     dec = m.decoder(photons)
     if offsets is None:
-        est = dec.decode(sample_counts(m.expected(true, photons), rng))
+        est = dec.decode(sample_counts_split(m.expected(true, photons), rng, threads=threads))
     else:
         lam = m.expected((true[:, None] + offsets[None, :]).ravel(), photons).reshape(n, offsets.size, -1)
-        est = dec.decode_scan(sample_counts(lam / offsets.size, rng), offsets)
+        est = dec.decode_scan(sample_counts_split(lam / offsets.size, rng, threads=threads), offsets)
     return circular_difference(est.heading_deg, true)
 
 

@@ -1,0 +1,402 @@
+"""Stages ``rf`` and ``rf_sweep``: radio-frequency conditions side by side with the control, and a
+frequency sweep at a fixed amplitude for one or more pair lifetimes.
+
+Conventions (owned here)
+------------------------
+- Every RF yield function is computed at ``[rf] degree``, and so is the control ("off"): the
+  static yield function fitted on the same Lebedev grid (:meth:`YieldFunction.from_system`), so
+  conditions and control share the same truncation and differ only by the RF.
+- A tone is computed exactly: the separable RF method (:mod:`retina.spin.rf_separable`) when the
+  pair is in its scope, else the whole-pair Floquet solver (:mod:`retina.spin.rf`), averaged over
+  the RF phase and over the azimuth of the RF direction about the static field.
+- A band is computed at second order in the amplitude (:mod:`retina.spin.broadband`); its
+  weak-field parameter ``eta = gamma_e b_rms / k`` is stored and flagged above
+  :data:`retina.spin.broadband.WEAK_LIMIT`.
+- A coil (``direction = "coil"``) is a direction fixed in the world frame (north-east-down).  The
+  static field is fixed in the world too, so the angle ``a`` between them is fixed, and the
+  condition is computed with the RF direction at angle ``a`` to the static field, averaged over its
+  azimuth about it.  This is exact when the molecules' azimuths about the field are spread
+  uniformly, and an approximation otherwise (a molecule's yield then depends on where the coil's
+  azimuth falls in its own frame, which a yield function of the field direction alone cannot hold).
+- Metrics per condition, with the definitions of :mod:`retina.stages.precision` and
+  :mod:`retina.stages.trials`: modulation depth at the scenario's headings, the Cramer-Rao bound
+  (rms over headings) of one pose and of the head scan at every light level, and simulated trials
+  at every light level.  Every condition draws the same random numbers (the generator of
+  ``"rf/<light level>"``), so differences between conditions are the RF's, not sampling noise.
+- Sweep: for each lifetime (``k_S = k_T = 1 / lifetime``) the static yield function and the
+  second-order response at every grid direction give the RF yield function at every frequency,
+  perpendicular (azimuth-averaged) and parallel, at amplitude ``sweep_nT``.  When the weak-field
+  parameter ``gamma_e B1 / k`` exceeds :data:`retina.spin.broadband.WEAK_LIMIT` the exact
+  method is used instead (slower).  Metrics: the single-pose bound at every light level and trials
+  (``trials.n_trials``, scan of ``trials.scan_steps`` poses) at ``sweep_light``.
+- Onset frequency of disorientation (per lifetime): the lowest swept frequency at which the
+  perpendicular field's single-pose bound at ``sweep_light`` is at least twice the control's;
+  NaN when no swept frequency reaches it.  Onset of the effect: the lowest swept frequency at
+  which the relative change of that bound, ``|bound / control - 1|``, reaches half its largest
+  value over the sweep (it moves with the lifetime even when the effect stays small: fields much
+  slower than the recombination rate act like a small static change).
+
+RF exposure: the numbers describe a model.  Experiments with RF transmitters follow the usual
+cautions and local regulations and need the ethics approval of the place where they are done.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+
+import numpy as np
+
+from retina.scenario import Scenario
+from retina.stages._common import GridModel, Stage, depth, grid_offsets, rms_bound, signal_model, stage_rng
+
+__all__ = ["compute_rf", "compute_rf_sweep", "rf_yield_function_for", "condition_record", "STAGE", "SWEEP_STAGE",
+           "ONSET_FACTOR"]
+
+#: The onset of disorientation: the bound at least this many times the control's.
+ONSET_FACTOR = 2.0
+
+
+def _system(sc: Scenario):
+    from retina.errors import InputError
+    from retina.spin.io import load_system
+
+    kind, path = sc.yield_source
+    if kind != "system":
+        raise InputError(f"RF conditions and sweeps need the spin system (yield.system), but the yield function "
+                         f"comes from yield.{kind}; remove [rf] conditions and sweep_MHz or name the system",
+                         source=sc.source, key="rf")
+    return load_system(path)
+
+
+def _field_uT(sc: Scenario, fld) -> float:
+    return float(sc["yield"]["field_uT"]) if sc["yield"]["field_uT"] is not None else float(fld.F_uT)
+
+
+def condition_record(cond: dict, fld) -> dict:
+    """What determines a condition's yield function (plain values; for the cache key and the results).
+
+    A coil becomes its angle to the static field (module docstring).
+    """
+    from retina.eye.field import field_vector
+
+    rec = {"kind": cond["kind"], "direction": cond["direction"]}
+    if cond["kind"] == "off":
+        return rec
+    if cond["direction"] == "angle":
+        rec["angle_deg"] = float(cond["angle_deg"])
+    elif cond["direction"] == "coil":
+        b = np.asarray(field_vector(fld.F_uT, fld.I_deg, fld.D_deg), float)
+        c = np.asarray(cond["coil"], float)
+        cosang = abs(float(b @ c) / (np.linalg.norm(b) * np.linalg.norm(c)))   # n and -n are one RF field
+        rec["angle_deg"] = float(np.degrees(np.arccos(min(1.0, cosang))))
+        rec["coil"] = [float(x) for x in c]
+    if cond["kind"] == "tone":
+        rec.update(frequency_MHz=float(cond["frequency_MHz"]), amplitude_nT=float(cond["amplitude_nT"]))
+    else:
+        rec.update(band_MHz=[float(x) for x in cond["band_MHz"]],
+                   asd_nT_per_rtHz=None if cond["asd_nT_per_rtHz"] is None else float(cond["asd_nT_per_rtHz"]),
+                   rms_nT=None if cond["rms_nT"] is None else float(cond["rms_nT"]))
+    return rec
+
+
+def _angle(rec) -> float:
+    return {"perpendicular": 90.0, "parallel": 0.0}.get(rec["direction"], rec.get("angle_deg", 90.0))
+
+
+def _key(system, field_uT, degree, check_points, rec, tol) -> str:
+    import retina
+    from retina.spin.io import dump_system
+
+    record = {"system": dump_system(system), "field_uT": repr(float(field_uT)), "degree": int(degree),
+              "check_points": int(check_points), "rf": rec, "tol": repr(float(tol)), "retina": retina.__version__,
+              "what": "rf yield function"}
+    return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
+
+
+def rf_yield_function_for(system, field_uT, rec: dict, *, degree: int, check_points: int = 6, tol: float = 1e-8,
+                          cache: bool = True, progress=None):
+    """The RF yield function of one condition record (:func:`condition_record`), cached by content.
+
+    Returns
+    -------
+    YieldFunction
+        Provenance of :func:`retina.spin.rf.rf_yield_function` (tones) or ``kind = "rf_band"`` with
+        ``eta``, ``b_rms_nT`` (bands); ``input_hash`` is the cache key.
+    """
+    import datetime as _dt
+
+    from retina import sphere
+    from retina.spin import broadband as bb
+    from retina.spin import rf
+    from retina.yieldfn import YieldFunction, content_hash
+
+    store = key = None
+    if cache:
+        from retina.cache import YieldCache
+
+        store = YieldCache()
+        key = _key(system, field_uT, degree, check_points, rec, tol)
+        hit = store.get(key)
+        if hit is not None:
+            yf = YieldFunction.from_record(hit)
+            yf.from_cache = True
+            return yf
+    ang = _angle(rec)
+    if rec["kind"] == "tone":
+        if rec["direction"] == "parallel":
+            kw = dict(rf_direction="parallel")
+        else:
+            kw = dict(rf_direction="perpendicular", angle_deg=ang)
+        yf = rf.rf_yield_function(system, field_uT, rf_MHz=rec["frequency_MHz"], rf_nT=rec["amplitude_nT"],
+                                  degree=degree, check_points=check_points, tol=tol, progress=progress, **kw)
+        prov = dict(yf.provenance)
+    else:
+        grid = sphere.grid_for_degree(degree)
+        half, full = grid.hemisphere()
+        check = sphere.fibonacci(int(check_points), hemisphere=True)
+        dirs = np.concatenate([grid.points[half], -check.points])
+        kind = "angle" if rec["direction"] in ("angle", "coil") else rec["direction"]
+        vals, info = bb.band_yields(system, field_uT, dirs, rec["band_MHz"], rf_direction=kind, angle_deg=ang,
+                                    asd_nT_per_rtHz=rec["asd_nT_per_rtHz"], rms_nT=rec["rms_nT"], progress=progress)
+        h = half.size
+        coeffs = sphere.fit_even(vals[:h][full], grid, degree)
+        err = float(np.max(np.abs(sphere.evaluate(coeffs, -check.points) - vals[h:])))
+        prov = {"kind": "rf_band", "system_name": system.name, "field_uT": float(field_uT), "method": "broadband",
+                "rf_band_MHz": " ".join(f"{x:g}" for x in rec["band_MHz"]), "rf_b_rms_nT": info["b_rms_nT"],
+                "rf_eta": info["eta"], "rf_weak_valid": bool(info["valid"]), "rf_direction": rec["direction"],
+                "rf_angle_deg": ang, "degree": degree, "grid": grid.name, "computed_points": int(h),
+                "check_points": len(check), "truncation_error_max": err,
+                "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                "content_hash": content_hash(coeffs, degree)}
+        yf = YieldFunction(coeffs, degree, prov, err)
+    if store is not None:
+        prov["input_hash"] = key
+        yf = YieldFunction(yf.coeffs, yf.degree, prov, yf.fit_error)
+        try:
+            store.put(key, yf)
+        except OSError as exc:  # the result stands; only the cache entry is lost
+            import warnings
+
+            warnings.warn(f"could not write the RF cache entry: {exc}", stacklevel=2)
+    return yf
+
+
+def _metrics(sc: Scenario, built, yf, *, trials_at=None, scan=True) -> dict:
+    """Depth, bounds and trials of a retina whose molecules have yield function ``yf``."""
+    from retina.build import build_retina
+    from retina.eye.pose import Pose
+    from retina.readout.fisher import gain_schur, poisson_information
+    from retina.readout.trials import simulate_trials
+    from retina.stages._common import scan_yaws
+
+    model = build_retina(sc, yf, built.receptors)
+    fld = built.field
+    ro = sc["readout"]
+    gain = "free" if ro["nuisance"] == "gain" else "known"
+    names, photons = sc["light"]["names"], np.asarray(sc["light"]["photons"], float)
+    out: dict = {}
+    p = sc["pose"]
+    out["depth"] = depth(np.array([model.pattern(Pose(h, p["pitch_deg"], p["roll_deg"]), fld).yields
+                                   for h in p["headings_deg"]]))
+    m1 = GridModel(signal_model(sc, model, fld), model.degree, gain)
+    info1 = (gain_schur if gain == "free" else poisson_information)(m1.lam1, m1.dlam1)
+    out["bound_single_deg"] = rms_bound(photons, info1)
+    tr = sc["trials"]
+    amp = sc["scan"]["amplitude_deg"]
+    offs = grid_offsets(np.linspace(-amp, amp, tr["scan_steps"]) if tr["scan_steps"] > 1 else np.zeros(1))
+    mk = GridModel(signal_model(sc, model, fld, pitch=sc["scan"]["pitch_deg"]), model.degree, gain)
+    if scan:
+        sc_offs = grid_offsets(scan_yaws(sc) - sc["scan"]["heading_deg"])
+        infok = mk.scan_information(sc_offs, "global_gain" if gain == "free" else "none")
+        out["bound_scan_deg"] = rms_bound(photons, infok)
+    levels = list(zip(names, photons)) if trials_at is None else [(trials_at, photons[names.index(trials_at)])]
+    for key in ("trial_r", "trial_mean_deg", "rayleigh_p", "v_p"):
+        out[key] = np.empty(len(levels))
+    for i, (nm, ph) in enumerate(levels):
+        r = simulate_trials(mk.truth(ph), mk.decoder(ph), tr["n_trials"], goal_deg=tr["goal_deg"],
+                            scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{nm}"))
+        out["trial_r"][i] = r.rayleigh.r
+        out["trial_mean_deg"][i] = r.rayleigh.mean_deg
+        out["rayleigh_p"][i] = r.rayleigh.p
+        out["v_p"][i] = r.v_test.p
+    return out
+
+
+def compute_rf(built, progress=None) -> dict | None:
+    """Every RF condition of ``[rf]`` beside the control (module docstring); None without conditions.
+
+    Returns
+    -------
+    dict
+        ``names`` (JSON list of the C condition names, the control "off" first unless the scenario
+        lists its own), ``light_names`` (JSON list), ``light_photons (V,)``, ``degree``, and per
+        condition ``i`` a sub-group ``conditions/c<i>`` with ``name``, ``record`` (JSON text),
+        ``coeffs``, ``relative_anisotropy``,
+        ``mean_yield``, ``fit_error``, ``depth (H,)``, ``bound_single_deg (V,)``,
+        ``bound_scan_deg (V,)``, ``trial_r``, ``trial_mean_deg``, ``rayleigh_p``, ``v_p`` (V,),
+        ``method`` and, for bands, ``eta`` and ``weak_valid``.
+    """
+    sc = built.scenario
+    rfc = sc["rf"]
+    conds = list(rfc["conditions"])
+    if not conds:
+        return None
+    if not any(c["kind"] == "off" for c in conds):
+        conds.insert(0, {"name": "off", "kind": "off", "direction": "perpendicular"})
+    system = _system(sc)
+    field = _field_uT(sc, built.field)
+    L = int(rfc["degree"])
+    out = {"names": json.dumps([c["name"] for c in conds]), "light_names": json.dumps(list(sc["light"]["names"])),
+           "light_photons": np.asarray(sc["light"]["photons"], float), "degree": L, "conditions": {}}
+    for i, c in enumerate(conds):
+        rec = condition_record(c, built.field)
+        if c["kind"] == "off":
+            from retina.yieldfn import YieldFunction
+
+            yf = YieldFunction.from_system(system, field, L, check_points=rfc["check_points"])
+            method = "static (control, same grid)"
+        else:
+            yf = rf_yield_function_for(system, field, rec, degree=L, check_points=rfc["check_points"],
+                                       tol=rfc["tol"], cache=rfc["cache"])
+            method = str(yf.provenance.get("method", ""))
+        an = yf.anisotropy()
+        grp = {"name": c["name"], "record": json.dumps(rec, sort_keys=True), "coeffs": np.asarray(yf.coeffs),
+               "relative_anisotropy": float(an.relative), "mean_yield": float(an.mean),
+               "fit_error": float(yf.fit_error) if yf.fit_error is not None else float("nan"), "method": method}
+        if c["kind"] == "band":
+            grp["eta"] = float(yf.provenance["rf_eta"])
+            grp["weak_valid"] = int(bool(yf.provenance["rf_weak_valid"]))
+            grp["b_rms_nT"] = float(yf.provenance["rf_b_rms_nT"])
+        grp.update(_metrics(sc, built, yf))
+        out["conditions"][f"c{i}"] = grp
+        if progress:
+            progress(i + 1, len(conds))
+    return out
+
+
+def _with_lifetime(system, lifetime_us):
+    import dataclasses
+
+    k = 1e6 / float(lifetime_us)
+    return dataclasses.replace(system, k_singlet=k, k_triplet=k)
+
+
+def compute_rf_sweep(built, progress=None) -> dict | None:
+    """The frequency sweep of ``[rf]`` (module docstring); None without ``sweep_MHz``.
+
+    Returns
+    -------
+    dict
+        ``freqs_MHz (F,)``, ``amplitude_nT``, ``lifetimes_us (T,)``, ``light_names`` (JSON list),
+        ``light_photons (V,)``, ``sweep_light``, ``eta (T,)``, ``method`` (JSON list of T strings),
+        ``control_bound_deg (T, V)``, ``control_r (T,)``, ``perp_bound_deg``/``par_bound_deg``
+        ``(T, F, V)``, ``perp_r``/``par_r (T, F)``, ``perp_anisotropy``/``par_anisotropy (T, F)``,
+        ``control_anisotropy (T,)``, ``onset_MHz (T,)`` (NaN: none in the sweep),
+        ``effect_onset_MHz (T,)``, ``onset_factor``, ``degree``.
+    """
+    from retina import sphere
+    from retina.spin import broadband as bb
+    from retina.yieldfn import YieldFunction
+
+    sc = built.scenario
+    rfc = sc["rf"]
+    freqs = np.asarray(rfc["sweep_MHz"], float)
+    if freqs.size == 0:
+        return None
+    system0 = _system(sc)
+    field = _field_uT(sc, built.field)
+    L = int(rfc["degree"])
+    amp = float(rfc["sweep_nT"])
+    lifetimes = list(rfc["sweep_lifetimes_us"]) or [1e6 / float(system0.k_singlet)]
+    names = list(sc["light"]["names"])
+    light = rfc["sweep_light"] or names[-1]
+    li = names.index(light)
+    nv = len(names)
+    T, F = len(lifetimes), freqs.size
+    res = {k: np.full((T, F, nv), np.nan) for k in ("perp_bound_deg", "par_bound_deg")}
+    res.update({k: np.full((T, F), np.nan) for k in ("perp_r", "par_r", "perp_anisotropy", "par_anisotropy")})
+    control_b = np.full((T, nv), np.nan)
+    control_r = np.full(T, np.nan)
+    control_an = np.full(T, np.nan)
+    etas = np.empty(T)
+    methods = []
+    onset = np.full(T, np.nan)
+    effect_onset = np.full(T, np.nan)
+    grid = sphere.grid_for_degree(L)
+    half, full = grid.hemisphere()
+    total = T * (2 * F + 1)
+    done = 0
+    for t, tau in enumerate(lifetimes):
+        system = _with_lifetime(system0, tau)
+        k = float(system.k_singlet)
+        etas[t] = bb.weak_parameter(amp, k)
+        weak = etas[t] <= bb.WEAK_LIMIT
+        methods.append("second-order response" if weak else "exact (separable RF or Floquet)")
+        fits = {}
+        if weak:
+            static = np.empty(half.size)
+            dphi = np.empty((2, F, half.size))
+            for j, d in enumerate(grid.points[half]):
+                r = bb.response(system, field, d)
+                static[j] = r.static
+                for p, kind in enumerate(("perpendicular", "parallel")):
+                    dphi[p, :, j] = r.tone(freqs, bb.polarisation_tensor(r.direction, kind)) * amp**2
+            fits["control"] = YieldFunction(sphere.fit_even(static[full], grid, L), L)
+            for p, kind in enumerate(("perp", "par")):
+                for f in range(F):
+                    fits[(kind, f)] = YieldFunction(sphere.fit_even((static + dphi[p, f])[full], grid, L), L)
+        else:
+            fits["control"] = YieldFunction.from_system(system, field, L, check_points=rfc["check_points"])
+            for f in range(F):
+                for kind, rec_dir in (("perp", "perpendicular"), ("par", "parallel")):
+                    rec = {"kind": "tone", "direction": rec_dir, "frequency_MHz": float(freqs[f]),
+                           "amplitude_nT": amp}
+                    fits[(kind, f)] = rf_yield_function_for(system, field, rec, degree=L,
+                                                            check_points=rfc["check_points"], tol=rfc["tol"],
+                                                            cache=rfc["cache"])
+        m = _metrics(sc, built, fits["control"], trials_at=light, scan=False)
+        control_b[t] = m["bound_single_deg"]
+        control_r[t] = m["trial_r"][0]
+        control_an[t] = fits["control"].anisotropy().relative
+        done += 1
+        if progress:
+            progress(done, total)
+        for f in range(F):
+            for kind in ("perp", "par"):
+                m = _metrics(sc, built, fits[(kind, f)], trials_at=light, scan=False)
+                res[f"{kind}_bound_deg"][t, f] = m["bound_single_deg"]
+                res[f"{kind}_r"][t, f] = m["trial_r"][0]
+                res[f"{kind}_anisotropy"][t, f] = fits[(kind, f)].anisotropy().relative
+                done += 1
+                if progress:
+                    progress(done, total)
+        hit = np.flatnonzero(res["perp_bound_deg"][t, :, li] >= ONSET_FACTOR * control_b[t, li])
+        if hit.size:
+            onset[t] = float(np.min(freqs[hit]))
+        rel = np.abs(res["perp_bound_deg"][t, :, li] / control_b[t, li] - 1.0)
+        if np.any(rel > 0):
+            effect_onset[t] = float(np.min(freqs[rel >= 0.5 * rel.max()]))
+    out = {"freqs_MHz": freqs, "amplitude_nT": amp, "lifetimes_us": np.asarray(lifetimes, float),
+           "light_names": json.dumps(names), "light_photons": np.asarray(sc["light"]["photons"], float),
+           "sweep_light": light, "eta": etas, "method": json.dumps(methods), "control_bound_deg": control_b, "control_r": control_r,
+           "control_anisotropy": control_an, "onset_MHz": onset, "onset_factor": ONSET_FACTOR,
+           "effect_onset_MHz": effect_onset, "degree": L}
+    out.update(res)
+    return out
+
+
+def _steps(sc):
+    c = sc["rf"]["conditions"]
+    return 0 if not c else len(c) + (0 if any(x["kind"] == "off" for x in c) else 1)
+
+
+def _sweep_steps(sc):
+    if not sc["rf"]["sweep_MHz"]:
+        return 0
+    return max(1, len(sc["rf"]["sweep_lifetimes_us"])) * (2 * len(sc["rf"]["sweep_MHz"]) + 1)
+
+
+STAGE = Stage("rf", lambda b, progress: compute_rf(b, progress), label="RF conditions", steps=_steps)
+SWEEP_STAGE = Stage("rf_sweep", lambda b, progress: compute_rf_sweep(b, progress), label="RF sweep",
+                    steps=_sweep_steps)
