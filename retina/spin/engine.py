@@ -89,11 +89,35 @@ def in_scope(system, method: str) -> bool:
     return method == "liouville"
 
 
+#: Fixed constants of the separable choice (s per d^3 of eigh, per pair-sum term, per time sample),
+#: measured on the development machine; fixed so that the choice, part of the cache key, never
+#: depends on the machine's load.
+_CHOICE_EIGH, _CHOICE_PAIR, _CHOICE_SAMPLE = 7e-10, 4e-9, 8e-7
+
+
+def _fast_is_cheaper(system) -> bool:
+    """Deterministic per-direction comparison of the two separable methods' cost models."""
+    from retina.spin.equivalence import reduced_dimensions
+    from retina.spin.fast_separable import MAX_KH, THETA
+    from retina.spin.sampling import _spread_bound
+
+    dims = [r.dimension for r in system.radicals]
+    pair = _CHOICE_PAIR * dims[0] ** 2 * dims[1] ** 2 / 2
+    blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
+    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    k = float(system.k_singlet)
+    n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
+    fast = sum(1.1 * _CHOICE_EIGH * d**3 + 3.3e-7 * d * d / 2 for d in blocks) + _CHOICE_SAMPLE * n_t
+    return fast < pair
+
+
 def choose_method(system, n_directions: int = 1) -> str:
     """The cheapest exact method whose scope covers ``system``.
 
     Among ``"separable"`` and ``"fast-separable"`` (uncoupled electrons, equal rates, no relaxation,
-    and :mod:`retina.spin.separable` imports) the one with the smaller estimated time; else
+    and :mod:`retina.spin.separable` imports) the one with the smaller modelled time per direction
+    (fixed constants, so that the choice, which is part of the cache key, never depends on the
+    machine's load); else
     ``"hilbert"`` when the rates are equal and there is no relaxation; ``"liouville"`` otherwise.
     Every method chosen here meets the default accuracy (rounding, or 1e-10 for
     ``"fast-separable"``).
@@ -101,9 +125,7 @@ def choose_method(system, n_directions: int = 1) -> str:
     if system.equal_rates and not system.relaxation.any:
         if not system.electron_coupled and _separable_available():
             n = max(int(n_directions), 1)
-            exact = ("separable", "fast-separable")
-            costs = {m: _estimate(system, n, m).seconds for m in exact}
-            return min(exact, key=lambda m: (costs[m], m != "separable"))
+            return "fast-separable" if _fast_is_cheaper(system) else "separable"
         return "hilbert"
     return "liouville"
 
