@@ -407,8 +407,11 @@ class YieldFunction:
         _log.info("yield function of %r at %g uT, degree %d: method %s, %d field directions", system.name,
                   field_uT, degree, resolved, dirs.shape[0])
         t0 = time.perf_counter()
+        # an approximate method reports its approximation and error bars through ``info``
+        info: dict = {}
+        extra = {"info": info} if resolved in ("sampled", "fast-separable") else {}
         values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
-                                                  max_bytes=max_bytes), dtype=float)
+                                                  max_bytes=max_bytes, **extra), dtype=float)
         seconds = time.perf_counter() - t0
         if values.shape != (dirs.shape[0],):
             raise RuntimeError(f"engine returned shape {values.shape} for {dirs.shape[0]} directions")
@@ -451,6 +454,7 @@ class YieldFunction:
             "antipodal_points": int(n_anti),
             "antipodal_difference_max": anti_err,
             "compute_seconds": float(seconds),
+            **info,
             "versions": package_versions(),
             "date_utc": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
             "content_hash": content_hash(coeffs, degree),

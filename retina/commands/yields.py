@@ -17,7 +17,7 @@ import numpy as np
 from retina.commands._types import MAX_MEMORY_GB, real, whole
 from retina.errors import InputError
 
-METHODS = ("auto", "hilbert", "liouville", "separable")
+METHODS = ("auto", "hilbert", "liouville", "separable", "fast-separable", "sampled")
 MAX_CHECK_POINTS = 100_000
 """More check directions than this add nothing to the truncation-error estimate and were not counted
 by the engine's memory estimate."""
@@ -114,6 +114,13 @@ def summary(yf, output, wall_seconds: float) -> str:
         + (" (taken from the cache)" if yf.from_cache else ""),
         f"  written to {output}",
     ]
+    if p.get("method_error_bound_max") is not None:
+        lines.insert(-1, f"  stated error bound of the method: {p['method_error_bound_max']:.1g} per direction")
+    if p.get("approximation"):
+        lines.insert(-1, f"  APPROXIMATION: {p['approximation']} with {p.get('sampling_states', '?')} random states; "
+                         f"standard error up to {p.get('sampling_standard_error_max', float('nan')):.2g} per direction "
+                         f"(errors shared across directions), deterministic bias <= "
+                         f"{p.get('sampling_bias_bound', float('nan')):.1g}")
     return "\n".join(lines)
 
 

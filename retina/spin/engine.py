@@ -3,7 +3,15 @@
 Methods (all exact for their scope):
 
 - ``"separable"`` (:mod:`retina.spin.separable`): no electron-electron coupling, equal rates, no
-  relaxation.  Cheapest: two radical-sized eigenproblems per direction.
+  relaxation.  Two radical-sized eigenproblems and a pair sum of ``d_A^2 d_B^2 / 2`` terms per
+  direction: cheapest for small radicals.
+- ``"fast-separable"`` (:mod:`retina.spin.fast_separable`): the same scope and quantity to an
+  absolute tolerance (default 1e-10, bound stated and checked) through each radical's correlation
+  functions on a time grid; its cost is set by the two eigendecompositions, so it takes over from
+  ``"separable"`` as the radicals grow.  ``RETINA_JOBS`` (environment) sets its worker processes.
+- ``"sampled"`` (:mod:`retina.spin.sampling`): the separable scope, by stochastic trace estimation
+  with random vectors propagated in time: **an approximation with error bars**, never chosen by
+  ``"auto"``; an exact estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
   Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it runs a
@@ -32,7 +40,11 @@ from retina.spin.memory import available_bytes  # noqa: F401  (public here too: 
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
 
-METHODS = ("separable", "hilbert", "liouville")
+METHODS = ("separable", "fast-separable", "hilbert", "liouville", "sampled")
+#: Methods whose scope is a pair with uncoupled electrons, equal rates and no relaxation.
+SEPARABLE_METHODS = ("separable", "fast-separable", "sampled")
+#: Exact methods (``"auto"`` chooses among these).
+EXACT_METHODS = ("separable", "fast-separable", "hilbert", "liouville")
 _GIB = 2**30
 _log = logging.getLogger(__name__)
 
@@ -67,16 +79,53 @@ def _separable_available() -> bool:
     return True
 
 
-def choose_method(system) -> str:
+def in_scope(system, method: str) -> bool:
+    """True when ``method`` covers ``system`` (see the module docstring for each scope)."""
+    plain = system.equal_rates and not system.relaxation.any
+    if method in SEPARABLE_METHODS:
+        return plain and not system.electron_coupled
+    if method == "hilbert":
+        return plain
+    return method == "liouville"
+
+
+#: Fixed constants of the separable choice (s per d^3 of eigh, per pair-sum term, per time sample),
+#: measured on the development machine; fixed so that the choice, part of the cache key, never
+#: depends on the machine's load.
+_CHOICE_EIGH, _CHOICE_PAIR, _CHOICE_SAMPLE = 7e-10, 4e-9, 8e-7
+
+
+def _fast_is_cheaper(system) -> bool:
+    """Deterministic per-direction comparison of the two separable methods' cost models."""
+    from retina.spin.equivalence import reduced_dimensions
+    from retina.spin.fast_separable import MAX_KH, THETA
+    from retina.spin.sampling import _spread_bound
+
+    dims = [r.dimension for r in system.radicals]
+    pair = _CHOICE_PAIR * dims[0] ** 2 * dims[1] ** 2 / 2
+    blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
+    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    k = float(system.k_singlet)
+    n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
+    fast = sum(1.1 * _CHOICE_EIGH * d**3 + 3.3e-7 * d * d / 2 for d in blocks) + _CHOICE_SAMPLE * n_t
+    return fast < pair
+
+
+def choose_method(system, n_directions: int = 1) -> str:
     """The cheapest exact method whose scope covers ``system``.
 
-    ``"separable"`` when the electrons are uncoupled, the rates equal and there is no relaxation
-    (and :mod:`retina.spin.separable` imports); ``"hilbert"`` when the rates are equal and there is
-    no relaxation; ``"liouville"`` otherwise.
+    Among ``"separable"`` and ``"fast-separable"`` (uncoupled electrons, equal rates, no relaxation,
+    and :mod:`retina.spin.separable` imports) the one with the smaller modelled time per direction
+    (fixed constants, so that the choice, which is part of the cache key, never depends on the
+    machine's load); else
+    ``"hilbert"`` when the rates are equal and there is no relaxation; ``"liouville"`` otherwise.
+    Every method chosen here meets the default accuracy (rounding, or 1e-10 for
+    ``"fast-separable"``).
     """
     if system.equal_rates and not system.relaxation.any:
         if not system.electron_coupled and _separable_available():
-            return "separable"
+            n = max(int(n_directions), 1)
+            return "fast-separable" if _fast_is_cheaper(system) else "separable"
         return "hilbert"
     return "liouville"
 
@@ -114,8 +163,31 @@ def _check_method(method: str) -> str:
     return method
 
 
+def _jobs() -> int:
+    """Worker processes of the fast separable method: ``RETINA_JOBS`` (default 1)."""
+    import os
+
+    raw = os.environ.get("RETINA_JOBS", "1").strip() or "1"
+    try:
+        n = int(raw)
+    except ValueError:
+        raise InputError(f"expected a positive whole number of worker processes, got {raw!r}",
+                         key="RETINA_JOBS") from None
+    if n < 1:
+        raise InputError(f"expected a positive whole number of worker processes, got {raw!r}", key="RETINA_JOBS")
+    return n
+
+
+def _jobs_speedup() -> float:
+    import os
+
+    return float(min(_jobs(), os.cpu_count() or 1))
+
+
 def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     """Estimate the time and memory of ``compute_yields`` for ``n_directions`` directions.
+
+    When the estimate exceeds an hour, the note names a faster method in scope, if there is one.
 
     Parameters
     ----------
@@ -128,11 +200,31 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     -------
     Cost
     """
+    if method == "auto":
+        method = choose_method(system, n_directions)
+    cost = _estimate(system, n_directions, _check_method(method))
+    if cost.seconds > 3600:
+        others = [(m, _estimate(system, n_directions, m)) for m in METHODS if m != method and in_scope(system, m)]
+        faster = [(m, c) for m, c in others if c.seconds < 0.5 * cost.seconds]
+        if faster:
+            m, c = min(faster, key=lambda mc: mc[1].seconds)
+            kind = "approximately (error bars from sampling)" if m == "sampled" else "exactly"
+            cost = Cost(cost.seconds, cost.bytes, cost.method,
+                        f"{cost.note}; method={m!r} covers this pair {kind} in about {_fmt_duration(c.seconds)}")
+    return cost
+
+
+def _fmt_duration(s: float) -> str:
+    if s < 120:
+        return f"{s:.3g} s"
+    if s < 7200:
+        return f"{s / 60:.3g} min"
+    return f"{s / 3600:.3g} h"
+
+
+def _estimate(system, n_directions: int, method: str) -> Cost:
     from retina.spin.hilbert import chunk_size
 
-    if method == "auto":
-        method = choose_method(system)
-    _check_method(method)
     n = max(int(n_directions), 0)
     d = int(system.dimension)  # an exact Python integer (no 64-bit wrap)
     if d > MAX_ESTIMATED_DIMENSION:
@@ -149,6 +241,33 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
         seconds = n * ((0.65 if d >= TRIDIAGONAL_FROM else 1.25) * _t_eigh(d) + _PER_DIRECTION)
         return Cost(seconds, int(base + batch * per), method,
                     f"{n} Hermitian eigendecompositions of size {d}")
+    if method == "fast-separable":
+        from retina.spin import fast_separable
+
+        from retina.spin.equivalence import reduced_dimensions
+
+        dims = [r.dimension for r in system.radicals]
+        blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
+        # per block: eigh (evr driver, ~0.8 of the calibrated heevd) + two half-size products
+        # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
+        # + the time grid: ~8e-7 s per sample for spreading-grid set-up, FFTs and series of both
+        # radicals (measured at 2e4-3e4 samples), n_t ~ 28 W / (0.9 pi k) (fast_separable.plan)
+        from retina.spin.sampling import _spread_bound
+
+        w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+        k = float(system.k_singlet)
+        n_t = 28.0 / (k * min(fast_separable.THETA * np.pi / max(w_tot, 1e-30), fast_separable.MAX_KH / k))
+        per = (sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + 8e-7 * n_t
+               + _PER_DIRECTION)
+        return Cost(n * per / _jobs_speedup(), fast_separable.working_bytes(system) * _jobs(), method,
+                    f"{n} x {len(blocks)} eigendecompositions of sizes up to {max(blocks)} (radicals "
+                    f"{dims[0]} and {dims[1]}) and correlation functions on a time grid (absolute error "
+                    f"<= {fast_separable.DEFAULT_TOL:g})")
+    if method == "sampled":
+        from retina.spin import sampling
+
+        secs, mem, note = sampling.cost_model(system, n)
+        return Cost(secs, mem, method, note)
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
@@ -192,8 +311,12 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
 def _resource_hint(system, method: str) -> str:
     """What the user can change when ``method`` would not fit in memory."""
     raise_limit = "raise the memory limit (max_bytes, or --max-memory-gb on the command line)"
-    if method != "separable" and choose_method(system) == "separable":
-        return f"method='separable' covers this pair at a far smaller cost; or use fewer nuclei, or {raise_limit}"
+    if method not in SEPARABLE_METHODS and in_scope(system, "separable") and _separable_available():
+        return ("method='separable' or method='fast-separable' (method='auto' picks the cheaper) covers this "
+                f"pair at a far smaller cost; or use fewer nuclei, or {raise_limit}")
+    if method == "separable":
+        return (f"method='fast-separable' covers this pair with radical-sized memory; or use fewer nuclei, "
+                f"or {raise_limit}")
     if method == "liouville":
         from retina.spin.liouville import solver_for
 
@@ -212,7 +335,8 @@ def _fmt_gib(b: float) -> str:
         return f"10^{int(math.log10(b)) - 9} GiB"
 
 
-def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None) -> np.ndarray:
+def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None,
+                   info: dict | None = None) -> np.ndarray:
     """The system's reported yield for each field direction.
 
     Parameters
@@ -222,10 +346,14 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         Field strength, microtesla.
     directions : array_like, shape (N, 3)
         Field directions in the molecular frame (normalised).
-    method : {"auto", "separable", "hilbert", "liouville"}
+    method : {"auto", "separable", "fast-separable", "hilbert", "liouville", "sampled"}
     progress : callable(done, total), optional
     max_bytes : int, optional
         Memory bound; default 60 % of the available memory.
+    info : dict, optional
+        Filled with what a method reports: ``"fast-separable"`` its largest stated error bound
+        (``method_error_bound_max``); ``"sampled"`` the approximation's name, the number of random
+        states, the largest standard error and the bias bound.
 
     Returns
     -------
@@ -239,13 +367,13 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     InputError
         Unknown method, or a system outside the method's scope.
     """
-    if method == "auto":
-        method = choose_method(system)
-    _check_method(method)
-    if method == "separable" and not _separable_available():
-        method = "hilbert"
     dirs = np.asarray(directions, dtype=float)
     n = dirs.shape[0] if dirs.ndim == 2 else 1
+    if method == "auto":
+        method = choose_method(system, n)
+    _check_method(method)
+    if method in SEPARABLE_METHODS and not _separable_available():
+        method = "hilbert"
     limit = int(0.6 * memory.available_bytes()) if max_bytes is None else int(max_bytes)
     cost = estimate_cost(system, n, method)
     _log.debug("%r: method %s, %d directions, estimated %.3g s and %s (limit %s)", system.name, method, n,
@@ -259,6 +387,30 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         from retina.spin import separable
 
         return separable.yields(system, field_uT, dirs, progress=progress)
+    if method == "fast-separable":
+        from retina.spin import fast_separable
+
+        if info is None:
+            return fast_separable.yields(system, field_uT, dirs, progress=progress, n_jobs=_jobs())
+        from retina.spin.system import equal_rate_reported_yield
+
+        phi, bound = fast_separable.singlet_start_singlet_yield(system, field_uT, dirs, progress=progress,
+                                                                n_jobs=_jobs(), return_bound=True)
+        info.update(method_error_bound_max=float(np.max(bound)) if bound.size else 0.0)
+        return equal_rate_reported_yield(system, phi)
+    if method == "sampled":
+        from retina.spin import sampling
+        from retina.spin.system import equal_rate_reported_yield
+
+        res = sampling.sampled_yields(system, field_uT, dirs, progress=progress)
+        if info is not None:
+            # the reported yield is an affine map of the singlet-start one with slope +-1 or +-1/3
+            slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
+            info.update(approximation="stochastic trace estimation (sampled)",
+                        sampling_states=int(res.draws.shape[0]),
+                        sampling_standard_error_max=float(slope * np.max(res.standard_error)),
+                        sampling_bias_bound=float(slope * res.bias_bound))
+        return equal_rate_reported_yield(system, res.mean)
     if method == "hilbert":
         from retina.spin import hilbert
 

@@ -21,6 +21,12 @@ Tables and keys
     - ``principal_mT = [a1, a2, a3]`` with an optional ``orientation`` inline table holding either
       ``euler_zyz_deg = [alpha, beta, gamma]`` or ``axes = [[x..], [y..], [z..]]``.
 
+    ``count = n`` (optional, a whole number >= 1, default 1) declares ``n`` magnetically
+    equivalent nuclei with this one spin and tensor (a methyl group, say); they are read as ``n``
+    nuclei labelled ``"<label> 1" .. "<label> n"`` and the canonical form lists them one by one.
+    The fast separable method reduces such groups exactly by total spin
+    (:mod:`retina.spin.equivalence`); the other methods treat them as separate nuclei.
+
     Principal-axis convention (owned here): with ``R`` the (3, 3) matrix whose *columns* are the
     principal axes written in the molecular frame, ``A = R diag(a1, a2, a3) R^T``.  ``axes`` gives
     the principal axes as *rows* (so ``R = axes^T``; rows must be orthonormal within 1e-6).
@@ -116,7 +122,7 @@ MAX_FILE_BYTES = 1 << 20
 _TOP_KEYS = ("pair", "radical_a", "radical_b", "coupling", "kinetics", "relaxation")
 _PAIR_KEYS = ("name", "initial_state", "reported_yield")
 _RADICAL_KEYS = ("label", "g", "g_tensor", "nuclei")
-_NUCLEUS_KEYS = ("label", "spin", "hyperfine_mT", "principal_mT", "orientation")
+_NUCLEUS_KEYS = ("label", "spin", "hyperfine_mT", "principal_mT", "orientation", "count")
 _ORIENTATION_KEYS = ("euler_zyz_deg", "axes")
 _COUPLING_KEYS = ("exchange_mT", "dipolar_mT", "dipolar")
 _DIPOLAR_KEYS = ("distance_nm", "direction")
@@ -314,6 +320,23 @@ def _nucleus(ctx: _Ctx, table: Any, where: str, index: int) -> Nucleus:
     return Nucleus(label=label, spin=spin, hyperfine_mT=_readonly(tensor))
 
 
+def _nuclei(ctx: _Ctx, table: Any, where: str, index: int) -> tuple[Nucleus, ...]:
+    """One ``[[...nuclei]]`` entry: ``count`` (default 1) equivalent nuclei sharing spin and tensor."""
+    count = 1
+    if isinstance(table, dict) and "count" in table:
+        raw = table["count"]
+        if isinstance(raw, bool) or not isinstance(raw, int) or not 1 <= raw <= MAX_NUCLEI:
+            raise ctx.fail(f"{where}.count", f"expected a whole number of equivalent nuclei from 1 to "
+                                             f"{MAX_NUCLEI}, got {raw!r}")
+        count = raw
+        table = {key: val for key, val in table.items() if key != "count"}
+    nuc = _nucleus(ctx, table, where, index)
+    if count == 1:
+        return (nuc,)
+    return tuple(Nucleus(label=f"{nuc.label} {i + 1}", spin=nuc.spin, hyperfine_mT=nuc.hyperfine_mT)
+                 for i in range(count))
+
+
 def _orientation(ctx: _Ctx, value: Any, where: str) -> np.ndarray:
     if not isinstance(value, dict):
         raise ctx.fail(where, f"expected an inline table {{ euler_zyz_deg = [a, b, g] }} or "
@@ -354,7 +377,10 @@ def _radical(ctx: _Ctx, doc: dict, key: str, default_label: str) -> Radical:
         raise ctx.fail(f"{key}.nuclei", f"expected an array of tables [[{key}.nuclei]], got {_type_name(nuclei_raw)}")
     if len(nuclei_raw) > MAX_NUCLEI:
         raise ctx.fail(f"{key}.nuclei", f"expected at most {MAX_NUCLEI} nuclei, got {len(nuclei_raw)}")
-    nuclei = tuple(_nucleus(ctx, t, f"{key}.nuclei[{i}]", i) for i, t in enumerate(nuclei_raw))
+    nuclei = tuple(n for i, t in enumerate(nuclei_raw) for n in _nuclei(ctx, t, f"{key}.nuclei[{i}]", i))
+    if len(nuclei) > MAX_NUCLEI:
+        raise ctx.fail(f"{key}.nuclei", f"expected at most {MAX_NUCLEI} nuclei (counting each count = n "
+                                        f"entry n times), got {len(nuclei)}")
     return Radical(label=label, g=g, g_tensor=g_tensor, nuclei=nuclei)
 
 

@@ -1,0 +1,112 @@
+"""Tests of the sampling method (retina.spin.sampling): honest error bars, correlated errors,
+evenness, the time quadrature, and its place in the engine and the provenance.
+
+References: the exact fast separable method (retina.spin.fast_separable, itself checked against the
+pair sum), scipy.stats for the t distribution, closed-form Lorentzian sums.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import scipy.stats
+
+from retina.errors import InputError
+from retina.spin import engine, fast_separable, sampling
+from test_spin_separable import _random_system, _unit
+
+
+def _small(seed=0, k=1e7):
+    return _random_system(np.random.default_rng(seed), [1.0, 0.5], [0.5, 0.5], hf_scale=0.3, k=k)
+
+
+@pytest.mark.slow
+def test_z_scores_against_exact_yields_look_standard_normal():
+    # Reference: fast_separable (exact to 1e-10).  40 independent seeds, one direction each, 16
+    # draws: z = (estimate - exact) / standard error follows Student's t with 15 degrees of freedom
+    # when the error bar is honest (derived: mean of 16 i.i.d. unbiased draws over its sample
+    # standard error).  The checks fail for an error bar off by a factor 1.5 either way.
+    system = _small(k=3e7)
+    dirs = _unit(np.random.default_rng(1), 40)
+    exact = fast_separable.singlet_start_singlet_yield(system, 50.0, dirs)
+    z = np.empty(40)
+    for i in range(40):
+        res = sampling.sampled_yields(system, 50.0, dirs[i:i + 1], n_states=16, seed=100 + i)
+        z[i] = (res.mean[0] - exact[i]) / res.standard_error[0]
+    t_std = np.sqrt(15 / 13)
+    assert abs(z.mean()) < 4 * t_std / np.sqrt(40)
+    assert 0.7 * t_std < z.std(ddof=1) < 1.4 * t_std
+    assert scipy.stats.kstest(z, scipy.stats.t(df=15).cdf).pvalue > 1e-3
+
+
+def test_errors_are_shared_across_directions_and_the_estimate_is_even():
+    # Derived: the same random vectors serve every direction, so the error of a difference between
+    # near directions is far smaller than each error; the exact yield is even (yieldfn docstring)
+    # and the estimate is made even by sampling the upper-hemisphere representative.
+    system = _random_system(np.random.default_rng(2), [1.0, 0.5, 0.5], [1.0, 0.5], hf_scale=0.3, k=1e7)
+    b1 = np.array([0.0, 0.0, 1.0])
+    b2 = np.array([np.sin(0.1), 0.0, np.cos(0.1)])
+    res = sampling.sampled_yields(system, 50.0, np.stack([b1, b2, -b1]), n_states=8, seed=3)
+    assert res.mean[0] == res.mean[2]
+    se_diff = res.standard_error_of([1.0, -1.0, 0.0])
+    assert se_diff < 0.3 * res.standard_error[0]
+    exact = fast_separable.singlet_start_singlet_yield(system, 50.0, np.stack([b1, b2]))
+    assert abs((res.mean[0] - res.mean[1]) - (exact[0] - exact[1])) < 5 * se_diff + res.bias_bound
+
+
+def test_end_corrected_trapezoid_integrates_band_limited_functions():
+    # Derived (module docstring): for F(t) = sum c cos(Omega t), |Omega| h <= theta_max, the
+    # end-corrected trapezoid gives sum c k^2/(k^2 + Omega^2) up to (fit error) sum |c| + tail.
+    rng = np.random.default_rng(4)
+    k = 1e6
+    omega = rng.uniform(-3e8, 3e8, 50)
+    c = rng.normal(size=50)
+    h = 0.9 * np.pi / 3e8
+    gamma, err = sampling._end_correction(k, h, 3e8 * h, 1e-10)
+    n_t = int(40 / (k * h))
+    t = np.arange(n_t) * h
+    f = np.cos(np.outer(t, omega)) @ c
+    q = k * h * (np.exp(-k * t) @ f - 0.5 * f[0]) - f[:gamma.size] @ gamma
+    want = c @ (k * k / (k * k + omega**2))
+    assert err <= 1e-10
+    assert abs(q - want) <= err * np.abs(c).sum() + 1e-12
+
+
+def test_engine_runs_the_sampled_method_and_reports_it():
+    system = _small(k=2e7)
+    info: dict = {}
+    dirs = _unit(np.random.default_rng(5), 2)
+    got = engine.compute_yields(system, 50.0, dirs, method="sampled", info=info)
+    assert got.shape == (2,)
+    assert info["approximation"].startswith("stochastic trace estimation")
+    assert info["sampling_states"] == sampling.DEFAULT_STATES
+    assert info["sampling_standard_error_max"] > 0
+    assert engine.choose_method(system) in ("separable", "fast-separable")  # auto stays exact
+    with pytest.raises(InputError, match="random states"):
+        sampling.sampled_yields(system, 50.0, dirs, n_states=1)
+
+
+def test_yield_function_provenance_names_the_approximation(tmp_path, monkeypatch):
+    from retina.yieldfn import YieldFunction
+
+    monkeypatch.setenv("RETINA_CACHE", str(tmp_path))
+    yf = YieldFunction.from_system(_small(k=3e7), 50.0, 2, method="sampled", check_points=4)
+    p = yf.provenance
+    assert p["method"] == "sampled"
+    assert "stochastic trace" in p["approximation"]
+    assert p["sampling_standard_error_max"] > 0 and p["antipodal_difference_max"] == 0.0
+
+
+def test_hours_long_exact_estimates_name_a_faster_method():
+    # Common practice, no source: the estimate's note names the faster method in scope.
+    from retina.spin.system import Nucleus, Radical, SpinSystem
+
+    def radical(label):
+        nuc = [Nucleus(f"N{i}", 1.0, 0.5 * np.eye(3)) for i in range(2)]
+        nuc += [Nucleus(f"H{i}", 0.5, (0.1 + 0.03 * i) * np.eye(3)) for i in range(8)]
+        return Radical(label, nuclei=tuple(nuc))
+
+    big = SpinSystem("invented 20-nucleus pair", (radical("A"), radical("B")), k_singlet=1e6, k_triplet=1e6)
+    c = engine.estimate_cost(big, 258, "separable")
+    assert c.seconds > 3600
+    assert "method='fast-separable'" in c.note or "method='sampled'" in c.note
