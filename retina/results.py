@@ -1,7 +1,7 @@
 """The results of a run: the :class:`Results` container and its HDF5 file.
 
 Schema of ``results.h5`` (format "retina-compass results", version 2)
---------------------------------------------------------------------
+---------------------------------------------------------------------
 This docstring is the one place that documents the results file; README.md points here.
 
 One group per stage, written by :func:`save_results`.  Inside a group, every array is a dataset,

@@ -18,8 +18,7 @@ Schema (section, key, type, default; units in the key name)
     ``field_uT`` (float > 0, optional): field strength for the spin computation; defaults to the
     scenario's field intensity,
     ``method`` ("auto" | "hilbert" | "liouville" | "separable", "auto").
-``[ordering]`` (the models are those of :mod:`retina.eye.ordering`, built by
-:func:`retina.eye.ordering.from_settings`)
+``[ordering]`` (the models of :mod:`retina.eye.ordering`, via :func:`~retina.eye.ordering.from_settings`)
     ``model`` ("aligned" | "axial" | "cone" | "cone_no_twist" | "plane" | "isotropic", "cone"):
     how the molecules sit in a receptor: fixed in the receptor frame; free rotation about the
     receptor axis; a von Mises-Fisher cone of the molecular direction that the orientation puts on
