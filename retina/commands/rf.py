@@ -142,12 +142,12 @@ def run(args) -> int:
     system, field, degree, max_bytes = common_inputs(args)
     try:
         rf.check_rf(args.rf_MHz, args.rf_nT, args.direction)
-        tol = rf._check_tol(args.tol)
+        tol = rf.check_tol(args.tol)
     except InputError as exc:
         key = {"rf_MHz": "--rf-MHz", "rf_nT": "--rf-nT", "rf_direction": "--direction", "tol": "--tol"}[exc.key]
         raise InputError(exc.detail, key=key) from None
     freqs = parse_spectrum(args.spectrum) if args.spectrum is not None else None
-    rf._check_memory(system, 4, "auto", max_bytes)
+    rf.check_memory(system, 4, "auto", max_bytes)
 
     with ProgressBar(not args.quiet, "rf yields", unit="dir") as progress:
         static = YieldFunction.from_system(system, field, degree)

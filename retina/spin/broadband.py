@@ -6,11 +6,11 @@ nT, nT/sqrt(Hz); inside, frequencies are measured in units of ``k`` (dimensionle
 
 Derivation (response spectrum)
 ------------------------------
-Notation of :mod:`retina.spin.rf`: ``d rho / dt = (L0 + cos(w t + theta) L1) rho`` with
+Notation of :mod:`retina.spin.rf_floquet`: ``d rho / dt = (L0 + cos(w t + theta) L1) rho`` with
 ``L0 rho = -i [H0, rho] - k rho`` (equal rates) and ``L1 rho = -i [V, rho]``, ``V`` the electron
 Zeeman operator of the RF amplitude vector ``B1 n``.  The yield is ``Phi = k int Tr(P rho) dt`` with
 ``P`` the projector of the reported channel.  Expanding the Floquet equations of
-:mod:`retina.spin.rf` (``q delta_n0 + (L0^T + i n w) a_n + (L1^T / 2)(a_{n-1} + a_{n+1}) = 0``) in
+:mod:`retina.spin.rf_floquet` (``q delta_n0 + (L0^T + i n w) a_n + (L1^T / 2)(a_{n-1} + a_{n+1}) = 0``) in
 powers of ``L1``: ``a_0 = -(L0^T)^-1 q`` at order 0, ``a_{+/-1} = -(L0^T +/- i w)^-1 (L1^T / 2) a_0``
 at order 1, and the order-2 part of ``a_0`` is ``-(L0^T)^-1 (L1^T / 2)(a_1 + a_-1)``.  The
 phase-averaged change of the yield is therefore, to second order in the amplitude,
