@@ -541,10 +541,44 @@ def funk_hecke(coeffs, moments) -> np.ndarray:
     return c * lam[..., l]
 
 
+#: Above this concentration the vMF moments use their closed form in ``1 / kappa`` (scipy's scaled
+#: Bessel functions return NaN beyond about 1e10); below it, the Bessel ratio.
+VMF_CLOSED_FORM_FROM = 1e8
+
+
 def vmf_moments(kappa: float, L: int) -> np.ndarray:
-    """Legendre moments ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)``, l = 0..L, of the
-    von Mises-Fisher density ``C(kappa) exp(kappa t)`` on the sphere (``t`` the cosine to the mean
-    axis).  ``kappa = 0`` is uniform (only lambda_0 = 1); ``kappa = inf`` is a delta (all ones).
+    """Legendre moments of the von Mises-Fisher density on the sphere.
+
+    ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)`` is the mean of ``P_l(t)`` under the density
+    ``C(kappa) exp(kappa t)`` (``t`` the cosine to the mean axis); ``lambda_1 = coth(kappa) -
+    1 / kappa`` is the mean cosine.  Stable for every ``kappa`` from 0 to inf:
+
+    - ``kappa = 0``: uniform (only ``lambda_0 = 1``); ``kappa < 1e-3``: the series
+      ``kappa^l / (2l + 1)!!`` (from ``I_nu(x) ~ (x/2)^nu / Gamma(nu + 1)``);
+    - up to :data:`VMF_CLOSED_FORM_FROM`: the ratio of scaled Bessel functions (``scipy.special.ive``);
+    - above it: the half-integer Bessel functions in closed form (the spherical Bessel functions),
+      ``I_{l+1/2}(k) sqrt(pi k / 2) = [e^k sum_j (-1)^j a_j - (-1)^l e^-k sum_j a_j] / 2`` with
+      ``a_j = (l + j)! / (j! (l - j)! (2k)^j)``, ``j = 0..l``, and ``I_{1/2}(k) sqrt(pi k / 2) =
+      sinh k``, so ``lambda_l = sum_j (-1)^j a_j`` up to terms of order ``e^-2k`` (nil there:
+      below ``10^-86,000,000``): ``1 - 1/k`` for l = 1, ``1 - 3/k + 3/k^2`` for l = 2;
+    - ``kappa = inf``: a delta (all ones).
+
+    Parameters
+    ----------
+    kappa : float
+        Concentration, ``>= 0`` (``inf`` allowed).
+    L : int
+        Largest degree.
+
+    Returns
+    -------
+    ndarray, shape (L + 1,)
+        ``lambda_0 .. lambda_L`` (``lambda_0 = 1``), each in ``[0, 1]``.
+
+    Raises
+    ------
+    ValueError
+        For a negative or NaN ``kappa``.
     """
     from scipy.special import ive
 
@@ -562,6 +596,15 @@ def vmf_moments(kappa: float, L: int) -> np.ndarray:
         from scipy.special import factorial2
 
         return kappa ** l / factorial2(2 * l + 1)
+    if kappa > VMF_CLOSED_FORM_FROM:
+        out = np.empty(L + 1)
+        for ll in range(L + 1):
+            term, total = 1.0, 1.0
+            for j in range(ll):  # a_{j+1} / a_j = -(l + j + 1)(l - j) / ((j + 1) 2k), signs included
+                term *= -(ll + j + 1) * (ll - j) / ((j + 1) * 2.0 * kappa)
+                total += term
+            out[ll] = total
+        return out
     return ive(l + 0.5, kappa) / ive(0.5, kappa)
 
 

@@ -122,7 +122,9 @@ def twist_factors(kappa: float, L: int) -> np.ndarray:
     von Mises density ``exp(kappa cos delta) / (2 pi I_0(kappa))`` (``E[sin(m delta)] = 0``).
 
     ``kappa = 0`` is a free twist (``A_m = 0`` for m > 0, exactly); ``kappa = inf`` a fixed one
-    (all ones).  A twist by ``delta`` about ``z`` turns the degree-l pair ``(m, -m)`` by ``m
+    (all ones).  Above :data:`TWIST_ASYMPTOTIC_FROM` the ratio comes from the large-argument
+    expansion of both Bessel functions (``A_1 = 1 - 1/(2 kappa) - 1/(8 kappa^2) + ...``), so every
+    ``kappa`` up to inf is finite.  A twist by ``delta`` about ``z`` turns the degree-l pair ``(m, -m)`` by ``m
     delta``, so its average scales the pair by ``A_|m|``.
 
     Parameters
@@ -143,7 +145,29 @@ def twist_factors(kappa: float, L: int) -> np.ndarray:
         return np.ones(L + 1)
     if kappa == 0:
         return (m == 0).astype(float)
+    if kappa > TWIST_ASYMPTOTIC_FROM:
+        return np.array([_hankel_sum(mm, kappa) for mm in m]) / _hankel_sum(0, kappa)
     return ive(m, kappa) / ive(0, kappa)
+
+
+#: Above this concentration :func:`twist_factors` uses the large-argument expansion (scipy's scaled
+#: Bessel functions return NaN beyond about 1e10).
+TWIST_ASYMPTOTIC_FROM = 1e8
+
+
+def _hankel_sum(nu: int, z: float) -> float:
+    """``I_nu(z) sqrt(2 pi z) e^-z`` by the large-argument expansion (Abramowitz and Stegun 9.7.1,
+    from memory): ``sum_j (-1)^j prod_{i <= j} (4 nu^2 - (2i - 1)^2) / (j! (8 z)^j)``.  The
+    neglected ``e^-2z`` part is nil for ``z > 1e8``; the sum stops when a term falls below 1e-18
+    (a handful of terms while ``nu^2 << z``)."""
+    mu = 4.0 * nu * nu
+    term, total = 1.0, 1.0
+    for j in range(1, 64):
+        term *= -(mu - (2 * j - 1) ** 2) / (8.0 * j * z)
+        total += term
+        if abs(term) < 1e-18:
+            break
+    return total
 
 
 def abs_m(L: int) -> tuple[np.ndarray, np.ndarray]:
