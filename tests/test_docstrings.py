@@ -13,7 +13,10 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.results", "retina.outputs", "retina.outputs.figures", "retina.outputs.text",
            "retina.outputs.report", "retina.progress", "retina.data", "retina.commands._common",
            "retina.spin.memory", "retina.sweep.schema", "retina.sweep.outputs", "retina.sweep.run",
-           "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export"]
+           "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export", "retina.sphere",
+           "retina.readout.circstats", "retina.readout.fisher", "retina.spin.operators", "retina.spin._rf_common",
+           "retina.spin.rf_method", "retina.spin.rf_yieldfn", "retina.eye.order_samplers", "retina.eye.order_cases",
+           "retina.eye.order_laws"]
 
 
 def _public_functions(name):
