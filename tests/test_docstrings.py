@@ -16,7 +16,10 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export", "retina.sphere",
            "retina.readout.circstats", "retina.readout.fisher", "retina.spin.operators", "retina.spin._rf_common",
            "retina.spin.rf_method", "retina.spin.rf_yieldfn", "retina.eye.order_samplers", "retina.eye.order_cases",
-           "retina.eye.order_laws"]
+           "retina.eye.order_laws", "retina.eye.order_rules", "retina.eye.field", "retina.eye.geometry",
+           "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise",
+           "retina.spin.io", "retina.spin.hilbert", "retina.spin.liouville", "retina.spin.separable",
+           "retina.spin.broadband", "retina.io.atomic"]
 
 
 def _public_functions(name):

@@ -38,13 +38,42 @@ def is_real(v) -> bool:
 
 
 def order_parameter_from_kappa(kappa: float) -> float:
-    """``<P2> = I_{5/2}(kappa) / I_{1/2}(kappa) = 1 - 3 (coth kappa - 1/kappa) / kappa`` for the
-    vMF polar distribution (0 at kappa = 0, 1 at kappa = inf)."""
+    """The order parameter of the vMF polar distribution.
+
+    ``<P2> = I_{5/2}(kappa) / I_{1/2}(kappa) = 1 - 3 (coth kappa - 1/kappa) / kappa``.
+
+    Parameters
+    ----------
+    kappa : float
+        Concentration, ``>= 0`` (``inf`` allowed).
+
+    Returns
+    -------
+    float
+        0 at kappa = 0, 1 at kappa = inf (``retina.sphere.vmf_moments``, stable for any kappa).
+    """
     return float(sphere.vmf_moments(float(kappa), 2)[2])
 
 
 def kappa_from_order_parameter(p2: float) -> float:
-    """The vMF concentration with ``<P2> = p2``, for ``0 <= p2 <= 1`` (0 -> 0, 1 -> inf)."""
+    """The vMF concentration with a given order parameter ``<P2>``.
+
+    Parameters
+    ----------
+    p2 : float
+        Order parameter in ``[0, 1]`` (a vMF cone cannot be oblate).
+
+    Returns
+    -------
+    float
+        ``kappa``: 0 for ``p2 = 0``, inf for ``p2 = 1``; the asymptotic inverse of
+        ``1 - 3/kappa + 3/kappa^2`` above ``1 - 3e-6``, else a bracketed root.
+
+    Raises
+    ------
+    InputError
+        Key ``ordering.order_parameter``.
+    """
     from scipy.optimize import brentq
 
     if not is_real(p2) or not math.isfinite(p2) or not 0 <= p2 <= 1:
@@ -100,14 +129,50 @@ def cone_rule(kappa: float, L: int) -> tuple[Rotation, np.ndarray]:
 
 
 def check_concentration(v, key: str) -> float:
+    """Validate a concentration.
+
+    Parameters
+    ----------
+    v : float
+        The value (``>= 0``; ``inf`` means no disorder).
+    key : str
+        Dotted key named in the error.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    InputError
+        For a non-number, NaN or a negative value.
+    """
     if not is_real(v) or math.isnan(v) or v < 0:
         raise InputError(f"expected a concentration >= 0 (inf: no disorder), got {v!r}", key=key)
     return float(v)
 
 
 def resolve_twist(twist, kappa: float, key: str = "ordering.twist") -> float:
-    """The von Mises concentration of the twist: ``"tied"`` -> ``kappa``, ``"free"`` -> 0,
-    ``"fixed"`` -> inf, a number >= 0 -> itself."""
+    """The von Mises concentration of a twist setting.
+
+    Parameters
+    ----------
+    twist : {"tied", "free", "fixed"} or float
+        ``"tied"`` -> ``kappa``, ``"free"`` -> 0, ``"fixed"`` -> inf, a number ``>= 0`` -> itself.
+    kappa : float
+        The tilt concentration (for ``"tied"``).
+    key : str
+        Dotted key named in the error.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    InputError
+        For an unknown word or a bad number.
+    """
     if isinstance(twist, str):
         table = {"tied": kappa, "free": 0.0, "fixed": math.inf}
         if twist not in table:
@@ -171,6 +236,17 @@ def _hankel_sum(nu: int, z: float) -> float:
 
 
 def abs_m(L: int) -> tuple[np.ndarray, np.ndarray]:
+    """Degree and absolute order of each even-degree coefficient.
+
+    Parameters
+    ----------
+    L : int
+        Even maximum degree.
+
+    Returns
+    -------
+    l, abs_m : ndarray of int, shape (K,)
+    """
     l, m = sphere.lm_index(L)
     return l, np.abs(m)
 
