@@ -19,7 +19,10 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.eye.order_laws", "retina.eye.order_rules", "retina.eye.field", "retina.eye.geometry",
            "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise",
            "retina.spin.io", "retina.spin.hilbert", "retina.spin.liouville", "retina.spin.separable",
-           "retina.spin.broadband", "retina.io.atomic"]
+           "retina.spin.broadband", "retina.io.atomic", "retina.io.hdf5", "retina.io.importers",
+           "retina.io.schema", "retina.readout.decode", "retina.readout.trials", "retina.scenario",
+           "retina.signal.light", "retina.spin.rf_floquet", "retina.spin.system", "retina.stages.memory",
+           "retina.yieldfn", "retina.cache"]
 
 
 def _public_functions(name):

@@ -102,7 +102,7 @@ _DENSE_UP_TO = 32
 # ------------------------------------------------------------------------------------------ memory
 
 def floquet_bytes(system, harmonics: int = 4, solver: str = "auto") -> int:
-    """Estimated peak working memory (bytes) of one Floquet solve at order ``N = harmonics``.
+    """Estimated peak working memory of one Floquet solve at order ``N = harmonics``.
 
     With ``m = 2N + 1`` harmonics, ``d`` the Hilbert and ``D = d^2`` the Liouville dimension:
     ``"sylvester"`` keeps about ``52 m`` (d, d) complex matrices (40 Krylov vectors of ``m`` blocks
@@ -110,6 +110,20 @@ def floquet_bytes(system, harmonics: int = 4, solver: str = "auto") -> int:
     ``"eig"`` about 8 dense (D, D) complex matrices plus 60 Krylov vectors of length ``m D``;
     ``"blocks"`` about ``6 + 2N`` dense (D, D) blocks; ``"splu"`` the LU fill of the
     block-tridiagonal system, taken as 3 dense blocks per block row at 24 bytes per entry.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair (its Hilbert dimension ``d``).
+    harmonics : int
+        Floquet order ``N``.
+    solver : str
+        One of :data:`SOLVERS`.
+
+    Returns
+    -------
+    int
+        Bytes.
     """
     d = system.dimension
     dd = d * d
