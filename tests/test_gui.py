@@ -1083,7 +1083,8 @@ def test_every_control_has_a_tooltip_with_its_unit(window):
     for c in CONTROLS:
         w = window.controls.controls[c.name]
         tip = w.spin.toolTip()
-        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count"))
+        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count",
+                                              "MHz", "nanotesla"))
     assert window.controls.controls["photons"].spin.suffix() == " photons"
     for name in ("display", "eye", "lock_scale"):
         assert window.controls.controls[name].toolTip()
@@ -1306,3 +1307,51 @@ def test_rf_state_is_saved_as_an_rf_condition_and_opened_again(rf_scenario, tmp_
 
     demo = ViewerState(load(DEMO))
     assert demo.rf == "off" and (demo.rf_MHz, demo.rf_nT, demo.rf_direction) == (1.2, 500.0, "perpendicular")
+
+
+def test_rf_box_is_disabled_for_a_file_yield_function_and_says_why(window):
+    from retina_viewer.panels import RF_BOX
+
+    box = window.controls.boxes[RF_BOX][0]
+    assert not box.isEnabled() and "RF needs the spin system" in box.toolTip()
+    assert "demo_quick.h5" in window.controls.controls["rf_nT"].spin.toolTip()
+    assert window.readout.labels["rf"].text() == "RF off"
+    # a choice forced programmatically is refused inside the slot, reported, and the box shows "off"
+    window.dialogs = False
+    window.controls.controls["rf"].setCurrentIndex(1)
+    assert "RF needs the spin system" in window.last_error
+    assert window.controls.controls["rf"].currentText() == "off" and window.state.rf == "off"
+
+
+def test_rf_control_recomputes_and_the_readout_and_status_bar_say_which(qapp, rf_scenario):
+    from retina_viewer.panels import RF_BOX
+    from retina_viewer.window import MainWindow
+
+    win = MainWindow(rf_scenario, synchronous=True)
+    try:
+        win.dialogs = False
+        said = []
+        win.statusBar().messageChanged.connect(said.append)
+        assert win.controls.boxes[RF_BOX][0].isEnabled()
+        off = win.state.result.pattern.yields.copy()
+        c = win.controls.controls
+        c["rf_MHz"].spin.setValue(1.401)
+        c["rf_nT"].spin.setValue(2000.0)
+        assert win.state.result.request.rf is None          # still off: only the settings changed
+        c["rf"].setCurrentIndex(1)                          # "single frequency"
+        res = win.state.result
+        assert res.request.rf == (1.401, 2000.0, "perpendicular")
+        assert win.readout.labels["rf"].text() == "RF 1.401 MHz, 2000 nT, perpendicular"
+        assert any(m.startswith("computing the RF yield function (RF 1.401 MHz, 2000 nT, perpendicular) "
+                                "at 50 uT, degree 4") for m in said), said
+        assert np.max(np.abs(res.pattern.yields - off)) > 0.01 * np.ptp(off)
+        c["rf_direction"].setCurrentText("parallel")
+        assert win.readout.labels["rf"].text().endswith("parallel")
+        c["rf"].setCurrentIndex(0)
+        assert win.readout.labels["rf"].text() == "RF off"
+        np.testing.assert_array_equal(win.state.result.pattern.yields, off)
+        assert win.last_error is None
+    finally:
+        win.close()
+        win.deleteLater()
+        qapp.processEvents()
