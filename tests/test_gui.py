@@ -1355,3 +1355,29 @@ def test_rf_control_recomputes_and_the_readout_and_status_bar_say_which(qapp, rf
         win.close()
         win.deleteLater()
         qapp.processEvents()
+
+
+def test_a_new_rf_setting_supersedes_a_running_rf_computation(rf_scenario):
+    # Contract of gui/workers.py (common practice, no source): the running request is cancelled
+    # when a newer one needs another yield function; a new RF setting or field strength does, a
+    # head turn does not, and RF off does not need the RF one.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st, c = ViewerState(rf_scenario), PatternComputer()
+    st.update(rf="tone", rf_MHz=1.0, rf_nT=300.0)
+    a = st.request()
+    st.yaw_deg = 90.0
+    assert not c.needs_new_yield(a, st.request())
+    for change in ({"rf_nT": 301.0}, {"rf_MHz": 1.1}, {"rf_direction": "parallel"}, {"intensity_uT": 49.0},
+                   {"rf": "off"}):
+        st2 = ViewerState(rf_scenario)
+        st2.update(rf="tone", rf_MHz=1.0, rf_nT=300.0)
+        st2.update(**change)
+        assert c.needs_new_yield(a, dataclass_replace(st2.request(), scenario=a.scenario)), change
+
+
+def dataclass_replace(obj, **kw):
+    import dataclasses
+
+    return dataclasses.replace(obj, **kw)
