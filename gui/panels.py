@@ -516,7 +516,8 @@ class ReadoutPanel(QGroupBox):
         self.labels["yield"].setText((f"at {F:g} uT" if np.isfinite(F) else "field not recorded")
                                      + " (hover: source)")
         self.labels["yield"].setToolTip(res.yield_note)
-        self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms")
+        self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms" if res.seconds < 10.0
+                                    else f"{res.seconds:.1f} s")
 
     def show_receptor(self, info) -> None:
         """Show :meth:`retina_viewer.views.MapView.receptor_info` (None: off the eyes)."""

@@ -378,8 +378,8 @@ class MainWindow(QMainWindow):
         self.state.set_result(result)
         if result.request.scan_yaws:
             self._show_scan(result)
-        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} "
-                                     f"({1000 * result.seconds:.1f} ms)", 4000)
+        took = f"{1000 * result.seconds:.1f} ms" if result.seconds < 10.0 else f"{result.seconds:.1f} s"
+        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} ({took})", 4000)
 
     @_slot
     def _on_failed(self, request, message: str) -> None:
