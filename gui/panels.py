@@ -115,8 +115,8 @@ CHOICES = {
            "(nT). Its yield function is computed from the spin system at the scenario's [rf] degree on "
            "the worker (seconds to minutes for a large pair; the status bar says so)."),
     "rf_direction": ("RF direction", None,
-                     "Direction of the RF field relative to the static field: perpendicular (averaged over "
-                     "its azimuth about the field, degrees) or parallel to it."),
+                     "Direction of the RF field relative to the static field: perpendicular (90 deg to it, "
+                     "averaged over its azimuth about the field) or parallel to it (0 deg)."),
 }
 
 #: Boxes of the control panel: (title, fields).

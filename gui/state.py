@@ -422,9 +422,9 @@ class ViewerState:
         Field: the given components, or the IGRF field at the scenario's place and date.  Light:
         the brightest of ``light.photons``.  Ordering: the scenario's own (``ordering =
         "scenario"``, ``kappa = None``).
-        Scan: ``scan.amplitude_deg`` and ``scan.steps``.  RF: as the module docstring says.  Emits only ``"scenario"``, after every
-        value is set (subscribers read the new values from the state), so one change of scenario
-        makes one request.  Clears the undo history.
+        Scan: ``scan.amplitude_deg`` and ``scan.steps``.  RF: as the module docstring says.  Emits
+        only ``"scenario"``, after every value is set (subscribers read the new values from the
+        state), so one change of scenario makes one request.  Clears the undo history.
         """
         from retina.scenario import Scenario
 

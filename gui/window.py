@@ -8,11 +8,12 @@ Conventions (owned here)
   exists), never as a traceback.  The first request is sent once the scenario is loaded (nothing
   is computed for the defaults before it).
 - Every change of a field that affects the pattern asks for a new pattern; display, eye and colour
-  lock only recolour.  While a yield function is computed (a new field strength, or a new RF
-  setting with RF on) the status bar says so and which one.  Coalescing, latest wins: requests are sent from a zero-delay timer (many
+  lock only recolour.  Coalescing, latest wins: requests are sent from a zero-delay timer (many
   changes in one pass of the event loop make one request), the worker keeps only the newest
   pending request, and results are applied from a zero-delay timer too (only the newest result
   waiting is drawn).  ``synchronous=True`` sends and applies at once (tests, scripts).
+- While a yield function is computed (a new field strength, or a new RF setting with RF on)
+  the status bar says so and which one (``MainWindow._computing_message``).
 - Keyboard: in a view, Left/Right turn the head 5 degrees (with Shift 1 degree), Up/Down pitch
   it, Page Up/Page Down roll it; in a control the keys belong to the control.  Ctrl+O opens a
   scenario, Ctrl+Shift+S saves the state as a scenario, Ctrl+E exports a publication figure,
