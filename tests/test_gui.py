@@ -1209,6 +1209,8 @@ def _larmor_MHz(field_uT):
 
 
 def test_rf_off_is_exactly_the_control_pattern(rf_scenario):
+    # Derived: with RF off the request carries no RF setting and the worker uses the scenario's own
+    # yield function, so the pattern equals, bit for bit, the one the core builds without the viewer.
     from retina import build
     from retina_viewer.state import ViewerState
     from retina_viewer.workers import PatternComputer
@@ -1273,6 +1275,8 @@ def test_rf_zero_amplitude_equals_off_and_a_larmor_tone_changes_the_pattern(rf_s
 
 
 def test_rf_readout_words_and_the_state_refuses_rf_for_a_file_yield_function(rf_scenario, file_scenario):
+    # Contract of gui/state.py (common practice, no source): the readout's wording, and RF refused
+    # where the yield function holds no spin system to drive.
     from retina_viewer.state import ViewerState, describe_rf
 
     assert describe_rf(None) == "RF off"
@@ -1289,6 +1293,8 @@ def test_rf_readout_words_and_the_state_refuses_rf_for_a_file_yield_function(rf_
 
 
 def test_rf_state_is_saved_as_an_rf_condition_and_opened_again(rf_scenario, tmp_path):
+    # Contract of gui/state.py (common practice, no source): a saved state round-trips through the
+    # scenario schema's [[rf.conditions]] (retina/scenario.py).
     from retina.scenario import load_scenario, save_scenario
     from retina_viewer.state import ViewerState
 
@@ -1310,6 +1316,8 @@ def test_rf_state_is_saved_as_an_rf_condition_and_opened_again(rf_scenario, tmp_
 
 
 def test_rf_box_is_disabled_for_a_file_yield_function_and_says_why(window):
+    # Contract of gui/panels.py (common practice, no source): a control that cannot act is disabled
+    # and says why; an error inside a Qt slot is reported, never raised (style.md).
     from retina_viewer.panels import RF_BOX
 
     box = window.controls.boxes[RF_BOX][0]
@@ -1324,6 +1332,8 @@ def test_rf_box_is_disabled_for_a_file_yield_function_and_says_why(window):
 
 
 def test_rf_control_recomputes_and_the_readout_and_status_bar_say_which(qapp, rf_scenario):
+    # 1.401 MHz: the free-electron Larmor frequency at 50 uT (CODATA through scipy.constants,
+    # _larmor_MHz); RF off again restores the control pattern exactly (derived, as above).
     from retina_viewer.panels import RF_BOX
     from retina_viewer.window import MainWindow
 
@@ -1335,6 +1345,7 @@ def test_rf_control_recomputes_and_the_readout_and_status_bar_say_which(qapp, rf
         assert win.controls.boxes[RF_BOX][0].isEnabled()
         off = win.state.result.pattern.yields.copy()
         c = win.controls.controls
+        assert round(_larmor_MHz(50.0), 3) == 1.401
         c["rf_MHz"].spin.setValue(1.401)
         c["rf_nT"].spin.setValue(2000.0)
         assert win.state.result.request.rf is None          # still off: only the settings changed
