@@ -289,6 +289,13 @@ def _rf_sections(g) -> list:
 def sweep_summary(w: dict, t: int) -> dict:
     """Key numbers of one lifetime of the RF sweep group ``w`` (:mod:`retina.stages.rf`).
 
+    Parameters
+    ----------
+    w : dict
+        The ``rf_sweep`` group of a :class:`retina.results.Results`.
+    t : int
+        Index of the lifetime.
+
     Returns
     -------
     dict
