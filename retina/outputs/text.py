@@ -351,7 +351,8 @@ def _rf_sweep_section(w: dict, caution: str):
               f"{k['min_threshold_nT']:.3g} (at {k['min_threshold_MHz']:.3g}; eta {eta_t:.2g}){flag} | "
               + ("never" if not np.isfinite(k["par_min_threshold_nT"]) else f"{k['par_min_threshold_nT']:.3g}")),
              "nT"),
-            (f"lifetime {tau:g} us: the response leaves its quasi-static value (1 / lifetime scale)",
+            (f"lifetime {tau:g} us: the parallel response leaves its quasi-static value (moves as 1 / lifetime "
+             "when the line spacings are much larger than 1 / lifetime)",
              mhz(k["departure_MHz"]), "MHz"),
             (f"lifetime {tau:g} us: trial r without RF | perpendicular RF at {w['trial_MHz'][t]:g} MHz",
              f"{w['control_r'][t]:.3f} | {w['trial_perp_r'][t]:.3f}", ""),
