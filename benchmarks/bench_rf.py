@@ -21,6 +21,11 @@ Rows (every reference is measured in the same run, on the same machine)
    from one direction measured in the same run (fixed RF vector, order 2, times 75 directions x
    4 azimuths x 1.6 solves per order doubling; printed as extrapolated).  The separable values
    at that direction are compared with the whole-pair one.
+5. Broadband cross-check (one-proton pair, dimension 8): four simultaneous tones with random phase
+   offsets (32 phase sets per offset, see tests/test_spin_rf_separable.py) by direct time
+   integration, against the incoherent sum predicted by the response spectrum; the relative
+   difference is printed with the weak-field parameter ``eta`` (expected about ``eta^2``).  The time
+   of one response spectrum of the demo pair is printed against one static yield.
 6. The demo's ``rf_sweep`` stage (demo scenario, degree 2, 6 swept frequencies, 2 lifetimes):
    :func:`retina.stages.rf.compute_rf_sweep` (one response spectrum per direction for all
    frequencies, bounds from the linear count model, trials for the control and one frequency;
@@ -29,11 +34,6 @@ Rows (every reference is measured in the same run, on the same machine)
    model, bounds and trials for every frequency and polarisation, and a numerical search for
    every anisotropy.  The previous algorithm runs on today's faster commutator products, so the
    ratio understates the change.  Target: the stage <= 3 s on a quiet machine.
-5. Broadband cross-check (one-proton pair, dimension 8): four simultaneous tones with random phase
-   offsets (32 phase sets per offset, see tests/test_spin_rf_separable.py) by direct time
-   integration, against the incoherent sum predicted by the response spectrum; the relative
-   difference is printed with the weak-field parameter ``eta`` (expected about ``eta^2``).  The time
-   of one response spectrum of the demo pair is printed against one static yield.
 
 BLAS threads are pinned to one (the machine is shared).  Exit 0 even when a target is missed (the
 miss is printed); ``--check`` exits 1 on a miss.
