@@ -128,211 +128,126 @@ the dotted key.
 from __future__ import annotations
 
 import copy
-import datetime as _dt
-import difflib
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable
+from typing import Any
 
 from retina.errors import InputError
+from retina.keytable import (MAX_FILE_BYTES, MAX_PHOTONS, MISSING, Key, all_of, concentration,
+                             even_degree, in_range, level_names, nonempty, section, suggest)
 
 __all__ = ["Scenario", "load_scenario", "scenario_from_dict", "dump_scenario", "save_scenario",
            "SCHEMA"]
-
-_MISSING = object()
-
-
-@dataclass(frozen=True)
-class Key:
-    """One key of the schema: its type, default and an optional extra check.
-
-    ``kind`` is one of "str", "int", "float", "bool", "path", "date", "floats", "strs", "choice".
-    ``check(value) -> str | None`` returns a description of what was expected when the value is
-    out of range.  ``allow_inf`` lets a "float" be ``inf`` (a concentration with no disorder).
-    """
-
-    kind: str
-    default: Any = _MISSING
-    choices: tuple = ()
-    check: Callable[[Any], str | None] | None = None
-    length: int | None = None
-    doc: str = ""
-    allow_inf: bool = False
-    table: dict | None = None        # for kind "tables": the schema of each table
-
-
-def _rng(lo=None, hi=None, *, lo_open=False):
-    def check(v):
-        vals = v if isinstance(v, list) else [v]
-        for x in vals:
-            if lo is not None and (x <= lo if lo_open else x < lo):
-                return f"{'>' if lo_open else '>='} {lo}" + (f" and <= {hi}" if hi is not None else "")
-            if hi is not None and x > hi:
-                return f"<= {hi}" + (f" and {'>' if lo_open else '>='} {lo}" if lo is not None else "")
-        return None
-    return check
-
-
-def _concentration(v):
-    """A concentration: 0 (uniform) to 1e6 (a tilt of about 0.06 deg), or ``inf`` (no disorder)."""
-    if v == float("inf"):
-        return None
-    if v < 0 or v > 1e6:
-        return ">= 0 and <= 1e6, or inf for no disorder"
-    return None
-
-
-def _even_degree(v):
-    if v < 2 or v > 40 or v % 2:
-        return "an even integer between 2 and 40"
-    return None
-
-
-MAX_PHOTONS = 1e12
-"""Largest photon count of a light or readout level: far above daylight catches, and safely inside
-what Poisson samplers take (numpy refuses means near 1e19)."""
-MAX_LIST = 10_000
-"""Longest list accepted for any list key."""
-MAX_TEXT = 10_000
-"""Longest string accepted (a description); names are limited to 64 characters."""
-MAX_FILE_BYTES = 1 << 20
-"""Scenario files larger than 1 MiB are refused before parsing."""
-
-
-def _level_name(v):
-    import re
-
-    for x in v:
-        if not re.fullmatch(r"[A-Za-z0-9_]([A-Za-z0-9_ .+-]{0,62}[A-Za-z0-9_.+-])?", x):
-            return ("names of 1 to 64 letters, digits, spaces, '_', '-', '+' or '.', starting with a letter, "
-                    "digit or '_' and not ending in a space "
-                    f"(they name HDF5 groups and files; {x!r} is not)")
-    return None
-
-
-def _nonempty(v):
-    return "a non-empty list" if len(v) == 0 else None
-
-
-def _both(*checks):
-    def check(v):
-        for c in checks:
-            msg = c(v)
-            if msg:
-                return msg
-        return None
-    return check
-
 
 SCHEMA: dict[str, dict[str, Key]] = {
     "scenario": {
         "name": Key("str", "unnamed"),
         "description": Key("str", ""),
-        "seed": Key("int", 0, check=_rng(0, 2**63 - 1)),
+        "seed": Key("int", 0, check=in_range(0, 2**63 - 1)),
     },
     "yield": {
         "system": Key("path", None),
         "file": Key("path", None),
         "import": Key("path", None),
-        "degree": Key("int", 12, check=_even_degree),
-        "field_uT": Key("float", None, check=_rng(0.0, 1e6, lo_open=True)),
+        "degree": Key("int", 12, check=even_degree),
+        "field_uT": Key("float", None, check=in_range(0.0, 1e6, lo_open=True)),
         "method": Key("choice", "auto", choices=("auto", "hilbert", "liouville", "separable")),
     },
     "ordering": {
         "model": Key("choice", "cone", choices=("aligned", "axial", "cone", "cone_no_twist", "plane",
                                                  "isotropic")),
-        "kappa": Key("float", 20.0, check=_concentration, allow_inf=True),
+        "kappa": Key("float", 20.0, check=concentration, allow_inf=True),
         "twist": Key("choice", "tied", choices=("tied", "free", "fixed", "restrained")),
-        "twist_kappa": Key("float", 1.0, check=_concentration, allow_inf=True),
-        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3, check=_rng(-720.0, 720.0)),
+        "twist_kappa": Key("float", 1.0, check=concentration, allow_inf=True),
+        "orientation_deg": Key("floats", [0.0, 0.0, 0.0], length=3, check=in_range(-720.0, 720.0)),
         "axis": Key("floats", None, length=3,
                     check=lambda v: "a non-zero direction" if not any(v) else None),
         "mode": Key("choice", "ensemble", choices=("ensemble", "molecules")),
-        "n_molecules": Key("int", 1000, check=_rng(1, 10**7)),
+        "n_molecules": Key("int", 1000, check=in_range(1, 10**7)),
         "disorder_kappas": Key("floats", [1.0, 3.0, 10.0, 30.0, 100.0],
-                               check=_both(_nonempty, _rng(0.0, 1e6, lo_open=True))),
+                               check=all_of(nonempty, in_range(0.0, 1e6, lo_open=True))),
         "study_kappas": Key("floats", [0.0, 0.3, 1.0, 3.0, 10.0, 30.0, 100.0],
-                            check=_both(_nonempty, _rng(0.0, 1e6))),
+                            check=all_of(nonempty, in_range(0.0, 1e6))),
     },
     "eyes[]": {
         "side": Key("choice", choices=("left", "right")),
-        "azimuth_deg": Key("float", check=_rng(-180.0, 180.0)),
-        "elevation_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
-        "extent_deg": Key("float", 90.0, check=_rng(1.0, 180.0)),
-        "n_receptors": Key("int", 400, check=_rng(1, 200_000)),
+        "azimuth_deg": Key("float", check=in_range(-180.0, 180.0)),
+        "elevation_deg": Key("float", 0.0, check=in_range(-90.0, 90.0)),
+        "extent_deg": Key("float", 90.0, check=in_range(1.0, 180.0)),
+        "n_receptors": Key("int", 400, check=in_range(1, 200_000)),
         "density": Key("choice", "uniform", choices=("uniform", "central")),
-        "central_ratio": Key("float", 4.0, check=_rng(1.0, 1e4)),
-        "central_width_deg": Key("float", 20.0, check=_rng(0.0, 180.0, lo_open=True)),
+        "central_ratio": Key("float", 4.0, check=in_range(1.0, 1e4)),
+        "central_width_deg": Key("float", 20.0, check=in_range(0.0, 180.0, lo_open=True)),
     },
     "light": {
-        "photons": Key("floats", [100.0, 10000.0], check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
-        "names": Key("strs", ["dim", "bright"], check=_both(_nonempty, _level_name)),
+        "photons": Key("floats", [100.0, 10000.0], check=all_of(nonempty, in_range(0.0, MAX_PHOTONS, lo_open=True))),
+        "names": Key("strs", ["dim", "bright"], check=all_of(nonempty, level_names)),
         "sky": Key("choice", "uniform", choices=("uniform", "horizon")),
-        "ground_ratio": Key("float", 0.2, check=_rng(0.0, 1.0)),
-        "horizon_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
-        "softness_deg": Key("float", 5.0, check=_rng(0.0, 90.0)),
+        "ground_ratio": Key("float", 0.2, check=in_range(0.0, 1.0)),
+        "horizon_deg": Key("float", 0.0, check=in_range(-90.0, 90.0)),
+        "softness_deg": Key("float", 5.0, check=in_range(0.0, 90.0)),
     },
     "field": {
-        "intensity_uT": Key("float", None, check=_rng(1.0, 1000.0)),
-        "inclination_deg": Key("float", None, check=_rng(-90.0, 90.0)),
-        "declination_deg": Key("float", None, check=_rng(-180.0, 180.0)),
-        "latitude_deg": Key("float", None, check=_rng(-90.0, 90.0)),
-        "longitude_deg": Key("float", None, check=_rng(-360.0, 360.0)),
-        "altitude_km": Key("float", 0.0, check=_rng(-1.0, 1000.0)),
+        "intensity_uT": Key("float", None, check=in_range(1.0, 1000.0)),
+        "inclination_deg": Key("float", None, check=in_range(-90.0, 90.0)),
+        "declination_deg": Key("float", None, check=in_range(-180.0, 180.0)),
+        "latitude_deg": Key("float", None, check=in_range(-90.0, 90.0)),
+        "longitude_deg": Key("float", None, check=in_range(-360.0, 360.0)),
+        "altitude_km": Key("float", 0.0, check=in_range(-1.0, 1000.0)),
         "date": Key("date", None),
     },
     "pose": {
-        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=_both(_nonempty, _rng(-3600.0, 3600.0))),
-        "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
-        "roll_deg": Key("float", 0.0, check=_rng(-180.0, 180.0)),
+        "headings_deg": Key("floats", [0.0, 90.0, 180.0, 270.0], check=all_of(nonempty, in_range(-3600.0, 3600.0))),
+        "pitch_deg": Key("float", 0.0, check=in_range(-90.0, 90.0)),
+        "roll_deg": Key("float", 0.0, check=in_range(-180.0, 180.0)),
     },
     "scan": {
-        "heading_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
-        "amplitude_deg": Key("float", 60.0, check=_rng(0.0, 180.0)),
-        "steps": Key("int", 25, check=_rng(2, 721)),
-        "pitch_deg": Key("float", 0.0, check=_rng(-90.0, 90.0)),
+        "heading_deg": Key("float", 0.0, check=in_range(-3600.0, 3600.0)),
+        "amplitude_deg": Key("float", 60.0, check=in_range(0.0, 180.0)),
+        "steps": Key("int", 25, check=in_range(2, 721)),
+        "pitch_deg": Key("float", 0.0, check=in_range(-90.0, 90.0)),
     },
     "readout": {
         "photons": Key("floats", [10.0, 100.0, 1e3, 1e4, 1e5, 1e6],
-                       check=_both(_nonempty, _rng(0.0, MAX_PHOTONS, lo_open=True))),
-        "decode_repeats": Key("int", 200, check=_rng(1, 10**6)),
+                       check=all_of(nonempty, in_range(0.0, MAX_PHOTONS, lo_open=True))),
+        "decode_repeats": Key("int", 200, check=in_range(1, 10**6)),
         "nuisance": Key("choice", "gain", choices=("none", "gain")),
         "compare_nuisance": Key("choice", "receptor_gain", choices=("receptor_gain", "pose_gain", "none")),
     },
     "trials": {
-        "n_trials": Key("int", 40, check=_rng(1, 10**6)),
-        "goal_deg": Key("float", 0.0, check=_rng(-3600.0, 3600.0)),
-        "scan_steps": Key("int", 9, check=_rng(1, 721)),
+        "n_trials": Key("int", 40, check=in_range(1, 10**6)),
+        "goal_deg": Key("float", 0.0, check=in_range(-3600.0, 3600.0)),
+        "scan_steps": Key("int", 9, check=in_range(1, 721)),
     },
     "rf": {
-        "degree": Key("int", 4, check=_even_degree),
-        "check_points": Key("int", 6, check=_rng(1, 200)),
-        "tol": Key("float", 1e-8, check=_rng(0.0, 1.0, lo_open=True)),
+        "degree": Key("int", 4, check=even_degree),
+        "check_points": Key("int", 6, check=in_range(1, 200)),
+        "tol": Key("float", 1e-8, check=in_range(0.0, 1.0, lo_open=True)),
         "cache": Key("bool", True),
         "conditions": Key("tables", [], table={
             "name": Key("str"),
             "kind": Key("choice", choices=("off", "tone", "band")),
-            "frequency_MHz": Key("float", None, check=_rng(0.0, 1e5, lo_open=True)),
-            "amplitude_nT": Key("float", None, check=_rng(0.0, 1e9)),
+            "frequency_MHz": Key("float", None, check=in_range(0.0, 1e5, lo_open=True)),
+            "amplitude_nT": Key("float", None, check=in_range(0.0, 1e9)),
             "direction": Key("choice", "perpendicular", choices=("perpendicular", "parallel", "angle", "coil")),
-            "angle_deg": Key("float", 90.0, check=_rng(0.0, 180.0)),
+            "angle_deg": Key("float", 90.0, check=in_range(0.0, 180.0)),
             "coil": Key("floats", [0.0, 1.0, 0.0], length=3),
-            "band_MHz": Key("floats", None, length=2, check=_rng(0.0, 1e5, lo_open=True)),
-            "asd_nT_per_rtHz": Key("float", None, check=_rng(0.0, 1e9)),
-            "rms_nT": Key("float", None, check=_rng(0.0, 1e9)),
+            "band_MHz": Key("floats", None, length=2, check=in_range(0.0, 1e5, lo_open=True)),
+            "asd_nT_per_rtHz": Key("float", None, check=in_range(0.0, 1e9)),
+            "rms_nT": Key("float", None, check=in_range(0.0, 1e9)),
         }),
-        "sweep_MHz": Key("floats", [], check=_rng(0.0, 1e5, lo_open=True)),
-        "sweep_nT": Key("float", 50.0, check=_rng(0.0, 1e9, lo_open=True)),
-        "sweep_lifetimes_us": Key("floats", [], check=_rng(0.0, 1e6, lo_open=True)),
+        "sweep_MHz": Key("floats", [], check=in_range(0.0, 1e5, lo_open=True)),
+        "sweep_nT": Key("float", 50.0, check=in_range(0.0, 1e9, lo_open=True)),
+        "sweep_lifetimes_us": Key("floats", [], check=in_range(0.0, 1e6, lo_open=True)),
         "sweep_light": Key("str", ""),
-        "sweep_points": Key("int", 41, check=_rng(0, 2000)),
-        "onset_rise": Key("float", 0.1, check=_rng(0.0, 10.0, lo_open=True)),
+        "sweep_points": Key("int", 41, check=in_range(0, 2000)),
+        "onset_rise": Key("float", 0.1, check=in_range(0.0, 10.0, lo_open=True)),
     },
     "output": {
         "dir": Key("path", "retina-results"),
-        "formats": Key("strs", ["png", "svg"], choices=("png", "svg", "pdf"), check=_nonempty),
-        "dpi": Key("int", 300, check=_rng(50, 1200)),
+        "formats": Key("strs", ["png", "svg"], choices=("png", "svg", "pdf"), check=nonempty),
+        "dpi": Key("int", 300, check=in_range(50, 1200)),
         "animation": Key("bool", True),
     },
 }
@@ -397,7 +312,7 @@ class Scenario:
                 d["eyes"] = copy.deepcopy(vals)
             else:
                 if sec not in d:
-                    raise InputError(f"unknown section{_suggest(sec, _SECTIONS)}", key=sec)
+                    raise InputError(f"unknown section{suggest(sec, _SECTIONS)}", key=sec)
                 d[sec].update(vals)
         return scenario_from_dict(_to_plain(d), source=self.source,
                                   base_dir=self.source.parent if self.source else None, text=self.text)
@@ -405,11 +320,6 @@ class Scenario:
 
 # ----------------------------------------------------------------------------------------------
 # loading and validation
-
-
-def _suggest(name: str, options) -> str:
-    close = difflib.get_close_matches(name, list(options), n=1, cutoff=0.5)
-    return f" (did you mean '{close[0]}'?)" if close else f" (expected one of: {', '.join(sorted(options))})"
 
 
 def load_scenario(path: str | Path) -> Scenario:
@@ -481,18 +391,18 @@ def scenario_from_dict(doc: dict, *, source: str | Path | None = None, base_dir:
     out: dict[str, Any] = {}
     for sec in doc:
         if sec not in _SECTIONS:
-            raise InputError(f"unknown section{_suggest(sec, _SECTIONS)}", source=src, key=sec)
+            raise InputError(f"unknown section{suggest(sec, _SECTIONS)}", source=src, key=sec)
     for sec_name, keys in SCHEMA.items():
         if sec_name == "eyes[]":
-            raw = doc.get("eyes", _MISSING)
-            if raw is _MISSING:
+            raw = doc.get("eyes", MISSING)
+            if raw is MISSING:
                 out["eyes"] = copy.deepcopy(_DEFAULT_EYES)
                 continue
             if not isinstance(raw, list) or not all(isinstance(e, dict) for e in raw):
                 raise InputError("expected an array of tables ([[eyes]] ...)", source=src, key="eyes")
             if not 1 <= len(raw) <= 2:
                 raise InputError(f"expected one or two eyes, got {len(raw)}", source=src, key="eyes")
-            out["eyes"] = [_section(e, keys, src, f"eyes[{i}]", base) for i, e in enumerate(raw)]
+            out["eyes"] = [section(e, keys, src, f"eyes[{i}]", base) for i, e in enumerate(raw)]
             sides = [e["side"] for e in out["eyes"]]
             if len(set(sides)) != len(sides):
                 raise InputError(f"expected one left and one right eye, got {sides}", source=src,
@@ -501,134 +411,12 @@ def scenario_from_dict(doc: dict, *, source: str | Path | None = None, base_dir:
         raw = doc.get(sec_name, {})
         if not isinstance(raw, dict):
             raise InputError(f"expected a table [{sec_name}], got {type(raw).__name__}", source=src, key=sec_name)
-        out[sec_name] = _section(raw, keys, src, sec_name, base)
+        out[sec_name] = section(raw, keys, src, sec_name, base)
     _cross_checks(out, src)
     sc = Scenario(data=out, source=src, text="")
     if text is None:
         text = dump_scenario(sc)
     return Scenario(data=out, source=src, text=text)
-
-
-def _section(raw: dict, keys: dict[str, Key], src, prefix: str, base: Path) -> dict:
-    for k in raw:
-        if k not in keys:
-            raise InputError(f"unknown key{_suggest(k, keys)}", source=src, key=f"{prefix}.{k}")
-    out = {}
-    for k, spec in keys.items():
-        dotted = f"{prefix}.{k}"
-        if k in raw:
-            out[k] = _convert(raw[k], spec, src, dotted, base)
-        elif spec.default is _MISSING:
-            raise InputError(f"missing required key ({_describe(spec)})", source=src, key=dotted)
-        else:
-            d = copy.deepcopy(spec.default)
-            if spec.kind == "path" and d is not None:
-                d = (base / d).resolve()
-            out[k] = d
-    return out
-
-
-def _describe(spec: Key) -> str:
-    names = {"str": "a string", "int": "an integer", "float": "a number", "bool": "true or false",
-             "path": "a file path (string)", "date": "a date (1990-05-17 or \"1990-05-17\")",
-             "floats": "a list of numbers", "strs": "a list of strings",
-             "choice": "one of " + ", ".join(f'"{c}"' for c in spec.choices),
-             "tables": "an array of tables ([[...]])"}
-    s = names[spec.kind]
-    if spec.length:
-        s += f" of length {spec.length}"
-    return s
-
-
-def _convert(v, spec: Key, src, key: str, base: Path):
-    def bad(what=None):
-        got = f"{v!r}" if not isinstance(v, (dict, list)) or len(repr(v)) < 60 else type(v).__name__
-        raise InputError(f"expected {what or _describe(spec)}, got {got}", source=src, key=key)
-
-    kind = spec.kind
-    if kind == "str":
-        if not isinstance(v, str):
-            bad()
-        val = v
-        _printable(val, src, key)
-    elif kind == "choice":
-        if not isinstance(v, str):
-            bad()
-        if v not in spec.choices:
-            raise InputError(f"expected {_describe(spec)}, got {v!r}{_suggest(v, spec.choices)}",
-                             source=src, key=key)
-        val = v
-    elif kind == "int":
-        if isinstance(v, bool) or not isinstance(v, int):
-            bad()
-        val = int(v)
-    elif kind == "float":
-        if isinstance(v, bool) or not isinstance(v, (int, float)):
-            bad()
-        val = float(v)
-        if val != val or val == float("-inf") or (val == float("inf") and not spec.allow_inf):
-            bad("a finite number" if not spec.allow_inf else "a number or inf")
-    elif kind == "bool":
-        if not isinstance(v, bool):
-            bad()
-        val = v
-    elif kind == "path":
-        if not isinstance(v, str) or not v.strip():
-            bad()
-        _printable(v, src, key)
-        val = (base / Path(v).expanduser()).resolve()
-    elif kind == "date":
-        if isinstance(v, _dt.datetime):
-            val = v.date()
-        elif isinstance(v, _dt.date):
-            val = v
-        elif isinstance(v, str):
-            try:
-                val = _dt.date.fromisoformat(v)
-            except ValueError:
-                bad()
-        else:
-            bad()
-    elif kind == "floats":
-        if not isinstance(v, list) or any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in v):
-            bad()
-        val = [float(x) for x in v]
-        if any(x != x or abs(x) == float("inf") for x in val):
-            bad("a list of finite numbers")
-    elif kind == "strs":
-        if not isinstance(v, list) or any(not isinstance(x, str) for x in v):
-            bad()
-        val = list(v)
-        for x in val:
-            _printable(x, src, key)
-        if spec.choices:
-            for x in val:
-                if x not in spec.choices:
-                    raise InputError(f"expected entries among {', '.join(spec.choices)}, got {x!r}"
-                                     f"{_suggest(x, spec.choices)}", source=src, key=key)
-    elif kind == "tables":
-        if not isinstance(v, list) or not all(isinstance(x, dict) for x in v):
-            bad()
-        val = [_section(x, spec.table, src, f"{key}[{i}]", base) for i, x in enumerate(v)]
-    else:  # pragma: no cover - schema error
-        raise AssertionError(kind)
-    if isinstance(val, list) and len(val) > MAX_LIST:
-        raise InputError(f"expected at most {MAX_LIST:,} entries, got {len(val):,}", source=src, key=key)
-    if spec.length is not None and len(val) != spec.length:
-        bad()
-    if spec.check is not None:
-        msg = spec.check(val)
-        if msg:
-            raise InputError(f"expected {msg}, got {v!r}", source=src, key=key)
-    return val
-
-
-def _printable(x: str, src, key: str) -> None:
-    if len(x) > MAX_TEXT:
-        raise InputError(f"expected at most {MAX_TEXT:,} characters, got {len(x):,}", source=src, key=key)
-    bad = next((c for c in x if (ord(c) < 32 and c not in "\t\n") or ord(c) == 127), None)
-    if bad is not None:
-        raise InputError(f"expected printable text, got the control character {bad!r}", source=src, key=key)
 
 
 def _cross_checks(d: dict, src) -> None:

@@ -22,7 +22,7 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise",
            "retina.spin.io", "retina.spin.hilbert", "retina.spin.liouville", "retina.spin.separable",
            "retina.spin.broadband", "retina.io.atomic", "retina.io.hdf5", "retina.io.importers",
-           "retina.io.schema", "retina.readout.decode", "retina.readout.trials", "retina.scenario",
+           "retina.io.schema", "retina.readout.decode", "retina.readout.trials", "retina.scenario", "retina.keytable",
            "retina.signal.light", "retina.spin.rf_floquet", "retina.spin.system", "retina.stages.memory",
            "retina.yieldfn", "retina.cache", "retina.figures._base", "retina.figures.curves",
            "retina.figures.sphere_maps", "retina.figures.trials", "retina.figures.visual_fields", "retina.cli",
