@@ -8,6 +8,7 @@
 from __future__ import annotations
 
 import logging
+import time
 from pathlib import Path
 
 from retina.build import ProgressFactory, no_progress
@@ -84,8 +85,10 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
     try:
         if save_results:
             _save(res, stage / "results.h5", force=True)
+        t0 = time.perf_counter()
         entries = figures.make_figures(res, stage / "figures", formats=formats, dpi=dpi, animation=animation,
                                        progress=pf("figures", 10), jobs=jobs)
+        _log.info("figures: %.1f s on %d process(es)", time.perf_counter() - t0, jobs)
         name = res.provenance.get("scenario_name", "scenario")
         write_report(
             stage, title or f"retina-compass report: {name}", key_numbers(res), entries,
