@@ -93,6 +93,8 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true")
     ap.add_argument("--quick", action="store_true", help="the precision stage only")
+    ap.add_argument("--keep", metavar="DIR", default=None,
+                    help="copy the two demo folders (demo-old, demo-new) into DIR, to compare their results")
     a = ap.parse_args(argv)
     sys.path.insert(0, str(HERE))
     from _rows import print_rows
@@ -135,6 +137,8 @@ def main(argv=None) -> int:
             d, st = {}, {}
             for name, extra in (("old", ["--scenario", str(old_sc), "--jobs", "1"]), ("new", [])):
                 d[name], st[name] = _demo(cli, tmp / f"demo-{name}", extra)
+                if a.keep:
+                    shutil.copytree(tmp / f"demo-{name}", Path(a.keep) / f"demo-{name}", dirs_exist_ok=True)
             rows.append({"name": "retina demo, end to end", "measured": f"{d['new']:.1f} s",
                          "reference": f"{d['old']:.1f} s", "ratio": f"{d['old'] / d['new']:.2f}x",
                          "target": "<= 20 s", "passed": d["new"] <= 20.0,
