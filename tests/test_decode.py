@@ -121,6 +121,23 @@ def test_error_summary_values():
     assert decode.error_summary([-2.0, 2.0, 178.0], axial=True)["rms_deg"] == pytest.approx(2.0)
 
 
+def test_rms_standard_error_matches_the_spread_of_replicate_rms_values():
+    # Derived (delta method, see rms_standard_error): for Gaussian errors of sd sigma,
+    # Var(e^2) = 2 sigma^4, so SE(rms) = sqrt(2 sigma^4 / n) / (2 sigma) = sigma / sqrt(2 n).
+    # Independent check: the sd of the rms over 2000 independent replicates of n = 60 errors.
+    # Tolerance 10 %: the sd of 2000 replicates is itself known to about 1.6 %, and the delta method
+    # is first order in 1 / n (a few % at n = 60).  Fixed seed.
+    rng = np.random.default_rng(5)
+    sigma, n = 3.0, 60
+    e = rng.normal(0.0, sigma, (2000, n))
+    rms = np.sqrt(np.mean(e ** 2, axis=1))
+    se = np.array([decode.rms_standard_error(x) for x in e])
+    assert np.mean(se) == pytest.approx(sigma / np.sqrt(2 * n), rel=0.05)
+    assert np.std(rms, ddof=1) == pytest.approx(np.mean(se), rel=0.10)
+    assert decode.error_summary(e[0])["rms_se_deg"] == pytest.approx(se[0])
+    assert np.isnan(decode.rms_standard_error([1.0])) and decode.rms_standard_error([0.0, 0.0]) == 0.0
+
+
 def test_bad_input():
     sig = synthetic_signal(n=5)
     dec = decode.HeadingDecoder.from_signal(sig, 36)

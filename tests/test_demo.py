@@ -65,6 +65,37 @@ def test_demo_writes_report_folder(demo_dir):
         assert h["yield_function"].attrs["relative"] > 0.01  # the invented pair is anisotropic
 
 
+def test_demo_reports_the_monte_carlo_error_of_its_decoding_errors(demo_dir):
+    # The rms decoding errors are Monte Carlo estimates; their standard errors (delta method,
+    # retina.readout.decode.rms_standard_error) are stored beside them and shown in the report.
+    with h5py.File(demo_dir / "results.h5") as h:
+        q = h["precision"]
+        for kind in ("single", "scan"):
+            rms, se = q[f"decoded_{kind}_rms_deg"][()], q[f"decoded_{kind}_rms_se_deg"][()]
+            assert se.shape == rms.shape and np.all(se > 0) and np.all(se < rms)
+    assert "Monte Carlo standard error" in (demo_dir / "report.md").read_text()
+
+
+def test_figures_drawn_on_two_processes_are_the_same_files(demo_dir, tmp_path):
+    # Common practice, no source: parallel drawing must not change the output; PNG and GIF files
+    # are compared byte for byte (SVG files carry matplotlib's random ids and a date).
+    from retina.outputs.figures import make_figures
+    from retina.results import load_results
+
+    res = load_results(demo_dir / "results.h5")
+    for g in ("patterns", "disorder", "order", "rf", "rf_sweep"):
+        res.groups.pop(g, None)
+    e1 = make_figures(res, tmp_path / "one", formats=("png",), dpi=60, jobs=1)
+    e2 = make_figures(res, tmp_path / "two", formats=("png",), dpi=60, jobs=2)
+    assert [(e.stem, e.title, e.caption) for e in e1] == [(e.stem.replace("two", "one"), e.title, e.caption)
+                                                          for e in e2]
+    files = sorted(p.name for p in (tmp_path / "one").iterdir())
+    assert "scan_animation.gif" in files and "precision_curves.png" in files
+    assert files == sorted(p.name for p in (tmp_path / "two").iterdir())
+    for f in files:
+        assert (tmp_path / "one" / f).read_bytes() == (tmp_path / "two" / f).read_bytes(), f
+
+
 def test_demo_refuses_to_overwrite(demo_dir, capsys):
     assert main(["demo", "--quick", "-o", str(demo_dir), "-q"]) == 2
     assert "--force" in capsys.readouterr().err

@@ -39,6 +39,8 @@ def add_common_arguments(p, *, output_required: bool = False, default_output: st
     p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
                    help="refuse to start a stage whose memory estimate exceeds this (default: 60 %% of "
                         "the available memory)")
+    p.add_argument("-j", "--jobs", type=whole("a number of processes", low=1, high=256), default=None,
+                   metavar="N", help="processes drawing the figures (default: every core, at most one per figure)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bars; print only the summary")
 
 
@@ -111,6 +113,7 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     int
         The exit status, 0.
     """
+    import os
     import time
 
     from retina.build import quick_scenario
@@ -143,8 +146,10 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
         res = run(sc, stages=stages, progress_factory=bars, max_bytes=max_bytes)
         res.provenance["quick"] = bool(args.quick)
         o = res.scenario["output"]
+        jobs = getattr(args, "jobs", None)
         paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
-                              animation=o["animation"], title=title, progress_factory=bars)
+                              animation=o["animation"], title=title, progress_factory=bars,
+                              jobs=(os.cpu_count() or 1) if jobs is None else jobs)
     finally:
         bars.close()
     print(summary_text(res, paths, time.perf_counter() - t0))

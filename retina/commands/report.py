@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import argparse
 import time
 from pathlib import Path
@@ -90,7 +92,7 @@ def run(args) -> int:
     try:
         paths = write_outputs(res, out, force=args.force or False, formats=formats, dpi=args.dpi,
                               animation=not args.no_animation, progress_factory=bars,
-                              save_results=not same)
+                              save_results=not same, jobs=os.cpu_count() or 1)
     finally:
         bars.close()
     print(summary_text(res, paths, time.perf_counter() - t0))

@@ -82,32 +82,50 @@ class _FieldMap:
             self.tris.append((sel, tri))
 
     def draw(self, ax, values, b, vlim, *, cmap="RdBu_r", label_marks=True):
-        art = None
+        return self.draw_updatable(ax, values, b, vlim, cmap=cmap, label_marks=label_marks)[0]
+
+    def draw_updatable(self, ax, values, b, vlim, *, cmap="RdBu_r", label_marks=True):
+        """Draw one panel; return its colour artist and ``update(values, b)``, which moves the
+        panel to another pattern and field direction without rebuilding it (animation frames)."""
+        meshes = []
         for sel, tri in self.tris:
-            art = ax.tripcolor(tri, values[sel], cmap=cmap, vmin=-vlim, vmax=vlim, shading="gouraud",
-                               rasterized=True)
+            meshes.append(ax.tripcolor(tri, values[sel], cmap=cmap, vmin=-vlim, vmax=vlim, shading="gouraud",
+                                       rasterized=True))
+        art = meshes[-1] if meshes else None
         ax.plot(np.linspace(-np.pi, np.pi, 181), np.zeros(181), ls="--", color="0.35", lw=0.6)
         beak = MARKS["beak"]
         ax.plot([0], [0], beak.mpl, color=beak.face, ms=beak.size_pt, mew=beak.edge_width)
         bl, bb = head_lonlat(b[None, :])
         ml, mb = head_lonlat(-b[None, :])
+        marks = []
         for (lo, la), mk in (((bl, bb), MARKS["field"]), ((ml, mb), MARKS["field_opposite"])):
-            ax.plot(lo, la, mk.mpl, ms=mk.size_pt, mfc=mk.face, mec=mk.edge, mew=mk.edge_width)
+            marks += ax.plot(lo, la, mk.mpl, ms=mk.size_pt, mfc=mk.face, mec=mk.edge, mew=mk.edge_width)
+        labels = []
         if label_marks:
             ax.annotate("beak", (0, 0), xytext=(3, -8), textcoords="offset points", fontsize=6)
             for side, lon0 in (("left eye", -1.0), ("right eye", 1.0)):  # azimuth < 0 is the bird's left
                 ax.text(lon0 * np.radians(110), np.radians(4), side, fontsize=6, ha="center", va="bottom",
                         color="0.15")
-            ax.annotate("B", (bl[0], bb[0]), xytext=(4, 2), textcoords="offset points", fontsize=6.5,
-                        fontweight="bold")
-            ax.annotate("-B", (ml[0], mb[0]), xytext=(4, 2), textcoords="offset points", fontsize=6.5,
-                        fontweight="bold")
+            labels.append(ax.annotate("B", (bl[0], bb[0]), xytext=(4, 2), textcoords="offset points",
+                                      fontsize=6.5, fontweight="bold"))
+            labels.append(ax.annotate("-B", (ml[0], mb[0]), xytext=(4, 2), textcoords="offset points",
+                                      fontsize=6.5, fontweight="bold"))
         ax.grid(True, lw=0.25, color="0.6")
         ax.set_xticks(np.radians([-150, -90, -30, 30, 90, 150]))
         ax.set_xticklabels([])
         ax.set_yticks(np.radians([-60, -30, 0, 30, 60]))
         ax.set_yticklabels([])
-        return art
+
+        def update(values, b):
+            for (sel, _), m in zip(self.tris, meshes):
+                m.set_array(np.asarray(values, float)[sel])
+            ends = (head_lonlat(b[None, :]), head_lonlat(-b[None, :]))
+            for (lo, la), line in zip(ends, marks):
+                line.set_data(lo, la)
+            for (lo, la), lab in zip(ends, labels):
+                lab.xy = (lo[0], la[0])
+
+        return art, update
 
 
 def _vlim(values_pct):
@@ -310,12 +328,12 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
         with atomic_path(path, force=force, suffix=".gif") as tmp:
             writer = PillowWriter(fps=fps)
             with writer.saving(fig, str(tmp), dpi):
+                # the panel is built once; each frame only moves its colours, marks and title
+                art, update = fm.draw_updatable(ax, pct[0], b_head[0], vlim, label_marks=True)
+                cb = fig.colorbar(art, cax=cax, orientation="horizontal")
+                cb.set_label("relative modulation, %")
                 for k in range(pct.shape[0]):
-                    ax.cla()
-                    art = fm.draw(ax, pct[k], b_head[k], vlim, label_marks=True)
+                    update(pct[k], b_head[k])
                     ax.set_title(f"yaw {yaw[k]:.0f}\N{DEGREE SIGN}  (step {k + 1}/{pct.shape[0]})", pad=4)
-                    if k == 0:
-                        cb = fig.colorbar(art, cax=cax, orientation="horizontal")
-                        cb.set_label("relative modulation, %")
                     writer.grab_frame()
     return path

@@ -8,6 +8,7 @@
 from __future__ import annotations
 
 import logging
+import time
 from pathlib import Path
 
 from retina.build import ProgressFactory, no_progress
@@ -23,7 +24,8 @@ _log = logging.getLogger(__name__)
 
 def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, formats=("png", "svg"),
                   dpi: int = 300, animation: bool = True, title: str | None = None,
-                  progress_factory: ProgressFactory | None = None, save_results: bool = True) -> dict:
+                  progress_factory: ProgressFactory | None = None, save_results: bool = True,
+                  jobs: int = 1) -> dict:
     """Write ``results.h5``, ``figures/`` and the report (``index.html``, ``report.md``) into ``outdir``.
 
     ``outdir`` must not exist or be empty, unless ``force`` (then files of the same names are
@@ -50,6 +52,9 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
         Progress callbacks (one step per figure).
     save_results : bool
         Write ``results.h5`` (False when redrawing from the same file).
+    jobs : int
+        Processes drawing the figures (:func:`retina.outputs.figures.make_figures`); 1 draws them
+        in this process.
 
     Returns
     -------
@@ -80,8 +85,10 @@ def write_outputs(res: Results, outdir: str | Path, *, force: bool = False, form
     try:
         if save_results:
             _save(res, stage / "results.h5", force=True)
+        t0 = time.perf_counter()
         entries = figures.make_figures(res, stage / "figures", formats=formats, dpi=dpi, animation=animation,
-                                       progress=pf("figures", 7))
+                                       progress=pf("figures", 10), jobs=jobs)
+        _log.info("figures: %.1f s on %d process(es)", time.perf_counter() - t0, jobs)
         name = res.provenance.get("scenario_name", "scenario")
         write_report(
             stage, title or f"retina-compass report: {name}", key_numbers(res), entries,

@@ -58,7 +58,8 @@ def key_number_rows(res) -> list[dict]:
     if "precision" in g:
         p = g["precision"]
         for k in ("bound_single_deg", "bound_scan_deg", "bound_single_compare_deg", "bound_scan_compare_deg",
-                  "decoded_single_rms_deg", "decoded_scan_rms_deg"):
+                  "decoded_single_rms_deg", "decoded_scan_rms_deg", "decoded_single_rms_se_deg",
+                  "decoded_scan_rms_se_deg"):
             if k in p:
                 rows += [_row("precision", k, v, "deg", "photons", ph) for ph, v in zip(p["photons"], p[k])]
     if "disorder" in g:

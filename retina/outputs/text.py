@@ -164,10 +164,17 @@ def key_numbers(res: Results) -> list:
         rows = []
         n_scan = len(q["scan_offsets_deg"])
         cmp_n = q.get("compare_nuisance")
+        has_se = "decoded_single_rms_se_deg" in q and "decoded_scan_rms_se_deg" in q
+
+        def dec(kind, i):
+            v = f"{q[f'decoded_{kind}_rms_deg'][i]:.3g}"
+            return f"{v} \u00b1 {q[f'decoded_{kind}_rms_se_deg'][i]:.2g}" if has_se else v
+
         for i, ph in enumerate(q["photons"]):
-            rows.append((f"{ph:g} photons/receptor: bound single pose, scan | rms decoding error single pose, scan",
+            rows.append((f"{ph:g} photons/receptor: bound single pose, scan | rms decoding error single pose, scan"
+                         + (" (\u00b1 Monte Carlo standard error)" if has_se else ""),
                          f"{bound_text(q['bound_single_deg'][i])}, {bound_text(q['bound_scan_deg'][i])} | "
-                         f"{q['decoded_single_rms_deg'][i]:.3g}, {q['decoded_scan_rms_deg'][i]:.3g}", "deg"))
+                         f"{dec('single', i)}, {dec('scan', i)}", "deg"))
         if cmp_n:
             for i, ph in enumerate(q["photons"]):
                 rows.append((f"{ph:g} photons/receptor, {COMPARE_SHORT.get(cmp_n, cmp_n)}: bound single pose, scan",

@@ -190,8 +190,11 @@ class GridModel:
         """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
         from ``2 L + 1`` headings (``SignalModel.expected_and_derivative_fourier``), far cheaper than
         evaluating every receptor's harmonics at thousands of random headings."""
-        lam = self.truth(photons).expected_and_derivative_fourier(np.asarray(headings_deg, float), self.degree)[0]
-        return np.maximum(lam, 0.0)
+        from retina.signal.noise import trig_interp_matrix
+
+        nodes, lam_n, _ = self.truth(photons).fourier_nodes(self.degree)   # the derivative is not needed here
+        h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, float)))
+        return np.maximum(trig_interp_matrix(np.deg2rad(nodes), h, self.degree) @ lam_n, 0.0)
 
     def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
         """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""

@@ -6,7 +6,7 @@ Conventions
 - Precision curves: the Cramer-Rao bound on the rms heading error over uniformly distributed true
   headings, ``sqrt(mean_h 1 / I(h))`` over 360 grid headings, single pose and head scan; decoding
   error: rms of the wrapped decoding errors at ``readout.decode_repeats`` uniformly random true
-  headings per photon level.  Bounds above ``retina.readout.fisher.INFORMATIVE_BOUND_DEG`` are
+  headings per photon level, with its Monte Carlo standard error (delta method).  Bounds above ``retina.readout.fisher.INFORMATIVE_BOUND_DEG`` are
   reported in words as not informative (the numbers stay in the results file).  With
   ``readout.compare_nuisance`` the bounds of one pose and of the scan are also computed with that
   further unknown (``precision/bound_*_compare_deg``).
@@ -48,7 +48,9 @@ def compute_precision(sc: Scenario, model, fld, *, progress=None) -> dict:
     dict
         ``photons (M,)``, ``info_headings_deg (G,)``, ``info_per_photon_single``/``_scan (G,)``,
         ``bound_single_deg``/``bound_scan_deg (M,)``, ``scan_offsets_deg (P,)``,
-        ``decoded_single_rms_deg``/``decoded_scan_rms_deg (M,)``, and with a compare nuisance
+        ``decoded_single_rms_deg``/``decoded_scan_rms_deg (M,)`` and their Monte Carlo standard
+        errors ``decoded_single_rms_se_deg``/``decoded_scan_rms_se_deg (M,)``
+        (:func:`retina.readout.decode.rms_standard_error`), and with a compare nuisance
         ``compare_nuisance`` (str), ``info_per_photon_*_compare (G,)``, ``bound_*_compare_deg (M,)``.
     """
     from retina.readout.decode import error_summary
@@ -70,8 +72,8 @@ def compute_precision(sc: Scenario, model, fld, *, progress=None) -> dict:
     rng = stage_rng(sc.seed, "precision")
     dec1, deck = [], []
     for i, ph in enumerate(photons):
-        dec1.append(error_summary(decode_errors(m1, ph, ro["decode_repeats"], rng))["rms_deg"])
-        deck.append(error_summary(decode_errors(mk, ph, ro["decode_repeats"], rng, offsets))["rms_deg"])
+        dec1.append(error_summary(decode_errors(m1, ph, ro["decode_repeats"], rng)))
+        deck.append(error_summary(decode_errors(mk, ph, ro["decode_repeats"], rng, offsets)))
         if progress:
             progress(i + 1, photons.size)
     cmp_n = ro.get("compare_nuisance", "none")
@@ -82,8 +84,9 @@ def compute_precision(sc: Scenario, model, fld, *, progress=None) -> dict:
         out["info_per_photon_scan_compare"] = mk.scan_information(offsets, cmp_n)
         out["bound_single_compare_deg"] = rms_bound(photons, out["info_per_photon_single_compare"])
         out["bound_scan_compare_deg"] = rms_bound(photons, out["info_per_photon_scan_compare"])
-    out["decoded_single_rms_deg"] = np.array(dec1)
-    out["decoded_scan_rms_deg"] = np.array(deck)
+    for kind, summ in (("single", dec1), ("scan", deck)):
+        out[f"decoded_{kind}_rms_deg"] = np.array([d["rms_deg"] for d in summ])
+        out[f"decoded_{kind}_rms_se_deg"] = np.array([d["rms_se_deg"] for d in summ])
     return out
 
 

@@ -467,8 +467,12 @@ def _prepare_folder(out: Path, spec: SweepSpec, force: bool) -> Path:
 
 
 def _batches(indices: list[int], n_total: int, workers: int) -> list[list[int]]:
-    """Split one group's points into batches: about four tasks per worker over the whole sweep."""
-    target = max(1, 4 * workers)
+    """Split one group's points into batches: about eight tasks per worker over the whole sweep.
+
+    Small enough that the workers finish together (a sweep of 16 points on 2 workers runs one point
+    per task, so no worker waits idle through the last batch), large enough that a sweep of
+    thousands of points does not pay a task's overhead per point."""
+    target = max(1, 8 * workers)
     per = max(1, math.ceil(n_total / target))
     return [indices[i:i + per] for i in range(0, len(indices), per)]
 
