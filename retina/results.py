@@ -193,15 +193,31 @@ def _items():
         ),
         "rf_sweep": (
             I("freqs_MHz", shape=("Z",), low=0, unit="MHz"), I("lifetimes_us", shape=("L",), low=0, unit="us"),
-            I("light_photons", shape=("V",), low=0), I("eta", shape=("L",), **NF, low=0),
-            I("control_bound_deg", shape=("L", "V"), **NF, low=0, **deg), I("control_r", shape=("L",), **NF),
+            I("curve_MHz", shape=("Y",), low=0, unit="MHz", doc="the curve's frequencies (sweep_points)"),
+            I("light_photons", shape=("V",), low=0), I("eta", shape=("L",), **NF, low=0,
+                                                         doc="gamma_e B1 / k at the sweep amplitude"),
+            I("control_bound_deg", shape=("L", "V"), **NF, low=0, **deg),
             I("perp_bound_deg", shape=("L", "Z", "V"), **NF, low=0, **deg),
             I("par_bound_deg", shape=("L", "Z", "V"), **NF, low=0, **deg),
-            I("perp_r", shape=("L", "Z"), **NF), I("par_r", shape=("L", "Z"), **NF),
+            I("control_anisotropy", shape=("L",), **NF, low=0),
+            I("perp_anisotropy", shape=("L", "Z"), **NF, low=0), I("par_anisotropy", shape=("L", "Z"), **NF, low=0),
+            I("control_r", shape=("L",), **NF, low=0, high=1), I("trial_perp_r", shape=("L",), **NF, low=0, high=1),
+            I("trial_MHz", shape=("L",), **NF, low=0, unit="MHz", doc="frequency of the RF trials"),
+            I("perp_sensitivity", shape=("L", "Y"), **NF, unit="nT^-2",
+              doc="s(f): (bound / control)^2 - 1 per nT^2 of amplitude squared"),
+            I("par_sensitivity", shape=("L", "Y"), **NF, unit="nT^-2"),
+            I("perp_rise", shape=("L", "Y"), **NF, doc="bound / control - 1 at the sweep amplitude"),
+            I("par_rise", shape=("L", "Y"), **NF),
+            I("perp_threshold_nT", shape=("L", "Y"), **NF, low=0, unit="nT",
+              doc="amplitude for a rise of onset_rise; NaN: never at second order"),
+            I("par_threshold_nT", shape=("L", "Y"), **NF, low=0, unit="nT"),
+            I("threshold_eta", shape=("L", "Y"), **NF, low=0, doc="gamma_e b / k at the perpendicular threshold"),
             I("onset_MHz", shape=("L",), **NF, unit="MHz", doc="NaN: no onset in the sweep"),
-            I("effect_onset_MHz", shape=("L",), **NF, unit="MHz"),
+            I("departure_MHz", shape=("L",), **NF, unit="MHz", doc="where the response leaves the quasi-static value"),
+            I("linearisation_error", shape=("L",), **NF, low=0,
+              doc="largest |curve rise - bound rise| at the swept frequencies"),
             I("amplitude_nT", **A, low=0, unit="nT"), I("sweep_light", "str", **A),
-            I("light_names", "json", **A), I("method", "json", **A), I("onset_factor", **A, low=1),
+            I("light_names", "json", **A), I("method", "json", **A), I("onset_rise", **A, low=0),
             I("degree", "int", **A, low=2, high=64),
         ),
         "trials/levels/*": (
@@ -235,7 +251,7 @@ def _schema():
             "order/curves/*": "one group per concentration curve (S = ordering.study_kappas)",
             "rf/conditions/*": "one group per RF condition, c0 = the control (R = the RF degree's coefficients, "
                                "W = patterns' headings)",
-            "rf_sweep": "Z swept frequencies, L lifetimes"}
+            "rf_sweep": "Z swept frequencies, Y curve frequencies, L lifetimes"}
     groups = tuple(Group(name, its, required=name not in optional, doc=docs.get(name, ""))
                    for name, its in items.items())
     return FileSchema(RESULTS_FORMAT, RESULTS_VERSION, groups,

@@ -106,7 +106,11 @@ Schema (section, key, type, default; units in the key name)
     ``sweep_MHz`` (list of floats > 0, none): frequencies of the sweep stage ``rf_sweep``,
     ``sweep_nT`` (float > 0, 50.0): its amplitude, ``sweep_lifetimes_us`` (list of floats > 0,
     none: the pair's own lifetime): pair lifetimes swept (equal rates ``k = 1 / lifetime``),
-    ``sweep_light`` (str, "": the last light level): the light level of the sweep's trials.
+    ``sweep_light`` (str, "": the last light level): the light level of the sweep's trials,
+    ``sweep_points`` (int 0..2000, 41): log-spaced frequencies between the lowest and highest of
+    ``sweep_MHz`` (joined with them) at which the bound's RF sensitivity, the threshold amplitude
+    and the onset are computed, ``onset_rise`` (float in (0, 10], 0.1): the relative rise of the
+    single-pose bound over the control that counts as the onset of disorientation.
 ``[output]``
     ``dir`` (path, "retina-results"), ``formats`` (list from "png", "svg", "pdf", ["png", "svg"]),
     ``dpi`` (int 50..1200, 300), ``animation`` (bool, true).
@@ -322,6 +326,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "sweep_nT": Key("float", 50.0, check=_rng(0.0, 1e9, lo_open=True)),
         "sweep_lifetimes_us": Key("floats", [], check=_rng(0.0, 1e6, lo_open=True)),
         "sweep_light": Key("str", ""),
+        "sweep_points": Key("int", 41, check=_rng(0, 2000)),
+        "onset_rise": Key("float", 0.1, check=_rng(0.0, 10.0, lo_open=True)),
     },
     "output": {
         "dir": Key("path", "retina-results"),

@@ -476,7 +476,7 @@ def synthetic_results(path: Path) -> Path:
     """A small valid results file generated from RESULTS_SCHEMA itself (every item, in range)."""
     from retina.results import RESULTS_SCHEMA, Results, save_results
 
-    sizes = {"N": 6, "H": 2, "F": 3, "M": 2, "G": 360, "K": 2, "P": 3, "Q": 2, "T": 4, "V": 2, "C": 15, "S": 3, "R": 6, "W": 2, "Z": 3, "L": 2}
+    sizes = {"N": 6, "H": 2, "F": 3, "M": 2, "G": 360, "K": 2, "P": 3, "Q": 2, "T": 4, "V": 2, "C": 15, "S": 3, "R": 6, "W": 2, "Z": 3, "L": 2, "Y": 4}
     groups: dict = {}
     prov: dict = {}
     for grp in RESULTS_SCHEMA.groups:

@@ -1,5 +1,6 @@
-"""RF figures: conditions beside the control, and the frequency sweep (bound and trial r against
-frequency, perpendicular and parallel, one colour per pair lifetime)."""
+"""RF figures: conditions beside the control, and the frequency sweep (bound rise at a fixed amplitude
+and the amplitude needed to disorient against frequency, perpendicular and parallel, one colour per
+pair lifetime)."""
 
 from __future__ import annotations
 
@@ -58,26 +59,29 @@ def rf_conditions(names, bound_deg, trial_r, light_names, *, params: str = "",
     return finish(annotate(fig, title, cap), path, formats, dpi)
 
 
-def rf_sweep(freqs_MHz, lifetimes_us, control_bound_deg, perp_bound_deg, par_bound_deg, control_r, perp_r,
-             par_r, *, amplitude_nT: float, light: str, onset_MHz=None, params: str = "",
-             title: str = "RF frequency sweep at fixed amplitude", path=None, formats=("png", "svg"),
-             dpi: int = 300):
-    """Bound relative to the control, and trial r, against RF frequency (log axis).
+def rf_sweep(curve_MHz, lifetimes_us, perp_rise, par_rise, perp_threshold_nT, par_threshold_nT, *,
+             amplitude_nT: float, rise: float, weak_nT, onset_MHz=None, params: str = "",
+             title: str = "RF frequency sweep: bound rise and the amplitude needed to disorient", path=None,
+             formats=("png", "svg"), dpi: int = 300):
+    """The planning figure: bound rise at a fixed amplitude (left) and threshold amplitude (right)
+    against RF frequency, perpendicular (solid) and parallel (dashed), one colour per lifetime.
 
     Parameters
     ----------
-    freqs_MHz : ndarray (F,)
+    curve_MHz : ndarray (Y,)
+        Frequencies, MHz (log axis).
     lifetimes_us : ndarray (T,)
-    control_bound_deg : ndarray (T,)
-        Control bound at the sweep's light level, degrees.
-    perp_bound_deg, par_bound_deg : ndarray (T, F)
-        Bounds with a perpendicular and a parallel RF field, degrees.
-    control_r : ndarray (T,)
-    perp_r, par_r : ndarray (T, F)
-        Trial mean vector lengths.
+    perp_rise, par_rise : ndarray (T, Y)
+        Bound / bound without RF - 1 at ``amplitude_nT``.
+    perp_threshold_nT, par_threshold_nT : ndarray (T, Y)
+        Amplitude (nT) that raises the bound by ``rise``; NaN where it never does.
     amplitude_nT : float
-    light : str
-        Name of the light level.
+        The fixed amplitude of the left panel (a grey line on the right).
+    rise : float
+        The onset's relative rise (0.1 = 10 %).
+    weak_nT : ndarray (T,)
+        Amplitude at which ``gamma_e b / k`` reaches the weak-field limit: threshold curves above it
+        are drawn thin and dotted (second order extrapolated).
     onset_MHz : ndarray (T,), optional
         Marked with a vertical line where finite.
 
@@ -85,39 +89,49 @@ def rf_sweep(freqs_MHz, lifetimes_us, control_bound_deg, perp_bound_deg, par_bou
     -------
     matplotlib.figure.Figure
     """
-    f = np.asarray(freqs_MHz, float)
+    f = np.asarray(curve_MHz, float)
     lt = np.asarray(lifetimes_us, float)
-    cb = np.asarray(control_bound_deg, float).reshape(-1)
-    pb, qb = np.asarray(perp_bound_deg, float), np.asarray(par_bound_deg, float)
-    cr = np.asarray(control_r, float).reshape(-1)
-    pr, qr = np.asarray(perp_r, float), np.asarray(par_r, float)
-    if f.size < 1 or np.any(f <= 0) or pb.shape != (lt.size, f.size) or qb.shape != pb.shape:
-        raise InputError("expected positive frequencies and bounds of shape (lifetimes, frequencies)",
-                         key="freqs_MHz")
+    pr, qr = np.asarray(perp_rise, float), np.asarray(par_rise, float)
+    pt, qt = np.asarray(perp_threshold_nT, float), np.asarray(par_threshold_nT, float)
+    wk = np.asarray(weak_nT, float).reshape(-1)
+    shape = (lt.size, f.size)
+    if f.size < 1 or np.any(f <= 0) or any(a.shape != shape for a in (pr, qr, pt, qt)) or wk.size != lt.size:
+        raise InputError("expected positive frequencies and arrays of shape (lifetimes, frequencies)",
+                         key="curve_MHz")
     with style():
-        fig = new_figure(DOUBLE_IN, 2.6)
+        fig = new_figure(DOUBLE_IN, 2.8)
         axes = fig.subplots(1, 2)
         for t, tau in enumerate(lt):
             col = f"C{t}"
-            axes[0].plot(f, pb[t] / cb[t], "-o", ms=3, color=col, label=f"{tau:g} us, perpendicular")
-            axes[0].plot(f, qb[t] / cb[t], "--s", ms=3, mfc="none", color=col, label=f"{tau:g} us, parallel")
-            axes[1].plot(f, pr[t], "-o", ms=3, color=col, label=f"{tau:g} us, perpendicular")
-            axes[1].plot(f, qr[t], "--s", ms=3, mfc="none", color=col, label=f"{tau:g} us, parallel")
-            axes[1].axhline(cr[t], color=col, lw=0.6, ls=":")
+            axes[0].plot(f, 100 * pr[t], "-", color=col, label=f"{tau:g} us, perpendicular")
+            axes[0].plot(f, 100 * qr[t], "--", color=col, lw=0.9, label=f"{tau:g} us, parallel")
+            for arr, ls, lab in ((pt[t], "-", "perpendicular"), (qt[t], "--", "parallel")):
+                axes[1].plot(f, arr, ls, color=col, lw=0.5, alpha=0.6)
+                valid = np.where(arr <= wk[t], arr, np.nan)
+                axes[1].plot(f, valid, ls, color=col, lw=1.4 if ls == "-" else 1.0, label=f"{tau:g} us, {lab}")
+            axes[1].axhline(wk[t], color=col, lw=0.6, ls=":")
+            axes[1].annotate(f"second order valid below ({tau:g} us)", (f[0], wk[t]), fontsize=5.5, color=col,
+                             xytext=(2, 2), textcoords="offset points")
             if onset_MHz is not None and np.isfinite(onset_MHz[t]):
                 for ax in axes:
-                    ax.axvline(onset_MHz[t], color=col, lw=0.6, ls="-.")
-        axes[0].axhline(1.0, color="0.4", lw=0.6, ls=":")
-        axes[0].set_ylabel("bound / bound without RF")
-        axes[1].set_ylabel(f"trial mean vector length r ({light} light)")
-        axes[1].set_ylim(0, 1.05)
+                    ax.axvline(onset_MHz[t], color=col, lw=0.7, ls="-.")
+                axes[1].plot([onset_MHz[t]], [amplitude_nT], "o", color=col, ms=4, mfc="none")
+        axes[0].axhline(100 * rise, color="0.3", lw=0.6, ls="-.")
+        axes[0].set_yscale("symlog", linthresh=1e-5)
+        axes[0].set_ylabel(f"bound rise at {amplitude_nT:g} nT (%)")
+        axes[1].axhline(amplitude_nT, color="0.4", lw=0.6, ls="-.")
+        axes[1].set_yscale("log")
+        axes[1].set_ylabel(f"amplitude for a {100 * rise:g} % rise (nT)")
         for ax in axes:
             ax.set_xscale("log")
             ax.set_xlabel("RF frequency (MHz)")
         axes[0].legend(frameon=False, fontsize=5.5)
         fig.tight_layout()
-    cap = (f"RF field of {amplitude_nT:g} nT (amplitude) perpendicular to the static field (azimuth-averaged, solid) "
-           f"and parallel to it (dashed), for each pair lifetime; single-pose heading bound at the '{light}' light "
-           "level relative to the bound without RF, and the mean vector length of simulated trials (dotted: without "
-           "RF). Dash-dotted lines: onset of disorientation (bound doubled), where reached. " + params)
+    cap = (f"Left: rise of the single-pose heading bound over the bound without RF for a field of {amplitude_nT:g} nT "
+           f"(amplitude) perpendicular to the static field (azimuth-averaged, solid) or parallel to it (dashed), one "
+           f"colour per pair lifetime; dash-dotted horizontal: the onset level ({100 * rise:g} %). Right: the amplitude "
+           f"that raises the bound by {100 * rise:g} % (second order in the amplitude); thick where the weak-field "
+           "parameter gamma_e b / k stays below its limit (dotted horizontal lines), thin where the result is "
+           f"extrapolated; grey dash-dotted: {amplitude_nT:g} nT. Vertical dash-dotted lines and circles: onset of "
+           "disorientation at that amplitude, where reached. " + params)
     return finish(annotate(fig, title, cap), path, formats, dpi)

@@ -147,15 +147,17 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
         add(fig, "rf_conditions")
     if "rf_sweep" in g:
         from retina.outputs.text import RF_CAUTION
+        from retina.spin.broadband import WEAK_LIMIT
+        from retina.spin.operators import GAMMA_E
 
         w = g["rf_sweep"]
-        li = list(json.loads(w["light_names"])).index(w["sweep_light"])
-        fig = F.rf_sweep(w["freqs_MHz"], w["lifetimes_us"], w["control_bound_deg"][:, li],
-                         w["perp_bound_deg"][:, :, li], w["par_bound_deg"][:, :, li], w["control_r"], w["perp_r"],
-                         w["par_r"], amplitude_nT=float(w["amplitude_nT"]), light=str(w["sweep_light"]),
-                         onset_MHz=w["onset_MHz"],
-                         params=params + f"; degree {int(w['degree'])}; weak-field parameter gamma_e B1 / k = "
-                         + ", ".join(f"{e:.2g}" for e in w["eta"]) + ". " + RF_CAUTION,
+        weak_nT = WEAK_LIMIT * 1e6 / np.asarray(w["lifetimes_us"], float) / GAMMA_E * 1e9
+        fig = F.rf_sweep(w["curve_MHz"], w["lifetimes_us"], w["perp_rise"], w["par_rise"], w["perp_threshold_nT"],
+                         w["par_threshold_nT"], amplitude_nT=float(w["amplitude_nT"]), rise=float(w["onset_rise"]),
+                         weak_nT=weak_nT, onset_MHz=w["onset_MHz"],
+                         params=params + f"; degree {int(w['degree'])}; weak-field parameter gamma_e B1 / k at "
+                         f"{float(w['amplitude_nT']):g} nT = " + ", ".join(f"{e:.2g}" for e in w["eta"])
+                         + f"; {len(w['curve_MHz'])} frequencies. " + RF_CAUTION,
                          path=folder / "rf_sweep", formats=formats, dpi=dpi)
         add(fig, "rf_sweep")
     return entries

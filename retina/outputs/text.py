@@ -11,7 +11,7 @@ import numpy as np
 
 from retina.results import Results
 
-__all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_text", "RF_CAUTION"]
+__all__ = ["key_numbers", "summary_text", "light_levels", "bound_text", "params_text", "sweep_summary", "RF_CAUTION"]
 
 #: Shown beside every RF result.
 RF_CAUTION = ("RF exposure: these numbers describe a model. Work with RF transmitters follows the usual cautions "
@@ -282,31 +282,93 @@ def _rf_sections(g) -> list:
             "about the static field; bands: second order in the amplitude (incoherent sum of the frequency "
             "components). Trials use the same random numbers for every condition. " + RF_CAUTION)))
     if "rf_sweep" in g:
-        w = g["rf_sweep"]
-        li = json.loads(w["light_names"]).index(w["sweep_light"])
-        methods = json.loads(w["method"])
-        rows = []
-        for t, tau in enumerate(w["lifetimes_us"]):
-            on = w["onset_MHz"][t]
-            eff = w["effect_onset_MHz"][t]
-            rel = w["perp_bound_deg"][t, :, li] / w["control_bound_deg"][t, li] - 1.0
-            relp = w["par_bound_deg"][t, :, li] / w["control_bound_deg"][t, li] - 1.0
-            rows += [
-                (f"lifetime {tau:g} us: onset of disorientation (bound x {w['onset_factor']:g})",
-                 "none in the sweep" if not np.isfinite(on) else f"{on:g}", "MHz"),
-                (f"lifetime {tau:g} us: onset of the effect (half its largest size)",
-                 "n/a" if not np.isfinite(eff) else f"{eff:g}", "MHz"),
-                (f"lifetime {tau:g} us: largest bound change, perpendicular | parallel",
-                 f"{100 * rel[np.argmax(np.abs(rel))]:+.3g} | {100 * relp[np.argmax(np.abs(relp))]:+.3g}", "%"),
-                (f"lifetime {tau:g} us: trial r without RF | lowest with perpendicular RF",
-                 f"{w['control_r'][t]:.3f} | {np.min(w['perp_r'][t]):.3f}", ""),
-                (f"lifetime {tau:g} us: weak-field parameter gamma_e B1 / k; method",
-                 f"{w['eta'][t]:.3g}; {methods[t]}", "")]
-        secs.append(Section(f"RF frequency sweep ({w['amplitude_nT']:g} nT, {w['sweep_light']} light)", rows,
-                            note=("Frequencies " + ", ".join(f"{f:g}" for f in w["freqs_MHz"]) + " MHz. Onset of "
-                                  "disorientation: the lowest swept frequency at which the perpendicular field's "
-                                  "single-pose bound is at least twice the bound without RF. " + RF_CAUTION)))
+        secs.append(_rf_sweep_section(g["rf_sweep"], RF_CAUTION))
     return secs
+
+
+def sweep_summary(w: dict, t: int) -> dict:
+    """Key numbers of one lifetime of the RF sweep group ``w`` (:mod:`retina.stages.rf`).
+
+    Parameters
+    ----------
+    w : dict
+        The ``rf_sweep`` group of a :class:`retina.results.Results`.
+    t : int
+        Index of the lifetime.
+
+    Returns
+    -------
+    dict
+        ``onset_MHz`` (NaN: none), ``min_threshold_nT`` and ``min_threshold_MHz`` (perpendicular),
+        ``min_threshold_eta``, ``par_min_threshold_nT``, ``largest_rise`` and ``largest_rise_MHz``
+        (perpendicular, at the sweep amplitude, on the curve), ``departure_MHz``.
+    """
+    thr = np.asarray(w["perp_threshold_nT"][t], float)
+    out = {"onset_MHz": float(w["onset_MHz"][t]), "departure_MHz": float(w["departure_MHz"][t])}
+    if np.any(np.isfinite(thr)):
+        i = int(np.nanargmin(thr))
+        out.update(min_threshold_nT=float(thr[i]), min_threshold_MHz=float(w["curve_MHz"][i]),
+                   min_threshold_eta=float(w["threshold_eta"][t, i]))
+    else:
+        out.update(min_threshold_nT=float("nan"), min_threshold_MHz=float("nan"), min_threshold_eta=float("nan"))
+    pt = np.asarray(w["par_threshold_nT"][t], float)
+    out["par_min_threshold_nT"] = float(np.nanmin(pt)) if np.any(np.isfinite(pt)) else float("nan")
+    rise = np.asarray(w["perp_rise"][t], float)
+    j = int(np.argmax(rise))
+    out.update(largest_rise=float(rise[j]), largest_rise_MHz=float(w["curve_MHz"][j]))
+    return out
+
+
+def _rf_sweep_section(w: dict, caution: str):
+    import json
+
+    from retina.outputs.report import Section
+    from retina.spin.broadband import WEAK_LIMIT
+
+    li = json.loads(w["light_names"]).index(w["sweep_light"])
+    methods = json.loads(w["method"])
+    q = float(w["onset_rise"])
+    rows = []
+
+    def mhz(x):
+        return "none in the sweep" if not np.isfinite(x) else f"{x:.3g}"
+
+    for t, tau in enumerate(w["lifetimes_us"]):
+        k = sweep_summary(w, t)
+        eta_t = k["min_threshold_eta"]
+        flag = "" if not np.isfinite(eta_t) or eta_t <= WEAK_LIMIT else " (beyond second order: indicative only)"
+        relp = w["par_bound_deg"][t, :, li] / w["control_bound_deg"][t, li] - 1.0
+        rows += [
+            (f"lifetime {tau:g} us: onset of disorientation at {w['amplitude_nT']:g} nT (bound + {100 * q:g} %)",
+             mhz(k["onset_MHz"]), "MHz"),
+            (f"lifetime {tau:g} us: largest bound rise at {w['amplitude_nT']:g} nT, perpendicular (at MHz) | "
+             "parallel (swept frequencies)",
+             f"{100 * k['largest_rise']:+.3g} (at {k['largest_rise_MHz']:.3g}) | "
+             f"{100 * relp[np.argmax(np.abs(relp))]:+.3g}", "%"),
+            (f"lifetime {tau:g} us: lowest amplitude for a {100 * q:g} % rise, perpendicular (at MHz; eta there) | "
+             "parallel",
+             ("never" if not np.isfinite(k["min_threshold_nT"]) else
+              f"{k['min_threshold_nT']:.3g} (at {k['min_threshold_MHz']:.3g}; eta {eta_t:.2g}){flag} | "
+              + ("never" if not np.isfinite(k["par_min_threshold_nT"]) else f"{k['par_min_threshold_nT']:.3g}")),
+             "nT"),
+            (f"lifetime {tau:g} us: the parallel response leaves its quasi-static value (moves as 1 / lifetime "
+             "when the line spacings are much larger than 1 / lifetime)",
+             mhz(k["departure_MHz"]), "MHz"),
+            (f"lifetime {tau:g} us: trial r without RF | perpendicular RF at {w['trial_MHz'][t]:g} MHz",
+             f"{w['control_r'][t]:.3f} | {w['trial_perp_r'][t]:.3f}", ""),
+            (f"lifetime {tau:g} us: weak-field parameter gamma_e B1 / k at {w['amplitude_nT']:g} nT; method; "
+             "linearisation check", f"{w['eta'][t]:.3g}; {methods[t]}; {w['linearisation_error'][t]:.1e}", "")]
+    note = (f"Single-pose bound at the '{w['sweep_light']}' light level relative to the bound without RF (the ratio "
+            f"does not depend on the light level). Onset of disorientation: the lowest frequency at which the "
+            f"perpendicular field of {w['amplitude_nT']:g} nT raises the bound by {100 * q:g} % (log-linear "
+            f"interpolation between {len(w['curve_MHz'])} frequencies from {w['curve_MHz'][0]:g} to "
+            f"{w['curve_MHz'][-1]:g} MHz; resonances narrower than the spacing can fall between them). Threshold "
+            "amplitude: the amplitude giving that rise at second order in the amplitude (the bound's square rises "
+            "as b^2 s(f)); where gamma_e b / k exceeds "
+            f"{WEAK_LIMIT:g} the second-order result is an extrapolation: check it with an exact tone. "
+            "Linearisation check: the largest difference between the curve's rise and the bound computed from the "
+            "swept frequencies' yield functions. " + caution)
+    return Section(f"RF frequency sweep ({w['amplitude_nT']:g} nT; threshold amplitudes)", rows, note=note)
 
 
 def _order_section(res: Results):
@@ -381,9 +443,17 @@ def summary_text(res: Results, paths: dict, seconds: float) -> str:
                          f"Rayleigh p = {lv['rayleigh_p']:.2g}")
     if "rf_sweep" in g:
         w = g["rf_sweep"]
-        lines.append("  RF sweep onset of disorientation: " + ", ".join(
-            f"{tau:g} us: " + ("none" if not np.isfinite(o) else f"{o:g} MHz")
+        q = 100 * float(w["onset_rise"])
+        lines.append(f"  RF sweep onset of disorientation (bound + {q:g} %): " + ", ".join(
+            f"{tau:g} us: " + ("none" if not np.isfinite(o) else f"{o:.3g} MHz")
             for tau, o in zip(w["lifetimes_us"], w["onset_MHz"])) + f" (at {w['amplitude_nT']:g} nT)")
+        parts = []
+        for t, tau in enumerate(w["lifetimes_us"]):
+            k = sweep_summary(w, t)
+            parts.append(f"{tau:g} us: " + ("never" if not np.isfinite(k["min_threshold_nT"]) else
+                                            f"{k['min_threshold_nT']:.3g} nT at {k['min_threshold_MHz']:.3g} MHz "
+                                            f"(eta {k['min_threshold_eta']:.2g})"))
+        lines.append(f"  RF amplitude needed for + {q:g} %: " + ", ".join(parts))
     if "rf" in g or "rf_sweep" in g:
         lines.append("  " + RF_CAUTION)
     lines.append(f"  report: {paths['html']}  (Markdown: {paths['markdown'].name}, data: {paths['results'].name})")

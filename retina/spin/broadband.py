@@ -258,12 +258,35 @@ class Response:
 
     def tone(self, freqs_MHz, pol) -> np.ndarray:
         """Yield change per nT^2 of a single tone of amplitude ``B1`` at each frequency, (F,)."""
-        w = self.lines(pol)
+        return self.tones(freqs_MHz, [pol])[0]
+
+    def tones(self, freqs_MHz, pols) -> np.ndarray:
+        """:meth:`tone` for several polarisations at once, vectorised over frequencies, (P, F).
+
+        Lines ``ij`` and ``ji`` are merged (``G_ji = conj(G_ij)``, so the bracket of ``ji`` is the
+        conjugate of that of ``ij`` and only ``Re[(w_ij + conj(w_ji)) (...)]`` is needed), and lines of
+        zero weight for every polarisation are skipped; the result equals the line-by-line sum up to
+        rounding.
+        """
+        pols = [np.asarray(p, dtype=float) for p in pols]
+        n = int(round(np.sqrt(self.delta.size)))
+        iu = np.triu_indices(n, 1)
+        ws = []
+        for p in pols:
+            w = self.lines(p).reshape(n, n)
+            ws.append(np.concatenate([np.real(np.diag(w)) + 0j, w[iu] + np.conj(w.T[iu])]))
+        wmat = np.stack(ws)                                               # (P, M)
+        d = np.concatenate([np.zeros(n), self.delta.reshape(n, n)[iu]])
+        keep = np.flatnonzero(np.any(wmat != 0, axis=0))
+        wmat, d = wmat[:, keep], d[keep]
+        g = -1.0 - 1j * d
         x = 2 * np.pi * np.atleast_1d(np.asarray(freqs_MHz, dtype=float)) * 1e6 / self.k
-        out = np.empty(x.size)
-        g = -1.0 - 1j * self.delta
-        for i, xi in enumerate(x):
-            out[i] = np.real(np.sum(w * (1.0 / (g + 1j * xi) + 1.0 / (g - 1j * xi))))
+        out = np.empty((len(pols), x.size))
+        step = max(1, 2_000_000 // max(d.size, 1))                        # about 32 MB of temporaries
+        for a in range(0, x.size, step):
+            xi = x[a:a + step, None]
+            br = 1.0 / (g[None] + 1j * xi) + 1.0 / (g[None] - 1j * xi)      # (f, M)
+            out[:, a:a + step] = np.real(wmat @ br.T)
         return out * 1e-18
 
     def band(self, band_MHz, pol, psd_T2_Hz: float) -> float:
@@ -330,8 +353,10 @@ class _Basis:
         va, vb = v
         da, db = self.da, self.db
         d = da * db
-        if left:      # (A x 1) X + (1 x B) X, rows indexed (j, q)
-            out = (va @ x.reshape(da, db * d)).reshape(da, db, d) + np.matmul(vb[None], x.reshape(da, db, d))
+        if left:      # (A x 1) X + (1 x B) X, rows indexed (j, q): two plain matrix products
+            out = (va @ x.reshape(da, db * d)).reshape(da, db, d)
+            xb = np.ascontiguousarray(x.reshape(da, db, d).transpose(1, 0, 2)).reshape(db, da * d)
+            out += (vb @ xb).reshape(db, da, d).transpose(1, 0, 2)
         else:         # X (A x 1) + X (1 x B), columns indexed (j, q)
             x4 = x.reshape(d, da, db)
             out = np.matmul(va.T[None], x4) + x4 @ vb
