@@ -329,7 +329,8 @@ class HeadView(_Subscriber):
         self.state = state
         self._unsub = []
         self.draws = 0
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
+        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent,
+                                        autoswap=False)
         self.canvas.events.draw.connect(self._count_draw)
         self.view = self.canvas.central_widget.add_view()
         self.view.camera = scene.TurntableCamera(fov=30.0, elevation=20.0, azimuth=-55.0,
@@ -478,7 +479,8 @@ class MapView(_Subscriber):
         for lab in (self.title_label, self.caption_label):
             lab.setWordWrap(True)
             lab.setStyleSheet("background: rgb(31, 31, 36); color: rgb(230, 230, 230); padding: 2px;")
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=self.widget)
+        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG,
+                                        parent=self.widget, autoswap=False)
         self.canvas.events.draw.connect(self._count_draw)
         lay.addWidget(self.title_label)
         lay.addWidget(self.canvas.native, 1)
