@@ -11,7 +11,6 @@ from __future__ import annotations
 import importlib.util
 import math
 import os
-import shutil
 import subprocess
 import sys
 import threading
@@ -64,35 +63,21 @@ def _unavailable(reason):
 
 @pytest.fixture(scope="session")
 def display():
-    """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here."""
+    """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here
+    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``)."""
     if not HAVE_VIEWER:
         _unavailable("PyQt6 or vispy not installed (pip install 'retina-compass[viewer]')")
-    if sys.platform != "linux" or os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"):
-        yield os.environ.get("DISPLAY")
-        return
-    xvfb = shutil.which("Xvfb")
-    if xvfb is None:
-        _unavailable("no display: DISPLAY is unset and Xvfb is not installed (apt-get install xvfb)")
-    r, w = os.pipe()
-    proc = subprocess.Popen([xvfb, "-displayfd", str(w), "-screen", "0", "1600x1000x24", "-nolisten", "tcp"],
-                            pass_fds=(w,), stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    os.close(w)
-    num = b""
-    end = time.monotonic() + 20
-    while not num.endswith(b"\n") and time.monotonic() < end:
-        chunk = os.read(r, 16)
-        if not chunk:
-            break
-        num += chunk
-    os.close(r)
-    if not num.strip():
-        proc.kill()
-        _unavailable("Xvfb did not start")
-    os.environ["DISPLAY"] = ":" + num.decode().strip()
-    yield os.environ["DISPLAY"]
-    os.environ.pop("DISPLAY", None)
-    proc.terminate()
-    proc.wait(10)
+    from retina_viewer.display import XvfbError, virtual_display
+
+    cm = virtual_display()
+    try:
+        name = cm.__enter__()
+    except XvfbError as exc:
+        _unavailable(f"no display: DISPLAY is unset and {exc}")
+    try:
+        yield name
+    finally:
+        cm.__exit__(None, None, None)
 
 
 @pytest.fixture(scope="session")
