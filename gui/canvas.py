@@ -21,14 +21,44 @@ Contract (owned here)
 - One OpenGL context per canvas (``QOpenGLContext`` on a ``QOffscreenSurface``); the scene is drawn
   when Qt paints the widget (one draw per ``update()``, coalesced by Qt as usual).
 - The widget is opaque (``WA_OpaquePaintEvent``): nothing behind it is painted.
+- One canvas per paint pass: Qt paints every widget of a window that asked for it in one pass of
+  the event loop, so two canvases changed together would keep the loop busy for both scenes at
+  once.  A canvas asked to redraw while another canvas of its window still waits for its paint
+  asks again 1 ms later, after that paint: the event loop runs in between (input, timers), and
+  its longest stall is one scene, not two.  Each canvas still draws once per change.
 """
 
 from __future__ import annotations
+
+import time
 
 __all__ = ["scene_canvas", "OffscreenCanvasBackend", "offscreen_app"]
 
 _APP = None
 _CLASS = None
+#: Canvases whose paint Qt has been asked for and has not done yet, with the time of asking.
+_PENDING: dict = {}
+#: A paint still not done after this long (seconds) no longer holds other canvases back.
+_PENDING_MAX_S = 0.25
+
+
+def _other_pending(canvas) -> bool:
+    """Whether another visible canvas of ``canvas``'s window waits for its paint."""
+    now = time.monotonic()
+    win = canvas.window()
+    for c, t in list(_PENDING.items()):
+        if c is canvas:
+            continue
+        try:
+            alive = now - t < _PENDING_MAX_S and c.isVisible()
+            same = alive and c.window() is win
+        except RuntimeError:  # deleted
+            alive = same = False
+        if not alive:
+            _PENDING.pop(c, None)
+        elif same:
+            return True
+    return False
 
 
 def _backend_class():
@@ -40,7 +70,7 @@ def _backend_class():
 
 
 def _make_backend_class():
-    from PyQt6.QtCore import Qt
+    from PyQt6.QtCore import Qt, QTimer
     from PyQt6.QtGui import QOffscreenSurface, QOpenGLContext, QPainter, QSurfaceFormat
     from PyQt6.QtOpenGL import QOpenGLFramebufferObject, QOpenGLFramebufferObjectFormat
     from PyQt6.QtWidgets import QWidget
@@ -68,6 +98,7 @@ def _make_backend_class():
             self._surface.create()
             self._fbo = None
             self._resize_pending = False
+            self._deferred = False
             self._gl_initialized = False
             self._image = None
             self.setAttribute(Qt.WidgetAttribute.WA_OpaquePaintEvent, True)
@@ -105,6 +136,26 @@ def _make_backend_class():
                 self._ctx.doneCurrent()
             self.close()
 
+        def _vispy_update(self):
+            if self._vispy_canvas is None:
+                return
+            if self.isVisible() and _other_pending(self):
+                # one canvas per paint pass (module docstring): ask again after that paint
+                if not self._deferred:
+                    self._deferred = True
+                    QTimer.singleShot(1, self._retry_update)
+                return
+            if self.isVisible():
+                _PENDING[self] = time.monotonic()
+            self.update()
+
+        def _retry_update(self):
+            self._deferred = False
+            try:
+                self._vispy_update()
+            except RuntimeError:  # the widget was deleted meanwhile
+                _PENDING.pop(self, None)
+
         # ------------------------------------------------------------ Qt events
         def resizeEvent(self, event):  # noqa: N802 - Qt name
             # as QOpenGLWidget does: vispy hears of the new size just before the next draw, once
@@ -136,6 +187,7 @@ def _make_backend_class():
             return fbo.toImage(True)
 
         def paintEvent(self, event):  # noqa: N802 - Qt name
+            _PENDING.pop(self, None)
             try:
                 img = self.render_image()
             except Exception:  # noqa: BLE001 - nothing may escape a Qt event handler

@@ -488,12 +488,18 @@ class HeadView(_Subscriber):
         origin = np.array([0.0, 0.0, z0])
         cols = ((0.95, 0.35, 0.3, 1), (0.95, 0.8, 0.3, 1), (0.5, 0.9, 0.5, 1))
         label_pos = []
+        av, af, ac = [], [], []
         for vec, col, label in (((1, 0, 0), cols[0], "N"), ((0, 1, 0), cols[1], "E"),
                                 ((0, 0, 1), cols[2], "down")):
             v = D @ np.array(vec, float) * (9.0 if label != "down" else 6.0)
             verts, faces = _arrow_mesh(origin, v, 0.25, 1.6, 0.7)
-            scene.visuals.Mesh(verts, faces, color=col, shading=None, parent=root)
+            af.append(faces + sum(len(x) for x in av))
+            av.append(verts)
+            ac.append(np.tile(np.array(col, np.float32), (len(verts), 1)))
             label_pos.append(origin + v * 1.25)
+        # the three world axes in one mesh (one draw call), each arrow in its own colour
+        scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac), shading=None,
+                           parent=root)
         # one Text visual for all world labels (one glyph atlas, one draw call)
         world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
                                           color=np.array(cols), font_size=11, parent=root)
