@@ -768,8 +768,9 @@ class MapView(_Subscriber):
         h_world = np.stack([np.cos(t), np.sin(t), np.zeros_like(t)], axis=-1)
         az, el = _az_el(h_world @ R)  # rows: R^T h, the head-frame directions
         n = len(t)
-        conn = np.array([(i, (i + 1) % n) for i in range(n) if abs(az[(i + 1) % n] - az[i]) < 90],
-                        np.uint32)
+        i = np.arange(n)
+        keep = np.abs(az[(i + 1) % n] - az) < 90  # no segment across the +/-180 deg seam
+        conn = np.stack([i[keep], (i[keep] + 1) % n], axis=-1).astype(np.uint32)
         self.horizon.set_data(np.stack([az, el], axis=-1).astype(np.float32), connect=conn)
         idx = [0, 90, 180, 270]
         cardinal = np.stack([az[idx], el[idx]], axis=-1)
@@ -779,9 +780,15 @@ class MapView(_Subscriber):
         self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
                                "field_opposite": pos[1]}
         f, o = self.marks["field"], self.marks["field_opposite"]
-        self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
-                                  face_color=np.array([f.face, o.face]),
-                                  edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
+        data = getattr(self.field_marks, "_data", None)
+        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
+            data["a_position"][:, :2] = pos  # only the places change (_set_marker_colours)
+            self.field_marks._vbo.set_data(data)
+            self.field_marks.update()
+        else:
+            self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
+                                      face_color=np.array([f.face, o.face]),
+                                      edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
