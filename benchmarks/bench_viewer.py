@@ -37,12 +37,19 @@ Also printed: the GUI thread's own CPU time per drag step (``time.thread_time``)
 machine disturbs far less than the wall time; the rest of a step is spent in Mesa's renderer
 threads, the X server and the worker.
 
-The machine may be shared with other work: absolute times are noisy, the ratios less so.
+A view has "drawn" when its canvas has rendered the scene and painted it into the window
+(:mod:`retina_viewer.canvas`).  ``RETINA_VIEWER_CANVAS=widget`` runs the same cases with vispy's
+own ``QOpenGLWidget`` canvas, where a draw is only the canvas's part and the window's OpenGL
+composition and swap follow it.
+
+The machine may be shared with other work: absolute times are noisy, the ratios less so; the
+load average is printed with the table.
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import shutil
 import sys
 import tempfile
@@ -349,6 +356,9 @@ def _run(args) -> int:
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
     missed = print_rows(rows)
+    if hasattr(os, "getloadavg"):
+        print("load average (1, 5, 15 min) at the end: " + ", ".join(f"{x:.2f}" for x in os.getloadavg())
+              + f" on {os.cpu_count()} cores")
     print("note: the machine may be shared with other work; absolute times are noisy.")
     return 1 if (missed and args.check) else 0
 
