@@ -34,12 +34,14 @@ Conventions (owned here)
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from types import SimpleNamespace
 
 import numpy as np
 
 __all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
-           "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend"]
+           "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend", "map_grid", "map_index",
+           "PatternColours", "pattern_colours"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
@@ -128,6 +130,143 @@ def colour_values(result, display: str, eye: str, limits=None):
     rgba = cmap(np.clip((values - lo) / (hi - lo), 0.0, 1.0))
     rgba[~shown] = _HIDDEN
     return values, rgba, (lo, hi), shown
+
+
+def map_grid() -> tuple[np.ndarray, np.ndarray]:
+    """Pixel centres of the visual-field map: azimuth ``(A,)`` and elevation ``(E,)``, degrees."""
+    s = MAP_STEP_DEG
+    return np.arange(-180.0 + s / 2, 180.0, s), np.arange(-90.0 + s / 2, 90.0, s)
+
+
+def map_index(rec) -> np.ndarray:
+    """Receptor drawn at each map pixel, for the eye choices both, left and right.
+
+    Parameters
+    ----------
+    rec : retina.eye.geometry.Receptors
+
+    Returns
+    -------
+    ndarray of int64, shape (3, E, A)
+        Receptor index per pixel of :func:`map_grid` (-1: no receptor), for "both", "left" and
+        "right" (module docstring: a direction seen by both eyes takes the eye whose optical
+        axis is nearer).
+    """
+    from retina.eye.geometry import optical_axis
+    from retina.eye.pattern import resample
+
+    az, el = map_grid()
+    fake = SimpleNamespace(modulation=np.arange(len(rec), dtype=float), receptors=rec)
+    per = resample(fake, (az, el))  # (2, E, A) receptor indices or NaN
+    A, E = np.meshgrid(np.radians(az), np.radians(el))
+    d = np.stack([np.cos(E) * np.cos(A), np.cos(E) * np.sin(A), -np.sin(E)], axis=-1)
+    cosang = np.full((2,) + A.shape, -np.inf)
+    for eye in rec.eyes:
+        cosang[eye.index] = d @ optical_axis(eye.azimuth_deg, eye.elevation_deg)
+    cosang = np.where(np.isnan(per), -np.inf, cosang)
+    best = np.argmax(cosang, axis=0)
+    both = np.take_along_axis(per, best[None], axis=0)[0]
+    maps = np.stack([both, per[0], per[1]])
+    return np.where(np.isnan(maps), -1, maps).astype(np.int64)
+
+
+_EYE_ROW = {"both": 0, "left": 1, "right": 2}
+
+
+@dataclass(frozen=True, eq=False)
+class PatternColours:
+    """Colours of a pattern, ready to upload: computed on the worker thread, so that the GUI
+    thread only hands arrays to the GPU (:func:`pattern_colours`).
+
+    Attributes
+    ----------
+    display, eye : str
+        The display and eye choice they were made for.
+    limits : tuple of float
+        Colour-scale limits ``(lo, hi)`` (:func:`colour_limits`, or the locked ones).
+    locked : bool
+        Made with fixed (locked) limits.
+    rgba : ndarray of float32, shape (N, 4)
+        Colour of every receptor (the head view's markers).
+    image : ndarray of float32, shape (E, A, 4)
+        The visual-field map (:func:`map_grid` pixels; no receptor: the no-data colour).
+    """
+
+    display: str
+    eye: str
+    limits: tuple
+    locked: bool
+    rgba: np.ndarray
+    image: np.ndarray
+
+    def fits(self, display: str, eye: str, limits) -> bool:
+        """Whether these colours are the ones for ``display``, ``eye`` and fixed ``limits``
+        (None: fitted to the pattern)."""
+        if display != self.display or eye != self.eye or (limits is not None) != self.locked:
+            return False
+        return limits is None or tuple(float(x) for x in limits) == self.limits
+
+
+def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> PatternColours:
+    """The colours of a result's pattern (:class:`PatternColours`).
+
+    Parameters
+    ----------
+    result : object with ``pattern``
+        A :class:`retina_viewer.workers.PatternResult` (or anything with its ``pattern``).
+    display, eye, limits
+        As for :func:`colour_values`.
+    index : ndarray, shape (3, E, A), optional
+        :func:`map_index` of the pattern's receptors (computed when not given).
+    """
+    _, rgba, lims, _ = colour_values(result, display, eye, limits)
+    if index is None:
+        index = map_index(result.pattern.receptors)
+    idx = index[_EYE_ROW[eye]]
+    rgba32 = rgba.astype(np.float32)
+    image = np.where((idx >= 0)[..., None], rgba32[np.maximum(idx, 0)], _NO_DATA.astype(np.float32))
+    return PatternColours(display=display, eye=eye, limits=(float(lims[0]), float(lims[1])),
+                          locked=limits is not None, rgba=rgba32, image=image.astype(np.float32))
+
+
+def _colours_for(view, res) -> PatternColours:
+    """The worker's colours of ``res`` when they fit the state's display choice, else computed
+    here (a display, eye or lock change without a new pattern)."""
+    st = view.state
+    limits = _state_limits(st, res)
+    cols = getattr(res, "colours", None)
+    if cols is not None and cols.fits(st.display, st.eye, limits):
+        return cols
+    key = (st.display, st.eye, None if limits is None else tuple(limits))
+    cache = _colours_for.cache
+    if cache.get("result") is not res or cache.get("key") != key:
+        index = getattr(view, "_index", None)
+        if index is None or getattr(view, "_receptors", None) is not res.pattern.receptors:
+            index = map_index(res.pattern.receptors)
+        cache.update(result=res, key=key, value=pattern_colours(res, st.display, st.eye, limits, index))
+    return cache["value"]
+
+
+_colours_for.cache = {}
+
+
+def _set_marker_colours(markers, rgba) -> None:
+    """Replace only the colours of a Markers visual (face and edge), keeping its geometry: the
+    interleaved vertex buffer is re-sent as it is, without vispy re-validating positions, sizes and
+    colours.  Falls back to a full ``set_data`` when the visual's layout is not the expected one."""
+    data = getattr(markers, "_data", None)
+    vbo = getattr(markers, "_vbo", None)
+    if data is None:
+        return  # no receptors drawn
+    names = getattr(data.dtype, "names", None) or ()
+    if vbo is None or "a_bg_color" not in names or "a_fg_color" not in names or len(data) != len(rgba):
+        markers.set_data(data["a_position"], face_color=rgba, edge_color=rgba, size=data["a_size"],
+                         edge_width=0.0)
+        return
+    data["a_bg_color"] = rgba
+    data["a_fg_color"] = rgba
+    vbo.set_data(data)
+    markers.update()
 
 
 def _state_limits(state, result):
@@ -326,10 +465,12 @@ class HeadView(_Subscriber):
         from vispy import scene
         from vispy.visuals.transforms import MatrixTransform
 
+        from .canvas import scene_canvas
+
         self.state = state
         self._unsub = []
         self.draws = 0
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
+        self.canvas = scene_canvas(keys=None, size=size, show=False, bgcolor=_BG, parent=parent)
         self.canvas.events.draw.connect(self._count_draw)
         self.view = self.canvas.central_widget.add_view()
         self.view.camera = scene.TurntableCamera(fov=30.0, elevation=20.0, azimuth=-55.0,
@@ -347,12 +488,18 @@ class HeadView(_Subscriber):
         origin = np.array([0.0, 0.0, z0])
         cols = ((0.95, 0.35, 0.3, 1), (0.95, 0.8, 0.3, 1), (0.5, 0.9, 0.5, 1))
         label_pos = []
+        av, af, ac = [], [], []
         for vec, col, label in (((1, 0, 0), cols[0], "N"), ((0, 1, 0), cols[1], "E"),
                                 ((0, 0, 1), cols[2], "down")):
             v = D @ np.array(vec, float) * (9.0 if label != "down" else 6.0)
             verts, faces = _arrow_mesh(origin, v, 0.25, 1.6, 0.7)
-            scene.visuals.Mesh(verts, faces, color=col, shading=None, parent=root)
+            af.append(faces + sum(len(x) for x in av))
+            av.append(verts)
+            ac.append(np.tile(np.array(col, np.float32), (len(verts), 1)))
             label_pos.append(origin + v * 1.25)
+        # the three world axes in one mesh (one draw call), each arrow in its own colour
+        scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac), shading=None,
+                           parent=root)
         # one Text visual for all world labels (one glyph atlas, one draw call)
         world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
                                           color=np.array(cols), font_size=11, parent=root)
@@ -417,17 +564,20 @@ class HeadView(_Subscriber):
         if self.follow == "result":
             self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
-        _, rgba, _, shown = colour_values(res, self.state.display, self.state.eye,
-                                          _state_limits(self.state, res))
+        cols = _colours_for(self, res)
+        rgba = cols.rgba
         self.face_colors = rgba
-        if rec is not self._receptors or self._sizes is None or self._sizes[0] is not self.state.eye:
+        if rec is not self._receptors or self._sizes is None or self._sizes[0] != cols.eye:
             # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
+            shown = _shown(res, cols.eye)
             spacing = np.sqrt(np.mean(rec.solid_angle)) * np.mean([e.radius_mm for e in rec.eyes])
-            self._sizes = (self.state.eye, np.where(shown, 1.2 * spacing, 0.7 * spacing),
+            self._sizes = (cols.eye, np.where(shown, 1.2 * spacing, 0.7 * spacing),
                            np.asarray(rec.positions, np.float32))
             self._receptors = rec
-        self.markers.set_data(self._sizes[2], face_color=rgba, edge_color=rgba, edge_width=0.0,
-                              size=self._sizes[1])
+            self.markers.set_data(self._sizes[2], face_color=rgba, edge_color=rgba, edge_width=0.0,
+                                  size=self._sizes[1])
+        else:
+            _set_marker_colours(self.markers, rgba)
         self.canvas.update()
 
     def render(self) -> np.ndarray:
@@ -461,6 +611,8 @@ class MapView(_Subscriber):
         from vispy import scene
         from retina.figures.marks import MARKS
 
+        from .canvas import scene_canvas
+
         self.state = state
         self._unsub = []
         self.draws = 0
@@ -478,7 +630,7 @@ class MapView(_Subscriber):
         for lab in (self.title_label, self.caption_label):
             lab.setWordWrap(True)
             lab.setStyleSheet("background: rgb(31, 31, 36); color: rgb(230, 230, 230); padding: 2px;")
-        self.canvas = scene.SceneCanvas(keys=None, size=size, show=False, bgcolor=_BG, parent=self.widget)
+        self.canvas = scene_canvas(keys=None, size=size, show=False, bgcolor=_BG, parent=self.widget)
         self.canvas.events.draw.connect(self._count_draw)
         lay.addWidget(self.title_label)
         lay.addWidget(self.canvas.native, 1)
@@ -502,12 +654,14 @@ class MapView(_Subscriber):
         self.yaxis.link_view(self.view)
         self.xaxis.link_view(self.view)
         # an axis maps its ends through its own place in the grid, which is known only after the
-        # layout: map them again after every resize (vispy re-maps them only on camera changes)
+        # layout (done while drawing): map them again after the first draw at a new size (vispy
+        # re-maps them only on camera changes)
+        self._axes_stale = True
         self.canvas.events.resize.connect(self._relayout_axes)
+        self.canvas.events.draw.connect(self._after_draw, position="last")
         root = self.view.scene
         s = MAP_STEP_DEG
-        self.az = np.arange(-180.0 + s / 2, 180.0, s)
-        self.el = np.arange(-90.0 + s / 2, 90.0, s)
+        self.az, self.el = map_grid()
         self.rgba = np.tile(_NO_DATA, (self.el.size, self.az.size, 1)).astype(np.float32)
         self.image = scene.visuals.Image(self.rgba, interpolation="nearest", parent=root)
         self.image.transform = scene.STTransform(scale=(s, s), translate=(-180.0, -90.0))
@@ -566,39 +720,24 @@ class MapView(_Subscriber):
         self.draws += 1
 
     def _relayout_axes(self, event=None):
-        from PyQt6.QtCore import QTimer
+        self._axes_stale = True
 
-        def again():
-            for ax in (self.xaxis, self.yaxis):
-                if hasattr(ax, "_view_changed"):
-                    ax._view_changed()
-            self.canvas.update()
-
-        QTimer.singleShot(0, again)
+    def _after_draw(self, event=None):
+        """After the first draw at a new size (the grid has laid its widgets out during it): map
+        the axes' ends again and draw once more with the new ticks."""
+        if not self._axes_stale:
+            return
+        self._axes_stale = False
+        for ax in (self.xaxis, self.yaxis):
+            if hasattr(ax, "_view_changed"):
+                ax._view_changed()
+        self.canvas.update()
 
     def reset_range(self) -> None:
         """Show the whole visual field."""
         self.view.camera.set_range(x=MAP_RANGE[0], y=MAP_RANGE[1], margin=0.02)
 
     # ---------------------------------------------------------------- geometry
-    def _index_maps(self, rec):
-        """Receptor index of each pixel ``(3, E, A)`` for eye choices both/left/right (-1: none)."""
-        from retina.eye.geometry import optical_axis
-        from retina.eye.pattern import resample
-
-        fake = SimpleNamespace(modulation=np.arange(len(rec), dtype=float), receptors=rec)
-        per = resample(fake, (self.az, self.el))  # (2, E, A) receptor indices or NaN
-        A, E = np.meshgrid(np.radians(self.az), np.radians(self.el))
-        d = np.stack([np.cos(E) * np.cos(A), np.cos(E) * np.sin(A), -np.sin(E)], axis=-1)
-        cosang = np.full((2,) + A.shape, -np.inf)
-        for eye in rec.eyes:
-            cosang[eye.index] = d @ optical_axis(eye.azimuth_deg, eye.elevation_deg)
-        cosang = np.where(np.isnan(per), -np.inf, cosang)
-        best = np.argmax(cosang, axis=0)
-        both = np.take_along_axis(per, best[None], axis=0)[0]
-        maps = np.stack([both, per[0], per[1]])
-        return np.where(np.isnan(maps), -1, maps).astype(np.int64)
-
     def _edge_lines(self, rec):
         from retina.eye.geometry import optical_axis
 
@@ -629,8 +768,9 @@ class MapView(_Subscriber):
         h_world = np.stack([np.cos(t), np.sin(t), np.zeros_like(t)], axis=-1)
         az, el = _az_el(h_world @ R)  # rows: R^T h, the head-frame directions
         n = len(t)
-        conn = np.array([(i, (i + 1) % n) for i in range(n) if abs(az[(i + 1) % n] - az[i]) < 90],
-                        np.uint32)
+        i = np.arange(n)
+        keep = np.abs(az[(i + 1) % n] - az) < 90  # no segment across the +/-180 deg seam
+        conn = np.stack([i[keep], (i[keep] + 1) % n], axis=-1).astype(np.uint32)
         self.horizon.set_data(np.stack([az, el], axis=-1).astype(np.float32), connect=conn)
         idx = [0, 90, 180, 270]
         cardinal = np.stack([az[idx], el[idx]], axis=-1)
@@ -640,9 +780,15 @@ class MapView(_Subscriber):
         self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
                                "field_opposite": pos[1]}
         f, o = self.marks["field"], self.marks["field_opposite"]
-        self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
-                                  face_color=np.array([f.face, o.face]),
-                                  edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
+        data = getattr(self.field_marks, "_data", None)
+        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
+            data["a_position"][:, :2] = pos  # only the places change (_set_marker_colours)
+            self.field_marks._vbo.set_data(data)
+            self.field_marks.update()
+        else:
+            self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
+                                      face_color=np.array([f.face, o.face]),
+                                      edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
@@ -675,18 +821,17 @@ class MapView(_Subscriber):
             self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
         if rec is not self._receptors:
-            self._index = self._index_maps(rec)
+            self._index = map_index(rec)
             pts, conn = self._edge_lines(rec)
             self.edges.set_data(pts, connect=conn)
             self._receptors = rec
-        display, eye = self.state.display, self.state.eye
-        values, rgba, (lo, hi), _ = colour_values(res, display, eye, _state_limits(self.state, res))
-        idx = self._index[{"both": 0, "left": 1, "right": 2}[eye]]
-        img = np.where((idx >= 0)[..., None], rgba[np.maximum(idx, 0)], _NO_DATA)
-        self.rgba = img.astype(np.float32)
+        cols = _colours_for(self, res)
+        display, eye = cols.display, cols.eye
+        lo, hi = cols.limits
+        self.rgba = cols.image
         self.image.set_data(self.rgba)
         flat = bool(getattr(res, "flat", False))
-        locked = bool(self.state.lock_scale)
+        locked = cols.locked
         if display == "modulation":
             ends = [f"{100 * lo:+.3g} %", f"{100 * hi:+.3g} %"]
             name = "relative modulation (0 in the middle)"

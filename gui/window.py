@@ -346,7 +346,10 @@ class MainWindow(QMainWindow):
         """Send the current state to the worker (with the scan's looks while one plays)."""
         if self.state.scenario is None:
             return
-        req = self.state.request()
+        st = self.state
+        lock = st.locked_limits.get(st.display) if st.lock_scale else None
+        req = dataclasses.replace(st.request(), display=st.display, eye=st.eye,
+                                  colour_limits=None if lock is None else tuple(float(x) for x in lock))
         if self._scan is not None:
             sc = self._scan
             req = dataclasses.replace(req, scan_yaws=tuple(sc["yaws"][:sc["k"]]),

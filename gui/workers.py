@@ -46,6 +46,10 @@ Conventions (owned here)
   unknown light level per look when ``readout.nuisance = "gain"``, adds too:
   :mod:`retina.readout.scans` "pose_gain").  :attr:`PatternResult.scan_bound_deg` is compared with
   :attr:`PatternResult.look_bound_deg`, the same number of looks all at the scan centre.
+- Colours: a request that names ``display`` (and ``eye``, ``colour_limits``) gets its colours
+  made here, on the worker thread (:attr:`PatternResult.colours`: float32 arrays of the receptor
+  colours and the map image, :func:`retina_viewer.views.pattern_colours`), so the GUI thread does
+  no per-receptor work for a new pattern; it only uploads them.
 - Results reach the GUI thread through a Qt signal (:class:`QtPatternWorker`); Qt queues a signal
   emitted on the worker thread to the receiver's thread.  ``synchronous=True`` computes inside
   :meth:`~LatestOnlyWorker.submit` on the caller's thread (for tests and scripts).
@@ -116,6 +120,9 @@ class PatternRequest:
     scan_yaws: tuple = ()
     scan_centre_deg: float | None = None
     rf: tuple | None = None
+    display: str | None = None
+    eye: str = "both"
+    colour_limits: tuple | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -152,6 +159,9 @@ class PatternResult:
     scan_bound_deg, look_bound_deg : float
         With ``request.scan_yaws``: the bound after those looks, and after as many looks at the
         scan centre; NaN without a scan.
+    colours : retina_viewer.views.PatternColours or None
+        With ``request.display``: the receptor colours ``(N, 4)`` and the map image ``(E, A, 4)``
+        as float32, made on the worker thread so that the GUI thread only uploads them.
     """
 
     request: PatternRequest
@@ -169,6 +179,7 @@ class PatternResult:
     flat: bool = False
     scan_bound_deg: float = float("nan")
     look_bound_deg: float = float("nan")
+    colours: Any = None
 
 
 def _same_yield_key(sc, intensity_uT: float, rf=None):
@@ -199,6 +210,7 @@ class PatternComputer:
         self._curve_key = None
         self._curve = None
         self._nodes = None
+        self._map_index = None
         self.model_builds = 0  # diagnostics: how often a RetinaModel was built
         self.yield_builds = 0
 
@@ -210,6 +222,7 @@ class PatternComputer:
         from retina.eye.geometry import build_receptors
 
         self._receptors = build_receptors(build.build_eyes(sc))
+        self._map_index = None
         self._model = self._model_yf = self._model_kappa = None
         self._curve_key = self._curve = None
 
@@ -359,12 +372,27 @@ class PatternComputer:
             info_c = float(interpolated_information(Wc, lam_n, dlam_n, nuisance)[0])
             scan_bound = float(cramer_rao_deg(req.photons * info_scan))
             look_bound = float(cramer_rao_deg(req.photons * yaws.size * info_c))
+        colours = None
+        if req.display is not None:
+            colours = self.colours(pat, req.display, req.eye, req.colour_limits)
         return PatternResult(request=req, pattern=pat, depth=depth, bound_deg=bound,
                              rms_bound_deg=rms, yield_field_uT=F_yield, yield_note=note,
                              seconds=time.perf_counter() - t0, curve_bound_deg=crb, status=status,
                              ambiguous=bool(status != "none" and dprime < 1.0),
                              mirror_dprime=dprime, flat=flat, scan_bound_deg=scan_bound,
-                             look_bound_deg=look_bound)
+                             look_bound_deg=look_bound, colours=colours)
+
+    def colours(self, pattern, display: str, eye: str, limits=None):
+        """:func:`retina_viewer.views.pattern_colours` of a pattern, with the map's pixel index
+        kept per scenario (pure numpy: no GL, safe on the worker thread)."""
+        from types import SimpleNamespace
+
+        from .views import map_index, pattern_colours
+
+        if self._map_index is None or self._map_index[0] is not pattern.receptors:
+            self._map_index = (pattern.receptors, map_index(pattern.receptors))
+        return pattern_colours(SimpleNamespace(pattern=pattern), display, eye, limits,
+                               self._map_index[1])
 
     def needs_new_yield(self, a: PatternRequest, b: PatternRequest) -> bool:
         """True when request ``b`` needs another yield function than ``a``."""

@@ -11,7 +11,6 @@ from __future__ import annotations
 import importlib.util
 import math
 import os
-import shutil
 import subprocess
 import sys
 import threading
@@ -64,35 +63,21 @@ def _unavailable(reason):
 
 @pytest.fixture(scope="session")
 def display():
-    """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here."""
+    """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here
+    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``)."""
     if not HAVE_VIEWER:
         _unavailable("PyQt6 or vispy not installed (pip install 'retina-compass[viewer]')")
-    if sys.platform != "linux" or os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"):
-        yield os.environ.get("DISPLAY")
-        return
-    xvfb = shutil.which("Xvfb")
-    if xvfb is None:
-        _unavailable("no display: DISPLAY is unset and Xvfb is not installed (apt-get install xvfb)")
-    r, w = os.pipe()
-    proc = subprocess.Popen([xvfb, "-displayfd", str(w), "-screen", "0", "1600x1000x24", "-nolisten", "tcp"],
-                            pass_fds=(w,), stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    os.close(w)
-    num = b""
-    end = time.monotonic() + 20
-    while not num.endswith(b"\n") and time.monotonic() < end:
-        chunk = os.read(r, 16)
-        if not chunk:
-            break
-        num += chunk
-    os.close(r)
-    if not num.strip():
-        proc.kill()
-        _unavailable("Xvfb did not start")
-    os.environ["DISPLAY"] = ":" + num.decode().strip()
-    yield os.environ["DISPLAY"]
-    os.environ.pop("DISPLAY", None)
-    proc.terminate()
-    proc.wait(10)
+    from retina_viewer.display import XvfbError, virtual_display
+
+    cm = virtual_display()
+    try:
+        name = cm.__enter__()
+    except XvfbError as exc:
+        _unavailable(f"no display: DISPLAY is unset and {exc}")
+    try:
+        yield name
+    finally:
+        cm.__exit__(None, None, None)
 
 
 @pytest.fixture(scope="session")
@@ -827,6 +812,9 @@ def test_one_draw_per_heading_step(window, qapp):
     for yaw in (11.0, 12.0, 13.0):
         h0, m0 = window.head_view.draws, window.map_view.draws
         window.state.yaw_deg = yaw
+        # the two canvases paint in consecutive passes of the event loop (gui/canvas.py): wait
+        # for both, then a little longer for a second, unwanted draw
+        _process_until(qapp, lambda: window.head_view.draws > h0 and window.map_view.draws > m0, 5.0)
         _settle(qapp, 0.1)
         assert (window.head_view.draws - h0, window.map_view.draws - m0) == (1, 1)
     # the pose drawn is the pose of the colours: both come from the result's request
@@ -1392,3 +1380,96 @@ def dataclass_replace(obj, **kw):
     import dataclasses
 
     return dataclasses.replace(obj, **kw)
+
+# drawing at interactive speed: colours from the worker, canvases drawn off screen, one Xvfb helper
+
+
+def test_worker_colours_match_the_views_own_colouring(file_scenario):
+    # Cross-check (common practice, no source): the float32 colours the worker makes for a
+    # request equal the views' own colouring of the same pattern (colour_values), and each map
+    # pixel takes the colour of the receptor that map_index names for it.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import _NO_DATA, colour_values, map_index
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState()
+    st.load_scenario(file_scenario)
+    comp = PatternComputer()
+    for display, eye, limits in (("modulation", "both", None), ("yields", "left", None),
+                                 ("modulation", "right", (-0.01, 0.02))):
+        req = dataclass_replace(st.request(), yaw_deg=37.0, display=display, eye=eye,
+                                  colour_limits=limits)
+        res = comp.compute(req)
+        cols = res.colours
+        _, rgba, lims, _ = colour_values(res, display, eye, limits)
+        assert cols.rgba.dtype == np.float32 and cols.rgba.shape == (len(res.pattern.yields), 4)
+        np.testing.assert_array_equal(cols.rgba, rgba.astype(np.float32))
+        assert cols.limits == pytest.approx(lims, rel=0, abs=0)
+        idx = map_index(res.pattern.receptors)[{"both": 0, "left": 1, "right": 2}[eye]]
+        assert cols.image.dtype == np.float32 and cols.image.shape == idx.shape + (4,)
+        rng = np.random.default_rng(5)
+        for i, j in zip(rng.integers(0, idx.shape[0], 200), rng.integers(0, idx.shape[1], 200)):
+            want = rgba[idx[i, j]] if idx[i, j] >= 0 else _NO_DATA
+            np.testing.assert_allclose(cols.image[i, j], want, rtol=0, atol=1e-7)
+        assert cols.fits(display, eye, limits)
+        assert not cols.fits("yields" if display == "modulation" else "modulation", eye, limits)
+        assert not cols.fits(display, eye, (0.0, 1.0))
+
+
+def test_window_is_not_composited_by_opengl_and_shows_what_the_canvas_renders(window, qapp):
+    # Contract of gui/canvas.py (common practice, no source): no QOpenGLWidget in the window (so
+    # Qt never composites the whole window through OpenGL), and the pixels painted on screen are
+    # the scene as vispy renders it into its own framebuffer (two independent read-outs).
+    from PyQt6.QtOpenGLWidgets import QOpenGLWidget
+
+    window.show()
+    _settle(qapp, 0.5)
+    assert window.findChildren(QOpenGLWidget) == []
+    for view in (window.head_view, window.map_view):
+        w = view.canvas.native
+        shown = w.grab().toImage().convertToFormat(w.grab().toImage().Format.Format_RGBA8888)
+        h, wd = shown.height(), shown.width()
+        ptr = shown.constBits()
+        ptr.setsize(h * shown.bytesPerLine())
+        on_screen = np.frombuffer(ptr, np.uint8).reshape(h, shown.bytesPerLine())[:, :4 * wd]
+        on_screen = on_screen.reshape(h, wd, 4)[..., :3]
+        rendered = view.render()[..., :3]
+        assert rendered.shape == on_screen.shape
+        # the same scene drawn twice: equal up to a few anti-aliased text pixels
+        differs = np.abs(rendered.astype(int) - on_screen.astype(int)).max(axis=-1) > 8
+        assert differs.mean() < 0.01
+
+
+def test_a_new_pattern_replaces_only_the_receptor_colours(window, qapp):
+    # Contract of gui/views.py (common practice, no source): a heading step re-sends the
+    # receptors' colours, not their geometry; the colours shown are the result's.
+    window.show()
+    _settle(qapp, 0.3)
+    m = window.head_view.markers
+    pos0 = np.array(m._data["a_position"])
+    size0 = np.array(m._data["a_size"])
+    window.state.yaw_deg = 123.0
+    _settle(qapp, 0.2)
+    cols = window.state.result.colours
+    assert window.state.result.request.yaw_deg == 123.0 and cols is not None
+    np.testing.assert_array_equal(m._data["a_position"], pos0)
+    np.testing.assert_array_equal(m._data["a_size"], size0)
+    np.testing.assert_array_equal(m._data["a_bg_color"], cols.rgba)
+    np.testing.assert_array_equal(window.map_view.rgba, cols.image)
+
+
+def test_virtual_display_uses_the_display_there_is_and_says_why_it_cannot_start(monkeypatch):
+    # Contract of gui/display.py (common practice, no source).
+    from retina_viewer import display as disp
+
+    monkeypatch.setattr(disp.sys, "platform", "linux")
+    monkeypatch.setenv("DISPLAY", ":77")
+    with disp.virtual_display() as name:
+        assert name == ":77"
+    monkeypatch.delenv("DISPLAY")
+    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+    monkeypatch.setattr(disp.shutil, "which", lambda name: None)
+    with pytest.raises(disp.XvfbError, match="Xvfb is not installed"):
+        with disp.virtual_display():
+            pass
+    assert "DISPLAY" not in os.environ
