@@ -64,7 +64,9 @@ most ``d_r / 4`` by Cauchy-Schwarz, fact 2), which is measured on a dense check 
 spread onto a uniform grid of ``n_f = 4 N`` nodes with the "exponential of semicircle" kernel
 ``phi(z) = exp(beta (sqrt(1 - z^2) - 1))`` of width ``w`` nodes (``beta = 2.30 w``), the grid is
 Fourier transformed and divided by the kernel's transform ``psi`` (A. H. Barnett, J. Magland and
-L. af Klinteberg, SIAM J. Sci. Comput. 41, C479 (2019); parameters from memory).  The relative error
+L. af Klinteberg, SIAM J. Sci. Comput. 41, C479 (2019); parameters from memory), its value at each
+of the ``w`` nodes evaluated as a polynomial in the point's offset inside a grid cell (Horner's rule,
+:func:`_kernel_poly`; the same paper evaluates its kernel this way).  The relative error
 ``|sum_g phi(..) e^{i j x_g} / psi(j) - e^{i j x}|`` depends only on ``j / n_f`` and the point's offset
 inside a grid cell, so it is *measured* once per width on a dense set of both
 (:func:`nufft_error`), and ``w`` is the smallest width meeting the budget.  The error in each
@@ -153,26 +155,67 @@ def _psi_grid(n_t: int, width: int) -> np.ndarray:
 
 
 @functools.lru_cache(maxsize=32)
+def _kernel_poly(width: int) -> np.ndarray:
+    """Piecewise-polynomial form of the spread kernel, ``(width, width + 3)``, highest power first.
+
+    Row ``i`` holds the power-series coefficients, in ``x = 2 s - 1``, of the kernel's value at the
+    ``i``-th node, ``phi((s + i - w/2) / (w/2))``, where ``s`` in ``[0, 1)`` is the distance from
+    ``u - w/2`` up to the first node: the Chebyshev interpolant of degree ``w + 2`` (numpy's
+    ``chebfit`` at Chebyshev points, converted with ``cheb2poly``).  Evaluating it by Horner's rule
+    replaces ``w`` exponentials and square roots per point by multiply-adds; its own error (about
+    1e-2 of the NUFFT error, dominated by the kernel's square-root edge) is included in
+    :func:`nufft_error`, which measures the whole pass with this very kernel.
+    """
+    from numpy.polynomial import chebyshev
+
+    deg = width + 2
+    half = width / 2.0
+    beta = _beta(width)
+    x = np.cos(np.pi * (np.arange(deg + 1) + 0.5) / (deg + 1))
+    rows = []
+    for i in range(width):
+        c = chebyshev.chebfit(x, _phi(((x + 1.0) / 2.0 + i - half) / half, beta), deg)
+        pw = np.zeros(deg + 1)
+        full = chebyshev.cheb2poly(c)                       # may come back shorter (trimmed zeros)
+        pw[:full.size] = full
+        rows.append(pw[::-1])
+    out = np.ascontiguousarray(rows)
+    out.flags.writeable = False
+    return out
+
+
+def _kernel_nodes(width: int, s) -> np.ndarray:
+    """Kernel values at the ``width`` nodes for offsets ``s (n,)`` in ``[0, 1)``, shape (n, width),
+    from :func:`_kernel_poly` (Horner's rule, as the compiled pass evaluates them)."""
+    coef = _kernel_poly(width)
+    x = 2.0 * np.asarray(s, dtype=float)[:, None] - 1.0
+    v = np.zeros((x.shape[0], width))
+    for p in range(coef.shape[1]):
+        v = v * x + coef[:, p][None, :]
+    return v
+
+
+@functools.lru_cache(maxsize=32)
 def nufft_error(width: int) -> float:
     """Largest relative error of the spread-FFT-divide approximation of ``e^{i j x}``, measured.
 
     Over ``j / n_f`` in ``[0, 1/4]`` (513 values; this module uses ``n_f = 4 N``) and the offset of
     the point inside a grid cell (32 values), the quantity
-    ``|sum_g phi((g - u)/(w/2)) e^{2 pi i rho (g - u)} / psi(rho) - 1|``; it depends on nothing
-    else (derived in the module docstring).  A safety factor 2 covers the sampling (on a four
-    times denser sampling the largest value grew by less than 10 %).
+    ``|sum_g phi_w(g - u) e^{2 pi i rho (g - u)} / psi(rho) - 1|`` with the kernel values exactly as
+    the compiled pass forms them (:func:`_kernel_poly`); it depends on nothing else (derived in the
+    module docstring).  A safety factor 2 covers the sampling (on a four times denser sampling the
+    largest value grew by less than 10 %).
     """
     half = width / 2.0
-    beta = _beta(width)
     rho = np.linspace(0.0, 0.25, 513)
     psi = _psi(rho, width)
     worst = 0.0
-    for frac in np.arange(32) / 32.0:
-        u = frac
-        i0 = math.ceil(u - half)
-        g = i0 + np.arange(width + 1)
-        ph = _phi((g - u) / half, beta)
-        s = np.exp(2j * np.pi * rho[:, None] * (g - u)[None, :]) @ ph
+    u = np.arange(32) / 32.0
+    i0 = np.ceil(u - half)
+    ker = _kernel_nodes(width, i0 - u + half)                     # (32, width)
+    for a in range(u.size):
+        g = i0[a] + np.arange(width)
+        s = np.exp(2j * np.pi * rho[:, None] * (g - u[a])[None, :]) @ ker[a]
         worst = max(worst, float(np.max(np.abs(s / psi - 1.0))))
     return 2.0 * worst
 
@@ -224,18 +267,20 @@ def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
 # ------------------------------------------------------------------------------------------------
 
 @numba.njit(cache=True, nogil=True)
-def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, grid, mom, absw):
+def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, grid, mom, absw):
     """Spread the nine real weights of every pair ``m < n`` onto ``grid (nf, 9)``, accumulate the
     Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` (sym components even orders, antisymmetric
     components odd orders; the others vanish) and the absolute weight sums ``absw (9,)``.
 
     ``sp`` is ``S_+`` in the eigenbasis (so ``S_x = (S_+ + S_+^+)/2``, ``S_y = (S_+ - S_+^+)/2i``),
     ``sz`` holds ``S_z`` on and above the diagonal; every weight is multiplied by ``weight`` (a
-    block's multiplicity, :mod:`retina.spin.equivalence`)."""
+    block's multiplicity, :mod:`retina.spin.equivalence`); the kernel's node values come from the
+    polynomials ``kpoly`` of :func:`_kernel_poly`."""
     d = lam.shape[0]
     half = 0.5 * width
+    n_coef = kpoly.shape[1]
     scale = nf * h / (2.0 * np.pi)
-    ker = np.empty(width + 1)
+    ker = np.empty(width)
     tp = np.empty(n_mom)
     rr = np.empty(9)
     for m in range(d):
@@ -260,17 +305,14 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, g
             om = lam[n] - lam[m]
             u = om * scale
             i0 = int(np.ceil(u - half))
-            for i in range(width + 1):
-                z = (i0 + i - u) / half
-                t = 1.0 - z * z
-                if t > 0.0:
-                    ker[i] = np.exp(beta * (np.sqrt(t) - 1.0))
-                else:
-                    ker[i] = 0.0
-            for i in range(width + 1):
+            x = 2.0 * (i0 - u + half) - 1.0
+            for i in range(width):
+                v = kpoly[i, 0]
+                for q in range(1, n_coef):
+                    v = v * x + kpoly[i, q]
+                ker[i] = v
+            for i in range(width):
                 kv = ker[i]
-                if kv == 0.0:
-                    continue
                 g = (i0 + i) % nf
                 for c in range(9):
                     grid[g, c] += rr[c] * kv
@@ -308,7 +350,7 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
     absw = np.zeros(9)
     diag = np.zeros(6)
     for lam, sp, sz, mult in blocks:
-        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _beta(width), 1.0 / w_spread, n_mom,
+        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _kernel_poly(width), 1.0 / w_spread, n_mom,
                             grid, mom, absw)
         dp = sp.diagonal()
         dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
@@ -392,9 +434,17 @@ _BATCH = 8
 
 def _operators(system):
     """Per radical: its dimension and its total-spin blocks (:mod:`retina.spin.equivalence`)."""
+    import dataclasses
+
     from retina.spin.equivalence import radical_blocks
 
-    return [(r.dimension, radical_blocks(r)) for r in system.radicals]
+    # built sparse (Kronecker products of sparse factors are far cheaper than dense ones), then dense
+    out = []
+    for r in system.radicals:
+        blocks = [dataclasses.replace(b, s_e=np.stack([x.toarray() for x in b.s_e]), h_hf=b.h_hf.toarray())
+                  for b in radical_blocks(r, sparse=True)]
+        out.append((r.dimension, blocks))
+    return out
 
 
 def _batch(system, bvecs, k, tol):
