@@ -99,12 +99,12 @@ def _fast_is_cheaper(system) -> bool:
     """Deterministic per-direction comparison of the two separable methods' cost models."""
     from retina.spin.equivalence import reduced_dimensions
     from retina.spin.fast_separable import MAX_KH, THETA
-    from retina.spin.sampling import _spread_bound
+    from retina.spin._spectral import spread_bound
 
     dims = [r.dimension for r in system.radicals]
     pair = _CHOICE_PAIR * dims[0] ** 2 * dims[1] ** 2 / 2
     blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
-    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
     k = float(system.k_singlet)
     n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
     fast = sum(1.1 * _CHOICE_EIGH * d**3 + 3.3e-7 * d * d / 2 for d in blocks) + _CHOICE_SAMPLE * n_t
@@ -252,9 +252,9 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
         # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
         # + the time grid: ~8e-7 s per sample for spreading-grid set-up, FFTs and series of both
         # radicals (measured at 2e4-3e4 samples), n_t ~ 28 W / (0.9 pi k) (fast_separable.plan)
-        from retina.spin.sampling import _spread_bound
+        from retina.spin._spectral import spread_bound
 
-        w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+        w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
         k = float(system.k_singlet)
         n_t = 28.0 / (k * min(fast_separable.THETA * np.pi / max(w_tot, 1e-30), fast_separable.MAX_KH / k))
         per = (sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + 8e-7 * n_t

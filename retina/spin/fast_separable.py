@@ -99,6 +99,7 @@ import numpy as np
 import scipy.fft
 import scipy.linalg
 
+from retina.spin._spectral import aliasing_kernel, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
@@ -232,9 +233,8 @@ def _width_for(eps: float) -> int:
 # The aliasing kernel g and its tensor Chebyshev expansion
 # ------------------------------------------------------------------------------------------------
 
-def _g(omega, k, h):
-    z = k - 1j * np.asarray(omega, dtype=float)
-    return (k * ((h / 2.0) / np.tanh(z * h / 2.0) - 1.0 / z)).real
+#: The trapezoid rule's aliasing kernel (:func:`retina.spin._spectral.aliasing_kernel`).
+_g = aliasing_kernel
 
 
 def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
@@ -459,12 +459,10 @@ def working_bytes(system) -> int:
     # both radicals' eigenvalues and three spin components, plus the Hamiltonian, eigenvectors and
     # two products of the radical being decomposed (complex, 16 bytes), per worker
     from retina.spin.equivalence import reduced_dimensions
-    from retina.spin.sampling import _spread_bound
-
     d2 = [d * d for r in system.radicals for d, _ in reduced_dimensions(r)]
     # time grid: n_t ~ 28 W / (pi theta k) samples; the spread grid (4 n_t x 9 doubles), its
     # transpose and transform, and the two radicals' series take about 1100 bytes per sample
-    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
     k = float(system.k_singlet)
     n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
     return int(16 * (3 * sum(d2) + 4 * max(d2)) + 1100 * n_t + 2**20)

@@ -66,6 +66,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.special
 
+from retina.spin._spectral import aliasing_kernel, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
@@ -111,17 +112,6 @@ def _sparse_ops(block):
     return list(block.s_e), block.h_hf
 
 
-def _spread_bound(radical, field_uT: float) -> float:
-    """Estimated spectral spread of a radical, rad s^-1 (cost estimates only): twice the energy of
-    the stretched configuration, ``|omega| / 2 + sum_i ||A_i||_2 I_i / 2``."""
-    from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR
-
-    zee = MU_B_OVER_HBAR * np.linalg.norm(np.asarray(radical.g_matrix, dtype=float), 2) * field_uT * 1e-6 / 2
-    hf = sum(GAMMA_E * 1e-3 * np.linalg.norm(np.asarray(n.hyperfine_mT, dtype=float), 2) * 0.5 * n.spin
-             for n in radical.nuclei)
-    return 2.0 * (zee + hf)
-
-
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
                field_uT: float = 50.0) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
@@ -133,7 +123,7 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     from retina.spin.equivalence import reduced_dimensions
 
     k = float(system.k_singlet)
-    spreads = [_spread_bound(r, field_uT) for r in system.radicals]
+    spreads = [spread_bound(r, field_uT) for r in system.radicals]
     h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
     n_t = 17.0 / (k * h)
     secs = 0.0
@@ -256,12 +246,10 @@ def _radical_series(blocks, vectors, bvec, h, n_t):
 
 def _end_correction(k: float, h: float, theta_max: float, tol: float):
     """``gamma (J+1,)`` and the fit's largest error for the trapezoid end correction (docstring)."""
-    from retina.spin.fast_separable import _g
-
     theta = np.linspace(0.0, max(theta_max, 1e-9), 300)
     check = np.linspace(0.0, max(theta_max, 1e-9), 2401)
-    target = _g(theta / h, k, h)
-    want = _g(check / h, k, h)
+    target = aliasing_kernel(theta / h, k, h)
+    want = aliasing_kernel(check / h, k, h)
     err = np.inf
     gamma = np.zeros(1)
     for n_terms in (2, 4, 6, 8, 12, 16, 24, 32, 48, 64):
