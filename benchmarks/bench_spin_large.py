@@ -177,12 +177,13 @@ def bench_sampled(quick: bool) -> list[dict]:
     per_step = 0.0
     n_t_full = 0
     for rad in big.radicals:
-        blocks = [(b, sampling._sparse_ops(b)) for b in radical_blocks(rad, sparse=True)]
+        blocks = [(b, sampling._sparse_ops(b, rad)) for b in radical_blocks(rad, sparse=True)]
         vecs = sampling._random_vectors(blocks, 16, rng)
         b = _dirs(1)[0] * 50e-6
         spread = 0.0
-        for blk, _ in blocks:
-            lo, hi = sampling._gershgorin((blk.h_hf + sum((b @ blk.zeeman)[i] * blk.s_e[i] for i in range(3))).tocsr())
+        for blk, (_, _, weyl) in blocks:
+            w = b @ blk.zeeman
+            lo, hi = sampling._interval((blk.h_hf + sum(w[i] * blk.s_e[i] for i in range(3))).tocsr(), weyl, w)
             spread = max(spread, hi - lo)
         t0 = time.perf_counter()
         sampling._radical_series(blocks, vecs, b, 0.9 * np.pi / (2 * spread), n_steps)

@@ -6,8 +6,9 @@ need, so that neither imports the other:
 
 - :func:`aliasing_kernel` ``g(Omega)``, the trapezoid rule's exact error for one frequency
   (derived in :mod:`retina.spin.fast_separable`),
-- :func:`spread_bound`, an upper estimate of a radical's spectral spread for cost models and the
-  time grid of estimates (not for error bounds, which use the actual spectra).
+- :func:`spread_bound`, an estimate of a radical's spectral spread for cost models (not a bound),
+- :func:`hyperfine_interval`, rigorous bounds on a hyperfine Hamiltonian's spectrum (Weyl), which
+  the sampling method intersects with Gershgorin discs for its Chebyshev interval and time step.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ import numpy as np
 
 from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR
 
-__all__ = ["aliasing_kernel", "spread_bound"]
+__all__ = ["aliasing_kernel", "spread_bound", "hyperfine_interval"]
 
 
 def aliasing_kernel(omega, k: float, h: float):
@@ -61,3 +62,38 @@ def spread_bound(radical, field_uT: float) -> float:
     hf = sum(GAMMA_E * 1e-3 * np.linalg.norm(np.asarray(n.hyperfine_mT, dtype=float), 2) * 0.5 * n.spin
              for n in radical.nuclei)
     return 2.0 * (zee + hf)
+
+
+def hyperfine_interval(pseudo) -> tuple[float, float]:
+    """Rigorous bounds on the spectrum of a hyperfine Hamiltonian ``sum_g S . A_g . J_g``, rad s^-1.
+
+    Derived (Weyl's inequality for a sum of Hermitian operators): the largest eigenvalue of a sum
+    is at most the sum of the terms' largest eigenvalues, the smallest at least the sum of their
+    smallest; each term acts on one electron and one (pseudo-)nucleus only, so its eigenvalues are
+    those of a ``2 (2 J + 1)``-sized matrix, computed here.  Adding a Zeeman term ``w . S`` widens
+    the interval by ``|w| / 2`` on each side (its eigenvalues are ``+-|w| / 2``).
+
+    Parameters
+    ----------
+    pseudo : sequence of (float, array_like (3, 3))
+        ``(J, A in mT)`` per (pseudo-)nucleus.
+
+    Returns
+    -------
+    (float, float)
+        Lower and upper bound.
+    """
+    from retina.spin.operators import spin_matrices
+
+    se = spin_matrices(0.5)
+    lo = hi = 0.0
+    for j, a_mT in pseudo:
+        if j == 0:
+            continue
+        jm = spin_matrices(j)
+        a = np.asarray(a_mT, dtype=float) * 1e-3 * GAMMA_E
+        term = sum(a[p, q] * np.kron(se[p], jm[q]) for p in range(3) for q in range(3))
+        ev = np.linalg.eigvalsh(term)
+        lo += float(ev[0])
+        hi += float(ev[-1])
+    return lo, hi

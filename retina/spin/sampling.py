@@ -31,7 +31,9 @@ part, a harmonic coefficient) follows.
 Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by
 Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967
 (1984), from memory), accurate to 1e-13 in norm, with the spectral interval bounded by Gershgorin
-discs (no eigendecomposition; sparse matrix products only).  One expansion covers ``SUBSTEPS`` grid
+discs intersected with Weyl's bound (each hyperfine term's eigenvalues summed,
+:func:`retina.spin._spectral.hyperfine_interval`; no eigendecomposition of the radical, sparse matrix
+products only).  One expansion covers ``SUBSTEPS`` grid
 steps: the Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the
 intermediate grid times are their combinations with the coefficients
 ``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)`` (one matrix product).  Groups of equivalent nuclei are reduced to
@@ -39,7 +41,7 @@ their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled wit
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
 rule of :mod:`retina.spin.fast_separable` on ``t_j = j h`` with ``h <= 0.9 pi / W`` (``W`` the sum of
-the two radicals' Gershgorin spectral spreads, so every frequency of ``F`` has ``|Omega h| <=
+the two radicals' bounded spectral spreads (above), so every frequency of ``F`` has ``|Omega h| <=
 0.9 pi``), whose exact error is ``sum_l c_l g(Omega_l)`` (aliasing kernel ``g`` of that module).
 Without the spectrum, the correction is folded into the first few weights instead: fit
 ``g(theta / h) ~ sum_{j=0}^{J} gamma_j cos(j theta)`` on ``0 <= theta <= W h`` (least squares, ``J``
@@ -66,7 +68,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.special
 
-from retina.spin._spectral import aliasing_kernel, spread_bound
+from retina.spin._spectral import aliasing_kernel, hyperfine_interval, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
@@ -108,8 +110,10 @@ class SampledYields:
         return float(np.std(v, ddof=1) / math.sqrt(v.shape[0]))
 
 
-def _sparse_ops(block):
-    return list(block.s_e), block.h_hf
+def _sparse_ops(block, radical):
+    """``(s_e, h_hf, weyl)`` of a sparse block: its electron spin (three CSR matrices), hyperfine
+    Hamiltonian and the Weyl bounds of the latter's spectrum."""
+    return list(block.s_e), block.h_hf, _block_weyl(radical, block)
 
 
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
@@ -165,6 +169,23 @@ def _gershgorin(h):
     return float(np.min(diag - off)), float(np.max(diag + off))
 
 
+def _interval(hm, weyl, w):
+    """Bounds of the spectrum of ``hm = H_hf + w . S``: Gershgorin discs intersected with the Weyl
+    bounds ``weyl`` of ``H_hf`` (:func:`retina.spin._spectral.hyperfine_interval`) widened by
+    ``|w| / 2``; both are rigorous, so their intersection is."""
+    lo, hi = _gershgorin(hm)
+    half = 0.5 * float(np.linalg.norm(w))
+    return max(lo, weyl[0] - half), min(hi, weyl[1] + half)
+
+
+def _block_weyl(radical, block):
+    """Weyl bounds of one block's hyperfine Hamiltonian (its groups' total spins and tensors)."""
+    from retina.spin.equivalence import groups
+
+    grp = groups(radical)
+    return hyperfine_interval([(j, radical.nuclei[g[0]].hyperfine_mT) for j, g in zip(block.spins, grp)])
+
+
 def _cheb_coeffs(x: float, tol: float = 1e-13) -> np.ndarray:
     """Coefficients ``(2 - delta_n0) (-i)^n J_n(x)`` of ``exp(-i x y)`` on ``y in [-1, 1]``."""
     n_max = int(x + 10)
@@ -211,10 +232,10 @@ def _radical_series(blocks, vectors, bvec, h, n_t):
     antisymmetric combinations as in :mod:`retina.spin.fast_separable`)."""
     r = vectors[0].shape[1]
     out = np.zeros((r, n_t, 9))
-    for (blk, (s_e, h_hf)), z in zip(blocks, vectors):
+    for (blk, (s_e, h_hf, weyl)), z in zip(blocks, vectors):
         w = bvec @ blk.zeeman
         hm = (h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr()
-        lo, hi = _gershgorin(hm)
+        lo, hi = _interval(hm, weyl, w)
         c = 0.5 * (lo + hi)
         a = max(0.5 * (hi - lo), 1e-30)
         hs = ((hm - c * sp.identity(hm.shape[0], format="csr")) / a).tocsr()
@@ -319,7 +340,7 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
     rng = np.random.default_rng(seed)
     rads = []
     for rad in system.radicals:
-        blocks = [(b, _sparse_ops(b)) for b in radical_blocks(rad, sparse=True)]
+        blocks = [(b, _sparse_ops(b, rad)) for b in radical_blocks(rad, sparse=True)]
         rads.append((blocks, _random_vectors(blocks, int(n_states), rng)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     b_all = _upper(dirs) * (float(field_uT) * 1e-6)
@@ -327,13 +348,13 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
     draws = np.empty((int(n_states), n_dir))
     bias = 0.0
     for i, bvec in enumerate(b_all):
-        # spectral spread bound per radical (Gershgorin), then the time grid
+        # spectral spread bound per radical (Gershgorin and Weyl), then the time grid
         spreads = []
         for blocks, _ in rads:
             s = 0.0
-            for blk, (s_e, h_hf) in blocks:
+            for blk, (s_e, h_hf, weyl) in blocks:
                 w = bvec @ blk.zeeman
-                lo, hi = _gershgorin((h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr())
+                lo, hi = _interval((h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr(), weyl, w)
                 s = max(s, hi - lo)
             spreads.append(max(s, 1e-30 * k))
         w_tot = spreads[0] + spreads[1]
