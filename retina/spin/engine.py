@@ -406,8 +406,9 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         if info is not None:
             # the reported yield is an affine map of the singlet-start one with slope +-1 or +-1/3
             slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
-            info.update(approximation="stochastic trace estimation (sampled)",
-                        sampling_states=int(res.draws.shape[0]),
+            info.update(approximation=f"stochastic trace estimation, {res.estimator} estimator (sampled)",
+                        sampling_estimator=res.estimator,
+                        sampling_states=int(res.n_states),
                         sampling_standard_error_max=float(slope * np.max(res.standard_error)),
                         sampling_bias_bound=float(slope * res.bias_bound))
         return equal_rate_reported_yield(system, res.mean)

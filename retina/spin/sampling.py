@@ -22,11 +22,30 @@ independent ``z_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so
 
 is unbiased up to the time quadrature ``Q`` (below), and ``R`` independent draws give the mean and
 its standard error ``std(Phi_s) / sqrt(R)`` (sample standard deviation): the error bar comes from
-the method's own variance.  The *same* vectors serve every field direction, so the sampling
+the method's own variance.  This is the ``"paired"`` estimator.
+
+The default, ``"product"``, pairs every A draw with every B draw: since ``Q`` and the sum over
+``ab`` are bilinear in the two radicals' series, the mean over all ``R^2`` pairs is simply
+``Phi = 1/4 + (1/M) Q[sum_ab cbar^A_ab cbar^B_ab]`` with ``cbar`` the mean over draws, unbiased
+because the two radicals' vectors are independent.  It is a two-sample U-statistic with a
+bilinear kernel; its delete-one jackknife variance (J. N. Arvesen, Ann. Math. Stat. 40, 2076
+(1969), from memory) reduces, by the bilinearity, to ``var_i(g_i) / R + var_j(h_j) / R`` with
+``g_i = 1/4 + Q[c^A_i cbar^B] / M`` and ``h_j = 1/4 + Q[cbar^A c^B_j] / M`` (derived: deleting draw
+``i`` of A moves the estimate by ``-(g_i - gbar) / (R - 1)``).  Against the paired estimator it drops
+most of the term in which both radicals' sampling errors multiply (its share falls from ``1/R`` to
+``1/R^2``); the jackknife counts that term once more at order ``1/R^2`` (it errs on the side of a
+larger error bar).  The same propagated states serve both estimators; the gain is largest when
+each radical's trace estimate is noisy (small radicals), small otherwise.  The *same* vectors serve every field direction, so the sampling
 errors of different directions are strongly correlated and largely cancel in differences: the
 anisotropy is resolved far better than the mean.  :func:`sampled_yields` returns the per-draw
-values, from which the standard error of any linear functional (a difference, the anisotropic
-part, a harmonic coefficient) follows.
+terms (``parts``), from which the standard error of any linear functional (a difference, the
+anisotropic part, a harmonic coefficient) follows.
+
+The size of the error: a random-phase estimate of ``Tr X`` has variance ``sum_{i != j} |X_ij|^2``
+(derived: ``E[z_i^* z_j z_k z_l^*]`` vanishes unless the indices pair up), at most
+``||X||_F^2 <= d / 16`` for ``X = S_a S_b(t)``, while ``Tr X`` grows as ``d``; so each radical's
+relative error falls as ``1 / sqrt(d)`` (typicality), and a pair with radicals 32 times larger
+needs about 32 times fewer states for the same relative error.
 
 Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by
 Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967
@@ -82,6 +101,10 @@ _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
 _PAIRS = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
 
 
+#: Estimators of :func:`sampled_yields` (module docstring).
+ESTIMATORS = ("product", "paired")
+
+
 @dataclass(frozen=True)
 class SampledYields:
     """Singlet-start singlet yields estimated by sampling.
@@ -89,25 +112,37 @@ class SampledYields:
     Attributes
     ----------
     mean : ndarray (N,)
-        The estimate for each direction (mean over draws).
+        The estimate for each direction.
     standard_error : ndarray (N,)
-        ``std(draws) / sqrt(R)`` per direction.
-    draws : ndarray (R, N)
-        The per-draw estimates; the same random vectors serve every direction, so any linear
-        combination over directions has standard error ``std(draws @ c) / sqrt(R)``.
+        Its standard error per direction (``standard_error_of`` a unit weight).
+    parts : tuple of ndarray (R, N)
+        Independent per-draw terms whose sample variances over ``R`` add up to the estimate's
+        variance (``"paired"``: the per-draw estimates; ``"product"``: the jackknife terms of radical
+        A and of radical B).  The same random vectors serve every direction, so any linear
+        combination ``c`` over directions has standard error ``sqrt(sum_k var(parts_k @ c) / R)``.
     bias_bound : float
         Bound on the deterministic error (quadrature and truncation) of every value.
+    estimator : str
+        ``"product"`` or ``"paired"`` (module docstring).
+    n_states : int
+        Random vectors per radical.
     """
 
     mean: np.ndarray
     standard_error: np.ndarray
-    draws: np.ndarray
+    parts: tuple
     bias_bound: float
+    estimator: str = "product"
+    n_states: int = 0
 
     def standard_error_of(self, weights) -> float:
         """Standard error of ``sum_i weights_i Phi_i`` (for example a difference of directions)."""
-        v = self.draws @ np.asarray(weights, dtype=float)
-        return float(np.std(v, ddof=1) / math.sqrt(v.shape[0]))
+        w = np.asarray(weights, dtype=float)
+        var = 0.0
+        for part in self.parts:
+            v = part @ w
+            var += float(np.var(v, ddof=1)) / v.shape[0]
+        return math.sqrt(var)
 
 
 def _sparse_ops(block, radical):
@@ -295,7 +330,7 @@ def _upper(dirs: np.ndarray) -> np.ndarray:
 
 
 def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
-                   bias_tol: float = DEFAULT_BIAS_TOL,
+                   bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
                    progress: Callable[[int, int], None] | None = None) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
@@ -334,6 +369,9 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
     dirs = _check_inputs(field_uT, directions)
     if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
         raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
+    if estimator not in ESTIMATORS:
+        raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
+                         key="estimator")
     if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
     k = float(system.k_singlet)
@@ -345,7 +383,9 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     b_all = _upper(dirs) * (float(field_uT) * 1e-6)
     n_dir = dirs.shape[0]
-    draws = np.empty((int(n_states), n_dir))
+    r = int(n_states)
+    parts = [np.empty((r, n_dir)) for _ in range(1 if estimator == "paired" else 2)]
+    mean = np.empty(n_dir)
     bias = 0.0
     for i, bvec in enumerate(b_all):
         # spectral spread bound per radical (Gershgorin and Weyl), then the time grid
@@ -364,16 +404,25 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
         n_t = max(n_t, gamma.shape[0])
         series = [_radical_series(blocks, vecs, bvec, h, n_t) for blocks, vecs in rads]
-        f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
         decay = np.exp(-kh * np.arange(n_t))
-        q = kh * (f @ decay - 0.5 * f[:, 0]) - f[:, :gamma.shape[0]] @ gamma
-        draws[:, i] = 0.25 + q / m_tot
+
+        def quad(f):                 # the end-corrected trapezoid rule on the last axis (linear)
+            return kh * (f @ decay - 0.5 * f[..., 0]) - f[..., :gamma.shape[0]] @ gamma
+
+        if estimator == "paired":
+            f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
+            parts[0][:, i] = 0.25 + quad(f) / m_tot
+            mean[i] = parts[0][:, i].mean()
+        else:
+            abar, bbar = series[0].mean(axis=0), series[1].mean(axis=0)
+            mean[i] = 0.25 + quad(np.einsum("jc,jc,c->j", abar, bbar, _MULT)) / m_tot
+            parts[0][:, i] = 0.25 + quad(np.einsum("rjc,jc,c->rj", series[0], bbar, _MULT)) / m_tot
+            parts[1][:, i] = 0.25 + quad(np.einsum("jc,rjc,c->rj", abar, series[1], _MULT)) / m_tot
         bias = max(bias, 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh))
         if progress is not None:
             progress(i + 1, n_dir)
-    mean = draws.mean(axis=0)
-    se = draws.std(axis=0, ddof=1) / math.sqrt(draws.shape[0])
-    return SampledYields(mean, se, draws, bias)
+    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
+    return SampledYields(mean, se, tuple(parts), bias, estimator, r)
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
