@@ -39,8 +39,10 @@ def default_cache_dir() -> Path:
     return Path.home() / ".cache" / "retina-compass"
 
 
-def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int) -> str:
-    """sha256 hex digest identifying one :meth:`YieldFunction.from_system` result."""
+def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int,
+              accuracy: float | None = None) -> str:
+    """sha256 hex digest identifying one :meth:`YieldFunction.from_system` result (``accuracy``,
+    the sampled method's requested standard error, enters only when given)."""
     import retina
     from retina.spin.io import dump_system
 
@@ -52,6 +54,8 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         "check_points": int(check_points),
         "retina": retina.__version__,
     }
+    if accuracy is not None:
+        record["accuracy"] = repr(float(accuracy))
     return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
 
 

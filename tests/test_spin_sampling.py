@@ -144,3 +144,49 @@ def test_spectral_interval_contains_the_spectrum_and_beats_gershgorin():
         g_lo, g_hi = sampling._gershgorin(hm)
         tighter += (hi - lo) < 0.95 * (g_hi - g_lo)
     assert tighter >= 1
+
+
+def _big(k):
+    # invented 20-nucleus pair (two nitrogens and eight protons per radical, isotropic-looking
+    # diagonal tensors), matching no real molecule
+    from retina.spin.system import Nucleus, Radical, SpinSystem
+
+    def radical(label):
+        nuc = [Nucleus(f"N{i}", 1.0, np.diag([0.5, 0.45, 0.55]) * (1 + 0.1 * i)) for i in range(2)]
+        nuc += [Nucleus(f"H{i}", 0.5, np.diag([0.1, 0.12, 0.14]) + 0.03 * i * np.eye(3)) for i in range(8)]
+        return Radical(label, nuclei=tuple(nuc))
+
+    return SpinSystem("invented 20-nucleus pair", (radical("A"), radical("B")), k_singlet=k, k_triplet=k)
+
+
+def test_auto_chooses_sampling_only_with_an_accuracy_and_when_it_is_cheaper():
+    # Common practice, no source: "auto" stays exact unless the caller accepts an error bar; with
+    # one, the cheaper of the modelled times wins (fixed constants, so the choice is reproducible).
+    fast_decay, slow_decay = _big(1e8), _big(1e6)
+    assert engine.choose_method(fast_decay) == "fast-separable"
+    assert sampling.cost_model(fast_decay, 1)[0] < engine._fixed_separable_seconds(fast_decay)
+    assert engine.choose_method(fast_decay, accuracy=1e-3) == "sampled"
+    # a long lifetime makes the propagation longer than the eigendecompositions
+    assert engine.choose_method(slow_decay, accuracy=1e-3) == "fast-separable"
+    assert engine.choose_method(_small(), accuracy=1e-3) in ("separable", "fast-separable")
+    with pytest.raises(InputError, match="accuracy"):
+        engine.choose_method(fast_decay, accuracy=0.0)
+
+
+def test_an_accuracy_sizes_the_random_states_by_a_pilot():
+    # Derived: the variance of the estimate falls as 1/R (independent draws), so asking for half
+    # the standard error of a 4-state pilot needs about 16-20 states; the final standard error must
+    # then lie near the request (within 1.6x: the pilot's own standard error is uncertain by about
+    # 1/sqrt(2 (R - 1)) of itself, and the directions differ).
+    system = _small(k=3e7)
+    dirs = _unit(np.random.default_rng(12), 6)
+    pilot = sampling.sampled_yields(system, 50.0, dirs, n_states=sampling.PILOT_STATES, seed=1)
+    want = 0.5 * float(np.max(pilot.standard_error))
+    info: dict = {}
+    got = engine.compute_yields(system, 50.0, dirs, method="sampled", accuracy=want, info=info)
+    assert got.shape == (6,)
+    assert 12 <= info["sampling_states"] <= 30
+    assert info["sampling_standard_error_max"] < 1.6 * want
+    assert info["sampling_accuracy_requested"] == want
+    assert "product estimator" in info["approximation"]
+    assert info["sampling_anisotropy_relative_error"] > 0

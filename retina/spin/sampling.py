@@ -91,7 +91,8 @@ from retina.spin._spectral import aliasing_kernel, hyperfine_interval, spread_bo
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "DEFAULT_STATES", "DEFAULT_BIAS_TOL"]
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "states_for", "DEFAULT_STATES",
+           "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES"]
 
 #: Default number of random vectors per radical (independent draws).
 DEFAULT_STATES = 16
@@ -423,6 +424,49 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
             progress(i + 1, n_dir)
     se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
     return SampledYields(mean, se, tuple(parts), bias, estimator, r)
+
+
+#: Most random states :func:`states_for` asks for.
+MAX_STATES = 1024
+#: States and directions of the pilot run of :func:`states_for`.
+PILOT_STATES, PILOT_DIRECTIONS = 4, 6
+
+
+def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) -> tuple[int, float]:
+    """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
+
+    The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
+    spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
+    independent of it: the choice of ``R`` then does not bias the final estimate or its error
+    bar).  Since the variance falls as ``1 / R``, ``R = ceil(1.2 PILOT_STATES (se / accuracy)^2)``
+    with ``se`` the pilot's largest standard error, between ``PILOT_STATES`` and ``MAX_STATES``.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+    field_uT : float
+    directions : array_like (N, 3)
+    accuracy : float
+        Wanted standard error per (singlet-start singlet) yield, > 0.
+    seed : int
+        The final run's seed.
+
+    Returns
+    -------
+    (int, float)
+        The number of states and the pilot's largest standard error.
+    """
+    from retina.errors import InputError
+
+    if not (np.isfinite(accuracy) and 0 < accuracy < 1):
+        raise InputError(f"expected an accuracy (standard error per yield) between 0 and 1, got {accuracy!r}",
+                         key="accuracy")
+    dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
+    pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
+    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1)
+    se = float(np.max(pilot.standard_error))
+    r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
+    return max(PILOT_STATES, min(MAX_STATES, r)), se
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
