@@ -447,9 +447,20 @@ def _operators(system):
     return out
 
 
+#: The last system's operators in this process (a worker reuses them across its batches).
+_LAST_OPERATORS: dict = {}
+
+
 def _batch(system, bvecs, k, tol):
     """Yields and bounds for a batch of field vectors (one worker task)."""
-    rads = _operators(system)
+    import pickle
+
+    key = pickle.dumps(system)
+    rads = _LAST_OPERATORS.get(key)
+    if rads is None:
+        rads = _operators(system)
+        _LAST_OPERATORS.clear()
+        _LAST_OPERATORS[key] = rads
     res = [_one_direction(rads, bv, k, tol) for bv in bvecs]
     return np.array([r[0] for r in res]), np.array([r[1] for r in res])
 
