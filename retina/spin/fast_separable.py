@@ -330,7 +330,16 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, 
 
 
 def _eigen_spin(h_full, n_nuc):
-    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis."""
+    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis.
+
+    The ``evr`` driver: at ``d = 576`` it took 0.28-0.34 s against 0.34-0.46 s for ``evd`` (best of
+    six alternating calls, shared machine).  The matrix stays complex: a real symmetric form needs
+    an antiunitary symmetry, and a product of complex conjugation with spin rotations of the
+    electron and each nucleus leaves the Hamiltonian invariant only when every ``A_i A_i^T`` shares
+    an eigenvector perpendicular to the field (derived from the conditions ``M_xy = M_yx = M_yz =
+    M_zy = 0`` on each rotated tensor ``M = R_e^T A_i R_i`` and ``b_y = 0``), which generic
+    anisotropic tensors do not.
+    """
     lam, v = scipy.linalg.eigh(h_full, driver="evr", overwrite_a=True, check_finite=False)
     up = np.asfortranarray(v[:n_nuc])
     dn = np.asfortranarray(v[n_nuc:])
