@@ -452,7 +452,8 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         n_states, pilot_se = sampling.DEFAULT_STATES, None
         if accuracy is not None:
             n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope)
-        res = sampling.sampled_yields(system, field_uT, dirs, n_states=n_states, progress=progress)
+        res = sampling.sampled_yields(system, field_uT, dirs, n_states=n_states, progress=progress,
+                                      n_jobs=_jobs())
         if info is not None:
             hi, lo = int(np.argmax(res.mean)), int(np.argmin(res.mean))
             w = np.zeros(res.mean.shape[0])

@@ -330,51 +330,26 @@ def _upper(dirs: np.ndarray) -> np.ndarray:
     return np.where(flip[:, None], -dirs, dirs)
 
 
-def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
-                   bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
-                   progress: Callable[[int, int], None] | None = None) -> SampledYields:
-    """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
+#: Directions per worker task when ``n_jobs > 1``.
+_BATCH = 4
 
-    Parameters
-    ----------
-    system : retina.spin.system.SpinSystem
-        Separable scope (:func:`retina.spin.separable.check_scope`).
-    field_uT : float
-        Field strength in microtesla.
-    directions : array_like (N, 3)
-        Field directions in the molecular frame.
-    n_states : int
-        Random vectors per radical (independent draws, >= 2).
-    seed : int
-        Seed of the random vectors (the same vectors serve every direction).
-    bias_tol : float
-        Bound on the deterministic error (quadrature and truncation).
-    progress : callable(done, total), optional
 
-    Returns
-    -------
-    SampledYields
-
-    Notes
-    -----
-    The exact yield is even in the field, ``Phi(b) = Phi(-b)`` (derived in
-    :meth:`retina.yieldfn.YieldFunction.from_system`), but a single random vector's estimate is not
-    (time reversal maps it to the estimate for ``-b`` at negative times).  Each direction is
-    therefore replaced by its upper-hemisphere representative before sampling: the estimate is
-    unbiased for both ``b`` and ``-b`` and even by construction.
-    """
+def _check_jobs(n_jobs) -> int:
     from retina.errors import InputError
+
+    if n_jobs is None:
+        return 1
+    if isinstance(n_jobs, bool) or not isinstance(n_jobs, (int, np.integer)) or n_jobs < 1:
+        raise InputError(f"expected a positive whole number of worker processes, got {n_jobs!r}",
+                         key="n_jobs")
+    return int(n_jobs)
+
+
+def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress):
+    """Estimates, per-draw terms and bias bound for field vectors ``b_all (N, 3)`` (tesla, already
+    on the upper hemisphere); the random vectors come from ``seed`` alone."""
     from retina.spin.equivalence import radical_blocks
 
-    check_scope(system)
-    dirs = _check_inputs(field_uT, directions)
-    if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
-        raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
-    if estimator not in ESTIMATORS:
-        raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
-                         key="estimator")
-    if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
-        raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
     rads = []
@@ -382,8 +357,7 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         blocks = [(b, _sparse_ops(b, rad)) for b in radical_blocks(rad, sparse=True)]
         rads.append((blocks, _random_vectors(blocks, int(n_states), rng)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
-    b_all = _upper(dirs) * (float(field_uT) * 1e-6)
-    n_dir = dirs.shape[0]
+    n_dir = b_all.shape[0]
     r = int(n_states)
     parts = [np.empty((r, n_dir)) for _ in range(1 if estimator == "paired" else 2)]
     mean = np.empty(n_dir)
@@ -422,6 +396,84 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         bias = max(bias, 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh))
         if progress is not None:
             progress(i + 1, n_dir)
+    return mean, parts, bias
+
+
+def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
+                   bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
+                   progress: Callable[[int, int], None] | None = None,
+                   n_jobs: int | None = None) -> SampledYields:
+    """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        Separable scope (:func:`retina.spin.separable.check_scope`).
+    field_uT : float
+        Field strength in microtesla.
+    directions : array_like (N, 3)
+        Field directions in the molecular frame.
+    n_states : int
+        Random vectors per radical (independent draws, >= 2).
+    seed : int
+        Seed of the random vectors (the same vectors serve every direction).
+    bias_tol : float
+        Bound on the deterministic error (quadrature and truncation).
+    progress : callable(done, total), optional
+    n_jobs : int, optional
+        Worker processes over directions (joblib, loky backend; default 1); each draws the same
+        random vectors, so the result does not depend on it beyond rounding.
+
+    Returns
+    -------
+    SampledYields
+
+    Notes
+    -----
+    The exact yield is even in the field, ``Phi(b) = Phi(-b)`` (derived in
+    :meth:`retina.yieldfn.YieldFunction.from_system`), but a single random vector's estimate is not
+    (time reversal maps it to the estimate for ``-b`` at negative times).  Each direction is
+    therefore replaced by its upper-hemisphere representative before sampling: the estimate is
+    unbiased for both ``b`` and ``-b`` and even by construction.
+    """
+    from retina.errors import InputError
+
+    check_scope(system)
+    dirs = _check_inputs(field_uT, directions)
+    if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
+        raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
+    if estimator not in ESTIMATORS:
+        raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
+                         key="estimator")
+    if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
+        raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
+    b_all = _upper(dirs) * (float(field_uT) * 1e-6)
+    n_dir = dirs.shape[0]
+    r = int(n_states)
+    n_jobs = _check_jobs(n_jobs)
+    if n_jobs == 1 or n_dir < 2:
+        mean, parts, bias = _sample_directions(system, b_all, r, seed, bias_tol, estimator, progress)
+    else:
+        # worker processes over directions; every worker draws the same random vectors from the
+        # seed, so the errors stay shared across directions exactly as in one process
+        from joblib import Parallel, delayed
+
+        step = max(1, min(_BATCH, -(-n_dir // n_jobs)))
+        starts = list(range(0, n_dir, step))
+        results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
+            delayed(_sample_directions)(system, b_all[i:i + step], r, seed, bias_tol, estimator, None)
+            for i in starts)
+        mean = np.empty(n_dir)
+        parts = [np.empty((r, n_dir)) for _ in range(1 if estimator == "paired" else 2)]
+        bias = 0.0
+        for i, (m_i, p_i, b_i) in zip(starts, results):
+            stop = i + m_i.shape[0]
+            mean[i:stop] = m_i
+            for whole, piece in zip(parts, p_i):
+                whole[:, i:stop] = piece
+            bias = max(bias, b_i)
+            if progress is not None:
+                progress(stop, n_dir)
     se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
     return SampledYields(mean, se, tuple(parts), bias, estimator, r)
 
