@@ -13,7 +13,8 @@ Methods (all exact for their scope):
   with random vectors propagated in time: **an approximation with error bars**.  ``"auto"`` chooses
   it only when an ``accuracy`` (a standard error per yield the caller accepts) is given and its
   modelled time is below that of every exact method; it then runs with as many random states as
-  a pilot run says the accuracy needs (:func:`retina.spin.sampling.states_for`).  An exact
+  a pilot run says the accuracy needs (:func:`retina.spin.sampling.states_for`), in
+  ``RETINA_JOBS`` worker processes over directions.  An exact
   estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
