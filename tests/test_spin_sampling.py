@@ -188,6 +188,7 @@ def test_an_accuracy_sizes_the_random_states_by_a_pilot():
     assert 12 <= info["sampling_states"] <= 30
     assert info["sampling_standard_error_max"] < 1.6 * want
     assert info["sampling_accuracy_requested"] == want
+    assert info["sampling_accuracy_met"] == (info["sampling_standard_error_max"] <= want)
     assert "product estimator" in info["approximation"]
     assert info["sampling_anisotropy_relative_error"] > 0
 

@@ -129,7 +129,8 @@ def summary(yf, output, wall_seconds: float) -> str:
         if p.get("sampling_anisotropy_relative_error") is not None:
             lines.insert(-1, f"  standard error of the difference between the extreme computed directions: "
                              f"{100 * p['sampling_anisotropy_relative_error']:.2g} % of it"
-                             + (f" (requested standard error per yield {p['sampling_accuracy_requested']:.2g})"
+                             + (f" (requested standard error per yield {p['sampling_accuracy_requested']:.2g}: "
+                                f"{'met' if p.get('sampling_accuracy_met') else 'NOT met'})"
                                 if p.get("sampling_accuracy_requested") is not None else ""))
     return "\n".join(lines)
 

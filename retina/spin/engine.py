@@ -461,8 +461,14 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
             w[hi], w[lo] = 1.0, -1.0
             spread = float(res.mean[hi] - res.mean[lo])
             if accuracy is not None:
+                met = bool(slope * np.max(res.standard_error) <= accuracy)
                 info.update(sampling_accuracy_requested=float(accuracy),
-                            sampling_pilot_standard_error=float(slope * pilot_se))
+                            sampling_pilot_standard_error=float(slope * pilot_se),
+                            sampling_accuracy_met=met)
+                if not met:
+                    _log.warning("%r: the sampled standard error %.2g exceeds the requested %.2g (%d random "
+                                 "states%s)", system.name, slope * np.max(res.standard_error), accuracy,
+                                 n_states, ", the most allowed" if n_states >= sampling.MAX_STATES else "")
             if spread > 0 and res.mean.shape[0] > 1:
                 # standard error of the difference between the extreme computed directions, over it
                 info.update(sampling_anisotropy_relative_error=res.standard_error_of(w) / spread)
