@@ -40,7 +40,7 @@ from _rows import print_rows  # noqa: E402
 
 from retina import sphere  # noqa: E402
 from retina.eye.ordering import Cone, ConeNoTwist, Planar  # noqa: E402
-from retina.eye import ordering as om  # noqa: E402
+from retina.eye import order_rules as om  # noqa: E402
 
 L = 16
 MEAN = Rotation.from_euler("ZYZ", [25.0, 40.0, -70.0], degrees=True)
@@ -73,7 +73,7 @@ def best_of(fn, repeat=3):
 
 
 def clear_caches():
-    for f in (om.swing_diagonal, om.vmf_cos_rule, om.girdle_cos_rule, om._plane_rows, om._cone_rule):
+    for f in (om.swing_diagonal, om.vmf_cos_rule, om.girdle_cos_rule, om.plane_rows, om.cone_rule):
         f.cache_clear()
 
 

@@ -191,10 +191,10 @@ def main(argv=None) -> int:
 
 def _cone_cache_clear():
     """Time the ensemble path cold: clear the cached cone quadrature rules."""
-    from retina.eye import ordering
+    from retina.eye import order_rules
 
-    ordering._cone_rule.cache_clear()
-    ordering.vmf_cos_rule.cache_clear()
+    order_rules.cone_rule.cache_clear()
+    order_rules.vmf_cos_rule.cache_clear()
 
 
 if __name__ == "__main__":

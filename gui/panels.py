@@ -6,12 +6,16 @@ Conventions (owned here)
   state's event for its field; while it shows a value that came from the state it blocks its own
   signals, so a change never echoes back (no feedback loop).
 - The controls are table-driven: :data:`CONTROLS` describes every numeric control (label, unit,
-  slider span, decimals, step, log scale, tooltip) and :data:`GROUPS` places them in boxes, so a new
-  control is one row in each table (plus its state field).  Every control has a tooltip that gives
+  slider span, decimals, step, log scale, tooltip), :data:`CHOICES` every choice control (label,
+  choices with their shown texts, tooltip) and :data:`GROUPS` places them in boxes, so a new
+  control is one row in two tables (plus its state field).  Every control has a tooltip that gives
   its unit.
+- The RF box is disabled, with a tooltip saying why, when the scenario's yield function does not
+  come from a spin system (:func:`retina_viewer.state.rf_unavailable`).
 - Numeric controls pair a slider (coarse, drag) with a spin box (exact, typed); log-scaled fields
-  (photons, kappa) move the slider in equal steps of ``log10``; the far left of the kappa slider
-  is 0 (no order: isotropic for the "cone" and "plane" models).  The heading spin box takes any
+  (photons, kappa, RF) move the slider in equal steps of ``log10``; the far left of a slider with
+  ``zero_left`` is 0 (kappa: no order, isotropic for the "cone" and "plane" models; RF amplitude:
+  no field).  The heading spin box takes any
   angle (360 is 0, -10 is 350: the state wraps it) and its slider ends at 359 deg.
 - Arrow keys belong to the focused control: the window's head-turning keys act only when a view
   has the focus (:mod:`retina_viewer.window`).
@@ -33,7 +37,7 @@ from PyQt6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, 
 
 from retina.errors import InputError
 
-__all__ = ["Control", "CONTROLS", "GROUPS", "BoundSlider", "ChoiceBox", "CheckBox", "ControlPanel",
+__all__ = ["Control", "CONTROLS", "CHOICES", "GROUPS", "BoundSlider", "ChoiceBox", "CheckBox", "ControlPanel",
            "ReadoutPanel", "BoundPlot"]
 
 _TICKS = 1000
@@ -42,7 +46,7 @@ _TICKS = 1000
 @dataclass(frozen=True)
 class Control:
     """One numeric control: state field, label, spin-box suffix (the unit), slider span, decimals,
-    spin step, log-scaled slider, tooltip."""
+    spin step, log-scaled slider, tooltip, and whether the far left of the slider is 0."""
 
     name: str
     label: str
@@ -52,6 +56,7 @@ class Control:
     step: float = 1.0
     log: bool = False
     tip: str = ""
+    zero_left: bool = False
 
 
 #: Every numeric control (module docstring).
@@ -78,7 +83,7 @@ CONTROLS = (
             "Concentration kappa of the ordering model (cone: von Mises-Fisher concentration of the "
             "molecular axis about the receptor axis; plane: Watson girdle concentration; "
             "dimensionless, larger is better ordered); log slider, far left is 0 (no order). "
-            "'scenario' returns to the scenario's own kappa."),
+            "'scenario' returns to the scenario's own kappa.", True),
     Control("scan_amplitude_deg", "scan amplitude (+/-)", " deg", (0.0, 180.0), 0, 5.0, False,
             "Half-width of the head scan, degrees: the scan sweeps heading +/- amplitude about the "
             "heading at which it starts."),
@@ -89,7 +94,30 @@ CONTROLS = (
     Control("scan_speed_deg_s", "scan playback speed", " deg/s", (5.0, 720.0), 0, 5.0, True,
             "How fast the head turns while the scan plays, degrees per second (playback only; "
             "the bound depends on the looks, not on the speed)."),
+    Control("rf_MHz", "RF frequency", " MHz", (0.01, 100.0), 3, 0.1, True,
+            "Frequency of the oscillating (RF) field, MHz; log slider. A free electron's Larmor "
+            "frequency is 28.0 MHz per mT of static field (1.4 MHz at 50 uT)."),
+    Control("rf_nT", "RF amplitude", " nT", (1.0, 1e5), 1, 10.0, True,
+            "Amplitude (peak) of the linearly polarised RF field, nanotesla; log slider, far left "
+            "is 0 (no field).", True),
 )
+
+_ORDERING_TIP = ("scenario: the scenario's own model; aligned; axial: free rotation about the receptor "
+                 "axis; cone: a vMF cone with the twist as the scenario says (tied: isotropic at kappa 0); "
+                 "cone_no_twist: the cone without twist (not isotropic at kappa 0); plane: a molecular "
+                 "direction in the membrane plane (Watson girdle kappa); isotropic: no order")
+
+#: Choice controls: field -> (label, ((state value, text shown), ...), tooltip).
+CHOICES = {
+    "ordering": ("ordering model", None, _ORDERING_TIP),
+    "rf": ("RF field", (("off", "off"), ("tone", "single frequency")),
+           "An oscillating (RF) magnetic field at the bird: off, or one frequency (MHz) and amplitude "
+           "(nT). Its yield function is computed from the spin system at the scenario's [rf] degree on "
+           "the worker (seconds to minutes for a large pair; the status bar says so)."),
+    "rf_direction": ("RF direction", None,
+                     "Direction of the RF field relative to the static field: perpendicular (90 deg to it, "
+                     "averaged over its azimuth about the field) or parallel to it (0 deg)."),
+}
 
 #: Boxes of the control panel: (title, fields).
 GROUPS = (
@@ -97,7 +125,11 @@ GROUPS = (
     ("Geomagnetic field", ("intensity_uT", "inclination_deg", "declination_deg")),
     ("Receptors and light", ("photons", "ordering", "kappa")),
     ("Head scan", ("scan_amplitude_deg", "scan_steps", "scan_repeats", "scan_speed_deg_s")),
+    ("RF field", ("rf", "rf_MHz", "rf_nT", "rf_direction")),
 )
+
+#: Title of the box that holds the RF controls (disabled without a spin system).
+RF_BOX = "RF field"
 
 #: Tooltips of the non-numeric controls.
 TIPS = {
@@ -153,6 +185,7 @@ class BoundSlider(QWidget):
         name = c.name
         self.state, self.name, self.log = state, name, bool(c.log)
         self.lo, self.hi = float(c.span[0]), float(c.span[1])
+        self.zero_left = bool(c.zero_left)
         self.label = QLabel(c.label)
         self.slider = QSlider(Qt.Orientation.Horizontal)
         self.slider.setRange(0, _TICKS)
@@ -162,7 +195,7 @@ class BoundSlider(QWidget):
         if name == "yaw_deg":
             self.spin.setRange(-360.0, 720.0)  # any typed angle; the state wraps it into [0, 360)
         else:
-            lo = max(full[0], 10.0 ** -c.decimals) if c.log and name != "kappa" else full[0]
+            lo = max(full[0], 10.0 ** -c.decimals) if c.log and not c.zero_left else full[0]
             self.spin.setRange(lo, full[1])
         self.spin.setDecimals(c.decimals)
         self.spin.setSingleStep(c.step)
@@ -192,7 +225,7 @@ class BoundSlider(QWidget):
 
     # value <-> slider position
     def to_ticks(self, v: float) -> int:
-        if self.name == "kappa" and v <= 0:
+        if self.zero_left and v <= 0:
             return 0
         if self.log:
             t = (math.log10(max(v, 1e-300)) - math.log10(self.lo)) / (math.log10(self.hi) - math.log10(self.lo))
@@ -201,8 +234,8 @@ class BoundSlider(QWidget):
         return int(round(min(max(t, 0.0), 1.0) * _TICKS))
 
     def from_ticks(self, k: int) -> float:
-        if self.name == "kappa" and k == 0:
-            return 0.0  # the far left: no order
+        if self.zero_left and k == 0:
+            return 0.0  # the far left: no order (kappa), no field (RF amplitude)
         t = k / _TICKS
         if self.log:
             return 10.0 ** (math.log10(self.lo) + t * (math.log10(self.hi) - math.log10(self.lo)))
@@ -256,29 +289,34 @@ class BoundSlider(QWidget):
         self._unsub.clear()
 
 
-_ORDERING_TIP = ("scenario: the scenario's own model; aligned; axial: free rotation about the receptor "
-                 "axis; cone: a vMF cone with the twist as the scenario says (tied: isotropic at kappa 0); "
-                 "cone_no_twist: the cone without twist (not isotropic at kappa 0); plane: a molecular "
-                 "direction in the membrane plane (Watson girdle kappa); isotropic: no order")
-
-
 class ChoiceBox(QComboBox):
-    """A combo box bound to a choice field of the state (``display``, ``eye`` or ``ordering``)."""
+    """A combo box bound to a choice field of the state (``display``, ``eye``, ``ordering``, ``rf``,
+    ``rf_direction``).  ``texts``: what each choice is shown as (default: the choices)."""
 
-    def __init__(self, state, name, choices, parent=None):
+    def __init__(self, state, name, choices, parent=None, texts=None):
         super().__init__(parent)
         self.state, self.name = state, name
-        self.addItems(list(choices))
+        self.values = list(choices)
+        self.addItems(list(texts) if texts is not None else self.values)
         self.setToolTip(TIPS.get(name, ""))
         self.on_error = None
-        self.currentTextChanged.connect(lambda t: _guarded(self, self.state.set, self.name, t))
-        self._unsub = [state.events.connect(name, lambda e: self.sync())]
+        self.currentIndexChanged.connect(lambda i: _guarded(self, self._from_index, i))
+        self._unsub = [state.events.connect(name, lambda e: self.sync()),
+                       state.events.connect("scenario", lambda e: self.sync())]
         self.sync()
+
+    def _from_index(self, i: int) -> None:
+        if 0 <= i < len(self.values):
+            try:
+                self.state.set(self.name, self.values[i])
+            except InputError:
+                self.sync()  # refused (an RF tone without a spin system): show the state's value again
+                raise
 
     def sync(self) -> None:
         self.blockSignals(True)
         try:
-            self.setCurrentText(self.state.get(self.name))
+            self.setCurrentIndex(self.values.index(self.state.get(self.name)))
         finally:
             self.blockSignals(False)
 
@@ -348,18 +386,22 @@ class ControlPanel(QWidget):
         lay.addWidget(box)
         spec = {c.name: c for c in CONTROLS}
         self.boxes = {}
+        from .state import ORDERINGS, RF_DIRECTIONS
+
+        own = {"ordering": ORDERINGS, "rf_direction": RF_DIRECTIONS}
         for title, names in GROUPS:
             box = QGroupBox(title)
             bl = QVBoxLayout(box)
             bl.setSpacing(2)
             for n in names:
-                if n == "ordering":
-                    from .state import ORDERINGS
-
-                    self.controls[n] = ChoiceBox(state, n, ORDERINGS)
-                    self.controls[n].setToolTip(_ORDERING_TIP)
-                    lab = QLabel("ordering model")
-                    lab.setToolTip(_ORDERING_TIP)
+                if n in CHOICES:
+                    text, pairs, tip = CHOICES[n]
+                    values = [v for v, _ in pairs] if pairs else own[n]
+                    texts = [t for _, t in pairs] if pairs else None
+                    self.controls[n] = ChoiceBox(state, n, values, texts=texts)
+                    self.controls[n].setToolTip(tip)
+                    lab = QLabel(text)
+                    lab.setToolTip(tip)
                     bl.addWidget(lab)
                     bl.addWidget(self.controls[n])
                     continue
@@ -378,6 +420,25 @@ class ControlPanel(QWidget):
         scan_box.addWidget(self.play)
         scan_box.addWidget(self.scan_label)
         lay.addStretch(1)
+        self._unsub = [state.events.connect("scenario", lambda e: self.sync_rf_box())]
+        self.sync_rf_box()
+
+    def sync_rf_box(self) -> None:
+        """Enable the RF box when the scenario has a spin system; else disable it and say why in
+        its tooltip (and every control's in it)."""
+        from .state import rf_unavailable
+
+        box = self.boxes[RF_BOX][0]
+        why = rf_unavailable(self.state.scenario) if self.state.scenario is not None else None
+        box.setEnabled(why is None)
+        box.setToolTip("" if why is None else why)
+        for n in GROUPS[[t for t, _ in GROUPS].index(RF_BOX)][1]:
+            w = self.controls[n]
+            ws = (w.label, w.slider, w.spin) if isinstance(w, BoundSlider) else (w,)
+            for x in ws:
+                x.setToolTip(CHOICES[n][2] if n in CHOICES else next(c.tip for c in CONTROLS if c.name == n))
+                if why is not None:
+                    x.setToolTip(f"{why}. {x.toolTip()}")
 
     def set_error_handler(self, on_error) -> None:
         """Errors raised while a control applies a change go to ``on_error(title, exception)``."""
@@ -387,6 +448,9 @@ class ControlPanel(QWidget):
     def close_bindings(self) -> None:
         for w in self.controls.values():
             w.close_binding()
+        for u in self._unsub:
+            u()
+        self._unsub.clear()
 
 
 class ReadoutPanel(QGroupBox):
@@ -394,7 +458,7 @@ class ReadoutPanel(QGroupBox):
 
     ROWS = (("pose", "pattern shown for"), ("depth", "modulation depth"), ("bound", "Cramer-Rao bound here"),
             ("rms", "bound, rms over headings"), ("mirror", "heading + 180 deg"),
-            ("light", "light level"), ("bhead", "field in head (az, el)"),
+            ("light", "light level"), ("rf", "RF field"), ("bhead", "field in head (az, el)"),
             ("yield", "yield function"), ("time", "computed in"), ("hover", "under the cursor"))
 
     def __init__(self, state, parent=None):
@@ -418,6 +482,7 @@ class ReadoutPanel(QGroupBox):
             lab.setText("-")
 
     def refresh(self) -> None:
+        from .state import describe_rf
         from .workers import describe_bound, format_deg
 
         res = self.state.result
@@ -445,12 +510,14 @@ class ReadoutPanel(QGroupBox):
         self.labels["mirror"].setText(mirror)
         self.labels["light"].setText(f"{res.request.photons:.4g} photons per receptor per look"
                                      + (", gain unknown" if nuis == "gain" else ""))
+        self.labels["rf"].setText(describe_rf(q.rf))
         self.labels["bhead"].setText(f"{format_deg(az)}, {format_deg(el)}")
         F = res.yield_field_uT
         self.labels["yield"].setText((f"at {F:g} uT" if np.isfinite(F) else "field not recorded")
                                      + " (hover: source)")
         self.labels["yield"].setToolTip(res.yield_note)
-        self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms")
+        self.labels["time"].setText(f"{1000.0 * res.seconds:.1f} ms" if res.seconds < 10.0
+                                    else f"{res.seconds:.1f} s")
 
     def show_receptor(self, info) -> None:
         """Show :meth:`retina_viewer.views.MapView.receptor_info` (None: off the eyes)."""
@@ -553,7 +620,7 @@ class BoundPlot(QWidget):
         if c is not None and res.status != "none":
             q = res.request
             key = (id(q.scenario), q.pitch_deg, q.roll_deg, q.intensity_uT, q.inclination_deg,
-                   q.declination_deg, q.photons, q.kappa, W, H)
+                   q.declination_deg, q.photons, q.kappa, q.ordering, q.rf, W, H)
             if key != self._path_key:  # the curve changes with pitch, roll, field, light only
                 xs = left + pw * (np.arange(c.size) / 360.0)
                 v = np.clip(np.where(np.isfinite(c), c, ymax), ymin, ymax)

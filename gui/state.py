@@ -27,8 +27,18 @@ Conventions (owned here)
   :meth:`ViewerState.update` with ``record=True``) is one step; rapid changes of the same field
   (a slider drag, less than :data:`MERGE_SECONDS` apart) merge into one step.  Loading a scenario
   clears the history; scan playback does not record.
-- :meth:`ViewerState.to_scenario` writes the current pose, field, light level and ordering into a
-  copy of the scenario, so ``retina patterns`` on it reproduces what the viewer shows.
+- RF field (``rf``, ``rf_MHz``, ``rf_nT``, ``rf_direction``): ``rf = "off"`` or ``"tone"``, a
+  linearly polarised field of one frequency (MHz) and amplitude (nT), perpendicular to the static
+  field (averaged over its azimuth about it) or parallel to it, as an ``[rf]`` tone condition of
+  :mod:`retina.stages.rf`.  A tone needs the spin system (``yield.system``): with a yield function
+  read from a file or a table, ``rf = "tone"`` is refused (:func:`rf_unavailable` says why).
+  Loading a scenario switches RF on only when its ``[rf]`` lists exactly one condition besides
+  "off" and that is a perpendicular or parallel tone (what a saved viewer state holds); otherwise
+  RF is off, with the frequency, amplitude and direction of its first such tone (else 1 MHz,
+  100 nT, perpendicular) ready for the control.  :func:`describe_rf` is the readout's wording.
+- :meth:`ViewerState.to_scenario` writes the current pose, field, light level, ordering and (when
+  on) the RF tone into a copy of the scenario, so ``retina patterns`` on it reproduces what the
+  viewer shows without RF, and the ``rf`` stage (``retina run``) the RF condition.
 - The model never knows its views: views and panels subscribe with :meth:`EventEmitter.connect`.
 """
 
@@ -42,7 +52,8 @@ from typing import Any, Callable
 from retina.errors import InputError
 
 __all__ = ["Event", "EventEmitter", "ViewerState", "History", "FIELDS", "DISPLAYS", "EYES", "ORDERINGS",
-           "RANGES", "INTEGER_FIELDS", "MERGE_SECONDS", "scan_yaws"]
+           "RANGES", "INTEGER_FIELDS", "MERGE_SECONDS", "scan_yaws", "RF_MODES", "RF_DIRECTIONS",
+           "describe_rf", "rf_unavailable"]
 
 #: Display choices: what the colours show.
 DISPLAYS = ("modulation", "yields")
@@ -50,6 +61,12 @@ DISPLAYS = ("modulation", "yields")
 EYES = ("both", "left", "right")
 #: Ordering choices: the scenario's own model or one of :data:`retina.eye.ordering.MODELS`.
 ORDERINGS = ("scenario", "aligned", "axial", "cone", "cone_no_twist", "plane", "isotropic")
+#: RF choices: no RF field, or one tone (frequency and amplitude).
+RF_MODES = ("off", "tone")
+#: RF directions relative to the static field (:mod:`retina.stages.rf`).
+RF_DIRECTIONS = ("perpendicular", "parallel")
+#: RF settings when the scenario names no tone: frequency (MHz), amplitude (nT), direction.
+RF_DEFAULT = (1.0, 100.0, "perpendicular")
 
 #: Accepted ranges (inclusive) of the numeric fields, in their units.  The intensity range is the
 #: scenario schema's (:mod:`retina.scenario`); photons must be positive, kappa may be 0 (no order).
@@ -65,6 +82,8 @@ RANGES: dict[str, tuple[float, float]] = {
     "scan_steps": (2.0, 721.0),
     "scan_repeats": (1.0, 100.0),
     "scan_speed_deg_s": (1.0, 2000.0),
+    "rf_MHz": (1e-3, 1e4),
+    "rf_nT": (0.0, 1e6),
 }
 
 #: Numeric fields that take whole numbers only.
@@ -74,7 +93,7 @@ INTEGER_FIELDS = ("scan_steps", "scan_repeats")
 UNITS = {"yaw_deg": "degrees", "pitch_deg": "degrees", "roll_deg": "degrees", "intensity_uT": "uT",
          "inclination_deg": "degrees", "declination_deg": "degrees", "photons": "photons",
          "kappa": "", "scan_amplitude_deg": "degrees", "scan_steps": "steps",
-         "scan_repeats": "sweeps", "scan_speed_deg_s": "deg/s"}
+         "scan_repeats": "sweeps", "scan_speed_deg_s": "deg/s", "rf_MHz": "MHz", "rf_nT": "nT"}
 
 #: Changes of one field closer together than this (seconds) merge into one undo step.
 MERGE_SECONDS = 0.6
@@ -83,7 +102,40 @@ MERGE_SECONDS = 0.6
 FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg", "declination_deg",
           "photons", "ordering", "kappa", "display", "eye", "lock_scale", "scan_amplitude_deg",
           "scan_steps",
-          "scan_repeats", "scan_speed_deg_s")
+          "scan_repeats", "scan_speed_deg_s", "rf", "rf_MHz", "rf_nT", "rf_direction")
+
+
+def describe_rf(rf) -> str:
+    """The readout's words for an RF setting: ``None`` is "RF off", a tone ``(MHz, nT, direction)``
+    is e.g. "RF 1.2 MHz, 500 nT, perpendicular"."""
+    if rf is None:
+        return "RF off"
+    f, b, d = rf
+    return f"RF {float(f):g} MHz, {float(b):g} nT, {d}"
+
+
+def rf_unavailable(scenario) -> str | None:
+    """Why the scenario cannot take an RF field in the viewer (None when it can): RF acts on the
+    spin system, so the yield function must be computed from one (``yield.system``)."""
+    if scenario is None:
+        return "no scenario loaded"
+    kind, path = scenario.yield_source
+    if kind == "system":
+        return None
+    name = getattr(path, "name", str(path))
+    return (f"RF needs the spin system (yield.system): this scenario's yield function is read from "
+            f"{name} (yield.{kind}), which holds the static yield only")
+
+
+def _rf_from_scenario(scenario) -> dict:
+    """The RF fields a scenario starts with (module docstring)."""
+    conds = [c for c in scenario["rf"]["conditions"] if c["kind"] != "off"]
+    tones = [c for c in conds if c["kind"] == "tone" and c["direction"] in RF_DIRECTIONS]
+    f, b, d = RF_DEFAULT
+    if tones:
+        f, b, d = tones[0]["frequency_MHz"], tones[0]["amplitude_nT"], tones[0]["direction"]
+    on = len(conds) == 1 and len(tones) == 1 and rf_unavailable(scenario) is None
+    return {"rf": "tone" if on else "off", "rf_MHz": f, "rf_nT": b, "rf_direction": d}
 
 
 def scan_yaws(centre_deg: float, amplitude_deg: float, steps: int, repeats: int):
@@ -247,6 +299,7 @@ class ViewerState:
             "kappa": None,
             "display": "modulation", "eye": "both", "lock_scale": False,
             "scan_amplitude_deg": 45.0, "scan_steps": 13, "scan_repeats": 1, "scan_speed_deg_s": 90.0,
+            "rf": "off", "rf_MHz": RF_DEFAULT[0], "rf_nT": RF_DEFAULT[1], "rf_direction": RF_DEFAULT[2],
         }
         self._result = None
         self._serial = 0
@@ -291,6 +344,17 @@ class ViewerState:
         if name == "eye":
             if value not in EYES:
                 raise InputError(f"expected one of {EYES}, got {value!r}", source=src, key=name)
+            return value
+        if name == "rf":
+            if value not in RF_MODES:
+                raise InputError(f"expected one of {RF_MODES}, got {value!r}", source=src, key=name)
+            why = rf_unavailable(self._scenario) if value != "off" else None
+            if why is not None:
+                raise InputError(why, source=src, key=name)
+            return value
+        if name == "rf_direction":
+            if value not in RF_DIRECTIONS:
+                raise InputError(f"expected one of {RF_DIRECTIONS}, got {value!r}", source=src, key=name)
             return value
         if name == "lock_scale":
             if not isinstance(value, bool):
@@ -358,9 +422,9 @@ class ViewerState:
         Field: the given components, or the IGRF field at the scenario's place and date.  Light:
         the brightest of ``light.photons``.  Ordering: the scenario's own (``ordering =
         "scenario"``, ``kappa = None``).
-        Scan: ``scan.amplitude_deg`` and ``scan.steps``.  Emits only ``"scenario"``, after every
-        value is set (subscribers read the new values from the state), so one change of scenario
-        makes one request.  Clears the undo history.
+        Scan: ``scan.amplitude_deg`` and ``scan.steps``.  RF: as the module docstring says.  Emits
+        only ``"scenario"``, after every value is set (subscribers read the new values from the
+        state), so one change of scenario makes one request.  Clears the undo history.
         """
         from retina.scenario import Scenario
 
@@ -376,6 +440,7 @@ class ViewerState:
                       declination_deg=((fld.D_deg + 180.0) % 360.0) - 180.0,
                       photons=max(scenario["light"]["photons"]), ordering="scenario", kappa=None,
                       scan_amplitude_deg=sc_scan["amplitude_deg"], scan_steps=sc_scan["steps"])
+        values.update(_rf_from_scenario(scenario))
         old = self._scenario
         self._scenario = scenario
         checked = {k: self._validate(k, v) for k, v in values.items()}
@@ -388,8 +453,9 @@ class ViewerState:
         """A copy of the scenario with the current pose, field, light and ordering (module
         docstring): ``pose.headings_deg = [yaw]``, pitch and roll; the field as intensity,
         inclination and declination; ``light.photons = [photons]``; with a model or kappa override,
-        the scenario's ordering with that model and kappa in ensemble mode; ``yield.field_uT`` kept.
-        Raises InputError without a scenario."""
+        the scenario's ordering with that model and kappa in ensemble mode; ``yield.field_uT`` kept;
+        with RF on, ``[rf] conditions`` is that one tone (named by :func:`describe_rf`).  Raises
+        InputError without a scenario."""
         sc = self._scenario
         if sc is None:
             raise InputError("no scenario loaded; open one with File > Open scenario", key="scenario")
@@ -405,6 +471,11 @@ class ViewerState:
                              "steps": v["scan_steps"], "pitch_deg": v["pitch_deg"]}}
         if sc["rf"].get("sweep_light") is not None:
             sections["rf"] = {"sweep_light": "viewer"}  # the one light level a saved state has
+        rf = self.rf_setting()
+        if rf is not None:
+            tone = {"name": describe_rf(rf), "kind": "tone", "frequency_MHz": rf[0], "amplitude_nT": rf[1],
+                    "direction": rf[2]}
+            sections.setdefault("rf", {})["conditions"] = [tone]
         if v["kappa"] is not None or v["ordering"] != "scenario":
             o = dict(sc["ordering"])
             if v["ordering"] != "scenario":
@@ -418,6 +489,11 @@ class ViewerState:
         return sc.replace(**sections)
 
     # ---------------------------------------------------------------- derived state
+    def rf_setting(self):
+        """The RF field asked for: None (off) or ``(frequency_MHz, amplitude_nT, direction)``."""
+        v = self._v
+        return None if v["rf"] == "off" else (v["rf_MHz"], v["rf_nT"], v["rf_direction"])
+
     def request(self):
         """A frozen :class:`retina_viewer.workers.PatternRequest` of the current state (serial numbers
         increase by one per call)."""
@@ -429,7 +505,7 @@ class ViewerState:
                               pitch_deg=v["pitch_deg"], roll_deg=v["roll_deg"],
                               intensity_uT=v["intensity_uT"], inclination_deg=v["inclination_deg"],
                               declination_deg=v["declination_deg"], photons=v["photons"],
-                              ordering=v["ordering"], kappa=v["kappa"])
+                              ordering=v["ordering"], kappa=v["kappa"], rf=self.rf_setting())
 
     @property
     def result(self):

@@ -12,6 +12,8 @@ Conventions (owned here)
   changes in one pass of the event loop make one request), the worker keeps only the newest
   pending request, and results are applied from a zero-delay timer too (only the newest result
   waiting is drawn).  ``synchronous=True`` sends and applies at once (tests, scripts).
+- While a yield function is computed (a new field strength, or a new RF setting with RF on)
+  the status bar says so and which one (``MainWindow._computing_message``).
 - Keyboard: in a view, Left/Right turn the head 5 degrees (with Shift 1 degree), Up/Down pitch
   it, Page Up/Page Down roll it; in a control the keys belong to the control.  Ctrl+O opens a
   scenario, Ctrl+Shift+S saves the state as a scenario, Ctrl+E exports a publication figure,
@@ -51,7 +53,9 @@ __all__ = ["MainWindow", "load_start_scenario", "png_bytes", "rgba_png_bytes", "
 
 #: Fields whose change needs a new pattern.
 _REQUEST_FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg",
-                   "declination_deg", "photons", "ordering", "kappa")
+                   "declination_deg", "photons", "ordering", "kappa", "rf", "rf_MHz", "rf_nT", "rf_direction")
+#: Fields whose change may need another yield function (the status bar says when it is computed).
+_YIELD_FIELDS = ("intensity_uT", "rf", "rf_MHz", "rf_nT", "rf_direction")
 
 OFFSCREEN_MESSAGE = ("the viewer cannot draw its OpenGL views on Qt's '{}' platform (they would be "
                      "blank); run it on a display or under a virtual X server: xvfb-run -s "
@@ -278,13 +282,29 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage("nothing to redo", 2000)
 
     # ---------------------------------------------------------------- state -> worker
+    def _computing_message(self, sc) -> str | None:
+        """What the status bar says while the next request computes a yield function (None: it
+        needs none)."""
+        from .state import describe_rf
+
+        st = self.state
+        rf = st.rf_setting()
+        if not self.worker.computer.yield_is_computed(sc, st.intensity_uT, rf):
+            return None
+        F = st.intensity_uT if sc["yield"]["field_uT"] is None else float(sc["yield"]["field_uT"])
+        if rf is None:
+            return f"computing the yield function at {F:g} uT..."
+        return (f"computing the RF yield function ({describe_rf(rf)}) at {F:g} uT, degree "
+                f"{sc['rf']['degree']}; the pattern shown meanwhile is the previous one...")
+
     def _on_change(self, event) -> None:
-        if event.name == "intensity_uT":
-            sc = self.state.scenario
-            if sc is not None and self.worker.computer.yield_is_computed(sc, event.value):
-                self.statusBar().showMessage(f"computing the yield function at {event.value:g} uT...")
-            elif sc is not None:
-                kind, path = sc.yield_source
+        sc = self.state.scenario
+        msg = self._computing_message(sc) if sc is not None and event.name in _YIELD_FIELDS else None
+        if msg is not None:
+            self.statusBar().showMessage(msg)
+        elif event.name == "intensity_uT" and sc is not None:
+            kind, path = sc.yield_source
+            if kind != "system" or sc["yield"]["field_uT"] is not None:
                 what = ("computed at the scenario's yield.field_uT" if kind == "system"
                         else f"read from {Path(path).name}")
                 self.statusBar().showMessage(f"the yield function is {what}; the intensity changes "
@@ -296,7 +316,9 @@ class MainWindow(QMainWindow):
         self.setWindowTitle(f"retina-compass viewer - {sc.name}"
                             + (f" ({Path(sc.source).name})" if sc.source else ""))
         self._stop_scan(restore=False)
-        if self.worker.computer.yield_is_computed(sc, self.state.intensity_uT):
+        if self.state.rf_setting() is not None:
+            self.statusBar().showMessage(self._computing_message(sc) or "computing the RF yield function...")
+        elif self.worker.computer.yield_is_computed(sc, self.state.intensity_uT):
             self.statusBar().showMessage("computing the yield function...")
         else:
             self.statusBar().showMessage(f"reading the yield function from {Path(sc.yield_source[1]).name}...")
@@ -357,8 +379,8 @@ class MainWindow(QMainWindow):
         self.state.set_result(result)
         if result.request.scan_yaws:
             self._show_scan(result)
-        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} "
-                                     f"({1000 * result.seconds:.1f} ms)", 4000)
+        took = f"{1000 * result.seconds:.1f} ms" if result.seconds < 10.0 else f"{result.seconds:.1f} s"
+        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} ({took})", 4000)
 
     @_slot
     def _on_failed(self, request, message: str) -> None:
@@ -481,6 +503,8 @@ class MainWindow(QMainWindow):
         from retina.figures import modulation_fields, save_figure
         from retina.io.atomic import check_writable
 
+        from .state import describe_rf
+
         res = self.state.result
         if res is None:
             raise InputError("no pattern to export yet", key="figure")
@@ -496,7 +520,9 @@ class MainWindow(QMainWindow):
                   f"{p.intensity_uT:g} uT, inclination {p.inclination_deg:g} deg, declination "
                   f"{p.declination_deg:g} deg; ordering "
                   + (f"cone kappa {p.kappa:g}" if p.kappa is not None else sc["ordering"]["model"])
-                  + f"; {len(rec)} receptors; exported from the viewer")
+                  + f"; {len(rec)} receptors"
+                  + ("" if p.rf is None else f"; {describe_rf(p.rf)} to the static field")
+                  + "; exported from the viewer")
         fig = modulation_fields(rec.visual_dirs, rec.eye_index, res.pattern.modulation[None, :],
                                 [p.yaw_deg], np.asarray(res.pattern.b_head, float)[None, :],
                                 params=params, ncols=1,

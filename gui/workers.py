@@ -14,6 +14,12 @@ Conventions (owned here)
   strength, noted in :attr:`PatternResult.yield_note`), the receptors (once per scenario), the
   :class:`retina.eye.pattern.RetinaModel` (rebuilt only when the yield function or ``kappa``
   changes), the pattern, and the readout numbers.
+- RF (``PatternRequest.rf``, :meth:`retina_viewer.state.ViewerState.rf_setting`): with a tone the
+  yield function is the ``rf`` stage's for that condition
+  (:func:`retina.stages.rf.condition_yield_function`: at ``[rf] degree``, content-hash cached), at
+  the requested intensity (or ``yield.field_uT``); it is computed only when the RF setting or the
+  field strength changes, and cancelled like any other yield function.  RF off is the scenario's
+  own yield function, untouched.
 - Readout numbers: modulation depth ``(max - min) / mean`` of the receptor yields over both eyes
   (the convention of :mod:`retina.stages._common`); the Cramer-Rao bound on heading at the current pose
   and light level, ``1 / sqrt(I(psi))`` with ``I`` from :func:`retina.readout.fisher.heading_information`
@@ -109,6 +115,7 @@ class PatternRequest:
     kappa: float | None = None
     scan_yaws: tuple = ()
     scan_centre_deg: float | None = None
+    rf: tuple | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -164,12 +171,14 @@ class PatternResult:
     look_bound_deg: float = float("nan")
 
 
-def _same_yield_key(sc, intensity_uT: float):
-    """The cache key of the yield function a request needs."""
+def _same_yield_key(sc, intensity_uT: float, rf=None):
+    """The cache key of the yield function a request needs (``rf``: None or a tone)."""
     kind, _ = sc.yield_source
     if kind == "system" and sc["yield"]["field_uT"] is None:
-        return ("system", round(float(intensity_uT), 3))
-    return ("fixed",)
+        key = ("system", round(float(intensity_uT), 3))
+    else:
+        key = ("fixed",)
+    return key if rf is None else key + (("rf",) + tuple(rf),)
 
 
 class PatternComputer:
@@ -204,18 +213,35 @@ class PatternComputer:
         self._model = self._model_yf = self._model_kappa = None
         self._curve_key = self._curve = None
 
-    def yield_function(self, sc, intensity_uT: float, *, progress=None):
-        """The yield function a request for ``sc`` at ``intensity_uT`` needs, and a note."""
+    def yield_function(self, sc, intensity_uT: float, *, rf=None, progress=None):
+        """The yield function a request for ``sc`` at ``intensity_uT`` (with the RF tone ``rf``,
+        or None) needs, the field strength it was computed at (uT) and a note."""
         from retina import build
 
         if sc is not self._scenario:
             self._reset(sc)
-        key = _same_yield_key(sc, intensity_uT)
+        key = _same_yield_key(sc, intensity_uT, rf)
         if key in self._yfs:
             self._yfs.move_to_end(key)
             return self._yfs[key]
         kind, path = sc.yield_source
-        if key[0] == "system":
+        if rf is not None:
+            from retina.eye.field import Field
+            from retina.stages.rf import condition_yield_function
+
+            from .state import describe_rf, rf_unavailable
+
+            why = rf_unavailable(sc)
+            if why is not None:
+                raise InputError(why, source=sc.source, key="rf")
+            F = key[1] if key[0] == "system" else float(sc["yield"]["field_uT"])
+            cond = {"kind": "tone", "frequency_MHz": float(rf[0]), "amplitude_nT": float(rf[1]),
+                    "direction": rf[2]}
+            # only the intensity matters for a perpendicular or parallel tone (stages.rf)
+            yf = condition_yield_function(sc, cond, Field(F, 90.0, 0.0, source="viewer"), progress=progress)
+            entry = (yf, F, f"{describe_rf(rf)}: computed from {path.name} at {F:g} uT, degree {yf.degree} "
+                            f"([rf] degree), {yf.provenance.get('method', 'exact')} method")
+        elif key[0] == "system":
             yf = build.build_yield_function(sc.replace(**{"yield": {"field_uT": key[1]}}),
                                                progress=progress)
             entry = (yf, key[1], f"computed from {path.name} at {key[1]:g} uT")
@@ -256,11 +282,12 @@ class PatternComputer:
             self.model_builds += 1
         return self._model
 
-    def yield_is_computed(self, sc, intensity_uT: float) -> bool:
-        """Whether a request for ``sc`` at ``intensity_uT`` must compute a yield function first."""
+    def yield_is_computed(self, sc, intensity_uT: float, rf=None) -> bool:
+        """Whether a request for ``sc`` at ``intensity_uT`` (with the RF tone ``rf``) must compute a
+        yield function first."""
         if sc is not self._scenario:
             return sc.yield_source[0] == "system"
-        return _same_yield_key(sc, intensity_uT) not in self._yfs and sc.yield_source[0] == "system"
+        return _same_yield_key(sc, intensity_uT, rf) not in self._yfs and sc.yield_source[0] == "system"
 
     def compute(self, req: PatternRequest, *, cancel: Callable[[], bool] | None = None) -> PatternResult:
         """Compute one request.  ``cancel()`` is polled while a yield function is computed; when
@@ -279,7 +306,7 @@ class PatternComputer:
                 raise Cancelled("a newer request needs another yield function")
 
         sc = req.scenario
-        yf, F_yield, note = self.yield_function(sc, req.intensity_uT, progress=progress)
+        yf, F_yield, note = self.yield_function(sc, req.intensity_uT, rf=req.rf, progress=progress)
         model = self.model(sc, yf, req.kappa, req.ordering)
         fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
         pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
@@ -342,7 +369,8 @@ class PatternComputer:
     def needs_new_yield(self, a: PatternRequest, b: PatternRequest) -> bool:
         """True when request ``b`` needs another yield function than ``a``."""
         return a.scenario is not b.scenario or \
-            _same_yield_key(a.scenario, a.intensity_uT) != _same_yield_key(b.scenario, b.intensity_uT)
+            _same_yield_key(a.scenario, a.intensity_uT, getattr(a, "rf", None)) != \
+            _same_yield_key(b.scenario, b.intensity_uT, getattr(b, "rf", None))
 
 
 class LatestOnlyWorker:

@@ -24,11 +24,15 @@ __all__ = ["default_cache_dir", "cache_key", "YieldCache"]
 
 
 def default_cache_dir() -> Path:
-    """``$RETINA_CACHE`` if set and non-empty; else ``$XDG_CACHE_HOME/retina-compass`` if
-    ``XDG_CACHE_HOME`` is set to an absolute path; else ``~/.cache/retina-compass``.
+    """The cache folder.
 
-    The XDG Base Directory specification says a relative ``XDG_CACHE_HOME`` is invalid and is to
-    be ignored.
+    ``$RETINA_CACHE`` if set and non-empty; else ``$XDG_CACHE_HOME/retina-compass`` if
+    ``XDG_CACHE_HOME`` is set to an absolute path; else ``~/.cache/retina-compass``.  The XDG Base
+    Directory specification says a relative ``XDG_CACHE_HOME`` is invalid and is to be ignored.
+
+    Returns
+    -------
+    Path
     """
     env = os.environ.get("RETINA_CACHE")
     if env:
@@ -41,8 +45,28 @@ def default_cache_dir() -> Path:
 
 def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int,
               accuracy: float | None = None) -> str:
-    """sha256 hex digest identifying one :meth:`YieldFunction.from_system` result (``accuracy``,
-    the sampled method's requested standard error, enters only when given)."""
+    """The key identifying one :meth:`YieldFunction.from_system` result.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair (its canonical TOML text enters the key).
+    field_uT : float
+        Field strength, microtesla.
+    degree : int
+        Degree of the yield function.
+    method : str
+        The spin method.
+    check_points : int
+        Number of independent check directions.
+    accuracy : float, optional
+        The sampled method's requested standard error per yield; enters the key only when given.
+
+    Returns
+    -------
+    str
+        sha256 hex digest of these and the package version.
+    """
     import retina
     from retina.spin.io import dump_system
 

@@ -54,7 +54,14 @@ class _Parser(argparse.ArgumentParser):
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The full parser, with every subcommand of :data:`retina.commands.COMMANDS` registered."""
+    """The full parser, with every subcommand of :data:`retina.commands.COMMANDS` registered.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        Global options (``-v``, ``--quiet``, ``--traceback``, ``--version``) and one sub-parser per
+        command.
+    """
     import retina
     from retina.commands import COMMANDS
 
@@ -114,7 +121,20 @@ class _Logging:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line; return the exit status (never raises, except SystemExit from Python itself)."""
+    """Run the command line.
+
+    Never raises (except ``SystemExit`` from Python itself): errors become one line on stderr.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Arguments (default ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        Exit status: 0 done, 1 failed, 2 bad input or a refusal, 130 interrupted.
+    """
     argv = sys.argv[1:] if argv is None else list(argv)
     show_traceback = "--traceback" in argv
     try:

@@ -447,7 +447,26 @@ def scenario_from_dict(doc: dict, *, source: str | Path | None = None, base_dir:
                        text: str | None = None) -> Scenario:
     """Validate a parsed scenario document (as from ``tomllib``) and fill in defaults.
 
-    Relative paths resolve against ``base_dir`` (default: the current folder).
+    Parameters
+    ----------
+    doc : dict
+        The parsed TOML content (schema in the module docstring).
+    source : str or Path, optional
+        File named in error messages.
+    base_dir : str or Path, optional
+        Folder against which relative paths resolve (default: the current folder).
+    text : str, optional
+        The original text, kept with the scenario.
+
+    Returns
+    -------
+    Scenario
+        Every section complete, paths absolute.
+
+    Raises
+    ------
+    InputError
+        On the first wrong, missing or unknown value, naming the dotted key.
     """
     src = Path(source) if source is not None else None
     base = Path(base_dir) if base_dir is not None else Path.cwd()
@@ -699,6 +718,15 @@ def dump_scenario(scenario: Scenario) -> str:
 
     ``None`` values (unset optional keys) are left out, so the text loads back to an equal
     :class:`Scenario`.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        A validated scenario.
+
+    Returns
+    -------
+    str
     """
     import tomli_w
 
@@ -709,7 +737,27 @@ def dump_scenario(scenario: Scenario) -> str:
 
 
 def save_scenario(scenario: Scenario, path: str | Path, *, force: bool = False) -> Path:
-    """Write :func:`dump_scenario` atomically to ``path`` (refusing to overwrite unless ``force``)."""
+    """Write :func:`dump_scenario` atomically to a file.
+
+    Parameters
+    ----------
+    scenario : Scenario
+        A validated scenario.
+    path : str or Path
+        The file.
+    force : bool
+        Allow overwriting an existing file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    InputError
+        When the file exists (without ``force``) or its folder is not writable.
+    """
     from retina.io.atomic import atomic_write_text
 
     return atomic_write_text(path, dump_scenario(scenario), force=force)

@@ -68,7 +68,13 @@ LEBEDEV_ORDERS = (3, 5, 7, 9, 11, 13, 15, 17, 19, 21, 23, 25, 27, 29, 31, 35, 41
 
 
 def lebedev_orders() -> tuple[int, ...]:
-    """The Lebedev orders (polynomial degrees integrated exactly) that scipy provides."""
+    """The Lebedev orders (polynomial degrees integrated exactly) that scipy provides.
+
+    Returns
+    -------
+    tuple of int
+        Increasing odd orders, 3 to 131.
+    """
     return LEBEDEV_ORDERS
 
 
@@ -79,13 +85,45 @@ def _check_degree(L: int) -> int:
 
 
 def n_coeffs(L: int) -> int:
-    """Number of even-degree coefficients up to degree ``L``: ``(L + 1)(L + 2) / 2``."""
+    """Number of even-degree coefficients up to degree ``L``: ``(L + 1)(L + 2) / 2``.
+
+    Parameters
+    ----------
+    L : int
+        Even maximum degree, ``>= 0``.
+
+    Returns
+    -------
+    int
+        ``K``, the length of a coefficient vector (153 for L = 16).
+
+    Raises
+    ------
+    ValueError
+        When ``L`` is odd or negative.
+    """
     L = _check_degree(L)
     return (L + 1) * (L + 2) // 2
 
 
 def degree_from_n(K: int) -> int:
-    """Inverse of :func:`n_coeffs`; raises ValueError when ``K`` is not such a length."""
+    """Inverse of :func:`n_coeffs`.
+
+    Parameters
+    ----------
+    K : int
+        Length of an even-degree coefficient vector.
+
+    Returns
+    -------
+    int
+        The even degree ``L`` with ``n_coeffs(L) == K``.
+
+    Raises
+    ------
+    ValueError
+        When ``K`` is not such a length.
+    """
     L = int(round((math.sqrt(8 * K + 1) - 3) / 2))
     if L < 0 or L % 2 or n_coeffs(L) != K:
         raise ValueError(f"{K} is not the length of an even-degree coefficient vector")
@@ -109,7 +147,23 @@ def lm_index(L: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def normalize(dirs) -> np.ndarray:
-    """Unit vectors along ``dirs (..., 3)``; raises ValueError on zero vectors."""
+    """Unit vectors along the given directions.
+
+    Parameters
+    ----------
+    dirs : array_like, shape (..., 3)
+        Finite, non-zero vectors.
+
+    Returns
+    -------
+    ndarray, shape (..., 3)
+        Each vector divided by its length.
+
+    Raises
+    ------
+    ValueError
+        On a wrong last axis, a zero or a non-finite vector.
+    """
     d = np.asarray(dirs, dtype=float)
     if d.shape[-1] != 3:
         raise ValueError(f"directions must have shape (..., 3), got {d.shape}")
@@ -237,9 +291,17 @@ def real_sh(L: int, dirs) -> np.ndarray:
 def real_sh_grad(L: int, dirs) -> tuple[np.ndarray, np.ndarray]:
     """Values and tangential (surface) gradients of the even-degree real harmonics.
 
+    Parameters
+    ----------
+    L : int
+        Even maximum degree.
+    dirs : array_like, shape (..., 3)
+        Unit vectors.
+
     Returns
     -------
     Y : ndarray, shape (..., K)
+        The harmonics (convention in DEVELOPERS.md, "Sphere conventions").
     G : ndarray, shape (..., K, 3)
         ``(I - b b^T) grad F`` where ``F`` is any smooth extension of ``Y`` off the sphere: the
         derivative of ``Y(b(t))`` along a curve on the sphere is ``G . db/dt``.
@@ -323,7 +385,23 @@ def _lebedev_cached(order: int) -> tuple[np.ndarray, np.ndarray]:
 
 
 def lebedev(order: int) -> SphereGrid:
-    """The Lebedev rule of the given order (exact to that polynomial degree); fresh arrays."""
+    """The Lebedev rule of the given order (exact to that polynomial degree).
+
+    Parameters
+    ----------
+    order : int
+        One of :func:`lebedev_orders`.
+
+    Returns
+    -------
+    SphereGrid
+        Fresh arrays: ``points (N, 3)`` unit vectors, ``weights (N,)`` summing to 4 pi.
+
+    Raises
+    ------
+    ValueError
+        For an order scipy does not provide.
+    """
     if order not in LEBEDEV_ORDERS:
         raise ValueError(f"no Lebedev rule of order {order}; available: {LEBEDEV_ORDERS}")
     pts, w = _lebedev_cached(order)
@@ -331,7 +409,24 @@ def lebedev(order: int) -> SphereGrid:
 
 
 def grid_for_degree(L: int, *, exactness: int | None = None) -> SphereGrid:
-    """The smallest Lebedev rule exact to ``2 L`` (or to ``exactness`` if given)."""
+    """The smallest Lebedev rule exact to ``2 L`` (so projecting a degree-``L`` function is exact).
+
+    Parameters
+    ----------
+    L : int
+        Even degree of the functions to project.
+    exactness : int, optional
+        Polynomial degree the rule must integrate instead of ``2 L``.
+
+    Returns
+    -------
+    SphereGrid
+
+    Raises
+    ------
+    ValueError
+        When no rule is exact enough (the largest order is 131).
+    """
     need = 2 * _check_degree(L) if exactness is None else int(exactness)
     for order in LEBEDEV_ORDERS:
         if order >= need:
@@ -342,7 +437,19 @@ def grid_for_degree(L: int, *, exactness: int | None = None) -> SphereGrid:
 def fibonacci(n: int, *, hemisphere: bool = False, offset: float = 0.5) -> SphereGrid:
     """A quasi-uniform Fibonacci lattice of ``n`` points (equal weights; not a quadrature rule).
 
-    With ``hemisphere=True`` the points cover z >= 0 only (weights sum to 2 pi).
+    Parameters
+    ----------
+    n : int
+        Number of points, ``>= 1``.
+    hemisphere : bool
+        Cover only ``z >= 0`` (weights then sum to 2 pi instead of 4 pi).
+    offset : float
+        Offset of the point index (0.5 spreads the points evenly in ``z``).
+
+    Returns
+    -------
+    SphereGrid
+        ``points (n, 3)``, equal ``weights (n,)``, ``degree = -1`` (no exactness).
     """
     n = int(n)
     if n < 1:
@@ -390,9 +497,18 @@ def fit_even(values, grid: SphereGrid, L: int) -> np.ndarray:
 
 
 def evaluate(coeffs, dirs) -> np.ndarray:
-    """Values of the function(s) with even-degree coefficients ``coeffs (..., K)`` at ``dirs (N, 3)``.
+    """Values of the function(s) with even-degree coefficients ``coeffs`` at ``dirs``.
 
-    Returns shape ``(..., N)``.
+    Parameters
+    ----------
+    coeffs : array_like, shape (..., K)
+        Even-degree coefficients (one or more functions).
+    dirs : array_like, shape (N, 3)
+        Unit vectors.
+
+    Returns
+    -------
+    ndarray, shape (..., N)
     """
     c = np.asarray(coeffs, dtype=float)
     L = degree_from_n(c.shape[-1])
@@ -401,7 +517,21 @@ def evaluate(coeffs, dirs) -> np.ndarray:
 
 
 def evaluate_grad(coeffs, dirs) -> tuple[np.ndarray, np.ndarray]:
-    """Values ``(N,)`` and tangential gradients ``(N, 3)`` of one function ``coeffs (K,)``."""
+    """Values and tangential gradients of one function.
+
+    Parameters
+    ----------
+    coeffs : array_like, shape (K,)
+        Even-degree coefficients.
+    dirs : array_like, shape (N, 3)
+        Unit vectors.
+
+    Returns
+    -------
+    values : ndarray, shape (N,)
+    grad : ndarray, shape (N, 3)
+        Tangential gradients (see :func:`real_sh_grad`).
+    """
     c = np.asarray(coeffs, dtype=float)
     if c.ndim != 1:
         raise ValueError("evaluate_grad takes one coefficient vector (K,)")
@@ -529,8 +659,19 @@ def rotate(coeffs, rotation: Rotation) -> np.ndarray:
 def funk_hecke(coeffs, moments) -> np.ndarray:
     """Convolve with an axially symmetric kernel: multiply each degree-l block by ``moments[l]``.
 
-    ``moments`` is indexed by degree (length >= L + 1); for a kernel density ``k(t)`` normalised
-    to one over the sphere, ``moments[l] = 2 pi int_{-1}^{1} k(t) P_l(t) dt`` (Funk-Hecke).
+    For a kernel density ``k(t)`` normalised to one over the sphere,
+    ``moments[l] = 2 pi int_{-1}^{1} k(t) P_l(t) dt`` (Funk-Hecke).
+
+    Parameters
+    ----------
+    coeffs : array_like, shape (..., K)
+        Even-degree coefficients of degree ``L``.
+    moments : array_like, shape (..., >= L + 1)
+        Kernel moments indexed by degree (broadcast against the leading axes of ``coeffs``).
+
+    Returns
+    -------
+    ndarray, shape (..., K)
     """
     c = np.asarray(coeffs, dtype=float)
     L = degree_from_n(c.shape[-1])
@@ -541,10 +682,44 @@ def funk_hecke(coeffs, moments) -> np.ndarray:
     return c * lam[..., l]
 
 
+#: Above this concentration the vMF moments use their closed form in ``1 / kappa`` (scipy's scaled
+#: Bessel functions return NaN beyond about 1e10); below it, the Bessel ratio.
+VMF_CLOSED_FORM_FROM = 1e8
+
+
 def vmf_moments(kappa: float, L: int) -> np.ndarray:
-    """Legendre moments ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)``, l = 0..L, of the
-    von Mises-Fisher density ``C(kappa) exp(kappa t)`` on the sphere (``t`` the cosine to the mean
-    axis).  ``kappa = 0`` is uniform (only lambda_0 = 1); ``kappa = inf`` is a delta (all ones).
+    """Legendre moments of the von Mises-Fisher density on the sphere.
+
+    ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)`` is the mean of ``P_l(t)`` under the density
+    ``C(kappa) exp(kappa t)`` (``t`` the cosine to the mean axis); ``lambda_1 = coth(kappa) -
+    1 / kappa`` is the mean cosine.  Stable for every ``kappa`` from 0 to inf:
+
+    - ``kappa = 0``: uniform (only ``lambda_0 = 1``); ``kappa < 1e-3``: the series
+      ``kappa^l / (2l + 1)!!`` (from ``I_nu(x) ~ (x/2)^nu / Gamma(nu + 1)``);
+    - up to :data:`VMF_CLOSED_FORM_FROM`: the ratio of scaled Bessel functions (``scipy.special.ive``);
+    - above it: the half-integer Bessel functions in closed form (the spherical Bessel functions),
+      ``I_{l+1/2}(k) sqrt(pi k / 2) = [e^k sum_j (-1)^j a_j - (-1)^l e^-k sum_j a_j] / 2`` with
+      ``a_j = (l + j)! / (j! (l - j)! (2k)^j)``, ``j = 0..l``, and ``I_{1/2}(k) sqrt(pi k / 2) =
+      sinh k``, so ``lambda_l = sum_j (-1)^j a_j`` up to terms of order ``e^-2k`` (nil there:
+      below ``10^-86,000,000``): ``1 - 1/k`` for l = 1, ``1 - 3/k + 3/k^2`` for l = 2;
+    - ``kappa = inf``: a delta (all ones).
+
+    Parameters
+    ----------
+    kappa : float
+        Concentration, ``>= 0`` (``inf`` allowed).
+    L : int
+        Largest degree.
+
+    Returns
+    -------
+    ndarray, shape (L + 1,)
+        ``lambda_0 .. lambda_L`` (``lambda_0 = 1``), each in ``[0, 1]``.
+
+    Raises
+    ------
+    ValueError
+        For a negative or NaN ``kappa``.
     """
     from scipy.special import ive
 
@@ -562,11 +737,31 @@ def vmf_moments(kappa: float, L: int) -> np.ndarray:
         from scipy.special import factorial2
 
         return kappa ** l / factorial2(2 * l + 1)
+    if kappa > VMF_CLOSED_FORM_FROM:
+        out = np.empty(L + 1)
+        for ll in range(L + 1):
+            term, total = 1.0, 1.0
+            for j in range(ll):  # a_{j+1} / a_j = -(l + j + 1)(l - j) / ((j + 1) 2k), signs included
+                term *= -(ll + j + 1) * (ll - j) / ((j + 1) * 2.0 * kappa)
+                total += term
+            out[ll] = total
+        return out
     return ive(l + 0.5, kappa) / ive(0.5, kappa)
 
 
 def axial_average(coeffs) -> np.ndarray:
-    """Average over rotations about the z axis: keep the m = 0 terms."""
+    """Average over rotations about the z axis: keep the m = 0 terms.
+
+    Parameters
+    ----------
+    coeffs : array_like, shape (..., K)
+        Even-degree coefficients.
+
+    Returns
+    -------
+    ndarray, shape (..., K)
+        A copy with every ``m != 0`` coefficient set to 0.
+    """
     c = np.array(coeffs, dtype=float, copy=True)
     L = degree_from_n(c.shape[-1])
     _, m = lm_index(L)
@@ -577,8 +772,15 @@ def axial_average(coeffs) -> np.ndarray:
 def zonal_to_legendre(coeffs) -> np.ndarray:
     """For an axially symmetric function ``f(b) = g(b_z)``, the Legendre series of ``g``.
 
-    Returns ``a (..., L + 1)`` with ``g(t) = sum_l a_l P_l(t)`` (odd entries zero); the m != 0 terms
-    of ``coeffs`` are ignored.
+    Parameters
+    ----------
+    coeffs : array_like, shape (..., K)
+        Even-degree coefficients; the ``m != 0`` terms are ignored.
+
+    Returns
+    -------
+    ndarray, shape (..., L + 1)
+        ``a`` with ``g(t) = sum_l a_l P_l(t)`` (odd entries zero).
     """
     c = np.asarray(coeffs, dtype=float)
     L = degree_from_n(c.shape[-1])

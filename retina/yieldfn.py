@@ -83,7 +83,18 @@ class Anisotropy:
 
 
 def canonical_axis(v) -> np.ndarray:
-    """The representative of the axis ``{v, -v}`` on the upper hemisphere, shape (3,), unit length."""
+    """The representative of the axis ``{v, -v}`` on the upper hemisphere.
+
+    Parameters
+    ----------
+    v : array_like, shape (3,)
+        A non-zero vector.
+
+    Returns
+    -------
+    ndarray, shape (3,)
+        Unit length, with the last non-zero component (z first, then y, then x) positive.
+    """
     v = np.asarray(v, dtype=float)
     v = v / np.linalg.norm(v)
     for c in (v[2], v[1], v[0]):
@@ -93,7 +104,13 @@ def canonical_axis(v) -> np.ndarray:
 
 
 def package_versions() -> dict[str, str]:
-    """Versions of the packages that shape a computed yield function."""
+    """Versions of the packages that shape a computed yield function.
+
+    Returns
+    -------
+    dict of str to str
+        Package name to version (recorded in the provenance).
+    """
     import h5py
     import numba
     import scipy

@@ -1,6 +1,8 @@
 """numpydoc docstrings (DEVELOPERS.md, "Conventions"): every public function of the pipeline's
 modules documents its parameters and what it returns.  Checked with numpydoc's own validator
-(common practice, no source); the list grows as other modules are brought up to it."""
+(common practice, no source).  Not listed yet: the modules other work is changing at the moment
+(stages.rf, figures.rf, spin.engine, spin.equivalence, spin.fast_separable, spin.sampling) and the
+packages, errors and re-exporting fronts; they join when that work lands."""
 
 import importlib
 import inspect
@@ -13,7 +15,22 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.results", "retina.outputs", "retina.outputs.figures", "retina.outputs.text",
            "retina.outputs.report", "retina.progress", "retina.data", "retina.commands._common",
            "retina.spin.memory", "retina.sweep.schema", "retina.sweep.outputs", "retina.sweep.run",
-           "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export"]
+           "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export", "retina.sphere",
+           "retina.readout.circstats", "retina.readout.fisher", "retina.spin.operators", "retina.spin._rf_common",
+           "retina.spin.rf_method", "retina.spin.rf_yieldfn", "retina.eye.order_samplers", "retina.eye.order_cases",
+           "retina.eye.order_laws", "retina.eye.order_rules", "retina.eye.field", "retina.eye.geometry",
+           "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise",
+           "retina.spin.io", "retina.spin.hilbert", "retina.spin.liouville", "retina.spin.separable",
+           "retina.spin.broadband", "retina.io.atomic", "retina.io.hdf5", "retina.io.importers",
+           "retina.io.schema", "retina.readout.decode", "retina.readout.trials", "retina.scenario",
+           "retina.signal.light", "retina.spin.rf_floquet", "retina.spin.system", "retina.stages.memory",
+           "retina.yieldfn", "retina.cache", "retina.figures._base", "retina.figures.curves",
+           "retina.figures.sphere_maps", "retina.figures.trials", "retina.figures.visual_fields", "retina.cli",
+           "retina.commands._types", "retina.commands._spin_args", "retina.commands.yields",
+           "retina.commands.patterns", "retina.commands.scan", "retina.commands.precision", "retina.commands.trials",
+           "retina.commands.report", "retina.commands.demo", "retina.commands.sweep", "retina.commands.export",
+           "retina.commands.rf", "retina.commands.view", "retina.figures.marks", "retina.figures.order",
+           "retina.spin.rf_separable", "retina.stages.order", "retina.sweep"]
 
 
 def _public_functions(name):

@@ -1083,7 +1083,8 @@ def test_every_control_has_a_tooltip_with_its_unit(window):
     for c in CONTROLS:
         w = window.controls.controls[c.name]
         tip = w.spin.toolTip()
-        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count"))
+        assert tip and any(u in tip for u in ("deg", "microtesla", "photons", "dimensionless", "count",
+                                              "MHz", "nanotesla"))
     assert window.controls.controls["photons"].spin.suffix() == " photons"
     for name in ("display", "eye", "lock_scale"):
         assert window.controls.controls[name].toolTip()
@@ -1159,3 +1160,235 @@ def test_moving_the_mouse_over_the_map_names_the_receptor(window, qapp):
     k = mv.receptor_at(40.0, 10.0)
     assert k is not None and f"#{k}" in window.readout.labels["hover"].text()
     assert "az" in window.readout.labels["hover"].text() and "%" in window.readout.labels["hover"].text()
+
+
+# ------------------------------------------------------------------------------------------------
+# RF in the viewer (no Qt needed for the state and the worker)
+
+_RF_PAIR = """
+[pair]
+name = "invented viewer RF pair"
+[radical_a]
+label = "A"
+[[radical_a.nuclei]]
+label = "H1"
+spin = 0.5
+principal_mT = [0.1, 0.2, 1.1]
+[radical_b]
+label = "B"
+[kinetics]
+lifetime_us = 2.0
+"""
+
+
+@pytest.fixture()
+def rf_scenario(tmp_path):
+    """A small invented pair (one anisotropic proton, Hilbert dimension 8) computed from its spin
+    system, yield and [rf] degree equal, so the RF yield functions take a fraction of a second."""
+    from retina.scenario import scenario_from_dict
+
+    (tmp_path / "pair.toml").write_text(_RF_PAIR)
+    doc = {"scenario": {"name": "viewer rf test", "seed": 3},
+           "yield": {"system": "pair.toml", "degree": 4},
+           "eyes": [{"side": "left", "azimuth_deg": -60.0, "n_receptors": 80},
+                    {"side": "right", "azimuth_deg": 60.0, "n_receptors": 80}],
+           "light": {"photons": [300.0], "names": ["day"]},
+           "field": {"intensity_uT": 50.0, "inclination_deg": 60.0, "declination_deg": 0.0},
+           "pose": {"headings_deg": [20.0]},
+           "rf": {"degree": 4, "check_points": 2}}
+    return scenario_from_dict(doc, base_dir=tmp_path)
+
+
+def _larmor_MHz(field_uT):
+    # The free-electron Larmor frequency g_e mu_B B / h (CODATA 2018 through scipy.constants;
+    # 28.025 MHz/mT): the resonance of an electron spin in the static field.
+    from scipy import constants as C
+
+    return abs(C.physical_constants["electron g factor"][0]) * C.physical_constants["Bohr magneton"][0] \
+        * field_uT * 1e-6 / C.h / 1e6
+
+
+def test_rf_off_is_exactly_the_control_pattern(rf_scenario):
+    # Derived: with RF off the request carries no RF setting and the worker uses the scenario's own
+    # yield function, so the pattern equals, bit for bit, the one the core builds without the viewer.
+    from retina import build
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(rf_scenario)
+    assert st.rf == "off" and st.request().rf is None
+    res = PatternComputer().compute(st.request())
+    yf = build.build_yield_function(rf_scenario)             # the viewer without any RF code path
+    ref = build.build_retina(rf_scenario, yf, res.pattern.receptors)
+    from retina.eye.field import Field
+    from retina.eye.pose import Pose
+
+    y = ref.pattern(Pose(st.yaw_deg, st.pitch_deg, st.roll_deg),
+                    Field(st.intensity_uT, st.inclination_deg, st.declination_deg)).yields
+    assert np.array_equal(res.pattern.yields, y)             # exactly: the same yield function
+    st.update(rf="tone", rf_MHz=1.4, rf_nT=500.0)            # on, then off again: the control again
+    PatternComputer().compute(st.request())
+    st.rf = "off"
+    assert np.array_equal(PatternComputer().compute(st.request()).pattern.yields, y)
+
+
+def test_rf_zero_amplitude_equals_off_and_a_larmor_tone_changes_the_pattern(rf_scenario):
+    # Derived: with B1 = 0 the drive H1 = (mu_B / hbar) B1 n.(g.S) vanishes, the Floquet equations
+    # of retina/spin/rf.py decouple and a_0 = -(L0^T)^-1 q is the static yield, so a zero-amplitude
+    # tone gives the control pattern (here yield.degree = [rf] degree, so the fits share the grid)
+    # to the RF solver's tolerance ([rf] tol = 1e-8 on yields of about 0.3: relative 1e-7).
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st = ViewerState(rf_scenario)
+    c = PatternComputer()
+    off = c.compute(st.request()).pattern.yields
+    st.update(rf="tone", rf_MHz=2.0, rf_nT=0.0)
+    zero = c.compute(st.request())
+    np.testing.assert_allclose(zero.pattern.yields, off, rtol=1e-7)
+    assert zero.request.rf == (2.0, 0.0, "perpendicular") and c.yield_builds == 2
+    # A perpendicular tone at the free-electron Larmor frequency of the 50 uT field (1.401 MHz)
+    # drives the electron spins; at 2 uT (B1 / B0 = 0.04, gamma_e B1 / k = 0.7) the pattern changes
+    # clearly (common practice, no source for the size: the resonance itself is CODATA).
+    st.update(rf_MHz=round(_larmor_MHz(50.0), 3), rf_nT=2000.0)
+    on = c.compute(st.request())
+    change = np.max(np.abs(on.pattern.yields - off)) / np.ptp(off)
+    assert change > 0.05, change
+    assert on.yield_field_uT == 50.0 and "degree 4" in on.yield_note
+    # the same condition through the rf stage's helper (a scenario [rf] tone) gives the same yields
+    from retina import build
+    from retina.eye.field import Field
+    from retina.eye.pose import Pose
+    from retina.stages.rf import condition_yield_function
+
+    fld = Field(50.0, 60.0, 0.0)
+    yf = condition_yield_function(rf_scenario, {"kind": "tone", "direction": "perpendicular",
+                                                "frequency_MHz": st.rf_MHz, "amplitude_nT": 2000.0}, fld)
+    ref = build.build_retina(rf_scenario, yf, on.pattern.receptors).pattern(Pose(20.0, 0.0, 0.0), fld).yields
+    np.testing.assert_allclose(on.pattern.yields, ref, rtol=1e-12)
+    # computed only when the RF setting or the field strength changes
+    st.yaw_deg = 80.0
+    c.compute(st.request())
+    assert c.yield_builds == 3
+    assert c.yield_is_computed(rf_scenario, 50.0, (st.rf_MHz, 2000.0, "parallel"))
+    assert not c.yield_is_computed(rf_scenario, 50.0, st.rf_setting())
+
+
+def test_rf_readout_words_and_the_state_refuses_rf_for_a_file_yield_function(rf_scenario, file_scenario):
+    # Contract of gui/state.py (common practice, no source): the readout's wording, and RF refused
+    # where the yield function holds no spin system to drive.
+    from retina_viewer.state import ViewerState, describe_rf
+
+    assert describe_rf(None) == "RF off"
+    assert describe_rf((1.2, 500.0, "perpendicular")) == "RF 1.2 MHz, 500 nT, perpendicular"
+    st = ViewerState(file_scenario)
+    with pytest.raises(InputError, match=r"rf: RF needs the spin system \(yield.system\)"):
+        st.rf = "tone"
+    assert st.rf == "off"
+    st2 = ViewerState(rf_scenario)
+    with pytest.raises(InputError, match="rf_nT: expected a value in"):
+        st2.rf_nT = -1.0
+    with pytest.raises(InputError, match="rf_direction: expected one of"):
+        st2.rf_direction = "circular"
+
+
+def test_rf_state_is_saved_as_an_rf_condition_and_opened_again(rf_scenario, tmp_path):
+    # Contract of gui/state.py (common practice, no source): a saved state round-trips through the
+    # scenario schema's [[rf.conditions]] (retina/scenario.py).
+    from retina.scenario import load_scenario, save_scenario
+    from retina_viewer.state import ViewerState
+
+    st = ViewerState(rf_scenario)
+    st.update(rf="tone", rf_MHz=1.2, rf_nT=500.0, rf_direction="parallel")
+    sc = load_scenario(save_scenario(st.to_scenario(), tmp_path / "rf-state.toml"))
+    assert sc["rf"]["conditions"] == [{**sc["rf"]["conditions"][0], "name": "RF 1.2 MHz, 500 nT, parallel",
+                                       "kind": "tone", "frequency_MHz": 1.2, "amplitude_nT": 500.0,
+                                       "direction": "parallel"}]
+    st2 = ViewerState(sc)                    # one tone: the viewer opens with it on
+    assert st2.rf_setting() == (1.2, 500.0, "parallel")
+    st.rf = "off"                            # off: the scenario's own conditions (none here) stay
+    assert st.to_scenario()["rf"]["conditions"] == []
+    # the bundled demo lists three conditions: RF starts off, with its first tone ready
+    from retina.scenario import load_scenario as load
+
+    demo = ViewerState(load(DEMO))
+    assert demo.rf == "off" and (demo.rf_MHz, demo.rf_nT, demo.rf_direction) == (1.2, 500.0, "perpendicular")
+
+
+def test_rf_box_is_disabled_for_a_file_yield_function_and_says_why(window):
+    # Contract of gui/panels.py (common practice, no source): a control that cannot act is disabled
+    # and says why; an error inside a Qt slot is reported, never raised (style.md).
+    from retina_viewer.panels import RF_BOX
+
+    box = window.controls.boxes[RF_BOX][0]
+    assert not box.isEnabled() and "RF needs the spin system" in box.toolTip()
+    assert "demo_quick.h5" in window.controls.controls["rf_nT"].spin.toolTip()
+    assert window.readout.labels["rf"].text() == "RF off"
+    # a choice forced programmatically is refused inside the slot, reported, and the box shows "off"
+    window.dialogs = False
+    window.controls.controls["rf"].setCurrentIndex(1)
+    assert "RF needs the spin system" in window.last_error
+    assert window.controls.controls["rf"].currentText() == "off" and window.state.rf == "off"
+
+
+def test_rf_control_recomputes_and_the_readout_and_status_bar_say_which(qapp, rf_scenario):
+    # 1.401 MHz: the free-electron Larmor frequency at 50 uT (CODATA through scipy.constants,
+    # _larmor_MHz); RF off again restores the control pattern exactly (derived, as above).
+    from retina_viewer.panels import RF_BOX
+    from retina_viewer.window import MainWindow
+
+    win = MainWindow(rf_scenario, synchronous=True)
+    try:
+        win.dialogs = False
+        said = []
+        win.statusBar().messageChanged.connect(said.append)
+        assert win.controls.boxes[RF_BOX][0].isEnabled()
+        off = win.state.result.pattern.yields.copy()
+        c = win.controls.controls
+        assert round(_larmor_MHz(50.0), 3) == 1.401
+        c["rf_MHz"].spin.setValue(1.401)
+        c["rf_nT"].spin.setValue(2000.0)
+        assert win.state.result.request.rf is None          # still off: only the settings changed
+        c["rf"].setCurrentIndex(1)                          # "single frequency"
+        res = win.state.result
+        assert res.request.rf == (1.401, 2000.0, "perpendicular")
+        assert win.readout.labels["rf"].text() == "RF 1.401 MHz, 2000 nT, perpendicular"
+        assert any(m.startswith("computing the RF yield function (RF 1.401 MHz, 2000 nT, perpendicular) "
+                                "at 50 uT, degree 4") for m in said), said
+        assert np.max(np.abs(res.pattern.yields - off)) > 0.01 * np.ptp(off)
+        c["rf_direction"].setCurrentText("parallel")
+        assert win.readout.labels["rf"].text().endswith("parallel")
+        c["rf"].setCurrentIndex(0)
+        assert win.readout.labels["rf"].text() == "RF off"
+        np.testing.assert_array_equal(win.state.result.pattern.yields, off)
+        assert win.last_error is None
+    finally:
+        win.close()
+        win.deleteLater()
+        qapp.processEvents()
+
+
+def test_a_new_rf_setting_supersedes_a_running_rf_computation(rf_scenario):
+    # Contract of gui/workers.py (common practice, no source): the running request is cancelled
+    # when a newer one needs another yield function; a new RF setting or field strength does, a
+    # head turn does not, and RF off does not need the RF one.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.workers import PatternComputer
+
+    st, c = ViewerState(rf_scenario), PatternComputer()
+    st.update(rf="tone", rf_MHz=1.0, rf_nT=300.0)
+    a = st.request()
+    st.yaw_deg = 90.0
+    assert not c.needs_new_yield(a, st.request())
+    for change in ({"rf_nT": 301.0}, {"rf_MHz": 1.1}, {"rf_direction": "parallel"}, {"intensity_uT": 49.0},
+                   {"rf": "off"}):
+        st2 = ViewerState(rf_scenario)
+        st2.update(rf="tone", rf_MHz=1.0, rf_nT=300.0)
+        st2.update(**change)
+        assert c.needs_new_yield(a, dataclass_replace(st2.request(), scenario=a.scenario)), change
+
+
+def dataclass_replace(obj, **kw):
+    import dataclasses
+
+    return dataclasses.replace(obj, **kw)

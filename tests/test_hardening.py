@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import copy
 import math
+import shutil
 import tomllib
 from pathlib import Path
 
@@ -119,6 +120,35 @@ def _run_cases(capsys, cases, every: int = 1):
     return failures
 
 
+def _assert_all_refused(capsys, cases, every: int, at_least: int, never: Path, shown: int = 20):
+    """Every ``every``-th case exits 2 with one line naming file and key; no output is written."""
+    assert len(cases) > at_least
+    failures = _run_cases(capsys, cases, every)
+    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures[:shown])
+    assert not never.exists()
+
+
+def _through_scenario(tmp: Path, kind: str, files, prefix: str):
+    """(label, argv, file, key) cases that run ``retina patterns`` on a scenario whose ``[yield]``
+    names each file under ``kind`` ("import" or "file")."""
+    return [(label, ["patterns", str(_scenario_with(tmp, kind, f, f"{prefix}{j}")), "-o", str(tmp / "never"), "-q"],
+             f, key) for j, (label, f, key) in enumerate(files)]
+
+
+def _h5_variant(valid: Path, f: Path, fn) -> Path:
+    """A copy of the HDF5 file ``valid`` at ``f``, changed in place by ``fn(h5py.File)``."""
+    shutil.copy(valid, f)
+    with h5py.File(f, "r+") as h:
+        fn(h)
+    return f
+
+
+def _not_hdf5(f: Path):
+    """A text file with an HDF5 name: (label, file, key) with no key to name."""
+    f.write_text("hello")
+    return "not HDF5", f, None
+
+
 # ------------------------------------------------------------------------------ spin files
 
 
@@ -156,11 +186,7 @@ def spin_cases(tmp: Path):
 
 @_EVERY
 def test_malformed_spin_files(tmp_path, capsys, every):
-    cases = list(spin_cases(tmp_path))
-    assert len(cases) > 150
-    failures = _run_cases(capsys, cases, every)
-    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures[:20])
-    assert not (tmp_path / "never.h5").exists()
+    _assert_all_refused(capsys, list(spin_cases(tmp_path)), every, 150, tmp_path / "never.h5")
 
 
 # ------------------------------------------------------------------------------ scenarios
@@ -221,11 +247,7 @@ def scenario_cases(tmp: Path):
 
 @_EVERY
 def test_malformed_scenarios(tmp_path, capsys, every):
-    cases = list(scenario_cases(tmp_path))
-    assert len(cases) > 200
-    failures = _run_cases(capsys, cases, every)
-    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures[:20])
-    assert not (tmp_path / "never").exists()
+    _assert_all_refused(capsys, list(scenario_cases(tmp_path)), every, 200, tmp_path / "never")
 
 
 def _scenario_with(tmp: Path, kind: str, target: Path, name: str) -> Path:
@@ -306,14 +328,8 @@ def import_cases(tmp: Path):
 
 @_EVERY
 def test_malformed_import_tables(tmp_path, capsys, every):
-    cases = []
-    for j, (label, table, key) in enumerate(import_cases(tmp_path)):
-        sc = _scenario_with(tmp_path, "import", table, f"imp{j}")
-        cases.append((label, ["patterns", str(sc), "-o", str(tmp_path / "never"), "-q"], table, key))
-    assert len(cases) > 25
-    failures = _run_cases(capsys, cases, every)
-    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures)
-    assert not (tmp_path / "never").exists()
+    cases = _through_scenario(tmp_path, "import", import_cases(tmp_path), "imp")
+    _assert_all_refused(capsys, cases, every, 25, tmp_path / "never", shown=len(cases))
 
 
 # ------------------------------------------------------------------------------ yield files
@@ -329,17 +345,19 @@ def _valid_yield_file(path: Path) -> Path:
     return path
 
 
+def _out_of_range(it):
+    """(label, file tag, value) beyond a numeric schema item's bounds, far enough to be refused."""
+    if it.kind not in ("float", "int"):
+        return []
+    out = [] if it.high is None else [("too large", "hi", it.high * 10 + 1000)]
+    return out + ([] if it.low is None else [("too small", "lo", it.low - 1000)])
+
+
 def _h5_mutations(valid: Path, tmp: Path, schema, prefix: str):
     """(label, file, key) for every item of ``schema``: deleted, a string, a wrong shape, NaN,
     out of range; and every group replaced by a dataset."""
-    import shutil
-
     def variant(name, fn):
-        f = tmp / f"{prefix}_{name}.h5"
-        shutil.copy(valid, f)
-        with h5py.File(f, "r+") as h:
-            fn(h)
-        return f
+        return _h5_variant(valid, tmp / f"{prefix}_{name}.h5", fn)
 
     with h5py.File(valid, "r") as h:
         members = {}
@@ -353,8 +371,6 @@ def _h5_mutations(valid: Path, tmp: Path, schema, prefix: str):
     for grp in schema.groups:
         for gpath in members[grp.path]:
             n += 1
-            if grp.required or grp.path.endswith("/*"):
-                pass
             if grp.required:
                 yield f"/{gpath} deleted", variant(f"g{n}del", lambda h, g=gpath: h.__delitem__(g)), f"/{gpath}"
 
@@ -385,10 +401,8 @@ def _h5_mutations(valid: Path, tmp: Path, schema, prefix: str):
                             yield f"{key} wrong text", variant(f"i{n}bad", lambda h: set_attr(h, "{not json")), key
                     if it.kind == "float" and it.finite:
                         yield f"{key} NaN", variant(f"i{n}nan", lambda h: set_attr(h, np.nan)), key
-                    if it.kind in ("float", "int") and it.high is not None:
-                        yield f"{key} too large", variant(f"i{n}hi", lambda h: set_attr(h, it.high * 10 + 1000)), key
-                    if it.kind in ("float", "int") and it.low is not None:
-                        yield f"{key} too small", variant(f"i{n}lo", lambda h: set_attr(h, it.low - 1000)), key
+                    for word, tag, value in _out_of_range(it):
+                        yield f"{key} {word}", variant(f"i{n}{tag}", lambda h, v=value: set_attr(h, v)), key
                 else:
                     dpath = f"{gpath}/{it.name}"
                     key = f"/{dpath}"
@@ -406,18 +420,13 @@ def _h5_mutations(valid: Path, tmp: Path, schema, prefix: str):
                         yield f"{key} deleted", variant(f"d{n}del", lambda h: replace(h, None)), key
                     yield f"{key} text", variant(f"d{n}txt", lambda h: replace(h, np.array([b"a"] * max(1, orig.size)))), key
                     yield f"{key} extra axis", variant(f"d{n}ax", lambda h: replace(h, np.zeros(shape + (2,)))), key
-                    if it.kind == "float" and it.finite and orig.size:
-                        bad = np.array(orig, dtype=float)
-                        bad.flat[0] = np.nan
-                        yield f"{key} NaN", variant(f"d{n}nan", lambda h, b=bad: replace(h, b)), key
-                    if it.kind in ("float", "int") and it.high is not None and orig.size:
-                        bad = np.array(orig, dtype=float if it.kind == "float" else np.int64)
-                        bad.flat[0] = it.high * 10 + 1000
-                        yield f"{key} too large", variant(f"d{n}hi", lambda h, b=bad: replace(h, b)), key
-                    if it.kind in ("float", "int") and it.low is not None and orig.size:
-                        bad = np.array(orig, dtype=float if it.kind == "float" else np.int64)
-                        bad.flat[0] = it.low - 1000
-                        yield f"{key} too small", variant(f"d{n}lo", lambda h, b=bad: replace(h, b)), key
+                    if not orig.size:
+                        continue
+                    bad_values = [("NaN", "nan", np.nan)] if it.kind == "float" and it.finite else []
+                    for word, tag, value in bad_values + _out_of_range(it):
+                        bad = np.array(orig, dtype=np.int64 if it.kind == "int" and word != "NaN" else float)
+                        bad.flat[0] = value
+                        yield f"{key} {word}", variant(f"d{n}{tag}", lambda h, b=bad: replace(h, b)), key
 
 
 def yield_file_cases(tmp: Path):
@@ -427,13 +436,7 @@ def yield_file_cases(tmp: Path):
     yield from _h5_mutations(valid, tmp, YIELD_SCHEMA, "yf")
 
     def extra(name, fn, key):
-        import shutil
-
-        f = tmp / f"yf_x_{name}.h5"
-        shutil.copy(valid, f)
-        with h5py.File(f, "r+") as h:
-            fn(h)
-        return name, f, key
+        return name, _h5_variant(valid, tmp / f"yf_x_{name}.h5", fn), key
 
     def coeffs_to(value):
         def fn(h):
@@ -457,21 +460,13 @@ def yield_file_cases(tmp: Path):
         h.create_dataset("provenance", data=np.zeros(3))
     yield extra("provenance a dataset", prov_dataset, "/provenance")
     yield extra("wrong format", lambda h: h.attrs.__setitem__("format", "something else"), "/@format")
-    notes = tmp / "notes.h5"
-    notes.write_text("hello")
-    yield "not HDF5", notes, None
+    yield _not_hdf5(tmp / "notes.h5")
 
 
 @_EVERY
 def test_malformed_yield_files(tmp_path, capsys, every):
-    cases = []
-    for j, (label, f, key) in enumerate(yield_file_cases(tmp_path)):
-        sc = _scenario_with(tmp_path, "file", f, f"yfs{j}")
-        cases.append((label, ["patterns", str(sc), "-o", str(tmp_path / "never"), "-q"], f, key))
-    assert len(cases) > 25
-    failures = _run_cases(capsys, cases, every)
-    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures)
-    assert not (tmp_path / "never").exists()
+    cases = _through_scenario(tmp_path, "file", yield_file_cases(tmp_path), "yfs")
+    _assert_all_refused(capsys, cases, every, 25, tmp_path / "never", shown=len(cases))
 
 
 # ------------------------------------------------------------------------------ results files
@@ -530,9 +525,7 @@ def results_cases(tmp: Path):
 
     valid = synthetic_results(tmp / "valid_results.h5")
     yield from _h5_mutations(valid, tmp, RESULTS_SCHEMA, "res")
-    notes = tmp / "res_notes.h5"
-    notes.write_text("hello")
-    yield "not HDF5", notes, None
+    yield _not_hdf5(tmp / "res_notes.h5")
 
 
 def test_synthetic_results_file_is_valid(tmp_path):
@@ -547,10 +540,7 @@ def test_synthetic_results_file_is_valid(tmp_path):
 def test_malformed_results_files(tmp_path, capsys, every):
     cases = [(label, ["report", str(f), "-o", str(tmp_path / "never"), "-q"], f, key)
              for label, f, key in results_cases(tmp_path)]
-    assert len(cases) > 150
-    failures = _run_cases(capsys, cases, every)
-    assert not failures, f"{len(failures)} of {len(cases)} cases misbehaved:\n" + "\n".join(failures[:30])
-    assert not (tmp_path / "never").exists()
+    _assert_all_refused(capsys, cases, every, 150, tmp_path / "never", shown=30)
 
 
 # ------------------------------------------------------------------------------ numeric CLI options

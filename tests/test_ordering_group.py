@@ -411,3 +411,69 @@ def test_study_cases_join_the_restraint_classes():
     norms = [np.linalg.norm(cls[k][1:]) for k in ("aligned", "restrained_two", "restrained_one",
                                                    "isotropic")]
     assert norms[0] > norms[1] > norms[2] > norms[3] == 0
+
+
+# ------------------------------------------------------------------------------ any concentration up to inf
+
+KAPPAS_ANY = [1e-4, 1e-2, 0.5, 3.0, 40.0, 1e3, 1e6, 1e8, 2e8, 1e9, 1e11, 1e12, 1e15, 1e17, 1e50, 1e300]
+
+
+@pytest.mark.parametrize("kappa", KAPPAS_ANY)
+def test_cone_mean_cosine_and_order_parameter_for_any_kappa(kappa):
+    # Derived: for the vMF density C exp(k t) on the sphere, <t> = int t e^{kt} dt / int e^{kt} dt
+    # over [-1, 1] = coth(k) - 1/k, and the Bessel recurrence I_{v-1} - I_{v+1} = (2v/k) I_v at
+    # v = 3/2 gives <P2> = 1 - 3 <t> / k.  For k >= 1e6, coth(k) = 1 to within e^{-2k}, so <t> is
+    # 1 - 1/k and <P2> is 1 - 3/k + 3/k^2 (the large-kappa limits).  Below k = 0.05 the closed form
+    # cancels, so <t> is taken from the Laurent series coth(k) - 1/k = k/3 - k^3/45 + 2k^5/945 -
+    # k^7/4725 + ... (derived from the series of cosh and sinh; next term below 1e-14 relative).
+    lam = Cone(kappa=kappa).moments(4)
+    assert np.all(np.isfinite(lam)) and np.all((lam >= 0) & (lam <= 1))
+    if kappa < 0.05:
+        mean_cos = kappa / 3 - kappa ** 3 / 45 + 2 * kappa ** 5 / 945 - kappa ** 7 / 4725
+    else:
+        mean_cos = 1.0 / math.tanh(kappa) - 1.0 / kappa
+    assert lam[1] == pytest.approx(mean_cos, rel=1e-14)
+    assert Cone(kappa=kappa).p2 == pytest.approx(1.0 - 3.0 * mean_cos / kappa, rel=1e-14, abs=2e-14)
+    if kappa >= 1e6:
+        assert lam[1] == pytest.approx(1.0 - 1.0 / kappa, rel=1e-15)
+        assert lam[2] == pytest.approx(1.0 - 3.0 / kappa + 3.0 / kappa / kappa, rel=1e-15)
+
+
+def test_huge_kappa_cone_tends_to_aligned_as_one_over_kappa():
+    # Derived: every entry of the average Wigner diagonal differs from 1 by O(l^2 / kappa) (the vMF
+    # moments 1 - l(l+1)/(2k) + ..., the twist factors 1 - m^2/(2k) + ...), so Cone(kappa) - Aligned
+    # shrinks as 1/kappa and stays finite up to inf; the deviation at 1e9 is 1000 times that at 1e12.
+    c = coeffs_of(f_general)
+    ref = Aligned(MEAN).ensemble(c)
+    dev = {}
+    for k in (1e9, 1e12, 1e15, 1e100, 1e300, math.inf):
+        for model in (Cone(kappa=k, mean=MEAN), Cone(kappa=k, twist="fixed", mean=MEAN),
+                      Cone(kappa=k, twist=k, mean=MEAN)):
+            e = model.ensemble(c)
+            assert np.all(np.isfinite(e))
+            assert np.max(np.abs(e - ref)) <= L * (L + 1) / k * np.sum(np.abs(c)) + 1e-13
+        dev[k] = np.max(np.abs(Cone(kappa=k, mean=MEAN).ensemble(c) - ref))
+        assert np.all(np.isfinite(ConeNoTwist(kappa=k).ensemble(c)))
+        assert np.all(np.isfinite(Planar(kappa=k, twist=k, mean=MEAN).ensemble(c)))
+    assert dev[1e9] / dev[1e12] == pytest.approx(1e3, rel=1e-2)
+
+
+@pytest.mark.parametrize("kappa", [1e7, 1.5e8, 5e8, 1e9])
+def test_twist_factors_large_kappa_form_against_scipy(kappa):
+    # Reference: scipy.special.ive, I_m(k) / I_0(k), where it is still finite (below about 1e10);
+    # above 1e8 twist_factors switches to the large-argument expansion (1e-15).
+    from scipy.special import ive
+
+    m = np.arange(L + 1)
+    np.testing.assert_allclose(twist_factors(kappa, L), ive(m, kappa) / ive(0, kappa), rtol=1e-15, atol=0)
+
+
+def test_twist_factors_beyond_scipy_range():
+    # Derived from the large-argument expansion I_v(z) ~ e^z / sqrt(2 pi z) (1 - (4v^2 - 1)/(8z) +
+    # (4v^2 - 1)(4v^2 - 9)/(2 (8z)^2) - ...) (Abramowitz and Stegun 9.7.1, from memory):
+    # I_1 / I_0 = 1 - 1/(2z) - 1/(8z^2) + O(z^-3), and I_m / I_0 = 1 - m^2/(2z) + O(z^-2).
+    for z in (1e12, 1e20, 1e300):
+        a = twist_factors(z, L)
+        assert np.all(np.isfinite(a))
+        assert a[1] == pytest.approx(1.0 - 1.0 / (2 * z) - 1.0 / (8 * z * z), rel=1e-15)
+        np.testing.assert_allclose(a, 1.0 - np.arange(L + 1) ** 2 / (2 * z), rtol=1e-15)

@@ -18,7 +18,7 @@ import scipy.constants as sc
 from scipy.integrate import solve_ivp
 
 from retina.errors import InputError, ResourceError
-from retina.spin import hilbert, liouville, rf
+from retina.spin import hilbert, liouville, rf, rf_floquet
 from retina.spin.system import Nucleus, Radical, Relaxation, SpinSystem
 from retina.yieldfn import YieldFunction
 
@@ -392,7 +392,7 @@ def test_iterative_solvers_hand_over_to_block_elimination(monkeypatch):
     sys_, dirs = rich_pair(), unit([[0.3, -0.2, 1.0]])
     kw = dict(rf_MHz=1.2, rf_nT=4000.0, rf_direction="parallel", harmonics=4)
     ref = rf.yields_rf(sys_, 50.0, dirs, solver="blocks", **kw)
-    monkeypatch.setattr(rf, "_COND_LIMIT", 0.0)
+    monkeypatch.setattr(rf_floquet, "_COND_LIMIT", 0.0)
     for solver in ("sylvester", "eig"):
         np.testing.assert_allclose(rf.yields_rf(sys_, 50.0, dirs, solver=solver, **kw), ref, atol=1e-12, rtol=0)
 
@@ -410,3 +410,27 @@ def test_spectrum_anisotropy_option():
     assert abs(strong.relative_anisotropy[0] - static) > 1e-4
     with pytest.raises(InputError, match="freqs_MHz"):
         rf.rf_spectrum(sys_, 50.0, [0, 0, 1], [1.0, 0.0], 50.0)
+
+
+def test_nested_azimuth_rule_is_exact_and_shares_points():
+    # Derived: K equally spaced azimuths phi_j = j pi / K average cos(2 m phi) exactly (to 0) unless
+    # m is a non-zero multiple of K.  f(phi) = 1 + cos(2 phi)^2 = 3/2 + cos(4 phi) / 2 has mean 3/2;
+    # the 2-point rule gives 2 (m = 2 is a multiple of 2), the 4- and 8-point rules 3/2, so "auto"
+    # stops at 8 azimuths.  Nested rules: 8 distinct azimuths are evaluated, not 2 + 4 + 8.
+    from retina.spin._rf_common import azimuth_mean, check_azimuths
+
+    calls = []
+
+    def f(t):
+        calls.append(t)
+        phi = np.pi * t
+        return (1.0 + np.cos(2 * phi) ** 2, 7.0)
+
+    (mean, other), k = azimuth_mean(f, "auto", 1e-12)
+    assert k == 8 and mean == pytest.approx(1.5, abs=1e-14) and other == 7.0
+    assert len(calls) == len(set(calls)) == 8
+    (mean2,), k2 = azimuth_mean(lambda t: (1.0 + np.cos(2 * np.pi * t) ** 2,), 2, 1e-12)
+    assert (mean2, k2) == (pytest.approx(2.0, abs=1e-14), 2)
+    for bad in (3, 0, 128, True, 2.0):
+        with pytest.raises(InputError, match="azimuths"):
+            check_azimuths(bad)

@@ -11,9 +11,26 @@ from retina.errors import InputError
 
 
 def common_inputs(args):
-    """Load the spin system and check ``--field-uT``, ``--degree``, ``--max-memory-gb`` and the output.
+    """Load the spin system and check the options ``yields`` and ``rf`` share.
 
-    Returns ``(system, field_uT, degree, max_bytes)``; raises :class:`InputError` naming the option.
+    Parameters
+    ----------
+    args : argparse.Namespace
+        With ``system``, ``field_uT``, ``degree``, ``max_memory_gb``, ``output`` and ``force``.
+
+    Returns
+    -------
+    system : SpinSystem
+    field_uT : float
+        Microtesla.
+    degree : int
+    max_bytes : int or None
+        The memory limit in bytes.
+
+    Raises
+    ------
+    InputError
+        Naming the option (``--field-uT``, ``--degree``, the output file).
     """
     from retina.io.atomic import check_writable
     from retina.spin.io import load_system

@@ -14,9 +14,40 @@ __all__ = ["real", "whole"]
 
 
 def real(what: str, *, low: float | None = None, high: float | None = None, low_open: bool = False):
-    """A finite float in ``[low, high]`` (``(low, high]`` when ``low_open``)."""
+    """An ``argparse`` type for a finite float in ``[low, high]`` (``(low, high]`` when ``low_open``).
+
+    Parameters
+    ----------
+    what : str
+        What the number is, for the message ("gigabytes", "microtesla").
+    low, high : float, optional
+        Bounds.
+    low_open : bool
+        Exclude ``low``.
+
+    Returns
+    -------
+    callable(str) -> float
+        Raises ``argparse.ArgumentTypeError`` (exit 2, one line) for NaN, inf or out-of-range text.
+    """
 
     def parse(text: str) -> float:
+        """Read the option's text as the number.
+
+        Parameters
+        ----------
+        text : str
+            The option's value.
+
+        Returns
+        -------
+        float
+
+        Raises
+        ------
+        argparse.ArgumentTypeError
+            For text that is not a finite number in range.
+        """
         try:
             x = float(text)
         except ValueError:
@@ -34,9 +65,38 @@ def real(what: str, *, low: float | None = None, high: float | None = None, low_
 
 
 def whole(what: str, *, low: int | None = None, high: int | None = None):
-    """A whole number in ``[low, high]``."""
+    """An ``argparse`` type for a whole number in ``[low, high]``.
+
+    Parameters
+    ----------
+    what : str
+        What the number is, for the message.
+    low, high : int, optional
+        Bounds.
+
+    Returns
+    -------
+    callable(str) -> int
+        Raises ``argparse.ArgumentTypeError`` (exit 2, one line) for other text or out-of-range values.
+    """
 
     def parse(text: str) -> int:
+        """Read the option's text as the whole number.
+
+        Parameters
+        ----------
+        text : str
+            The option's value.
+
+        Returns
+        -------
+        int
+
+        Raises
+        ------
+        argparse.ArgumentTypeError
+            For text that is not a whole number in range.
+        """
         try:
             x = int(text)
         except ValueError:

@@ -31,13 +31,28 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def bundled_scenario() -> Path:
-    """Path of the bundled demo scenario (:func:`retina.data.demo_scenario_path`)."""
+    """Path of the bundled demo scenario (:func:`retina.data.demo_scenario_path`).
+
+    Returns
+    -------
+    Path
+        The installed copy of ``assets/demo_scenario.toml``.
+    """
     from retina.data import demo_scenario_path
 
     return demo_scenario_path()
 
 
 def register(subparsers) -> None:
+    """Add the ``retina demo`` parser to the sub-parser collection.
+
+    The scenario options are those of :func:`retina.commands._common.add_common_arguments`.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "demo", help="run the whole job on the bundled invented scenario and write a report folder",
         description="Run every stage (yield function, patterns, head scan, precision, disorder sweep, "
@@ -52,6 +67,21 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina demo`` with parsed options.
+
+    Every stage on the bundled scenario (:func:`bundled_scenario`), or a scenario given, into a report folder.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     path = Path(args.scenario) if args.scenario else bundled_scenario()
     return _common.run_command(args, ("patterns", "scan", "precision", "disorder", "order", "trials", "rf",
                                       "rf_sweep"),

@@ -24,6 +24,15 @@ exit status: 0 done, 1 failed, 2 bad input
 
 
 def register(subparsers) -> None:
+    """Add the ``retina export`` parser to the sub-parser collection.
+
+    Options: the results file, ``--csv``, ``--json``, ``--force``.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser("export", help="write the key numbers of a results file as CSV or JSON",
                               description="Write the key numbers of a results.h5 as CSV and/or JSON.",
                               epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
@@ -34,6 +43,21 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina export`` with parsed options.
+
+    Writes the key numbers of a results file as CSV and/or JSON rows with units.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     from retina.io.atomic import atomic_write_text
     from retina.outputs.export import key_number_rows, rows_to_csv, rows_to_json
     from retina.results import load_results

@@ -19,6 +19,15 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def register(subparsers) -> None:
+    """Add the ``retina patterns`` parser to the sub-parser collection.
+
+    The scenario options are those of :func:`retina.commands._common.add_common_arguments`.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "patterns", help="render the modulation pattern over both retinas for a list of headings",
         description="Build the scenario's yield function and retina, compute the yield and relative "
@@ -32,4 +41,19 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina patterns`` with parsed options.
+
+    Stage ``patterns`` of the scenario (:func:`retina.commands._common.run_command`): results, figures and report written together.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     return _common.run_command(args, ("patterns",), title=None)

@@ -21,6 +21,15 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def register(subparsers) -> None:
+    """Add the ``retina precision`` parser to the sub-parser collection.
+
+    The scenario options are those of :func:`retina.commands._common.add_common_arguments`.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "precision", help="Cramer-Rao bounds and decoding errors against photons; the disorder sweep",
         description="Compute the Fisher information on heading from Poisson receptor counts, its "
@@ -33,4 +42,19 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina precision`` with parsed options.
+
+    Stages ``scan``, ``precision``, ``disorder`` and ``order`` of the scenario (:func:`retina.commands._common.run_command`).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     return _common.run_command(args, ("scan", "precision", "disorder", "order"))

@@ -22,6 +22,15 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def register(subparsers) -> None:
+    """Add the ``retina report`` parser to the sub-parser collection.
+
+    Options: the results file, the output folder, ``--force``, formats.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "report", help="draw the figures and write the HTML/Markdown report from a results file",
         description="Redraw the figures and rewrite the report from a results HDF5 file, without "
@@ -38,6 +47,21 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina report`` with parsed options.
+
+    Rebuilds the figures and the report from a results file, without computing.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     from retina.outputs import write_outputs
     from retina.outputs.text import summary_text
     from retina.progress import ProgressBars

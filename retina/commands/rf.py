@@ -34,6 +34,15 @@ Modelling only; RF transmitters are regulated: follow local rules on licensing a
 
 
 def register(subparsers) -> None:
+    """Add the ``retina rf`` parser to the sub-parser collection.
+
+    Options: the spin system, field, degree, RF frequency, amplitude and direction, tolerance, spectrum.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "rf",
         help="the yield function under a radio-frequency field (exact RF methods) into an HDF5 file",
@@ -64,12 +73,23 @@ def register(subparsers) -> None:
 
 
 def parse_spectrum(text: str) -> np.ndarray:
-    """``"start:stop:count"`` (MHz) -> ``count`` log-spaced frequencies, shape (count,).
+    """Parse the ``--spectrum`` option into RF frequencies.
+
+    Parameters
+    ----------
+    text : str
+        ``START:STOP:COUNT``: ``COUNT`` (1 to 10,000) frequencies from ``START`` to ``STOP`` MHz
+        (``0 < START <= STOP``), spaced geometrically.
+
+    Returns
+    -------
+    ndarray, shape (COUNT,)
+        MHz.
 
     Raises
     ------
     InputError
-        Naming ``--spectrum`` and the expected form.
+        Key ``--spectrum``.
     """
     parts = str(text).split(":")
     try:
@@ -99,7 +119,25 @@ def _direction_words(v) -> str:
 
 
 def summary(static, rfyf, output, wall_seconds: float, n_compare: int = 2000) -> str:
-    """The comparison in words (what the command prints on stdout)."""
+    """The lines printed after ``retina rf``: the RF effect beside the static yield function.
+
+    Parameters
+    ----------
+    static : YieldFunction
+        The yield function without RF.
+    rfyf : YieldFunction
+        The RF yield function (its provenance gives the RF settings and convergence).
+    output : str or Path
+        The file written.
+    wall_seconds : float
+        Wall time of the command.
+    n_compare : int
+        Fibonacci directions on which the two are compared.
+
+    Returns
+    -------
+    str
+    """
     from retina import sphere
 
     p = rfyf.provenance
@@ -126,6 +164,18 @@ def summary(static, rfyf, output, wall_seconds: float, n_compare: int = 2000) ->
 
 
 def spectrum_table(spec) -> str:
+    """The spectrum as a text table: frequency, yield change and Floquet order.
+
+    Parameters
+    ----------
+    spec : RFSpectrum
+        From :func:`retina.spin.rf.rf_spectrum`.
+
+    Returns
+    -------
+    str
+        One line per frequency under a header.
+    """
     lines = [f"  {'f (MHz)':>10}  {'yield change':>13}  {'harmonics':>9}"]
     for f, d, h in zip(spec.freqs_MHz, spec.delta, spec.harmonics):
         lines.append(f"  {f:10.4g}  {d:+13.4e}  {int(h):9d}")
@@ -133,6 +183,21 @@ def spectrum_table(spec) -> str:
 
 
 def run(args) -> int:
+    """Run ``retina rf`` with parsed options.
+
+    Computes the static and the RF yield functions of a spin system and writes the RF one atomically; optionally a spectrum against frequency.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     from retina.commands._spin_args import common_inputs
     from retina.progress import ProgressBar
     from retina.spin import rf
@@ -142,12 +207,12 @@ def run(args) -> int:
     system, field, degree, max_bytes = common_inputs(args)
     try:
         rf.check_rf(args.rf_MHz, args.rf_nT, args.direction)
-        tol = rf._check_tol(args.tol)
+        tol = rf.check_tol(args.tol)
     except InputError as exc:
         key = {"rf_MHz": "--rf-MHz", "rf_nT": "--rf-nT", "rf_direction": "--direction", "tol": "--tol"}[exc.key]
         raise InputError(exc.detail, key=key) from None
     freqs = parse_spectrum(args.spectrum) if args.spectrum is not None else None
-    rf._check_memory(system, 4, "auto", max_bytes)
+    rf.check_memory(system, 4, "auto", max_bytes)
 
     with ProgressBar(not args.quiet, "rf yields", unit="dir") as progress:
         static = YieldFunction.from_system(system, field, degree)

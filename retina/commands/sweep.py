@@ -30,6 +30,15 @@ exit status: 0 done, 1 some points failed (the others are in the dataset), 2 bad
 
 
 def register(subparsers) -> None:
+    """Add the ``retina sweep`` parser to the sub-parser collection.
+
+    Options: the sweep file, workers or scheduler, ``--resume``, ``--force``.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "sweep", help="run a parameter sweep (a base scenario over axes) on all cores or a Dask cluster",
         description="Run every point of a sweep file (a base scenario, axes over any scenario or spin-system "
@@ -63,6 +72,22 @@ def _list_outputs() -> int:
 
 
 def run(args) -> int:
+    """Run ``retina sweep`` with parsed options.
+
+    Runs a sweep file on local workers or a Dask cluster (or lists what a sweep can collect).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done, 1 when some points failed.  Bad input and refusals raise
+        :class:`~retina.errors.InputError` or :class:`~retina.errors.ResourceError`, which
+        :func:`retina.cli.main` turns into exit 2.
+    """
     import sys
     import time
 

@@ -21,6 +21,15 @@ exit status: 0 done, 1 failed, 2 bad input, 130 interrupted
 
 
 def register(subparsers) -> None:
+    """Add the ``retina trials`` parser to the sub-parser collection.
+
+    The scenario options are those of :func:`retina.commands._common.add_common_arguments`.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "trials", help="simulate orientation trials and test their directions (Rayleigh, V test)",
         description="Simulate orientation trials of a bird that reads its heading from the magnetic "
@@ -31,4 +40,19 @@ def register(subparsers) -> None:
 
 
 def run(args) -> int:
+    """Run ``retina trials`` with parsed options.
+
+    Stage ``trials`` of the scenario (:func:`retina.commands._common.run_command`).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     return _common.run_command(args, ("trials",))

@@ -37,6 +37,15 @@ exit status: 0 done, 1 failed, 2 bad input or the viewer cannot start
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
+    """Add the viewer's options (scenario, ``--quick``/``--full``, ``--screenshot``, ``--force``) to a parser.
+
+    Shared by ``retina view`` and ``python -m retina_viewer``.
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The parser to extend.
+    """
     p.add_argument("scenario", nargs="?", default=None, metavar="SCENARIO.toml",
                    help="the scenario file (default: the bundled demo scenario in quick settings)")
     g = p.add_mutually_exclusive_group()
@@ -50,6 +59,15 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def register(subparsers) -> None:
+    """Add the ``retina view`` parser to the sub-parser collection.
+
+    Options of :func:`add_arguments`.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "view", help="open the desktop viewer: rotate the head and the field live",
         description="Open the desktop viewer (needs the 'viewer' extra: vispy and PyQt6). The head "
@@ -70,6 +88,22 @@ def _has_display() -> bool:
 
 
 def run(args) -> int:
+    """Run ``retina view`` with parsed options.
+
+    Opens the desktop viewer on a scenario (the viewer is imported only here).
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 when the window closed, 2 when the viewer's packages or a display are
+        missing.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     if importlib.util.find_spec("PyQt6") is None or importlib.util.find_spec("vispy") is None:
         print(f"retina: error: {MISSING_EXTRA}", file=sys.stderr)
         return 2
@@ -86,7 +120,18 @@ def run(args) -> int:
 
 
 def main(argv=None) -> int:
-    """Stand-alone entry point (``python -m retina_viewer``): parse, run, print an InputError as one line."""
+    """``python -m retina_viewer``: the same program as ``retina view``.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        Arguments (default ``sys.argv[1:]``).
+
+    Returns
+    -------
+    int
+        Exit status (as :func:`run`; 2 for bad input).
+    """
     p = argparse.ArgumentParser(prog="python -m retina_viewer", description="retina-compass viewer",
                                 epilog=_EXAMPLES, formatter_class=argparse.RawDescriptionHelpFormatter)
     add_arguments(p)

@@ -35,6 +35,15 @@ Load it in Python with retina.yieldfn.YieldFunction.load("pair.h5").
 
 
 def register(subparsers) -> None:
+    """Add the ``retina yields`` parser to the sub-parser collection.
+
+    Options: the spin system, field, degree, method, output, cache.
+
+    Parameters
+    ----------
+    subparsers : argparse._SubParsersAction
+        From ``ArgumentParser.add_subparsers`` in :func:`retina.cli.build_parser`.
+    """
     p = subparsers.add_parser(
         "yields",
         help="compute a radical pair's yield function (spherical harmonics) into an HDF5 file",
@@ -101,7 +110,21 @@ def _direction_words(v) -> str:
 
 
 def summary(yf, output, wall_seconds: float) -> str:
-    """The result in words (what the command prints on stdout)."""
+    """The lines printed after ``retina yields``.
+
+    Parameters
+    ----------
+    yf : YieldFunction
+        The computed yield function (provenance: method, cost, truncation error, anisotropy).
+    output : str or Path
+        The file written.
+    wall_seconds : float
+        Wall time of the command.
+
+    Returns
+    -------
+    str
+    """
     p = yf.provenance
     an = yf.anisotropy()
     name = p.get("system_name", "?")
@@ -136,6 +159,21 @@ def summary(yf, output, wall_seconds: float) -> str:
 
 
 def run(args) -> int:
+    """Run ``retina yields`` with parsed options.
+
+    Computes a spin system's yield function (method chosen by cost) and writes it atomically.
+
+    Parameters
+    ----------
+    args : argparse.Namespace
+        The options of its parser.
+
+    Returns
+    -------
+    int
+        Exit status: 0 done.  Bad input and refusals raise :class:`~retina.errors.InputError` or
+        :class:`~retina.errors.ResourceError`, which :func:`retina.cli.main` turns into exit 2.
+    """
     from retina import sphere
     from retina.cache import YieldCache, cache_key
     from retina.commands._spin_args import common_inputs

@@ -147,6 +147,16 @@ def decimal_year(date) -> float:
     ----------
     date : datetime.date, datetime.datetime, float or str
         A calendar date/time, a decimal year (e.g. ``2025.5``) or an ISO string (``"2025-06-01"``).
+
+    Returns
+    -------
+    float
+        The year plus the elapsed fraction of it.
+
+    Raises
+    ------
+    InputError
+        Key ``date``, for text that is neither an ISO date nor a number, or a non-finite year.
     """
     if isinstance(date, str):
         try:

@@ -84,8 +84,20 @@ _MIRROR = np.diag([1.0, -1.0, 1.0])
 
 
 def optical_axis(azimuth_deg: float, elevation_deg: float) -> np.ndarray:
-    """Unit visual direction ``(3,)`` for an azimuth from the beak (positive right) and elevation
-    (positive up), degrees."""
+    """Unit visual direction for an azimuth from the beak and an elevation.
+
+    Parameters
+    ----------
+    azimuth_deg : float
+        Degrees from the beak, positive to the right.
+    elevation_deg : float
+        Degrees, positive up.
+
+    Returns
+    -------
+    ndarray, shape (3,)
+        Unit vector in the head frame (x forward, y right, z down).
+    """
     az, el = math.radians(azimuth_deg), math.radians(elevation_deg)
     return np.array([math.cos(el) * math.cos(az), math.cos(el) * math.sin(az), -math.sin(el)])
 
@@ -199,9 +211,22 @@ class Eye:
 
 
 def default_eyes(n_receptors: int = 2000, **kwargs) -> tuple[Eye, Eye]:
-    """Left and right eyes of the small songbird-like model eye (defaults and provenance in the
-    module docstring); ``kwargs`` override :class:`Eye` fields of the right eye, the left eye is
-    its mirror image."""
+    """Left and right eyes of the small songbird-like model eye.
+
+    Defaults and provenance in the module docstring; the left eye is the mirror image of the right.
+
+    Parameters
+    ----------
+    n_receptors : int
+        Receptors per eye.
+    **kwargs
+        Override :class:`Eye` fields of the right eye.
+
+    Returns
+    -------
+    (Eye, Eye)
+        Left, right.
+    """
     right = Eye(side="right", n_receptors=n_receptors, **kwargs)
     return right.mirrored(), right
 
@@ -230,6 +255,11 @@ def _inverse_cumulative(eye: Eye, q: np.ndarray) -> np.ndarray:
 
 def cap_points(eye: Eye) -> tuple[np.ndarray, np.ndarray]:
     """Fibonacci-spiral points on the cap in the cap's own frame (z = cap centre).
+
+    Parameters
+    ----------
+    eye : Eye
+        The eye (extent, density profile, number of receptors).
 
     Returns
     -------
@@ -264,8 +294,21 @@ def _perp_basis(z: np.ndarray) -> np.ndarray:
 
 
 def local_frames(axes: np.ndarray) -> np.ndarray:
-    """Receptor-to-head rotation matrices (N, 3, 3) for unit axes (N, 3): columns x, y, z with z
-    the axis, x the projected dorsal direction (forward at the singular point), y = z x x."""
+    """Receptor-to-head rotation matrices for unit receptor axes.
+
+    Columns x, y, z with z the axis, x the projected dorsal direction (forward at the singular
+    point), y = z x x.
+
+    Parameters
+    ----------
+    axes : ndarray, shape (N, 3)
+        Unit receptor axes, head frame.
+
+    Returns
+    -------
+    ndarray, shape (N, 3, 3)
+        Rotation matrices (receptor frame to head frame).
+    """
     z = np.asarray(axes, dtype=float)
     z = z / np.linalg.norm(z, axis=1, keepdims=True)
     x = _perp_basis(z)

@@ -90,7 +90,20 @@ def _eye_means(yields: np.ndarray, receptors: Receptors) -> np.ndarray:
 
 
 def modulation(yields, receptors: Receptors) -> np.ndarray:
-    """Relative modulation ``(Phi - mean_e) / mean_e`` of yields ``(..., N)`` (same shape)."""
+    """Relative modulation ``(Phi - mean_e) / mean_e`` of yields, per eye.
+
+    Parameters
+    ----------
+    yields : array_like, shape (..., N)
+        Reported yields of the receptors.
+    receptors : Receptors
+        Their eye membership and solid-angle weights (the mean of each eye is weighted).
+
+    Returns
+    -------
+    ndarray, shape (..., N)
+        Dimensionless.
+    """
     y = np.asarray(yields, dtype=float)
     m = _eye_means(y, receptors)
     per = m[..., receptors.eye_index]

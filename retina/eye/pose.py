@@ -121,9 +121,21 @@ def head_field(rotations, b_world) -> np.ndarray:
 
 
 def head_field_dyaw(rotations, b_world) -> np.ndarray:
-    """Derivative of :func:`head_field` with respect to yaw, per radian, shape (P, 3).
+    """Derivative of :func:`head_field` with respect to yaw, per radian.
 
     ``d b_head / d psi = -R^T (e_z x b_hat)`` (see the module docstring); tangential to the sphere.
+
+    Parameters
+    ----------
+    rotations : Rotation (single or P) or Pose
+        Head-to-world rotations.
+    b_world : array_like, shape (3,)
+        Field vector in the world frame (any units; only its direction is used).
+
+    Returns
+    -------
+    ndarray, shape (P, 3)
+        Per radian of yaw, head frame.
     """
     R = _as_rotations(rotations)
     b = _unit_world(b_world)
@@ -163,8 +175,19 @@ class HeadScan:
 
 
 def poses_from_arrays(yaw_deg, pitch_deg=0.0, roll_deg=0.0, times_s=None) -> HeadScan:
-    """A :class:`HeadScan` from angle arrays (degrees), broadcast together; times default to
-    0 .. P-1 s."""
+    """A :class:`HeadScan` from angle arrays, broadcast together.
+
+    Parameters
+    ----------
+    yaw_deg, pitch_deg, roll_deg : array_like
+        Angles in degrees (broadcast to a common length ``P``).
+    times_s : array_like, shape (P,), optional
+        Times of the poses, seconds; default 0 .. P-1.
+
+    Returns
+    -------
+    HeadScan
+    """
     y, p, r = np.broadcast_arrays(*(np.atleast_1d(_finite(n, v)) for n, v in
                                     (("yaw_deg", yaw_deg), ("pitch_deg", pitch_deg),
                                      ("roll_deg", roll_deg))))
@@ -178,7 +201,22 @@ def poses_from_arrays(yaw_deg, pitch_deg=0.0, roll_deg=0.0, times_s=None) -> Hea
 
 def headings(n: int, *, start_deg: float = 0.0, pitch_deg: float = 0.0,
              roll_deg: float = 0.0) -> HeadScan:
-    """``n`` headings evenly spaced over 360 degrees from ``start_deg`` (times 0..n-1 s)."""
+    """Headings evenly spaced over 360 degrees.
+
+    Parameters
+    ----------
+    n : int
+        Number of headings.
+    start_deg : float
+        First heading, degrees.
+    pitch_deg, roll_deg : float
+        Fixed pitch and roll, degrees.
+
+    Returns
+    -------
+    HeadScan
+        ``n`` poses, times 0 .. n-1 s.
+    """
     if int(n) != n or n < 1:
         raise InputError(f"expected a positive integer count, got {n!r}", key="n")
     yaw = start_deg + 360.0 * np.arange(int(n)) / int(n)

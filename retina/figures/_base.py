@@ -36,6 +36,15 @@ def new_figure(width_in: float, height_in: float) -> Figure:
 
     Figures are built as ``matplotlib.figure.Figure`` objects and saved through the Agg renderer;
     pyplot is never imported, so no GUI backend (and no Qt) is ever loaded.
+
+    Parameters
+    ----------
+    width_in, height_in : float
+        Size in inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
     """
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(width_in, height_in), dpi=100)
@@ -43,12 +52,33 @@ def new_figure(width_in: float, height_in: float) -> Figure:
 
 
 def style():
-    """Context manager applying :data:`STYLE` while artists are created."""
+    """Context manager applying :data:`STYLE` while artists are created.
+
+    Returns
+    -------
+    contextlib.AbstractContextManager
+        ``matplotlib.rc_context`` over :data:`STYLE`.
+    """
     return matplotlib.rc_context(STYLE)
 
 
 def annotate(fig: Figure, title: str, caption: str) -> Figure:
-    """Attach the title and caption (units, parameters) that :func:`save_figure` writes as metadata."""
+    """Attach the title and caption (units, parameters) that :func:`save_figure` writes as metadata.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    title : str
+        Its title.
+    caption : str
+        Its caption (units and parameters).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        ``fig``, with ``retina_title`` and ``retina_caption`` set.
+    """
     fig.retina_title = title
     fig.retina_caption = caption
     return fig
@@ -104,7 +134,24 @@ def save_figure(fig: Figure, stem: str | Path, formats: Sequence[str] = ("png", 
 
 
 def finish(fig: Figure, path, formats: Iterable[str], dpi: int) -> Figure:
-    """Save when ``path`` is given; return the figure."""
+    """Save the figure when a path is given.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or Path or None
+        Output stem (:func:`save_figure`); None saves nothing.
+    formats : iterable of {"png", "svg", "pdf"}
+        Output formats.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        ``fig``.
+    """
     if path is not None:
         save_figure(fig, path, tuple(formats), dpi=dpi)
     return fig

@@ -48,6 +48,16 @@ def precision_curves(photons, bounds_deg: Mapping[str, np.ndarray], *,
         Measured rms decoding error, degrees (same labels draw in the same colour).
     light_levels : mapping name -> float, optional
         Named light levels drawn as vertical lines (photons per receptor).
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------
@@ -122,6 +132,16 @@ def disorder_tolerance(kappas, depth, bounds_deg: Mapping[str, np.ndarray], *, m
         Cramer-Rao bound on the heading s.d. (deg), one curve per light level.
     marked_kappa : float, optional
         A concentration to mark with a vertical line (e.g. the scenario's own).
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------

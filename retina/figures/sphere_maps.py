@@ -81,6 +81,12 @@ def yield_sphere(fn: Callable[[np.ndarray], np.ndarray], *, argmax: Sequence[flo
         Pixels per side of the hemisphere map.
     path : str or Path, optional
         Save as ``path.<fmt>`` for each of ``formats``.
+    title : str
+        Figure title (also the metadata title).
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------

@@ -29,6 +29,16 @@ def trial_histograms(headings_deg: Mapping[str, np.ndarray], goal_deg: float | N
         The intended heading, drawn as a dashed line.
     bins : int
         Histogram sectors over 360 deg.
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------

@@ -23,7 +23,20 @@ from retina.figures.marks import MARKS
 
 
 def head_lonlat(dirs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Map head-frame unit vectors ``(N, 3)`` to (azimuth, elevation) in radians, each ``(N,)``."""
+    """Map head-frame unit vectors to azimuth and elevation.
+
+    Parameters
+    ----------
+    dirs : ndarray, shape (N, 3)
+        Directions, head frame (x forward, y right, z down); normalised here.
+
+    Returns
+    -------
+    azimuth : ndarray, shape (N,)
+        Radians from the beak, positive to the right.
+    elevation : ndarray, shape (N,)
+        Radians, positive up.
+    """
     d = np.asarray(dirs, float).reshape(-1, 3)
     d = d / np.linalg.norm(d, axis=1, keepdims=True)
     return np.arctan2(d[:, 1], d[:, 0]), -np.arcsin(np.clip(d[:, 2], -1.0, 1.0))
@@ -124,6 +137,14 @@ def modulation_fields(visual_dirs, eye_index, modulation, headings_deg: Sequence
         Parameters for the caption (field, ordering, receptors).
     ncols : int
         Panels per row.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------
@@ -184,6 +205,16 @@ def scan_filmstrip(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
         Unit field direction in the head frame per pose.
     n_frames : int
         Frames shown (evenly spaced through the scan), in two rows.
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------
@@ -247,6 +278,8 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
         Raster resolution of the frames.
     force : bool
         Overwrite an existing file.
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
 
     Returns
     -------

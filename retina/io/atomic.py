@@ -18,7 +18,26 @@ from retina.errors import InputError
 
 
 def check_writable(path: str | Path, *, force: bool = False) -> Path:
-    """Refuse to overwrite an existing file unless ``force``; return the path."""
+    """Refuse to overwrite an existing file unless ``force``; check its folder is writable.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to be written.
+    force : bool
+        Allow overwriting an existing file.
+
+    Returns
+    -------
+    Path
+        ``path`` as a Path.
+
+    Raises
+    ------
+    InputError
+        When the file exists (without ``force``), is a folder, or its folder is missing or not
+        writable.
+    """
     path = Path(path)
     if path.exists() and not force:
         raise InputError("exists already; pass --force (force=True) to overwrite it", source=path)
@@ -87,12 +106,49 @@ def atomic_path(path: str | Path, *, force: bool = False, suffix: str = ".part")
 
 
 def atomic_write_bytes(path: str | Path, data: bytes, *, force: bool = False) -> Path:
+    """Write bytes atomically: a temporary file in the same folder, then ``os.replace``.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to write.
+    data : bytes
+        Its whole content.
+    force : bool
+        Allow overwriting an existing file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    InputError
+        As :func:`check_writable`.
+    """
     with atomic_path(path, force=force) as tmp:
         tmp.write_bytes(data)
     return Path(path)
 
 
 def atomic_write_text(path: str | Path, text: str, *, force: bool = False) -> Path:
+    """Write UTF-8 text atomically (:func:`atomic_write_bytes`).
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to write.
+    text : str
+        Its whole content.
+    force : bool
+        Allow overwriting an existing file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+    """
     return atomic_write_bytes(path, text.encode("utf-8"), force=force)
 
 
@@ -114,11 +170,21 @@ def _pid_alive(pid: int) -> bool:
 
 
 def clean_stale_folders(outdir: str | Path) -> list[Path]:
-    """Remove what a killed run left beside ``outdir``: hidden staging folders
-    (``.NAME.*.partial``) and superseded folders (``.NAME.*.old``) whose owning process is gone.
+    """Remove what a killed run left beside ``outdir``.
 
-    A superseded folder whose replacement never arrived (the run was killed between its two
-    renames, so ``outdir`` is missing) is renamed back to ``outdir``.  Returns the paths removed.
+    Hidden staging folders (``.NAME.*.partial``) and superseded folders (``.NAME.*.old``) whose
+    owning process is gone are removed.  A superseded folder whose replacement never arrived (the
+    run was killed between its two renames, so ``outdir`` is missing) is renamed back to ``outdir``.
+
+    Parameters
+    ----------
+    outdir : str or Path
+        The output folder a run publishes.
+
+    Returns
+    -------
+    list of Path
+        The folders removed.
     """
     import shutil
 
@@ -146,7 +212,19 @@ def clean_stale_folders(outdir: str | Path) -> list[Path]:
 
 
 def make_stage_folder(outdir: str | Path) -> Path:
-    """A new hidden folder beside ``outdir`` in which a whole output folder is built."""
+    """A new hidden folder beside ``outdir`` in which a whole output folder is built.
+
+    Parameters
+    ----------
+    outdir : str or Path
+        The output folder to be published later (:func:`publish_folder`).
+
+    Returns
+    -------
+    Path
+        ``.NAME.*.partial`` in the same parent, holding this process's id (for
+        :func:`clean_stale_folders`).
+    """
     outdir = Path(outdir)
     stage = _new_dir(outdir.parent, f".{outdir.name}.", _STAGE_SUFFIX)
     (stage / _OWNER).write_text(str(os.getpid()))
@@ -161,6 +239,18 @@ def publish_folder(stage: str | Path, outdir: str | Path) -> Path:
     (``.NAME.*.old``), ``stage`` is renamed to ``outdir`` and the old folder removed: a reader sees
     either the old folder or the new one, never a mixture.  A kill between the two renames leaves the
     old folder aside, which :func:`clean_stale_folders` puts back on the next run.
+
+    Parameters
+    ----------
+    stage : str or Path
+        The complete folder (from :func:`make_stage_folder`).
+    outdir : str or Path
+        Where it is published.
+
+    Returns
+    -------
+    Path
+        ``outdir``.
     """
     import shutil
 
@@ -192,8 +282,20 @@ def publish_folder(stage: str | Path, outdir: str | Path) -> Path:
 
 
 def check_folder_writable(folder: str | Path) -> None:
-    """Refuse early (:class:`InputError`) when files cannot be created in ``folder``: a real test
-    (create and remove a temporary file), not a look at permission bits."""
+    """Refuse early when files cannot be created in ``folder``.
+
+    A real test (create and remove a temporary file), not a look at permission bits.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The folder.
+
+    Raises
+    ------
+    InputError
+        Naming the folder and the system's reason.
+    """
     folder = Path(folder)
     try:
         tmp = _new_temp(folder, ".retina-write-test.", "")

@@ -82,7 +82,22 @@ YIELD_SCHEMA = FileSchema(
 
 
 def content_hash(coeffs: np.ndarray, degree: int) -> str:
-    """sha256 hex digest of :data:`BASIS`, ``degree`` and the little-endian float64 bytes of ``coeffs``."""
+    """The content hash of a yield function.
+
+    sha256 of :data:`BASIS`, ``degree`` and the little-endian float64 bytes of ``coeffs``.
+
+    Parameters
+    ----------
+    coeffs : ndarray, shape (K,)
+        Even-degree coefficients.
+    degree : int
+        Their degree ``L``.
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits.
+    """
     h = hashlib.sha256()
     h.update(f"{BASIS}:{int(degree)}:".encode())
     h.update(np.ascontiguousarray(coeffs, dtype="<f8").tobytes())
@@ -214,9 +229,15 @@ def save_yield_function(yf, path: str | Path, *, force: bool = False) -> Path:
 def read_yield_function(path: str | Path) -> YieldRecord:
     """Read a native yield-function file.
 
+    Parameters
+    ----------
+    path : str or Path
+        The HDF5 file (layout :data:`YIELD_SCHEMA`).
+
     Returns
     -------
     YieldRecord
+        Coefficients, degree, provenance and fit error, checked against the schema.
 
     Raises
     ------

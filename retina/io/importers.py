@@ -261,6 +261,13 @@ def read_table(path: str | Path, *, directions_key: str = "directions", values_k
                ) -> tuple[np.ndarray, np.ndarray, str]:
     """Read a table of yields at directions.
 
+    Parameters
+    ----------
+    path : str or Path
+        CSV (``x,y,z,value`` or ``theta_deg,phi_deg,value``), NPZ or HDF5 (module docstring).
+    directions_key, values_key : str
+        Array or dataset names in NPZ and HDF5 files.
+
     Returns
     -------
     directions : ndarray (N, 3)
@@ -391,16 +398,47 @@ def fit_least_squares(directions, values, degree: int, *, method: str = "auto") 
 
 
 def fit_bytes(n_points: int, degree: int) -> int:
-    """Peak working memory of :func:`fit_least_squares` in bytes (exact integers): the design matrix
-    ``(N, K)`` and one temporary of its size (the SVD fallback copies it), in float64."""
+    """Peak working memory of :func:`fit_least_squares`, in bytes (exact integers).
+
+    The design matrix ``(N, K)`` and one temporary of its size (the SVD fallback copies it), in
+    float64.
+
+    Parameters
+    ----------
+    n_points : int
+        Number of table rows ``N``.
+    degree : int
+        Even fit degree (``K`` coefficients).
+
+    Returns
+    -------
+    int
+    """
     from retina.sphere import n_coeffs
 
     return 2 * 8 * int(n_points) * n_coeffs(int(degree))
 
 
 def check_fit_memory(n_points: int, degree: int, *, max_bytes: int | None = None, source=None) -> None:
-    """Refuse (:class:`~retina.errors.ResourceError`) a fit whose working memory exceeds ``max_bytes``
-    or, when that is None, 60 % of the machine's available memory (the spin engine's default)."""
+    """Refuse a fit whose working memory exceeds the limit.
+
+    Parameters
+    ----------
+    n_points : int
+        Number of table rows.
+    degree : int
+        Even fit degree.
+    max_bytes : int, optional
+        Limit in bytes; None takes 60 % of the machine's available memory (the spin engine's
+        default).
+    source : str, optional
+        File named in the message.
+
+    Raises
+    ------
+    ResourceError
+        Naming the estimate, the limit and what to change.
+    """
     from retina.errors import ResourceError
     from retina.spin.memory import available_bytes
 
@@ -418,6 +456,30 @@ def import_table(path: str | Path, degree: int, *, directions_key: str = "direct
 
     The provenance records the file, format, number of points, degree, residual rms and max, rank,
     condition number and any fit warning; ``fit_error`` is the maximum residual.
+
+    Parameters
+    ----------
+    path : str or Path
+        The table (:func:`read_table`).
+    degree : int
+        Even degree of the fit.
+    directions_key, values_key : str
+        Array or dataset names in NPZ and HDF5 files.
+    provenance : dict, optional
+        Extra provenance entries.
+    max_bytes : int, optional
+        Memory limit of the fit (:func:`check_fit_memory`).
+
+    Returns
+    -------
+    YieldFunction
+
+    Raises
+    ------
+    InputError
+        For a bad file or values (:func:`read_table`, physical ranges in the module docstring).
+    ResourceError
+        When the fit would not fit in memory.
 
     Warns
     -----

@@ -186,7 +186,21 @@ def _members(h5, path: str):
 
 
 def validate(h5, schema: FileSchema, source) -> dict:
-    """Check an open ``h5py.File`` against ``schema``; return the checked values ``{"group/item": value}``.
+    """Check an open HDF5 file against a schema.
+
+    Parameters
+    ----------
+    h5 : h5py.File
+        The open file.
+    schema : FileSchema
+        Its description.
+    source : str or Path
+        File named in error messages.
+
+    Returns
+    -------
+    dict
+        The checked values, ``{"group/item": value}``.
 
     Raises
     ------
@@ -275,7 +289,27 @@ def validate(h5, schema: FileSchema, source) -> dict:
 
 
 def validate_file(path, schema: FileSchema, *, source=None) -> dict:
-    """Open ``path`` and :func:`validate` it (a missing or non-HDF5 file is an :class:`InputError` too)."""
+    """Open a file and :func:`validate` it.
+
+    Parameters
+    ----------
+    path : str or Path
+        The HDF5 file.
+    schema : FileSchema
+        Its description.
+    source : str or Path, optional
+        Name used in messages (default ``path``).
+
+    Returns
+    -------
+    dict
+        As :func:`validate`.
+
+    Raises
+    ------
+    InputError
+        Also for a missing or non-HDF5 file.
+    """
     import h5py
 
     path = Path(path)
@@ -291,7 +325,17 @@ def validate_file(path, schema: FileSchema, *, source=None) -> dict:
 
 
 def describe(schema: FileSchema) -> str:
-    """The schema as reStructuredText-friendly plain text (for module docstrings and the docs)."""
+    """The schema as reStructuredText-friendly plain text (for module docstrings and the docs).
+
+    Parameters
+    ----------
+    schema : FileSchema
+        The description.
+
+    Returns
+    -------
+    str
+    """
     lines = [f"    /    attrs: format = {schema.format!r}, format_version = {schema.version}"]
     for grp in schema.groups:
         opt = "" if grp.required else " (optional)"
@@ -321,7 +365,22 @@ def describe(schema: FileSchema) -> str:
 
 
 def check_written(path, schema: FileSchema, *, target) -> None:
-    """The writer's self-check: a file it wrote must pass its own schema (else a programming error)."""
+    """The writer's self-check: a file it wrote must pass its own schema.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file just written (still under its temporary name).
+    schema : FileSchema
+        Its description.
+    target : str or Path
+        The final name, used in the message.
+
+    Raises
+    ------
+    RuntimeError
+        When the file fails its schema (a programming error, never the user's).
+    """
     try:
         validate_file(path, schema, source=target)
     except InputError as exc:

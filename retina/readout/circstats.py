@@ -77,12 +77,34 @@ def _angles(angles_deg, name: str = "angles_deg") -> np.ndarray:
 
 
 def wrap360(angles_deg):
-    """Wrap angles (degrees) into ``[0, 360)``; arrays of any shape."""
+    """Wrap angles (degrees) into ``[0, 360)``.
+
+    Parameters
+    ----------
+    angles_deg : array_like, any shape
+        Angles in degrees.
+
+    Returns
+    -------
+    ndarray or float
+        Same shape, in ``[0, 360)``.
+    """
     return np.mod(angles_deg, 360.0)
 
 
 def wrap180(angles_deg):
-    """Wrap angles (degrees) into ``(-180, 180]``; arrays of any shape."""
+    """Wrap angles (degrees) into ``(-180, 180]``.
+
+    Parameters
+    ----------
+    angles_deg : array_like, any shape
+        Angles in degrees.
+
+    Returns
+    -------
+    ndarray
+        Same shape, in ``(-180, 180]`` (-180 maps to 180).
+    """
     a = np.mod(np.asarray(angles_deg, dtype=float) + 180.0, 360.0) - 180.0
     return np.where(a == -180.0, 180.0, a)
 
@@ -90,7 +112,17 @@ def wrap180(angles_deg):
 def circular_difference(a_deg, b_deg, *, axial: bool = False):
     """Signed smallest difference ``a - b`` in degrees, in ``(-180, 180]``.
 
-    With ``axial=True`` directions 180 deg apart are the same, and the result lies in ``(-90, 90]``.
+    Parameters
+    ----------
+    a_deg, b_deg : array_like
+        Angles in degrees (broadcast against each other).
+    axial : bool
+        Directions 180 deg apart are the same; the result then lies in ``(-90, 90]``.
+
+    Returns
+    -------
+    ndarray
+        The broadcast shape, degrees.
     """
     if axial:
         return wrap180(2.0 * (np.asarray(a_deg, float) - np.asarray(b_deg, float))) / 2.0
@@ -133,6 +165,17 @@ def mean_vector(angles_deg, *, weights=None, axial: bool = False) -> MeanVector:
         Non-negative weights (frequencies); default all ones.
     axial : bool
         Treat the data as axial (angle doubling, see the module docstring).
+
+    Returns
+    -------
+    MeanVector
+        ``mean_deg`` (NaN when the resultant vanishes; in ``[0, 180)`` for axial data), ``r`` in
+        ``[0, 1]``, resultant length ``R``, total weight ``n`` and ``axial``.
+
+    Raises
+    ------
+    InputError
+        Key ``weights``, for weights of the wrong shape, negative or not finite.
     """
     a = np.deg2rad(_angles(angles_deg))
     if axial:
@@ -161,8 +204,17 @@ def mean_vector(angles_deg, *, weights=None, axial: bool = False) -> MeanVector:
 def circular_std(angles_deg, *, axial: bool = False) -> float:
     """Circular standard deviation ``s0 = sqrt(-2 ln r)`` in degrees (Zar 2010, eq. 26.21).
 
-    For axial data ``r`` is of the doubled angles and the result is halved back to the axis scale.
-    Infinite when ``r = 0``.
+    Parameters
+    ----------
+    angles_deg : array_like, shape (n,)
+        Directions in degrees.
+    axial : bool
+        ``r`` is then of the doubled angles and the result is halved back to the axis scale.
+
+    Returns
+    -------
+    float
+        Degrees; infinite when ``r = 0``.
     """
     r = mean_vector(angles_deg, axial=axial).r
     if r <= 0.0:
@@ -172,14 +224,42 @@ def circular_std(angles_deg, *, axial: bool = False) -> float:
 
 
 def angular_deviation(angles_deg, *, axial: bool = False) -> float:
-    """Angular deviation ``s = sqrt(2 (1 - r))`` in degrees (Zar 2010, eq. 26.20)."""
+    """Angular deviation ``s = sqrt(2 (1 - r))`` in degrees (Zar 2010, eq. 26.20).
+
+    Parameters
+    ----------
+    angles_deg : array_like, shape (n,)
+        Directions in degrees.
+    axial : bool
+        ``r`` is then of the doubled angles and the result is halved back to the axis scale.
+
+    Returns
+    -------
+    float
+        Degrees, between 0 and ``sqrt(2)`` rad expressed in degrees (81.03, halved for axial data).
+    """
     r = mean_vector(angles_deg, axial=axial).r
     s = float(np.rad2deg(np.sqrt(2.0 * (1.0 - r))))
     return s / 2.0 if axial else s
 
 
 def rayleigh_p(n: float, R: float) -> float:
-    """Zar's approximation to the Rayleigh test probability (Zar 2010, eq. 27.4), clipped to [0, 1]."""
+    """Zar's approximation to the Rayleigh test probability (Zar 2010, eq. 27.4), clipped to [0, 1].
+
+    ``p = exp(sqrt(1 + 4 n + 4 (n^2 - R^2)) - (1 + 2 n))``.
+
+    Parameters
+    ----------
+    n : float
+        Sample size (total weight).
+    R : float
+        Resultant length, ``n r``.
+
+    Returns
+    -------
+    float
+        Probability of a resultant this long from uniformly distributed directions.
+    """
     p = np.exp(np.sqrt(1.0 + 4.0 * n + 4.0 * (n * n - R * R)) - (1.0 + 2.0 * n))
     return float(min(max(p, 0.0), 1.0))
 
@@ -212,7 +292,20 @@ class RayleighResult:
 
 
 def rayleigh_test(angles_deg, *, axial: bool = False) -> RayleighResult:
-    """Rayleigh test (Zar 2010, section 27.1): is there a preferred direction (or axis)?"""
+    """Rayleigh test (Zar 2010, section 27.1): is there a preferred direction (or axis)?
+
+    Parameters
+    ----------
+    angles_deg : array_like, shape (n,)
+        Directions in degrees.
+    axial : bool
+        Test for a preferred axis (doubled angles).
+
+    Returns
+    -------
+    RayleighResult
+        ``n``, ``mean_deg``, ``r``, ``R``, ``z = R^2 / n`` and ``p`` (:func:`rayleigh_p`).
+    """
     mv = mean_vector(angles_deg, axial=axial)
     n = int(round(mv.n))
     z = mv.R ** 2 / mv.n
@@ -292,6 +385,26 @@ def v_test(angles_deg, expected_deg: float, *, axial: bool = False) -> VTestResu
 
     For axial data both the sample and the expected direction are doubled.  ``p`` is exact for
     any ``n`` (:func:`v_test_p`); with weights (grouped data) the rounded total weight is ``n``.
+
+    Parameters
+    ----------
+    angles_deg : array_like, shape (n,)
+        Directions in degrees.
+    expected_deg : float
+        The expected direction, degrees (finite).
+    axial : bool
+        Treat the data as axial.
+
+    Returns
+    -------
+    VTestResult
+        ``V = R cos(mean - expected)``, ``u = V sqrt(2 / n)``, the exact one-sided ``p`` and the
+        sample's ``n``, ``mean_deg``, ``r``.
+
+    Raises
+    ------
+    InputError
+        Key ``expected_deg``, for a non-finite expected direction.
     """
     mv = mean_vector(angles_deg, axial=axial)
     if not np.isfinite(expected_deg):
@@ -308,9 +421,28 @@ def v_test(angles_deg, expected_deg: float, *, axial: bool = False) -> VTestResu
 
 
 def von_mises_deg(mu_deg, kappa: float, size, rng: np.random.Generator) -> np.ndarray:
-    """Von Mises draws in degrees around ``mu_deg`` with concentration ``kappa`` (``inf``: no noise).
+    """Von Mises draws in degrees around ``mu_deg`` with concentration ``kappa``.
 
-    ``kappa = 0`` gives uniform directions.  Results in ``[0, 360)``.
+    Parameters
+    ----------
+    mu_deg : array_like
+        Mean direction(s), degrees (broadcast to ``size``).
+    kappa : float
+        Concentration, ``>= 0``: 0 gives uniform directions, ``inf`` returns ``mu_deg`` (no noise).
+    size : int or tuple of int
+        Output shape.
+    rng : numpy.random.Generator
+        Source of the draws.
+
+    Returns
+    -------
+    ndarray, shape size
+        Directions in ``[0, 360)``.
+
+    Raises
+    ------
+    InputError
+        Key ``kappa``, for a negative or NaN concentration.
     """
     if kappa < 0 or np.isnan(kappa):
         raise InputError(f"expected a concentration kappa >= 0, got {kappa}", key="kappa")

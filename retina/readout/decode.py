@@ -389,10 +389,19 @@ class HeadingDecoder:
 def error_summary(errors_deg, *, axial: bool = False) -> dict:
     """Circular error measures of signed errors (degrees).
 
-    Returns a dict with ``bias_deg`` (circular mean error, in (-180, 180]), ``rms_deg`` (root mean
-    square of the wrapped errors), ``circ_std_deg`` (Zar's circular standard deviation),
-    ``median_abs_deg``, ``p95_abs_deg`` and ``reversal_fraction`` (``|error| > 90`` deg).  With
-    ``axial=True`` errors are first folded to (-90, 90] (psi and psi + 180 counted equal).
+    Parameters
+    ----------
+    errors_deg : array_like, shape (S,)
+        Signed errors, degrees.
+    axial : bool
+        Fold the errors to (-90, 90] first (psi and psi + 180 counted equal).
+
+    Returns
+    -------
+    dict
+        ``bias_deg`` (circular mean error, in (-180, 180]), ``rms_deg`` (root mean square of the
+        wrapped errors), ``circ_std_deg`` (Zar's circular standard deviation), ``median_abs_deg``,
+        ``p95_abs_deg`` and ``reversal_fraction`` (``|error| > 90`` deg).
     """
     e = np.asarray(errors_deg, dtype=float).ravel()
     e = circstats.circular_difference(e, 0.0, axial=axial)
@@ -433,10 +442,28 @@ class MonteCarloResult:
 
 
 def monte_carlo(truth, decoder: HeadingDecoder, true_deg: float, n: int, rng=None) -> MonteCarloResult:
-    """Sample ``n`` count vectors from ``truth`` (a ``SignalModel``) at ``true_deg`` and decode them.
+    """Sample count vectors from a model at one heading and decode them.
 
     ``truth`` may differ from the decoder's model (a scene texture, another gain): that is how
     model mismatch is studied.
+
+    Parameters
+    ----------
+    truth : retina.signal.noise.SignalModel
+        The world the counts are drawn from.
+    decoder : HeadingDecoder
+        The decoder (its own model).
+    true_deg : float
+        True heading, degrees.
+    n : int
+        Number of noisy decodes.
+    rng : numpy.random.Generator or int, optional
+        Source of the Poisson draws.
+
+    Returns
+    -------
+    MonteCarloResult
+        The estimates, wrapped errors and :func:`error_summary`.
     """
     from retina.signal.noise import make_rng, sample_counts
 

@@ -69,8 +69,18 @@ INFORMATIVE_BOUND_DEG = 60.0
 
 
 def bound_is_informative(bound_deg) -> np.ndarray:
-    """``True`` where a Cramer-Rao bound (degrees) is finite and at most
-    :data:`INFORMATIVE_BOUND_DEG` (module docstring); same shape as ``bound_deg``."""
+    """Where a Cramer-Rao bound is finite and at most :data:`INFORMATIVE_BOUND_DEG` (module docstring).
+
+    Parameters
+    ----------
+    bound_deg : array_like, any shape
+        Bounds in degrees.
+
+    Returns
+    -------
+    ndarray of bool
+        Same shape as ``bound_deg``.
+    """
     b = np.asarray(bound_deg, dtype=float)
     return np.isfinite(b) & (b <= INFORMATIVE_BOUND_DEG)
 
@@ -127,7 +137,15 @@ def poisson_fisher_matrix(lam, dlams) -> np.ndarray:
 def gain_schur(lam, dlam) -> np.ndarray:
     """Heading information with an unknown overall gain: ``sum dlam^2/lam - (sum dlam)^2 / sum lam``.
 
-    Shapes as :func:`poisson_information`; rows with ``sum lam = 0`` give 0.
+    Parameters
+    ----------
+    lam, dlam : array_like, shape (..., N)
+        Expected counts and their derivative with respect to heading (per radian).
+
+    Returns
+    -------
+    ndarray, shape (...)
+        rad^-2, clipped at 0; rows with ``sum lam = 0`` give 0.
     """
     lam = np.asarray(lam, dtype=float)
     dlam = np.asarray(dlam, dtype=float)
@@ -138,10 +156,22 @@ def gain_schur(lam, dlam) -> np.ndarray:
 
 
 def schur_complement(matrix, interest: int = 0) -> np.ndarray:
-    """Effective information on parameter ``interest`` of Fisher matrices ``(..., M, M)``.
+    """Effective information on one parameter of Fisher matrices, the others unknown.
 
     ``I_aa - I_a,rest I_rest,rest^+ I_rest,a`` (pseudo-inverse, so singular nuisance blocks are
     allowed).
+
+    Parameters
+    ----------
+    matrix : array_like, shape (..., M, M)
+        Symmetric Fisher matrices.
+    interest : int
+        Index of the parameter of interest.
+
+    Returns
+    -------
+    ndarray, shape (...)
+        Effective information, clipped at 0 (units of the parameter^-2).
     """
     F = np.asarray(matrix, dtype=float)
     M = F.shape[-1]
@@ -156,7 +186,18 @@ def schur_complement(matrix, interest: int = 0) -> np.ndarray:
 
 
 def cramer_rao_deg(information) -> np.ndarray:
-    """Cramer-Rao bound on the standard deviation, degrees, from information in rad^-2 (inf at 0)."""
+    """Cramer-Rao bound on the standard deviation, in degrees.
+
+    Parameters
+    ----------
+    information : array_like, any shape
+        Fisher information, rad^-2.
+
+    Returns
+    -------
+    ndarray
+        Same shape: ``1 / sqrt(I)`` converted to degrees; inf where ``I <= 0``.
+    """
     I = np.asarray(information, dtype=float)
     out = np.full(I.shape, np.inf)
     np.divide(1.0, np.sqrt(np.maximum(I, 0.0)), out=out, where=I > 0)
@@ -222,14 +263,20 @@ def heading_information(signal, headings_deg=None, *, nuisance: str = "none",
     Parameters
     ----------
     signal : retina.signal.noise.SignalModel
+        Expected counts of every receptor at a light level.
     headings_deg : array_like, shape (P,), optional
-        Default 0, 1, ..., 359 degrees.
+        Headings, degrees; default 0, 1, ..., 359.
     nuisance : {"none", "gain"}
         "gain": the overall light level is unknown (Schur complement).
     degree : int, optional
         If given, use the exact trigonometric interpolation of
         ``SignalModel.expected_and_derivative_fourier`` (the model evaluated at ``2 degree + 1``
         headings only); otherwise every heading is evaluated directly.
+
+    Returns
+    -------
+    InformationCurve
+        Information (rad^-2), information per photon and bound (degrees) at each heading.
     """
     h = _headings(headings_deg)
     _check_nuisance(nuisance)
@@ -322,7 +369,22 @@ def _compile_kernel():
 
 
 def inclination_information(signal, headings_deg=None, *, nuisance: str = "none") -> InformationCurve:
-    """Fisher information on the inclination (rad^-2) at each heading, the heading known."""
+    """Fisher information on the inclination at each heading, the heading known.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        Expected counts of every receptor at a light level.
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+
+    Returns
+    -------
+    InformationCurve
+        ``parameter = "inclination"``; information in rad^-2, bound in degrees of inclination.
+    """
     h = _headings(headings_deg)
     _check_nuisance(nuisance)
     lam, dlam = signal.expected_and_derivative(h, wrt="inclination")
@@ -332,10 +394,24 @@ def inclination_information(signal, headings_deg=None, *, nuisance: str = "none"
 
 
 def joint_information(signal, headings_deg=None, *, gain_unknown: bool = False) -> np.ndarray:
-    """Fisher matrices over (heading, inclination[, gain]) at each heading, shape ``(P, M, M)``.
+    """Fisher matrices over (heading, inclination[, gain]) at each heading.
 
     Use :func:`schur_complement` (``interest=0``) for the heading information when the
     inclination (and gain) are unknown too.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        Expected counts of every receptor at a light level.
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    gain_unknown : bool
+        Add the overall gain as a third parameter (its derivative is the expected count itself).
+
+    Returns
+    -------
+    ndarray, shape (P, M, M)
+        ``M = 2`` or 3; angles in radians, so the entries are in rad^-2 (rad^-1 for the gain terms).
     """
     h = _headings(headings_deg)
     lam, dpsi = signal.expected_and_derivative(h, wrt="heading")
@@ -346,13 +422,51 @@ def joint_information(signal, headings_deg=None, *, gain_unknown: bool = False) 
 
 def bound_vs_photons(signal, photons, headings_deg=None, *, nuisance: str = "none",
                      degree: int | None = None) -> np.ndarray:
-    """Cramer-Rao bound (degrees) for light levels ``photons (F,)`` and headings: ``(F, P)``."""
+    """Cramer-Rao bound against light level and heading.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        The model at any light level (information is linear in the level).
+    photons : array_like, shape (F,)
+        Light levels (photons per receptor).
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    degree : int, optional
+        As in :func:`heading_information`.
+
+    Returns
+    -------
+    ndarray, shape (F, P)
+        Degrees.
+    """
     return heading_information(signal, headings_deg, nuisance=nuisance, degree=degree).at_photons(photons)
 
 
 def bound_vs_inclination(signal, inclinations_deg, headings_deg=None, *, nuisance: str = "none",
                          degree: int | None = None) -> np.ndarray:
-    """Bound (degrees) over inclinations ``(Q,)`` and headings: ``(Q, P)``."""
+    """Cramer-Rao bound on heading against field inclination and heading.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        The model; its ``inclination_deg`` is replaced by each value in turn.
+    inclinations_deg : array_like, shape (Q,)
+        Inclinations, degrees.
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    degree : int, optional
+        As in :func:`heading_information`.
+
+    Returns
+    -------
+    ndarray, shape (Q, P)
+        Degrees.
+    """
     out = []
     for inc in np.atleast_1d(np.asarray(inclinations_deg, dtype=float)):
         s = dataclasses.replace(signal, inclination_deg=float(inc))
@@ -363,10 +477,28 @@ def bound_vs_inclination(signal, inclinations_deg, headings_deg=None, *, nuisanc
 def bound_vs_parameter(make_signal: Callable[[float], object], values: Sequence[float],
                        headings_deg=None, *, nuisance: str = "none", degree: int | None = None,
                        progress=None) -> np.ndarray:
-    """Bound (degrees) over any model parameter: ``(V, P)``.
+    """Cramer-Rao bound on heading over any model parameter.
 
-    ``make_signal(value) -> SignalModel`` builds the model for each value (a disorder
-    concentration, a lifetime, an anisotropy scale, ...).  ``progress(done, total)`` after each.
+    Parameters
+    ----------
+    make_signal : callable(value) -> SignalModel
+        Builds the model for each value (a disorder concentration, a lifetime, an anisotropy
+        scale, ...).
+    values : sequence of float, length V
+        The parameter values.
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    degree : int, optional
+        As in :func:`heading_information`.
+    progress : callable(done, total), optional
+        Called after each value.
+
+    Returns
+    -------
+    ndarray, shape (V, P)
+        Degrees.
     """
     vals = list(values)
     out = []
@@ -381,7 +513,7 @@ def bound_vs_parameter(make_signal: Callable[[float], object], values: Sequence[
 def information_vs_cone_disorder(make_signal: Callable[[np.ndarray], object], response, kappas,
                                  headings_deg=None, *, nuisance: str = "none",
                                  progress=None) -> np.ndarray:
-    """Information per photon (rad^-2) over cone-disorder levels and headings, ``(V, P)``.
+    """Information per photon (rad^-2) over cone-disorder levels and headings.
 
     Uses the Funk-Hecke form of von Mises-Fisher cone disorder: the disordered response is
     ``sum_l lambda_l(kappa) r_l`` with ``r_l`` the degree-``l`` block of ``response`` and
@@ -402,7 +534,16 @@ def information_vs_cone_disorder(make_signal: Callable[[np.ndarray], object], re
     kappas : array_like, shape (V,)
         Cone concentrations (``inf``: no disorder, 0: isotropic).
     headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
     nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    progress : callable(done, total), optional
+        Called after each concentration.
+
+    Returns
+    -------
+    ndarray, shape (V, P)
+        Information per photon per receptor, rad^-2.
     """
     from retina import sphere
     from retina.signal.noise import trig_interp_matrix
@@ -435,8 +576,26 @@ def information_vs_cone_disorder(make_signal: Callable[[np.ndarray], object], re
 
 def bound_vs_cone_disorder(make_signal, response, kappas, photons, headings_deg=None, *,
                            nuisance: str = "none", progress=None) -> np.ndarray:
-    """Cramer-Rao bound (degrees), shape ``(V, F, P)``, over cone concentrations ``(V,)``, light
-    levels ``(F,)`` and headings ``(P,)`` (see :func:`information_vs_cone_disorder`)."""
+    """Cramer-Rao bound over cone concentrations, light levels and headings.
+
+    Parameters
+    ----------
+    make_signal, response, kappas
+        As in :func:`information_vs_cone_disorder`.
+    photons : array_like, shape (F,)
+        Light levels (photons per receptor).
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    progress : callable(done, total), optional
+        Called after each concentration.
+
+    Returns
+    -------
+    ndarray, shape (V, F, P)
+        Degrees.
+    """
     per = information_vs_cone_disorder(make_signal, response, kappas, headings_deg,
                                        nuisance=nuisance, progress=progress)
     ph = np.atleast_1d(np.asarray(photons, dtype=float))
@@ -445,10 +604,30 @@ def bound_vs_cone_disorder(make_signal, response, kappas, photons, headings_deg=
 
 def bound_vs_anisotropy(make_signal, response, scales, headings_deg=None, *, nuisance: str = "none",
                         degree: int | None = None) -> np.ndarray:
-    """Bound (degrees) ``(V, P)`` when the anisotropic part (degrees l > 0) of a receptor response
-    is scaled by each of ``scales`` (1 = as given) and the mean kept.
+    """Cramer-Rao bound when the anisotropic part of a receptor response is scaled.
 
-    ``make_signal(coeffs (K,)) -> SignalModel`` as in :func:`information_vs_cone_disorder`.
+    The degrees ``l > 0`` of ``response`` are multiplied by each scale (1 = as given); the mean
+    (``l = 0``) is kept.
+
+    Parameters
+    ----------
+    make_signal : callable
+        ``make_signal(coeffs (K,)) -> SignalModel`` as in :func:`information_vs_cone_disorder`.
+    response : array_like, shape (K,)
+        Receptor response (even degrees).
+    scales : array_like, shape (V,)
+        Factors on the anisotropic part.
+    headings_deg : array_like, shape (P,), optional
+        Headings, degrees; default 0, 1, ..., 359.
+    nuisance : {"none", "gain"}
+        "gain": the overall light level is unknown (Schur complement).
+    degree : int, optional
+        As in :func:`heading_information`.
+
+    Returns
+    -------
+    ndarray, shape (V, P)
+        Degrees.
     """
     r = np.asarray(response, dtype=float)
 
@@ -462,5 +641,16 @@ def bound_vs_anisotropy(make_signal, response, scales, headings_deg=None, *, nui
 
 
 def mean_bound_deg(information) -> np.ndarray:
-    """Bound from the heading-averaged information, ``1 / sqrt(mean_P I)`` in degrees (last axis)."""
+    """Bound from the heading-averaged information, ``1 / sqrt(mean_P I)`` in degrees.
+
+    Parameters
+    ----------
+    information : array_like, shape (..., P)
+        Information (rad^-2) over headings on the last axis.
+
+    Returns
+    -------
+    ndarray, shape (...)
+        Degrees (inf where the mean information is 0).
+    """
     return cramer_rao_deg(np.mean(np.asarray(information, dtype=float), axis=-1))

@@ -42,12 +42,31 @@ SCAN_NUISANCES = ("none", "global_gain", "pose_gain", "receptor_gain")
 
 def uniform_sweep(heading_deg: float, amplitude_deg: float, steps: int, *, pitch_deg: float = 0.0,
                   roll_deg: float = 0.0):
-    """``steps`` poses with yaw evenly spaced over ``heading +/- amplitude`` (a sweep sampled at
-    constant angular speed, one visit per yaw); ``amplitude_deg = 0`` is a static look.
+    """Poses with yaw evenly spaced over ``heading +/- amplitude``.
+
+    A sweep sampled at constant angular speed, one visit per yaw; ``amplitude_deg = 0`` is a
+    static look.
+
+    Parameters
+    ----------
+    heading_deg : float
+        Centre yaw, degrees.
+    amplitude_deg : float
+        Half-width of the sweep, degrees in ``[0, 180]``.
+    steps : int
+        Number of poses, ``>= 1``.
+    pitch_deg, roll_deg : float
+        Fixed head pitch and roll, degrees.
 
     Returns
     -------
     retina.eye.pose.HeadScan
+        ``steps`` poses.
+
+    Raises
+    ------
+    InputError
+        Keys ``scan.steps`` or ``scan.amplitude_deg``.
     """
     from retina.eye.pose import poses_from_arrays
 
@@ -62,7 +81,28 @@ def uniform_sweep(heading_deg: float, amplitude_deg: float, steps: int, *, pitch
 
 def timed_sweep(heading_deg: float, amplitude_deg: float, *, count: int = 1, speed_deg_s: float = 90.0,
                 rate_hz: float = 100.0, pitch_deg=0.0, roll_deg=0.0):
-    """Triangular yaw sweeps sampled in time (``retina.eye.pose.yaw_sweep``)."""
+    """Triangular yaw sweeps sampled in time (``retina.eye.pose.yaw_sweep``).
+
+    Parameters
+    ----------
+    heading_deg : float
+        Centre yaw, degrees.
+    amplitude_deg : float
+        Half-width of the sweep, degrees.
+    count : int
+        Number of sweeps.
+    speed_deg_s : float
+        Angular speed of the head, degrees per second.
+    rate_hz : float
+        Sampling rate, Hz.
+    pitch_deg, roll_deg : float
+        Fixed head pitch and roll, degrees.
+
+    Returns
+    -------
+    retina.eye.pose.HeadScan
+        One pose per sample.
+    """
     from retina.eye.pose import yaw_sweep
 
     return yaw_sweep(heading_deg, amplitude_deg, count=count, speed_deg_s=speed_deg_s,
@@ -83,7 +123,26 @@ def _ratio(num, den):
 
 
 def scan_information_arrays(lam, dlam, nuisance: str = "none") -> float:
-    """Heading information (rad^-2) of a scan from expected counts and derivatives ``(P, N)``."""
+    """Heading information of a scan from its expected counts and their derivatives.
+
+    Parameters
+    ----------
+    lam, dlam : array_like, shape (P, N)
+        Expected counts of ``N`` receptors at ``P`` poses and their derivative with respect to
+        heading (per radian).
+    nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
+        Unknown gains profiled out (:data:`SCAN_NUISANCES`, module docstring).
+
+    Returns
+    -------
+    float
+        rad^-2 (clipped at 0).
+
+    Raises
+    ------
+    InputError
+        Key ``scan``, when the shapes differ or are not two-dimensional.
+    """
     _check(nuisance)
     lam = np.asarray(lam, dtype=float)
     dlam = np.asarray(dlam, dtype=float)
@@ -104,7 +163,7 @@ def scan_information_arrays(lam, dlam, nuisance: str = "none") -> float:
 
 
 def scan_information(signal, scan, budget: float, *, nuisance: str = "none") -> float:
-    """Heading information (rad^-2) accumulated over a scan with a photon budget split over poses.
+    """Heading information accumulated over a scan with a photon budget split over poses.
 
     Parameters
     ----------
@@ -112,9 +171,21 @@ def scan_information(signal, scan, budget: float, *, nuisance: str = "none") -> 
         Its ``photons`` is ignored (``budget`` replaces it); its pitch and roll are replaced by
         the scan's.
     scan : retina.eye.pose.HeadScan
+        The poses.
     budget : float
-        Mean pairs formed per receptor over the whole scan.
-    nuisance : see ``SCAN_NUISANCES``.
+        Mean pairs formed per receptor over the whole scan (``> 0``).
+    nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
+        Unknown gains profiled out (:data:`SCAN_NUISANCES`, module docstring).
+
+    Returns
+    -------
+    float
+        rad^-2.
+
+    Raises
+    ------
+    InputError
+        Key ``scan.budget``, for a budget that is not positive.
     """
     if not (np.isfinite(budget) and budget > 0):
         raise InputError(f"expected a positive photon budget, got {budget!r}", key="scan.budget")
@@ -125,7 +196,20 @@ def scan_information(signal, scan, budget: float, *, nuisance: str = "none") -> 
 
 
 def pattern_change_per_degree(signal, headings_deg) -> np.ndarray:
-    """RMS relative yield change per degree of head turn at each heading, shape ``(P,)``."""
+    """RMS relative yield change per degree of head turn at each heading.
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        The model.
+    headings_deg : array_like, shape (P,)
+        Headings, degrees.
+
+    Returns
+    -------
+    ndarray, shape (P,)
+        ``sqrt(mean_i (dlam_i / lam_i)^2)`` per degree (dimensionless per degree).
+    """
     lam, dlam = signal.expected_and_derivative(headings_deg, wrt="heading")
     rel = _ratio(dlam, lam)
     return np.sqrt(np.mean(rel * rel, axis=1)) * np.pi / 180.0
@@ -163,7 +247,29 @@ def best_scan_amplitude(signal, headings_deg, amplitudes_deg, budget: float, *, 
     """Scan amplitude that maximises the heading information for a photon budget.
 
     The information is averaged over ``headings_deg`` (one or several headings: a bird does not
-    know its heading before it scans).  ``progress(done, total)`` after each amplitude.
+    know its heading before it scans).
+
+    Parameters
+    ----------
+    signal : retina.signal.noise.SignalModel
+        The model (its pitch and roll are kept).
+    headings_deg : float or array_like, shape (H,)
+        Centre headings, degrees.
+    amplitudes_deg : array_like, shape (A,)
+        Candidate amplitudes, degrees (0: a static look).
+    budget : float
+        Photon budget per receptor for the whole scan.
+    steps : int
+        Poses per scan (one for amplitude 0).
+    nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
+        Unknown gains profiled out (:data:`SCAN_NUISANCES`, module docstring).
+    progress : callable(done, total), optional
+        Called after each amplitude.
+
+    Returns
+    -------
+    ScanOptimum
+        Information per amplitude (and heading), bounds and the best amplitude.
     """
     _check(nuisance)
     amps = np.atleast_1d(np.asarray(amplitudes_deg, dtype=float))

@@ -100,6 +100,18 @@ def simulate_trials(truth, decoder: HeadingDecoder, n_birds: int, *, goal_deg: f
         Each bird scans its head through these yaw offsets (multiples of the decoder's grid step;
         the photon budget of ``truth`` is split over them) and decodes from all poses together.
     rng : numpy.random.Generator or int
+        Source of the starting headings, counts, ambiguity coin flips and behavioural noise.
+
+    Returns
+    -------
+    TrialResult
+        Every bird's start, decoded heading and chosen direction, with the experiment's circular
+        statistics (Rayleigh, V-test, axial analysis).
+
+    Raises
+    ------
+    InputError
+        Keys ``trials.n_trials`` or ``trials.start_deg``.
     """
     if int(n_birds) != n_birds or n_birds < 1:
         raise InputError(f"expected a positive number of birds, got {n_birds!r}", key="trials.n_trials")

@@ -58,7 +58,23 @@ LIGHT_LEVELS: dict[str, float] = {
 
 
 def light_level(level: str | float) -> float:
-    """Pairs formed per receptor per integration time for a named level or a positive number."""
+    """Pairs formed per receptor per integration time for a named level or a positive number.
+
+    Parameters
+    ----------
+    level : str or float
+        A name of :data:`LIGHT_LEVELS` ("daylight", "overcast", ...) or a positive number.
+
+    Returns
+    -------
+    float
+        Pairs per receptor.
+
+    Raises
+    ------
+    InputError
+        Key ``light.level``.
+    """
     if isinstance(level, str):
         try:
             return LIGHT_LEVELS[level]
@@ -73,7 +89,18 @@ def light_level(level: str | float) -> float:
 
 
 def elevation_deg(world_dirs) -> np.ndarray:
-    """Elevation above the horizon (degrees) of world-frame (NED) unit vectors ``(..., 3)``."""
+    """Elevation above the horizon of world-frame (north-east-down) unit vectors.
+
+    Parameters
+    ----------
+    world_dirs : array_like, shape (..., 3)
+        Unit vectors, world frame (z down).
+
+    Returns
+    -------
+    ndarray, shape (...)
+        Degrees, positive above the horizon (``-asin(z)``).
+    """
     d = np.asarray(world_dirs, dtype=float)
     return np.rad2deg(np.arcsin(np.clip(-d[..., 2], -1.0, 1.0)))
 

@@ -45,14 +45,39 @@ _CHUNK_BYTES = 64 * 2**20
 
 
 def make_rng(seed=None) -> np.random.Generator:
-    """A ``numpy.random.Generator`` from a seed (int), or the generator itself if one is given."""
+    """A ``numpy.random.Generator`` from a seed, or the generator itself if one is given.
+
+    Parameters
+    ----------
+    seed : int, numpy.random.Generator or None
+        ``None`` takes fresh entropy.
+
+    Returns
+    -------
+    numpy.random.Generator
+    """
     if isinstance(seed, np.random.Generator):
         return seed
     return np.random.default_rng(seed)
 
 
 def expected_counts(yields, catch, gain: float = 1.0) -> np.ndarray:
-    """Expected signal counts ``gain * catch * yields`` (broadcast; shapes ``(P, N)`` or ``(N,)``)."""
+    """Expected signal counts ``gain * catch * yields``.
+
+    Parameters
+    ----------
+    yields : array_like, shape (P, N) or (N,)
+        Reported yields of ``N`` receptors (at ``P`` poses).
+    catch : array_like, shape (N,) or broadcastable
+        Photons caught per receptor (pairs formed).
+    gain : float
+        Overall gain.
+
+    Returns
+    -------
+    ndarray
+        The broadcast shape; mean counts.
+    """
     y = np.asarray(yields, dtype=float)
     c = np.asarray(catch, dtype=float)
     if np.any(y < 0) or np.any(y > 1 + 1e-9):
@@ -68,8 +93,13 @@ def sample_counts(lam, rng=None, size: int | None = None) -> np.ndarray:
     lam : array_like, shape (...)
         Expected counts (>= 0).
     rng : numpy.random.Generator or int, optional
+        Source of the draws (:func:`make_rng`).
     size : int, optional
         Number of independent repetitions, added as a leading axis ``(size, ...)``.
+
+    Returns
+    -------
+    ndarray of int64, shape (...) or (size, ...)
     """
     lam = np.asarray(lam, dtype=float)
     if np.any(lam < 0) or not np.all(np.isfinite(lam)):
@@ -176,13 +206,39 @@ def _split_block(rows: np.ndarray, g: np.random.Generator) -> np.ndarray:
 
 
 def field_direction(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:
-    """Unit field direction (3,) in the world frame (NED) from I (down positive) and D (east of north)."""
+    """Unit field direction in the world frame (north-east-down).
+
+    Parameters
+    ----------
+    inclination_deg : float
+        Inclination ``I``, degrees, positive downward.
+    declination_deg : float
+        Declination ``D``, degrees east of north.
+
+    Returns
+    -------
+    ndarray, shape (3,)
+        ``(cos I cos D, cos I sin D, sin I)``.
+    """
     I, D = np.deg2rad(inclination_deg), np.deg2rad(declination_deg)
     return np.array([np.cos(I) * np.cos(D), np.cos(I) * np.sin(D), np.sin(I)])
 
 
 def field_direction_dincl(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:
-    """Derivative (3,) of :func:`field_direction` with respect to the inclination, per radian."""
+    """Derivative of :func:`field_direction` with respect to the inclination.
+
+    Parameters
+    ----------
+    inclination_deg : float
+        Inclination, degrees.
+    declination_deg : float
+        Declination, degrees.
+
+    Returns
+    -------
+    ndarray, shape (3,)
+        ``(-sin I cos D, -sin I sin D, cos I)``, per radian.
+    """
     I, D = np.deg2rad(inclination_deg), np.deg2rad(declination_deg)
     return np.array([-np.sin(I) * np.cos(D), -np.sin(I) * np.sin(D), np.cos(I)])
 
@@ -398,8 +454,24 @@ class SignalModel:
 
 
 def trig_interp_matrix(nodes: np.ndarray, x: np.ndarray, L: int) -> np.ndarray:
-    """Weights ``(len(x), M)`` (radians in) of exact interpolation of a degree-``L`` trigonometric polynomial
-    from ``M = 2L + 1`` equally spaced nodes (the Dirichlet kernel ``sin(M t/2) / (M sin(t/2))``)."""
+    """Weights of exact interpolation of a degree-``L`` trigonometric polynomial.
+
+    From ``M = 2L + 1`` equally spaced nodes, by the Dirichlet kernel ``sin(M t/2) / (M sin(t/2))``.
+
+    Parameters
+    ----------
+    nodes : ndarray, shape (M,)
+        Equally spaced nodes, radians.
+    x : ndarray, shape (X,)
+        Where to interpolate, radians.
+    L : int
+        Degree of the polynomial (``M = 2L + 1``).
+
+    Returns
+    -------
+    ndarray, shape (X, M)
+        ``f(x) = W @ f(nodes)``.
+    """
     M = nodes.size
     t = x[:, None] - nodes[None, :]
     half = 0.5 * t

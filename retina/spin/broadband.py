@@ -6,11 +6,11 @@ nT, nT/sqrt(Hz); inside, frequencies are measured in units of ``k`` (dimensionle
 
 Derivation (response spectrum)
 ------------------------------
-Notation of :mod:`retina.spin.rf`: ``d rho / dt = (L0 + cos(w t + theta) L1) rho`` with
+Notation of :mod:`retina.spin.rf_floquet`: ``d rho / dt = (L0 + cos(w t + theta) L1) rho`` with
 ``L0 rho = -i [H0, rho] - k rho`` (equal rates) and ``L1 rho = -i [V, rho]``, ``V`` the electron
 Zeeman operator of the RF amplitude vector ``B1 n``.  The yield is ``Phi = k int Tr(P rho) dt`` with
 ``P`` the projector of the reported channel.  Expanding the Floquet equations of
-:mod:`retina.spin.rf` (``q delta_n0 + (L0^T + i n w) a_n + (L1^T / 2)(a_{n-1} + a_{n+1}) = 0``) in
+:mod:`retina.spin.rf_floquet` (``q delta_n0 + (L0^T + i n w) a_n + (L1^T / 2)(a_{n-1} + a_{n+1}) = 0``) in
 powers of ``L1``: ``a_0 = -(L0^T)^-1 q`` at order 0, ``a_{+/-1} = -(L0^T +/- i w)^-1 (L1^T / 2) a_0``
 at order 1, and the order-2 part of ``a_0`` is ``-(L0^T)^-1 (L1^T / 2)(a_1 + a_-1)``.  The
 phase-averaged change of the yield is therefore, to second order in the amplitude,
@@ -79,12 +79,28 @@ WEAK_LIMIT = 0.1
 
 
 def weak_parameter(b_rms_nT: float, k: float) -> float:
-    """``eta = gamma_e b_rms / k``: the rotation angle of an electron in the rms field per lifetime."""
+    """The weak-field parameter ``eta = gamma_e b_rms / k``.
+
+    The rotation angle of an electron in the rms field per lifetime; results are flagged above
+    :data:`WEAK_LIMIT`.
+
+    Parameters
+    ----------
+    b_rms_nT : float
+        rms amplitude of the RF or noise field, nT.
+    k : float
+        Recombination rate, s^-1.
+
+    Returns
+    -------
+    float
+        Dimensionless.
+    """
     return float(GAMMA_E * b_rms_nT * 1e-9 / k)
 
 
 def psd_T2_per_Hz(band_MHz, *, asd_nT_per_rtHz=None, rms_nT=None, source=None):
-    """One-sided power spectral density (T^2/Hz) of a white band from exactly one of its two forms.
+    """One-sided power spectral density of a white band from exactly one of its two forms.
 
     Parameters
     ----------
@@ -94,6 +110,8 @@ def psd_T2_per_Hz(band_MHz, *, asd_nT_per_rtHz=None, rms_nT=None, source=None):
         Amplitude spectral density, nT/sqrt(Hz).
     rms_nT : float, optional
         rms amplitude over the band, nT.
+    source : str, optional
+        File named in error messages.
 
     Returns
     -------
@@ -101,6 +119,11 @@ def psd_T2_per_Hz(band_MHz, *, asd_nT_per_rtHz=None, rms_nT=None, source=None):
         T^2/Hz.
     b_rms_nT : float
         The band's rms amplitude, nT.
+
+    Raises
+    ------
+    InputError
+        For a bad band, a negative or non-finite amplitude, or not exactly one of the two forms.
     """
     f1, f2 = check_band(band_MHz, source=source)
     if (asd_nT_per_rtHz is None) == (rms_nT is None):
@@ -125,7 +148,25 @@ def _nonneg(x, key, source):
 
 
 def check_band(band_MHz, source=None):
-    """Validate ``(f1, f2)`` in MHz with ``0 < f1 < f2``."""
+    """Validate a frequency band.
+
+    Parameters
+    ----------
+    band_MHz : (float, float)
+        ``(f1, f2)`` in MHz.
+    source : str, optional
+        File named in error messages.
+
+    Returns
+    -------
+    f1, f2 : float
+        MHz, with ``0 < f1 < f2``.
+
+    Raises
+    ------
+    InputError
+        Key ``band_MHz``.
+    """
     try:
         f1, f2 = (float(v) for v in band_MHz)
     except (TypeError, ValueError):
@@ -138,11 +179,30 @@ def check_band(band_MHz, source=None):
 
 
 def polarisation_tensor(b, kind="perpendicular", *, angle_deg=None, vector=None) -> np.ndarray:
-    """``<n n^T>`` (3, 3) for an RF polarisation relative to the unit static field direction ``b``.
+    """The polarisation tensor ``<n n^T>`` of an RF field relative to the static field direction.
 
-    ``kind``: ``"parallel"`` (``b b^T``), ``"perpendicular"`` (azimuth-averaged, ``(1 - b b^T) / 2``),
-    ``"angle"`` (``angle_deg`` to ``b``, azimuth-averaged) or ``"vector"`` (``vector`` fixed in the
-    molecular frame, normalised).
+    Parameters
+    ----------
+    b : array_like, shape (3,)
+        Unit static field direction (molecular frame).
+    kind : {"parallel", "perpendicular", "angle", "vector"}
+        ``"parallel"``: ``b b^T``; ``"perpendicular"``: azimuth-averaged, ``(1 - b b^T) / 2``;
+        ``"angle"``: at ``angle_deg`` to ``b``, azimuth-averaged; ``"vector"``: ``vector`` fixed in
+        the molecular frame, normalised.
+    angle_deg : float, optional
+        For ``"angle"``, degrees.
+    vector : array_like, shape (3,), optional
+        For ``"vector"``.
+
+    Returns
+    -------
+    ndarray, shape (3, 3)
+        Symmetric, trace 1.
+
+    Raises
+    ------
+    InputError
+        Key ``rf_direction``, for an unknown kind.
     """
     b = np.asarray(b, dtype=float)
     b = b / np.linalg.norm(b)

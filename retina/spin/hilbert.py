@@ -68,7 +68,19 @@ def _lorentz_sum_numpy(q, w, k):
 
 
 def check_scope(system) -> None:
-    """Raise :class:`InputError` unless the system fits the exponential model."""
+    """Refuse a system outside the exponential model of the eigen method.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Raises
+    ------
+    InputError
+        For unequal rates (key ``k_triplet``), relaxation (key ``relaxation``) or a rate that is
+        not positive (key ``k_singlet``).
+    """
     if not system.equal_rates:
         raise InputError(
             f"the eigen method needs equal recombination rates, got k_S = {system.k_singlet:g} s^-1 and "
@@ -83,9 +95,28 @@ def check_scope(system) -> None:
 
 
 def validate_field(field_uT, directions, source=None) -> tuple[float, np.ndarray]:
-    """Check the field strength (uT, finite, >= 0) and directions ((N, 3), finite, non-zero).
+    """Check the field strength and the directions.
 
-    Returns the strength in tesla and the directions normalised to unit length, shape (N, 3).
+    Parameters
+    ----------
+    field_uT : float
+        Field strength, microtesla (finite, ``>= 0``).
+    directions : array_like, shape (N, 3)
+        Finite, non-zero directions.
+    source : str, optional
+        File named in error messages.
+
+    Returns
+    -------
+    b : float
+        The strength in tesla.
+    dirs : ndarray, shape (N, 3)
+        The directions normalised to unit length.
+
+    Raises
+    ------
+    InputError
+        Keys ``field_uT`` or ``directions``.
     """
     try:
         f = float(field_uT)
@@ -106,7 +137,20 @@ def validate_field(field_uT, directions, source=None) -> tuple[float, np.ndarray
 
 
 def chunk_size(dimension: int, max_bytes: int | None = None) -> int:
-    """Directions per batch so that the working arrays (about 4 (d, d) complex each) fit ``max_bytes``."""
+    """Directions per batch so that the working arrays (about 4 (d, d) complex each) fit.
+
+    Parameters
+    ----------
+    dimension : int
+        Hilbert dimension ``d``.
+    max_bytes : int, optional
+        Memory for the batch (default a fixed working budget, ``_DEFAULT_CHUNK_BYTES``).
+
+    Returns
+    -------
+    int
+        Between 1 and 4096.
+    """
     per = 4 * 16 * dimension * dimension
     budget = _DEFAULT_CHUNK_BYTES if max_bytes is None else int(max_bytes)
     return int(max(1, min(4096, budget // per)))
@@ -163,10 +207,15 @@ def singlet_singlet(parts, b_tesla, k, *, progress=None, max_bytes=None, path="a
     Parameters
     ----------
     parts : HamiltonianParts
+        The pair's Hamiltonian parts (:func:`retina.spin.operators.hamiltonian_parts`).
     b_tesla : ndarray, shape (N, 3)
         Field vectors, tesla, molecular frame.
     k : float
         Common recombination rate, s^-1.
+    progress : callable(done, total), optional
+        Counts field vectors.
+    max_bytes : int, optional
+        Memory limit for the batched eigen-decompositions (:func:`chunk_size`).
     path : {"auto", "eigh", "tridiagonal"}
         ``"eigh"``: batched ``numpy.linalg.eigh`` and the singlet rows of its eigenvectors;
         ``"tridiagonal"``: see :func:`_singlet_rows_tridiagonal`; ``"auto"`` picks by dimension

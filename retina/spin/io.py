@@ -394,6 +394,11 @@ def system_from_document(doc: dict, source: str | Path | None = None) -> SpinSys
     source : str or Path, optional
         File name used in error messages and stored as ``SpinSystem.source``.
 
+    Returns
+    -------
+    SpinSystem
+        Immutable, in SI units (module docstring, ``LIMITS``).
+
     Raises
     ------
     InputError
@@ -508,7 +513,24 @@ def system_from_document(doc: dict, source: str | Path | None = None) -> SpinSys
 
 
 def loads_system(text: str, source: str | Path | None = None) -> SpinSystem:
-    """Parse TOML text into a :class:`SpinSystem` (``source`` names it in messages)."""
+    """Parse TOML text into a :class:`SpinSystem`.
+
+    Parameters
+    ----------
+    text : str
+        The TOML document (schema in the module docstring).
+    source : str or Path, optional
+        Name used in error messages and stored as ``SpinSystem.source``.
+
+    Returns
+    -------
+    SpinSystem
+
+    Raises
+    ------
+    InputError
+        When the text is not TOML or any value is wrong.
+    """
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -520,8 +542,29 @@ def loads_system(text: str, source: str | Path | None = None) -> SpinSystem:
 
 
 def read_text_capped(path: Path, max_bytes: int) -> bytes:
-    """The bytes of a regular file of at most ``max_bytes`` (a device such as /dev/zero, a FIFO or a
-    larger file is refused before it is read into memory)."""
+    """The bytes of a regular file of at most ``max_bytes``.
+
+    A device such as /dev/zero, a FIFO or a larger file is refused before it is read into memory.
+
+    Parameters
+    ----------
+    path : Path
+        The file.
+    max_bytes : int
+        Largest size accepted.
+
+    Returns
+    -------
+    bytes
+
+    Raises
+    ------
+    InputError
+        When the path is neither a regular file nor a folder (a device, a FIFO), or the file is
+        too large.
+    OSError
+        From ``stat`` or ``open`` (a missing or unreadable file; a folder): the caller words it.
+    """
     import stat
 
     st = path.stat()
@@ -536,6 +579,16 @@ def read_text_capped(path: Path, max_bytes: int) -> bytes:
 
 def load_system(path: str | Path) -> SpinSystem:
     """Read and validate a spin-system TOML file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file (schema in the module docstring).
+
+    Returns
+    -------
+    SpinSystem
+        With ``source`` set to the file name.
 
     Raises
     ------
@@ -569,6 +622,16 @@ def canonical_document(system: SpinSystem) -> dict:
     """The canonical document of a system: explicit tensors and rates, no optional forms.
 
     Loading it back gives a system equal to ``system`` (see :func:`systems_equal`).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Returns
+    -------
+    dict
+        A TOML-serialisable document in the units of the file format (mT, s^-1).
     """
     doc: dict[str, Any] = {
         "pair": {
@@ -601,7 +664,18 @@ def canonical_document(system: SpinSystem) -> dict:
 
 
 def dump_system(system: SpinSystem) -> str:
-    """The canonical TOML text of ``system`` (floats written exactly, so it loads back equal)."""
+    """The canonical TOML text of a system (floats written exactly, so it loads back equal).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Returns
+    -------
+    str
+        TOML text of :func:`canonical_document`.
+    """
     import tomli_w
 
     return tomli_w.dumps(canonical_document(system))
@@ -611,6 +685,15 @@ def systems_equal(a: SpinSystem, b: SpinSystem) -> bool:
     """Physical equality of two systems: every field except ``source`` and ``document``, arrays exactly.
 
     (``SpinSystem.__eq__`` from the dataclass cannot compare the ndarray fields.)
+
+    Parameters
+    ----------
+    a, b : SpinSystem
+        The systems to compare.
+
+    Returns
+    -------
+    bool
     """
     def arr_eq(x, y) -> bool:
         if x is None or y is None:

@@ -75,7 +75,19 @@ _COND_LIMIT = 1e7
 
 
 def check_scope(system) -> None:
-    """Raise :class:`InputError` when the rates make the yields undefined."""
+    """Refuse a system whose rates make the yields undefined.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Raises
+    ------
+    InputError
+        For a rate that is negative or not finite, both rates zero (the pair never reacts), or an
+        initial state or reported yield other than "singlet" or "triplet".
+    """
     ks, kt = float(system.k_singlet), float(system.k_triplet)
     for key, k in (("k_singlet", ks), ("k_triplet", kt)):
         if not np.isfinite(k) or k < 0:
@@ -90,7 +102,19 @@ def check_scope(system) -> None:
 
 
 def solver_for(system) -> str:
-    """``"eig"`` (no relaxation) or ``"krylov"`` (relaxation) when both rates are positive, else ``"sparse"``."""
+    """The Liouville solver this system takes.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Returns
+    -------
+    str
+        ``"eig"`` (no relaxation) or ``"krylov"`` (relaxation) when both rates are positive, else
+        ``"sparse"``.
+    """
     if not (system.k_singlet > 0 and system.k_triplet > 0):
         return "sparse"
     return "krylov" if system.relaxation.any else "eig"
@@ -127,7 +151,24 @@ def _sparse_solve(system, l0, lb, b_vec, rho0_vec, space):
 
 
 def yields_sparse(system, field_uT, directions, *, progress=None) -> np.ndarray:
-    """Reported yields by one sparse LU solve of the Liouvillian per direction; shape (N,)."""
+    """Reported yields by one sparse LU solve of the Liouvillian per direction.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        Any system :func:`check_scope` accepts.
+    field_uT : float
+        Static field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised here).
+    progress : callable(done, total), optional
+        Counts directions.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        Reported yield (dimensionless).
+    """
     check_scope(system)
     b, dirs = validate_field(field_uT, directions, system.source)
     l0, lb, space = ops.liouvillian_parts(system)
@@ -146,9 +187,27 @@ def yields_sparse(system, field_uT, directions, *, progress=None) -> np.ndarray:
 
 
 def yields_eig(system, field_uT, directions, *, progress=None, max_bytes=None) -> np.ndarray:
-    """Reported yields through the eigen-decomposition of the effective Hamiltonian; shape (N,).
+    """Reported yields through the eigen-decomposition of the effective Hamiltonian.
 
     Needs no relaxation and both rates > 0 (else :class:`InputError`).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair (unequal rates, exchange, dipolar coupling allowed).
+    field_uT : float
+        Static field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised here).
+    progress : callable(done, total), optional
+        Counts directions.
+    max_bytes : int, optional
+        Memory limit for the batched working arrays.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        Reported yield (dimensionless).
     """
     check_scope(system)
     if system.relaxation.any or solver_for(system) != "eig":
@@ -269,10 +328,20 @@ def _lindblad_terms(system, space):
 
 
 def sparse_lu_bytes(dimension: int) -> int:
-    """Estimated peak memory of one sparse LU solve of the (d^2, d^2) Liouvillian, bytes.
+    """Estimated peak memory of one sparse LU solve of the (d^2, d^2) Liouvillian.
 
     The fill-in of the factors grows as about ``0.75 d^4`` entries (measured, 24 bytes each with
     their indices); the engine's cost model uses the same figure.
+
+    Parameters
+    ----------
+    dimension : int
+        Hilbert dimension ``d``.
+
+    Returns
+    -------
+    int
+        Bytes.
     """
     dd = int(dimension) ** 2
     return int(24 * 0.75 * dd * dd + 20 * 40 * dd)
@@ -295,9 +364,27 @@ def _check_sparse_fallback_fits(system, d, resid) -> None:
 
 
 def yields_krylov(system, field_uT, directions, *, progress=None, rtol=1e-13) -> np.ndarray:
-    """Reported yields by Sylvester-preconditioned GMRES (module docstring); shape (N,).
+    """Reported yields by Sylvester-preconditioned GMRES (module docstring).
 
     Needs both rates > 0 (else :class:`InputError`); meant for systems with relaxation.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    field_uT : float
+        Static field strength, microtesla.
+    directions : array_like, shape (N, 3)
+        Field directions in the molecular frame (normalised here).
+    progress : callable(done, total), optional
+        Counts directions.
+    rtol : float
+        Relative residual at which GMRES stops.
+
+    Returns
+    -------
+    ndarray, shape (N,)
+        Reported yield (dimensionless).
     """
     check_scope(system)
     if not (system.k_singlet > 0 and system.k_triplet > 0):

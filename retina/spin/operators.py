@@ -146,7 +146,25 @@ class PairSpace:
 
 
 def pair_space(system) -> PairSpace:
-    """The :class:`PairSpace` of a :class:`~retina.spin.system.SpinSystem`."""
+    """The :class:`PairSpace` of a :class:`~retina.spin.system.SpinSystem`.
+
+    Electron A, A's nuclei, electron B, B's nuclei, in that order of the tensor product.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Returns
+    -------
+    PairSpace
+        Factor dimensions, spins, electron positions and nuclear dimensions.
+
+    Raises
+    ------
+    InputError
+        For a nuclear spin that is not a positive multiple of 1/2.
+    """
     ra, rb = system.radicals
     spins = [0.5] + [_check_spin(n.spin) for n in ra.nuclei] + [0.5] + [_check_spin(n.spin) for n in rb.nuclei]
     dims = tuple(int(round(2 * s)) + 1 for s in spins)
@@ -192,9 +210,19 @@ def _electron_operators_cached(space: PairSpace):
 
 
 def electron_operators(space: PairSpace) -> tuple[list[sp.csr_matrix], list[sp.csr_matrix]]:
-    """``([S_Ax, S_Ay, S_Az], [S_Bx, S_By, S_Bz])`` embedded in the pair space (sparse CSR).
+    """The electron spin operators embedded in the pair space.
 
     Cached per layout: treat the returned matrices as read-only.
+
+    Parameters
+    ----------
+    space : PairSpace
+        The pair's space.
+
+    Returns
+    -------
+    tuple of two lists of scipy.sparse.csr_matrix, each shape (d, d)
+        ``([S_Ax, S_Ay, S_Az], [S_Bx, S_By, S_Bz])`` (units of hbar).
     """
     a, b = _electron_operators_cached(space)
     return list(a), list(b)
@@ -330,22 +358,67 @@ def _singlet_projector_cached(space: PairSpace) -> sp.csr_matrix:
 
 
 def singlet_projector(space: PairSpace, *, sparse: bool = False):
-    """``P_S = 1/4 - S_A . S_B``, shape (d, d) (dense complex unless ``sparse``).
+    """The singlet projector ``P_S = 1/4 - S_A . S_B``.
 
     The sparse form is cached per layout: treat it as read-only (the dense form is a new array).
+
+    Parameters
+    ----------
+    space : PairSpace
+        The pair's space.
+    sparse : bool
+        Return a sparse CSR matrix instead of a dense array.
+
+    Returns
+    -------
+    ndarray or scipy.sparse.csr_matrix, shape (d, d)
+        Complex.
     """
     p = _singlet_projector_cached(space)
     return p if sparse else p.toarray()
 
 
 def triplet_projector(space: PairSpace, *, sparse: bool = False):
-    """``P_T = 1 - P_S``, shape (d, d) (dense complex unless ``sparse``)."""
+    """The triplet projector ``P_T = 1 - P_S``.
+
+    Parameters
+    ----------
+    space : PairSpace
+        The pair's space.
+    sparse : bool
+        Return a sparse CSR matrix instead of a dense array.
+
+    Returns
+    -------
+    ndarray or scipy.sparse.csr_matrix, shape (d, d)
+        Complex.
+    """
     p = (sp.identity(space.dimension, dtype=complex, format="csr") - singlet_projector(space, sparse=True)).tocsr()
     return p if sparse else p.toarray()
 
 
 def initial_density(system, space: PairSpace | None = None) -> np.ndarray:
-    """Initial density matrix ``P_S / M`` or ``P_T / (3 M)``, shape (d, d), complex, trace 1."""
+    """Initial density matrix ``P_S / M`` (singlet start) or ``P_T / (3 M)`` (triplet start).
+
+    ``M`` is the nuclear dimension (every nuclear state equally populated).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    space : PairSpace, optional
+        The pair's space (built from ``system`` when omitted).
+
+    Returns
+    -------
+    ndarray, shape (d, d)
+        Complex, Hermitian, trace 1.
+
+    Raises
+    ------
+    InputError
+        Key ``initial_state``, for a start other than "singlet" or "triplet".
+    """
     space = space or pair_space(system)
     m = space.nuclear_dimension
     if system.initial_state == "singlet":
@@ -361,26 +434,69 @@ def _ident(d):
 
 
 def commutator_superoperator(h) -> sp.csr_matrix:
-    """``[H, .]`` as ``H kron 1 - 1 kron H^T`` (row-major vectorisation), shape (d^2, d^2)."""
+    """``[H, .]`` as ``H kron 1 - 1 kron H^T`` (row-major vectorisation).
+
+    Parameters
+    ----------
+    h : array_like or sparse matrix, shape (d, d)
+        The operator.
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (d^2, d^2)
+    """
     h = sp.csr_matrix(h)
     d = h.shape[0]
     return (sp.kron(h, _ident(d)) - sp.kron(_ident(d), h.T)).tocsr()
 
 
 def anticommutator_superoperator(k) -> sp.csr_matrix:
-    """``{K, .}`` as ``K kron 1 + 1 kron K^T``, shape (d^2, d^2)."""
+    """``{K, .}`` as ``K kron 1 + 1 kron K^T`` (row-major vectorisation).
+
+    Parameters
+    ----------
+    k : array_like or sparse matrix, shape (d, d)
+        The operator.
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (d^2, d^2)
+    """
     k = sp.csr_matrix(k)
     d = k.shape[0]
     return (sp.kron(k, _ident(d)) + sp.kron(_ident(d), k.T)).tocsr()
 
 
 def sandwich_superoperator(a, b) -> sp.csr_matrix:
-    """``rho -> A rho B`` as ``A kron B^T``, shape (d^2, d^2)."""
+    """``rho -> A rho B`` as ``A kron B^T`` (row-major vectorisation).
+
+    Parameters
+    ----------
+    a, b : array_like or sparse matrix, shape (d, d)
+        The left and right factors.
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (d^2, d^2)
+    """
     return sp.kron(sp.csr_matrix(a), sp.csr_matrix(b).T, format="csr")
 
 
 def haberkorn_superoperator(system, space: PairSpace | None = None) -> sp.csr_matrix:
-    """``-(k_S/2){P_S, .} - (k_T/2){P_T, .}`` in s^-1, shape (d^2, d^2)."""
+    """Haberkorn recombination ``-(k_S/2){P_S, .} - (k_T/2){P_T, .}``.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    space : PairSpace, optional
+        The pair's space (built from ``system`` when omitted).
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (d^2, d^2)
+        s^-1.
+    """
     space = space or pair_space(system)
     ps = singlet_projector(space, sparse=True)
     pt = triplet_projector(space, sparse=True)
@@ -396,7 +512,20 @@ def _lindblad(op, rate) -> sp.csr_matrix:
 
 
 def relaxation_superoperator(system, space: PairSpace | None = None) -> sp.csr_matrix:
-    """Random-field relaxation plus singlet-triplet dephasing (module docstring), shape (d^2, d^2)."""
+    """Random-field relaxation plus singlet-triplet dephasing (module docstring).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    space : PairSpace, optional
+        The pair's space (built from ``system`` when omitted).
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix, shape (d^2, d^2)
+        s^-1 (zero when the system has no relaxation).
+    """
     space = space or pair_space(system)
     d = space.dimension
     out = sp.csr_matrix((d * d, d * d), dtype=complex)
@@ -412,14 +541,19 @@ def relaxation_superoperator(system, space: PairSpace | None = None) -> sp.csr_m
 
 
 def liouvillian_parts(system):
-    """``L(B) = L0 + sum_k B_k L_k`` with ``d vec(rho)/dt = L vec(rho)`` (s^-1, B in tesla).
+    """The Liouvillian's parts: ``L(B) = L0 + sum_k B_k L_k``, ``d vec(rho)/dt = L vec(rho)``.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
 
     Returns
     -------
     L0 : scipy.sparse.csr_matrix, shape (d^2, d^2)
-        ``-i [H0, .]`` + Haberkorn recombination + relaxation.
+        ``-i [H0, .]`` + Haberkorn recombination + relaxation, s^-1.
     Lb : list of 3 scipy.sparse.csr_matrix, shape (d^2, d^2)
-        ``-i [H_k, .]``.
+        ``-i [H_k, .]``, s^-1 per tesla of the field component ``B_k``.
     space : PairSpace
     """
     h0, hb, space = hamiltonian_parts(system, sparse=True)

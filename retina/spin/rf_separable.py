@@ -4,9 +4,9 @@ Scope
 -----
 The scope of :mod:`retina.spin.separable` (no exchange, no dipolar coupling, equal rates
 ``k_S = k_T = k``, no relaxation), with a linearly polarised RF field added as in
-:mod:`retina.spin.rf`: ``B1 n cos(w t + theta)``, the pair born at a uniformly random phase
+:mod:`retina.spin._rf_common`: ``B1 n cos(w t + theta)``, the pair born at a uniformly random phase
 ``theta``.  Outside the scope :class:`retina.errors.InputError` names the reason; the whole-pair
-Floquet solver :func:`retina.spin.rf.yields_rf` covers everything else.
+Floquet solver :func:`retina.spin.rf_floquet.yields_rf` covers everything else.
 
 Derivation
 ----------
@@ -36,21 +36,21 @@ same ``U_r``).  Inserting the expansion,
     C^A_ab(t, t0) = sum_{j,k} <u_j(t0)|S_a|u_k(t0)> <u_k(t1)|S_b|u_j(t1)> exp(i (eps_k - eps_j) t),
 
 with ``t1 = t0 + t``, and likewise for B with states ``p, q``.  Summing over ``a, b`` regroups the
-product of the two radicals, exactly as in the static derivation, into
+product of the two radicals, exactly as in the static derivation, into::
 
     sum_ab C^A_ab C^B_ab = sum_{jk,pq} X_{jp,kq}(t0) conj(X_{jp,kq}(t1)) exp(i Omega0 t),
     X_{jp,kq}(tau) = <u_j(tau) u_p(tau)| S_A . S_B |u_k(tau) u_q(tau)>,
     Omega0 = eps_k - eps_j + eps_q - eps_p.
 
 ``X(tau)`` is periodic, ``X(tau) = sum_n x_n exp(i n w tau)``; its Fourier coefficients are the
-convolution of the radicals' own ones,
+convolution of the radicals' own ones::
 
     x_n = sum_a sum_s alpha^a_{jk,s} beta^a_{pq,n-s},    alpha^a_{jk,s} = sum_m <u_jm|S_Aa|u_k,m+s>.
 
 *Phase average.*  Averaging over the birth time ``t0`` uniformly over a period (Parseval),
 ``< X(t0) conj(X(t0 + t)) > = sum_n |x_n|^2 exp(-i n w t)``.  The Laplace transform against
 ``k exp(-k t)`` gives ``k / (k - i (Omega0 - n w))``; the term ``(kj, qp, -n)`` carries the same
-weight with the opposite frequency, so only the real part survives:
+weight with the opposite frequency, so only the real part survives::
 
     <Phi_S> = 1/4 + (1 / M) sum_{j,k in A} sum_{p,q in B} sum_n |x_n^{jp,kq}|^2
                               k^2 / (k^2 + (eps_k - eps_j + eps_q - eps_p - n w)^2).
@@ -71,7 +71,7 @@ which fails if the truncation is too short or a family was missed.  Harmonics of
 changes ``x_0`` by ``delta^2`` and ``|x_n|^2`` by ``delta^2``, so the yield by about ``tol / 100``.
 
 RF directions: a vector fixed in the molecular frame, ``"parallel"`` or ``"perpendicular"``
-(azimuth average with the nested equally spaced rule of :mod:`retina.spin.rf`).
+(azimuth average with the nested equally spaced rule of :mod:`retina.spin._rf_common`).
 """
 
 from __future__ import annotations
@@ -84,6 +84,8 @@ import numpy as np
 import scipy.linalg
 
 from retina.errors import InputError, ResourceError
+from retina.spin._rf_common import azimuth_mean, check_azimuths, check_harmonics, check_rf, check_tol, perp_basis
+from retina.spin.hilbert import validate_field
 from retina.spin.separable import check_scope, radical_operators
 from retina.spin.system import equal_rate_reported_yield
 
@@ -92,12 +94,6 @@ __all__ = ["yields_rf", "MAX_HARMONICS", "radical_floquet"]
 #: Largest Floquet order tried by ``harmonics="auto"``.
 MAX_HARMONICS = 512
 _ORTHO_LIMIT = 1e-9
-
-
-def _perp_basis(b):
-    from retina.spin.rf import _perp_basis as pb
-
-    return pb(b)
 
 
 def radical_floquet(h0, v, omega, n_h):
@@ -304,7 +300,7 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
     rf_nT : float
         RF amplitude ``B1``, nT (>= 0); the field is ``B1 n cos(w t + theta)``.
     rf_direction : {"perpendicular", "parallel"} or array_like, shape (3,)
-        As in :func:`retina.spin.rf.yields_rf`.
+        As in :func:`retina.spin.rf_floquet.yields_rf`.
     angle_deg : float
         With "perpendicular": the RF direction makes this angle with the static field and is
         averaged over its azimuth about it (90, the default, is perpendicular; other angles use
@@ -325,19 +321,13 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
     ndarray, shape (N,)
         Phase-averaged reported yield (dimensionless); with ``return_info`` a tuple ``(yields, info)``.
     """
-    from retina.spin.hilbert import validate_field
-    from retina.spin.rf import MAX_AZIMUTHS, _check_harmonics, _check_tol, check_rf
-
     check_scope(system)
     src = system.source
     omega, b1, rfdir = check_rf(rf_MHz, rf_nT, rf_direction, source=src)
     if harmonics != "auto":
-        harmonics = _check_harmonics(harmonics, src)
-    tol = _check_tol(tol, src)
-    if azimuths != "auto" and (isinstance(azimuths, bool) or not isinstance(azimuths, (int, np.integer))
-                               or not 1 <= azimuths <= MAX_AZIMUTHS or MAX_AZIMUTHS % int(azimuths)):
-        raise InputError(f"expected 'auto' or a divisor of {MAX_AZIMUTHS} azimuths, got {azimuths!r}",
-                         source=src, key="azimuths")
+        harmonics = check_harmonics(harmonics, src)
+    tol = check_tol(tol, src)
+    azimuths = check_azimuths(azimuths, src)
     b, dirs = validate_field(field_uT, directions, src)
     try:
         alpha = float(np.radians(float(angle_deg)))
@@ -361,38 +351,17 @@ def yields_rf(system, field_uT, directions, *, rf_MHz, rf_nT, rf_direction="perp
     for i in range(n):
         bd = dirs[i]
         if isinstance(rfdir, str) and rfdir == "perpendicular":
-            e1, e2 = _perp_basis(bd)
-            vals: dict[int, float] = {}
+            e1, e2 = perp_basis(bd)
 
-            def at(j, kk):
-                key = j * (MAX_AZIMUTHS // kk)
-                if key not in vals:
-                    phi = span * j / kk
-                    nrf = ca * bd + sa * (np.cos(phi) * e1 + np.sin(phi) * e2)
-                    val, o, err = _pair_value(ra, rb, b * bd, b1 * nrf, w, harmonics, tol)
-                    vals[key] = val
-                    orders[i] = max(orders[i], o)
-                    ortho[i] = max(ortho[i], err)
-                return vals[key]
+            def value_at(t):  # azimuth phi = span t
+                phi = span * t
+                nrf = ca * bd + sa * (np.cos(phi) * e1 + np.sin(phi) * e2)
+                val, o, err = _pair_value(ra, rb, b * bd, b1 * nrf, w, harmonics, tol)
+                orders[i] = max(orders[i], o)
+                ortho[i] = max(ortho[i], err)
+                return (val,)
 
-            def mean(kk):
-                return float(np.mean([at(j, kk) for j in range(kk)]))
-
-            if azimuths == "auto":
-                kk = 2
-                prev = mean(kk)
-                while True:
-                    if 2 * kk > MAX_AZIMUTHS:
-                        raise ResourceError(f"the azimuth average did not converge to {tol:g} with {MAX_AZIMUTHS} "
-                                            "azimuths; raise tol")
-                    kk *= 2
-                    cur = mean(kk)
-                    if abs(cur - prev) < tol:
-                        break
-                    prev = cur
-            else:
-                kk = int(azimuths)
-                cur = mean(kk)
+            (cur,), kk = azimuth_mean(value_at, azimuths, tol)
             out[i] = cur
             n_az[i] = kk
         else:

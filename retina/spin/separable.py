@@ -121,9 +121,19 @@ def radical_operators(radical) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def check_scope(system) -> None:
-    """Raise :class:`InputError` when ``system`` is outside the separable-radicals method.
+    """Refuse a system outside the separable-radicals method.
 
     The method needs uncoupled electrons (no exchange, no dipolar), equal rates and no relaxation.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+
+    Raises
+    ------
+    InputError
+        Naming the coupling, rate or relaxation that is out of scope.
     """
     src = getattr(system, "source", None)
     if system.exchange_mT != 0.0:
@@ -223,13 +233,39 @@ def _check_inputs(field_uT, directions) -> np.ndarray:
 
 
 def batch_bytes(system) -> int:
-    """Working memory per direction in a batch, bytes (rotated operators and temporaries)."""
+    """Working memory per direction in a batch (rotated operators and temporaries).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair (its radicals' nuclear dimensions set the cost).
+
+    Returns
+    -------
+    int
+        Bytes.
+    """
     d2 = sum(r.dimension ** 2 for r in system.radicals)
     return 16 * 15 * d2
 
 
 def working_bytes(system, n_directions: int, max_bytes: int | None = None) -> int:
-    """Peak working memory of :func:`yields` for ``n_directions`` directions, bytes."""
+    """Peak working memory of :func:`yields` for a number of directions.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    n_directions : int
+        Number of field directions.
+    max_bytes : int, optional
+        Memory limit that caps the batch size.
+
+    Returns
+    -------
+    int
+        Bytes.
+    """
     per = batch_bytes(system)
     budget = DEFAULT_BATCH_BYTES if max_bytes is None else int(max_bytes)
     batch = max(1, min(max(int(n_directions), 1), budget // per))

@@ -162,12 +162,24 @@ class SpinSystem:
 
 
 def equal_rate_reported_yield(system: SpinSystem, phi_ss):
-    """The reported yield from the singlet-start singlet yield ``phi_ss``, for equal rates and no
-    relaxation (the scope of the eigen and separable methods).
+    """The reported yield from the singlet-start singlet yield, for equal rates and no relaxation.
 
-    Derived: with ``k_S = k_T`` every state decays at the same rate, so the maximally mixed start
-    ``1 / (4 M)`` gives ``Phi_S = 1/4``; writing it as ``(1/4) Phi_S(singlet) + (3/4) Phi_S(triplet)``
-    gives ``Phi_S(triplet start) = (1 - phi_ss) / 3``, and ``Phi_T = 1 - Phi_S`` for either start.
+    The scope of the eigen and separable methods.  Derived: with ``k_S = k_T`` every state decays
+    at the same rate, so the maximally mixed start ``1 / (4 M)`` gives ``Phi_S = 1/4``; writing it
+    as ``(1/4) Phi_S(singlet) + (3/4) Phi_S(triplet)`` gives ``Phi_S(triplet start) =
+    (1 - phi_ss) / 3``, and ``Phi_T = 1 - Phi_S`` for either start.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        Its ``initial_state`` and ``reported_yield`` choose the formula.
+    phi_ss : ndarray
+        Singlet yield from a singlet start, any shape.
+
+    Returns
+    -------
+    ndarray
+        The reported yield, same shape.
     """
     from retina.errors import InputError
 

@@ -15,7 +15,10 @@ Conventions (owned here)
   ``readout.nuisance = "gain"`` one overall light level, common to all poses of a scan, is unknown
   (Schur complement, "global_gain"; the decoder profiles the same gain out).
 - Bounds: :func:`rms_bound` is the Cramer-Rao bound on the rms heading error over uniformly
-  distributed true headings, ``sqrt(mean_h 1 / I(h))`` over the 360 grid headings.
+  distributed true headings, ``sqrt(mean_h 1 / I(h))`` over the 360 grid headings.  The disorder
+  and order studies compare models by one number each (:func:`study_probe`): the depth averaged
+  over the scenario's poses and the information per photon averaged over the headings
+  :data:`STUDY_HEADINGS_DEG`; their bound at each light level is :func:`bounds_over_light`.
 """
 
 from __future__ import annotations
@@ -30,7 +33,7 @@ from retina.build import build_sky, stage_rng
 from retina.scenario import Scenario
 
 __all__ = ["Stage", "stage_rng", "signal_model", "depth", "scan_yaws", "per_photon_info", "GRID", "GridModel",
-           "grid_offsets", "decode_errors", "rms_bound"]
+           "grid_offsets", "decode_errors", "rms_bound", "STUDY_HEADINGS_DEG", "study_probe", "bounds_over_light"]
 
 @dataclass(frozen=True)
 class Stage:
@@ -274,3 +277,62 @@ def rms_bound(photons: np.ndarray, info_per_photon: np.ndarray) -> np.ndarray:
 
     crb = cramer_rao_deg(np.asarray(photons, float)[:, None] * np.asarray(info_per_photon, float)[None, :])
     return np.sqrt(np.mean(crb ** 2, axis=1))
+
+
+#: Headings (degrees) over which the disorder and order studies average the information of one pose.
+STUDY_HEADINGS_DEG = np.arange(0.0, 360.0, 10.0)
+
+
+def study_probe(sc: Scenario, fld) -> Callable[[object], tuple[float, float]]:
+    """The two numbers by which the disorder and order studies compare retina models.
+
+    Parameters
+    ----------
+    sc : Scenario
+        Its ``pose`` (headings, pitch, roll) places the head; ``readout.nuisance`` sets the
+        information.
+    fld : Field
+        The world field.
+
+    Returns
+    -------
+    callable(RetinaModel) -> (float, float)
+        For a model: the modulation depth (:func:`depth`) averaged over the scenario's poses, and
+        the heading information per photon (rad^-2 per photon per receptor) averaged over
+        :data:`STUDY_HEADINGS_DEG` at the scenario's pitch and roll.
+    """
+    from retina.eye.pose import head_field, pose_rotation
+
+    p = sc["pose"]
+    b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
+                   fld.vector)
+    nuisance = sc["readout"]["nuisance"]
+
+    def probe(m) -> tuple[float, float]:
+        dp = float(np.mean(depth(m.yields(b))))
+        info = float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, nuisance, STUDY_HEADINGS_DEG)))
+        return dp, info
+
+    return probe
+
+
+def bounds_over_light(photons, info_per_photon) -> np.ndarray:
+    """Cramer-Rao bounds (degrees) for every light level and every model.
+
+    Parameters
+    ----------
+    photons : array_like, shape (M,)
+        Photon budgets per receptor (the light levels).
+    info_per_photon : float or array_like, shape (K,)
+        Heading information per photon of each model, rad^-2.
+
+    Returns
+    -------
+    ndarray, shape (M,) or (M, K)
+        ``1 / sqrt(photons info)`` in degrees (inf where the information is 0).
+    """
+    from retina.readout.fisher import cramer_rao_deg
+
+    info = np.asarray(info_per_photon, float)
+    light = np.asarray(photons, float).reshape((-1,) + (1,) * info.ndim)
+    return cramer_rao_deg(light * info)

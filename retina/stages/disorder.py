@@ -14,7 +14,7 @@ import numpy as np
 
 from retina.build import KAPPA_MODELS, build_retina
 from retina.scenario import Scenario
-from retina.stages._common import Stage, depth, per_photon_info, signal_model
+from retina.stages._common import Stage, bounds_over_light, study_probe
 
 __all__ = ["compute_disorder", "swept_model_text", "STAGE"]
 
@@ -37,20 +37,14 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
         ``kappas (K,)``, ``depth (K,)`` (mean over the scenario's headings), ``info_per_photon (K,)``,
         ``light_photons (M,)``, ``bound_deg (M, K)`` and, for a cone ordering, ``scenario_kappa``.
     """
-    from retina.eye.pose import head_field, pose_rotation
-    from retina.readout.fisher import cramer_rao_deg
-
     kap = np.asarray(sc["ordering"]["disorder_kappas"], float)
     light = np.asarray(sc["light"]["photons"], float)
-    p = sc["pose"]
-    b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
-                   fld.vector)
-    hs = np.arange(0.0, 360.0, 10.0)
+    probe = study_probe(sc, fld)
     dep, info = [], []
     for i, k in enumerate(kap):
-        m = build_retina(sc, yf, receptors, kappa=float(k))
-        dep.append(float(np.mean(depth(m.yields(b)))))
-        info.append(float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, sc["readout"]["nuisance"], hs))))
+        dp, inf = probe(build_retina(sc, yf, receptors, kappa=float(k)))
+        dep.append(dp)
+        info.append(inf)
         if progress:
             progress(i + 1, kap.size)
     info = np.array(info)
@@ -59,7 +53,7 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
     return {"kappas": kap, "depth": np.array(dep), "info_per_photon": info,
             **({"scenario_kappa": own} if own is not None and np.isfinite(own) else {}),
             "model": swept_model_text(sc), "light_photons": light,
-            "bound_deg": cramer_rao_deg(light[:, None] * info[None, :])}
+            "bound_deg": bounds_over_light(light, info)}
 
 
 def swept_model_text(sc: Scenario) -> str:

@@ -80,8 +80,27 @@ def estimate_bytes(sc, stages=("patterns", "scan", "precision", "disorder", "tri
 
 
 def check_memory(sc, stages, max_bytes: int | None = None) -> dict[str, int]:
-    """Refuse (:class:`ResourceError`) when the build or a stage would exceed ``max_bytes``
-    (default 60 % of the available memory); return the estimates."""
+    """Refuse, before anything is allocated, a run whose build or a stage would not fit in memory.
+
+    Parameters
+    ----------
+    sc : Scenario
+        The scenario (its sizes set the estimates).
+    stages : sequence of str
+        The stages to run.
+    max_bytes : int, optional
+        Limit in bytes (default 60 % of the available memory).
+
+    Returns
+    -------
+    dict of str to int
+        The estimate of the build and of each stage, bytes.
+
+    Raises
+    ------
+    ResourceError
+        Naming the part over the limit and what to change.
+    """
     from retina.spin.memory import available_bytes
 
     limit = int(0.6 * available_bytes()) if max_bytes is None else int(max_bytes)

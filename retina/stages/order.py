@@ -28,7 +28,7 @@ import numpy as np
 
 from retina.build import build_retina
 from retina.scenario import Scenario
-from retina.stages._common import Stage, depth, per_photon_info, signal_model
+from retina.stages._common import Stage, bounds_over_light, study_probe
 
 __all__ = ["compute_order", "STAGE", "n_steps"]
 
@@ -73,8 +73,6 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
     from scipy.spatial.transform import Rotation
 
     from retina.eye.ordering import concentration_curves, restraint_classes
-    from retina.eye.pose import head_field, pose_rotation
-    from retina.readout.fisher import cramer_rao_deg
 
     o = sc["ordering"]
     mean = Rotation.from_euler("ZYZ", list(o["orientation_deg"]), degrees=True)
@@ -84,18 +82,13 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
         mean = Cone.restraining(o["axis"], kappa=0.0).mean
     light = np.asarray(sc["light"]["photons"], float)
     kap = np.asarray(o["study_kappas"], float)
-    p = sc["pose"]
-    b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
-                   fld.vector)
-    hs = np.arange(0.0, 360.0, 10.0)
+    probe = study_probe(sc, fld)
     total = n_steps(sc)
     done = 0
 
     def evaluate(ordering) -> tuple[float, float]:
         nonlocal done
-        m = build_retina(sc, yf, receptors, ordering=ordering)
-        dp = float(np.mean(depth(m.yields(b))))
-        info = float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, sc["readout"]["nuisance"], hs)))
+        dp, info = probe(build_retina(sc, yf, receptors, ordering=ordering))
         done += 1
         if progress:
             progress(done, total)
@@ -105,12 +98,12 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
     for case in restraint_classes(mean):
         dp, info = evaluate(case.build)
         classes[case.key] = {"label": case.label, "depth": dp, "info_per_photon": info,
-                             "bound_deg": cramer_rao_deg(light * info)}
+                             "bound_deg": bounds_over_light(light, info)}
     for case in concentration_curves(mean):
         dps, infos = zip(*(evaluate(case.build(float(k))) for k in kap))
         info = np.array(infos)
         curves[case.key] = {"label": case.label, "kappas": kap.copy(), "depth": np.array(dps),
-                            "info_per_photon": info, "bound_deg": cramer_rao_deg(light[:, None] * info[None, :])}
+                            "info_per_photon": info, "bound_deg": bounds_over_light(light, info)}
     return {"light_photons": light, "classes": classes, "curves": curves,
             "class_order": ",".join(classes), "curve_order": ",".join(curves),
             "mean_orientation_deg": np.asarray(o["orientation_deg"], float)}

@@ -51,7 +51,7 @@ from retina.scenario import Scenario
 from retina.stages._common import GridModel, Stage, depth, grid_offsets, rms_bound, signal_model, stage_rng
 
 __all__ = ["compute_rf", "compute_rf_sweep", "rf_yield_function_for", "condition_record", "STAGE", "SWEEP_STAGE",
-           "ONSET_FACTOR"]
+           "ONSET_FACTOR", "condition_yield_function"]
 
 #: The onset of disorientation: the bound at least this many times the control's.
 ONSET_FACTOR = 2.0
@@ -400,3 +400,37 @@ def _sweep_steps(sc):
 STAGE = Stage("rf", lambda b, progress: compute_rf(b, progress), label="RF conditions", steps=_steps)
 SWEEP_STAGE = Stage("rf_sweep", lambda b, progress: compute_rf_sweep(b, progress), label="RF sweep",
                     steps=_sweep_steps)
+
+
+def condition_yield_function(sc: Scenario, cond: dict, fld, *, progress=None):
+    """The yield function of one ``[rf]`` condition of ``sc`` in the field ``fld``, as the ``rf`` stage
+    computes it (module docstring): at ``[rf] degree``, with the scenario's ``check_points``, ``tol`` and
+    ``cache``; the control ("off") is the static yield function fitted on the same grid.
+
+    Parameters
+    ----------
+    sc : Scenario
+        Its yield function must come from a spin system (``yield.system``); InputError otherwise.
+    cond : dict
+        One condition in the form of ``[[rf.conditions]]`` (``kind``, ``direction`` and the keys of
+        its kind; ``name`` is not needed).
+    fld : retina.eye.field.Field
+        The static field; its intensity is used unless ``yield.field_uT`` fixes it.
+    progress : callable(done, total), optional
+        Called while the engine works (it may raise :class:`retina.errors.Cancelled` to stop).
+
+    Returns
+    -------
+    YieldFunction
+    """
+    from retina.yieldfn import YieldFunction
+
+    rfc = sc["rf"]
+    system = _system(sc)
+    field = _field_uT(sc, fld)
+    L = int(rfc["degree"])
+    if cond["kind"] == "off":
+        return YieldFunction.from_system(system, field, L, check_points=rfc["check_points"], progress=progress)
+    return rf_yield_function_for(system, field, condition_record(cond, fld), degree=L,
+                                 check_points=rfc["check_points"], tol=rfc["tol"], cache=rfc["cache"],
+                                 progress=progress)
