@@ -85,7 +85,19 @@ def _separable_available() -> bool:
 
 
 def in_scope(system, method: str) -> bool:
-    """True when ``method`` covers ``system`` (see the module docstring for each scope)."""
+    """True when ``method`` covers ``system`` (see the module docstring for each scope).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    method : str
+        One of :data:`METHODS`.
+
+    Returns
+    -------
+    bool
+    """
     plain = system.equal_rates and not system.relaxation.any
     if method in SEPARABLE_METHODS:
         return plain and not system.electron_coupled
@@ -157,6 +169,20 @@ def choose_method(system, n_directions: int = 1, accuracy: float | None = None) 
     approximate ``"sampled"`` method competes too, in the separable scope, when its modelled time
     (:func:`retina.spin.sampling.cost_model`, fixed constants, default number of states) is below
     the exact separable methods'; its run then sizes its states to meet ``accuracy``.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    n_directions : int
+        Number of field directions (kept for the interface; the choice is per direction).
+    accuracy : float, optional
+        Standard error per yield the caller accepts.
+
+    Returns
+    -------
+    str
+        The method's name.
     """
     accuracy = _check_accuracy(accuracy)
     if system.equal_rates and not system.relaxation.any:

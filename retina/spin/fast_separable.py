@@ -383,7 +383,19 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
 def plan(wa: float, wb: float, k: float, tol: float = DEFAULT_TOL) -> dict:
     """Time step, number of samples and NUFFT width for spreads ``wa``, ``wb`` (rad s^-1) and rate ``k``.
 
-    Returns a dict with ``h`` (s), ``n_t``, ``width``, ``eps_nufft``.
+    Parameters
+    ----------
+    wa, wb : float
+        The two radicals' spectral spreads, rad s^-1.
+    k : float
+        Recombination rate, s^-1.
+    tol : float
+        Absolute tolerance on the yield.
+
+    Returns
+    -------
+    dict
+        ``h`` (s), ``n_t``, ``width``, ``eps_nufft``.
     """
     w_tot = max(wa + wb, 1e-300)
     h = min(THETA * np.pi / w_tot, MAX_KH / k)
@@ -484,7 +496,17 @@ def _batch(system, bvecs, k, tol):
 
 
 def working_bytes(system) -> int:
-    """Peak working memory of :func:`yields`, bytes (per direction; directions run one at a time)."""
+    """Peak working memory of :func:`yields`, bytes (per direction; directions run one at a time).
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        The pair.
+
+    Returns
+    -------
+    int
+    """
     # both radicals' eigenvalues and three spin components, plus the Hamiltonian, eigenvectors and
     # two products of the radical being decomposed (complex, 16 bytes), per worker
     from retina.spin.equivalence import reduced_dimensions

@@ -159,6 +159,22 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     Per direction and block: ``n_t = 17 / (k h)`` time steps of ``(a h SUBSTEPS + 15) / SUBSTEPS``
     sparse products with ``4 R`` vectors (``~3e-9 s`` per stored entry and vector, plus ``2e-5 s``
     per product and ``1e-4 s`` per step of Python overhead; rough, from small pairs).
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        The pair.
+    n_directions : int
+        Number of field directions.
+    n_states : int
+        Random vectors per radical.
+    field_uT : float
+        Field strength in microtesla (for the spectral spread).
+
+    Returns
+    -------
+    (float, int, str)
+        Seconds, bytes and a note in words.
     """
     from retina.spin.equivalence import reduced_dimensions
 
@@ -419,6 +435,8 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         Seed of the random vectors (the same vectors serve every direction).
     bias_tol : float
         Bound on the deterministic error (quadrature and truncation).
+    estimator : {"product", "paired"}
+        The estimator (module docstring).
     progress : callable(done, total), optional
     n_jobs : int, optional
         Worker processes over directions (joblib, loky backend; default 1); each draws the same
@@ -523,7 +541,27 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
            progress: Callable[[int, int], None] | None = None) -> np.ndarray:
-    """The reported yield for each direction, estimated by sampling (mean over draws).
+    """The reported yield for each direction, estimated by sampling.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        Separable scope.
+    field_uT : float
+        Field strength in microtesla.
+    directions : array_like (N, 3)
+        Field directions in the molecular frame.
+    n_states : int
+        Random vectors per radical.
+    seed : int
+        Seed of the random vectors.
+    progress : callable(done, total), optional
+        Progress callback.
+
+    Returns
+    -------
+    ndarray (N,)
+        The estimates (product estimator).
 
     See :func:`sampled_yields` for the standard errors; the reported-yield conversion is the
     exact affine map of :func:`retina.spin.system.equal_rate_reported_yield`, so the standard
