@@ -43,7 +43,8 @@ def default_cache_dir() -> Path:
     return Path.home() / ".cache" / "retina-compass"
 
 
-def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int) -> str:
+def cache_key(system, field_uT: float, degree: int, method: str, *, check_points: int,
+              accuracy: float | None = None) -> str:
     """The key identifying one :meth:`YieldFunction.from_system` result.
 
     Parameters
@@ -58,6 +59,8 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         The spin method.
     check_points : int
         Number of independent check directions.
+    accuracy : float, optional
+        The sampled method's requested standard error per yield; enters the key only when given.
 
     Returns
     -------
@@ -75,6 +78,8 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         "check_points": int(check_points),
         "retina": retina.__version__,
     }
+    if accuracy is not None:
+        record["accuracy"] = repr(float(accuracy))
     return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
 
 

@@ -340,7 +340,7 @@ class YieldFunction:
     def from_system(cls, system, field_uT: float, degree: int = DEFAULT_DEGREE, *, method: str = "auto",
                     progress: Callable[[int, int], None] | None = None, cache: bool = False,
                     cache_dir: str | Path | None = None, check_points: int = DEFAULT_CHECK_POINTS,
-                    max_bytes: int | None = None) -> "YieldFunction":
+                    max_bytes: int | None = None, accuracy: float | None = None) -> "YieldFunction":
         """Compute the yield function of a spin system through the engine.
 
         The engine (:func:`retina.spin.engine.compute_yields`) runs on one hemisphere of the
@@ -386,6 +386,10 @@ class YieldFunction:
             Number of independent check directions (>= 1).
         max_bytes : int, optional
             Memory limit passed to the engine (it raises ResourceError beyond it).
+        accuracy : float, optional
+            Standard error per yield the caller accepts; lets ``"auto"`` choose the approximate
+            ``"sampled"`` method when it is cheaper, and sizes its random states
+            (:func:`retina.spin.engine.choose_method`).  Part of the cache key when given.
 
         Raises
         ------
@@ -400,14 +404,18 @@ class YieldFunction:
         degree = _check_degree(degree)
         if int(check_points) < 1:
             raise InputError(f"expected check_points >= 1, got {check_points!r}", key="check_points")
-        resolved = engine.choose_method(system) if method == "auto" else method
+        if method != "auto":
+            resolved = method
+        else:
+            resolved = engine.choose_method(system) if accuracy is None else engine.choose_method(system, accuracy=accuracy)
 
         store = key = None
         if cache:
             from retina.cache import YieldCache, cache_key
 
             store = YieldCache(cache_dir)
-            key = cache_key(system, field_uT, degree, resolved, check_points=int(check_points))
+            key = cache_key(system, field_uT, degree, resolved, check_points=int(check_points),
+                            accuracy=accuracy if resolved == "sampled" else None)
             rec = store.get(key)
             if rec is not None:
                 hit = cls.from_record(rec)
@@ -427,6 +435,8 @@ class YieldFunction:
         # an approximate method reports its approximation and error bars through ``info``
         info: dict = {}
         extra = {"info": info} if resolved in ("sampled", "fast-separable") else {}
+        if accuracy is not None:
+            extra["accuracy"] = accuracy
         values = np.asarray(engine.compute_yields(system, field_uT, dirs, method=resolved, progress=progress,
                                                   max_bytes=max_bytes, **extra), dtype=float)
         seconds = time.perf_counter() - t0

@@ -114,6 +114,8 @@ def test_existing_output_needs_force(tiny, tmp_path, monkeypatch, capsys):
         (["--max-memory-gb", "0"], "--max-memory-gb: expected gigabytes: a finite number > 0"),
         (["--max-memory-gb", "inf"], "--max-memory-gb: expected gigabytes: a finite number > 0"),
         (["--field-uT", "nan"], "--field-uT: expected a field in microtesla: a finite number > 0"),
+        (["--accuracy", "0"], "--accuracy: expected a standard error per yield: a finite number > 0"),
+        (["--accuracy", "2"], "--accuracy: expected a standard error per yield: a finite number > 0"),
     ],
 )
 def test_bad_options_are_one_line_exit_2(tiny, tmp_path, monkeypatch, capsys, extra, pattern):

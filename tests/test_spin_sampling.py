@@ -21,17 +21,20 @@ def _small(seed=0, k=1e7):
 
 
 @pytest.mark.slow
-def test_z_scores_against_exact_yields_look_standard_normal():
+@pytest.mark.parametrize("estimator", sampling.ESTIMATORS)
+def test_z_scores_against_exact_yields_look_standard_normal(estimator):
     # Reference: fast_separable (exact to 1e-10).  40 independent seeds, one direction each, 16
     # draws: z = (estimate - exact) / standard error follows Student's t with 15 degrees of freedom
     # when the error bar is honest (derived: mean of 16 i.i.d. unbiased draws over its sample
-    # standard error).  The checks fail for an error bar off by a factor 1.5 either way.
+    # standard error; for the product estimator the jackknife variance is a sum of two such sample
+    # variances, so t(15) is the heavier-tailed end of its Welch-Satterthwaite range).  The checks fail for an error bar off by a factor 1.5 either way.
     system = _small(k=3e7)
     dirs = _unit(np.random.default_rng(1), 40)
     exact = fast_separable.singlet_start_singlet_yield(system, 50.0, dirs)
     z = np.empty(40)
     for i in range(40):
-        res = sampling.sampled_yields(system, 50.0, dirs[i:i + 1], n_states=16, seed=100 + i)
+        res = sampling.sampled_yields(system, 50.0, dirs[i:i + 1], n_states=16, seed=100 + i,
+                                      estimator=estimator)
         z[i] = (res.mean[0] - exact[i]) / res.standard_error[0]
     t_std = np.sqrt(15 / 13)
     assert abs(z.mean()) < 4 * t_std / np.sqrt(40)
@@ -110,3 +113,118 @@ def test_hours_long_exact_estimates_name_a_faster_method():
     c = engine.estimate_cost(big, 258, "separable")
     assert c.seconds > 3600
     assert "method='fast-separable'" in c.note or "method='sampled'" in c.note
+
+
+def test_spectral_interval_contains_the_spectrum_and_beats_gershgorin():
+    # Reference: numpy.linalg.eigvalsh of the dense block Hamiltonian.  Derived: Weyl's inequality
+    # (retina.spin._spectral.hyperfine_interval) and Gershgorin's theorem are both rigorous, so
+    # their intersection must contain every eigenvalue; on random anisotropic tensors the Weyl
+    # bound is the tighter one (seen on the benchmark pairs: about 0.7 of the Gershgorin spread).
+    from retina.spin.equivalence import radical_blocks
+    from retina.spin.system import Nucleus, Radical
+
+    rng = np.random.default_rng(11)
+
+    def sym(scale):
+        a = rng.normal(size=(3, 3)) * scale
+        return (a + a.T) / 2
+
+    methyl = sym(0.4)
+    rad = Radical("A", nuclei=(Nucleus("N", 1.0, sym(0.6)), Nucleus("H1", 0.5, sym(0.3)),
+                               Nucleus("M1", 0.5, methyl), Nucleus("M2", 0.5, methyl), Nucleus("M3", 0.5, methyl)))
+    b = _unit(rng, 1)[0] * 50e-6
+    tighter = 0
+    for blk in radical_blocks(rad, sparse=True):
+        s_e, h_hf, weyl = sampling._sparse_ops(blk, rad)
+        w = b @ blk.zeeman
+        hm = (h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr()
+        ev = np.linalg.eigvalsh(hm.toarray())
+        lo, hi = sampling._interval(hm, weyl, w)
+        assert lo <= ev[0] + 1e-6 * abs(ev[0]) and ev[-1] <= hi + 1e-6 * abs(ev[-1])
+        g_lo, g_hi = sampling._gershgorin(hm)
+        tighter += (hi - lo) < 0.95 * (g_hi - g_lo)
+    assert tighter >= 1
+
+
+def _big(k):
+    # invented 20-nucleus pair (two nitrogens and eight protons per radical, isotropic-looking
+    # diagonal tensors), matching no real molecule
+    from retina.spin.system import Nucleus, Radical, SpinSystem
+
+    def radical(label):
+        nuc = [Nucleus(f"N{i}", 1.0, np.diag([0.5, 0.45, 0.55]) * (1 + 0.1 * i)) for i in range(2)]
+        nuc += [Nucleus(f"H{i}", 0.5, np.diag([0.1, 0.12, 0.14]) + 0.03 * i * np.eye(3)) for i in range(8)]
+        return Radical(label, nuclei=tuple(nuc))
+
+    return SpinSystem("invented 20-nucleus pair", (radical("A"), radical("B")), k_singlet=k, k_triplet=k)
+
+
+def test_auto_chooses_sampling_only_with_an_accuracy_and_when_it_is_cheaper():
+    # Common practice, no source: "auto" stays exact unless the caller accepts an error bar; with
+    # one, the cheaper of the modelled times wins (fixed constants, so the choice is reproducible).
+    fast_decay, slow_decay = _big(1e8), _big(1e6)
+    assert engine.choose_method(fast_decay) == "fast-separable"
+    assert sampling.cost_model(fast_decay, 1)[0] < engine._fixed_separable_seconds(fast_decay)
+    assert engine.choose_method(fast_decay, accuracy=1e-3) == "sampled"
+    # a long lifetime makes the propagation longer than the eigendecompositions
+    assert engine.choose_method(slow_decay, accuracy=1e-3) == "fast-separable"
+    assert engine.choose_method(_small(), accuracy=1e-3) in ("separable", "fast-separable")
+    with pytest.raises(InputError, match="accuracy"):
+        engine.choose_method(fast_decay, accuracy=0.0)
+
+
+def test_an_accuracy_sizes_the_random_states_by_a_pilot():
+    # Derived: the variance of the estimate falls as 1/R (independent draws), so asking for half
+    # the standard error of a 4-state pilot needs about 16-20 states; the final standard error must
+    # then lie near the request (within 1.6x: the pilot's own standard error is uncertain by about
+    # 1/sqrt(2 (R - 1)) of itself, and the directions differ).
+    system = _small(k=3e7)
+    dirs = _unit(np.random.default_rng(12), 6)
+    pilot = sampling.sampled_yields(system, 50.0, dirs, n_states=sampling.PILOT_STATES, seed=1)
+    want = 0.5 * float(np.max(pilot.standard_error))
+    info: dict = {}
+    got = engine.compute_yields(system, 50.0, dirs, method="sampled", accuracy=want, info=info)
+    assert got.shape == (6,)
+    assert 12 <= info["sampling_states"] <= 30
+    assert info["sampling_standard_error_max"] < 1.6 * want
+    assert info["sampling_accuracy_requested"] == want
+    assert info["sampling_accuracy_met"] == (info["sampling_standard_error_max"] <= want)
+    assert "product estimator" in info["approximation"]
+    assert info["sampling_anisotropy_relative_error"] > 0
+
+
+def test_product_estimator_jackknife_terms_average_to_the_estimate():
+    # Derived (module docstring): the estimate is bilinear in the two radicals' mean series, so the
+    # jackknife terms g_i = 1/4 + Q[c^A_i cbar^B]/M average over i to the estimate itself, and so do
+    # the h_j; the standard error is sqrt(var(g)/R + var(h)/R).  The paired estimator on the same
+    # states estimates the same yield (both unbiased): they differ by a few standard errors at most.
+    system = _small(k=3e7)
+    dirs = _unit(np.random.default_rng(13), 3)
+    prod = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4)
+    pair = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4, estimator="paired")
+    assert prod.estimator == "product" and len(prod.parts) == 2 and len(pair.parts) == 1
+    for part in prod.parts:
+        np.testing.assert_allclose(part.mean(axis=0), prod.mean, rtol=0, atol=1e-14)
+    want = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in prod.parts) / 6)
+    np.testing.assert_allclose(prod.standard_error, want, rtol=1e-12)
+    assert np.all(np.abs(prod.mean - pair.mean) < 5 * np.hypot(prod.standard_error, pair.standard_error))
+    with pytest.raises(InputError, match="estimator"):
+        sampling.sampled_yields(system, 50.0, dirs, estimator="median")
+
+
+def test_worker_processes_draw_the_same_states_and_report_progress():
+    # Reference: the same call in one process.  Every worker draws the random vectors from the seed,
+    # so each direction's estimate and per-draw terms agree to rounding (1e-12: BLAS summation
+    # order may differ between processes) and the errors stay shared across directions.
+    system = _small(k=3e7)
+    dirs = _unit(np.random.default_rng(14), 5)
+    one = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=2)
+    seen = []
+    two = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=2, n_jobs=2,
+                                  progress=lambda d, t: seen.append((d, t)))
+    np.testing.assert_allclose(two.mean, one.mean, rtol=0, atol=1e-12)
+    for a, b in zip(two.parts, one.parts):
+        np.testing.assert_allclose(a, b, rtol=0, atol=1e-12)
+    assert seen[-1] == (5, 5)
+    with pytest.raises(InputError, match="worker processes"):
+        sampling.sampled_yields(system, 50.0, dirs, n_jobs=0)

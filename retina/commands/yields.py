@@ -60,7 +60,12 @@ def register(subparsers) -> None:
     p.add_argument("--degree", type=whole("an even degree", low=2, high=1000), default=16, metavar="L",
                    help="largest (even) spherical-harmonic degree of the fit (default: 16)")
     p.add_argument("--method", choices=METHODS, default="auto",
-                   help="spin-dynamics method; auto picks the cheapest exact one (default: auto)")
+                   help="spin-dynamics method; auto picks the cheapest exact one, or the sampled approximation "
+                        "when --accuracy allows it and it is cheaper (default: auto)")
+    p.add_argument("--accuracy", type=real("a standard error per yield", low=0.0, low_open=True, high=0.5),
+                   default=None, metavar="SE",
+                   help="standard error per yield you accept (for example 1e-4): lets auto choose the sampled "
+                        "approximation when it is faster, and sizes its random states (default: exact only)")
     p.add_argument("--check-points", type=whole("a number of directions", low=1, high=MAX_CHECK_POINTS), default=200, metavar="N",
                    help="independent directions on which the truncation error is measured (default: 200)")
     p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
@@ -144,6 +149,12 @@ def summary(yf, output, wall_seconds: float) -> str:
                          f"standard error up to {p.get('sampling_standard_error_max', float('nan')):.2g} per direction "
                          f"(errors shared across directions), deterministic bias <= "
                          f"{p.get('sampling_bias_bound', float('nan')):.1g}")
+        if p.get("sampling_anisotropy_relative_error") is not None:
+            lines.insert(-1, f"  standard error of the difference between the extreme computed directions: "
+                             f"{100 * p['sampling_anisotropy_relative_error']:.2g} % of it"
+                             + (f" (requested standard error per yield {p['sampling_accuracy_requested']:.2g}: "
+                                f"{'met' if p.get('sampling_accuracy_met') else 'NOT met'})"
+                                if p.get("sampling_accuracy_requested") is not None else ""))
     return "\n".join(lines)
 
 
@@ -176,12 +187,18 @@ def run(args) -> int:
                          key="--check-points")
     system, field, degree, max_bytes = common_inputs(args)
 
-    method = engine.choose_method(system) if args.method == "auto" else args.method
+    accuracy = args.accuracy
+    if args.method != "auto":
+        method = args.method
+    else:
+        method = engine.choose_method(system) if accuracy is None else engine.choose_method(system, accuracy=accuracy)
+    if method != "sampled":
+        accuracy = None                      # exact methods meet it; keeps the cache key of exact runs
     use_cache = not args.no_cache
     cached = None
     if use_cache:
         cached = YieldCache(args.cache_dir).get(
-            cache_key(system, field, degree, method, check_points=args.check_points))
+            cache_key(system, field, degree, method, check_points=args.check_points, accuracy=accuracy))
     n = len(sphere.grid_for_degree(degree)) // 2 + args.check_points + min(ANTIPODAL_POINTS, args.check_points)
     if not args.quiet and cached is None:
         cost = engine.estimate_cost(system, n, method)
@@ -193,7 +210,7 @@ def run(args) -> int:
     with ProgressBar(not args.quiet and cached is None, "yields", n, unit="dir") as progress:
         yf = YieldFunction.from_system(system, field, degree, method=method, progress=progress,
                                        cache=use_cache, cache_dir=args.cache_dir,
-                                       check_points=args.check_points, max_bytes=max_bytes)
+                                       check_points=args.check_points, max_bytes=max_bytes, accuracy=accuracy)
     yf.save(args.output, force=args.force)
     print(summary(yf, args.output, time.perf_counter() - t0))
     return 0

@@ -10,8 +10,12 @@ Methods (all exact for their scope):
   functions on a time grid; its cost is set by the two eigendecompositions, so it takes over from
   ``"separable"`` as the radicals grow.  ``RETINA_JOBS`` (environment) sets its worker processes.
 - ``"sampled"`` (:mod:`retina.spin.sampling`): the separable scope, by stochastic trace estimation
-  with random vectors propagated in time: **an approximation with error bars**, never chosen by
-  ``"auto"``; an exact estimate of more than an hour names it when it is faster.
+  with random vectors propagated in time: **an approximation with error bars**.  ``"auto"`` chooses
+  it only when an ``accuracy`` (a standard error per yield the caller accepts) is given and its
+  modelled time is below that of every exact method; it then runs with as many random states as
+  a pilot run says the accuracy needs (:func:`retina.spin.sampling.states_for`), in
+  ``RETINA_JOBS`` worker processes over directions.  An exact
+  estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
   Without relaxation it diagonalises the (d, d) effective Hamiltonian; with relaxation it runs a
@@ -36,6 +40,7 @@ import numpy as np
 
 from retina.errors import InputError, ResourceError
 from retina.spin import memory
+from retina.spin._spectral import spread_bound
 from retina.spin.memory import available_bytes  # noqa: F401  (public here too: engine.available_bytes)
 
 __all__ = ["Cost", "METHODS", "choose_method", "estimate_cost", "compute_yields", "available_bytes"]
@@ -80,7 +85,19 @@ def _separable_available() -> bool:
 
 
 def in_scope(system, method: str) -> bool:
-    """True when ``method`` covers ``system`` (see the module docstring for each scope)."""
+    """True when ``method`` covers ``system`` (see the module docstring for each scope).
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    method : str
+        One of :data:`METHODS`.
+
+    Returns
+    -------
+    bool
+    """
     plain = system.equal_rates and not system.relaxation.any
     if method in SEPARABLE_METHODS:
         return plain and not system.electron_coupled
@@ -99,32 +116,82 @@ def _fast_is_cheaper(system) -> bool:
     """Deterministic per-direction comparison of the two separable methods' cost models."""
     from retina.spin.equivalence import reduced_dimensions
     from retina.spin.fast_separable import MAX_KH, THETA
-    from retina.spin.sampling import _spread_bound
 
     dims = [r.dimension for r in system.radicals]
     pair = _CHOICE_PAIR * dims[0] ** 2 * dims[1] ** 2 / 2
     blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
-    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
     k = float(system.k_singlet)
     n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
     fast = sum(1.1 * _CHOICE_EIGH * d**3 + 3.3e-7 * d * d / 2 for d in blocks) + _CHOICE_SAMPLE * n_t
     return fast < pair
 
 
-def choose_method(system, n_directions: int = 1) -> str:
-    """The cheapest exact method whose scope covers ``system``.
+def _fixed_separable_seconds(system) -> float:
+    """Modelled seconds per direction of the cheaper exact separable method (fixed constants)."""
+    from retina.spin.equivalence import reduced_dimensions
+    from retina.spin.fast_separable import MAX_KH, THETA
 
-    Among ``"separable"`` and ``"fast-separable"`` (uncoupled electrons, equal rates, no relaxation,
-    and :mod:`retina.spin.separable` imports) the one with the smaller modelled time per direction
-    (fixed constants, so that the choice, which is part of the cache key, never depends on the
-    machine's load); else
-    ``"hilbert"`` when the rates are equal and there is no relaxation; ``"liouville"`` otherwise.
-    Every method chosen here meets the default accuracy (rounding, or 1e-10 for
-    ``"fast-separable"``).
+    dims = [r.dimension for r in system.radicals]
+    pair = _CHOICE_PAIR * dims[0] ** 2 * dims[1] ** 2 / 2
+    blocks = [d for r in system.radicals for d, _ in reduced_dimensions(r)]
+    w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
+    k = float(system.k_singlet)
+    n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
+    fast = sum(1.1 * _CHOICE_EIGH * d**3 + 3.3e-7 * d * d / 2 for d in blocks) + _CHOICE_SAMPLE * n_t
+    return min(pair, fast)
+
+
+def _check_accuracy(accuracy):
+    if accuracy is None:
+        return None
+    try:
+        a = float(accuracy)
+    except (TypeError, ValueError):
+        a = float("nan")
+    if not (math.isfinite(a) and 0 < a < 1):
+        raise InputError(f"expected an accuracy (standard error per yield) between 0 and 1, got {accuracy!r}",
+                         key="accuracy")
+    return a
+
+
+def choose_method(system, n_directions: int = 1, accuracy: float | None = None) -> str:
+    """The cheapest method whose scope covers ``system`` and that meets ``accuracy``.
+
+    Without ``accuracy`` only exact methods count: among ``"separable"`` and ``"fast-separable"``
+    (uncoupled electrons, equal rates, no relaxation, and :mod:`retina.spin.separable` imports)
+    the one with the smaller modelled time per direction (fixed constants, so that the choice,
+    which is part of the cache key, never depends on the machine's load); else ``"hilbert"`` when
+    the rates are equal and there is no relaxation; ``"liouville"`` otherwise.  Every one meets
+    the default accuracy (rounding, or 1e-10 for ``"fast-separable"``).
+
+    With ``accuracy`` (a standard error per yield the caller accepts, between 0 and 1) the
+    approximate ``"sampled"`` method competes too, in the separable scope, when its modelled time
+    (:func:`retina.spin.sampling.cost_model`, fixed constants, default number of states) is below
+    the exact separable methods'; its run then sizes its states to meet ``accuracy``.
+
+    Parameters
+    ----------
+    system : SpinSystem
+        The pair.
+    n_directions : int
+        Number of field directions (kept for the interface; the choice is per direction).
+    accuracy : float, optional
+        Standard error per yield the caller accepts.
+
+    Returns
+    -------
+    str
+        The method's name.
     """
+    accuracy = _check_accuracy(accuracy)
     if system.equal_rates and not system.relaxation.any:
         if not system.electron_coupled and _separable_available():
-            n = max(int(n_directions), 1)
+            if accuracy is not None:
+                from retina.spin import sampling
+
+                if sampling.cost_model(system, 1)[0] < _fixed_separable_seconds(system):
+                    return "sampled"
             return "fast-separable" if _fast_is_cheaper(system) else "separable"
         return "hilbert"
     return "liouville"
@@ -184,7 +251,7 @@ def _jobs_speedup() -> float:
     return float(min(_jobs(), os.cpu_count() or 1))
 
 
-def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
+def estimate_cost(system, n_directions: int, method: str = "auto", accuracy: float | None = None) -> Cost:
     """Estimate the time and memory of ``compute_yields`` for ``n_directions`` directions.
 
     When the estimate exceeds an hour, the note names a faster method in scope, if there is one.
@@ -195,13 +262,15 @@ def estimate_cost(system, n_directions: int, method: str = "auto") -> Cost:
     n_directions : int
     method : str
         ``"auto"`` or one of :data:`METHODS`.
+    accuracy : float, optional
+        Standard error per yield the caller accepts (lets ``"auto"`` choose ``"sampled"``).
 
     Returns
     -------
     Cost
     """
     if method == "auto":
-        method = choose_method(system, n_directions)
+        method = choose_method(system, n_directions, accuracy)
     cost = _estimate(system, n_directions, _check_method(method))
     if cost.seconds > 3600:
         others = [(m, _estimate(system, n_directions, m)) for m in METHODS if m != method and in_scope(system, m)]
@@ -252,9 +321,7 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
         # (~0.3) + the numba pass over d^2/2 pairs (3.3e-7 s each, measured at d = 576)
         # + the time grid: ~8e-7 s per sample for spreading-grid set-up, FFTs and series of both
         # radicals (measured at 2e4-3e4 samples), n_t ~ 28 W / (0.9 pi k) (fast_separable.plan)
-        from retina.spin.sampling import _spread_bound
-
-        w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+        w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
         k = float(system.k_singlet)
         n_t = 28.0 / (k * min(fast_separable.THETA * np.pi / max(w_tot, 1e-30), fast_separable.MAX_KH / k))
         per = (sum(1.1 * _t_eigh(d) + 3.3e-7 * d * d / 2 + 2e-5 for d in blocks) + 8e-7 * n_t
@@ -336,7 +403,7 @@ def _fmt_gib(b: float) -> str:
 
 
 def compute_yields(system, field_uT, directions, *, method="auto", progress=None, max_bytes=None,
-                   info: dict | None = None) -> np.ndarray:
+                   info: dict | None = None, accuracy: float | None = None) -> np.ndarray:
     """The system's reported yield for each field direction.
 
     Parameters
@@ -354,6 +421,10 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         Filled with what a method reports: ``"fast-separable"`` its largest stated error bound
         (``method_error_bound_max``); ``"sampled"`` the approximation's name, the number of random
         states, the largest standard error and the bias bound.
+    accuracy : float, optional
+        Standard error per yield the caller accepts: ``"auto"`` may then choose ``"sampled"``
+        (:func:`choose_method`), and ``"sampled"`` sizes its number of random states by a pilot
+        run to meet it (else it uses :data:`retina.spin.sampling.DEFAULT_STATES`).
 
     Returns
     -------
@@ -369,8 +440,9 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
     """
     dirs = np.asarray(directions, dtype=float)
     n = dirs.shape[0] if dirs.ndim == 2 else 1
+    accuracy = _check_accuracy(accuracy)
     if method == "auto":
-        method = choose_method(system, n)
+        method = choose_method(system, n, accuracy)
     _check_method(method)
     if method in SEPARABLE_METHODS and not _separable_available():
         method = "hilbert"
@@ -402,12 +474,33 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         from retina.spin import sampling
         from retina.spin.system import equal_rate_reported_yield
 
-        res = sampling.sampled_yields(system, field_uT, dirs, progress=progress)
+        # the reported yield is an affine map of the singlet-start one with slope +-1 or +-1/3
+        slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
+        n_states, pilot_se = sampling.DEFAULT_STATES, None
+        if accuracy is not None:
+            n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope)
+        res = sampling.sampled_yields(system, field_uT, dirs, n_states=n_states, progress=progress,
+                                      n_jobs=_jobs())
         if info is not None:
-            # the reported yield is an affine map of the singlet-start one with slope +-1 or +-1/3
-            slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
-            info.update(approximation="stochastic trace estimation (sampled)",
-                        sampling_states=int(res.draws.shape[0]),
+            hi, lo = int(np.argmax(res.mean)), int(np.argmin(res.mean))
+            w = np.zeros(res.mean.shape[0])
+            w[hi], w[lo] = 1.0, -1.0
+            spread = float(res.mean[hi] - res.mean[lo])
+            if accuracy is not None:
+                met = bool(slope * np.max(res.standard_error) <= accuracy)
+                info.update(sampling_accuracy_requested=float(accuracy),
+                            sampling_pilot_standard_error=float(slope * pilot_se),
+                            sampling_accuracy_met=met)
+                if not met:
+                    _log.warning("%r: the sampled standard error %.2g exceeds the requested %.2g (%d random "
+                                 "states%s)", system.name, slope * np.max(res.standard_error), accuracy,
+                                 n_states, ", the most allowed" if n_states >= sampling.MAX_STATES else "")
+            if spread > 0 and res.mean.shape[0] > 1:
+                # standard error of the difference between the extreme computed directions, over it
+                info.update(sampling_anisotropy_relative_error=res.standard_error_of(w) / spread)
+            info.update(approximation=f"stochastic trace estimation, {res.estimator} estimator (sampled)",
+                        sampling_estimator=res.estimator,
+                        sampling_states=int(res.n_states),
                         sampling_standard_error_max=float(slope * np.max(res.standard_error)),
                         sampling_bias_bound=float(slope * res.bias_bound))
         return equal_rate_reported_yield(system, res.mean)

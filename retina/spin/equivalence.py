@@ -41,7 +41,17 @@ __all__ = ["groups", "multiplicities", "Block", "radical_blocks", "reduced_dimen
 
 def groups(radical) -> list[list[int]]:
     """Indices of the radical's nuclei grouped by equal spin and equal hyperfine tensor, in order of
-    first appearance."""
+    first appearance.
+
+    Parameters
+    ----------
+    radical : retina.spin.system.Radical
+        The radical.
+
+    Returns
+    -------
+    list of list of int
+    """
     out: list[list[int]] = []
     keys: list[tuple[float, np.ndarray]] = []
     for i, nuc in enumerate(radical.nuclei):
@@ -57,7 +67,20 @@ def groups(radical) -> list[list[int]]:
 
 
 def multiplicities(spin: float, n: int) -> dict[float, int]:
-    """``{J: N_J}`` for ``n`` spins of quantum number ``spin`` (Clebsch-Gordan counting, docstring)."""
+    """``{J: N_J}`` for ``n`` spins of quantum number ``spin`` (Clebsch-Gordan counting, docstring).
+
+    Parameters
+    ----------
+    spin : float
+        Quantum number of each spin.
+    n : int
+        Number of spins.
+
+    Returns
+    -------
+    dict
+        Total spin ``J`` to its multiplicity ``N_J``.
+    """
     twice = int(round(2 * spin))
     poly = np.ones(1, dtype=np.int64)
     for _ in range(n):
@@ -137,6 +160,17 @@ def radical_blocks(radical, *, sparse: bool = False) -> list[Block]:
 
     Without equivalent nuclei this is one block, the radical itself, of multiplicity 1.  With
     ``sparse`` the operators are scipy.sparse CSR matrices (``s_e`` a list of three).
+
+    Parameters
+    ----------
+    radical : retina.spin.system.Radical
+        The radical.
+    sparse : bool
+        Build sparse operators.
+
+    Returns
+    -------
+    list of Block
     """
     grp = groups(radical)
     options = []
@@ -156,7 +190,17 @@ def radical_blocks(radical, *, sparse: bool = False) -> list[Block]:
 
 
 def reduced_dimensions(radical) -> list[tuple[int, int]]:
-    """``[(block dimension, multiplicity)]`` without building operators (for cost estimates)."""
+    """``[(block dimension, multiplicity)]`` without building operators (for cost estimates).
+
+    Parameters
+    ----------
+    radical : retina.spin.system.Radical
+        The radical.
+
+    Returns
+    -------
+    list of (int, int)
+    """
     grp = groups(radical)
     options = [sorted(multiplicities(radical.nuclei[g[0]].spin, len(g)).items(), reverse=True) for g in grp]
     out = []

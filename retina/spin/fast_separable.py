@@ -64,7 +64,9 @@ most ``d_r / 4`` by Cauchy-Schwarz, fact 2), which is measured on a dense check 
 spread onto a uniform grid of ``n_f = 4 N`` nodes with the "exponential of semicircle" kernel
 ``phi(z) = exp(beta (sqrt(1 - z^2) - 1))`` of width ``w`` nodes (``beta = 2.30 w``), the grid is
 Fourier transformed and divided by the kernel's transform ``psi`` (A. H. Barnett, J. Magland and
-L. af Klinteberg, SIAM J. Sci. Comput. 41, C479 (2019); parameters from memory).  The relative error
+L. af Klinteberg, SIAM J. Sci. Comput. 41, C479 (2019); parameters from memory), its value at each
+of the ``w`` nodes evaluated as a polynomial in the point's offset inside a grid cell (Horner's rule,
+:func:`_kernel_poly`; the same paper evaluates its kernel this way).  The relative error
 ``|sum_g phi(..) e^{i j x_g} / psi(j) - e^{i j x}|`` depends only on ``j / n_f`` and the point's offset
 inside a grid cell, so it is *measured* once per width on a dense set of both
 (:func:`nufft_error`), and ``w`` is the smallest width meeting the budget.  The error in each
@@ -97,6 +99,7 @@ import numpy as np
 import scipy.fft
 import scipy.linalg
 
+from retina.spin._spectral import aliasing_kernel, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
@@ -153,26 +156,67 @@ def _psi_grid(n_t: int, width: int) -> np.ndarray:
 
 
 @functools.lru_cache(maxsize=32)
+def _kernel_poly(width: int) -> np.ndarray:
+    """Piecewise-polynomial form of the spread kernel, ``(width + 3, width)``, highest power first.
+
+    Column ``i`` holds the power-series coefficients, in ``x = 2 s - 1``, of the kernel's value at the
+    ``i``-th node, ``phi((s + i - w/2) / (w/2))``, where ``s`` in ``[0, 1)`` is the distance from
+    ``u - w/2`` up to the first node: the Chebyshev interpolant of degree ``w + 2`` (numpy's
+    ``chebfit`` at Chebyshev points, converted with ``cheb2poly``).  Evaluating it by Horner's rule
+    replaces ``w`` exponentials and square roots per point by multiply-adds; its own error (about
+    1e-2 of the NUFFT error, dominated by the kernel's square-root edge) is included in
+    :func:`nufft_error`, which measures the whole pass with this very kernel.
+    """
+    from numpy.polynomial import chebyshev
+
+    deg = width + 2
+    half = width / 2.0
+    beta = _beta(width)
+    x = np.cos(np.pi * (np.arange(deg + 1) + 0.5) / (deg + 1))
+    rows = []
+    for i in range(width):
+        c = chebyshev.chebfit(x, _phi(((x + 1.0) / 2.0 + i - half) / half, beta), deg)
+        pw = np.zeros(deg + 1)
+        full = chebyshev.cheb2poly(c)                       # may come back shorter (trimmed zeros)
+        pw[:full.size] = full
+        rows.append(pw[::-1])
+    out = np.ascontiguousarray(np.array(rows).T)               # (width + 3, width): power, node
+    out.flags.writeable = False
+    return out
+
+
+def _kernel_nodes(width: int, s) -> np.ndarray:
+    """Kernel values at the ``width`` nodes for offsets ``s (n,)`` in ``[0, 1)``, shape (n, width),
+    from :func:`_kernel_poly` (Horner's rule, as the compiled pass evaluates them)."""
+    coef = _kernel_poly(width)
+    x = 2.0 * np.asarray(s, dtype=float)[:, None] - 1.0
+    v = np.zeros((x.shape[0], width))
+    for p in range(coef.shape[0]):
+        v = v * x + coef[p][None, :]
+    return v
+
+
+@functools.lru_cache(maxsize=32)
 def nufft_error(width: int) -> float:
     """Largest relative error of the spread-FFT-divide approximation of ``e^{i j x}``, measured.
 
     Over ``j / n_f`` in ``[0, 1/4]`` (513 values; this module uses ``n_f = 4 N``) and the offset of
     the point inside a grid cell (32 values), the quantity
-    ``|sum_g phi((g - u)/(w/2)) e^{2 pi i rho (g - u)} / psi(rho) - 1|``; it depends on nothing
-    else (derived in the module docstring).  A safety factor 2 covers the sampling (on a four
-    times denser sampling the largest value grew by less than 10 %).
+    ``|sum_g phi_w(g - u) e^{2 pi i rho (g - u)} / psi(rho) - 1|`` with the kernel values exactly as
+    the compiled pass forms them (:func:`_kernel_poly`); it depends on nothing else (derived in the
+    module docstring).  A safety factor 2 covers the sampling (on a four times denser sampling the
+    largest value grew by less than 10 %).
     """
     half = width / 2.0
-    beta = _beta(width)
     rho = np.linspace(0.0, 0.25, 513)
     psi = _psi(rho, width)
     worst = 0.0
-    for frac in np.arange(32) / 32.0:
-        u = frac
-        i0 = math.ceil(u - half)
-        g = i0 + np.arange(width + 1)
-        ph = _phi((g - u) / half, beta)
-        s = np.exp(2j * np.pi * rho[:, None] * (g - u)[None, :]) @ ph
+    u = np.arange(32) / 32.0
+    i0 = np.ceil(u - half)
+    ker = _kernel_nodes(width, i0 - u + half)                     # (32, width)
+    for a in range(u.size):
+        g = i0[a] + np.arange(width)
+        s = np.exp(2j * np.pi * rho[:, None] * (g - u[a])[None, :]) @ ker[a]
         worst = max(worst, float(np.max(np.abs(s / psi - 1.0))))
     return 2.0 * worst
 
@@ -189,9 +233,8 @@ def _width_for(eps: float) -> int:
 # The aliasing kernel g and its tensor Chebyshev expansion
 # ------------------------------------------------------------------------------------------------
 
-def _g(omega, k, h):
-    z = k - 1j * np.asarray(omega, dtype=float)
-    return (k * ((h / 2.0) / np.tanh(z * h / 2.0) - 1.0 / z)).real
+#: The trapezoid rule's aliasing kernel (:func:`retina.spin._spectral.aliasing_kernel`).
+_g = aliasing_kernel
 
 
 def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
@@ -224,18 +267,20 @@ def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
 # ------------------------------------------------------------------------------------------------
 
 @numba.njit(cache=True, nogil=True)
-def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, grid, mom, absw):
+def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, grid, mom, absw):
     """Spread the nine real weights of every pair ``m < n`` onto ``grid (nf, 9)``, accumulate the
     Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` (sym components even orders, antisymmetric
     components odd orders; the others vanish) and the absolute weight sums ``absw (9,)``.
 
     ``sp`` is ``S_+`` in the eigenbasis (so ``S_x = (S_+ + S_+^+)/2``, ``S_y = (S_+ - S_+^+)/2i``),
     ``sz`` holds ``S_z`` on and above the diagonal; every weight is multiplied by ``weight`` (a
-    block's multiplicity, :mod:`retina.spin.equivalence`)."""
+    block's multiplicity, :mod:`retina.spin.equivalence`); the kernel's node values come from the
+    polynomials ``kpoly`` of :func:`_kernel_poly`."""
     d = lam.shape[0]
     half = 0.5 * width
+    n_coef = kpoly.shape[0]
     scale = nf * h / (2.0 * np.pi)
-    ker = np.empty(width + 1)
+    ker = np.empty(width)
     tp = np.empty(n_mom)
     rr = np.empty(9)
     for m in range(d):
@@ -260,17 +305,14 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, g
             om = lam[n] - lam[m]
             u = om * scale
             i0 = int(np.ceil(u - half))
-            for i in range(width + 1):
-                z = (i0 + i - u) / half
-                t = 1.0 - z * z
-                if t > 0.0:
-                    ker[i] = np.exp(beta * (np.sqrt(t) - 1.0))
-                else:
-                    ker[i] = 0.0
-            for i in range(width + 1):
+            x = 2.0 * (i0 - u + half) - 1.0
+            for i in range(width):
+                ker[i] = kpoly[0, i]
+            for q in range(1, n_coef):        # Horner's rule, vectorised across the nodes
+                for i in range(width):
+                    ker[i] = ker[i] * x + kpoly[q, i]
+            for i in range(width):
                 kv = ker[i]
-                if kv == 0.0:
-                    continue
                 g = (i0 + i) % nf
                 for c in range(9):
                     grid[g, c] += rr[c] * kv
@@ -288,7 +330,16 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, beta, inv_w, n_mom, g
 
 
 def _eigen_spin(h_full, n_nuc):
-    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis."""
+    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis.
+
+    The ``evr`` driver: at ``d = 576`` it took 0.28-0.34 s against 0.34-0.46 s for ``evd`` (best of
+    six alternating calls, shared machine).  The matrix stays complex: a real symmetric form needs
+    an antiunitary symmetry, and a product of complex conjugation with spin rotations of the
+    electron and each nucleus leaves the Hamiltonian invariant only when every ``A_i A_i^T`` shares
+    an eigenvector perpendicular to the field (derived from the conditions ``M_xy = M_yx = M_yz =
+    M_zy = 0`` on each rotated tensor ``M = R_e^T A_i R_i`` and ``b_y = 0``), which generic
+    anisotropic tensors do not.
+    """
     lam, v = scipy.linalg.eigh(h_full, driver="evr", overwrite_a=True, check_finite=False)
     up = np.asfortranarray(v[:n_nuc])
     dn = np.asfortranarray(v[n_nuc:])
@@ -308,7 +359,7 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
     absw = np.zeros(9)
     diag = np.zeros(6)
     for lam, sp, sz, mult in blocks:
-        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _beta(width), 1.0 / w_spread, n_mom,
+        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _kernel_poly(width), 1.0 / w_spread, n_mom,
                             grid, mom, absw)
         dp = sp.diagonal()
         dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
@@ -332,7 +383,19 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
 def plan(wa: float, wb: float, k: float, tol: float = DEFAULT_TOL) -> dict:
     """Time step, number of samples and NUFFT width for spreads ``wa``, ``wb`` (rad s^-1) and rate ``k``.
 
-    Returns a dict with ``h`` (s), ``n_t``, ``width``, ``eps_nufft``.
+    Parameters
+    ----------
+    wa, wb : float
+        The two radicals' spectral spreads, rad s^-1.
+    k : float
+        Recombination rate, s^-1.
+    tol : float
+        Absolute tolerance on the yield.
+
+    Returns
+    -------
+    dict
+        ``h`` (s), ``n_t``, ``width``, ``eps_nufft``.
     """
     w_tot = max(wa + wb, 1e-300)
     h = min(THETA * np.pi / w_tot, MAX_KH / k)
@@ -392,29 +455,65 @@ _BATCH = 8
 
 def _operators(system):
     """Per radical: its dimension and its total-spin blocks (:mod:`retina.spin.equivalence`)."""
+    import dataclasses
+
     from retina.spin.equivalence import radical_blocks
 
-    return [(r.dimension, radical_blocks(r)) for r in system.radicals]
+    # large radicals are built sparse (Kronecker products of sparse factors are far cheaper than
+    # dense ones there), then made dense; small ones directly dense (less overhead)
+    out = []
+    for r in system.radicals:
+        if r.dimension > _SPARSE_BUILD_FROM:
+            blocks = [dataclasses.replace(b, s_e=np.stack([x.toarray() for x in b.s_e]), h_hf=b.h_hf.toarray())
+                      for b in radical_blocks(r, sparse=True)]
+        else:
+            blocks = radical_blocks(r)
+        out.append((r.dimension, blocks))
+    return out
+
+
+#: Radical dimension above which operators are built sparse first (measured: dense is faster at 144,
+#: sparse three times faster at 576).
+_SPARSE_BUILD_FROM = 256
+
+
+#: The last system's operators in this process (a worker reuses them across its batches).
+_LAST_OPERATORS: dict = {}
 
 
 def _batch(system, bvecs, k, tol):
     """Yields and bounds for a batch of field vectors (one worker task)."""
-    rads = _operators(system)
+    import pickle
+
+    key = pickle.dumps(system)
+    rads = _LAST_OPERATORS.get(key)
+    if rads is None:
+        rads = _operators(system)
+        _LAST_OPERATORS.clear()
+        _LAST_OPERATORS[key] = rads
     res = [_one_direction(rads, bv, k, tol) for bv in bvecs]
     return np.array([r[0] for r in res]), np.array([r[1] for r in res])
 
 
 def working_bytes(system) -> int:
-    """Peak working memory of :func:`yields`, bytes (per direction; directions run one at a time)."""
+    """Peak working memory of :func:`yields`, bytes (per direction; directions run one at a time).
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        The pair.
+
+    Returns
+    -------
+    int
+    """
     # both radicals' eigenvalues and three spin components, plus the Hamiltonian, eigenvectors and
     # two products of the radical being decomposed (complex, 16 bytes), per worker
     from retina.spin.equivalence import reduced_dimensions
-    from retina.spin.sampling import _spread_bound
-
     d2 = [d * d for r in system.radicals for d, _ in reduced_dimensions(r)]
     # time grid: n_t ~ 28 W / (pi theta k) samples; the spread grid (4 n_t x 9 doubles), its
     # transpose and transform, and the two radicals' series take about 1100 bytes per sample
-    w_tot = sum(_spread_bound(r, 50.0) for r in system.radicals)
+    w_tot = sum(spread_bound(r, 50.0) for r in system.radicals)
     k = float(system.k_singlet)
     n_t = 28.0 / (k * min(THETA * np.pi / max(w_tot, 1e-30), MAX_KH / k))
     return int(16 * (3 * sum(d2) + 4 * max(d2)) + 1100 * n_t + 2**20)

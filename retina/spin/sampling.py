@@ -22,16 +22,37 @@ independent ``z_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so
 
 is unbiased up to the time quadrature ``Q`` (below), and ``R`` independent draws give the mean and
 its standard error ``std(Phi_s) / sqrt(R)`` (sample standard deviation): the error bar comes from
-the method's own variance.  The *same* vectors serve every field direction, so the sampling
+the method's own variance.  This is the ``"paired"`` estimator.
+
+The default, ``"product"``, pairs every A draw with every B draw: since ``Q`` and the sum over
+``ab`` are bilinear in the two radicals' series, the mean over all ``R^2`` pairs is simply
+``Phi = 1/4 + (1/M) Q[sum_ab cbar^A_ab cbar^B_ab]`` with ``cbar`` the mean over draws, unbiased
+because the two radicals' vectors are independent.  It is a two-sample U-statistic with a
+bilinear kernel; its delete-one jackknife variance (J. N. Arvesen, Ann. Math. Stat. 40, 2076
+(1969), from memory) reduces, by the bilinearity, to ``var_i(g_i) / R + var_j(h_j) / R`` with
+``g_i = 1/4 + Q[c^A_i cbar^B] / M`` and ``h_j = 1/4 + Q[cbar^A c^B_j] / M`` (derived: deleting draw
+``i`` of A moves the estimate by ``-(g_i - gbar) / (R - 1)``).  Against the paired estimator it drops
+most of the term in which both radicals' sampling errors multiply (its share falls from ``1/R`` to
+``1/R^2``); the jackknife counts that term once more at order ``1/R^2`` (it errs on the side of a
+larger error bar).  The same propagated states serve both estimators; the gain is largest when
+each radical's trace estimate is noisy (small radicals), small otherwise.  The *same* vectors serve every field direction, so the sampling
 errors of different directions are strongly correlated and largely cancel in differences: the
 anisotropy is resolved far better than the mean.  :func:`sampled_yields` returns the per-draw
-values, from which the standard error of any linear functional (a difference, the anisotropic
-part, a harmonic coefficient) follows.
+terms (``parts``), from which the standard error of any linear functional (a difference, the
+anisotropic part, a harmonic coefficient) follows.
+
+The size of the error: a random-phase estimate of ``Tr X`` has variance ``sum_{i != j} |X_ij|^2``
+(derived: ``E[z_i^* z_j z_k z_l^*]`` vanishes unless the indices pair up), at most
+``||X||_F^2 <= d / 16`` for ``X = S_a S_b(t)``, while ``Tr X`` grows as ``d``; so each radical's
+relative error falls as ``1 / sqrt(d)`` (typicality), and a pair with radicals 32 times larger
+needs about 32 times fewer states for the same relative error.
 
 Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by
 Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967
 (1984), from memory), accurate to 1e-13 in norm, with the spectral interval bounded by Gershgorin
-discs (no eigendecomposition; sparse matrix products only).  One expansion covers ``SUBSTEPS`` grid
+discs intersected with Weyl's bound (each hyperfine term's eigenvalues summed,
+:func:`retina.spin._spectral.hyperfine_interval`; no eigendecomposition of the radical, sparse matrix
+products only).  One expansion covers ``SUBSTEPS`` grid
 steps: the Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the
 intermediate grid times are their combinations with the coefficients
 ``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)`` (one matrix product).  Groups of equivalent nuclei are reduced to
@@ -39,7 +60,7 @@ their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled wit
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
 rule of :mod:`retina.spin.fast_separable` on ``t_j = j h`` with ``h <= 0.9 pi / W`` (``W`` the sum of
-the two radicals' Gershgorin spectral spreads, so every frequency of ``F`` has ``|Omega h| <=
+the two radicals' bounded spectral spreads (above), so every frequency of ``F`` has ``|Omega h| <=
 0.9 pi``), whose exact error is ``sum_l c_l g(Omega_l)`` (aliasing kernel ``g`` of that module).
 Without the spectrum, the correction is folded into the first few weights instead: fit
 ``g(theta / h) ~ sum_{j=0}^{J} gamma_j cos(j theta)`` on ``0 <= theta <= W h`` (least squares, ``J``
@@ -66,10 +87,12 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.special
 
+from retina.spin._spectral import aliasing_kernel, hyperfine_interval, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "DEFAULT_STATES", "DEFAULT_BIAS_TOL"]
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "states_for", "DEFAULT_STATES",
+           "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES"]
 
 #: Default number of random vectors per radical (independent draws).
 DEFAULT_STATES = 16
@@ -79,6 +102,10 @@ _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
 _PAIRS = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
 
 
+#: Estimators of :func:`sampled_yields` (module docstring).
+ESTIMATORS = ("product", "paired")
+
+
 @dataclass(frozen=True)
 class SampledYields:
     """Singlet-start singlet yields estimated by sampling.
@@ -86,40 +113,43 @@ class SampledYields:
     Attributes
     ----------
     mean : ndarray (N,)
-        The estimate for each direction (mean over draws).
+        The estimate for each direction.
     standard_error : ndarray (N,)
-        ``std(draws) / sqrt(R)`` per direction.
-    draws : ndarray (R, N)
-        The per-draw estimates; the same random vectors serve every direction, so any linear
-        combination over directions has standard error ``std(draws @ c) / sqrt(R)``.
+        Its standard error per direction (``standard_error_of`` a unit weight).
+    parts : tuple of ndarray (R, N)
+        Independent per-draw terms whose sample variances over ``R`` add up to the estimate's
+        variance (``"paired"``: the per-draw estimates; ``"product"``: the jackknife terms of radical
+        A and of radical B).  The same random vectors serve every direction, so any linear
+        combination ``c`` over directions has standard error ``sqrt(sum_k var(parts_k @ c) / R)``.
     bias_bound : float
         Bound on the deterministic error (quadrature and truncation) of every value.
+    estimator : str
+        ``"product"`` or ``"paired"`` (module docstring).
+    n_states : int
+        Random vectors per radical.
     """
 
     mean: np.ndarray
     standard_error: np.ndarray
-    draws: np.ndarray
+    parts: tuple
     bias_bound: float
+    estimator: str = "product"
+    n_states: int = 0
 
     def standard_error_of(self, weights) -> float:
         """Standard error of ``sum_i weights_i Phi_i`` (for example a difference of directions)."""
-        v = self.draws @ np.asarray(weights, dtype=float)
-        return float(np.std(v, ddof=1) / math.sqrt(v.shape[0]))
+        w = np.asarray(weights, dtype=float)
+        var = 0.0
+        for part in self.parts:
+            v = part @ w
+            var += float(np.var(v, ddof=1)) / v.shape[0]
+        return math.sqrt(var)
 
 
-def _sparse_ops(block):
-    return list(block.s_e), block.h_hf
-
-
-def _spread_bound(radical, field_uT: float) -> float:
-    """Estimated spectral spread of a radical, rad s^-1 (cost estimates only): twice the energy of
-    the stretched configuration, ``|omega| / 2 + sum_i ||A_i||_2 I_i / 2``."""
-    from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR
-
-    zee = MU_B_OVER_HBAR * np.linalg.norm(np.asarray(radical.g_matrix, dtype=float), 2) * field_uT * 1e-6 / 2
-    hf = sum(GAMMA_E * 1e-3 * np.linalg.norm(np.asarray(n.hyperfine_mT, dtype=float), 2) * 0.5 * n.spin
-             for n in radical.nuclei)
-    return 2.0 * (zee + hf)
+def _sparse_ops(block, radical):
+    """``(s_e, h_hf, weyl)`` of a sparse block: its electron spin (three CSR matrices), hyperfine
+    Hamiltonian and the Weyl bounds of the latter's spectrum."""
+    return list(block.s_e), block.h_hf, _block_weyl(radical, block)
 
 
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
@@ -129,11 +159,27 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     Per direction and block: ``n_t = 17 / (k h)`` time steps of ``(a h SUBSTEPS + 15) / SUBSTEPS``
     sparse products with ``4 R`` vectors (``~3e-9 s`` per stored entry and vector, plus ``2e-5 s``
     per product and ``1e-4 s`` per step of Python overhead; rough, from small pairs).
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        The pair.
+    n_directions : int
+        Number of field directions.
+    n_states : int
+        Random vectors per radical.
+    field_uT : float
+        Field strength in microtesla (for the spectral spread).
+
+    Returns
+    -------
+    (float, int, str)
+        Seconds, bytes and a note in words.
     """
     from retina.spin.equivalence import reduced_dimensions
 
     k = float(system.k_singlet)
-    spreads = [_spread_bound(r, field_uT) for r in system.radicals]
+    spreads = [spread_bound(r, field_uT) for r in system.radicals]
     h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
     n_t = 17.0 / (k * h)
     secs = 0.0
@@ -173,6 +219,23 @@ def _gershgorin(h):
     diag = h.diagonal().real
     off = np.asarray(abs(h).sum(axis=1)).ravel() - np.abs(diag)
     return float(np.min(diag - off)), float(np.max(diag + off))
+
+
+def _interval(hm, weyl, w):
+    """Bounds of the spectrum of ``hm = H_hf + w . S``: Gershgorin discs intersected with the Weyl
+    bounds ``weyl`` of ``H_hf`` (:func:`retina.spin._spectral.hyperfine_interval`) widened by
+    ``|w| / 2``; both are rigorous, so their intersection is."""
+    lo, hi = _gershgorin(hm)
+    half = 0.5 * float(np.linalg.norm(w))
+    return max(lo, weyl[0] - half), min(hi, weyl[1] + half)
+
+
+def _block_weyl(radical, block):
+    """Weyl bounds of one block's hyperfine Hamiltonian (its groups' total spins and tensors)."""
+    from retina.spin.equivalence import groups
+
+    grp = groups(radical)
+    return hyperfine_interval([(j, radical.nuclei[g[0]].hyperfine_mT) for j, g in zip(block.spins, grp)])
 
 
 def _cheb_coeffs(x: float, tol: float = 1e-13) -> np.ndarray:
@@ -221,10 +284,10 @@ def _radical_series(blocks, vectors, bvec, h, n_t):
     antisymmetric combinations as in :mod:`retina.spin.fast_separable`)."""
     r = vectors[0].shape[1]
     out = np.zeros((r, n_t, 9))
-    for (blk, (s_e, h_hf)), z in zip(blocks, vectors):
+    for (blk, (s_e, h_hf, weyl)), z in zip(blocks, vectors):
         w = bvec @ blk.zeeman
         hm = (h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr()
-        lo, hi = _gershgorin(hm)
+        lo, hi = _interval(hm, weyl, w)
         c = 0.5 * (lo + hi)
         a = max(0.5 * (hi - lo), 1e-30)
         hs = ((hm - c * sp.identity(hm.shape[0], format="csr")) / a).tocsr()
@@ -256,12 +319,10 @@ def _radical_series(blocks, vectors, bvec, h, n_t):
 
 def _end_correction(k: float, h: float, theta_max: float, tol: float):
     """``gamma (J+1,)`` and the fit's largest error for the trapezoid end correction (docstring)."""
-    from retina.spin.fast_separable import _g
-
     theta = np.linspace(0.0, max(theta_max, 1e-9), 300)
     check = np.linspace(0.0, max(theta_max, 1e-9), 2401)
-    target = _g(theta / h, k, h)
-    want = _g(check / h, k, h)
+    target = aliasing_kernel(theta / h, k, h)
+    want = aliasing_kernel(check / h, k, h)
     err = np.inf
     gamma = np.zeros(1)
     for n_terms in (2, 4, 6, 8, 12, 16, 24, 32, 48, 64):
@@ -285,9 +346,79 @@ def _upper(dirs: np.ndarray) -> np.ndarray:
     return np.where(flip[:, None], -dirs, dirs)
 
 
+#: Directions per worker task when ``n_jobs > 1``.
+_BATCH = 4
+
+
+def _check_jobs(n_jobs) -> int:
+    from retina.errors import InputError
+
+    if n_jobs is None:
+        return 1
+    if isinstance(n_jobs, bool) or not isinstance(n_jobs, (int, np.integer)) or n_jobs < 1:
+        raise InputError(f"expected a positive whole number of worker processes, got {n_jobs!r}",
+                         key="n_jobs")
+    return int(n_jobs)
+
+
+def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress):
+    """Estimates, per-draw terms and bias bound for field vectors ``b_all (N, 3)`` (tesla, already
+    on the upper hemisphere); the random vectors come from ``seed`` alone."""
+    from retina.spin.equivalence import radical_blocks
+
+    k = float(system.k_singlet)
+    rng = np.random.default_rng(seed)
+    rads = []
+    for rad in system.radicals:
+        blocks = [(b, _sparse_ops(b, rad)) for b in radical_blocks(rad, sparse=True)]
+        rads.append((blocks, _random_vectors(blocks, int(n_states), rng)))
+    m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
+    n_dir = b_all.shape[0]
+    r = int(n_states)
+    parts = [np.empty((r, n_dir)) for _ in range(1 if estimator == "paired" else 2)]
+    mean = np.empty(n_dir)
+    bias = 0.0
+    for i, bvec in enumerate(b_all):
+        # spectral spread bound per radical (Gershgorin and Weyl), then the time grid
+        spreads = []
+        for blocks, _ in rads:
+            s = 0.0
+            for blk, (s_e, h_hf, weyl) in blocks:
+                w = bvec @ blk.zeeman
+                lo, hi = _interval((h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr(), weyl, w)
+                s = max(s, hi - lo)
+            spreads.append(max(s, 1e-30 * k))
+        w_tot = spreads[0] + spreads[1]
+        h = min(0.9 * np.pi / w_tot, 0.5 / k)
+        kh = k * h
+        gamma, fit_err = _end_correction(k, h, w_tot * h, bias_tol / 10.0)
+        n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
+        n_t = max(n_t, gamma.shape[0])
+        series = [_radical_series(blocks, vecs, bvec, h, n_t) for blocks, vecs in rads]
+        decay = np.exp(-kh * np.arange(n_t))
+
+        def quad(f):                 # the end-corrected trapezoid rule on the last axis (linear)
+            return kh * (f @ decay - 0.5 * f[..., 0]) - f[..., :gamma.shape[0]] @ gamma
+
+        if estimator == "paired":
+            f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
+            parts[0][:, i] = 0.25 + quad(f) / m_tot
+            mean[i] = parts[0][:, i].mean()
+        else:
+            abar, bbar = series[0].mean(axis=0), series[1].mean(axis=0)
+            mean[i] = 0.25 + quad(np.einsum("jc,jc,c->j", abar, bbar, _MULT)) / m_tot
+            parts[0][:, i] = 0.25 + quad(np.einsum("rjc,jc,c->rj", series[0], bbar, _MULT)) / m_tot
+            parts[1][:, i] = 0.25 + quad(np.einsum("jc,rjc,c->rj", abar, series[1], _MULT)) / m_tot
+        bias = max(bias, 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh))
+        if progress is not None:
+            progress(i + 1, n_dir)
+    return mean, parts, bias
+
+
 def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
-                   bias_tol: float = DEFAULT_BIAS_TOL,
-                   progress: Callable[[int, int], None] | None = None) -> SampledYields:
+                   bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
+                   progress: Callable[[int, int], None] | None = None,
+                   n_jobs: int | None = None) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -304,7 +435,12 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         Seed of the random vectors (the same vectors serve every direction).
     bias_tol : float
         Bound on the deterministic error (quadrature and truncation).
+    estimator : {"product", "paired"}
+        The estimator (module docstring).
     progress : callable(done, total), optional
+    n_jobs : int, optional
+        Worker processes over directions (joblib, loky backend; default 1); each draws the same
+        random vectors, so the result does not depend on it beyond rounding.
 
     Returns
     -------
@@ -319,57 +455,113 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
     unbiased for both ``b`` and ``-b`` and even by construction.
     """
     from retina.errors import InputError
-    from retina.spin.equivalence import radical_blocks
 
     check_scope(system)
     dirs = _check_inputs(field_uT, directions)
     if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
         raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
+    if estimator not in ESTIMATORS:
+        raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
+                         key="estimator")
     if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
-    k = float(system.k_singlet)
-    rng = np.random.default_rng(seed)
-    rads = []
-    for rad in system.radicals:
-        blocks = [(b, _sparse_ops(b)) for b in radical_blocks(rad, sparse=True)]
-        rads.append((blocks, _random_vectors(blocks, int(n_states), rng)))
-    m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     b_all = _upper(dirs) * (float(field_uT) * 1e-6)
     n_dir = dirs.shape[0]
-    draws = np.empty((int(n_states), n_dir))
-    bias = 0.0
-    for i, bvec in enumerate(b_all):
-        # spectral spread bound per radical (Gershgorin), then the time grid
-        spreads = []
-        for blocks, _ in rads:
-            s = 0.0
-            for blk, (s_e, h_hf) in blocks:
-                w = bvec @ blk.zeeman
-                lo, hi = _gershgorin((h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr())
-                s = max(s, hi - lo)
-            spreads.append(max(s, 1e-30 * k))
-        w_tot = spreads[0] + spreads[1]
-        h = min(0.9 * np.pi / w_tot, 0.5 / k)
-        kh = k * h
-        gamma, fit_err = _end_correction(k, h, w_tot * h, bias_tol / 10.0)
-        n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
-        n_t = max(n_t, gamma.shape[0])
-        series = [_radical_series(blocks, vecs, bvec, h, n_t) for blocks, vecs in rads]
-        f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
-        decay = np.exp(-kh * np.arange(n_t))
-        q = kh * (f @ decay - 0.5 * f[:, 0]) - f[:, :gamma.shape[0]] @ gamma
-        draws[:, i] = 0.25 + q / m_tot
-        bias = max(bias, 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh))
-        if progress is not None:
-            progress(i + 1, n_dir)
-    mean = draws.mean(axis=0)
-    se = draws.std(axis=0, ddof=1) / math.sqrt(draws.shape[0])
-    return SampledYields(mean, se, draws, bias)
+    r = int(n_states)
+    n_jobs = _check_jobs(n_jobs)
+    if n_jobs == 1 or n_dir < 2:
+        mean, parts, bias = _sample_directions(system, b_all, r, seed, bias_tol, estimator, progress)
+    else:
+        # worker processes over directions; every worker draws the same random vectors from the
+        # seed, so the errors stay shared across directions exactly as in one process
+        from joblib import Parallel, delayed
+
+        step = max(1, min(_BATCH, -(-n_dir // n_jobs)))
+        starts = list(range(0, n_dir, step))
+        results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
+            delayed(_sample_directions)(system, b_all[i:i + step], r, seed, bias_tol, estimator, None)
+            for i in starts)
+        mean = np.empty(n_dir)
+        parts = [np.empty((r, n_dir)) for _ in range(1 if estimator == "paired" else 2)]
+        bias = 0.0
+        for i, (m_i, p_i, b_i) in zip(starts, results):
+            stop = i + m_i.shape[0]
+            mean[i:stop] = m_i
+            for whole, piece in zip(parts, p_i):
+                whole[:, i:stop] = piece
+            bias = max(bias, b_i)
+            if progress is not None:
+                progress(stop, n_dir)
+    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
+    return SampledYields(mean, se, tuple(parts), bias, estimator, r)
+
+
+#: Most random states :func:`states_for` asks for.
+MAX_STATES = 1024
+#: States and directions of the pilot run of :func:`states_for`.
+PILOT_STATES, PILOT_DIRECTIONS = 4, 6
+
+
+def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) -> tuple[int, float]:
+    """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
+
+    The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
+    spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
+    independent of it: the choice of ``R`` then does not bias the final estimate or its error
+    bar).  Since the variance falls as ``1 / R``, ``R = ceil(1.2 PILOT_STATES (se / accuracy)^2)``
+    with ``se`` the pilot's largest standard error, between ``PILOT_STATES`` and ``MAX_STATES``.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+    field_uT : float
+    directions : array_like (N, 3)
+    accuracy : float
+        Wanted standard error per (singlet-start singlet) yield, > 0.
+    seed : int
+        The final run's seed.
+
+    Returns
+    -------
+    (int, float)
+        The number of states and the pilot's largest standard error.
+    """
+    from retina.errors import InputError
+
+    if not (np.isfinite(accuracy) and 0 < accuracy < 1):
+        raise InputError(f"expected an accuracy (standard error per yield) between 0 and 1, got {accuracy!r}",
+                         key="accuracy")
+    dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
+    pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
+    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1)
+    se = float(np.max(pilot.standard_error))
+    r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
+    return max(PILOT_STATES, min(MAX_STATES, r)), se
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
            progress: Callable[[int, int], None] | None = None) -> np.ndarray:
-    """The reported yield for each direction, estimated by sampling (mean over draws).
+    """The reported yield for each direction, estimated by sampling.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        Separable scope.
+    field_uT : float
+        Field strength in microtesla.
+    directions : array_like (N, 3)
+        Field directions in the molecular frame.
+    n_states : int
+        Random vectors per radical.
+    seed : int
+        Seed of the random vectors.
+    progress : callable(done, total), optional
+        Progress callback.
+
+    Returns
+    -------
+    ndarray (N,)
+        The estimates (product estimator).
 
     See :func:`sampled_yields` for the standard errors; the reported-yield conversion is the
     exact affine map of :func:`retina.spin.system.equal_rate_reported_yield`, so the standard
