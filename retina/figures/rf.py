@@ -117,15 +117,22 @@ def rf_sweep(curve_MHz, lifetimes_us, perp_rise, par_rise, perp_threshold_nT, pa
                     ax.axvline(onset_MHz[t], color=col, lw=0.7, ls="-.")
                 axes[1].plot([onset_MHz[t]], [amplitude_nT], "o", color=col, ms=4, mfc="none")
         axes[0].axhline(100 * rise, color="0.3", lw=0.6, ls="-.")
+        axes[0].annotate(f"onset level (+{100 * rise:g} %)", (f[0], 100 * rise), fontsize=5.5, color="0.3",
+                         xytext=(2, -8), textcoords="offset points")
         axes[0].set_yscale("symlog", linthresh=1e-5)
         axes[0].set_ylabel(f"bound rise at {amplitude_nT:g} nT (%)")
         axes[1].axhline(amplitude_nT, color="0.4", lw=0.6, ls="-.")
+        axes[1].annotate(f"swept amplitude ({amplitude_nT:g} nT)", (f[-1], amplitude_nT), fontsize=5.5, color="0.3",
+                         xytext=(-2, -8), textcoords="offset points", ha="right")
         axes[1].set_yscale("log")
+        lo, hi = axes[1].get_ylim()
+        axes[1].set_ylim(min(lo, amplitude_nT / 3.0), hi)   # room for the label under the amplitude line
         axes[1].set_ylabel(f"amplitude for a {100 * rise:g} % rise (nT)")
         for ax in axes:
             ax.set_xscale("log")
             ax.set_xlabel("RF frequency (MHz)")
-        axes[0].legend(frameon=False, fontsize=5.5)
+        # below the onset line, clear of it and of the curves' quasi-static plateau
+        axes[0].legend(frameon=False, fontsize=5.5, loc="upper center", bbox_to_anchor=(0.55, 0.86), ncol=2)
         fig.tight_layout()
     cap = (f"Left: rise of the single-pose heading bound over the bound without RF for a field of {amplitude_nT:g} nT "
            f"(amplitude) perpendicular to the static field (azimuth-averaged, solid) or parallel to it (dashed), one "
