@@ -225,20 +225,21 @@ def old_sweep(built) -> dict:
     from retina import sphere
     from retina.spin import broadband as bb
     from retina.stages import rf as rfs
+    from retina.stages import rf_sweep as rsw
     from retina.yieldfn import YieldFunction
 
     sc = built.scenario
     rfc = sc["rf"]
     freqs = np.asarray(rfc["sweep_MHz"], float)
-    system0 = rfs._system(sc)
-    field = rfs._field_uT(sc, built.field)
+    system0 = rfs.pair_system(sc)
+    field = rfs.spin_field_uT(sc, built.field)
     L, amp = int(rfc["degree"]), float(rfc["sweep_nT"])
     light = rfc["sweep_light"] or sc["light"]["names"][-1]
     grid = sphere.grid_for_degree(L)
     half, full = grid.hemisphere()
     out = {"perp": np.empty((len(rfc["sweep_lifetimes_us"]), freqs.size))}
     for t, tau in enumerate(rfc["sweep_lifetimes_us"]):
-        system = rfs._with_lifetime(system0, tau)
+        system = rsw._with_lifetime(system0, tau)
         static = np.empty(half.size)
         dphi = np.empty((2, freqs.size, half.size))
         for j, d in enumerate(grid.points[half]):
@@ -264,7 +265,7 @@ def bench_demo_sweep() -> dict:
     from retina.build import build_all
     from retina.data import demo_scenario_path
     from retina.scenario import load_scenario
-    from retina.stages import rf as rfs
+    from retina.stages import rf_sweep as rsw
 
     sc = load_scenario(demo_scenario_path())
     built = build_all(sc)
@@ -272,11 +273,11 @@ def bench_demo_sweep() -> dict:
 
     built_nc = dataclasses.replace(built, scenario=sc.replace(rf={"cache": False}))
     t0 = time.perf_counter()
-    new = rfs.compute_rf_sweep(built_nc)
+    new = rsw.compute_rf_sweep(built_nc)
     t_new = time.perf_counter() - t0
-    rfs.compute_rf_sweep(built)                      # fills the response cache
+    rsw.compute_rf_sweep(built)                      # fills the response cache
     t0 = time.perf_counter()
-    rfs.compute_rf_sweep(built)
+    rsw.compute_rf_sweep(built)
     t_cached = time.perf_counter() - t0
     t0 = time.perf_counter()
     old = old_sweep(built)

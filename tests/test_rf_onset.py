@@ -16,6 +16,7 @@ import pytest
 from retina.pipeline import run
 from retina.scenario import scenario_from_dict
 from retina.stages import rf as rfs
+from retina.stages import rf_sweep as rsw
 
 # Radical A: one proton with a rhombic hyperfine tensor (all principal values non-zero, so the
 # level spacings stay in the MHz range for every field direction); radical B: one isotropic proton.
@@ -58,15 +59,15 @@ def test_first_crossing_interpolates_in_log_frequency():
     # Derived: for v = log10(f) the crossing of level 0.5 between f = 1 (v 0) and 10 (v 1) is at
     # 10^0.5; a level reached at the first point returns it; a level never reached gives NaN.
     f = np.array([1.0, 10.0, 100.0])
-    assert rfs.first_crossing(f, np.log10(f), 0.5) == pytest.approx(10**0.5, rel=1e-12)
-    assert rfs.first_crossing(f, np.log10(f), -1.0) == 1.0
-    assert np.isnan(rfs.first_crossing(f, np.log10(f), 5.0))
+    assert rsw.first_crossing(f, np.log10(f), 0.5) == pytest.approx(10**0.5, rel=1e-12)
+    assert rsw.first_crossing(f, np.log10(f), -1.0) == 1.0
+    assert np.isnan(rsw.first_crossing(f, np.log10(f), 5.0))
 
 
 def test_threshold_amplitude_inverts_the_quadratic_law():
     # Derived: (B / B0)^2 = 1 + b^2 s, so B / B0 = 1 + q at b^2 = ((1 + q)^2 - 1) / s; s <= 0: never.
     s = np.array([2e-6, 0.0, -1e-6])
-    b = rfs.threshold_amplitude(s, 0.1)
+    b = rsw.threshold_amplitude(s, 0.1)
     assert b[0] == pytest.approx(np.sqrt(0.21 / 2e-6), rel=1e-12)
     assert np.isnan(b[1]) and np.isnan(b[2])
     assert np.sqrt(1 + b[0] ** 2 * s[0]) - 1 == pytest.approx(0.1, rel=1e-12)
@@ -104,8 +105,8 @@ def test_bound_model_matches_the_direct_path_and_its_gradient(tmp_path):
 
     sc = scenario(tmp_path, {"sweep_MHz": [1.0]})
     built = build_all(sc)
-    bm = rfs.BoundModel(sc, built, 2)
-    c = YieldFunction.from_system(rfs._system(sc), 50.0, 2, check_points=2).coeffs
+    bm = rsw.BoundModel(sc, built, 2)
+    c = YieldFunction.from_system(rfs.pair_system(sc), 50.0, 2, check_points=2).coeffs
     from retina.build import build_retina
 
     model = build_retina(sc, YieldFunction(c, 2), built.receptors)
@@ -135,13 +136,13 @@ def test_threshold_amplitude_against_the_exact_method_at_two_amplitudes(tmp_path
     assert s > 0
     b_q = 30.0                                           # eta = 0.053 at 10 us
     q = float(np.sqrt(1 + b_q**2 * s) - 1)               # the rise whose threshold is b_q
-    assert rfs.threshold_amplitude(s, q) == pytest.approx(b_q, rel=1e-9)
+    assert rsw.threshold_amplitude(s, q) == pytest.approx(b_q, rel=1e-9)
     from retina.build import build_all
     from retina.yieldfn import YieldFunction
 
     built = build_all(sc)
-    bm = rfs.BoundModel(sc, built, 2)
-    system = rfs._system(sc)
+    bm = rsw.BoundModel(sc, built, 2)
+    system = rfs.pair_system(sc)
     control = YieldFunction.from_system(system, 50.0, 2, check_points=2).coeffs
     b0 = bm.bound(control, [3000.0])[0]
 

@@ -18,6 +18,7 @@ from retina.pipeline import run
 from retina.results import load_results, save_results
 from retina.scenario import scenario_from_dict
 from retina.stages import rf as rfs
+from retina.stages import rf_sweep as rsw
 
 PAIR = """
 [pair]
@@ -120,7 +121,7 @@ def test_sweep_matches_the_exact_method_and_finds_no_onset_for_weak_fields(tmp_p
     from retina.spin.io import load_system
     from retina.yieldfn import YieldFunction
 
-    system = rfs._with_lifetime(load_system(tmp_path / "pair.toml"), 1.0)
+    system = rsw._with_lifetime(load_system(tmp_path / "pair.toml"), 1.0)
     exact = rfs.rf_yield_function_for(system, 50.0, {"kind": "tone", "direction": "perpendicular",
                                                      "frequency_MHz": 1.4, "amplitude_nT": 500.0},
                                       degree=2, check_points=2, tol=1e-12, cache=False)
@@ -157,4 +158,4 @@ def test_rf_needs_the_spin_system(tmp_path):
     sc2 = sc.replace(**{"yield": {"system": None, "file": str(path)}})
     assert isinstance(YieldFunction.load(path), YieldFunction)
     with pytest.raises(InputError, match="yield.system"):
-        rfs.compute_rf_sweep(build_all(sc2))
+        rsw.compute_rf_sweep(build_all(sc2))

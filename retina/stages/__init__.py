@@ -12,20 +12,22 @@ group of the results file (:mod:`retina.results`).  :data:`STAGES` lists them in
 - :mod:`retina.stages.order` - how much order the compass needs: restraint classes and curves
   against each concentration;
 - :mod:`retina.stages.trials` - simulated orientation trials;
-- :mod:`retina.stages.rf` - RF conditions beside the control (``rf``) and the frequency sweep
-  (``rf_sweep``); both skip (return None, no group) when ``[rf]`` asks for nothing;
+- :mod:`retina.stages.rf` - RF conditions beside the control (``rf``);
+- :mod:`retina.stages.rf_sweep` - the RF frequency sweep (``rf_sweep``): onset of disorientation and
+  threshold amplitude per lifetime; both RF stages skip (return None, no group) when ``[rf]`` asks
+  for nothing;
 - :mod:`retina.stages._common` - what they share (generators, signal model, decoder grid).
 """
 
 from __future__ import annotations
 
-from retina.stages import disorder, order, patterns, precision, rf, scan, trials
+from retina.stages import disorder, order, patterns, precision, rf, rf_sweep, scan, trials
 from retina.stages._common import Stage
 
 __all__ = ["Stage", "STAGES", "register", "stage_names"]
 
 STAGES: dict[str, Stage] = {s.name: s for s in (patterns.STAGE, scan.STAGE, precision.STAGE, disorder.STAGE,
-                                                order.STAGE, trials.STAGE, rf.STAGE, rf.SWEEP_STAGE)}
+                                                order.STAGE, trials.STAGE, rf.STAGE, rf_sweep.SWEEP_STAGE)}
 """Every stage by name, in computing order."""
 
 
