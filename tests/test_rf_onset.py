@@ -14,9 +14,11 @@ import numpy as np
 import pytest
 
 from retina.pipeline import run
-from retina.scenario import scenario_from_dict
+
 from retina.stages import rf as rfs
 from retina.stages import rf_sweep as rsw
+
+from _rf_scenario import small_rf_scenario
 
 # Radical A: one proton with a rhombic hyperfine tensor (all principal values non-zero, so the
 # level spacings stay in the MHz range for every field direction); radical B: one isotropic proton.
@@ -41,18 +43,8 @@ lifetime_us = 10.0
 
 
 def scenario(tmp_path: Path, rf: dict, pair: str = PAIR):
-    (tmp_path / "pair.toml").write_text(pair)
-    doc = {"scenario": {"name": "rf onset test", "seed": 7},
-           "yield": {"system": "pair.toml", "degree": 4},
-           "eyes": [{"side": "left", "azimuth_deg": -60.0, "n_receptors": 150},
-                    {"side": "right", "azimuth_deg": 60.0, "n_receptors": 150}],
-           "light": {"photons": [300.0, 3000.0], "names": ["dim", "bright"]},
-           "field": {"intensity_uT": 50.0, "inclination_deg": 60.0, "declination_deg": 0.0},
-           "pose": {"headings_deg": [0.0, 90.0]},
-           "scan": {"steps": 5},
-           "trials": {"n_trials": 20, "scan_steps": 3},
-           "rf": dict({"degree": 2, "check_points": 2, "cache": False}, **rf)}
-    return scenario_from_dict(doc, base_dir=tmp_path)
+    return small_rf_scenario(tmp_path, dict({"degree": 2, "check_points": 2, "cache": False}, **rf), pair,
+                             name="rf onset test", seed=7)
 
 
 def test_first_crossing_interpolates_in_log_frequency():

@@ -16,9 +16,10 @@ import pytest
 from retina.errors import InputError
 from retina.pipeline import run
 from retina.results import load_results, save_results
-from retina.scenario import scenario_from_dict
 from retina.stages import rf as rfs
 from retina.stages import rf_sweep as rsw
+
+from _rf_scenario import small_rf_scenario
 
 PAIR = """
 [pair]
@@ -45,18 +46,7 @@ lifetime_us = 2.0
 
 
 def scenario(tmp_path: Path, rf: dict):
-    (tmp_path / "pair.toml").write_text(PAIR)
-    doc = {"scenario": {"name": "rf test", "seed": 5},
-           "yield": {"system": "pair.toml", "degree": 4},
-           "eyes": [{"side": "left", "azimuth_deg": -60.0, "n_receptors": 150},
-                    {"side": "right", "azimuth_deg": 60.0, "n_receptors": 150}],
-           "light": {"photons": [300.0, 3000.0], "names": ["dim", "bright"]},
-           "field": {"intensity_uT": 50.0, "inclination_deg": 60.0, "declination_deg": 0.0},
-           "pose": {"headings_deg": [0.0, 90.0]},
-           "scan": {"steps": 5},
-           "trials": {"n_trials": 20, "scan_steps": 3},
-           "rf": rf}
-    return scenario_from_dict(doc, base_dir=tmp_path)
+    return small_rf_scenario(tmp_path, rf, PAIR, name="rf test", seed=5)
 
 
 def test_schema_refuses_incomplete_conditions(tmp_path):
