@@ -259,22 +259,14 @@ def compute_rf(built, progress=None) -> dict | None:
         return None
     if not any(c["kind"] == "off" for c in conds):
         conds.insert(0, {"name": "off", "kind": "off", "direction": "perpendicular"})
-    system = pair_system(sc)
-    field = spin_field_uT(sc, built.field)
     L = int(rfc["degree"])
     out = {"names": json.dumps([c["name"] for c in conds]), "light_names": json.dumps(list(sc["light"]["names"])),
            "light_photons": np.asarray(sc["light"]["photons"], float), "degree": L, "conditions": {}}
     for i, c in enumerate(conds):
         rec = condition_record(c, built.field)
-        if c["kind"] == "off":
-            from retina.yieldfn import YieldFunction
-
-            yf = YieldFunction.from_system(system, field, L, check_points=rfc["check_points"])
-            method = "static (control, same grid)"
-        else:
-            yf = rf_yield_function_for(system, field, rec, degree=L, check_points=rfc["check_points"],
-                                       tol=rfc["tol"], cache=rfc["cache"])
-            method = str(yf.provenance.get("method", ""))
+        yf = condition_yield_function(sc, c, built.field)
+        method = ("static (control, same grid)" if c["kind"] == "off"
+                  else str(yf.provenance.get("method", "")))
         an = yf.anisotropy()
         grp = {"name": c["name"], "record": json.dumps(rec, sort_keys=True), "coeffs": np.asarray(yf.coeffs),
                "relative_anisotropy": float(an.relative), "mean_yield": float(an.mean),
