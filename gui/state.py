@@ -256,21 +256,20 @@ class History:
     def can_redo(self) -> bool:
         return bool(self._redo)
 
-    def pop_undo(self) -> dict | None:
-        if not self._undo:
+    def _move(self, src: list, dst: list, side: int) -> dict | None:
+        """Move the newest step from ``src`` to ``dst``; the values on ``side`` (0 old, 1 new)."""
+        if not src:
             return None
-        step = self._undo.pop()
-        self._redo.append(step)
+        step = src.pop()
+        dst.append(step)
         self._last = None
-        return {k: old for k, (old, _) in step.items()}
+        return {k: pair[side] for k, pair in step.items()}
+
+    def pop_undo(self) -> dict | None:
+        return self._move(self._undo, self._redo, 0)
 
     def pop_redo(self) -> dict | None:
-        if not self._redo:
-            return None
-        step = self._redo.pop()
-        self._undo.append(step)
-        self._last = None
-        return {k: new for k, (_, new) in step.items()}
+        return self._move(self._redo, self._undo, 1)
 
 
 class ViewerState:
