@@ -41,7 +41,7 @@ import numpy as np
 
 __all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
            "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend", "map_grid", "map_index",
-           "PatternColours", "pattern_colours"]
+           "PatternColours", "pattern_colours", "receptor_points_class"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
@@ -250,23 +250,116 @@ def _colours_for(view, res) -> PatternColours:
 _colours_for.cache = {}
 
 
-def _set_marker_colours(markers, rgba) -> None:
-    """Replace only the colours of a Markers visual (face and edge), keeping its geometry: the
-    interleaved vertex buffer is re-sent as it is, without vispy re-validating positions, sizes and
-    colours.  Falls back to a full ``set_data`` when the visual's layout is not the expected one."""
-    data = getattr(markers, "_data", None)
-    vbo = getattr(markers, "_vbo", None)
-    if data is None:
-        return  # no receptors drawn
-    names = getattr(data.dtype, "names", None) or ()
-    if vbo is None or "a_bg_color" not in names or "a_fg_color" not in names or len(data) != len(rgba):
-        markers.set_data(data["a_position"], face_color=rgba, edge_color=rgba, size=data["a_size"],
-                         edge_width=0.0)
-        return
-    data["a_bg_color"] = rgba
-    data["a_fg_color"] = rgba
-    vbo.set_data(data)
-    markers.update()
+_POINTS_VERT = """
+attribute vec3 a_position;
+attribute vec4 a_color;
+attribute float a_size;
+varying vec4 v_color;
+varying float v_size;
+void main() {
+    v_color = a_color;
+    vec4 pos = vec4(a_position, 1.0);
+    vec4 fb = $visual_to_framebuffer(pos);
+    // the diameter a_size (visual units, perpendicular to the line of sight) in framebuffer pixels
+    vec4 p = $framebuffer_to_visual(fb);
+    vec4 x = $framebuffer_to_visual(fb + vec4(1e10, 0.0, 0.0, 0.0)) - p;
+    vec4 edge = $visual_to_framebuffer(p + normalize(x) * a_size);
+    v_size = max(edge.x / edge.w - fb.x / fb.w, 1.0) + 0.5;  // + 0.5: no pixel gaps between discs
+    gl_PointSize = v_size;
+    gl_Position = $framebuffer_to_render(fb);
+}
+"""
+
+_POINTS_FRAG = """
+varying vec4 v_color;
+varying float v_size;
+void main() {
+    vec2 c = gl_PointCoord - vec2(0.5);
+    float r2 = dot(c, c);
+    if (r2 > 0.25)
+        discard;
+    // discs of 6 pixels and more get a darker 1-pixel rim, so that neighbours stay apart
+    float inner = max(0.5 - 1.0 / v_size, 0.0);
+    gl_FragColor = (v_size >= 6.0 && r2 > inner * inner) ? vec4(0.55 * v_color.rgb, v_color.a) : v_color;
+}
+"""
+
+_POINTS_CLASS = None
+
+
+def receptor_points_class():
+    """The scene node class :class:`ReceptorPoints` (built on first use: it imports vispy).
+
+    ``ReceptorPoints(parent=node)`` draws one flat disc per point, its diameter given in the
+    node's own units (millimetres in the head), as ``GL_POINTS`` with a one-line fragment shader:
+    no signed-distance symbol, no edge and no anti-aliased rim (vispy's ``Markers`` draws each
+    marker over a square about 6 pixels wider than the disc, with a signed-distance shader; at
+    4,000 receptors per eye that was most of the head view's raster time).  Methods:
+    ``set_points(positions (N, 3), sizes (N,), colors (N, 4))`` and ``set_colors(colors (N, 4))``,
+    which re-sends only the colour buffer.  Attributes ``positions``, ``sizes``, ``colors`` hold
+    what was last sent (float32).
+    """
+    global _POINTS_CLASS
+    if _POINTS_CLASS is None:
+        from vispy import gloo
+        from vispy.scene.visuals import create_visual_node
+        from vispy.visuals import Visual
+
+        class ReceptorPointsVisual(Visual):
+            """Flat discs of per-point colour and size (:func:`receptor_points_class`)."""
+
+            def __init__(self):
+                Visual.__init__(self, vcode=_POINTS_VERT, fcode=_POINTS_FRAG)
+                self._draw_mode = "points"
+                self.positions = np.zeros((0, 3), np.float32)
+                self.sizes = np.zeros(0, np.float32)
+                self.colors = np.zeros((0, 4), np.float32)
+                self._vbo_pos = gloo.VertexBuffer(np.zeros((1, 3), np.float32))
+                self._vbo_size = gloo.VertexBuffer(np.zeros(1, np.float32))
+                self._vbo_col = gloo.VertexBuffer(np.zeros((1, 4), np.float32))
+                self.shared_program["a_position"] = self._vbo_pos
+                self.shared_program["a_size"] = self._vbo_size
+                self.shared_program["a_color"] = self._vbo_col
+                self.set_gl_state("translucent", depth_test=True)
+
+            def set_points(self, positions, sizes, colors) -> None:
+                pos = np.ascontiguousarray(positions, np.float32).reshape(-1, 3)
+                n = len(pos)
+                siz = np.ascontiguousarray(np.broadcast_to(np.asarray(sizes, np.float32), (n,)))
+                col = np.ascontiguousarray(colors, np.float32).reshape(n, 4)
+                self.positions, self.sizes, self.colors = pos, siz, col
+                if n:
+                    self._vbo_pos.set_data(pos)
+                    self._vbo_size.set_data(siz)
+                    self._vbo_col.set_data(col)
+                self.update()
+
+            def set_colors(self, colors) -> None:
+                col = np.ascontiguousarray(colors, np.float32)
+                if col.shape != self.colors.shape:
+                    raise ValueError(f"expected colours of shape {self.colors.shape}, got {col.shape}")
+                self.colors = col
+                if len(col):
+                    self._vbo_col.set_data(col)
+                self.update()
+
+            def _prepare_transforms(self, view):
+                tr = view.transforms
+                vert = view.view_program.vert
+                vert["visual_to_framebuffer"] = tr.get_transform("visual", "framebuffer")
+                vert["framebuffer_to_visual"] = tr.get_transform("framebuffer", "visual")
+                vert["framebuffer_to_render"] = tr.get_transform("framebuffer", "render")
+
+            def _prepare_draw(self, view):
+                return len(self.positions) > 0
+
+            def _compute_bounds(self, axis, view):
+                if not len(self.positions):
+                    return None
+                return float(self.positions[:, axis].min()), float(self.positions[:, axis].max())
+
+        _POINTS_CLASS = create_visual_node(ReceptorPointsVisual)
+    return _POINTS_CLASS
 
 
 def _state_limits(state, result):
@@ -454,8 +547,9 @@ class HeadView(_Subscriber):
     ----------
     canvas : vispy.scene.SceneCanvas
         ``canvas.native`` is the Qt widget.
-    markers : vispy.scene.visuals.Markers
-        One marker per receptor; :attr:`face_colors` holds the colours last set ``(N, 4)``.
+    markers : ReceptorPoints
+        One flat disc per receptor (:func:`receptor_points_class`); its ``colors`` and
+        :attr:`face_colors` hold the colours last set ``(N, 4)``.
     draws : int
         How many times the canvas has been drawn.
     """
@@ -511,8 +605,7 @@ class HeadView(_Subscriber):
         # head node: everything in the head frame, one transform
         self.head = scene.Node(parent=root)
         self.head.transform = MatrixTransform()
-        self.markers = scene.visuals.Markers(scaling="scene", parent=self.head)
-        self.markers.set_gl_state("translucent", depth_test=True)
+        self.markers = receptor_points_class()(parent=self.head)
         sv, sf = _ellipsoid((-3.5, 0.0, -0.5), (8.0, 5.6, 5.6))
         self.skull = scene.visuals.Mesh(sv, sf, color=(0.75, 0.66, 0.52, 0.13), shading=None,
                                         parent=self.head)
@@ -554,7 +647,7 @@ class HeadView(_Subscriber):
         self._show_pose(*self._pose_of(None), draw=False)
         self._receptors = None
         self.face_colors = None
-        self.markers.set_data(np.zeros((0, 3), np.float32))
+        self.markers.set_points(np.zeros((0, 3)), np.zeros(0), np.zeros((0, 4)))
         self.canvas.update()
 
     def _update_colours(self):
@@ -574,10 +667,9 @@ class HeadView(_Subscriber):
             self._sizes = (cols.eye, np.where(shown, 1.2 * spacing, 0.7 * spacing),
                            np.asarray(rec.positions, np.float32))
             self._receptors = rec
-            self.markers.set_data(self._sizes[2], face_color=rgba, edge_color=rgba, edge_width=0.0,
-                                  size=self._sizes[1])
+            self.markers.set_points(self._sizes[2], self._sizes[1], rgba)
         else:
-            _set_marker_colours(self.markers, rgba)
+            self.markers.set_colors(rgba)  # only the colour buffer: the geometry stays
         self.canvas.update()
 
     def render(self) -> np.ndarray:
@@ -782,7 +874,7 @@ class MapView(_Subscriber):
         f, o = self.marks["field"], self.marks["field_opposite"]
         data = getattr(self.field_marks, "_data", None)
         if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
-            data["a_position"][:, :2] = pos  # only the places change (_set_marker_colours)
+            data["a_position"][:, :2] = pos  # only the places change
             self.field_marks._vbo.set_data(data)
             self.field_marks.update()
         else:

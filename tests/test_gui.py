@@ -512,7 +512,7 @@ def test_window_builds_and_a_slider_recolours_the_receptors(window, qapp):
     st, head = window.state, window.head_view
     assert st.result is not None                    # synchronous worker: computed at start-up
     n = len(st.result.pattern.yields)
-    before = np.array(head.markers._data["a_bg_color"], copy=True)
+    before = np.array(head.markers.colors, copy=True)
     assert before.shape == (n, 4)
     ctrl = window.controls.controls["yaw_deg"]
     seen = []
@@ -521,7 +521,7 @@ def test_window_builds_and_a_slider_recolours_the_receptors(window, qapp):
     assert st.yaw_deg == pytest.approx(90.0) and seen == [pytest.approx(90.0)]
     assert ctrl.spin.value() == pytest.approx(90.0)  # the spin box follows, without echo
     assert st.result.request.yaw_deg == pytest.approx(90.0)
-    after = np.asarray(head.markers._data["a_bg_color"])
+    after = np.asarray(head.markers.colors)
     assert np.max(np.abs(after - before)) > 0.05    # the pattern changed with the heading
     np.testing.assert_allclose(after, head.face_colors, atol=1.0 / 255)
     # the map shows the same pattern
@@ -1446,15 +1446,17 @@ def test_a_new_pattern_replaces_only_the_receptor_colours(window, qapp):
     window.show()
     _settle(qapp, 0.3)
     m = window.head_view.markers
-    pos0 = np.array(m._data["a_position"])
-    size0 = np.array(m._data["a_size"])
+    pos_sent = m.positions
+    pos0 = np.array(m.positions)
+    size0 = np.array(m.sizes)
     window.state.yaw_deg = 123.0
     _settle(qapp, 0.2)
     cols = window.state.result.colours
     assert window.state.result.request.yaw_deg == 123.0 and cols is not None
-    np.testing.assert_array_equal(m._data["a_position"], pos0)
-    np.testing.assert_array_equal(m._data["a_size"], size0)
-    np.testing.assert_array_equal(m._data["a_bg_color"], cols.rgba)
+    assert m.positions is pos_sent                  # the geometry was not sent again
+    np.testing.assert_array_equal(m.positions, pos0)
+    np.testing.assert_array_equal(m.sizes, size0)
+    np.testing.assert_array_equal(m.colors, cols.rgba)
     np.testing.assert_array_equal(window.map_view.rgba, cols.image)
 
 
