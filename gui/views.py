@@ -414,15 +414,17 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
 
 
 def _share_fonts(texts) -> None:
-    """Give the Text visuals of one canvas one glyph atlas.
+    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches.
 
     vispy gives every Text visual its own font manager, so each renders every glyph it shows
     again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
-    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all.
+    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all, and
+    :mod:`retina_viewer.glyphs` keeps each glyph made once, for the other canvas and for later
+    starts.
     """
-    from vispy.visuals.text.text import FontManager
+    from .glyphs import font_manager
 
-    fm = FontManager(method="cpu")
+    fm = font_manager()
     for t in texts:
         t._font_manager = fm
         t._update_font()

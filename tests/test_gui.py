@@ -62,11 +62,13 @@ def _unavailable(reason):
 
 
 @pytest.fixture(scope="session")
-def display():
+def display(tmp_path_factory):
     """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here
-    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``)."""
+    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``).
+    The views' glyph cache goes to a folder of this session, not the user's cache."""
     if not HAVE_VIEWER:
         _unavailable("PyQt6 or vispy not installed (pip install 'retina-compass[viewer]')")
+    os.environ["RETINA_VIEWER_GLYPH_CACHE"] = str(tmp_path_factory.mktemp("glyphs"))
     from retina_viewer.display import XvfbError, virtual_display
 
     cm = virtual_display()
@@ -1475,3 +1477,53 @@ def test_virtual_display_uses_the_display_there_is_and_says_why_it_cannot_start(
         with disp.virtual_display():
             pass
     assert "DISPLAY" not in os.environ
+
+
+def test_glyph_cache_gives_vispy_own_glyphs_made_kept_and_read_back(tmp_path, monkeypatch):
+    # Cross-check against the reference library (vispy's own TextureFont and CPU distance-field
+    # renderer; common practice, no source): a glyph made through the cache, taken from memory,
+    # or read back from the disk cache has vispy's metrics, kerning, atlas place and distance
+    # field, byte for byte.  "AV" is a kerned pair in most fonts.  Needs no display (GL commands
+    # are only queued).
+    if not HAVE_VIEWER or importlib.util.find_spec("freetype") is None:
+        pytest.skip("vispy with freetype not installed")
+    from vispy.visuals.text.text import SDFRendererCPU, TextureFont
+
+    from retina_viewer import glyphs
+
+    monkeypatch.setenv("RETINA_VIEWER_GLYPH_CACHE", str(tmp_path))
+    glyphs.clear_memory()
+    fields = {}
+
+    class Keep(SDFRendererCPU):
+        def render_to_texture(self, data, texture, offset, size):
+            out = np.zeros((size[1], size[0], 3), np.uint8)
+            super().render_to_texture(data, out, (0, 0), size)
+            fields[len(fields)] = out
+
+    text = "AVa-B7"
+    ref = TextureFont(dict(face="OpenSans", bold=False, italic=False), Keep())
+    for ch in text:
+        ref[ch]
+    assert any(v != 0 for g in ref._glyphs.values() for v in g["kerning"].values())
+    for source in ("made", "memory", "disk"):
+        if source == "disk":
+            glyphs.clear_memory()
+        font = glyphs.font_manager().get_font("OpenSans")
+        for ch in text:
+            font[ch]
+        for i, ch in enumerate(text):
+            g, r = font[ch], ref._glyphs[ch]
+            assert tuple(g["offset"]) == tuple(r["offset"]) and g["advance"] == r["advance"]
+            assert g["size"] == r["size"] and g["texcoords"] == r["texcoords"]
+            assert g["kerning"] == pytest.approx(r["kerning"], abs=0)
+            np.testing.assert_array_equal(g["bitmap"], r["bitmap"])
+            np.testing.assert_array_equal(glyphs._MEMORY[font._key(ch)][1], fields[i])
+        assert glyphs.STATS[source] == len(text), source
+    assert len(list(tmp_path.glob("*.npz"))) == len(text)
+    # a damaged cache file is a miss, not an error
+    for f in tmp_path.glob("*.npz"):
+        f.write_bytes(b"not a glyph")
+    glyphs.clear_memory()
+    font = glyphs.font_manager().get_font("OpenSans")
+    assert font["A"]["advance"] == ref._glyphs["A"]["advance"] and glyphs.STATS["made"] == 1
