@@ -1527,3 +1527,35 @@ def test_glyph_cache_gives_vispy_own_glyphs_made_kept_and_read_back(tmp_path, mo
     glyphs.clear_memory()
     font = glyphs.font_manager().get_font("OpenSans")
     assert font["A"]["advance"] == ref._glyphs["A"]["advance"] and glyphs.STATS["made"] == 1
+
+
+def test_shader_comment_stripping_equals_vispys_regular_expression():
+    # Cross-check against the reference (Python's re with vispy's own pattern, as
+    # vispy.gloo.program applies it; common practice, no source): the same text for vispy's
+    # shader sources and for edge cases, and a vispy Program parses the same variables with the
+    # stand-in installed.
+    import re
+
+    if not HAVE_VIEWER:
+        pytest.skip("vispy not installed")
+    from vispy.gloo import program as gloo_program
+    from vispy.visuals import markers, mesh
+    from vispy.visuals.text import text
+
+    from retina_viewer.canvas import _fast_shader_parsing, strip_line_comments
+
+    def ref(code):
+        return re.sub(r"(.*)(//.*)", r"\1", code, flags=re.M)
+
+    codes = [markers._VERTEX_SHADER, markers._FRAGMENT_SHADER, text._VERTEX_SHADER,
+             text._FRAGMENT_SHADER, mesh._VERTEX_SHADER, mesh._FRAGMENT_SHADER,
+             "a // b // c\nuniform float x; // one\n//\n\n  // only\r\nvec4 y; /* // */ z\n"]
+    for code in codes:
+        assert strip_line_comments(code) == ref(code)
+    vert = "attribute vec3 a_pos; // position\nuniform float u_k; // gain // twice\nvoid main() {}\n"
+    frag = "varying vec4 v_c; // colour\nvoid main() { gl_FragColor = vec4(u_k); }\n"
+    plain = gloo_program.Program(vert, frag).variables
+    _fast_shader_parsing()
+    assert gloo_program.re is not re                    # the stand-in is in place
+    assert gloo_program.Program(vert, frag).variables == plain
+    assert gloo_program.re.sub(r"a", "b", "aa") == "bb"   # any other use goes to re itself
