@@ -26,7 +26,8 @@ Conventions (owned here)
 - One draw per change: in the window the views follow *results* (``follow="result"``): the pose,
   the field marks and the colours all come from the result's request, so a heading step is drawn
   once, with matching pose and colours.  A view alone (``follow="state"``) follows the pose and
-  field events directly.
+  field events directly.  A result that changes nothing a view shows (a new light level: same
+  pose, same colours) draws nothing there; the view's ``skipped`` counts such results.
 - Views subscribe to the state model in their constructor and only update their scene nodes; the
   model never knows its views.
 """
@@ -554,6 +555,8 @@ class HeadView(_Subscriber):
         :attr:`face_colors` hold the colours last set ``(N, 4)``.
     draws : int
         How many times the canvas has been drawn.
+    skipped : int
+        How many results changed nothing shown here (no draw; module docstring).
     """
 
     def __init__(self, state, *, size=(640, 520), parent=None, follow="state"):
@@ -620,6 +623,8 @@ class HeadView(_Subscriber):
         self._receptors = None
         self._sizes = None
         self._field_key = None
+        self._pose_key = None
+        self.skipped = 0
         self._subscribe_pose(state, follow)
         self._show_pose(*self._pose_of(None), draw=False)
         self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_colours())
@@ -631,6 +636,7 @@ class HeadView(_Subscriber):
         self.draws += 1
 
     def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
+        self._pose_key = (yaw, pitch, roll, inclination, declination)
         M = np.eye(4)
         M[:3, :3] = (DISPLAY_FROM_NED @ _pose_matrix(yaw, pitch, roll)).T  # vispy: row vectors
         self.head.transform.matrix = M
@@ -656,11 +662,17 @@ class HeadView(_Subscriber):
         res = self.state.result
         if res is None:
             return
-        if self.follow == "result":
-            self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
         cols = _colours_for(self, res)
         rgba = cols.rgba
+        pose = self._pose_of(res)
+        if (rec is self._receptors and self._sizes is not None and self._sizes[0] == cols.eye
+                and pose == self._pose_key and self.face_colors is not None
+                and np.array_equal(rgba, self.face_colors)):
+            self.skipped += 1
+            return  # nothing shown changes (the light level, say): no draw
+        if self.follow == "result":
+            self._show_pose(*pose, draw=False)
         self.face_colors = rgba
         if rec is not self._receptors or self._sizes is None or self._sizes[0] != cols.eye:
             # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
@@ -698,6 +710,8 @@ class MapView(_Subscriber):
         Called with :meth:`receptor_info` of the receptor under the mouse (None off the eyes).
     draws : int
         How many times the canvas has been drawn.
+    skipped : int
+        How many results changed nothing shown here (no draw; module docstring).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
@@ -800,6 +814,7 @@ class MapView(_Subscriber):
         self._index = None
         self._receptors = None
         self._marks_key = None
+        self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
         self._subscribe_pose(state, follow)
@@ -911,10 +926,13 @@ class MapView(_Subscriber):
         res = self.state.result
         if res is None:
             return
+        marks_before = self._marks_key
         if self.follow == "result":
             self._show_pose(*self._pose_of(res), draw=False)
+        changed = self._marks_key != marks_before
         rec = res.pattern.receptors
         if rec is not self._receptors:
+            changed = True
             self._index = map_index(rec)
             pts, conn = self._edge_lines(rec)
             self.edges.set_data(pts, connect=conn)
@@ -922,8 +940,10 @@ class MapView(_Subscriber):
         cols = _colours_for(self, res)
         display, eye = cols.display, cols.eye
         lo, hi = cols.limits
-        self.rgba = cols.image
-        self.image.set_data(self.rgba)
+        if changed or not np.array_equal(cols.image, self.rgba):
+            changed = True
+            self.rgba = cols.image
+            self.image.set_data(self.rgba)
         flat = bool(getattr(res, "flat", False))
         locked = cols.locked
         if display == "modulation":
@@ -938,6 +958,7 @@ class MapView(_Subscriber):
             ends, caption = ["", ""], "flat pattern: every receptor the same (no modulation)"
         key = (display, tuple(ends), caption)
         if key != self._cbar_key:  # text is laid out again only when it changes
+            changed = True
             cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
             self.cbar.set_data(cmap(self._ramp).astype(np.float32))
             self.cbar_text.text = [ends[0], ends[1]]
@@ -947,7 +968,10 @@ class MapView(_Subscriber):
         title = f"{eye} eye{'s' if eye == 'both' else ''}, head frame (the heading is in the readout)"
         if self.title_label.text() != title:
             self.title_label.setText(title)
-        self.canvas.update()
+        if changed:
+            self.canvas.update()
+        else:
+            self.skipped += 1  # nothing drawn changes (the light level, say): no draw
 
     # ---------------------------------------------------------------- receptor under the cursor
     def receptor_at(self, az_deg: float, el_deg: float):

@@ -824,6 +824,27 @@ def test_one_draw_per_heading_step(window, qapp):
     assert window.map_view._marks_key[0] == 13.0
 
 
+def test_a_result_that_changes_nothing_shown_draws_nothing(window, qapp):
+    # Contract of gui/views.py (common practice, no source): the light level changes the bounds,
+    # not the pattern (modulation and yields do not depend on the photon count), so neither view
+    # draws; the readout still shows the new result.  A heading step after it draws both again.
+    window.show()
+    _settle(qapp, 0.5)
+    for _ in range(20):  # until the start-up draws (the map draws twice at a new size) are done
+        h0, m0 = window.head_view.draws, window.map_view.draws
+        _settle(qapp, 0.3)
+        if (window.head_view.draws, window.map_view.draws) == (h0, m0):
+            break
+    s0 = (window.head_view.skipped, window.map_view.skipped)
+    window.state.photons = window.state.photons * 4.0
+    _settle(qapp, 0.2)
+    assert window.state.result.request.photons == window.state.photons
+    assert (window.head_view.draws, window.map_view.draws) == (h0, m0)
+    assert (window.head_view.skipped, window.map_view.skipped) == (s0[0] + 1, s0[1] + 1)
+    window.state.yaw_deg = window.state.yaw_deg + 7.0
+    _process_until(qapp, lambda: window.head_view.draws > h0 and window.map_view.draws > m0, 5.0)
+
+
 def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
     # Common practice, no source: keys go to the focused control (Qt's focus model); global
     # shortcuts must not take them over.
