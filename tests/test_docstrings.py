@@ -35,7 +35,13 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.commands.rf", "retina.commands.view", "retina.figures.marks", "retina.figures.order",
            "retina.spin.rf_separable", "retina.stages.order", "retina.sweep", "retina.spin.engine",
            "retina.spin.equivalence", "retina.spin.fast_separable", "retina.spin.sampling",
-           "retina.spin._spectral"]
+           "retina.spin._spectral", "retina.stages.rf", "retina.stages.rf_sweep", "retina.figures.rf"]
+
+METHODS_NOT_YET = ["retina.stages._common", "retina.sweep.schema", "retina.readout.fisher", "retina.spin.operators",
+                   "retina.eye.order_laws", "retina.eye.field", "retina.eye.geometry", "retina.eye.pattern",
+                   "retina.signal.noise", "retina.spin.broadband", "retina.readout.decode", "retina.scenario",
+                   "retina.signal.light", "retina.yieldfn", "retina.cache", "retina.spin.sampling"]
+"""Checked modules whose public class methods are not checked yet."""
 
 
 def _public_functions(name):
@@ -45,11 +51,43 @@ def _public_functions(name):
             yield f"{name}.{attr}"
 
 
-@pytest.mark.parametrize("name", CHECKED)
-def test_public_functions_document_parameters_and_returns(name):
+def _public_methods(cls):
+    """Names of the public methods defined in the body of ``cls`` (plain, static and class methods).
+
+    Properties, inherited methods and callables stored as attributes (a dataclass field whose default
+    is a lambda) are not methods of the class and are skipped."""
+    for attr, obj in vars(cls).items():
+        if attr.startswith("_"):
+            continue
+        func = obj.__func__ if isinstance(obj, (staticmethod, classmethod)) else obj
+        if inspect.isfunction(func) and func.__qualname__ == f"{cls.__qualname__}.{attr}":
+            yield attr
+
+
+def _public_class_methods(name):
+    mod = importlib.import_module(name)
+    for attr, obj in vars(mod).items():
+        if not attr.startswith("_") and inspect.isclass(obj) and obj.__module__ == name:
+            for method in _public_methods(obj):
+                yield f"{name}.{attr}.{method}"
+
+
+def _missing_sections(names):
     bad = {}
-    for qual in _public_functions(name):
+    for qual in names:
         codes = [code for code, _ in validate(qual)["errors"] if code in ("GL08", "PR01", "RT01")]
         if codes:
             bad[qual] = codes
+    return bad
+
+
+@pytest.mark.parametrize("name", CHECKED)
+def test_public_functions_document_parameters_and_returns(name):
+    bad = _missing_sections(_public_functions(name))
+    assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
+
+
+@pytest.mark.parametrize("name", [n for n in CHECKED if n not in METHODS_NOT_YET])
+def test_public_methods_document_parameters_and_returns(name):
+    bad = _missing_sections(_public_class_methods(name))
     assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
