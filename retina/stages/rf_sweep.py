@@ -237,8 +237,9 @@ class BoundModel:
     Returns
     -------
     ndarray (G,)
-        Fisher information about the heading per photon per receptor, rad^-2, at the decoder grid's
-        ``G`` headings (:data:`retina.stages._common.GRID`, one-degree steps); with a free gain the
+        Fisher information about the heading, rad^-2, with one photon expected per receptor (it
+        scales with the photon count), at the decoder grid's ``G`` headings
+        (:data:`retina.stages._common.GRID`, one-degree steps); with a free gain the
         gain-marginalised (Schur complement) information.
     """
         from retina.readout.fisher import gain_schur, poisson_information
