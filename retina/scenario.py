@@ -285,10 +285,12 @@ class Scenario:
 
     @property
     def seed(self) -> int:
+        """``[scenario] seed``: the root of every stage's random numbers."""
         return int(self.data["scenario"]["seed"])
 
     @property
     def name(self) -> str:
+        """``[scenario] name``."""
         return self.data["scenario"]["name"]
 
     @property
@@ -302,6 +304,7 @@ class Scenario:
 
     @property
     def field_uses_location(self) -> bool:
+        """True when the field comes from a location and date (a field model), not from F, I, D."""
         return self.data["field"]["latitude_deg"] is not None
 
     def replace(self, **sections) -> "Scenario":

@@ -162,6 +162,7 @@ class YieldFunction:
 
     @property
     def degree(self) -> int:
+        """The largest (even) harmonic degree ``L``."""
         return self._degree
 
     @property

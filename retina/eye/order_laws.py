@@ -149,6 +149,7 @@ class FreeRotation(Ordering):
 
     @property
     def base(self) -> Rotation:
+        """``R0 = Ry(tilt) Rz(twist)``: the molecule's orientation before the free turn about the axis."""
         return Rotation.from_euler("ZYZ", [0.0, self.tilt_deg, self.twist_deg], degrees=True)
 
     def ensemble(self, coeffs) -> np.ndarray:
@@ -523,6 +524,7 @@ class Planar(Ordering):
 
     @property
     def twist_kappa(self) -> float:
+        """The von Mises concentration of the twist (0 free, inf fixed)."""
         return resolve_twist(self.twist, self.kappa)
 
     @property
@@ -532,6 +534,7 @@ class Planar(Ordering):
 
     @property
     def is_haar(self) -> bool:
+        """Both concentrations zero: the isotropic law."""
         return self.kappa == 0 and self.twist_kappa == 0
 
     @property

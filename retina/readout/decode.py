@@ -166,6 +166,7 @@ class HeadingDecoder:
 
     @property
     def n_receptors(self) -> int:
+        """The number ``N`` of receptors the decoder reads."""
         return self.lam.shape[1]
 
     @classmethod

@@ -314,6 +314,7 @@ class SignalModel:
     # -- geometry ---------------------------------------------------------------------------------
     @property
     def n_receptors(self) -> int:
+        """The number ``N`` of receptors."""
         return int(np.asarray(self.receptors.solid_angle).shape[0])
 
     @property

@@ -164,6 +164,7 @@ class SweepSpec:
 
     @property
     def n_points(self) -> int:
+        """The number of points (the product of :attr:`shape`)."""
         return int(np.prod(self.shape))
 
     def fingerprint(self) -> str:
