@@ -333,8 +333,9 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
     if method == "sampled":
         from retina.spin import sampling
 
+        # worker processes over directions (RETINA_JOBS), each with its own working memory
         secs, mem, note = sampling.cost_model(system, n)
-        return Cost(secs, mem, method, note)
+        return Cost(secs / _jobs_speedup(), mem * _jobs(), method, note)
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
