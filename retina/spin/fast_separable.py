@@ -268,7 +268,7 @@ def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
 
 @numba.njit(cache=True, nogil=True)
 def _spread_and_moments(lam, spt, szt, weight, h, nf, width, kpoly, inv_w, n_mom, grid, mom, absw):
-    """Spread the nine real weights of every pair ``m < n`` onto ``grid (nf, 9)``, accumulate the
+    """Spread the nine real weights of every pair ``m < n`` onto ``grid (9, nf)``, accumulate the
     Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` (sym components even orders, antisymmetric
     components odd orders; the others vanish) and the absolute weight sums ``absw (9,)``.
 
@@ -317,7 +317,7 @@ def _spread_and_moments(lam, spt, szt, weight, h, nf, width, kpoly, inv_w, n_mom
             for i in range(width):
                 kv = ker[i]
                 for c in range(9):
-                    grid[g, c] += rr[c] * kv
+                    grid[c, g] += rr[c] * kv
                 g += 1
                 if g == nf:
                     g = 0
@@ -376,7 +376,7 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
     """One radical's time series (n_t, 9) of Cs/Ca, the Chebyshev moments of its full spectra
     (9, n_mom) and its absolute weight sums (9,), from ``blocks = [(lam, sp, sz, multiplicity)]``."""
     nf = 4 * n_t
-    grid = np.zeros((nf, 9))
+    grid = np.zeros((9, nf))                    # component-major: each row transformed in place
     mom = np.zeros((9, n_mom))
     absw = np.zeros(9)
     diag = np.zeros(6)
@@ -387,12 +387,13 @@ def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
         dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
         diag += mult * np.array([dx @ dx, dy @ dy, dz @ dz, dx @ dy, dx @ dz, dy @ dz])
     # sum_g b_g e^{-2 pi i j g / nf}, transformed along contiguous rows
-    spec = scipy.fft.rfft(np.ascontiguousarray(grid.T), axis=1)[:, :n_t].T
-    psi = _psi_grid(n_t, width)[:, None]
-    series = np.empty((n_t, 9))
+    spec = scipy.fft.rfft(grid, axis=1, overwrite_x=True)[:, :n_t]
+    inv_psi = 2.0 / _psi_grid(n_t, width)[None, :]
+    series_t = np.empty((9, n_t))
     # G = conj(spec) / psi;  Cs = D + 2 Re G,  Ca = -2 Im G = 2 Im(spec) / psi
-    series[:, :6] = diag[None, :] + 2.0 * spec[:, :6].real / psi
-    series[:, 6:] = 2.0 * spec[:, 6:].imag / psi
+    series_t[:6] = diag[:, None] + spec[:6].real * inv_psi
+    series_t[6:] = spec[6:].imag * inv_psi
+    series = series_t.T                                               # (n_t, 9), a view
     # full-spectrum moments: sym comps even p only (+ diagonal at omega = 0), anti comps odd p only
     p = np.arange(n_mom)
     full = np.zeros((9, n_mom), dtype=complex)
