@@ -479,7 +479,7 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
         n_states, pilot_se = sampling.DEFAULT_STATES, None
         if accuracy is not None:
-            n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope)
+            n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope, n_jobs=_jobs())
         res = sampling.sampled_yields(system, field_uT, dirs, n_states=n_states, progress=progress,
                                       n_jobs=_jobs())
         if info is not None:

@@ -692,7 +692,8 @@ MAX_STATES = 1024
 PILOT_STATES, PILOT_DIRECTIONS = 4, 6
 
 
-def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) -> tuple[int, float]:
+def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
+               n_jobs: int | None = None) -> tuple[int, float]:
     """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
 
     The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
@@ -710,6 +711,8 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) 
         Wanted standard error per (singlet-start singlet) yield, > 0.
     seed : int
         The final run's seed.
+    n_jobs : int, optional
+        Worker processes over the pilot's directions (as in :func:`sampled_yields`).
 
     Returns
     -------
@@ -723,7 +726,7 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) 
                          key="accuracy")
     dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
     pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
-    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1)
+    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1, n_jobs=n_jobs)
     se = float(np.max(pilot.standard_error))
     r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
     return max(PILOT_STATES, min(MAX_STATES, r)), se
