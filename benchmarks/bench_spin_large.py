@@ -250,7 +250,7 @@ def bench_sampled(quick: bool) -> list[dict]:
     return rows
 
 
-def bench_sampled_twenty(quick: bool, *, n_states: int = 6, n_check: int = 8) -> list[dict]:
+def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) -> list[dict]:
     """Row 5b: the invented axial 20-nucleus pair at degree 8, sampled for real (not in --quick)."""
     from retina import sphere
     from retina.spin import engine, sampling
@@ -270,7 +270,11 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 6, n_check: int = 8) ->
                      note=f"--quick: not run; the engine's estimate for {n_unique} directions, {n_states} "
                           f"states, {jobs} worker(s)")]
     t0 = time.perf_counter()
-    res = sampling.sampled_yields(system, 50.0, dirs, n_states=n_states, seed=0, n_jobs=jobs)
+
+    def progress(done, total):
+        print(f"    ... {done}/{total} directions, {time.perf_counter() - t0:.0f} s", file=sys.stderr, flush=True)
+
+    res = sampling.sampled_yields(system, 50.0, dirs, n_states=n_states, seed=0, n_jobs=jobs, progress=progress)
     wall = time.perf_counter() - t0
     h = half.size
 

@@ -178,7 +178,7 @@ def _nnz_row(spins) -> float:
 #: Seconds per stored entry and vector of one sparse product, per term and vector element of the
 #: combination into states, per vector element of the correlation step, and per expansion of
 #: Python overhead (measured at dimension 4608 with 8 vectors, one process).
-_T_MATVEC, _T_COMB, _T_CORR, _T_GROUP = 1.2e-9, 3.2e-10, 5e-9, 3e-4
+_T_MATVEC, _T_COMB, _T_CORR, _T_GROUP = 1.2e-9, 1.6e-10, 5e-9, 3e-4
 
 
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
@@ -362,9 +362,10 @@ def _cheb_coeffs(x: float, tol: float = CHEB_TOL) -> np.ndarray:
 
 
 #: Cost of one sparse product per stored entry of a row, in units of one term of the combination
-#: of Chebyshev vectors into states (a real matrix product): measured about 3.6 (23 entries a row,
-#: 8 vectors, dimension 4608; the combination runs at BLAS-3 speed, the sparse product does not).
-_MATVEC_WEIGHT = 3.6
+#: of Chebyshev vectors into states (real matrix products): measured about 3.6 for a complex
+#: combination (23 entries a row, 8 vectors, dimension 4608; the combination runs at BLAS-3 speed,
+#: the sparse product does not), so about 7 for the real-and-imaginary split used here.
+_MATVEC_WEIGHT = 7.0
 
 
 def _substeps(a: float, h: float, nnz_row: float) -> int:
@@ -466,39 +467,48 @@ def _radical_series(prepared, hams, xis, h, n_t):
         dr = np.ascontiguousarray(hs.data.real)
         di = np.ascontiguousarray(hs.data.imag)
         m_sub = _substeps(a, h, hs.nnz / hs.shape[0])
-        coef = _sub_coeffs(a, c, h, m_sub)                               # (N + 1, m)
+        # exp(-i H tau) = exp(-i c tau) sum_n b_n(tau) T_n((H - c)/a); the phase exp(-i c tau) is
+        # common to every vector of the block, so it cancels in every Gram matrix and is left out
+        # (each state below is the true one times that phase).  b_n = (2 - delta_n0) (-i)^n J_n(a
+        # tau) is real for even n and imaginary for odd n (b_n = i g_n), so with T_n v = X_n + i Y_n
+        # (derived): Re psi = sum_even b_n X_n - sum_odd g_n Y_n, Im psi = sum_even b_n Y_n +
+        # sum_odd g_n X_n.  Stored as rows A_n = (X_n if n even else Y_n) and B_n = (Y_n if n even
+        # else X_n), these are two real products, c_re @ A and c_im @ B: half the work of a
+        # complex combination.
+        coef = _sub_coeffs(a, 0.0, h, m_sub)                             # (N + 1, m), no phase
         n_c = coef.shape[0]
-        # real form of the combination: [Re; Im] of m states = cmat @ [Re T_0, Im T_0, Re T_1, ...]
-        cmat = np.zeros((2, m_sub, n_c, 2))
-        cmat[0, :, :, 0] = coef.real.T
-        cmat[0, :, :, 1] = -coef.imag.T
-        cmat[1, :, :, 0] = coef.imag.T
-        cmat[1, :, :, 1] = coef.real.T
-        cmat = cmat.reshape(2 * m_sub, 2 * n_c)
+        odd = (np.arange(n_c) % 2 == 1)
+        # even n: b real, b X + i b Y; odd n: b = i g (g real), i g (X + i Y) = -g Y + i g X
+        c_re = np.where(odd[:, None], -coef.imag, coef.real).T.copy()   # (m, n_c) on A
+        c_im = np.where(odd[:, None], coef.imag, coef.real).T.copy()    # (m, n_c) on B
         v = np.zeros((2 * n, 2 * r), dtype=complex)
         v[:n, :r] = xi
         v[n:, r:] = xi
         mult = float(pb.block.multiplicity)
         _correlations(np.ascontiguousarray(v.real)[None], np.ascontiguousarray(v.imag)[None], n, r, mult,
                       out[:, 0:1])
-        cheb = np.empty((n_c, 2) + v.shape)                             # T_n v: real, imaginary
-        cheb[0, 0] = v.real
-        cheb[0, 1] = v.imag
-        flat = cheb.reshape(2 * n_c, -1)
+        rows_a = np.empty((n_c,) + v.shape)
+        rows_b = np.empty((n_c,) + v.shape)
+        xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
+        ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
+        xs[0][...] = v.real
+        ys[0][...] = v.imag
+        flat_a = rows_a.reshape(n_c, -1)
+        flat_b = rows_b.reshape(n_c, -1)
         j = 1
         while j < n_t:
             m = min(m_sub, n_t - j)
-            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by one matrix product
+            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by two real matrix products
             if n_c > 1:
-                _cheb_step(hs.indptr, hs.indices, dr, di, 1.0, cheb[0, 0], cheb[0, 1], 0.0, cheb[0, 0],
-                           cheb[0, 1], cheb[1, 0], cheb[1, 1])
+                _cheb_step(hs.indptr, hs.indices, dr, di, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
             for k in range(2, n_c):
-                _cheb_step(hs.indptr, hs.indices, dr, di, 2.0, cheb[k - 1, 0], cheb[k - 1, 1], -1.0,
-                           cheb[k - 2, 0], cheb[k - 2, 1], cheb[k, 0], cheb[k, 1])
-            both = (cmat @ flat).reshape((2, m_sub) + v.shape)
-            _correlations(both[0, :m], both[1, :m], n, r, mult, out[:, j:j + m])
-            cheb[0, 0] = both[0, m - 1]
-            cheb[0, 1] = both[1, m - 1]
+                _cheb_step(hs.indptr, hs.indices, dr, di, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2], ys[k - 2],
+                           xs[k], ys[k])
+            re = (c_re[:m] @ flat_a).reshape((m,) + v.shape)
+            im = (c_im[:m] @ flat_b).reshape((m,) + v.shape)
+            _correlations(re, im, n, r, mult, out[:, j:j + m])
+            xs[0][...] = re[m - 1]
+            ys[0][...] = im[m - 1]
             j += m
     return out
 
