@@ -65,8 +65,9 @@ nucleus at a time (:func:`retina.spin._spectral.hyperfine_interval`) and a few n
 spread on the benchmark's random 10-nucleus radicals, against 60 % too wide per nucleus); no
 eigendecomposition of the radical.  One expansion covers ``m`` grid steps (:func:`_substeps`): the
 Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the intermediate grid
-times are their combinations with the coefficients ``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c
-tau)`` (one real matrix product).  Directions that are each other's opposites are sampled once.  Groups of equivalent nuclei are reduced to
+times are their combinations with the coefficients ``(2 - delta_n0) (-i)^n J_n(a tau)`` (two real
+matrix products; the phase ``exp(-i c tau)``, common to the whole block, cancels in every Gram
+matrix and is left out).  Directions that are each other's opposites are sampled once.  Groups of equivalent nuclei are reduced to
 their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled with its multiplicity.
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
