@@ -165,6 +165,9 @@ def grouped_interval(pseudo, w, *, max_dim: int = GROUP_DIMENSION, _ops=None) ->
         Electron Zeeman vector ``(mu_B / hbar) g . B``, rad s^-1 (the Hamiltonian's ``w . S``).
     max_dim : int
         Largest nuclear dimension of a group.
+    _ops : list, optional
+        The groups' operators from an earlier call (``pseudo`` is then ignored); callers that
+        bound many directions of one radical build them once.
 
     Returns
     -------
