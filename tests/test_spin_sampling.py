@@ -323,3 +323,30 @@ def test_electron_trace_is_exact_at_time_zero():
     got = sampling._radical_series(prepared, hams, xis, 1e-9, 1)[:, 0]
     want = np.array([1, 1, 1, 0, 0, 0, 0, 0, 0]) * rad.dimension / 4
     assert np.max(np.abs(got - want[None, :])) < 1e-10 * rad.dimension
+
+
+def test_engine_estimate_of_the_sampled_method_counts_worker_processes(monkeypatch):
+    # Common practice, no source: directions are independent, so n worker processes on at least n
+    # cores divide the modelled time by n and multiply the working memory by n.
+    system = _big(1e6)
+    monkeypatch.setenv("RETINA_JOBS", "1")
+    one = engine.estimate_cost(system, 10, "sampled")
+    monkeypatch.setenv("RETINA_JOBS", "2")
+    monkeypatch.setattr("os.cpu_count", lambda: 2)
+    two = engine.estimate_cost(system, 10, "sampled")
+    assert two.seconds == pytest.approx(one.seconds / 2) and two.bytes == 2 * one.bytes
+
+
+def test_cost_model_follows_the_measured_structure_of_the_hamiltonian():
+    # Reference: the stored entries per row of the sparse block Hamiltonian built by
+    # retina.spin.equivalence (scipy.sparse nnz), against the count derived in _nnz_row.
+    from retina.spin.equivalence import radical_blocks
+
+    rng = np.random.default_rng(15)
+    rad = _radical_with_methyl(rng)
+    for pb in sampling._prepare(rad):
+        hm, _, _ = sampling._block_hamiltonian(pb, _unit(rng, 1)[0] * 50e-6)
+        want = hm.nnz / hm.shape[0]
+        got = sampling._nnz_row([j for j in pb.block.spins if j > 0])
+        assert abs(got - want) <= 0.05 * want
+    assert len(radical_blocks(rad)) == 2
