@@ -407,29 +407,61 @@ def _gram(re, im, n, r, gr, gi):
     of draw ``s``; ``re``, ``im`` (m, 2 n, 2 R), ``gr``, ``gi`` (m, R, 4, 4) real and imaginary
     parts (overwritten)."""
     m = re.shape[0]
-    pr = np.empty(4)
-    pi = np.empty(4)
     for t in range(m):
         for s in range(r):
-            for a in range(4):
-                for b in range(4):
-                    gr[t, s, a, b] = 0.0
-                    gi[t, s, a, b] = 0.0
-        for q in range(n):
-            for s in range(r):
-                pr[0] = re[t, q, s]
-                pi[0] = im[t, q, s]
-                pr[1] = re[t, n + q, s]
-                pi[1] = im[t, n + q, s]
-                pr[2] = re[t, q, r + s]
-                pi[2] = im[t, q, r + s]
-                pr[3] = re[t, n + q, r + s]
-                pi[3] = im[t, n + q, r + s]
-                for a in range(4):
-                    for b in range(4):
-                        # conj(phi_a) phi_b
-                        gr[t, s, a, b] += pr[a] * pr[b] + pi[a] * pi[b]
-                        gi[t, s, a, b] += pr[a] * pi[b] - pi[a] * pr[b]
+            # the ten distinct products (Hermitian), accumulated in scalars over the rows
+            r00 = r11 = r22 = r33 = 0.0
+            r01 = r02 = r03 = r12 = r13 = r23 = 0.0
+            i01 = i02 = i03 = i12 = i13 = i23 = 0.0
+            for q in range(n):
+                a0 = re[t, q, s]
+                b0 = im[t, q, s]
+                a1 = re[t, n + q, s]
+                b1 = im[t, n + q, s]
+                a2 = re[t, q, r + s]
+                b2 = im[t, q, r + s]
+                a3 = re[t, n + q, r + s]
+                b3 = im[t, n + q, r + s]
+                r00 += a0 * a0 + b0 * b0
+                r11 += a1 * a1 + b1 * b1
+                r22 += a2 * a2 + b2 * b2
+                r33 += a3 * a3 + b3 * b3
+                # conj(phi_a) phi_b = (a_a a_b + b_a b_b) + i (a_a b_b - b_a a_b)
+                r01 += a0 * a1 + b0 * b1
+                i01 += a0 * b1 - b0 * a1
+                r02 += a0 * a2 + b0 * b2
+                i02 += a0 * b2 - b0 * a2
+                r03 += a0 * a3 + b0 * b3
+                i03 += a0 * b3 - b0 * a3
+                r12 += a1 * a2 + b1 * b2
+                i12 += a1 * b2 - b1 * a2
+                r13 += a1 * a3 + b1 * b3
+                i13 += a1 * b3 - b1 * a3
+                r23 += a2 * a3 + b2 * b3
+                i23 += a2 * b3 - b2 * a3
+            gr[t, s, 0, 0] = r00
+            gr[t, s, 1, 1] = r11
+            gr[t, s, 2, 2] = r22
+            gr[t, s, 3, 3] = r33
+            gi[t, s, 0, 0] = gi[t, s, 1, 1] = gi[t, s, 2, 2] = gi[t, s, 3, 3] = 0.0
+            gr[t, s, 0, 1] = gr[t, s, 1, 0] = r01
+            gr[t, s, 0, 2] = gr[t, s, 2, 0] = r02
+            gr[t, s, 0, 3] = gr[t, s, 3, 0] = r03
+            gr[t, s, 1, 2] = gr[t, s, 2, 1] = r12
+            gr[t, s, 1, 3] = gr[t, s, 3, 1] = r13
+            gr[t, s, 2, 3] = gr[t, s, 3, 2] = r23
+            gi[t, s, 0, 1] = i01
+            gi[t, s, 1, 0] = -i01
+            gi[t, s, 0, 2] = i02
+            gi[t, s, 2, 0] = -i02
+            gi[t, s, 0, 3] = i03
+            gi[t, s, 3, 0] = -i03
+            gi[t, s, 1, 2] = i12
+            gi[t, s, 2, 1] = -i12
+            gi[t, s, 1, 3] = i13
+            gi[t, s, 3, 1] = -i13
+            gi[t, s, 2, 3] = i23
+            gi[t, s, 3, 2] = -i23
 
 
 def _correlations(re, im, n: int, r: int, mult: float, out):
