@@ -334,7 +334,7 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
         from retina.spin import sampling
 
         # worker processes over directions (RETINA_JOBS), each with its own working memory
-        secs, mem, note = sampling.cost_model(system, n)
+        secs, mem, note = sampling.cost_model(system, n, measured=True)
         return Cost(secs / _jobs_speedup(), mem * _jobs(), method, note)
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension

@@ -90,7 +90,9 @@ times the lifetime, and linear in the radical dimension rather than cubic (:func
 
 from __future__ import annotations
 
+import functools
 import math
+import time
 from dataclasses import dataclass
 from typing import Callable
 
@@ -104,7 +106,8 @@ from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.operators import MU_B_OVER_HBAR
 from retina.spin.system import equal_rate_reported_yield
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "states_for", "DEFAULT_STATES",
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for",
+           "DEFAULT_STATES",
            "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES"]
 
 #: Default number of random vectors per radical (independent draws).
@@ -176,21 +179,59 @@ def _nnz_row(spins) -> float:
     return 2.0 + sum(4.0 * (2 * j) / (2 * j + 1) for j in spins)
 
 
-#: Seconds per stored entry and vector of one sparse product, per term and vector element of the
-#: combination into states, per vector element of the correlation step, and per expansion of
-#: Python overhead (measured at dimension 4608 with 8 vectors, one process).
-_T_MATVEC, _T_COMB, _T_CORR, _T_GROUP = 1.2e-9, 1.6e-10, 5e-9, 3e-4
+#: Seconds per stored entry and vector of one sparse product: the fixed value the method choice
+#: uses (so that it, part of the cache key, never depends on the machine's load); estimates use
+#: :func:`matvec_seconds`, measured once per process.
+_T_MATVEC = 2.0e-9
+#: Per term and vector element of the combination into states, per vector element of the
+#: correlation step, in units of the sparse product's time per entry and vector (ratios measured
+#: in one process at dimension 4608 with 8 vectors: 0.2 and 2.3); Python overhead per expansion, s.
+_R_COMB, _R_CORR, _T_GROUP = 0.2, 2.3, 3e-4
+
+
+@functools.lru_cache(maxsize=None)
+def matvec_seconds() -> float:
+    """Seconds per stored entry and vector of the compiled sparse product, measured once per
+    process (a CSR matrix of dimension 4096 with 25 entries a row in the pattern of a spin
+    Hamiltonian, like a 20-nucleus radical's, 8 vectors; the median of 5 calls), so that the
+    estimates follow the machine and its load.
+
+    Returns
+    -------
+    float
+    """
+    rng = np.random.default_rng(0)
+    d, n_vec = 4096, 8
+    # the pattern of a spin Hamiltonian in a product basis: each row couples to rows a power of
+    # two away (flips of one spin), both ways, plus the diagonal
+    offsets = np.unique(np.concatenate([[0], 2 ** np.arange(12), -(2 ** np.arange(12))]))
+    cols = np.sort((np.arange(d)[:, None] + offsets[None, :]) % d, axis=1)
+    per_row = cols.shape[1]
+    indptr = np.arange(0, d * per_row + 1, per_row, dtype=np.int32)
+    indices = cols.ravel().astype(np.int32)
+    dr, di = rng.normal(size=d * per_row), rng.normal(size=d * per_row)
+    x = [np.ascontiguousarray(rng.normal(size=(d, n_vec))) for _ in range(6)]
+    for _ in range(2):                                               # compiled, caches warm
+        _cheb_step(indptr, indices, dr, di, 2.0, x[0], x[1], -1.0, x[2], x[3], x[4], x[5])
+    times = []
+    for _ in range(5):
+        t0 = time.perf_counter()
+        _cheb_step(indptr, indices, dr, di, 2.0, x[0], x[1], -1.0, x[2], x[3], x[4], x[5])
+        times.append(time.perf_counter() - t0)
+    return float(np.median(times)) / (d * per_row * n_vec)
 
 
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
-               field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL) -> tuple[float, int, str]:
+               field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
+               measured: bool = False) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
     ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
     25`` Chebyshev vectors per expansion of ``m`` steps, :func:`_substeps`) and one correlation
-    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Constants measured
-    on the development machine (``_T_MATVEC`` and the others); one process.
+    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Times in units of
+    the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
+    measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
     Parameters
     ----------
@@ -204,6 +245,8 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
         Field strength in microtesla (for the spectral spread).
     bias_tol : float
         Bound on the deterministic error (sets the time span).
+    measured : bool
+        Use the sparse product's time measured on this machine instead of the fixed constant.
 
     Returns
     -------
@@ -213,6 +256,7 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     from retina.spin.equivalence import groups, multiplicities
 
     k = float(system.k_singlet)
+    t_mv = matvec_seconds() if measured else _T_MATVEC
     spreads = [_model_spread(r, field_uT) for r in system.radicals]
     h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
     n_t = math.log(1.5 / bias_tol) / (k * h) + 1
@@ -230,8 +274,7 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
             nnz = _nnz_row([j for j in choice if j > 0])
             m = _substeps(a, h, nnz)
             n_c = a * h * m + 25
-            per_step = (n_c / m * _T_MATVEC * nnz * dim * vec + _T_COMB * n_c * dim * vec
-                        + _T_CORR * dim * vec + _T_GROUP / m)
+            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
             secs += n_t * per_step
             mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
     # per-draw series of both radicals (R, n_t, 9) and their products
