@@ -356,9 +356,15 @@ def scaling_table(table_max: int) -> None:
                 cells.append(f"{dt:14.3g} {peak / 2**20:7.0f}" if name == "pair" else f"{dt:10.3g} {peak / 2**20:7.0f}")
             else:
                 cells.append(f"{'(not run)':>14s} {'':7s}" if name == "pair" else f"{'(not run)':>10s} {'':7s}")
+        jobs = os.environ.get("RETINA_JOBS")
+        os.environ["RETINA_JOBS"] = "1"                  # estimates for one process, like the runs
         e_fast = engine.estimate_cost(system, 1, "fast-separable")
         e_pair = engine.estimate_cost(system, 1, "separable")
         e_samp = engine.estimate_cost(system, 1, "sampled")
+        if jobs is None:
+            del os.environ["RETINA_JOBS"]
+        else:
+            os.environ["RETINA_JOBS"] = jobs
         print(f"{n:6d} {f'{da}x{db}':>11s} | {cells[0]} | {cells[1]} | {e_fast.seconds:12.3g}s "
               f"{e_pair.seconds:16.3g}s {e_samp.seconds:15.3g}s", flush=True)
     print("    one direction per size, one process; MiB: tracemalloc peak (numpy and LAPACK work arrays); "
