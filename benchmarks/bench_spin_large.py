@@ -10,7 +10,8 @@ Rows
 2. Their agreement on the same directions.  Target: max |difference| <= 1e-8 (the issue's bar).
 3. The whole yield function of the invented 14-nucleus pair (7 + 7 nuclei, dimensions 576 and 576)
    at degree 8 as ``retina yields --degree 8`` computes it (``YieldFunction.from_system``: one
-   Lebedev hemisphere, 200 check directions, 3 antipodal checks), with ``RETINA_JOBS`` worker
+   Lebedev hemisphere, the default check directions (27 at degree 8; 200 until this stop), 3 antipodal
+   checks), with ``RETINA_JOBS`` worker
    processes (default: the number of cores, at most 2).  Target: <= 60 s.  Reference: two bare
    ``scipy.linalg.eigh`` calls of size 576 per direction, timed in this run and multiplied by the
    number of directions (the floor the method's cost is set by).  The pair-sum method's time for
@@ -162,10 +163,10 @@ def bench_pair_sum_vs_fast(quick: bool) -> list[dict]:
 def bench_fourteen(quick: bool) -> list[dict]:
     from retina import sphere
     from retina.spin import engine
-    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
+    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction, default_check_points
 
     system = large_pair((2, 5), (2, 5))
-    check = 20 if quick else 200
+    check = 20 if quick else default_check_points(8)
     n_dirs = len(sphere.grid_for_degree(8)) // 2 + check + min(ANTIPODAL_POINTS, check)
     jobs = os.environ.get("RETINA_JOBS") or str(min(2, os.cpu_count() or 1))
     os.environ["RETINA_JOBS"] = jobs

@@ -197,9 +197,11 @@ def test_from_system_uses_a_hemisphere_and_measures_no_error_for_a_band_limited_
     grid = sphere.grid_for_degree(8)
     assert field == 50.0 and method == "fake-exact"
     h = len(grid) // 2
-    assert dirs.shape == (h + 200 + 3, 3)
-    assert np.all(dirs[: h + 200, 2] > -1e-12)  # one hemisphere only, plus 3 antipodal checks
-    np.testing.assert_array_equal(dirs[h + 200:], -dirs[h:h + 3])
+    c = h // 2                                  # default check directions: half the fit's, >= 16
+    assert c == 27 and yf.provenance["check_points"] == c
+    assert dirs.shape == (h + c + 3, 3)
+    assert np.all(dirs[: h + c, 2] > -1e-12)  # one hemisphere only, plus 3 antipodal checks
+    np.testing.assert_array_equal(dirs[h + c:], -dirs[h:h + 3])
     assert seen[-1] == (dirs.shape[0], dirs.shape[0])
     # Derived: a degree-4 function is fitted exactly at L = 8, so the error at the check points is rounding.
     assert yf.fit_error < 1e-14 and yf.provenance["truncation_error_rms"] < 1e-14
@@ -207,7 +209,7 @@ def test_from_system_uses_a_hemisphere_and_measures_no_error_for_a_band_limited_
     np.testing.assert_allclose(yf(d), fun(d), atol=1e-14)
     p = yf.provenance
     assert p["method"] == "fake-exact" and p["degree"] == 8 and p["grid"] == grid.name
-    assert p["computed_points"] == len(grid) // 2 and p["check_points"] == 200
+    assert p["computed_points"] == len(grid) // 2 and p["check_points"] == c
     assert set(p["versions"]) == {"numpy", "scipy", "numba", "h5py", "retina"}
     assert dt.datetime.fromisoformat(p["date_utc"]).tzinfo is not None
     assert systems_equal(loads_system(p["spin_system_toml"]), system)

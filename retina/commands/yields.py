@@ -67,8 +67,9 @@ def register(subparsers) -> None:
                    default=None, metavar="SE",
                    help="standard error per yield you accept (for example 1e-4): lets auto choose the sampled "
                         "approximation when it is faster, and sizes its random states (default: exact only)")
-    p.add_argument("--check-points", type=whole("a number of directions", low=1, high=MAX_CHECK_POINTS), default=200, metavar="N",
-                   help="independent directions on which the truncation error is measured (default: 200)")
+    p.add_argument("--check-points", type=whole("a number of directions", low=1, high=MAX_CHECK_POINTS), default=None, metavar="N",
+                   help="independent directions on which the truncation error is measured "
+                        "(default: half the fit's directions, at least 16; 27 at degree 8, 108 at degree 16)")
     p.add_argument("--max-memory-gb", type=MAX_MEMORY_GB, default=None, metavar="GB",
                    help="refuse to start when the engine's memory estimate exceeds this")
     p.add_argument("--force", action="store_true", help="overwrite OUT.h5 if it exists")
@@ -168,13 +169,15 @@ def run(args) -> int:
     from retina.commands._spin_args import common_inputs
     from retina.progress import ProgressBar
     from retina.spin import engine
-    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction
+    from retina.yieldfn import ANTIPODAL_POINTS, YieldFunction, default_check_points
 
     t0 = time.perf_counter()
+    system, field, degree, max_bytes = common_inputs(args)
+    if args.check_points is None:
+        args.check_points = default_check_points(degree)
     if not 1 <= args.check_points <= MAX_CHECK_POINTS:
         raise InputError(f"expected 1 to {MAX_CHECK_POINTS:,} directions, got {args.check_points}",
                          key="--check-points")
-    system, field, degree, max_bytes = common_inputs(args)
 
     accuracy = args.accuracy
     if args.method != "auto":

@@ -127,13 +127,13 @@ def yield_key(sc) -> tuple[str, dict]:
         from retina.cache import cache_key
         from retina.spin import engine
         from retina.spin.io import load_system
-        from retina.yieldfn import DEFAULT_CHECK_POINTS
+        from retina.yieldfn import default_check_points
 
         system = load_system(path)
         method = sc["yield"]["method"]
         resolved = engine.choose_method(system) if method == "auto" else method
         f = field_uT(sc)
-        key = cache_key(system, f, degree, resolved, check_points=DEFAULT_CHECK_POINTS)
+        key = cache_key(system, f, degree, resolved, check_points=default_check_points(degree))
         return key, {"kind": kind, "path": str(path), "degree": degree, "field_uT": f, "method": resolved,
                      "system": system}
     digest = hashlib.sha256(Path(path).read_bytes()).hexdigest()
