@@ -719,7 +719,7 @@ class MapView(_Subscriber):
         from vispy import scene
         from retina.figures.marks import MARKS
 
-        from .canvas import scene_canvas
+        from .canvas import StaticLayer, scene_canvas
 
         self.state = state
         self._unsub = []
@@ -811,6 +811,11 @@ class MapView(_Subscriber):
         self.labels.order = 11
         _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
                                                        for v in (ax.axis._text, ax.axis._axis_label_vis)])
+        # the axes and the colour bar's ramp change only with the zoom, the size or the display:
+        # drawn once and kept as pixels (retina_viewer.canvas.StaticLayer); per frame only the
+        # map (image, lines, marks, labels) and the colour bar's end labels are drawn
+        self.static_layer = StaticLayer(self.canvas, dynamic=[self.view, self.cbar_text],
+                                        static=[self.xaxis, self.yaxis, self.cbar])
         self._index = None
         self._receptors = None
         self._marks_key = None
@@ -959,8 +964,9 @@ class MapView(_Subscriber):
         key = (display, tuple(ends), caption)
         if key != self._cbar_key:  # text is laid out again only when it changes
             changed = True
-            cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
-            self.cbar.set_data(cmap(self._ramp).astype(np.float32))
+            if self._cbar_key is None or self._cbar_key[0] != display:  # the ramp: only its colour map
+                cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
+                self.cbar.set_data(cmap(self._ramp).astype(np.float32))
             self.cbar_text.text = [ends[0], ends[1]]
             self.caption_label.setText("across: azimuth from the beak (deg, right +); up: elevation "
                                        f"(deg). Colours: {caption}.")

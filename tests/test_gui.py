@@ -1580,3 +1580,49 @@ def test_shader_comment_stripping_equals_vispys_regular_expression():
     assert gloo_program.re is not re                    # the stand-in is in place
     assert gloo_program.Program(vert, frag).variables == plain
     assert gloo_program.re.sub(r"a", "b", "aa") == "bb"   # any other use goes to re itself
+
+
+def test_map_static_layer_is_the_same_picture_as_drawing_every_visual(window, qapp):
+    """The map's axes and colour-bar ramp are drawn once and kept as pixels
+    (retina_viewer.canvas.StaticLayer); the picture must be the one vispy draws when it draws every
+    visual every frame.  Reference: vispy's own ``SceneCanvas._draw_scene`` (the reference
+    library's one-pass drawing of the same scene), compared pixel by pixel."""
+    view = window.map_view
+    layer = view.static_layer
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+
+    def one_pass():
+        mine = view.canvas.__dict__.pop("_draw_scene")
+        try:
+            return view.render()
+        finally:
+            view.canvas._draw_scene = mine
+
+    for yaw in (0.0, 37.0, 212.0):
+        window.state.yaw_deg = yaw
+        qapp.processEvents()
+        view.render()
+        view.render()                      # kept pixels at the latest (second unchanged static pass)
+        cached = layer.cached_frames
+        got = view.render()
+        assert layer.cached_frames == cached + 1     # drawn from the kept pixels
+        np.testing.assert_array_equal(got, one_pass())
+    # a heading step changes nothing in the static layer: no new capture
+    captures = layer.captures
+    window.state.yaw_deg = 40.0
+    qapp.processEvents()
+    view.render()
+    assert layer.captures == captures
+    # the colour map of the ramp changes with the display: kept pixels dropped, picture still equal
+    window.controls.controls["display"].setCurrentText("yields")
+    qapp.processEvents()
+    got = view.render()
+    np.testing.assert_array_equal(got, one_pass())
+    assert layer.captures == captures                # the first pass after a change keeps nothing
+    view.render()
+    assert layer.captures == captures + 1
+    # a new size: dropped too
+    window.resize(window.width() + 40, window.height())
+    qapp.processEvents()
+    np.testing.assert_array_equal(view.render(), one_pass())
