@@ -783,11 +783,9 @@ class MapView(_Subscriber):
         self.edges = scene.visuals.Line(color=(0.9, 0.9, 0.9, 0.8), width=1.5, parent=root)
         self.horizon = scene.visuals.Line(color=(0.3, 0.95, 0.4, 1.0), width=2.0, parent=root)
         self.marks = {name: MARKS[name] for name in ("beak", "field", "field_opposite")}
-        self.beak = scene.visuals.Markers(parent=root)
-        mk = self.marks["beak"]
-        self.beak.set_data(np.array([[0.0, 0.0]], np.float32), symbol=mk.vispy, size=2 * mk.size_pt,
-                           face_color=mk.face, edge_color=mk.edge, edge_width=mk.edge_width)
-        self.field_marks = scene.visuals.Markers(parent=root)
+        # the beak, B and -B in one Markers visual (rows 0, 1, 2; drawn in that order, as three
+        # visuals would draw them): only the rows of B and -B move with the pose
+        self.point_marks = scene.visuals.Markers(parent=root)
         # every label of a point mark in one Text visual: cardinals, beak, B, -B
         self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
                                          anchor_y="center")
@@ -805,7 +803,7 @@ class MapView(_Subscriber):
             [(-128.0, 0.5), (128.0, 0.5)]), color="w", font_size=8,
             parent=self.cbar_view.scene, anchor_x="center", anchor_y="center")
         self._cbar_key = None
-        for node in (self.edges, self.horizon, self.beak, self.field_marks):
+        for node in (self.edges, self.horizon, self.point_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
         self.labels.order = 11
@@ -894,15 +892,20 @@ class MapView(_Subscriber):
         self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
                                "field_opposite": pos[1]}
         f, o = self.marks["field"], self.marks["field_opposite"]
-        data = getattr(self.field_marks, "_data", None)
-        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
-            data["a_position"][:, :2] = pos  # only the places change
-            self.field_marks._vbo.set_data(data)
-            self.field_marks.update()
+        data = getattr(self.point_marks, "_data", None)
+        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 3:
+            data["a_position"][1:, :2] = pos  # only the places of B and -B change
+            self.point_marks._vbo.set_data(data)
+            self.point_marks.update()
         else:
-            self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
-                                      face_color=np.array([f.face, o.face]),
-                                      edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
+            mk = self.marks["beak"]
+            rows = (mk, f, o)
+            self.point_marks.set_data(np.vstack([[[0.0, 0.0]], pos]).astype(np.float32),
+                                      symbol=np.array([m.vispy for m in rows]),
+                                      size=np.array([2 * m.size_pt for m in rows], np.float32),
+                                      face_color=np.array([m.face for m in rows]),
+                                      edge_color=np.array([m.edge for m in rows]),
+                                      edge_width=np.array([m.edge_width for m in rows], np.float32))
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,

@@ -491,7 +491,7 @@ def test_map_marks_follow_the_field_and_pose_conventions(qapp, file_scenario):
     st.update(yaw_deg=0, pitch_deg=0, roll_deg=0, inclination_deg=66.0, declination_deg=3.0)
     # Derived: B = F (cos I cos D, cos I sin D, sin I) NED; for a level head facing north its
     # head-frame azimuth is D and its elevation -I; -B is the antipode (az D - 180, el +I).
-    pos = v.field_marks._data["a_position"][:, :2]
+    pos = v.point_marks._data["a_position"][1:3, :2]  # rows: beak, B, -B
     np.testing.assert_allclose(pos[0], [3.0, -66.0], atol=1e-4)
     np.testing.assert_allclose(pos[1], [3.0 - 180.0, 66.0], atol=1e-4)
     # Derived: at heading 30 north lies 30 deg to the left (az -30) on the horizon; with the nose
