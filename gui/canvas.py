@@ -352,6 +352,13 @@ class StaticLayer:
         The subtrees whose changes drop the kept pixels (every node outside ``dynamic`` is drawn in
         the static pass; container nodes such as widgets and view boxes, which draw nothing
         themselves here, are drawn in both passes).
+    depth : bool
+        Keep the depth (and stencil) buffer with the colours, for a 3-D scene whose dynamic part is
+        depth-tested against the static one.  A framebuffer whose depth format differs from
+        ``GL_DEPTH24_STENCIL8`` (vispy's ``canvas.render``) is then drawn in both passes.
+    key : callable, optional
+        Returns a value that changes whenever the static layer's picture does without an
+        ``update`` event (a 3-D camera: its state); kept pixels are used only for the same value.
 
     Attributes
     ----------
@@ -361,13 +368,18 @@ class StaticLayer:
         How many frames were drawn from the kept pixels.
     """
 
-    def __init__(self, canvas, dynamic, static):
+    def __init__(self, canvas, dynamic, static, *, depth=False, key=None):
         self.canvas = canvas
         self.dynamic = list(dynamic)
         self.static = list(static)
         self.captures = 0
         self.cached_frames = 0
-        self._fbo = self._rb = self._fbo_size = None  # the kept pixels: a framebuffer of our own
+        self._fbo = self._fbo_size = None  # the kept pixels: a framebuffer of our own
+        self._rbs = []
+        self.depth = bool(depth)
+        self._extra_key = key
+        self._last_key = None     # the frame key of the previous static pass
+        self._refused = set()     # frame keys whose framebuffer OpenGL would not copy
         self._key = None          # (width, height, background) of the kept pixels
         self._dirty = True        # the static layer changed since its last pass
         self._quiet = False       # our own drawing: its events are not changes
@@ -424,44 +436,57 @@ class StaticLayer:
         finally:
             c._drawing = False
 
-    def _copy(self, w, h, to_cache: bool) -> None:
-        """Copy the colour pixels between the framebuffer being drawn and the kept ones
-        (``glBlitFramebuffer`` at the same size and format: a plain copy, no shading)."""
+    def _copy(self, w, h, to_cache: bool) -> bool:
+        """Copy the pixels (colour, and with ``depth`` depth and stencil) between the framebuffer
+        being drawn and the kept ones (``glBlitFramebuffer`` at the same size and format: a plain
+        copy, no shading).  Returns False if OpenGL refused (formats that differ)."""
         from vispy.gloo import gl
 
+        while gl.glGetError():
+            pass
         current = int(gl.glGetParameter(gl.GL_FRAMEBUFFER_BINDING))
         src, dst = (current, self._fbo) if to_cache else (self._fbo, current)
         gl.glBindFramebuffer(_READ_FRAMEBUFFER, src)
         gl.glBindFramebuffer(_DRAW_FRAMEBUFFER, dst)
-        _blit_framebuffer()(0, 0, w, h, 0, 0, w, h, _COLOR_BUFFER_BIT, _NEAREST)
+        mask = _COLOR_BUFFER_BIT | (_DEPTH_STENCIL_BITS if self.depth else 0)
+        _blit_framebuffer()(0, 0, w, h, 0, 0, w, h, mask, _NEAREST)
+        ok = gl.glGetError() == 0
         gl.glBindFramebuffer(gl.GL_FRAMEBUFFER, current)
+        return ok
 
     def _capture(self, w, h, key):
         from vispy.gloo import gl
 
         if self._fbo is None or self._fbo_size != (w, h):
             self._release()
-            self._rb = gl.glCreateRenderbuffer()
-            gl.glBindRenderbuffer(gl.GL_RENDERBUFFER, self._rb)
-            gl.glRenderbufferStorage(gl.GL_RENDERBUFFER, _RGBA8, w, h)
             current = int(gl.glGetParameter(gl.GL_FRAMEBUFFER_BINDING))
             self._fbo = gl.glCreateFramebuffer()
             gl.glBindFramebuffer(gl.GL_FRAMEBUFFER, self._fbo)
-            gl.glFramebufferRenderbuffer(gl.GL_FRAMEBUFFER, gl.GL_COLOR_ATTACHMENT0, gl.GL_RENDERBUFFER,
-                                         self._rb)
+            self._rbs = []
+            for fmt, attachment in ((_RGBA8, gl.GL_COLOR_ATTACHMENT0),) + (
+                    ((_DEPTH24_STENCIL8, _DEPTH_STENCIL_ATTACHMENT),) if self.depth else ()):
+                rb = gl.glCreateRenderbuffer()
+                gl.glBindRenderbuffer(gl.GL_RENDERBUFFER, rb)
+                gl.glRenderbufferStorage(gl.GL_RENDERBUFFER, fmt, w, h)
+                gl.glFramebufferRenderbuffer(gl.GL_FRAMEBUFFER, attachment, gl.GL_RENDERBUFFER, rb)
+                self._rbs.append(rb)
             gl.glBindFramebuffer(gl.GL_FRAMEBUFFER, current)
             self._fbo_size = (w, h)
-        self._copy(w, h, to_cache=True)
-        self._key = key
-        self.captures += 1
+        if self._copy(w, h, to_cache=True):
+            self._key = key
+            self.captures += 1
+        else:  # this framebuffer's depth format differs from ours (canvas.render): not kept
+            self._refused.add(key)
 
     def _release(self):
         from vispy.gloo import gl
 
         if self._fbo is not None:
             gl.glDeleteFramebuffer(self._fbo)
-            gl.glDeleteRenderbuffer(self._rb)
-        self._fbo = self._rb = self._fbo_size = None
+            for rb in self._rbs:
+                gl.glDeleteRenderbuffer(rb)
+        self._fbo = self._fbo_size = None
+        self._rbs = []
 
     def _draw_scene(self, bgcolor=None):
         from vispy.gloo import gl
@@ -472,27 +497,31 @@ class StaticLayer:
         c.set_current()
         c.context.flush_commands()  # vispy queues its GL commands; ours run at once
         _, _, w, h = (int(v) for v in gl.glGetParameter(gl.GL_VIEWPORT))
-        key = (w, h, tuple(np.asarray(getattr(bgcolor, "rgba", bgcolor), float).ravel()))
+        # the framebuffer itself is part of the key: kept pixels go back only where they came from
+        # (canvas.render draws into a framebuffer of its own, whose formats may differ)
+        key = (int(gl.glGetParameter(gl.GL_FRAMEBUFFER_BINDING)), w, h,
+               tuple(np.asarray(getattr(bgcolor, "rgba", bgcolor), float).ravel()),
+               None if self._extra_key is None else self._extra_key())
         self._quiet = True
         try:
             c.context.clear(color=bgcolor, depth=True)
-            if self._enabled and not self._dirty and self._key == key:
-                c.context.flush_commands()  # the clear, before the copy
-                self._copy(w, h, to_cache=False)
+            c.context.flush_commands()  # the clear, before a copy
+            if self._enabled and not self._dirty and self._key == key and self._copy(w, h, to_cache=False):
                 _set_gl_switches(self._after_static)  # as the static pass left them
                 self.cached_frames += 1
             else:
                 self._draw_nodes(skip=set(self.dynamic))
                 self._after_static = _gl_switches()
-                if self._enabled and not self._dirty:
+                self._key = None
+                if self._enabled and not self._dirty and key == self._last_key and key not in self._refused:
+                    # unchanged since the previous static pass: keep its pixels
                     c.context.flush_commands()
                     try:
                         self._capture(w, h, key)
                     except RuntimeError:  # no glBlitFramebuffer: draw both passes every frame
                         self._enabled = False
-                        self._key = None  # unchanged since the previous static pass
-                elif self._key != key:
-                    self._key = None
+                        self._key = None
+                self._last_key = key
                 self._dirty = False
             self._draw_nodes(skip=set(self.static))
         finally:
@@ -501,6 +530,7 @@ class StaticLayer:
 
 _READ_FRAMEBUFFER, _DRAW_FRAMEBUFFER = 0x8CA8, 0x8CA9
 _COLOR_BUFFER_BIT, _NEAREST, _RGBA8 = 0x4000, 0x2600, 0x8058
+_DEPTH_STENCIL_BITS, _DEPTH24_STENCIL8, _DEPTH_STENCIL_ATTACHMENT = 0x0100 | 0x0400, 0x88F0, 0x821A
 _BLIT = []
 
 

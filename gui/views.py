@@ -564,7 +564,7 @@ class HeadView(_Subscriber):
         from vispy import scene
         from vispy.visuals.transforms import MatrixTransform
 
-        from .canvas import scene_canvas
+        from .canvas import StaticLayer, scene_canvas
 
         self.state = state
         self._unsub = []
@@ -581,8 +581,8 @@ class HeadView(_Subscriber):
         seg = []
         for a in g:
             seg += [(a, g[0], z0), (a, g[-1], z0), (g[0], a, z0), (g[-1], a, z0)]
-        scene.visuals.Line(np.array(seg, np.float32), connect="segments", color=(0.5, 0.5, 0.55, 0.5),
-                           parent=root)
+        ground = scene.visuals.Line(np.array(seg, np.float32), connect="segments",
+                                    color=(0.5, 0.5, 0.55, 0.5), parent=root)
         D = DISPLAY_FROM_NED
         origin = np.array([0.0, 0.0, z0])
         cols = ((0.95, 0.35, 0.3, 1), (0.95, 0.8, 0.3, 1), (0.5, 0.9, 0.5, 1))
@@ -597,8 +597,8 @@ class HeadView(_Subscriber):
             ac.append(np.tile(np.array(col, np.float32), (len(verts), 1)))
             label_pos.append(origin + v * 1.25)
         # the three world axes in one mesh (one draw call), each arrow in its own colour
-        scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac), shading=None,
-                           parent=root)
+        world_axes = scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac),
+                                        shading=None, parent=root)
         # one Text visual for all world labels (one glyph atlas, one draw call)
         world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
                                           color=np.array(cols), font_size=11, parent=root)
@@ -619,6 +619,14 @@ class HeadView(_Subscriber):
         bv, bf = _arrow_mesh((3.5, 0.0, 0.8), (8.5, 0.0, 0.0), 1e-3, 8.5, 1.7)
         self.beak = scene.visuals.Mesh(bv, bf, color=(0.95, 0.75, 0.25, 1.0), shading=None,
                                        parent=self.head)
+        # the world (ground grid, axes, their labels) and the field axis are drawn before the head
+        # and change only with the camera or the field: drawn once and kept with their depth
+        # (retina_viewer.canvas.StaticLayer); per frame only the head is drawn
+        cam = self.view.camera
+        self.static_layer = StaticLayer(
+            self.canvas, dynamic=[self.head],
+            static=[ground, world_axes, world_labels, self.field_mesh, self.field_label], depth=True,
+            key=lambda: repr(sorted(cam.get_state().items())))
         self.face_colors = None
         self._receptors = None
         self._sizes = None
