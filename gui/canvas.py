@@ -338,8 +338,9 @@ class StaticLayer:
 
     The kept pixels are dropped (and the static pass drawn again) when any node of the static
     layer reports a change (its ``update`` event: new data, new ticks after a camera change of a
-    linked axis, a new widget size), when the canvas is resized, when the frame's
-    size or background differs (``canvas.render`` at another size), and on :meth:`invalidate`.
+    linked axis, a new widget size), when the canvas is resized, when the frame's framebuffer,
+    size, background or ``key`` differs (``canvas.render`` draws into a framebuffer of its own;
+    the head view's camera turns), and on :meth:`invalidate`.
     Pixels are kept only after a second static pass with no change since the one before, so a
     layer that changes every frame (a zoom drag moving the axes) costs no read-back.
 
@@ -355,7 +356,7 @@ class StaticLayer:
     depth : bool
         Keep the depth (and stencil) buffer with the colours, for a 3-D scene whose dynamic part is
         depth-tested against the static one.  A framebuffer whose depth format differs from
-        ``GL_DEPTH24_STENCIL8`` (vispy's ``canvas.render``) is then drawn in both passes.
+        ``GL_DEPTH24_STENCIL8`` (OpenGL refuses the copy) is drawn in both passes.
     key : callable, optional
         Returns a value that changes whenever the static layer's picture does without an
         ``update`` event (a 3-D camera: its state); kept pixels are used only for the same value.
@@ -363,7 +364,7 @@ class StaticLayer:
     Attributes
     ----------
     captures : int
-        How many times the static layer's pixels were read back.
+        How many times the static layer's pixels were kept (copied after its pass).
     cached_frames : int
         How many frames were drawn from the kept pixels.
     """

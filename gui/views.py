@@ -557,6 +557,8 @@ class HeadView(_Subscriber):
         How many times the canvas has been drawn.
     skipped : int
         How many results changed nothing shown here (no draw; module docstring).
+    static_layer : retina_viewer.canvas.StaticLayer
+        The world and the field axis, kept as pixels with their depth between frames.
     """
 
     def __init__(self, state, *, size=(640, 520), parent=None, follow="state"):
@@ -720,6 +722,10 @@ class MapView(_Subscriber):
         How many times the canvas has been drawn.
     skipped : int
         How many results changed nothing shown here (no draw; module docstring).
+    static_layer : retina_viewer.canvas.StaticLayer
+        The axes and the colour bar's ramp, kept as pixels between frames.
+    point_marks : vispy.scene.visuals.Markers
+        The beak, B and -B marks (rows 0, 1, 2).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
