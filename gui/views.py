@@ -557,6 +557,8 @@ class HeadView(_Subscriber):
         How many times the canvas has been drawn.
     skipped : int
         How many results changed nothing shown here (no draw; module docstring).
+    static_layer : retina_viewer.canvas.StaticLayer
+        The world and the field axis, kept as pixels with their depth between frames.
     """
 
     def __init__(self, state, *, size=(640, 520), parent=None, follow="state"):
@@ -564,7 +566,7 @@ class HeadView(_Subscriber):
         from vispy import scene
         from vispy.visuals.transforms import MatrixTransform
 
-        from .canvas import scene_canvas
+        from .canvas import StaticLayer, scene_canvas
 
         self.state = state
         self._unsub = []
@@ -581,8 +583,8 @@ class HeadView(_Subscriber):
         seg = []
         for a in g:
             seg += [(a, g[0], z0), (a, g[-1], z0), (g[0], a, z0), (g[-1], a, z0)]
-        scene.visuals.Line(np.array(seg, np.float32), connect="segments", color=(0.5, 0.5, 0.55, 0.5),
-                           parent=root)
+        ground = scene.visuals.Line(np.array(seg, np.float32), connect="segments",
+                                    color=(0.5, 0.5, 0.55, 0.5), parent=root)
         D = DISPLAY_FROM_NED
         origin = np.array([0.0, 0.0, z0])
         cols = ((0.95, 0.35, 0.3, 1), (0.95, 0.8, 0.3, 1), (0.5, 0.9, 0.5, 1))
@@ -597,8 +599,8 @@ class HeadView(_Subscriber):
             ac.append(np.tile(np.array(col, np.float32), (len(verts), 1)))
             label_pos.append(origin + v * 1.25)
         # the three world axes in one mesh (one draw call), each arrow in its own colour
-        scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac), shading=None,
-                           parent=root)
+        world_axes = scene.visuals.Mesh(np.vstack(av), np.vstack(af), vertex_colors=np.vstack(ac),
+                                        shading=None, parent=root)
         # one Text visual for all world labels (one glyph atlas, one draw call)
         world_labels = scene.visuals.Text(["N", "E", "down"], pos=np.array(label_pos),
                                           color=np.array(cols), font_size=11, parent=root)
@@ -619,6 +621,14 @@ class HeadView(_Subscriber):
         bv, bf = _arrow_mesh((3.5, 0.0, 0.8), (8.5, 0.0, 0.0), 1e-3, 8.5, 1.7)
         self.beak = scene.visuals.Mesh(bv, bf, color=(0.95, 0.75, 0.25, 1.0), shading=None,
                                        parent=self.head)
+        # the world (ground grid, axes, their labels) and the field axis are drawn before the head
+        # and change only with the camera or the field: drawn once and kept with their depth
+        # (retina_viewer.canvas.StaticLayer); per frame only the head is drawn
+        cam = self.view.camera
+        self.static_layer = StaticLayer(
+            self.canvas, dynamic=[self.head],
+            static=[ground, world_axes, world_labels, self.field_mesh, self.field_label], depth=True,
+            key=lambda: repr(sorted(cam.get_state().items())))
         self.face_colors = None
         self._receptors = None
         self._sizes = None
@@ -712,6 +722,10 @@ class MapView(_Subscriber):
         How many times the canvas has been drawn.
     skipped : int
         How many results changed nothing shown here (no draw; module docstring).
+    static_layer : retina_viewer.canvas.StaticLayer
+        The axes and the colour bar's ramp, kept as pixels between frames.
+    point_marks : vispy.scene.visuals.Markers
+        The beak, B and -B marks (rows 0, 1, 2).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
@@ -719,7 +733,7 @@ class MapView(_Subscriber):
         from vispy import scene
         from retina.figures.marks import MARKS
 
-        from .canvas import scene_canvas
+        from .canvas import StaticLayer, scene_canvas
 
         self.state = state
         self._unsub = []
@@ -783,11 +797,9 @@ class MapView(_Subscriber):
         self.edges = scene.visuals.Line(color=(0.9, 0.9, 0.9, 0.8), width=1.5, parent=root)
         self.horizon = scene.visuals.Line(color=(0.3, 0.95, 0.4, 1.0), width=2.0, parent=root)
         self.marks = {name: MARKS[name] for name in ("beak", "field", "field_opposite")}
-        self.beak = scene.visuals.Markers(parent=root)
-        mk = self.marks["beak"]
-        self.beak.set_data(np.array([[0.0, 0.0]], np.float32), symbol=mk.vispy, size=2 * mk.size_pt,
-                           face_color=mk.face, edge_color=mk.edge, edge_width=mk.edge_width)
-        self.field_marks = scene.visuals.Markers(parent=root)
+        # the beak, B and -B in one Markers visual (rows 0, 1, 2; drawn in that order, as three
+        # visuals would draw them): only the rows of B and -B move with the pose
+        self.point_marks = scene.visuals.Markers(parent=root)
         # every label of a point mark in one Text visual: cardinals, beak, B, -B
         self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
                                          anchor_y="center")
@@ -805,12 +817,17 @@ class MapView(_Subscriber):
             [(-128.0, 0.5), (128.0, 0.5)]), color="w", font_size=8,
             parent=self.cbar_view.scene, anchor_x="center", anchor_y="center")
         self._cbar_key = None
-        for node in (self.edges, self.horizon, self.beak, self.field_marks):
+        for node in (self.edges, self.horizon, self.point_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
         self.labels.order = 11
         _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
                                                        for v in (ax.axis._text, ax.axis._axis_label_vis)])
+        # the axes and the colour bar's ramp change only with the zoom, the size or the display:
+        # drawn once and kept as pixels (retina_viewer.canvas.StaticLayer); per frame only the
+        # map (image, lines, marks, labels) and the colour bar's end labels are drawn
+        self.static_layer = StaticLayer(self.canvas, dynamic=[self.view, self.cbar_text],
+                                        static=[self.xaxis, self.yaxis, self.cbar])
         self._index = None
         self._receptors = None
         self._marks_key = None
@@ -889,15 +906,20 @@ class MapView(_Subscriber):
         self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
                                "field_opposite": pos[1]}
         f, o = self.marks["field"], self.marks["field_opposite"]
-        data = getattr(self.field_marks, "_data", None)
-        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
-            data["a_position"][:, :2] = pos  # only the places change
-            self.field_marks._vbo.set_data(data)
-            self.field_marks.update()
+        data = getattr(self.point_marks, "_data", None)
+        if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 3:
+            data["a_position"][1:, :2] = pos  # only the places of B and -B change
+            self.point_marks._vbo.set_data(data)
+            self.point_marks.update()
         else:
-            self.field_marks.set_data(pos, symbol=f.vispy, size=2 * f.size_pt,
-                                      face_color=np.array([f.face, o.face]),
-                                      edge_color=np.array([f.edge, o.edge]), edge_width=f.edge_width)
+            mk = self.marks["beak"]
+            rows = (mk, f, o)
+            self.point_marks.set_data(np.vstack([[[0.0, 0.0]], pos]).astype(np.float32),
+                                      symbol=np.array([m.vispy for m in rows]),
+                                      size=np.array([2 * m.size_pt for m in rows], np.float32),
+                                      face_color=np.array([m.face for m in rows]),
+                                      edge_color=np.array([m.edge for m in rows]),
+                                      edge_width=np.array([m.edge_width for m in rows], np.float32))
         anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
@@ -959,8 +981,9 @@ class MapView(_Subscriber):
         key = (display, tuple(ends), caption)
         if key != self._cbar_key:  # text is laid out again only when it changes
             changed = True
-            cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
-            self.cbar.set_data(cmap(self._ramp).astype(np.float32))
+            if self._cbar_key is None or self._cbar_key[0] != display:  # the ramp: only its colour map
+                cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
+                self.cbar.set_data(cmap(self._ramp).astype(np.float32))
             self.cbar_text.text = [ends[0], ends[1]]
             self.caption_label.setText("across: azimuth from the beak (deg, right +); up: elevation "
                                        f"(deg). Colours: {caption}.")

@@ -491,7 +491,7 @@ def test_map_marks_follow_the_field_and_pose_conventions(qapp, file_scenario):
     st.update(yaw_deg=0, pitch_deg=0, roll_deg=0, inclination_deg=66.0, declination_deg=3.0)
     # Derived: B = F (cos I cos D, cos I sin D, sin I) NED; for a level head facing north its
     # head-frame azimuth is D and its elevation -I; -B is the antipode (az D - 180, el +I).
-    pos = v.field_marks._data["a_position"][:, :2]
+    pos = v.point_marks._data["a_position"][1:3, :2]  # rows: beak, B, -B
     np.testing.assert_allclose(pos[0], [3.0, -66.0], atol=1e-4)
     np.testing.assert_allclose(pos[1], [3.0 - 180.0, 66.0], atol=1e-4)
     # Derived: at heading 30 north lies 30 deg to the left (az -30) on the horizon; with the nose
@@ -1580,3 +1580,94 @@ def test_shader_comment_stripping_equals_vispys_regular_expression():
     assert gloo_program.re is not re                    # the stand-in is in place
     assert gloo_program.Program(vert, frag).variables == plain
     assert gloo_program.re.sub(r"a", "b", "aa") == "bb"   # any other use goes to re itself
+
+
+def _frame(view, one_pass=False):
+    """A frame of ``view`` drawn as the window draws it (into the canvas's own framebuffer,
+    retina_viewer.canvas), as RGBA ``(H, W, 4)``; ``one_pass``: drawn by vispy's own
+    ``SceneCanvas._draw_scene`` instead of the view's static layer."""
+    from PyQt6.QtGui import QImage
+
+    mine = view.canvas.__dict__.pop("_draw_scene") if one_pass else None
+    try:
+        img = view.canvas.native.render_image().convertToFormat(QImage.Format.Format_RGBA8888)
+    finally:
+        if mine is not None:
+            view.canvas._draw_scene = mine
+    ptr = img.constBits()
+    ptr.setsize(img.sizeInBytes())
+    rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine() // 4, 4)
+    return rows[:, :img.width()].copy()
+
+
+def test_map_static_layer_is_the_same_picture_as_drawing_every_visual(window, qapp):
+    """The map's axes and colour-bar ramp are drawn once and kept as pixels
+    (retina_viewer.canvas.StaticLayer); the picture must be the one vispy draws when it draws every
+    visual every frame.  Reference: vispy's own ``SceneCanvas._draw_scene`` (the reference
+    library's one-pass drawing of the same scene), compared pixel by pixel, in the framebuffer the
+    window shows; ``render()`` (vispy's own framebuffer) too."""
+    view = window.map_view
+    layer = view.static_layer
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+
+    for yaw in (0.0, 37.0, 212.0):
+        window.state.yaw_deg = yaw
+        qapp.processEvents()
+        _frame(view)
+        _frame(view)                      # kept pixels at the latest (second unchanged static pass)
+        cached = layer.cached_frames
+        got = _frame(view)
+        assert layer.cached_frames == cached + 1     # drawn from the kept pixels
+        np.testing.assert_array_equal(got, _frame(view, one_pass=True))
+    # a heading step changes nothing in the static layer: no new capture
+    captures = layer.captures
+    window.state.yaw_deg = 40.0
+    qapp.processEvents()
+    _frame(view)
+    assert layer.captures == captures
+    # the colour map of the ramp changes with the display: kept pixels dropped, picture still equal
+    window.controls.controls["display"].setCurrentText("yields")
+    qapp.processEvents()
+    got = _frame(view)
+    np.testing.assert_array_equal(got, _frame(view, one_pass=True))
+    _frame(view)
+    _frame(view)
+    assert layer.captures == captures + 1            # kept again once, after the change
+    # a new size: dropped too
+    window.resize(window.width() + 40, window.height())
+    qapp.processEvents()
+    np.testing.assert_array_equal(_frame(view), _frame(view, one_pass=True))
+    mine = view.canvas.__dict__.pop("_draw_scene")
+    try:
+        reference = view.render()
+    finally:
+        view.canvas._draw_scene = mine
+    np.testing.assert_array_equal(view.render(), reference)
+
+
+def test_head_static_layer_keeps_depth_and_is_the_same_picture(window, qapp):
+    """The head view keeps the world and the field axis as pixels with their depth
+    (retina_viewer.canvas.StaticLayer, depth=True); the picture must be the one vispy draws when it
+    draws every visual every frame (reference: vispy's ``SceneCanvas._draw_scene``), also after a
+    camera turn and a field change, which change the kept layer."""
+    view = window.head_view
+    layer = view.static_layer
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+
+    for change in ({"yaw_deg": 25.0}, {"yaw_deg": 140.0}, {"inclination_deg": 20.0}):
+        window.state.update(**change)
+        qapp.processEvents()
+        _frame(view)
+        _frame(view)
+        cached = layer.cached_frames
+        got = _frame(view)
+        assert layer.cached_frames == cached + 1
+        np.testing.assert_array_equal(got, _frame(view, one_pass=True))
+    view.view.camera.azimuth = view.view.camera.azimuth + 30.0   # the camera: a new key
+    qapp.processEvents()
+    captures = layer.captures
+    np.testing.assert_array_equal(_frame(view), _frame(view, one_pass=True))
+    _frame(view)
+    assert layer.captures == captures + 1
