@@ -156,6 +156,46 @@ def test_scan_filmstrip_and_animation(tmp_path, retina_points):
     assert not list(tmp_path.glob(".*part")) and not list(tmp_path.glob(".scan.*"))  # no temporaries left
 
 
+def test_animation_blitting_matches_full_redraws(retina_points):
+    # The GIF's frames redraw only what changes (the colour meshes, the artists above them, the
+    # marks and the title) onto a saved background.  Reference: the same frames drawn in full by
+    # matplotlib's Agg canvas, one complete draw per frame; blitting draws the same artists in
+    # the same order, so the pixels agree exactly.
+    from retina.figures.visual_fields import scan_frames
+
+    vis, eye = retina_points
+    yaw = np.linspace(-60, 60, 5)
+    B = b_head_for(yaw)
+    mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
+    fast = scan_frames(vis, eye, mod, yaw, B, dpi=50)
+    full = scan_frames(vis, eye, mod, yaw, B, dpi=50, blit=False)
+    assert len(fast) == len(full) == yaw.size
+    for a, b in zip(fast, full):
+        assert a.shape == b.shape and np.array_equal(a, b)
+    assert not np.array_equal(fast[0], fast[-1])        # the frames do change
+
+
+def test_animation_palette_is_shared_and_keeps_white():
+    # One palette for every frame (no colour flicker), pure white kept exactly, and each pixel
+    # mapped to a near colour: 255 octree colours for 360 colours of smooth ramps leave every
+    # pixel within a few levels per channel (12 of 255 allowed; common practice, no source).
+    from retina.figures.visual_fields import _palette_frames
+
+    x = np.linspace(0.0, 1.0, 120)
+    frames = []
+    for k in range(3):
+        f = np.full((40, 120, 3), 255, np.uint8)
+        ramp = np.stack([200 * x, 60 + 100 * x * (k + 1) / 3, 220 - 200 * x], axis=1)
+        f[10:30] = np.round(ramp).astype(np.uint8)[None]
+        frames.append(f)
+    ims = _palette_frames(frames)
+    assert len({tuple(im.getpalette()) for im in ims}) == 1
+    for im, f in zip(ims, frames):
+        a = np.asarray(im.convert("RGB")).astype(int)
+        assert (a[:10] == 255).all()
+        assert np.abs(a - f).max() <= 12
+
+
 def test_precision_and_disorder(tmp_path):
     n = np.logspace(0, 5, 11)
     F.precision_curves(n, {"single pose": 30 / np.sqrt(n), "scan": 10 / np.sqrt(n)},
