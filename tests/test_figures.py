@@ -220,6 +220,55 @@ def test_trial_histograms_mean_vector(tmp_path):
         assert f"{lab}: n = 60, mean {mu:.1f} deg" in fig.retina_caption
 
 
+def _tight_reference(fig, path, dpi):
+    # matplotlib's own tight save: a layout draw, then a draw shifted by the box's corner
+    fig.savefig(path, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.03)
+    return np.asarray(Image.open(path).convert("RGB")).astype(int)
+
+
+def test_png_from_one_draw_matches_matplotlib_tight_save(tmp_path):
+    # save_figure crops the PNG out of one full Agg draw and reuses that box for the SVG.
+    # Reference: matplotlib's savefig(bbox_inches="tight").  The crop may differ from it only by
+    # the sub-pixel part of the shift: same size within a pixel, and only antialiased edges differ.
+    from retina.figures._base import new_figure, style
+
+    with style():
+        fig = new_figure(3.5, 2.4)
+        ax = fig.add_subplot()
+        x = np.linspace(0, 10, 200)
+        ax.plot(x, np.sin(x))
+        ax.set_xlabel("x label")
+        ax.set_title("a title")
+    F.save_figure(fig, tmp_path / "one", formats=("png", "svg"), dpi=150)
+    ours = np.asarray(Image.open(tmp_path / "one.png").convert("RGB")).astype(int)
+    ref = _tight_reference(fig, tmp_path / "ref.png", 150)
+    assert abs(ours.shape[0] - ref.shape[0]) <= 1 and abs(ours.shape[1] - ref.shape[1]) <= 1
+    h, w = min(ours.shape[0], ref.shape[0]), min(ours.shape[1], ref.shape[1])
+    d = np.abs(ours[:h, :w] - ref[:h, :w]).max(axis=2)
+    assert (d > 64).mean() < 0.01 and d.mean() < 2.0
+    assert Image.open(tmp_path / "one.png").info["Software"] == "retina-compass"
+    assert abs(Image.open(tmp_path / "one.png").info["dpi"][0] - 150) < 0.5
+    svg = (tmp_path / "one.svg").read_text()
+    assert "<svg" in svg
+
+
+def test_png_of_a_figure_with_an_artist_outside_it_keeps_the_artist(tmp_path):
+    # A text placed beyond the figure's right edge: the tight box leaves the figure, so there is
+    # nothing to crop and the PNG is saved the usual way (reference: matplotlib's tight save).
+    from retina.figures._base import new_figure, style
+
+    with style():
+        fig = new_figure(2.0, 1.5)
+        ax = fig.add_subplot()
+        ax.plot([0, 1], [0, 1])
+        fig.text(1.3, 0.5, "outside")
+    F.save_figure(fig, tmp_path / "out", formats=("png",), dpi=100)
+    ours = np.asarray(Image.open(tmp_path / "out.png").convert("RGB"))
+    assert ours.shape[1] > 2.0 * 100 + 10                # wider than the figure: the text is in
+    ref = _tight_reference(fig, tmp_path / "ref.png", 100)
+    assert ours.shape == ref.shape
+
+
 def test_pdf_metadata_and_errors(tmp_path):
     fig = F.precision_curves([1.0, 10.0], {"a": [10.0, 3.0]})
     paths = F.save_figure(fig, tmp_path / "x.png", formats=("pdf",))
