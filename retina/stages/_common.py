@@ -198,12 +198,10 @@ class GridModel:
 
     def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
         """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""
-        from retina.readout.scans import scan_information_arrays
+        from retina.readout.scans import scan_information_grid
 
         sh = np.round(np.asarray(offsets_deg) * GRID / 360.0).astype(int)
-        P = sh.size
-        idx = (np.arange(GRID)[:, None] + sh[None, :]) % GRID
-        return np.array([scan_information_arrays(self.lam1[r] / P, self.dlam1[r] / P, nuisance) for r in idx])
+        return scan_information_grid(self.lam1, self.dlam1, sh, nuisance)
 
 
 def grid_offsets(offsets_deg) -> np.ndarray:
