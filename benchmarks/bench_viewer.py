@@ -14,9 +14,10 @@ Cases (every reference is measured in the same run, on the same machine):
    (``PatternComputer.compute`` on this thread).  Also the number of draws per step and view
    (target: exactly one).  Targets: median <= 33 ms, 95th percentile <= 50 ms.
 2. First complete picture: from ``show()`` until both views have drawn the first pattern (text
-   glyphs included).  Reference: the worker's bare computation of that first request.
-   Target <= 2 s.  Also how many requests were computed at start-up (target: one; nothing for
-   the defaults).
+   glyphs included), twice: with an empty glyph cache (a first start on a machine:
+   :mod:`retina_viewer.glyphs`) and with the glyphs on disk (every later start; the target's
+   row).  Reference: the worker's bare computation of that first request.  Target <= 2 s.  Also
+   how many requests were computed at start-up (target: one; nothing for the defaults).
 3. Longest event-loop stall while a yield function is recomputed (the bundled scenario in quick
    settings, yield function from its spin system, intensity changed): a 5 ms timer on the GUI
    thread records the longest gap between its ticks.  Reference: the same computation on a
@@ -32,10 +33,16 @@ Cases (every reference is measured in the same run, on the same machine):
    step; and the empty frame of a window of the same size holding an OpenGL widget (vispy's own
    Qt canvas, composited and swapped as a whole by OpenGL for any change) against the same
    window without it (the viewer draws its canvases off screen: :mod:`retina_viewer.canvas`).
+   Then each view's redraw part by part: its scene drawn and rasterised (against an empty frame
+   of the same size), the read-back into a QImage and the paint into the window; and the head
+   view's scene with its receptors drawn by vispy's ``Markers`` (the visual used before) against
+   the flat points it now draws.
 
 Also printed: the GUI thread's own CPU time per drag step (``time.thread_time``), which a shared
 machine disturbs far less than the wall time; the rest of a step is spent in Mesa's renderer
-threads, the X server and the worker.
+threads, the X server and the worker.  While waiting, the benchmark's event loop sleeps until
+the next event, as an application's does (it does not poll: polling would spend the GUI
+thread's CPU and take a core from the renderer and the worker on a 2-core machine).
 
 A view has "drawn" when its canvas has rendered the scene and painted it into the window
 (:mod:`retina_viewer.canvas`).  ``RETINA_VIEWER_CANVAS=widget`` runs the same cases with vispy's
@@ -56,6 +63,7 @@ import tempfile
 import threading
 import time
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 
@@ -66,12 +74,30 @@ from _rows import print_rows  # noqa: E402
 
 
 def _pump(app, cond, timeout=60.0):
+    """Run the event loop until ``cond()``, as an application's loop runs: it sleeps until an
+    event arrives (a result from the worker, a paint, a timer) instead of polling, so that the
+    waiting costs the GUI thread no CPU and leaves the cores to the worker and the software
+    renderer's threads.  A 5 ms timer bounds every wait (and so the timeout's precision)."""
+    from PyQt6.QtCore import QEventLoop, QTimer
+
+    wake = QTimer()
+    wake.start(5)
+    flags = QEventLoop.ProcessEventsFlag.AllEvents | QEventLoop.ProcessEventsFlag.WaitForMoreEvents
     end = time.perf_counter() + timeout
-    while not cond():
-        if time.perf_counter() > end:
-            raise TimeoutError("the viewer did not finish in time")
-        app.processEvents()
+    try:
+        while not cond():
+            if time.perf_counter() > end:
+                raise TimeoutError("the viewer did not finish in time")
+            app.processEvents(flags)
+    finally:
+        wake.stop()
     return True
+
+
+def _idle(app, seconds):
+    """Run the event loop (sleeping between events, as :func:`_pump`) for ``seconds``."""
+    end = time.perf_counter() + seconds
+    _pump(app, lambda: time.perf_counter() >= end, timeout=seconds + 60.0)
 
 
 class _Frames:
@@ -92,6 +118,70 @@ class _Frames:
         if yaw is not None and abs(res.request.yaw_deg - yaw) > 1e-9:
             return False
         return self.win.head_view.draws > self.mark[0] and self.win.map_view.draws > self.mark[1]
+
+
+def _median_ms(fn, n=20):
+    """Median wall and process-CPU time (ms) of ``fn()`` over ``n`` calls."""
+    wall, cpu = [], []
+    for _ in range(n):
+        t0, c0 = time.perf_counter(), time.process_time()
+        fn()
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return float(np.median(wall)) * 1e3, float(np.median(cpu)) * 1e3
+
+
+def _floor_parts(view, n=20):
+    """What one redraw of a view costs, part by part (ms, wall and process CPU): its scene drawn
+    and rasterised (``glFinish``), an empty frame of the same size (clear only), the read-back
+    into a QImage, and the paint of that image into the window (Qt raster + X server)."""
+    from vispy.gloo import gl
+
+    b, canvas = view.canvas.native, view.canvas
+
+    def begin():
+        b._make_current()
+        b._ensure_fbo().bind()
+        canvas.set_current()
+
+    def scene():
+        begin()
+        canvas.events.draw(region=None)
+        gl.glFinish()
+
+    def empty():
+        begin()
+        canvas.context.clear(color=(0.1, 0.1, 0.1, 1.0))
+        gl.glFinish()
+
+    scene()
+    out = {"scene": _median_ms(scene, n), "empty": _median_ms(empty, n),
+           "readback": _median_ms(lambda: b._fbo.toImage(True), n)}
+    img = b.render_image()
+    b.render_image = lambda: img  # paint only: the image is already there
+    try:
+        out["paint"] = _median_ms(b.repaint, n)
+    finally:
+        del b.render_image
+    return out
+
+
+def _markers_scene_ms(view, n=20):
+    """The head view's scene with its receptors drawn by vispy's ``Markers`` visual (the visual
+    the viewer used before) instead of its flat points: same places, sizes and colours."""
+    from vispy import scene as vscene
+
+    pts = view.markers
+    mk = vscene.visuals.Markers(scaling="scene", parent=pts.parent)
+    mk.set_gl_state("translucent", depth_test=True)
+    mk.set_data(pts.positions, face_color=pts.colors, edge_color=pts.colors, edge_width=0.0,
+                size=pts.sizes)
+    pts.visible = False
+    try:
+        return _floor_parts(view, n)["scene"]
+    finally:
+        mk.parent = None
+        pts.visible = True
 
 
 def _window_frame_floor(app, width, height, n=30):
@@ -171,14 +261,32 @@ def _run(args) -> int:
         eyes = [dict(e, n_receptors=n_eye) for e in demo["eyes"]]
         sc = demo.replace(eyes=eyes, **{"yield": {"system": None, "file": str(yf_path)}})
 
-        # 2. first complete picture (and the start-up requests)
-        win = MainWindow(sc)
-        win.resize(1560, 860)
-        frames = _Frames(win)
-        t0 = time.perf_counter()
-        win.show()
-        _pump(app, frames.drawn)
-        t_first = time.perf_counter() - t0
+        # 2. first complete picture (and the start-up requests): with an empty glyph cache (the
+        # first start on a machine), then again with the glyphs on disk (every later start)
+        try:
+            from retina_viewer import glyphs
+        except ImportError:  # a viewer without the glyph cache (for comparisons)
+            glyphs = SimpleNamespace(STATS={"made": 0, "disk": 0}, clear_memory=lambda: None)
+
+        os.environ["RETINA_VIEWER_GLYPH_CACHE"] = str(tmp / "glyphs")
+        glyphs.clear_memory()
+        t_cold = None
+        for start in ("cold", "warm"):
+            if start == "warm":
+                win.close()
+                win.deleteLater()
+                app.processEvents()
+                glyphs.clear_memory()  # as a new process: the glyphs come from the disk cache
+            win = MainWindow(sc)
+            win.resize(1560, 860)
+            frames = _Frames(win)
+            t0, p0 = time.perf_counter(), time.process_time()
+            win.show()
+            _pump(app, frames.drawn)
+            t_first, p_first = time.perf_counter() - t0, time.process_time() - p0
+            if start == "cold":
+                t_cold, p_cold, made = t_first, p_first, glyphs.STATS["made"]
+        from_disk = glyphs.STATS["disk"]
         first_req = win.state.result.request
         n_start = len(win.worker.worker.computed)
         ref = PatternComputer()
@@ -191,19 +299,18 @@ def _run(args) -> int:
         for _ in range(20):
             app.processEvents()
         y0 = win.state.yaw_deg
-        times, draws, cpu = [], [], []
+        times, draws, cpu, pcpu = [], [], [], []
         for i in range(1, n_steps + 1):
             target = (y0 + i) % 360.0
             h0, m0 = win.head_view.draws, win.map_view.draws
-            t0, c0 = time.perf_counter(), time.thread_time()
+            t0, c0, p0 = time.perf_counter(), time.thread_time(), time.process_time()
             ctrl.slider.setValue(ctrl.to_ticks(target))
             _pump(app, lambda: frames.drawn(target))
             times.append(time.perf_counter() - t0)
             cpu.append(time.thread_time() - c0)
+            pcpu.append(time.process_time() - p0)
             # let a second, unwanted draw show up if there is one
-            t_settle = time.perf_counter() + 0.01
-            while time.perf_counter() < t_settle:
-                app.processEvents()
+            _idle(app, 0.01)
             draws.append((win.head_view.draws - h0, win.map_view.draws - m0))
         times = np.array(times) * 1e3
         draws = np.array(draws)
@@ -230,6 +337,12 @@ def _run(args) -> int:
                          passed=True,
                          note="reference: the wall time per step; the rest is the software renderer, the X "
                               "server and the worker (and, on a shared machine, waiting for a core)"))
+        pcpu = np.array(pcpu) * 1e3
+        rows.append(dict(name="process CPU per drag step, all threads (median)",
+                         measured=f"{np.median(pcpu):.1f} ms", reference=f"{np.median(t_ref):.1f} ms",
+                         ratio=f"{np.median(pcpu) / np.median(t_ref):.2f}", target="(info)", passed=True,
+                         note="GUI thread + worker + the software renderer's threads (not the X server); "
+                              "what a step costs whatever the load; reference: the worker's bare computation"))
         per_view = draws.mean(axis=0)
         rows.append(dict(name="draws per step (head view, map view)",
                          measured=f"{per_view[0]:.2f}, {per_view[1]:.2f}", reference="1, 1",
@@ -238,7 +351,13 @@ def _run(args) -> int:
         rows.append(dict(name="first complete picture after show()", measured=f"{t_first:.2f} s",
                          reference=f"{t_first_ref:.2f} s", ratio=f"{t_first / t_first_ref:.2f}",
                          target="<= 2 s", passed=t_first <= 2.0 or args.quick,
-                         note="reference: the worker's bare computation of the first request"))
+                         note=f"reference: the worker's bare computation of the first request; glyphs "
+                              f"from the disk cache ({from_disk} read), as at every start but the first; "
+                              f"process CPU (all threads) {p_first:.2f} s"))
+        rows.append(dict(name="first picture, empty glyph cache (first start)", measured=f"{t_cold:.2f} s",
+                         reference=f"{t_first:.2f} s", ratio=f"{t_cold / t_first:.2f}", target="(info)",
+                         passed=True, note=f"{made} glyphs made (freetype + distance field); reference: the "
+                                           f"same with the glyphs on disk; process CPU (all threads) {p_cold:.2f} s"))
         rows.append(dict(name="requests computed at start-up", measured=str(n_start), reference="1",
                          ratio=f"{n_start:.0f}", target="= 1", passed=n_start == 1))
 
@@ -258,6 +377,25 @@ def _run(args) -> int:
                          passed=True,
                          note="reference: the heading drag's median step; the floor is what a step "
                               "costs without any new pattern"))
+        for label, view in (("head", win.head_view), ("map", win.map_view)):
+            if not hasattr(view.canvas.native, "render_image"):
+                break  # RETINA_VIEWER_CANVAS=widget: vispy's own canvas, not drawn off screen
+            parts = _floor_parts(view)
+            w, h = view.canvas.native.width(), view.canvas.native.height()
+            sc_w, sc_c = parts["scene"]
+            rows.append(dict(name=f"{label} view: scene drawn + rasterised", measured=f"{sc_w:.1f} ms",
+                             reference=f"{parts['empty'][0]:.1f} ms",
+                             ratio=f"{sc_w / max(parts['empty'][0], 1e-3):.0f}", target="(info)", passed=True,
+                             note=f"{w} x {h} px; process CPU {sc_c:.1f} ms; reference: an empty frame of that "
+                                  f"size (clear + finish); read-back into a QImage {parts['readback'][0]:.1f} ms, "
+                                  f"paint into the window {parts['paint'][0]:.1f} ms"))
+            if label == "head" and hasattr(view.markers, "positions"):
+                mk_w, mk_c = _markers_scene_ms(view)
+                rows.append(dict(name="head view, receptors as vispy Markers", measured=f"{mk_w:.1f} ms",
+                                 reference=f"{sc_w:.1f} ms", ratio=f"{mk_w / max(sc_w, 1e-3):.2f}",
+                                 target="(info)", passed=True,
+                                 note=f"process CPU {mk_c:.1f} ms; reference: the same scene with the flat "
+                                      "points the viewer draws (retina_viewer.views.receptor_points_class)"))
         gl_ms, raster_ms = _window_frame_floor(app, win.width(), win.height())
         rows.append(dict(name="empty frame, window with a QOpenGLWidget", measured=f"{gl_ms:.1f} ms",
                          reference=f"{raster_ms:.1f} ms", ratio=f"{gl_ms / max(raster_ms, 1e-3):.1f}",

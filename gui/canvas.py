@@ -26,13 +26,16 @@ Contract (owned here)
   once.  A canvas asked to redraw while another canvas of its window still waits for its paint
   asks again 1 ms later, after that paint: the event loop runs in between (input, timers), and
   its longest stall is one scene, not two.  Each canvas still draws once per change.
+- Making a canvas installs :class:`_ShaderParseRe` in ``vispy.gloo.program``: vispy's
+  comment stripping of shader code without its backtracking regular expression (the same text,
+  :func:`strip_line_comments`; about a second of CPU at start-up for the viewer's shaders).
 """
 
 from __future__ import annotations
 
 import time
 
-__all__ = ["scene_canvas", "OffscreenCanvasBackend", "offscreen_app"]
+__all__ = ["scene_canvas", "OffscreenCanvasBackend", "offscreen_app", "strip_line_comments"]
 
 _APP = None
 _CLASS = None
@@ -205,9 +208,54 @@ def _make_backend_class():
     return OffscreenCanvasBackend
 
 
+def strip_line_comments(code: str) -> str:
+    """``code`` with every line cut at its last ``//``: what vispy's shader parser does with
+    ``re.sub(r'(.*)(//.*)', r'\1', code, flags=re.M)`` (the greedy group keeps everything
+    before the last ``//`` of a line), without the regular expression's backtracking.
+
+    Parameters
+    ----------
+    code : str
+        GLSL source.
+
+    Returns
+    -------
+    str
+    """
+    return "\n".join(ln[:ln.rfind("//")] if "//" in ln else ln for ln in code.split("\n"))
+
+
+class _ShaderParseRe:
+    """Stands in for the ``re`` module inside ``vispy.gloo.program``: its comment-stripping
+    substitution (a backtracking regular expression, milliseconds per shader, tens of shaders at
+    start-up) goes to :func:`strip_line_comments`; any other call goes to ``re`` itself."""
+
+    def __getattr__(self, name):
+        import re
+
+        return getattr(re, name)
+
+    @staticmethod
+    def sub(pattern, repl, string, count=0, flags=0):
+        import re
+
+        if pattern == r"(.*)(//.*)" and repl == r"\1" and count == 0 and flags == re.M:
+            return strip_line_comments(string)
+        return re.sub(pattern, repl, string, count=count, flags=flags)
+
+
+def _fast_shader_parsing() -> None:
+    """Install :class:`_ShaderParseRe` in ``vispy.gloo.program`` (idempotent)."""
+    from vispy.gloo import program
+
+    if not isinstance(getattr(program, "re", None), _ShaderParseRe):
+        program.re = _ShaderParseRe()
+
+
 def offscreen_app():
     """A vispy Application on PyQt6 whose canvases use :class:`OffscreenCanvasBackend`."""
     global _APP
+    _fast_shader_parsing()
     if _APP is None:
         import vispy.app
         from vispy.app import Application
@@ -248,6 +296,7 @@ def scene_canvas(**kwargs):
 
     from vispy import scene
 
+    _fast_shader_parsing()
     if os.environ.get("RETINA_VIEWER_CANVAS", "").strip().lower() == "widget":
         # Qt composites and swaps the window itself; vispy's swap would swap it a second time
         return scene.SceneCanvas(autoswap=False, **kwargs)

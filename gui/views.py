@@ -26,7 +26,8 @@ Conventions (owned here)
 - One draw per change: in the window the views follow *results* (``follow="result"``): the pose,
   the field marks and the colours all come from the result's request, so a heading step is drawn
   once, with matching pose and colours.  A view alone (``follow="state"``) follows the pose and
-  field events directly.
+  field events directly.  A result that changes nothing a view shows (a new light level: same
+  pose, same colours) draws nothing there; the view's ``skipped`` counts such results.
 - Views subscribe to the state model in their constructor and only update their scene nodes; the
   model never knows its views.
 """
@@ -41,7 +42,7 @@ import numpy as np
 
 __all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
            "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend", "map_grid", "map_index",
-           "PatternColours", "pattern_colours"]
+           "PatternColours", "pattern_colours", "receptor_points_class"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
@@ -250,23 +251,116 @@ def _colours_for(view, res) -> PatternColours:
 _colours_for.cache = {}
 
 
-def _set_marker_colours(markers, rgba) -> None:
-    """Replace only the colours of a Markers visual (face and edge), keeping its geometry: the
-    interleaved vertex buffer is re-sent as it is, without vispy re-validating positions, sizes and
-    colours.  Falls back to a full ``set_data`` when the visual's layout is not the expected one."""
-    data = getattr(markers, "_data", None)
-    vbo = getattr(markers, "_vbo", None)
-    if data is None:
-        return  # no receptors drawn
-    names = getattr(data.dtype, "names", None) or ()
-    if vbo is None or "a_bg_color" not in names or "a_fg_color" not in names or len(data) != len(rgba):
-        markers.set_data(data["a_position"], face_color=rgba, edge_color=rgba, size=data["a_size"],
-                         edge_width=0.0)
-        return
-    data["a_bg_color"] = rgba
-    data["a_fg_color"] = rgba
-    vbo.set_data(data)
-    markers.update()
+_POINTS_VERT = """
+attribute vec3 a_position;
+attribute vec4 a_color;
+attribute float a_size;
+varying vec4 v_color;
+varying float v_size;
+void main() {
+    v_color = a_color;
+    vec4 pos = vec4(a_position, 1.0);
+    vec4 fb = $visual_to_framebuffer(pos);
+    // the diameter a_size (visual units, perpendicular to the line of sight) in framebuffer pixels
+    vec4 p = $framebuffer_to_visual(fb);
+    vec4 x = $framebuffer_to_visual(fb + vec4(1e10, 0.0, 0.0, 0.0)) - p;
+    vec4 edge = $visual_to_framebuffer(p + normalize(x) * a_size);
+    v_size = max(edge.x / edge.w - fb.x / fb.w, 1.0) + 0.5;  // + 0.5: no pixel gaps between discs
+    gl_PointSize = v_size;
+    gl_Position = $framebuffer_to_render(fb);
+}
+"""
+
+_POINTS_FRAG = """
+varying vec4 v_color;
+varying float v_size;
+void main() {
+    vec2 c = gl_PointCoord - vec2(0.5);
+    float r2 = dot(c, c);
+    if (r2 > 0.25)
+        discard;
+    // discs of 6 pixels and more get a darker 1-pixel rim, so that neighbours stay apart
+    float inner = max(0.5 - 1.0 / v_size, 0.0);
+    gl_FragColor = (v_size >= 6.0 && r2 > inner * inner) ? vec4(0.55 * v_color.rgb, v_color.a) : v_color;
+}
+"""
+
+_POINTS_CLASS = None
+
+
+def receptor_points_class():
+    """The scene node class :class:`ReceptorPoints` (built on first use: it imports vispy).
+
+    ``ReceptorPoints(parent=node)`` draws one flat disc per point, its diameter given in the
+    node's own units (millimetres in the head), as ``GL_POINTS`` with a one-line fragment shader:
+    no signed-distance symbol, no edge and no anti-aliased rim (vispy's ``Markers`` draws each
+    marker over a square about 6 pixels wider than the disc, with a signed-distance shader; at
+    4,000 receptors per eye that was most of the head view's raster time).  Methods:
+    ``set_points(positions (N, 3), sizes (N,), colors (N, 4))`` and ``set_colors(colors (N, 4))``,
+    which re-sends only the colour buffer.  Attributes ``positions``, ``sizes``, ``colors`` hold
+    what was last sent (float32).
+    """
+    global _POINTS_CLASS
+    if _POINTS_CLASS is None:
+        from vispy import gloo
+        from vispy.scene.visuals import create_visual_node
+        from vispy.visuals import Visual
+
+        class ReceptorPointsVisual(Visual):
+            """Flat discs of per-point colour and size (:func:`receptor_points_class`)."""
+
+            def __init__(self):
+                Visual.__init__(self, vcode=_POINTS_VERT, fcode=_POINTS_FRAG)
+                self._draw_mode = "points"
+                self.positions = np.zeros((0, 3), np.float32)
+                self.sizes = np.zeros(0, np.float32)
+                self.colors = np.zeros((0, 4), np.float32)
+                self._vbo_pos = gloo.VertexBuffer(np.zeros((1, 3), np.float32))
+                self._vbo_size = gloo.VertexBuffer(np.zeros(1, np.float32))
+                self._vbo_col = gloo.VertexBuffer(np.zeros((1, 4), np.float32))
+                self.shared_program["a_position"] = self._vbo_pos
+                self.shared_program["a_size"] = self._vbo_size
+                self.shared_program["a_color"] = self._vbo_col
+                self.set_gl_state("translucent", depth_test=True)
+
+            def set_points(self, positions, sizes, colors) -> None:
+                pos = np.ascontiguousarray(positions, np.float32).reshape(-1, 3)
+                n = len(pos)
+                siz = np.ascontiguousarray(np.broadcast_to(np.asarray(sizes, np.float32), (n,)))
+                col = np.ascontiguousarray(colors, np.float32).reshape(n, 4)
+                self.positions, self.sizes, self.colors = pos, siz, col
+                if n:
+                    self._vbo_pos.set_data(pos)
+                    self._vbo_size.set_data(siz)
+                    self._vbo_col.set_data(col)
+                self.update()
+
+            def set_colors(self, colors) -> None:
+                col = np.ascontiguousarray(colors, np.float32)
+                if col.shape != self.colors.shape:
+                    raise ValueError(f"expected colours of shape {self.colors.shape}, got {col.shape}")
+                self.colors = col
+                if len(col):
+                    self._vbo_col.set_data(col)
+                self.update()
+
+            def _prepare_transforms(self, view):
+                tr = view.transforms
+                vert = view.view_program.vert
+                vert["visual_to_framebuffer"] = tr.get_transform("visual", "framebuffer")
+                vert["framebuffer_to_visual"] = tr.get_transform("framebuffer", "visual")
+                vert["framebuffer_to_render"] = tr.get_transform("framebuffer", "render")
+
+            def _prepare_draw(self, view):
+                return len(self.positions) > 0
+
+            def _compute_bounds(self, axis, view):
+                if not len(self.positions):
+                    return None
+                return float(self.positions[:, axis].min()), float(self.positions[:, axis].max())
+
+        _POINTS_CLASS = create_visual_node(ReceptorPointsVisual)
+    return _POINTS_CLASS
 
 
 def _state_limits(state, result):
@@ -321,15 +415,17 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
 
 
 def _share_fonts(texts) -> None:
-    """Give the Text visuals of one canvas one glyph atlas.
+    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches.
 
     vispy gives every Text visual its own font manager, so each renders every glyph it shows
     again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
-    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all.
+    bulk of the first frame).  Within a canvas (one GL context) one atlas serves them all, and
+    :mod:`retina_viewer.glyphs` keeps each glyph made once, for the other canvas and for later
+    starts.
     """
-    from vispy.visuals.text.text import FontManager
+    from .glyphs import font_manager
 
-    fm = FontManager(method="cpu")
+    fm = font_manager()
     for t in texts:
         t._font_manager = fm
         t._update_font()
@@ -454,10 +550,13 @@ class HeadView(_Subscriber):
     ----------
     canvas : vispy.scene.SceneCanvas
         ``canvas.native`` is the Qt widget.
-    markers : vispy.scene.visuals.Markers
-        One marker per receptor; :attr:`face_colors` holds the colours last set ``(N, 4)``.
+    markers : ReceptorPoints
+        One flat disc per receptor (:func:`receptor_points_class`); its ``colors`` and
+        :attr:`face_colors` hold the colours last set ``(N, 4)``.
     draws : int
         How many times the canvas has been drawn.
+    skipped : int
+        How many results changed nothing shown here (no draw; module docstring).
     """
 
     def __init__(self, state, *, size=(640, 520), parent=None, follow="state"):
@@ -511,8 +610,7 @@ class HeadView(_Subscriber):
         # head node: everything in the head frame, one transform
         self.head = scene.Node(parent=root)
         self.head.transform = MatrixTransform()
-        self.markers = scene.visuals.Markers(scaling="scene", parent=self.head)
-        self.markers.set_gl_state("translucent", depth_test=True)
+        self.markers = receptor_points_class()(parent=self.head)
         sv, sf = _ellipsoid((-3.5, 0.0, -0.5), (8.0, 5.6, 5.6))
         self.skull = scene.visuals.Mesh(sv, sf, color=(0.75, 0.66, 0.52, 0.13), shading=None,
                                         parent=self.head)
@@ -525,6 +623,8 @@ class HeadView(_Subscriber):
         self._receptors = None
         self._sizes = None
         self._field_key = None
+        self._pose_key = None
+        self.skipped = 0
         self._subscribe_pose(state, follow)
         self._show_pose(*self._pose_of(None), draw=False)
         self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_colours())
@@ -536,6 +636,7 @@ class HeadView(_Subscriber):
         self.draws += 1
 
     def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
+        self._pose_key = (yaw, pitch, roll, inclination, declination)
         M = np.eye(4)
         M[:3, :3] = (DISPLAY_FROM_NED @ _pose_matrix(yaw, pitch, roll)).T  # vispy: row vectors
         self.head.transform.matrix = M
@@ -554,18 +655,24 @@ class HeadView(_Subscriber):
         self._show_pose(*self._pose_of(None), draw=False)
         self._receptors = None
         self.face_colors = None
-        self.markers.set_data(np.zeros((0, 3), np.float32))
+        self.markers.set_points(np.zeros((0, 3)), np.zeros(0), np.zeros((0, 4)))
         self.canvas.update()
 
     def _update_colours(self):
         res = self.state.result
         if res is None:
             return
-        if self.follow == "result":
-            self._show_pose(*self._pose_of(res), draw=False)
         rec = res.pattern.receptors
         cols = _colours_for(self, res)
         rgba = cols.rgba
+        pose = self._pose_of(res)
+        if (rec is self._receptors and self._sizes is not None and self._sizes[0] == cols.eye
+                and pose == self._pose_key and self.face_colors is not None
+                and np.array_equal(rgba, self.face_colors)):
+            self.skipped += 1
+            return  # nothing shown changes (the light level, say): no draw
+        if self.follow == "result":
+            self._show_pose(*pose, draw=False)
         self.face_colors = rgba
         if rec is not self._receptors or self._sizes is None or self._sizes[0] != cols.eye:
             # marker diameter (mm, scaled with the scene): 1.2 x the mean receptor spacing on the eye
@@ -574,10 +681,9 @@ class HeadView(_Subscriber):
             self._sizes = (cols.eye, np.where(shown, 1.2 * spacing, 0.7 * spacing),
                            np.asarray(rec.positions, np.float32))
             self._receptors = rec
-            self.markers.set_data(self._sizes[2], face_color=rgba, edge_color=rgba, edge_width=0.0,
-                                  size=self._sizes[1])
+            self.markers.set_points(self._sizes[2], self._sizes[1], rgba)
         else:
-            _set_marker_colours(self.markers, rgba)
+            self.markers.set_colors(rgba)  # only the colour buffer: the geometry stays
         self.canvas.update()
 
     def render(self) -> np.ndarray:
@@ -604,6 +710,8 @@ class MapView(_Subscriber):
         Called with :meth:`receptor_info` of the receptor under the mouse (None off the eyes).
     draws : int
         How many times the canvas has been drawn.
+    skipped : int
+        How many results changed nothing shown here (no draw; module docstring).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
@@ -706,6 +814,7 @@ class MapView(_Subscriber):
         self._index = None
         self._receptors = None
         self._marks_key = None
+        self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
         self._subscribe_pose(state, follow)
@@ -782,7 +891,7 @@ class MapView(_Subscriber):
         f, o = self.marks["field"], self.marks["field_opposite"]
         data = getattr(self.field_marks, "_data", None)
         if data is not None and "a_position" in (data.dtype.names or ()) and len(data) == 2:
-            data["a_position"][:, :2] = pos  # only the places change (_set_marker_colours)
+            data["a_position"][:, :2] = pos  # only the places change
             self.field_marks._vbo.set_data(data)
             self.field_marks.update()
         else:
@@ -817,10 +926,13 @@ class MapView(_Subscriber):
         res = self.state.result
         if res is None:
             return
+        marks_before = self._marks_key
         if self.follow == "result":
             self._show_pose(*self._pose_of(res), draw=False)
+        changed = self._marks_key != marks_before
         rec = res.pattern.receptors
         if rec is not self._receptors:
+            changed = True
             self._index = map_index(rec)
             pts, conn = self._edge_lines(rec)
             self.edges.set_data(pts, connect=conn)
@@ -828,8 +940,10 @@ class MapView(_Subscriber):
         cols = _colours_for(self, res)
         display, eye = cols.display, cols.eye
         lo, hi = cols.limits
-        self.rgba = cols.image
-        self.image.set_data(self.rgba)
+        if changed or not np.array_equal(cols.image, self.rgba):
+            changed = True
+            self.rgba = cols.image
+            self.image.set_data(self.rgba)
         flat = bool(getattr(res, "flat", False))
         locked = cols.locked
         if display == "modulation":
@@ -844,6 +958,7 @@ class MapView(_Subscriber):
             ends, caption = ["", ""], "flat pattern: every receptor the same (no modulation)"
         key = (display, tuple(ends), caption)
         if key != self._cbar_key:  # text is laid out again only when it changes
+            changed = True
             cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
             self.cbar.set_data(cmap(self._ramp).astype(np.float32))
             self.cbar_text.text = [ends[0], ends[1]]
@@ -853,7 +968,10 @@ class MapView(_Subscriber):
         title = f"{eye} eye{'s' if eye == 'both' else ''}, head frame (the heading is in the readout)"
         if self.title_label.text() != title:
             self.title_label.setText(title)
-        self.canvas.update()
+        if changed:
+            self.canvas.update()
+        else:
+            self.skipped += 1  # nothing drawn changes (the light level, say): no draw
 
     # ---------------------------------------------------------------- receptor under the cursor
     def receptor_at(self, az_deg: float, el_deg: float):

@@ -96,6 +96,23 @@ class YieldCache:
         self.folder = Path(folder).expanduser() if folder is not None else default_cache_dir()
 
     def path_for(self, key: str) -> Path:
+        """Where the entry of ``key`` lives (whether or not it exists).
+
+        Parameters
+        ----------
+        key : str
+            A cache key: 64 lower-case hex digits (:func:`cache_key`).
+
+        Returns
+        -------
+        Path
+            ``<folder>/<key>.h5``.
+
+        Raises
+        ------
+        ValueError
+            For anything but a cache key (no path outside the folder can be named).
+        """
         if len(key) != 64 or any(c not in "0123456789abcdef" for c in key):
             raise ValueError(f"not a cache key: {key!r}")
         return self.folder / f"{key}.h5"
@@ -104,6 +121,17 @@ class YieldCache:
         """The cached yield function for ``key`` as a :class:`retina.io.hdf5.YieldRecord`, or None.
 
         :meth:`retina.yieldfn.YieldFunction.from_record` turns it into a yield function.
+
+        Parameters
+        ----------
+        key : str
+            A cache key: 64 lower-case hex digits (:func:`cache_key`).
+
+        Returns
+        -------
+        retina.io.hdf5.YieldRecord or None
+            None on a miss: no entry, an entry written for another key, or a damaged entry (an
+            unreadable file or coefficients that no longer match their content hash are deleted).
         """
         from retina.errors import InputError
         from retina.io.hdf5 import content_hash, read_yield_function
@@ -132,15 +160,38 @@ class YieldCache:
             pass
 
     def put(self, key: str, yf) -> Path:
-        """Store ``yf`` (a :class:`retina.yieldfn.YieldFunction`) under ``key`` (atomically, replacing
-        any older entry)."""
+        """Store a yield function under ``key`` (atomically, replacing any older entry).
+
+        Parameters
+        ----------
+        key : str
+            A cache key: 64 lower-case hex digits (:func:`cache_key`).
+        yf : retina.yieldfn.YieldFunction
+            Its provenance should carry ``input_hash = key`` (else :meth:`get` treats it as a miss).
+
+        Returns
+        -------
+        Path
+            The entry's file.
+
+        Raises
+        ------
+        OSError
+            When the folder or the file cannot be written.
+        """
         from retina.io.hdf5 import save_yield_function
 
         self.folder.mkdir(parents=True, exist_ok=True)
         return save_yield_function(yf, self.path_for(key), force=True)
 
     def clear(self) -> int:
-        """Remove every entry; return how many were removed."""
+        """Remove every entry.
+
+        Returns
+        -------
+        int
+            How many entries were removed.
+        """
         n = 0
         if self.folder.is_dir():
             for p in self.folder.glob("*.h5"):

@@ -285,10 +285,12 @@ class Scenario:
 
     @property
     def seed(self) -> int:
+        """``[scenario] seed``: the root of every stage's random numbers."""
         return int(self.data["scenario"]["seed"])
 
     @property
     def name(self) -> str:
+        """``[scenario] name``."""
         return self.data["scenario"]["name"]
 
     @property
@@ -302,10 +304,28 @@ class Scenario:
 
     @property
     def field_uses_location(self) -> bool:
+        """True when the field comes from a location and date (a field model), not from F, I, D."""
         return self.data["field"]["latitude_deg"] is not None
 
     def replace(self, **sections) -> "Scenario":
-        """A copy with some keys changed, re-validated: ``s.replace(trials={"n_trials": 5})``."""
+        """A copy with some keys changed, re-validated: ``s.replace(trials={"n_trials": 5})``.
+
+        Parameters
+        ----------
+        **sections : dict or list
+            Section name -> ``{key: value}`` merged into that section; ``eyes`` replaces the list of
+            eyes whole.
+
+        Returns
+        -------
+        Scenario
+            Validated as a loaded file is (same source, base folder and text).
+
+        Raises
+        ------
+        InputError
+            An unknown section, or a changed value the schema refuses.
+        """
         d = copy.deepcopy(self.data)
         for sec, vals in sections.items():
             if sec == "eyes":

@@ -162,6 +162,7 @@ class YieldFunction:
 
     @property
     def degree(self) -> int:
+        """The largest (even) harmonic degree ``L``."""
         return self._degree
 
     @property
@@ -195,6 +196,16 @@ class YieldFunction:
 
         The derivative of ``Phi(b(t))`` along a curve on the sphere is ``gradient(b) . db/dt``;
         the gradient is perpendicular to ``b``.
+
+        Parameters
+        ----------
+        dirs : array_like (..., 3)
+            Unit field directions (molecular frame).
+
+        Returns
+        -------
+        ndarray (..., 3)
+            Surface gradient of the yield, per radian, tangent to the sphere at each direction.
         """
         d = np.asarray(dirs, dtype=float)
         _, g = sphere.evaluate_grad(self._coeffs, d.reshape(-1, 3))
@@ -205,6 +216,21 @@ class YieldFunction:
 
         ``rotation`` is a single :class:`scipy.spatial.transform.Rotation`.  Provenance is kept,
         with the rotation appended (as a quaternion, scalar last) under ``rotations``.
+
+        Parameters
+        ----------
+        rotation : scipy.spatial.transform.Rotation
+            One rotation ``R``.
+
+        Returns
+        -------
+        YieldFunction
+            Same degree and fit error, a new ``content_hash``.
+
+        Raises
+        ------
+        ValueError
+            For anything but a single rotation.
         """
         if not isinstance(rotation, Rotation) or not rotation.single:
             raise ValueError("rotate takes one scipy Rotation; rotate many with retina.sphere.rotate")
@@ -228,6 +254,17 @@ class YieldFunction:
         smallest values are the extreme eigenvalues of ``M``, taken at their eigenvectors.
         When two eigenvalues are equal (an axially symmetric function) the direction of that
         extreme is any unit vector of their eigenplane; one of them is returned.
+
+        Parameters
+        ----------
+        n_search : int, optional
+            Lattice points of the search; with the default the result is computed once and kept.
+
+        Returns
+        -------
+        Anisotropy
+            Extremes, mean, ``delta`` and ``relative`` (``delta / mean``), and the directions of the
+            extremes; for degree 0 both directions are ``z`` and the anisotropy is 0.
         """
         if n_search is None and self._anisotropy is not None:
             return self._anisotropy
@@ -309,7 +346,25 @@ class YieldFunction:
     # ------------------------------------------------------------------ files
 
     def save(self, path: str | Path, force: bool = False) -> Path:
-        """Write the native HDF5 file (atomically; see :mod:`retina.io.hdf5`)."""
+        """Write the native HDF5 file (atomically; see :mod:`retina.io.hdf5`).
+
+        Parameters
+        ----------
+        path : str or Path
+            The file to write.
+        force : bool
+            Replace an existing file.
+
+        Returns
+        -------
+        Path
+            The file written.
+
+        Raises
+        ------
+        InputError
+            When ``path`` exists and ``force`` is false, or its folder does not exist.
+        """
         from retina.io.hdf5 import save_yield_function
 
         return save_yield_function(self, path, force=force)
@@ -317,6 +372,16 @@ class YieldFunction:
     @classmethod
     def load(cls, path: str | Path) -> "YieldFunction":
         """Read a native HDF5 file written by :meth:`save`.
+
+        Parameters
+        ----------
+        path : str or Path
+            The file.
+
+        Returns
+        -------
+        YieldFunction
+            With the file's degree, coefficients, fit error and provenance.
 
         Raises
         ------
@@ -333,7 +398,22 @@ class YieldFunction:
 
     @classmethod
     def from_record(cls, rec) -> "YieldFunction":
-        """The yield function of a :class:`retina.io.hdf5.YieldRecord` (a file's or the cache's content)."""
+        """The yield function of a :class:`retina.io.hdf5.YieldRecord` (a file's or the cache's content).
+
+        Parameters
+        ----------
+        rec : retina.io.hdf5.YieldRecord
+            Coefficients ``(K,)``, degree, provenance and fit error.
+
+        Returns
+        -------
+        YieldFunction
+
+        Raises
+        ------
+        ValueError
+            When the coefficients do not fit the degree or are not finite.
+        """
         return cls(rec.coeffs, rec.degree, rec.provenance, rec.fit_error)
 
     # ------------------------------------------------------------------ constructors

@@ -1,14 +1,17 @@
-"""numpydoc docstrings (DEVELOPERS.md, "Conventions"): every public function of the pipeline's
-modules documents its parameters and what it returns.  Checked with numpydoc's own validator
-(common practice, no source).  Not listed yet: the modules other work is changing at the moment
-(stages.rf, figures.rf) and the packages, errors and re-exporting fronts; they join when that work
-lands."""
+"""numpydoc docstrings (DEVELOPERS.md, "Conventions"): every public function of the core's modules,
+and every public method of their public classes, documents its parameters and what it returns.
+Checked with numpydoc's own validator (common practice, no source).  Every module of ``retina/`` is
+listed (a test checks); the methods of a few modules other work is changing wait in
+:data:`METHODS_NOT_YET`."""
 
 import importlib
 import inspect
+from pathlib import Path
 
 import pytest
 from numpydoc.validate import validate
+
+import retina
 
 CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._common", "retina.stages.patterns",
            "retina.stages.scan", "retina.stages.precision", "retina.stages.disorder", "retina.stages.trials",
@@ -35,7 +38,15 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.commands.rf", "retina.commands.view", "retina.figures.marks", "retina.figures.order",
            "retina.spin.rf_separable", "retina.stages.order", "retina.sweep", "retina.spin.engine",
            "retina.spin.equivalence", "retina.spin.fast_separable", "retina.spin.sampling",
-           "retina.spin._spectral"]
+           "retina.spin._spectral", "retina.stages.rf", "retina.stages.rf_sweep", "retina.figures.rf",
+           "retina", "retina.__main__", "retina.errors", "retina.commands", "retina.eye", "retina.eye.ordering",
+           "retina.figures", "retina.io", "retina.readout", "retina.signal", "retina.sphere", "retina.spin",
+           "retina.spin.io", "retina.spin.rf"]
+
+METHODS_NOT_YET = ["retina.spin.operators", "retina.spin.broadband", "retina.spin.sampling"]
+"""Checked modules whose public class methods are not checked yet: retina/spin is being changed by
+other work at the moment (PairSpace.singlet_indices, Response.lines/tone/tones/band and
+SampledYields.standard_error_of lack sections); they join when that work lands."""
 
 
 def _public_functions(name):
@@ -45,11 +56,128 @@ def _public_functions(name):
             yield f"{name}.{attr}"
 
 
-@pytest.mark.parametrize("name", CHECKED)
-def test_public_functions_document_parameters_and_returns(name):
+def _public_methods(cls):
+    """Names of the public methods defined in the body of ``cls`` (plain, static and class methods).
+
+    Properties, inherited methods and callables stored as attributes (a dataclass field whose default
+    is a lambda) are not methods of the class and are skipped."""
+    for attr, obj in vars(cls).items():
+        if attr.startswith("_"):
+            continue
+        func = obj.__func__ if isinstance(obj, (staticmethod, classmethod)) else obj
+        if inspect.isfunction(func) and func.__qualname__ == f"{cls.__qualname__}.{attr}":
+            yield attr
+
+
+def _documented_by(cls, attr):
+    """The dotted name whose docstring documents method ``attr`` of ``cls``.
+
+    An override without a docstring of its own is documented by the nearest base class's method that
+    has one, as the API docs show it (Sphinx's ``autodoc_inherit_docstrings``, on by default), provided
+    it takes the same parameters; otherwise the method itself is validated (GL08)."""
+    own = vars(cls)[attr]
+    own = own.__func__ if isinstance(own, (staticmethod, classmethod)) else own
+    if own.__doc__:
+        return f"{cls.__module__}.{cls.__qualname__}.{attr}"
+    for base in cls.__mro__[1:]:
+        doc_obj = vars(base).get(attr)
+        doc_obj = doc_obj.__func__ if isinstance(doc_obj, (staticmethod, classmethod)) else doc_obj
+        if inspect.isfunction(doc_obj) and doc_obj.__doc__:
+            if list(inspect.signature(doc_obj).parameters) == list(inspect.signature(own).parameters):
+                return f"{base.__module__}.{base.__qualname__}.{attr}"
+            break
+    return f"{cls.__module__}.{cls.__qualname__}.{attr}"
+
+
+def _public_class_methods(name):
+    mod = importlib.import_module(name)
+    for attr, obj in vars(mod).items():
+        if not attr.startswith("_") and inspect.isclass(obj) and obj.__module__ == name:
+            for method in _public_methods(obj):
+                yield _documented_by(obj, method)
+
+
+def _missing_sections(names):
     bad = {}
-    for qual in _public_functions(name):
+    for qual in names:
         codes = [code for code, _ in validate(qual)["errors"] if code in ("GL08", "PR01", "RT01")]
         if codes:
             bad[qual] = codes
+    return bad
+
+
+def test_every_core_module_is_checked():
+    root = Path(retina.__file__).parent
+    names = set()
+    for path in root.rglob("*.py"):
+        parts = path.relative_to(root.parent).with_suffix("").parts
+        names.add(".".join(parts[:-1] if parts[-1] == "__init__" else parts))
+    missing = sorted(names - set(CHECKED))
+    assert not missing, f"add these modules to CHECKED in tests/test_docstrings.py (with their docstrings): {missing}"
+    assert len(CHECKED) == len(set(CHECKED))
+    assert set(METHODS_NOT_YET) <= set(CHECKED)
+
+
+@pytest.mark.parametrize("name", CHECKED)
+def test_public_functions_document_parameters_and_returns(name):
+    bad = _missing_sections(_public_functions(name))
     assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
+
+
+@pytest.mark.parametrize("name", [n for n in CHECKED if n not in METHODS_NOT_YET])
+def test_public_methods_document_parameters_and_returns(name):
+    bad = _missing_sections(_public_class_methods(name))
+    assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
+
+
+class ExampleBase:
+    """For the checker's own test below."""
+
+    def run(self, x):
+        """A documented method.
+
+        Parameters
+        ----------
+        x : float
+            A number.
+
+        Returns
+        -------
+        float
+            ``x``.
+        """
+        return x
+
+
+class ExampleInherits(ExampleBase):
+    """Overrides ``run`` with the same parameters and no docstring: documented by the base's."""
+
+    def run(self, x):
+        return 2 * x
+
+
+class ExampleDiffers(ExampleBase):
+    """Overrides ``run`` with other parameters and no docstring: undocumented."""
+
+    def run(self, x, y):
+        return x + y
+
+
+class ExampleBare:
+    """A method with a summary line only."""
+
+    def run(self, x):
+        """No sections."""
+        return x
+
+    @property
+    def size(self):
+        return 1
+
+
+def test_method_check_flags_methods_without_sections():
+    # the checker itself: it must see a method lacking sections, an override whose parameters differ
+    # from the documented base method, and accept an override documented by its base (common
+    # practice, no source: what Sphinx autodoc renders with autodoc_inherit_docstrings)
+    bad = _missing_sections(_public_class_methods(__name__))
+    assert bad == {f"{__name__}.ExampleDiffers.run": ["GL08"], f"{__name__}.ExampleBare.run": ["PR01", "RT01"]}

@@ -62,11 +62,13 @@ def _unavailable(reason):
 
 
 @pytest.fixture(scope="session")
-def display():
+def display(tmp_path_factory):
     """A display for Qt: the existing ``DISPLAY``, else an Xvfb server started here
-    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``)."""
+    (:func:`retina_viewer.display.virtual_display`, shared with ``benchmarks/bench_viewer.py``).
+    The views' glyph cache goes to a folder of this session, not the user's cache."""
     if not HAVE_VIEWER:
         _unavailable("PyQt6 or vispy not installed (pip install 'retina-compass[viewer]')")
+    os.environ["RETINA_VIEWER_GLYPH_CACHE"] = str(tmp_path_factory.mktemp("glyphs"))
     from retina_viewer.display import XvfbError, virtual_display
 
     cm = virtual_display()
@@ -512,7 +514,7 @@ def test_window_builds_and_a_slider_recolours_the_receptors(window, qapp):
     st, head = window.state, window.head_view
     assert st.result is not None                    # synchronous worker: computed at start-up
     n = len(st.result.pattern.yields)
-    before = np.array(head.markers._data["a_bg_color"], copy=True)
+    before = np.array(head.markers.colors, copy=True)
     assert before.shape == (n, 4)
     ctrl = window.controls.controls["yaw_deg"]
     seen = []
@@ -521,7 +523,7 @@ def test_window_builds_and_a_slider_recolours_the_receptors(window, qapp):
     assert st.yaw_deg == pytest.approx(90.0) and seen == [pytest.approx(90.0)]
     assert ctrl.spin.value() == pytest.approx(90.0)  # the spin box follows, without echo
     assert st.result.request.yaw_deg == pytest.approx(90.0)
-    after = np.asarray(head.markers._data["a_bg_color"])
+    after = np.asarray(head.markers.colors)
     assert np.max(np.abs(after - before)) > 0.05    # the pattern changed with the heading
     np.testing.assert_allclose(after, head.face_colors, atol=1.0 / 255)
     # the map shows the same pattern
@@ -820,6 +822,27 @@ def test_one_draw_per_heading_step(window, qapp):
     # the pose drawn is the pose of the colours: both come from the result's request
     assert window.state.result.request.yaw_deg == 13.0
     assert window.map_view._marks_key[0] == 13.0
+
+
+def test_a_result_that_changes_nothing_shown_draws_nothing(window, qapp):
+    # Contract of gui/views.py (common practice, no source): the light level changes the bounds,
+    # not the pattern (modulation and yields do not depend on the photon count), so neither view
+    # draws; the readout still shows the new result.  A heading step after it draws both again.
+    window.show()
+    _settle(qapp, 0.5)
+    for _ in range(20):  # until the start-up draws (the map draws twice at a new size) are done
+        h0, m0 = window.head_view.draws, window.map_view.draws
+        _settle(qapp, 0.3)
+        if (window.head_view.draws, window.map_view.draws) == (h0, m0):
+            break
+    s0 = (window.head_view.skipped, window.map_view.skipped)
+    window.state.photons = window.state.photons * 4.0
+    _settle(qapp, 0.2)
+    assert window.state.result.request.photons == window.state.photons
+    assert (window.head_view.draws, window.map_view.draws) == (h0, m0)
+    assert (window.head_view.skipped, window.map_view.skipped) == (s0[0] + 1, s0[1] + 1)
+    window.state.yaw_deg = window.state.yaw_deg + 7.0
+    _process_until(qapp, lambda: window.head_view.draws > h0 and window.map_view.draws > m0, 5.0)
 
 
 def test_arrow_keys_in_a_spin_box_belong_to_the_spin_box(window, qapp):
@@ -1446,15 +1469,17 @@ def test_a_new_pattern_replaces_only_the_receptor_colours(window, qapp):
     window.show()
     _settle(qapp, 0.3)
     m = window.head_view.markers
-    pos0 = np.array(m._data["a_position"])
-    size0 = np.array(m._data["a_size"])
+    pos_sent = m.positions
+    pos0 = np.array(m.positions)
+    size0 = np.array(m.sizes)
     window.state.yaw_deg = 123.0
     _settle(qapp, 0.2)
     cols = window.state.result.colours
     assert window.state.result.request.yaw_deg == 123.0 and cols is not None
-    np.testing.assert_array_equal(m._data["a_position"], pos0)
-    np.testing.assert_array_equal(m._data["a_size"], size0)
-    np.testing.assert_array_equal(m._data["a_bg_color"], cols.rgba)
+    assert m.positions is pos_sent                  # the geometry was not sent again
+    np.testing.assert_array_equal(m.positions, pos0)
+    np.testing.assert_array_equal(m.sizes, size0)
+    np.testing.assert_array_equal(m.colors, cols.rgba)
     np.testing.assert_array_equal(window.map_view.rgba, cols.image)
 
 
@@ -1473,3 +1498,85 @@ def test_virtual_display_uses_the_display_there_is_and_says_why_it_cannot_start(
         with disp.virtual_display():
             pass
     assert "DISPLAY" not in os.environ
+
+
+def test_glyph_cache_gives_vispy_own_glyphs_made_kept_and_read_back(tmp_path, monkeypatch):
+    # Cross-check against the reference library (vispy's own TextureFont and CPU distance-field
+    # renderer; common practice, no source): a glyph made through the cache, taken from memory,
+    # or read back from the disk cache has vispy's metrics, kerning, atlas place and distance
+    # field, byte for byte.  "AV" is a kerned pair in most fonts.  Needs no display (GL commands
+    # are only queued).
+    if not HAVE_VIEWER or importlib.util.find_spec("freetype") is None:
+        pytest.skip("vispy with freetype not installed")
+    from vispy.visuals.text.text import SDFRendererCPU, TextureFont
+
+    from retina_viewer import glyphs
+
+    monkeypatch.setenv("RETINA_VIEWER_GLYPH_CACHE", str(tmp_path))
+    glyphs.clear_memory()
+    fields = {}
+
+    class Keep(SDFRendererCPU):
+        def render_to_texture(self, data, texture, offset, size):
+            out = np.zeros((size[1], size[0], 3), np.uint8)
+            super().render_to_texture(data, out, (0, 0), size)
+            fields[len(fields)] = out
+
+    text = "AVa-B7"
+    ref = TextureFont(dict(face="OpenSans", bold=False, italic=False), Keep())
+    for ch in text:
+        ref[ch]
+    assert any(v != 0 for g in ref._glyphs.values() for v in g["kerning"].values())
+    for source in ("made", "memory", "disk"):
+        if source == "disk":
+            glyphs.clear_memory()
+        font = glyphs.font_manager().get_font("OpenSans")
+        for ch in text:
+            font[ch]
+        for i, ch in enumerate(text):
+            g, r = font[ch], ref._glyphs[ch]
+            assert tuple(g["offset"]) == tuple(r["offset"]) and g["advance"] == r["advance"]
+            assert g["size"] == r["size"] and g["texcoords"] == r["texcoords"]
+            assert g["kerning"] == pytest.approx(r["kerning"], abs=0)
+            np.testing.assert_array_equal(g["bitmap"], r["bitmap"])
+            np.testing.assert_array_equal(glyphs._MEMORY[font._key(ch)][1], fields[i])
+        assert glyphs.STATS[source] == len(text), source
+    assert len(list(tmp_path.glob("*.npz"))) == len(text)
+    # a damaged cache file is a miss, not an error
+    for f in tmp_path.glob("*.npz"):
+        f.write_bytes(b"not a glyph")
+    glyphs.clear_memory()
+    font = glyphs.font_manager().get_font("OpenSans")
+    assert font["A"]["advance"] == ref._glyphs["A"]["advance"] and glyphs.STATS["made"] == 1
+
+
+def test_shader_comment_stripping_equals_vispys_regular_expression():
+    # Cross-check against the reference (Python's re with vispy's own pattern, as
+    # vispy.gloo.program applies it; common practice, no source): the same text for vispy's
+    # shader sources and for edge cases, and a vispy Program parses the same variables with the
+    # stand-in installed.
+    import re
+
+    if not HAVE_VIEWER:
+        pytest.skip("vispy not installed")
+    from vispy.gloo import program as gloo_program
+    from vispy.visuals import markers, mesh
+    from vispy.visuals.text import text
+
+    from retina_viewer.canvas import _fast_shader_parsing, strip_line_comments
+
+    def ref(code):
+        return re.sub(r"(.*)(//.*)", r"\1", code, flags=re.M)
+
+    codes = [markers._VERTEX_SHADER, markers._FRAGMENT_SHADER, text._VERTEX_SHADER,
+             text._FRAGMENT_SHADER, mesh._VERTEX_SHADER, mesh._FRAGMENT_SHADER,
+             "a // b // c\nuniform float x; // one\n//\n\n  // only\r\nvec4 y; /* // */ z\n"]
+    for code in codes:
+        assert strip_line_comments(code) == ref(code)
+    vert = "attribute vec3 a_pos; // position\nuniform float u_k; // gain // twice\nvoid main() {}\n"
+    frag = "varying vec4 v_c; // colour\nvoid main() { gl_FragColor = vec4(u_k); }\n"
+    plain = gloo_program.Program(vert, frag).variables
+    _fast_shader_parsing()
+    assert gloo_program.re is not re                    # the stand-in is in place
+    assert gloo_program.Program(vert, frag).variables == plain
+    assert gloo_program.re.sub(r"a", "b", "aa") == "bb"   # any other use goes to re itself

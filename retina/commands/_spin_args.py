@@ -1,10 +1,12 @@
-"""What the spin commands (``yields``, ``rf``) share: checking the common options.
+"""What the spin commands (``yields``, ``rf``) share: checking the common options, and the way
+their summaries and estimates write a duration.
 
 Their progress bar is :class:`retina.progress.ProgressBar`.
 """
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 from retina.errors import InputError
@@ -53,3 +55,28 @@ def common_inputs(args):
                          key="--output")
     check_writable(args.output, force=args.force)
     return system, field, degree, max_bytes
+
+
+def format_seconds(s: float) -> str:
+    """A duration for a person: milliseconds below 1 s, seconds below 2 min, minutes below 2 h, else
+    hours.
+
+    Parameters
+    ----------
+    s : float
+        Seconds, >= 0 (an estimate may be infinite).
+
+    Returns
+    -------
+    str
+        ``"250 ms"``, ``"12.5 s"``, ``"3.0 min"``, ``"2.5 h"``; ``"forever"`` when not finite.
+    """
+    if not math.isfinite(s):
+        return "forever"
+    if s < 1:
+        return f"{s * 1e3:.0f} ms"
+    if s < 120:
+        return f"{s:.1f} s"
+    if s < 7200:
+        return f"{s / 60:.1f} min"
+    return f"{s / 3600:.1f} h"

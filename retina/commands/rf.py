@@ -15,6 +15,7 @@ import time
 
 import numpy as np
 
+from retina.commands._spin_args import format_seconds
 from retina.commands._types import MAX_MEMORY_GB, real, whole
 from retina.errors import InputError
 
@@ -105,14 +106,6 @@ def parse_spectrum(text: str) -> np.ndarray:
     return np.geomspace(start, stop, count)
 
 
-def _fmt_seconds(s: float) -> str:
-    if s < 1:
-        return f"{s * 1e3:.0f} ms"
-    if s < 120:
-        return f"{s:.1f} s"
-    return f"{s / 60:.1f} min"
-
-
 def _direction_words(v) -> str:
     v = np.where(np.abs(v) < 5e-4, 0.0, np.asarray(v, dtype=float))
     return f"({v[0]:+.3f}, {v[1]:+.3f}, {v[2]:+.3f})"
@@ -158,7 +151,7 @@ def summary(static, rfyf, output, wall_seconds: float, n_compare: int = 2000) ->
         f"directions)",
         f"  Floquet harmonics used up to {p['rf_harmonics_max']}, azimuths up to {p['rf_azimuths_max']}, "
         f"tolerance {p['rf_tol']:g}; degree {rfyf.degree}, truncation error max {p['truncation_error_max']:.2g}",
-        f"  wall time {_fmt_seconds(wall_seconds)}; RF yield function written to {output}",
+        f"  wall time {format_seconds(wall_seconds)}; RF yield function written to {output}",
     ]
     return "\n".join(lines)
 

@@ -14,6 +14,7 @@ import time
 
 import numpy as np
 
+from retina.commands._spin_args import format_seconds
 from retina.commands._types import MAX_MEMORY_GB, real, whole
 from retina.errors import InputError
 
@@ -78,18 +79,6 @@ def register(subparsers) -> None:
     p.add_argument("-q", "--quiet", action="store_true", help="no estimate, no progress bar, summary only")
 
 
-def _fmt_seconds(s: float) -> str:
-    if not math.isfinite(s):
-        return "forever"
-    if s < 1:
-        return f"{s * 1e3:.0f} ms"
-    if s < 120:
-        return f"{s:.1f} s"
-    if s < 7200:
-        return f"{s / 60:.1f} min"
-    return f"{s / 3600:.1f} h"
-
-
 def _fmt_bytes(b: float) -> str:
     if b >= 2**40 * 1024:  # an exact integer may be beyond the float range
         return f"10^{int(math.log10(b)) - 9} GB"
@@ -138,7 +127,7 @@ def summary(yf, output, wall_seconds: float) -> str:
         f"  degree {yf.degree}; truncation error max {p.get('truncation_error_max', float('nan')):.2g}, "
         f"rms {p.get('truncation_error_rms', float('nan')):.2g} on {p.get('check_points', '?')} independent directions",
         f"  method {p.get('method', '?')}, {p.get('computed_points', '?')} grid directions "
-        f"({p.get('grid', '?')}, one hemisphere), wall time {_fmt_seconds(wall_seconds)}"
+        f"({p.get('grid', '?')}, one hemisphere), wall time {format_seconds(wall_seconds)}"
         + (" (taken from the cache)" if yf.from_cache else ""),
         f"  written to {output}",
     ]
@@ -204,7 +193,7 @@ def run(args) -> int:
         cost = engine.estimate_cost(system, n, method)
         note = f"; {cost.note}" if getattr(cost, "note", "") else ""
         print(f"retina: {system.name!r}: Hilbert dimension {system.dimension}, method {cost.method}, "
-              f"{n} directions: about {_fmt_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
+              f"{n} directions: about {format_seconds(cost.seconds)} and {_fmt_bytes(cost.bytes)} of memory{note}",
               file=sys.stderr)
 
     with ProgressBar(not args.quiet and cached is None, "yields", n, unit="dir") as progress:

@@ -122,13 +122,38 @@ class Field:
         return self.vector * 1e9
 
     def reversed(self) -> "Field":
-        """The same field with its polarity reversed (``B -> -B``)."""
+        """The same field with its polarity reversed (``B -> -B``).
+
+        Returns
+        -------
+        Field
+            Same intensity, inclination negated, declination turned by 180 degrees (in [-180, 180)).
+        """
         return Field(self.F_uT, -self.I_deg, (self.D_deg + 180.0 + 180.0) % 360.0 - 180.0,
                      source=f"reversed {self.source}")
 
     @classmethod
     def from_vector(cls, b_T, source: str = "given") -> "Field":
-        """From an NED vector in tesla, shape (3,)."""
+        """The field of a vector in the world frame.
+
+        Parameters
+        ----------
+        b_T : array_like (3,)
+            North, east and down components, tesla, finite.
+        source : str
+            Where the field comes from, for provenance.
+
+        Returns
+        -------
+        Field
+            Intensity in uT, inclination and declination in degrees (declination 0 for a vertical
+            field).
+
+        Raises
+        ------
+        InputError
+            Key ``field``, for anything but three finite numbers.
+        """
         b = np.asarray(b_T, dtype=float)
         if b.shape != (3,) or not np.all(np.isfinite(b)):
             raise InputError(f"expected a finite (3,) field vector in tesla, got {b_T!r}",

@@ -200,7 +200,13 @@ class Eye:
         return 2.0 * math.pi * (1.0 - math.cos(math.radians(self.extent_deg)))
 
     def mirrored(self) -> "Eye":
-        """The mirror image in the head's x-z plane (the other side)."""
+        """The mirror image in the head's x-z plane (the other side).
+
+        Returns
+        -------
+        Eye
+            The other side, azimuth and the centre's ``y`` negated, every other field kept.
+        """
         c = self.centre_mm
         return Eye(side="left" if self.side == "right" else "right",
                    azimuth_deg=-self.azimuth_deg, elevation_deg=self.elevation_deg,
@@ -357,7 +363,18 @@ class Receptors:
         return Rotation.from_matrix(self.frames)
 
     def select(self, eye: int) -> np.ndarray:
-        """Indices of the receptors of eye 0 (left) or 1 (right)."""
+        """Indices of the receptors of one eye.
+
+        Parameters
+        ----------
+        eye : int
+            0 for the left eye, 1 for the right.
+
+        Returns
+        -------
+        ndarray of int (n,)
+            Increasing indices into the receptor arrays; empty when that eye is absent.
+        """
         return np.flatnonzero(self.eye_index == eye)
 
 

@@ -30,13 +30,50 @@ class Ordering:
     """Base class: subclasses implement :meth:`ensemble` and :meth:`sample`."""
 
     def ensemble(self, coeffs) -> np.ndarray:  # pragma: no cover - interface
+        """The receptor response ``E_Q[Q f]``, averaged exactly over the law (annealed average).
+
+        Parameters
+        ----------
+        coeffs : array_like (K,) or (..., K)
+            Even real-harmonic coefficients of the molecule's yield function ``f`` (molecular frame).
+
+        Returns
+        -------
+        ndarray, the shape of ``coeffs``
+            Coefficients of the averaged response in the receptor frame.
+        """
         raise NotImplementedError
 
     def sample(self, n: int, rng=None) -> Rotation:  # pragma: no cover - interface
+        """Draws of the molecule-to-receptor rotation ``Q`` (finite-molecule, quenched receptors).
+
+        Parameters
+        ----------
+        n : int
+            Number of draws, >= 0.
+        rng : numpy.random.Generator or int, optional
+            The random generator; an integer seeds a new one, None a fresh unseeded one.
+
+        Returns
+        -------
+        scipy.spatial.transform.Rotation
+            ``n`` rotations.
+        """
         raise NotImplementedError
 
     def then(self, other: "Ordering") -> "Composite":
-        """This ordering followed by ``other`` (``Q = Q_other Q_self``)."""
+        """This ordering followed by ``other`` (``Q = Q_other Q_self``).
+
+        Parameters
+        ----------
+        other : Ordering
+            The step that acts after this one.
+
+        Returns
+        -------
+        Composite
+            The two steps, independent, in order.
+        """
         return Composite(self, other)
 
 
@@ -55,7 +92,22 @@ class Aligned(Ordering):
     def tilted(cls, tilt_deg: float, azimuth_deg: float = 0.0, twist_deg: float = 0.0) -> "Aligned":
         """Molecular ``z`` axis at polar angle ``tilt_deg`` and azimuth ``azimuth_deg`` in the
         receptor frame, after a twist ``twist_deg`` about its own axis:
-        ``R = Rz(azimuth) Ry(tilt) Rz(twist)``."""
+        ``R = Rz(azimuth) Ry(tilt) Rz(twist)``.
+
+        Parameters
+        ----------
+        tilt_deg : float
+            Polar angle of the molecular ``z`` axis from the receptor axis, degrees.
+        azimuth_deg : float
+            Its azimuth in the receptor frame, degrees.
+        twist_deg : float
+            Turn of the molecule about its own ``z`` axis before tilting, degrees.
+
+        Returns
+        -------
+        Aligned
+            Every molecule in the rotation ``R``.
+        """
         return cls(Rotation.from_euler("ZYZ", [azimuth_deg, tilt_deg, twist_deg], degrees=True))
 
     def ensemble(self, coeffs) -> np.ndarray:
@@ -97,6 +149,7 @@ class FreeRotation(Ordering):
 
     @property
     def base(self) -> Rotation:
+        """``R0 = Ry(tilt) Rz(twist)``: the molecule's orientation before the free turn about the axis."""
         return Rotation.from_euler("ZYZ", [0.0, self.tilt_deg, self.twist_deg], degrees=True)
 
     def ensemble(self, coeffs) -> np.ndarray:
@@ -134,7 +187,18 @@ class ConeNoTwist(Ordering):
         return order_parameter_from_kappa(self.kappa)
 
     def moments(self, L: int) -> np.ndarray:
-        """Funk-Hecke factors ``lambda_l``, l = 0..L, of the vMF kernel."""
+        """Funk-Hecke factors ``lambda_l``, l = 0..L, of the vMF kernel.
+
+        Parameters
+        ----------
+        L : int
+            Highest degree, >= 0.
+
+        Returns
+        -------
+        ndarray (L + 1,)
+            ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)`` (:func:`retina.sphere.vmf_moments`).
+        """
         return sphere.vmf_moments(float(self.kappa), L)
 
     def ensemble(self, coeffs) -> np.ndarray:
@@ -149,7 +213,18 @@ class ConeNoTwist(Ordering):
 
     def ensemble_axial(self, coeffs) -> np.ndarray:
         """Funk-Hecke form, exact for functions axially symmetric about ``z`` (m = 0 only); the
-        m != 0 terms are dropped."""
+        m != 0 terms are dropped.
+
+        Parameters
+        ----------
+        coeffs : array_like (K,) or (..., K)
+            Even real-harmonic coefficients (molecular frame).
+
+        Returns
+        -------
+        ndarray, the shape of ``coeffs``
+            The vMF convolution of their m = 0 part (m != 0 entries zero).
+        """
         c = sphere.axial_average(coeffs)
         L = sphere.degree_from_n(c.shape[-1])
         return sphere.funk_hecke(c, self.moments(L))
@@ -250,7 +325,21 @@ class Cone(Ordering):
     def restraining(cls, axis=(0.0, 0.0, 1.0), *, twist_deg: float = 0.0, **kw) -> "Cone":
         """The cone restraining the molecular direction ``axis`` (molecular frame): the mean
         orientation takes ``axis`` to the receptor axis by the smallest rotation, then turns the
-        molecule by ``twist_deg`` about it."""
+        molecule by ``twist_deg`` about it.
+
+        Parameters
+        ----------
+        axis : array_like (3,)
+            The restrained molecular direction (molecular frame), non-zero, any length.
+        twist_deg : float
+            Turn about it after the smallest rotation, degrees.
+        **kw
+            The other fields: ``kappa`` or ``order_parameter``, ``twist``.
+
+        Returns
+        -------
+        Cone
+        """
         return cls(mean=_to_axis(axis, twist_deg, "ordering.axis"), **kw)
 
     @property
@@ -274,18 +363,51 @@ class Cone(Ordering):
         return self.kappa == 0 and self.twist_kappa == 0
 
     def moments(self, L: int) -> np.ndarray:
-        """Funk-Hecke factors ``lambda_l``, l = 0..L, of the vMF kernel of the tilt."""
+        """Funk-Hecke factors ``lambda_l``, l = 0..L, of the vMF kernel of the tilt.
+
+        Parameters
+        ----------
+        L : int
+            Highest degree, >= 0.
+
+        Returns
+        -------
+        ndarray (L + 1,)
+            ``lambda_l = I_{l+1/2}(kappa) / I_{1/2}(kappa)`` (:func:`retina.sphere.vmf_moments`).
+        """
         return sphere.vmf_moments(float(self.kappa), L)
 
     def ensemble_axial(self, coeffs) -> np.ndarray:
         """Funk-Hecke form (the vMF convolution of the placed molecule), exact for functions
         axially symmetric about the restrained direction ``u`` (whatever the twist); the m != 0
-        terms of the placed molecule are dropped."""
+        terms of the placed molecule are dropped.
+
+        Parameters
+        ----------
+        coeffs : array_like (K,) or (..., K)
+            Even real-harmonic coefficients (molecular frame).
+
+        Returns
+        -------
+        ndarray, the shape of ``coeffs``
+            The response in the receptor frame (m != 0 entries zero).
+        """
         c = sphere.axial_average(_place(coeffs, self.mean))
         return sphere.funk_hecke(c, self.moments(sphere.degree_from_n(c.shape[-1])))
 
     def diagonal(self, L: int) -> np.ndarray:
-        """``E[D(swing)] E[D(twist)]`` as the diagonal ``(K,)`` of the real-basis average."""
+        """``E[D(swing)] E[D(twist)]`` as the diagonal of the real-basis average.
+
+        Parameters
+        ----------
+        L : int
+            Even degree.
+
+        Returns
+        -------
+        ndarray (K,)
+            The factor of each coefficient, ``K = (L + 1)(L + 2) / 2``.
+        """
         _, am = abs_m(L)
         return swing_diagonal(float(self.kappa), L) * twist_factors(self.twist_kappa, L)[am]
 
@@ -377,7 +499,21 @@ class Planar(Ordering):
     def restraining(cls, axis=(1.0, 0.0, 0.0), *, twist_deg: float = 0.0, **kw) -> "Planar":
         """The plane restraint of the molecular direction ``axis`` (molecular frame): the smallest
         rotation takes ``axis`` to the receptor ``x`` axis, then ``twist_deg`` turns the molecule
-        about it."""
+        about it.
+
+        Parameters
+        ----------
+        axis : array_like (3,)
+            The molecular direction restrained to the plane (molecular frame), non-zero, any length.
+        twist_deg : float
+            Turn about it after the smallest rotation, degrees.
+        **kw
+            The other fields: ``kappa``, ``twist``.
+
+        Returns
+        -------
+        Planar
+        """
         to_z = _to_axis(axis, twist_deg, "ordering.axis")
         return cls(mean=Rotation.from_euler("y", 90.0, degrees=True) * to_z, **kw)
 
@@ -388,6 +524,7 @@ class Planar(Ordering):
 
     @property
     def twist_kappa(self) -> float:
+        """The von Mises concentration of the twist (0 free, inf fixed)."""
         return resolve_twist(self.twist, self.kappa)
 
     @property
@@ -397,6 +534,7 @@ class Planar(Ordering):
 
     @property
     def is_haar(self) -> bool:
+        """Both concentrations zero: the isotropic law."""
         return self.kappa == 0 and self.twist_kappa == 0
 
     @property

@@ -236,8 +236,13 @@ class RetinaModel:
         return self._molecule_rotations
 
     def head_coeffs(self) -> np.ndarray:
-        """(N, K) head-frame coefficients of every receptor (built on demand on the Legendre
-        path)."""
+        """Head-frame coefficients of every receptor (built on demand on the Legendre path).
+
+        Returns
+        -------
+        ndarray (N, K)
+            The receptor response rotated into each receptor's frame in the head.
+        """
         if self.coeffs is not None:
             return self.coeffs
         return sphere.rotate(self.response, self.receptors.rotations)
@@ -266,7 +271,23 @@ class RetinaModel:
         return out, (dout if want_grad else None)
 
     def yields(self, b_head) -> np.ndarray:
-        """Yields ``(P, N)`` for unit head-frame field directions ``b_head (P, 3)``."""
+        """The receptors' yields for field directions in the head frame.
+
+        Parameters
+        ----------
+        b_head : array_like (P, 3) or (3,)
+            Field directions in the head frame, any non-zero length (normalised here).
+
+        Returns
+        -------
+        ndarray (P, N)
+            Yield of every receptor at every direction (dimensionless).
+
+        Raises
+        ------
+        InputError
+            Key ``b_head``, for other shapes, non-finite or zero vectors.
+        """
         b = self._dirs(b_head)
         if self._legendre is not None:
             return self._horner(b, False)[0]
@@ -274,7 +295,25 @@ class RetinaModel:
 
     def yields_and_grad(self, b_head) -> tuple[np.ndarray, np.ndarray]:
         """Yields ``(P, N)`` and their tangential gradients ``(P, N, 3)`` with respect to the
-        head-frame field direction (``dPhi/dt = grad . db/dt`` along a path on the sphere)."""
+        head-frame field direction (``dPhi/dt = grad . db/dt`` along a path on the sphere).
+
+        Parameters
+        ----------
+        b_head : array_like (P, 3) or (3,)
+            Field directions in the head frame, any non-zero length (normalised here).
+
+        Returns
+        -------
+        yields : ndarray (P, N)
+            As :meth:`yields`.
+        grad : ndarray (P, N, 3)
+            Surface gradients (tangent to the sphere at each direction), per radian.
+
+        Raises
+        ------
+        InputError
+            Key ``b_head``, for other shapes, non-finite or zero vectors.
+        """
         b = self._dirs(b_head)
         if self._legendre is not None:
             A = self.receptors.axes
@@ -292,7 +331,23 @@ class RetinaModel:
     def yields_bruteforce(self, b_head) -> np.ndarray:
         """Yields ``(P, N)`` by direct per-molecule evaluation (``mode="molecules"`` only): the
         molecular yield function at ``(F_i Q_ij)^-1 b`` averaged over molecules.  Slow; a
-        cross-check."""
+        cross-check.
+
+        Parameters
+        ----------
+        b_head : array_like (P, 3) or (3,)
+            Field directions in the head frame, any non-zero length (normalised here).
+
+        Returns
+        -------
+        ndarray (P, N)
+            As :meth:`yields`.
+
+        Raises
+        ------
+        InputError
+            Key ``mode`` in ``mode="ensemble"``; key ``b_head`` for bad directions.
+        """
         if self._molecule_rotations is None:
             raise InputError("yields_bruteforce needs mode 'molecules'", key="mode")
         b = self._dirs(b_head)
@@ -306,11 +361,40 @@ class RetinaModel:
         return out
 
     def modulation(self, yields) -> np.ndarray:
-        """Relative modulation of yields ``(..., N)`` (module docstring)."""
+        """Relative modulation of yields per eye (:func:`modulation`, module docstring).
+
+        Parameters
+        ----------
+        yields : array_like (..., N)
+            Yields of this model's receptors.
+
+        Returns
+        -------
+        ndarray (..., N)
+            ``(Phi - mean_e) / mean_e``, dimensionless.
+        """
         return modulation(yields, self.receptors)
 
     def pattern(self, pose: Pose, field: Field) -> Pattern:
-        """The :class:`Pattern` for one pose and field."""
+        """The :class:`Pattern` for one pose and field.
+
+        Parameters
+        ----------
+        pose : Pose
+            Head pose in the world (heading, pitch, roll).
+        field : Field
+            The geomagnetic field in the world frame.
+
+        Returns
+        -------
+        Pattern
+            Yields, modulation and per-eye means of the ``N`` receptors.
+
+        Raises
+        ------
+        InputError
+            Keys ``pose`` or ``field``, for objects of other types.
+        """
         if not isinstance(pose, Pose):
             raise InputError(f"expected a Pose, got {type(pose).__name__}", key="pose")
         if not isinstance(field, Field):

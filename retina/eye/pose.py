@@ -170,6 +170,7 @@ class HeadScan:
 
     @property
     def poses(self) -> list[Pose]:
+        """The scan's ``P`` poses, in order."""
         return [Pose(float(a), float(b), float(c))
                 for a, b, c in zip(self.yaw_deg, self.pitch_deg, self.roll_deg)]
 

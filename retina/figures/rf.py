@@ -26,6 +26,17 @@ def rf_conditions(names, bound_deg, trial_r, light_names, *, params: str = "",
     trial_r : ndarray (C, V)
         Mean vector length of the simulated trials (0..1).
     light_names : sequence of str (V,)
+        Light-level names, one bar colour each.
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------
@@ -71,6 +82,7 @@ def rf_sweep(curve_MHz, lifetimes_us, perp_rise, par_rise, perp_threshold_nT, pa
     curve_MHz : ndarray (Y,)
         Frequencies, MHz (log axis).
     lifetimes_us : ndarray (T,)
+        Pair lifetimes, microseconds (one colour each).
     perp_rise, par_rise : ndarray (T, Y)
         Bound / bound without RF - 1 at ``amplitude_nT``.
     perp_threshold_nT, par_threshold_nT : ndarray (T, Y)
@@ -84,6 +96,16 @@ def rf_sweep(curve_MHz, lifetimes_us, perp_rise, par_rise, perp_threshold_nT, pa
         are drawn thin and dotted (second order extrapolated).
     onset_MHz : ndarray (T,), optional
         Marked with a vertical line where finite.
+    params : str
+        Parameters for the caption (units and values), stored with the figure as metadata.
+    title : str
+        Figure title (also the metadata title).
+    path : str or Path, optional
+        Save as ``path.<fmt>`` for each of ``formats`` (atomically); nothing is written when None.
+    formats : sequence of {"png", "svg", "pdf"}
+        Output formats when saving.
+    dpi : int
+        Resolution of raster output (PNG), dots per inch.
 
     Returns
     -------

@@ -59,6 +59,7 @@ class FigureEntry:
 
     @property
     def shown(self) -> str:
+        """The file the report shows: the GIF of an animation, else the PNG."""
         return f"{self.stem}.gif" if self.animation else f"{self.stem}.png"
 
 

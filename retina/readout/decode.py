@@ -194,6 +194,7 @@ class HeadingDecoder:
 
     @property
     def n_receptors(self) -> int:
+        """The number ``N`` of receptors the decoder reads."""
         return self.lam.shape[1]
 
     @classmethod
@@ -202,6 +203,30 @@ class HeadingDecoder:
         """A decoder whose model is ``signal`` (a ``SignalModel``) on ``n_grid`` headings from 0.
 
         ``degree`` uses the exact trigonometric interpolation of the signal model (faster).
+
+        Parameters
+        ----------
+        signal : retina.signal.noise.SignalModel
+            The forward model (also used as ``forward`` for ``refine="brent"``).
+        n_grid : int
+            Grid headings, >= 8, equally spaced from 0.
+        gain : {"known", "free"}
+            Whether the overall light level is known or profiled out.
+        refine : {"hermite", "parabolic", "brent", "none"}, optional
+            As for the class; "parabolic" with a world-fixed texture (no derivatives).
+        degree : int, optional
+            Harmonic degree of the yield function, for the exact interpolation.
+        **kwargs
+            ``ambiguity_ratio``, ``min_separation_deg``.
+
+        Returns
+        -------
+        HeadingDecoder
+
+        Raises
+        ------
+        InputError
+            Key ``n_grid``, for fewer than 8 or a fractional number of headings.
         """
         if int(n_grid) != n_grid or n_grid < 8:
             raise InputError(f"expected a heading grid of at least 8 points, got {n_grid}", key="n_grid")
@@ -228,7 +253,23 @@ class HeadingDecoder:
         return c
 
     def loglik(self, counts) -> np.ndarray:
-        """Grid log-likelihood ``(S, G)`` of counts ``(S, N)`` (see the module docstring)."""
+        """Grid log-likelihood of counts (module docstring), constants dropped.
+
+        Parameters
+        ----------
+        counts : array_like (S, N) or (N,)
+            Finite non-negative counts of the ``N`` receptors (one vector counts as ``S = 1``).
+
+        Returns
+        -------
+        ndarray (S, G)
+            Log-likelihood at each grid heading.
+
+        Raises
+        ------
+        InputError
+            Key ``counts``, for another shape or negative or non-finite counts.
+        """
         c = self._counts(counts)
         ll = counts_product(c, self._loglam_T)
         if self.gain == "known":
@@ -238,7 +279,26 @@ class HeadingDecoder:
         return ll
 
     def loglik_at(self, counts, headings_deg) -> np.ndarray:
-        """Exact log-likelihood ``(S, P)`` through the forward model at arbitrary headings."""
+        """Exact log-likelihood through the forward model at arbitrary headings.
+
+        Parameters
+        ----------
+        counts : array_like (S, N) or (N,)
+            Finite non-negative counts of the ``N`` receptors (one vector counts as ``S = 1``).
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+
+        Returns
+        -------
+        ndarray (S, P)
+            Log-likelihood, constants dropped as in :meth:`loglik`.
+
+        Raises
+        ------
+        InputError
+            Key ``decoder.forward`` when the decoder has no forward model; key ``counts`` for bad
+            counts.
+        """
         if self.forward is None:
             raise InputError("this decoder has no forward model", key="decoder.forward")
         c = self._counts(counts)
@@ -251,7 +311,27 @@ class HeadingDecoder:
 
     # -- decoding --------------------------------------------------------------------------------
     def decode(self, counts, *, chunk: int = 2000, progress=None) -> DecodeResult:
-        """Decode count vectors ``(S, N)`` (or one ``(N,)``); ``progress(done, total)`` per block."""
+        """Decode count vectors.
+
+        Parameters
+        ----------
+        counts : array_like (S, N) or (N,)
+            Finite non-negative counts of the ``N`` receptors (one vector counts as ``S = 1``).
+        chunk : int
+            Count vectors decoded per block (bounds the memory of the ``(chunk, G)`` likelihood).
+        progress : callable(done, total), optional
+            Called after each block with the vectors decoded so far.
+
+        Returns
+        -------
+        DecodeResult
+            ``S`` estimates with their ambiguity.
+
+        Raises
+        ------
+        InputError
+            Key ``counts``, for another shape or negative or non-finite counts.
+        """
         c = self._counts(counts)
         parts = []
         for s in range(0, c.shape[0], chunk):
@@ -261,7 +341,18 @@ class HeadingDecoder:
         return DecodeResult(*(np.concatenate([p[k] for p in parts]) for k in range(5)))
 
     def decode_one(self, counts) -> HeadingEstimate:
-        """Decode one count vector ``(N,)``."""
+        """Decode one count vector.
+
+        Parameters
+        ----------
+        counts : array_like (N,)
+            Finite non-negative counts.
+
+        Returns
+        -------
+        HeadingEstimate
+            The heading, degrees in [0, 360), with its candidates and ambiguity.
+        """
         return self.decode(np.asarray(counts)[None, :] if np.ndim(counts) == 1 else counts)[0]
 
     def _decode_block(self, c):
@@ -308,6 +399,18 @@ class HeadingDecoder:
         scale : float, optional
             Expected counts at each pose relative to the decoder's grid model; default ``1 / P``
             (a photon budget split over the scan, ``retina.readout.scans``).
+        chunk : int
+            Count vectors decoded per block.
+
+        Returns
+        -------
+        DecodeResult
+            ``S`` estimates, degrees in [0, 360).
+
+        Raises
+        ------
+        InputError
+            Key ``counts`` for another shape; key ``scan.offsets_deg`` for offsets off the grid.
 
         Notes
         -----

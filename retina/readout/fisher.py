@@ -232,7 +232,18 @@ class InformationCurve:
     parameter: str = "heading"
 
     def at_photons(self, photons) -> np.ndarray:
-        """Bound (degrees) for other light levels, shape ``(F, P)`` for ``photons (F,)``."""
+        """The bound at other light levels (the information is linear in the level).
+
+        Parameters
+        ----------
+        photons : float or array_like (F,)
+            Photons per receptor at each light level.
+
+        Returns
+        -------
+        ndarray, shape (F, P)
+            Cramer-Rao bound, degrees, per light level and heading (inf where there is no information).
+        """
         ph = np.atleast_1d(np.asarray(photons, dtype=float))
         return cramer_rao_deg(ph[:, None] * self.per_photon[None, :])
 

@@ -69,6 +69,7 @@ class TrialResult:
 
     @property
     def ambiguous_fraction(self) -> float:
+        """Fraction of the trials whose decode was ambiguous (0..1)."""
         return float(np.mean(self.ambiguous))
 
     @property

@@ -110,7 +110,18 @@ class UniformSky:
     """The same radiance (1) from every direction."""
 
     def radiance(self, world_dirs) -> np.ndarray:
-        """Radiance ``(...)`` of world unit directions ``(..., 3)``: all ones."""
+        """Radiance of the sky in world directions: all ones.
+
+        Parameters
+        ----------
+        world_dirs : array_like (..., 3)
+            Unit directions in the world frame (north-east-down).
+
+        Returns
+        -------
+        ndarray (...)
+            Relative radiance, 1 everywhere.
+        """
         return np.ones(np.asarray(world_dirs).shape[:-1])
 
 
@@ -144,6 +155,19 @@ class HorizonSky:
                              key="light.horizon_deg")
 
     def radiance(self, world_dirs) -> np.ndarray:
+        """Radiance in world directions: ``ground_ratio`` below the horizon, 1 above, joined by a
+        tanh step of width ``softness_deg`` (a sharp step when it is 0).
+
+        Parameters
+        ----------
+        world_dirs : array_like (..., 3)
+            Unit directions in the world frame (north-east-down).
+
+        Returns
+        -------
+        ndarray (...)
+            Relative radiance in ``[ground_ratio, 1]``.
+        """
         el = elevation_deg(world_dirs)
         if self.softness_deg == 0.0:
             s = (el >= self.horizon_deg).astype(float)
@@ -206,7 +230,19 @@ class SceneTexture:
         return np.exp(self.kappa * (dots - 1.0)) @ self._signs
 
     def factor(self, dirs) -> np.ndarray:
-        """Multiplicative factor ``(...)`` at unit directions ``(..., 3)`` in the attached frame."""
+        """The texture's multiplicative factor on the radiance.
+
+        Parameters
+        ----------
+        dirs : array_like (..., 3)
+            Unit directions in the frame the texture is attached to.
+
+        Returns
+        -------
+        ndarray (...)
+            ``exp(contrast z)`` with ``z`` the standardised random field; 1 everywhere at zero
+            contrast.
+        """
         d = np.asarray(dirs, dtype=float)
         z = (self._raw(d.reshape(-1, 3)) - self._mu) / self._sd
         return np.exp(self.contrast * z).reshape(d.shape[:-1])

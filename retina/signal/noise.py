@@ -100,7 +100,8 @@ def sample_counts(lam, rng=None, size: int | None = None) -> np.ndarray:
 
     Returns
     -------
-    ndarray of int64, shape (...) or (size, ...)
+    ndarray of float, shape (...) or (size, ...)
+        Whole-number counts, stored as floats.
     """
     lam = np.asarray(lam, dtype=float)
     if np.any(lam < 0) or not np.all(np.isfinite(lam)):
@@ -343,6 +344,7 @@ class SignalModel:
     # -- geometry ---------------------------------------------------------------------------------
     @property
     def n_receptors(self) -> int:
+        """The number ``N`` of receptors."""
         return int(np.asarray(self.receptors.solid_angle).shape[0])
 
     @property
@@ -351,15 +353,51 @@ class SignalModel:
         return field_direction(self.inclination_deg, self.declination_deg)
 
     def rotations(self, headings_deg) -> Rotation:
-        """Head-to-world rotations for headings (degrees) at the fixed pitch and roll."""
+        """Head-to-world rotations for headings at the fixed pitch and roll.
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+
+        Returns
+        -------
+        scipy.spatial.transform.Rotation
+            ``P`` rotations.
+        """
         return _pose_rotations(headings_deg, self.pitch_deg, self.roll_deg)
 
     def b_head(self, headings_deg) -> np.ndarray:
-        """Unit field direction in the head frame, ``(P, 3)``."""
+        """Unit field direction in the head frame at headings.
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+
+        Returns
+        -------
+        ndarray (P, 3)
+            Unit vectors, head frame.
+        """
         return head_field(self.rotations(headings_deg), self.b_world)
 
     def catch(self, headings_deg, *, photons: float | None = None) -> np.ndarray:
-        """Mean pairs formed per receptor, ``(P, N)`` (times ``gain``), see ``light.photon_catch``."""
+        """Mean pairs formed per receptor (times ``gain``), see :func:`retina.signal.light.photon_catch`.
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+        photons : float, optional
+            Light level instead of the model's own.
+
+        Returns
+        -------
+        ndarray (P, N)
+            Mean pairs per receptor per integration time; a read-only broadcast view when the
+            catch does not depend on the heading (no world-fixed texture).
+        """
         from retina.signal.light import photon_catch
 
         ph = self.photons if photons is None else photons
@@ -378,7 +416,18 @@ class SignalModel:
 
     # -- expected counts --------------------------------------------------------------------------
     def expected(self, headings_deg) -> np.ndarray:
-        """Expected counts ``lam (P, N)`` at headings (degrees)."""
+        """Expected counts at headings.
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+
+        Returns
+        -------
+        ndarray (P, N)
+            ``lam``: catch times yield, per receptor.
+        """
         h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
         y = np.asarray(self.retina.yields(self.b_head(h)), dtype=float).reshape(h.size, -1)
         return self.catch(h) * y
@@ -399,7 +448,18 @@ class SignalModel:
         return self.expected_and_derivative_at(self.rotations(headings_deg), wrt=wrt)
 
     def expected_at(self, rotations: Rotation) -> np.ndarray:
-        """Expected counts ``(P, N)`` for arbitrary head-to-world rotations (e.g. a head scan)."""
+        """Expected counts for arbitrary head-to-world rotations (e.g. a head scan).
+
+        Parameters
+        ----------
+        rotations : scipy.spatial.transform.Rotation
+            ``P`` head-to-world rotations (a single one counts as ``P = 1``).
+
+        Returns
+        -------
+        ndarray (P, N)
+            ``lam`` per pose and receptor.
+        """
         rot = _as_multi(rotations)
         y = np.asarray(self.retina.yields(head_field(rot, self.b_world)), dtype=float)
         return self._catch_rot(rot) * y.reshape(len(rot), -1)
@@ -414,6 +474,25 @@ class SignalModel:
         """Expected counts and derivatives ``((P, N), (P, N))`` for arbitrary head rotations.
 
         ``wrt="heading"`` differentiates with respect to a common yaw offset of all poses.
+
+        Parameters
+        ----------
+        rotations : scipy.spatial.transform.Rotation
+            ``P`` head-to-world rotations (a single one counts as ``P = 1``).
+        wrt : {"heading", "inclination"}
+            The parameter of the derivative.
+
+        Returns
+        -------
+        lam : ndarray (P, N)
+            Expected counts.
+        dlam : ndarray (P, N)
+            Their derivative, per radian.
+
+        Raises
+        ------
+        InputError
+            Key ``light.texture`` with a world-fixed texture; key ``wrt`` for another parameter.
         """
         if self.texture is not None and self.texture.attached == "world":
             raise InputError("derivatives with a world-fixed texture are not defined (it would add a "
@@ -457,6 +536,13 @@ class SignalModel:
         headings_deg : array_like, shape (P,)
         degree : int
             Harmonic degree ``L`` of the receptor responses (an upper bound is fine).
+
+        Returns
+        -------
+        lam : ndarray (P, N)
+            Expected counts.
+        dlam : ndarray (P, N)
+            Their heading derivative, per radian.
         """
         nodes, lam_n, dlam_n = self.fourier_nodes(degree)
         h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, dtype=float)))
@@ -466,8 +552,26 @@ class SignalModel:
     def fourier_nodes(self, degree: int):
         """The ``2 L + 1`` equally spaced node headings (degrees) and ``lam``, ``dlam`` there.
 
-        Returns ``(nodes (M,), lam (M, N), dlam (M, N))``; interpolate with
-        :func:`trig_interp_matrix` (see :meth:`expected_and_derivative_fourier`).
+        Interpolate with :func:`trig_interp_matrix` (see :meth:`expected_and_derivative_fourier`).
+
+        Parameters
+        ----------
+        degree : int
+            Harmonic degree ``L`` >= 0 (``M = 2 L + 1`` nodes).
+
+        Returns
+        -------
+        nodes : ndarray (M,)
+            Headings, degrees, from 0 in steps of ``360 / M``.
+        lam : ndarray (M, N)
+            Expected counts there.
+        dlam : ndarray (M, N)
+            Their heading derivative, per radian.
+
+        Raises
+        ------
+        InputError
+            Key ``degree``, for a negative or fractional degree.
         """
         L = int(degree)
         if L < 0 or L != degree:
@@ -479,7 +583,22 @@ class SignalModel:
 
     # -- noise ------------------------------------------------------------------------------------
     def sample(self, headings_deg, rng=None, size: int | None = None) -> np.ndarray:
-        """Poisson counts at headings: ``(P, N)`` or ``(size, P, N)``."""
+        """Poisson counts at headings (:func:`sample_counts`).
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+        rng : numpy.random.Generator or int, optional
+            Source of the draws (:func:`make_rng`).
+        size : int, optional
+            Number of independent repetitions, a leading axis.
+
+        Returns
+        -------
+        ndarray (P, N) or (size, P, N)
+            Whole-number counts, stored as floats.
+        """
         return sample_counts(self.expected(headings_deg), rng, size)
 
 

@@ -333,8 +333,9 @@ def _estimate(system, n_directions: int, method: str) -> Cost:
     if method == "sampled":
         from retina.spin import sampling
 
-        secs, mem, note = sampling.cost_model(system, n)
-        return Cost(secs, mem, method, note)
+        # worker processes over directions (RETINA_JOBS), each with its own working memory
+        secs, mem, note = sampling.cost_model(system, n, measured=True)
+        return Cost(secs / _jobs_speedup(), mem * _jobs(), method, note)
     if method == "separable":
         da, db = system.radicals[0].dimension, system.radicals[1].dimension
         pair_terms = da * da * db * db / 2.0
@@ -478,7 +479,7 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
         slope = 1.0 if system.initial_state == "singlet" else 1.0 / 3.0
         n_states, pilot_se = sampling.DEFAULT_STATES, None
         if accuracy is not None:
-            n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope)
+            n_states, pilot_se = sampling.states_for(system, field_uT, dirs, accuracy / slope, n_jobs=_jobs())
         res = sampling.sampled_yields(system, field_uT, dirs, n_states=n_states, progress=progress,
                                       n_jobs=_jobs())
         if info is not None:

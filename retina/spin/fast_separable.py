@@ -267,13 +267,15 @@ def _cheb_coeffs(k, h, wa, wb, tol_abs, n_nodes=40):
 # ------------------------------------------------------------------------------------------------
 
 @numba.njit(cache=True, nogil=True)
-def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, grid, mom, absw):
-    """Spread the nine real weights of every pair ``m < n`` onto ``grid (nf, 9)``, accumulate the
+def _spread_and_moments(lam, spt, szt, weight, h, nf, width, kpoly, inv_w, n_mom, grid, mom, absw):
+    """Spread the nine real weights of every pair ``m < n`` onto ``grid (9, nf)``, accumulate the
     Chebyshev moments ``mom (9, n_mom)`` of ``omega / W`` (sym components even orders, antisymmetric
     components odd orders; the others vanish) and the absolute weight sums ``absw (9,)``.
 
-    ``sp`` is ``S_+`` in the eigenbasis (so ``S_x = (S_+ + S_+^+)/2``, ``S_y = (S_+ - S_+^+)/2i``),
-    ``sz`` holds ``S_z`` on and above the diagonal; every weight is multiplied by ``weight`` (a
+    ``spt`` is the transpose of ``S_+`` in the eigenbasis (so ``S_x = (S_+ + S_+^+)/2``,
+    ``S_y = (S_+ - S_+^+)/2i``), ``szt`` the transpose of ``S_z`` holding it on and above the
+    diagonal (so on and below its own; transposes because BLAS returns Fortran-ordered products,
+    whose transposes are C-ordered views, no copies); every weight is multiplied by ``weight`` (a
     block's multiplicity, :mod:`retina.spin.equivalence`); the kernel's node values come from the
     polynomials ``kpoly`` of :func:`_kernel_poly`."""
     d = lam.shape[0]
@@ -285,11 +287,11 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, 
     rr = np.empty(9)
     for m in range(d):
         for n in range(m + 1, d):
-            p_mn = sp[m, n]
-            p_nm = sp[n, m].conjugate()
+            p_mn = spt[n, m]
+            p_nm = spt[m, n].conjugate()
             ax = 0.5 * (p_mn + p_nm)
             ay = -0.5j * (p_mn - p_nm)
-            az = sz[m, n]
+            az = szt[n, m]
             rr[0] = ax.real * ax.real + ax.imag * ax.imag
             rr[1] = ay.real * ay.real + ay.imag * ay.imag
             rr[2] = az.real * az.real + az.imag * az.imag
@@ -311,11 +313,14 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, 
             for q in range(1, n_coef):        # Horner's rule, vectorised across the nodes
                 for i in range(width):
                     ker[i] = ker[i] * x + kpoly[q, i]
+            g = i0 % nf                       # one modulo per pair, then a wrap test per node
             for i in range(width):
                 kv = ker[i]
-                g = (i0 + i) % nf
                 for c in range(9):
-                    grid[g, c] += rr[c] * kv
+                    grid[c, g] += rr[c] * kv
+                g += 1
+                if g == nf:
+                    g = 0
             xq = om * inv_w
             tp[0] = 1.0
             if n_mom > 1:
@@ -330,7 +335,8 @@ def _spread_and_moments(lam, sp, sz, weight, h, nf, width, kpoly, inv_w, n_mom, 
 
 
 def _eigen_spin(h_full, n_nuc):
-    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis.
+    """Eigenvalues (ascending), ``S_+`` and ``S_z`` (upper triangle) in the eigenbasis (Fortran
+    ordered, as BLAS returns them).
 
     The ``evr`` driver: at ``d = 576`` it took 0.28-0.34 s against 0.34-0.46 s for ``evd`` (best of
     six alternating calls, shared machine).  The matrix stays complex: a real symmetric form needs
@@ -347,30 +353,47 @@ def _eigen_spin(h_full, n_nuc):
     sz = scipy.linalg.blas.zherk(1.0, up, trans=2, lower=0)
     sz[np.diag_indices_from(sz)] -= 0.5
     sp = scipy.linalg.blas.zgemm(1.0, up, dn, trans_a=2)
-    return lam, np.ascontiguousarray(sp), np.ascontiguousarray(sz)
+    # both products come back Fortran-ordered (their transposes, which the pass reads, are
+    # C-ordered views: no copies)
+    return lam, sp, sz
+
+
+def _with_zeeman(h_hf, w):
+    """``h_hf + w . S`` for the electron as the first factor, in O(d) on a copy: ``w . S`` is
+    ``(w_z / 2) diag(1, -1)`` and ``(w_x -+ i w_y) / 2`` times the identity on the off-diagonal
+    halves (the electron spin matrices)."""
+    n = h_hf.shape[0] // 2
+    out = np.array(h_hf, dtype=complex, order="C")
+    idx = np.arange(n)
+    out[idx, idx] += 0.5 * w[2]
+    out[idx + n, idx + n] -= 0.5 * w[2]
+    out[idx, idx + n] += 0.5 * (w[0] - 1j * w[1])
+    out[idx + n, idx] += 0.5 * (w[0] + 1j * w[1])
+    return out
 
 
 def _radical_pass(blocks, h, n_t, width, n_mom, w_spread):
     """One radical's time series (n_t, 9) of Cs/Ca, the Chebyshev moments of its full spectra
     (9, n_mom) and its absolute weight sums (9,), from ``blocks = [(lam, sp, sz, multiplicity)]``."""
     nf = 4 * n_t
-    grid = np.zeros((nf, 9))
+    grid = np.zeros((9, nf))                    # component-major: each row transformed in place
     mom = np.zeros((9, n_mom))
     absw = np.zeros(9)
     diag = np.zeros(6)
     for lam, sp, sz, mult in blocks:
-        _spread_and_moments(lam, sp, sz, float(mult), h, nf, width, _kernel_poly(width), 1.0 / w_spread, n_mom,
+        _spread_and_moments(lam, sp.T, sz.T, float(mult), h, nf, width, _kernel_poly(width), 1.0 / w_spread, n_mom,
                             grid, mom, absw)
         dp = sp.diagonal()
         dx, dy, dz = dp.real, dp.imag, sz.diagonal().real        # diagonal of S_x, S_y, S_z
         diag += mult * np.array([dx @ dx, dy @ dy, dz @ dz, dx @ dy, dx @ dz, dy @ dz])
     # sum_g b_g e^{-2 pi i j g / nf}, transformed along contiguous rows
-    spec = scipy.fft.rfft(np.ascontiguousarray(grid.T), axis=1)[:, :n_t].T
-    psi = _psi_grid(n_t, width)[:, None]
-    series = np.empty((n_t, 9))
+    spec = scipy.fft.rfft(grid, axis=1, overwrite_x=True)[:, :n_t]
+    inv_psi = 2.0 / _psi_grid(n_t, width)[None, :]
+    series_t = np.empty((9, n_t))
     # G = conj(spec) / psi;  Cs = D + 2 Re G,  Ca = -2 Im G = 2 Im(spec) / psi
-    series[:, :6] = diag[None, :] + 2.0 * spec[:, :6].real / psi
-    series[:, 6:] = 2.0 * spec[:, 6:].imag / psi
+    series_t[:6] = diag[:, None] + spec[:6].real * inv_psi
+    series_t[6:] = spec[6:].imag * inv_psi
+    series = series_t.T                                               # (n_t, 9), a view
     # full-spectrum moments: sym comps even p only (+ diagonal at omega = 0), anti comps odd p only
     p = np.arange(n_mom)
     full = np.zeros((9, n_mom), dtype=complex)
@@ -420,7 +443,7 @@ def _one_direction(rads, bvec, k, tol):
         per = []
         for blk in blocks:
             w = bvec @ blk.zeeman
-            hmat = blk.h_hf + np.einsum("j,jab->ab", w, blk.s_e)
+            hmat = _with_zeeman(blk.h_hf, w)
             per.append(_eigen_spin(hmat, blk.dimension // 2) + (blk.multiplicity,))
         eig.append(per)
     spreads = [max(max(e[0][-1] - e[0][0] for e in per), 1e-30 * k) for per in eig]

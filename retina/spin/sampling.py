@@ -11,14 +11,21 @@ With the notation of :mod:`retina.spin.fast_separable`,
 ``C^r_ab(t) = Tr_r[S_a U^+ S_b U]``, ``U = exp(-i H_r t)``.  For a random vector ``z`` with
 independent entries of unit modulus and uniformly random phase, ``E[z z^+] = 1``, so
 ``Tr X = E[z^+ X z]`` for every operator ``X`` (Hutchinson's estimator; see e.g. A. Hutchinson,
-Commun. Stat. Simul. Comput. 18, 1059 (1989), from memory).  Hence
+Commun. Stat. Simul. Comput. 18, 1059 (1989), from memory).  The electron's two states are traced
+exactly and only the nuclear trace is sampled: with ``xi`` such a vector on the nuclei and
+``|e_i, xi>`` (``e_i`` = up, down; the electron is the first tensor factor),
+``Tr X = E[sum_i <e_i, xi| X |e_i, xi>]``.  Since ``S_a |e_i, xi> = sum_j (S_a)_ji |e_j, xi>``,
+the two propagated states ``psi_i = U |e_i, xi>`` give every component (derived):
 
-    c^r_ab(t; z) = Re <U S_a z | S_b | U z>
+    c^r_ab(t; xi) = Re sum_ij conj((S_a)_ji) <psi_j| S_b |psi_i>,
+    <psi_j| S_b |psi_i> = sum_st (S_b)_st <psi_j,s | psi_i,t>,
 
-is an unbiased estimate of ``C^r_ab(t)`` (``C`` is real).  Drawing one vector ``z_s^A`` for A and an
-independent ``z_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so
+an unbiased estimate of ``C^r_ab(t)`` (``C`` is real) from the 4 x 4 Gram matrix of the four
+nuclear half-vectors ``psi_i,s`` (electron component ``s``): two propagated vectors per draw
+instead of the four (``z`` and ``S_a z``) a full-space vector needs.  Drawing one ``xi_s^A`` for
+A and an independent ``xi_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so
 
-    Phi_s = 1/4 + (1/M) Q[ sum_ab c^A_ab(t; z_s^A) c^B_ab(t; z_s^B) ]
+    Phi_s = 1/4 + (1/M) Q[ sum_ab c^A_ab(t; xi_s^A) c^B_ab(t; xi_s^B) ]
 
 is unbiased up to the time quadrature ``Q`` (below), and ``R`` independent draws give the mean and
 its standard error ``std(Phi_s) / sqrt(R)`` (sample standard deviation): the error bar comes from
@@ -42,20 +49,25 @@ terms (``parts``), from which the standard error of any linear functional (a dif
 anisotropic part, a harmonic coefficient) follows.
 
 The size of the error: a random-phase estimate of ``Tr X`` has variance ``sum_{i != j} |X_ij|^2``
-(derived: ``E[z_i^* z_j z_k z_l^*]`` vanishes unless the indices pair up), at most
-``||X||_F^2 <= d / 16`` for ``X = S_a S_b(t)``, while ``Tr X`` grows as ``d``; so each radical's
-relative error falls as ``1 / sqrt(d)`` (typicality), and a pair with radicals 32 times larger
-needs about 32 times fewer states for the same relative error.
+(derived: ``E[z_i^* z_j z_k z_l^*]`` vanishes unless the indices pair up); with the electron traced
+exactly ``X`` is the nuclear operator ``Tr_e[S_a S_b(t)]``, whose squared Frobenius norm is at most
+``d / 16``, while ``Tr X`` grows as ``d``; so each radical's relative error falls as ``1 / sqrt(d)``
+(typicality), and a pair with radicals 32 times larger needs about 32 times fewer states for the
+same relative error.
 
-Each vector set ``[z, S_x z, S_y z, S_z z]`` is propagated on the time grid ``t_j = j h`` by
-Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff, J. Chem. Phys. 81, 3967
-(1984), from memory), accurate to 1e-13 in norm, with the spectral interval bounded by Gershgorin
-discs intersected with Weyl's bound (each hyperfine term's eigenvalues summed,
-:func:`retina.spin._spectral.hyperfine_interval`; no eigendecomposition of the radical, sparse matrix
-products only).  One expansion covers ``SUBSTEPS`` grid
-steps: the Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the
-intermediate grid times are their combinations with the coefficients
-``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)`` (one matrix product).  Groups of equivalent nuclei are reduced to
+The ``2 R`` vectors of a radical (a block of states, ``dim x 2R``) are propagated together on the
+time grid ``t_j = j h`` by Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff,
+J. Chem. Phys. 81, 3967 (1984), from memory), truncated at ``CHEB_TOL`` in norm, with a compiled
+sparse product (numba, real and imaginary parts apart) of the CSR Hamiltonian with the whole block.
+The spectral interval is rigorous: Gershgorin discs intersected with Weyl's bound taken one
+nucleus at a time (:func:`retina.spin._spectral.hyperfine_interval`) and a few nuclei at a time
+(:func:`retina.spin._spectral.grouped_interval`, the tight one: within about 7 % of the exact
+spread on the benchmark's random 10-nucleus radicals, against 60 % too wide per nucleus); no
+eigendecomposition of the radical.  One expansion covers ``m`` grid steps (:func:`_substeps`): the
+Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the intermediate grid
+times are their combinations with the coefficients ``(2 - delta_n0) (-i)^n J_n(a tau)`` (two real
+matrix products; the phase ``exp(-i c tau)``, common to the whole block, cancels in every Gram
+matrix and is left out).  Directions that are each other's opposites are sampled once.  Groups of equivalent nuclei are reduced to
 their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled with its multiplicity.
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
@@ -69,16 +81,18 @@ is real and even, ``sum_l c_l cos(j Omega_l h) = F(t_j)``, so the correction is
 ``sum_j gamma_j F(t_j)``, an end correction on the first ``J + 1`` samples.  Its error is at most
 ``(9/4)`` times the fit error; the truncation of the time integral at ``T`` adds at most
 ``(3/4) k h exp(-k T) / (1 - exp(-k h))``.  Their sum (``bias_bound``) is kept below ``bias_tol``
-(default 1e-7), far below the statistical error.
+(default 1e-6), far below the statistical error, and stated with every result.
 
-Cost per direction: ``~ (T / h) (a h SUBSTEPS + 15) / SUBSTEPS`` sparse products of each radical's
-Hamiltonian with ``4 R`` vectors, i.e. proportional to the hyperfine bandwidth times the lifetime,
-and linear in the radical dimension rather than cubic.
+Cost per direction: about ``a T (1 + 25 / (a h m))`` sparse products of each radical's Hamiltonian
+with ``2 R`` vectors (``a`` the Chebyshev half-width), i.e. proportional to the hyperfine bandwidth
+times the lifetime, and linear in the radical dimension rather than cubic (:func:`cost_model`).
 """
 
 from __future__ import annotations
 
+import functools
 import math
+import time
 from dataclasses import dataclass
 from typing import Callable
 
@@ -87,17 +101,20 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.special
 
-from retina.spin._spectral import aliasing_kernel, hyperfine_interval, spread_bound
+from retina.spin._spectral import GROUP_DIMENSION, aliasing_kernel, grouped_interval, hyperfine_interval, spread_bound
 from retina.spin.separable import _check_inputs, check_scope
+from retina.spin.operators import MU_B_OVER_HBAR
 from retina.spin.system import equal_rate_reported_yield
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "states_for", "DEFAULT_STATES",
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for",
+           "DEFAULT_STATES",
            "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES"]
 
 #: Default number of random vectors per radical (independent draws).
 DEFAULT_STATES = 16
-#: Default bound on the deterministic (quadrature and truncation) error.
-DEFAULT_BIAS_TOL = 1e-7
+#: Default bound on the deterministic (quadrature and truncation) error: a hundredth of the 1e-4
+#: standard errors typical of large pairs, and stated with every result (``bias_bound``).
+DEFAULT_BIAS_TOL = 1e-6
 _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
 _PAIRS = ((0, 0), (1, 1), (2, 2), (0, 1), (0, 2), (1, 2))
 
@@ -146,19 +163,75 @@ class SampledYields:
         return math.sqrt(var)
 
 
-def _sparse_ops(block, radical):
-    """``(s_e, h_hf, weyl)`` of a sparse block: its electron spin (three CSR matrices), hyperfine
-    Hamiltonian and the Weyl bounds of the latter's spectrum."""
-    return list(block.s_e), block.h_hf, _block_weyl(radical, block)
+def _model_spread(radical, field_uT: float) -> float:
+    """A deterministic bound on a radical's spectral spread for cost models: the grouped Weyl bound
+    (:func:`retina.spin._spectral.grouped_interval`) over all its nuclei for a field along z (every
+    total-spin block's spectrum lies inside the radical's)."""
+    w = (float(field_uT) * 1e-6) * (MU_B_OVER_HBAR * np.asarray(radical.g_matrix, dtype=float))[:, 2]
+    lo, hi = grouped_interval([(n.spin, n.hyperfine_mT) for n in radical.nuclei], w)
+    return hi - lo
+
+
+def _nnz_row(spins) -> float:
+    """Mean stored entries per row of a radical Hamiltonian with (pseudo-)nuclear spins ``spins``
+    (derived: the diagonal, one electron flip, and per nucleus of ``M = 2 J + 1`` states its
+    ``+-1`` steps, ``2 (M - 1) / M`` on average, with and without an electron flip)."""
+    return 2.0 + sum(4.0 * (2 * j) / (2 * j + 1) for j in spins)
+
+
+#: Seconds per stored entry and vector of one sparse product: the fixed value the method choice
+#: uses (so that it, part of the cache key, never depends on the machine's load); estimates use
+#: :func:`matvec_seconds`, measured once per process.
+_T_MATVEC = 2.0e-9
+#: Per term and vector element of the combination into states, per vector element of the
+#: correlation step, in units of the sparse product's time per entry and vector (ratios measured
+#: in one process at dimension 4608 with 8 vectors: 0.2 and 2.3); Python overhead per expansion, s.
+_R_COMB, _R_CORR, _T_GROUP = 0.2, 2.3, 3e-4
+
+
+@functools.lru_cache(maxsize=None)
+def matvec_seconds() -> float:
+    """Seconds per stored entry and vector of the compiled sparse product, measured once per
+    process (a CSR matrix of dimension 4096 with 25 entries a row in the pattern of a spin
+    Hamiltonian, like a 20-nucleus radical's, 8 vectors; the median of 5 calls), so that the
+    estimates follow the machine and its load.
+
+    Returns
+    -------
+    float
+    """
+    rng = np.random.default_rng(0)
+    d, n_vec = 4096, 8
+    # the pattern of a spin Hamiltonian in a product basis: each row couples to rows a power of
+    # two away (flips of one spin), both ways, plus the diagonal
+    offsets = np.unique(np.concatenate([[0], 2 ** np.arange(12), -(2 ** np.arange(12))]))
+    cols = np.sort((np.arange(d)[:, None] + offsets[None, :]) % d, axis=1)
+    per_row = cols.shape[1]
+    indptr = np.arange(0, d * per_row + 1, per_row, dtype=np.int32)
+    indices = cols.ravel().astype(np.int32)
+    dr, di = rng.normal(size=d * per_row), rng.normal(size=d * per_row)
+    x = [np.ascontiguousarray(rng.normal(size=(d, n_vec))) for _ in range(6)]
+    for _ in range(2):                                               # compiled, caches warm
+        _cheb_step(indptr, indices, dr, di, 2.0, x[0], x[1], -1.0, x[2], x[3], x[4], x[5])
+    times = []
+    for _ in range(5):
+        t0 = time.perf_counter()
+        _cheb_step(indptr, indices, dr, di, 2.0, x[0], x[1], -1.0, x[2], x[3], x[4], x[5])
+        times.append(time.perf_counter() - t0)
+    return float(np.median(times)) / (d * per_row * n_vec)
 
 
 def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
-               field_uT: float = 50.0) -> tuple[float, int, str]:
+               field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
+               measured: bool = False) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
-    Per direction and block: ``n_t = 17 / (k h)`` time steps of ``(a h SUBSTEPS + 15) / SUBSTEPS``
-    sparse products with ``4 R`` vectors (``~3e-9 s`` per stored entry and vector, plus ``2e-5 s``
-    per product and ``1e-4 s`` per step of Python overhead; rough, from small pairs).
+    Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
+    ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
+    25`` Chebyshev vectors per expansion of ``m`` steps, :func:`_substeps`) and one correlation
+    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Times in units of
+    the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
+    measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
     Parameters
     ----------
@@ -170,28 +243,40 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
         Random vectors per radical.
     field_uT : float
         Field strength in microtesla (for the spectral spread).
+    bias_tol : float
+        Bound on the deterministic error (sets the time span).
+    measured : bool
+        Use the sparse product's time measured on this machine instead of the fixed constant.
 
     Returns
     -------
     (float, int, str)
         Seconds, bytes and a note in words.
     """
-    from retina.spin.equivalence import reduced_dimensions
+    from retina.spin.equivalence import groups, multiplicities
 
     k = float(system.k_singlet)
-    spreads = [spread_bound(r, field_uT) for r in system.radicals]
+    t_mv = matvec_seconds() if measured else _T_MATVEC
+    spreads = [_model_spread(r, field_uT) for r in system.radicals]
     h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
-    n_t = 17.0 / (k * h)
+    n_t = math.log(1.5 / bias_tol) / (k * h) + 1
+    vec = 2 * int(n_states)
     secs = 0.0
     mem = 0
     for rad, spread in zip(system.radicals, spreads):
-        n_cheb = (0.5 * spread * h * SUBSTEPS + 15) / SUBSTEPS
-        nnz_row = 1 + 6 * len(rad.nuclei)
-        for dim, _ in reduced_dimensions(rad):
-            secs += n_t * (n_cheb * (2e-5 + 3e-9 * nnz_row * dim * 4 * n_states) + 1e-4)
-            # Chebyshev vectors (a h SUBSTEPS + 15 of them) and the states, 4 R columns each
-            n_vec = 0.5 * spread * h * SUBSTEPS + 15 + SUBSTEPS + 4
-            mem = max(mem, 16 * dim * (4 * n_states * n_vec + 4 * nnz_row))
+        a = 0.5 * spread
+        grp = groups(rad)
+        options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
+        import itertools
+
+        for choice in itertools.product(*options) if options else [()]:
+            dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j in choice])) if choice else 2
+            nnz = _nnz_row([j for j in choice if j > 0])
+            m = _substeps(a, h, nnz)
+            n_c = a * h * m + 25
+            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
+            secs += n_t * per_step
+            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
     # per-draw series of both radicals (R, n_t, 9) and their products
     mem += 8 * n_states * n_t * (2 * 9 + 4)
     note = (f"{n_directions} x stochastic trace estimates with {n_states} random states per radical, "
@@ -199,19 +284,30 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     return n_directions * secs, int(1.3 * mem + 2**20), note
 
 
-@numba.njit(cache=True, nogil=True)
-def _cheb_step(indptr, indices, data, alpha, x, beta, y, out):
-    """``out = alpha * (A @ x) + beta * y`` for a CSR matrix ``A`` and dense (d, n) ``x``, ``y``
-    (rows contiguous, so the inner loop runs over the vectors)."""
-    n_rows, n_cols = x.shape
+@numba.njit(cache=True, nogil=True, fastmath=True)
+def _cheb_step(indptr, indices, dr, di, alpha, xr, xi, beta, yr, yi, outr, outi):
+    """``out = alpha * (A @ x) + beta * y`` for a complex CSR matrix ``A`` (real and imaginary parts
+    of its entries ``dr``, ``di``) and a block of dense complex vectors held as real and imaginary
+    parts, each (d, n) with rows contiguous (the inner loop runs over the vectors; split parts let it
+    use SIMD arithmetic: measured three times faster than a complex loop on 8 vectors of 4608).
+    ``fastmath`` only permits reassociating the row sums, which changes rounding, not accuracy."""
+    n_rows, n_cols = xr.shape
+    accr = np.empty(n_cols)
+    acci = np.empty(n_cols)
     for i in range(n_rows):
         for c in range(n_cols):
-            out[i, c] = beta * y[i, c]
+            accr[c] = 0.0
+            acci[c] = 0.0
         for p in range(indptr[i], indptr[i + 1]):
-            a = alpha * data[p]
+            ar = dr[p]
+            ai = di[p]
             j = indices[p]
             for c in range(n_cols):
-                out[i, c] += a * x[j, c]
+                accr[c] += ar * xr[j, c] - ai * xi[j, c]
+                acci[c] += ar * xi[j, c] + ai * xr[j, c]
+        for c in range(n_cols):
+            outr[i, c] = alpha * accr[c] + beta * yr[i, c]
+            outi[i, c] = alpha * acci[c] + beta * yi[i, c]
 
 
 def _gershgorin(h):
@@ -230,15 +326,72 @@ def _interval(hm, weyl, w):
     return max(lo, weyl[0] - half), min(hi, weyl[1] + half)
 
 
-def _block_weyl(radical, block):
-    """Weyl bounds of one block's hyperfine Hamiltonian (its groups' total spins and tensors)."""
+@dataclass(frozen=True)
+class _Prepared:
+    """One total-spin block of a radical, ready for sampling: its sparse operators, the Weyl bounds
+    of its hyperfine Hamiltonian (one term per pseudo-nucleus) and the dense group Hamiltonians of
+    :func:`retina.spin._spectral.grouped_interval`."""
+
+    block: object
+    s_e: list
+    h_hf: sp.csr_matrix
+    weyl: tuple
+    group_ops: list
+
+    @property
+    def nuclear_dimension(self) -> int:
+        return self.h_hf.shape[0] // 2
+
+
+def _sparse_ops(block, radical):
+    """``(s_e, h_hf, weyl)`` of a sparse block: its electron spin (three CSR matrices), hyperfine
+    Hamiltonian and the Weyl bounds of the latter's spectrum."""
+    return list(block.s_e), block.h_hf, _block_weyl(radical, block)
+
+
+def _pseudo(radical, block):
     from retina.spin.equivalence import groups
 
-    grp = groups(radical)
-    return hyperfine_interval([(j, radical.nuclei[g[0]].hyperfine_mT) for j, g in zip(block.spins, grp)])
+    return [(j, radical.nuclei[g[0]].hyperfine_mT) for j, g in zip(block.spins, groups(radical))]
 
 
-def _cheb_coeffs(x: float, tol: float = 1e-13) -> np.ndarray:
+def _block_weyl(radical, block):
+    """Weyl bounds of one block's hyperfine Hamiltonian (its groups' total spins and tensors)."""
+    return hyperfine_interval(_pseudo(radical, block))
+
+
+def _prepare(radical) -> list:
+    """The radical's total-spin blocks (:mod:`retina.spin.equivalence`) as :class:`_Prepared`."""
+    from retina.spin._spectral import _group_operators
+    from retina.spin.equivalence import radical_blocks
+
+    out = []
+    for blk in radical_blocks(radical, sparse=True):
+        pseudo = _pseudo(radical, blk)
+        h_hf = blk.h_hf.tocsr()
+        out.append(_Prepared(blk, [x.tocsr() for x in blk.s_e], h_hf, hyperfine_interval(pseudo),
+                             _group_operators(pseudo, GROUP_DIMENSION)))
+    return out
+
+
+def _block_hamiltonian(pb: _Prepared, bvec):
+    """``(H, lo, hi)``: the block's Hamiltonian ``H_hf + w . S`` (CSR, rad s^-1) for the field
+    ``bvec`` (tesla) and rigorous bounds of its spectrum: Gershgorin, the per-nucleus Weyl bound
+    and the grouped Weyl bound (:func:`retina.spin._spectral.grouped_interval`) intersected."""
+    w = bvec @ pb.block.zeeman
+    hm = (pb.h_hf + w[0] * pb.s_e[0] + w[1] * pb.s_e[1] + w[2] * pb.s_e[2]).tocsr()
+    lo, hi = _interval(hm, pb.weyl, w)
+    g_lo, g_hi = grouped_interval(None, w, _ops=pb.group_ops)
+    return hm, max(lo, g_lo), min(hi, g_hi)
+
+
+#: Truncation of the Chebyshev (Bessel) series of one expansion, in norm: over the ~10^2 - 10^3
+#: expansions of a direction the states' error stays below ~1e-9 of their norm, far below the
+#: statistical error (each estimate is a normalised inner product of such states).
+CHEB_TOL = 1e-12
+
+
+def _cheb_coeffs(x: float, tol: float = CHEB_TOL) -> np.ndarray:
     """Coefficients ``(2 - delta_n0) (-i)^n J_n(x)`` of ``exp(-i x y)`` on ``y in [-1, 1]``."""
     n_max = int(x + 10)
     while True:
@@ -248,16 +401,28 @@ def _cheb_coeffs(x: float, tol: float = 1e-13) -> np.ndarray:
             break
         n_max += 8
     c = (2.0 - (n == 0)) * (-1j) ** n * j
-    keep = np.nonzero(np.abs(c) >= tol * 1e-3)[0]
+    keep = np.nonzero(np.abs(c) >= tol)[0]
     return c[: keep[-1] + 1]
 
 
-#: Grid steps per Chebyshev expansion (states at the intermediate grid times come from the same
-#: Chebyshev vectors with other coefficients, so a long expansion serves several grid times).
-SUBSTEPS = 8
+#: Cost of one sparse product per stored entry of a row, in units of one term of the combination
+#: of Chebyshev vectors into states (real matrix products): measured about 3.6 for a complex
+#: combination (23 entries a row, 8 vectors, dimension 4608; the combination runs at BLAS-3 speed,
+#: the sparse product does not), so about 7 for the real-and-imaginary split used here.
+_MATVEC_WEIGHT = 7.0
 
 
-def _sub_coeffs(a: float, c: float, h: float, m: int, tol: float = 1e-13) -> np.ndarray:
+def _substeps(a: float, h: float, nnz_row: float) -> int:
+    """Grid steps per Chebyshev expansion (derived): one expansion over ``m`` steps costs about
+    ``a h m + 25`` sparse products (the Bessel coefficients' tail adds about 25 terms at
+    ``CHEB_TOL``) and ``m (a h m + 25)`` terms of the combination into states, so per step
+    ``w (a h + 25 / m) + a h m + 25`` units with ``w = _MATVEC_WEIGHT nnz_row``, least at
+    ``m = sqrt(25 w / (a h))``."""
+    w = _MATVEC_WEIGHT * nnz_row
+    return int(min(128, max(4, round(math.sqrt(25.0 * w / max(a * h, 1e-3))))))
+
+
+def _sub_coeffs(a: float, c: float, h: float, m: int, tol: float = CHEB_TOL) -> np.ndarray:
     """``(N + 1, m)`` coefficients of ``exp(-i H tau_i)``, ``tau_i = i h`` (i = 1..m), on the
     Chebyshev vectors ``T_n((H - c) / a) v``: ``(2 - delta_n0) (-i)^n J_n(a tau) exp(-i c tau)``."""
     longest = _cheb_coeffs(a * h * m, tol)
@@ -267,52 +432,159 @@ def _sub_coeffs(a: float, c: float, h: float, m: int, tol: float = 1e-13) -> np.
     return (2.0 - (n == 0))[:, None] * ((-1j) ** n)[:, None] * j * np.exp(-1j * c * tau)[None, :]
 
 
-def _correlations(v, s_e, r, mult, out_row):
-    """Add one time's draw estimates (9 combinations per draw) to ``out_row (R, 9)``."""
-    phi = v[:, :r]
-    sb = np.stack([s_e[k] @ phi for k in range(3)], axis=1)         # S_b U z, (d, 3, R)
-    chi = v[:, r:].reshape(v.shape[0], 3, r)                       # U S_a z, (d, 3, R)
-    cab = np.einsum("iar,ibr->abr", chi.conj(), sb).real * mult
+def _electron_kernel() -> np.ndarray:
+    """``K[a, b, J, I] = conj((S_a)_ji) (S_b)_st`` with ``J = 2 j + s``, ``I = 2 i + t`` (3, 3, 4, 4)."""
+    from retina.spin.operators import spin_matrices
+
+    s = np.asarray(spin_matrices(0.5))
+    return np.einsum("aji,bst->abjsit", s.conj(), s).reshape(3, 3, 4, 4)
+
+
+_K = _electron_kernel()
+
+
+@numba.njit(cache=True, nogil=True, fastmath=True)
+def _gram(re, im, n, r, gr, gi):
+    """Gram matrices of each draw's four nuclear half-vectors at every time: ``g[t, s, J, I] =
+    <phi_J | phi_I>`` with ``phi = (psi_up top, psi_up bottom, psi_down top, psi_down bottom)``
+    of draw ``s``; ``re``, ``im`` (m, 2 n, 2 R), ``gr``, ``gi`` (m, R, 4, 4) real and imaginary
+    parts (overwritten)."""
+    m = re.shape[0]
+    for t in range(m):
+        for s in range(r):
+            # the ten distinct products (Hermitian), accumulated in scalars over the rows
+            r00 = r11 = r22 = r33 = 0.0
+            r01 = r02 = r03 = r12 = r13 = r23 = 0.0
+            i01 = i02 = i03 = i12 = i13 = i23 = 0.0
+            for q in range(n):
+                a0 = re[t, q, s]
+                b0 = im[t, q, s]
+                a1 = re[t, n + q, s]
+                b1 = im[t, n + q, s]
+                a2 = re[t, q, r + s]
+                b2 = im[t, q, r + s]
+                a3 = re[t, n + q, r + s]
+                b3 = im[t, n + q, r + s]
+                r00 += a0 * a0 + b0 * b0
+                r11 += a1 * a1 + b1 * b1
+                r22 += a2 * a2 + b2 * b2
+                r33 += a3 * a3 + b3 * b3
+                # conj(phi_a) phi_b = (a_a a_b + b_a b_b) + i (a_a b_b - b_a a_b)
+                r01 += a0 * a1 + b0 * b1
+                i01 += a0 * b1 - b0 * a1
+                r02 += a0 * a2 + b0 * b2
+                i02 += a0 * b2 - b0 * a2
+                r03 += a0 * a3 + b0 * b3
+                i03 += a0 * b3 - b0 * a3
+                r12 += a1 * a2 + b1 * b2
+                i12 += a1 * b2 - b1 * a2
+                r13 += a1 * a3 + b1 * b3
+                i13 += a1 * b3 - b1 * a3
+                r23 += a2 * a3 + b2 * b3
+                i23 += a2 * b3 - b2 * a3
+            gr[t, s, 0, 0] = r00
+            gr[t, s, 1, 1] = r11
+            gr[t, s, 2, 2] = r22
+            gr[t, s, 3, 3] = r33
+            gi[t, s, 0, 0] = gi[t, s, 1, 1] = gi[t, s, 2, 2] = gi[t, s, 3, 3] = 0.0
+            gr[t, s, 0, 1] = gr[t, s, 1, 0] = r01
+            gr[t, s, 0, 2] = gr[t, s, 2, 0] = r02
+            gr[t, s, 0, 3] = gr[t, s, 3, 0] = r03
+            gr[t, s, 1, 2] = gr[t, s, 2, 1] = r12
+            gr[t, s, 1, 3] = gr[t, s, 3, 1] = r13
+            gr[t, s, 2, 3] = gr[t, s, 3, 2] = r23
+            gi[t, s, 0, 1] = i01
+            gi[t, s, 1, 0] = -i01
+            gi[t, s, 0, 2] = i02
+            gi[t, s, 2, 0] = -i02
+            gi[t, s, 0, 3] = i03
+            gi[t, s, 3, 0] = -i03
+            gi[t, s, 1, 2] = i12
+            gi[t, s, 2, 1] = -i12
+            gi[t, s, 1, 3] = i13
+            gi[t, s, 3, 1] = -i13
+            gi[t, s, 2, 3] = i23
+            gi[t, s, 3, 2] = -i23
+
+
+def _correlations(re, im, n: int, r: int, mult: float, out):
+    """Add the draw estimates (9 combinations) at ``m`` times to ``out (R, m, 9)``.
+
+    ``re``, ``im`` (m, 2 n, 2 R): real and imaginary parts of the states; columns ``0..R-1`` are
+    ``psi_up = U |up, xi>``, the next ``R`` ``psi_down = U |down, xi>`` (electron the first factor,
+    so rows ``:n`` are the electron-up component).  ``<psi_j| S_b |psi_i> = sum_st (S_b)_st
+    <psi_j,s | psi_i,t>`` comes from the 4 x 4 Gram matrix of the four nuclear half-vectors of each
+    draw (module docstring)."""
+    m = re.shape[0]
+    gr = np.empty((m, r, 4, 4))
+    gi = np.empty((m, r, 4, 4))
+    _gram(re, im, n, r, gr, gi)
+    cab = (np.einsum("abJI,mrJI->rmab", _K.real, gr) - np.einsum("abJI,mrJI->rmab", _K.imag, gi)) * mult
     for ci, (ia, ib) in enumerate(_PAIRS):
-        out_row[:, ci] += 0.5 * (cab[ia, ib] + cab[ib, ia])
+        out[:, :, ci] += 0.5 * (cab[..., ia, ib] + cab[..., ib, ia])
     for ci, (ia, ib) in enumerate(_PAIRS[3:]):
-        out_row[:, 6 + ci] += 0.5 * (cab[ia, ib] - cab[ib, ia])
+        out[:, :, 6 + ci] += 0.5 * (cab[..., ia, ib] - cab[..., ib, ia])
 
 
-def _radical_series(blocks, vectors, bvec, h, n_t):
+def _radical_series(prepared, hams, xis, h, n_t):
     """Per-draw correlation estimates ``c_ab(t_j)``, shape (R, n_t, 9) (six symmetric, three
-    antisymmetric combinations as in :mod:`retina.spin.fast_separable`)."""
-    r = vectors[0].shape[1]
+    antisymmetric combinations as in :mod:`retina.spin.fast_separable`).
+
+    ``prepared``: the radical's blocks; ``hams``: ``(H, lo, hi)`` per block
+    (:func:`_block_hamiltonian`); ``xis``: the nuclear random vectors per block, ``(n, R)``."""
+    r = xis[0].shape[1]
     out = np.zeros((r, n_t, 9))
-    for (blk, (s_e, h_hf, weyl)), z in zip(blocks, vectors):
-        w = bvec @ blk.zeeman
-        hm = (h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr()
-        lo, hi = _interval(hm, weyl, w)
+    for pb, (hm, lo, hi), xi in zip(prepared, hams, xis):
+        n = pb.nuclear_dimension
         c = 0.5 * (lo + hi)
         a = max(0.5 * (hi - lo), 1e-30)
         hs = ((hm - c * sp.identity(hm.shape[0], format="csr")) / a).tocsr()
         hs.sort_indices()
-        hs.data = hs.data.astype(complex)
-        coef = _sub_coeffs(a, c, h, SUBSTEPS)                          # (N + 1, m)
-        # columns: z, S_x z, S_y z, S_z z for each draw
-        v = np.ascontiguousarray(np.concatenate([z] + [s_e[k] @ z for k in range(3)], axis=1))
-        mult = blk.multiplicity
-        _correlations(v, s_e, r, mult, out[:, 0])
+        dr = np.ascontiguousarray(hs.data.real)
+        di = np.ascontiguousarray(hs.data.imag)
+        m_sub = _substeps(a, h, hs.nnz / hs.shape[0])
+        # exp(-i H tau) = exp(-i c tau) sum_n b_n(tau) T_n((H - c)/a); the phase exp(-i c tau) is
+        # common to every vector of the block, so it cancels in every Gram matrix and is left out
+        # (each state below is the true one times that phase).  b_n = (2 - delta_n0) (-i)^n J_n(a
+        # tau) is real for even n and imaginary for odd n (b_n = i g_n), so with T_n v = X_n + i Y_n
+        # (derived): Re psi = sum_even b_n X_n - sum_odd g_n Y_n, Im psi = sum_even b_n Y_n +
+        # sum_odd g_n X_n.  Stored as rows A_n = (X_n if n even else Y_n) and B_n = (Y_n if n even
+        # else X_n), these are two real products, c_re @ A and c_im @ B: half the work of a
+        # complex combination.
+        coef = _sub_coeffs(a, 0.0, h, m_sub)                             # (N + 1, m), no phase
+        n_c = coef.shape[0]
+        odd = (np.arange(n_c) % 2 == 1)
+        # even n: b real, b X + i b Y; odd n: b = i g (g real), i g (X + i Y) = -g Y + i g X
+        c_re = np.where(odd[:, None], -coef.imag, coef.real).T.copy()   # (m, n_c) on A
+        c_im = np.where(odd[:, None], coef.imag, coef.real).T.copy()    # (m, n_c) on B
+        v = np.zeros((2 * n, 2 * r), dtype=complex)
+        v[:n, :r] = xi
+        v[n:, r:] = xi
+        mult = float(pb.block.multiplicity)
+        _correlations(np.ascontiguousarray(v.real)[None], np.ascontiguousarray(v.imag)[None], n, r, mult,
+                      out[:, 0:1])
+        rows_a = np.empty((n_c,) + v.shape)
+        rows_b = np.empty((n_c,) + v.shape)
+        xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
+        ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
+        xs[0][...] = v.real
+        ys[0][...] = v.imag
+        flat_a = rows_a.reshape(n_c, -1)
+        flat_b = rows_b.reshape(n_c, -1)
         j = 1
         while j < n_t:
-            m = min(SUBSTEPS, n_t - j)
-            # Chebyshev vectors of v, accumulated into the m later states at once
-            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by one matrix product
-            cheb = np.empty((coef.shape[0],) + v.shape, dtype=complex)
-            cheb[0] = v
-            if coef.shape[0] > 1:
-                _cheb_step(hs.indptr, hs.indices, hs.data, 1.0, v, 0.0, v, cheb[1])
-            for n in range(2, coef.shape[0]):
-                _cheb_step(hs.indptr, hs.indices, hs.data, 2.0, cheb[n - 1], -1.0, cheb[n - 2], cheb[n])
-            states = (coef[:, :m].T @ cheb.reshape(coef.shape[0], -1)).reshape((m,) + v.shape)
-            for i in range(m):
-                _correlations(states[i], s_e, r, mult, out[:, j + i])
-            v = states[m - 1]
+            m = min(m_sub, n_t - j)
+            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by two real matrix products
+            if n_c > 1:
+                _cheb_step(hs.indptr, hs.indices, dr, di, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
+            for k in range(2, n_c):
+                _cheb_step(hs.indptr, hs.indices, dr, di, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2], ys[k - 2],
+                           xs[k], ys[k])
+            re = (c_re[:m] @ flat_a).reshape((m,) + v.shape)
+            im = (c_im[:m] @ flat_b).reshape((m,) + v.shape)
+            _correlations(re, im, n, r, mult, out[:, j:j + m])
+            xs[0][...] = re[m - 1]
+            ys[0][...] = im[m - 1]
             j += m
     return out
 
@@ -334,8 +606,10 @@ def _end_correction(k: float, h: float, theta_max: float, tol: float):
     return gamma, err
 
 
-def _random_vectors(blocks, n_states, rng):
-    return [np.exp(2j * np.pi * rng.random((blk.dimension, n_states))) for blk, _ in blocks]
+def _random_vectors(prepared, n_states, rng):
+    """Nuclear random vectors ``xi (n, R)`` per block: independent entries of unit modulus and
+    uniformly random phase."""
+    return [np.exp(2j * np.pi * rng.random((pb.nuclear_dimension, n_states))) for pb in prepared]
 
 
 def _upper(dirs: np.ndarray) -> np.ndarray:
@@ -364,14 +638,12 @@ def _check_jobs(n_jobs) -> int:
 def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress):
     """Estimates, per-draw terms and bias bound for field vectors ``b_all (N, 3)`` (tesla, already
     on the upper hemisphere); the random vectors come from ``seed`` alone."""
-    from retina.spin.equivalence import radical_blocks
-
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
     rads = []
     for rad in system.radicals:
-        blocks = [(b, _sparse_ops(b, rad)) for b in radical_blocks(rad, sparse=True)]
-        rads.append((blocks, _random_vectors(blocks, int(n_states), rng)))
+        prepared = _prepare(rad)
+        rads.append((prepared, _random_vectors(prepared, int(n_states), rng)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     n_dir = b_all.shape[0]
     r = int(n_states)
@@ -379,22 +651,17 @@ def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progr
     mean = np.empty(n_dir)
     bias = 0.0
     for i, bvec in enumerate(b_all):
-        # spectral spread bound per radical (Gershgorin and Weyl), then the time grid
-        spreads = []
-        for blocks, _ in rads:
-            s = 0.0
-            for blk, (s_e, h_hf, weyl) in blocks:
-                w = bvec @ blk.zeeman
-                lo, hi = _interval((h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr(), weyl, w)
-                s = max(s, hi - lo)
-            spreads.append(max(s, 1e-30 * k))
+        # rigorous spectral bounds per block (Gershgorin, Weyl per nucleus and per group), then the
+        # time grid from the radicals' spreads
+        hams = [[_block_hamiltonian(pb, bvec) for pb in prepared] for prepared, _ in rads]
+        spreads = [max(max(hi - lo for _, lo, hi in hs), 1e-30 * k) for hs in hams]
         w_tot = spreads[0] + spreads[1]
         h = min(0.9 * np.pi / w_tot, 0.5 / k)
         kh = k * h
         gamma, fit_err = _end_correction(k, h, w_tot * h, bias_tol / 10.0)
         n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
         n_t = max(n_t, gamma.shape[0])
-        series = [_radical_series(blocks, vecs, bvec, h, n_t) for blocks, vecs in rads]
+        series = [_radical_series(prepared, hs, xis, h, n_t) for (prepared, xis), hs in zip(rads, hams)]
         decay = np.exp(-kh * np.arange(n_t))
 
         def quad(f):                 # the end-corrected trapezoid rule on the last axis (linear)
@@ -465,10 +732,17 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
                          key="estimator")
     if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
-    b_all = _upper(dirs) * (float(field_uT) * 1e-6)
-    n_dir = dirs.shape[0]
+    # directions that share an upper-hemisphere representative (b and -b) are sampled once
+    b_all, inverse = np.unique(_upper(dirs) * (float(field_uT) * 1e-6), axis=0, return_inverse=True)
+    inverse = np.asarray(inverse).ravel()
+    n_dir = b_all.shape[0]
     r = int(n_states)
     n_jobs = _check_jobs(n_jobs)
+    if progress is not None and n_dir != dirs.shape[0]:
+        outer, n_all = progress, dirs.shape[0]
+
+        def progress(done, total):          # in units of the directions asked for
+            outer(n_all if done >= total else done * n_all // total, n_all)
     if n_jobs == 1 or n_dir < 2:
         mean, parts, bias = _sample_directions(system, b_all, r, seed, bias_tol, estimator, progress)
     else:
@@ -492,6 +766,8 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
             bias = max(bias, b_i)
             if progress is not None:
                 progress(stop, n_dir)
+    mean = mean[inverse]
+    parts = [p[:, inverse] for p in parts]
     se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
     return SampledYields(mean, se, tuple(parts), bias, estimator, r)
 
@@ -502,7 +778,8 @@ MAX_STATES = 1024
 PILOT_STATES, PILOT_DIRECTIONS = 4, 6
 
 
-def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) -> tuple[int, float]:
+def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
+               n_jobs: int | None = None) -> tuple[int, float]:
     """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
 
     The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
@@ -520,6 +797,8 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) 
         Wanted standard error per (singlet-start singlet) yield, > 0.
     seed : int
         The final run's seed.
+    n_jobs : int, optional
+        Worker processes over the pilot's directions (as in :func:`sampled_yields`).
 
     Returns
     -------
@@ -533,7 +812,7 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0) 
                          key="accuracy")
     dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
     pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
-    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1)
+    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1, n_jobs=n_jobs)
     se = float(np.max(pilot.standard_error))
     r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
     return max(PILOT_STATES, min(MAX_STATES, r)), se

@@ -177,19 +177,54 @@ class GridModel:
         self.dlam1 = dlam
 
     def decoder(self, photons: float):
-        """The :class:`retina.readout.decode.HeadingDecoder` at ``photons`` per receptor."""
+        """The maximum-likelihood decoder on the grid at a light level.
+
+        Parameters
+        ----------
+        photons : float
+            Photons expected per receptor (the whole budget, for a scan split over its poses).
+
+        Returns
+        -------
+        retina.readout.decode.HeadingDecoder
+            On the ``G`` grid headings, with this model's gain setting.
+        """
         from retina.readout.decode import HeadingDecoder
 
         return HeadingDecoder(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
 
     def truth(self, photons: float):
-        """The signal model at ``photons`` per receptor."""
+        """The signal model that draws the counts at a light level.
+
+        Parameters
+        ----------
+        photons : float
+            Photons expected per receptor.
+
+        Returns
+        -------
+        retina.signal.noise.SignalModel
+            A copy of ``signal`` with ``photons`` replaced.
+        """
         return dataclasses.replace(self.signal, photons=float(photons))
 
     def expected(self, headings_deg, photons: float) -> np.ndarray:
         """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
         from ``2 L + 1`` headings (``SignalModel.expected_and_derivative_fourier``), far cheaper than
-        evaluating every receptor's harmonics at thousands of random headings."""
+        evaluating every receptor's harmonics at thousands of random headings.
+
+        Parameters
+        ----------
+        headings_deg : float or array_like (P,)
+            Headings, degrees.
+        photons : float
+            Photons expected per receptor.
+
+        Returns
+        -------
+        ndarray (P, N)
+            Expected counts of the ``N`` receptors, clipped at 0.
+        """
         from retina.signal.noise import trig_interp_matrix
 
         nodes, lam_n, _ = self.truth(photons).fourier_nodes(self.degree)   # the derivative is not needed here
@@ -197,7 +232,21 @@ class GridModel:
         return np.maximum(trig_interp_matrix(np.deg2rad(nodes), h, self.degree) @ lam_n, 0.0)
 
     def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
-        """Heading information per unit budget over the scan, at every grid heading ``(G,)``."""
+        """Heading information per unit budget over a scan, at every grid heading.
+
+        Parameters
+        ----------
+        offsets_deg : ndarray (P,)
+            Yaw offsets of the scan's poses from the heading, degrees (rounded to the grid); the
+            budget of one photon per receptor is split equally over the ``P`` poses.
+        nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
+            Unknown gains profiled out (:func:`retina.readout.scans.scan_information_grid`).
+
+        Returns
+        -------
+        ndarray (G,)
+            rad^-2 per photon, at each grid heading the scan is centred on.
+        """
         from retina.readout.scans import scan_information_grid
 
         sh = np.round(np.asarray(offsets_deg) * GRID / 360.0).astype(int)

@@ -92,6 +92,24 @@ def condition_record(cond: dict, fld) -> dict:
     """What determines a condition's yield function (plain values; for the cache key and the results).
 
     A coil becomes its angle to the static field (module docstring).
+
+    Parameters
+    ----------
+    cond : dict
+        One condition in the form of ``[[rf.conditions]]``: ``kind`` ("off", "tone" or "band"),
+        ``direction`` ("perpendicular", "parallel", "angle" or "coil") and the keys of its kind and
+        direction (``angle_deg``; ``coil`` (3,), world frame, any length; ``frequency_MHz``,
+        ``amplitude_nT``; ``band_MHz`` (2,), ``asd_nT_per_rtHz`` or ``rms_nT``).
+    fld : retina.eye.field.Field
+        The static field, for a coil's angle to it.
+
+    Returns
+    -------
+    dict
+        ``kind`` and ``direction``; for an angle or a coil ``angle_deg`` in [0, 90] degrees (a coil
+        and its reverse are one RF field) and the coil's ``coil`` (3,) list; for a tone
+        ``frequency_MHz`` and ``amplitude_nT``; for a band ``band_MHz`` (2-list), ``asd_nT_per_rtHz``
+        and ``rms_nT`` (one of them None).  Plain floats and lists, so ``json.dumps`` takes it.
     """
     from retina.eye.field import field_vector
 
@@ -132,6 +150,27 @@ def _key(system, field_uT, degree, check_points, rec, tol) -> str:
 def rf_yield_function_for(system, field_uT, rec: dict, *, degree: int, check_points: int = 6, tol: float = 1e-8,
                           cache: bool = True, progress=None):
     """The RF yield function of one condition record (:func:`condition_record`), cached by content.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+        The radical pair.
+    field_uT : float
+        Static field strength, microtesla.
+    rec : dict
+        A tone or band record from :func:`condition_record` (not "off").
+    degree : int
+        Even harmonic degree of the fit (the Lebedev grid of :func:`retina.sphere.grid_for_degree`).
+    check_points : int
+        Directions off the grid where the fit is checked (``fit_error``).
+    tol : float
+        Tolerance of the tone solvers (:func:`retina.spin.rf.rf_yield_function`); bands ignore it
+        except in the cache key.
+    cache : bool
+        Look the result up in, and store it to, the content-hash cache (:class:`retina.cache.YieldCache`).
+        A failed cache write is a warning; the result stands.
+    progress : callable(done, total), optional
+        Called while the engine works (it may raise :class:`retina.errors.Cancelled` to stop).
 
     Returns
     -------
@@ -241,9 +280,16 @@ def _metrics(sc: Scenario, built, yf, *, trials_at=None, scan=True) -> dict:
 def compute_rf(built, progress=None) -> dict | None:
     """Every RF condition of ``[rf]`` beside the control (module docstring); None without conditions.
 
+    Parameters
+    ----------
+    built : retina.build.Built
+        The scenario's built objects (scenario, field, receptors).
+    progress : callable(done, total), optional
+        Called after each condition, ``total`` the number of conditions C.
+
     Returns
     -------
-    dict
+    dict or None
         ``names`` (JSON list of the C condition names, the control "off" first unless the scenario
         lists its own), ``light_names`` (JSON list), ``light_photons (V,)``, ``degree``, and per
         condition ``i`` a sub-group ``conditions/c<i>`` with ``name``, ``record`` (JSON text),

@@ -85,7 +85,20 @@ def _with_lifetime(system, lifetime_us):
 
 def curve_frequencies(freqs_MHz, points: int) -> np.ndarray:
     """The sweep's curve frequencies: ``points`` log-spaced between the lowest and highest of
-    ``freqs_MHz``, joined with ``freqs_MHz`` itself (sorted, duplicates removed), MHz."""
+    ``freqs_MHz``, joined with ``freqs_MHz`` itself (sorted, duplicates removed), MHz.
+
+    Parameters
+    ----------
+    freqs_MHz : array_like (F,)
+        The swept frequencies, MHz, > 0, in any order.
+    points : int
+        Log-spaced points to add; fewer than 2, or a single distinct frequency, adds none.
+
+    Returns
+    -------
+    ndarray (Y,)
+        Increasing frequencies, MHz; ``Y <= F + points``.  Every swept frequency is among them.
+    """
     f = np.asarray(freqs_MHz, float)
     if points >= 2 and f.max() > f.min():
         f = np.concatenate([np.geomspace(f.min(), f.max(), int(points)), f])
@@ -214,14 +227,41 @@ class BoundModel:
         return self.w @ np.tensordot(c, self.lam, axes=1), self.w @ np.tensordot(c, self.dlam, axes=1)
 
     def info(self, coeffs) -> np.ndarray:
-        """Heading information per photon at the grid headings, ``(G,)``, for coefficients ``(K,)``."""
+        """Heading information per photon at the grid headings.
+
+    Parameters
+    ----------
+    coeffs : array_like (K,)
+        Yield-function coefficients of the model's degree.
+
+    Returns
+    -------
+    ndarray (G,)
+        Fisher information about the heading, rad^-2, with one photon expected per receptor (it
+        scales with the photon count), at the decoder grid's ``G`` headings
+        (:data:`retina.stages._common.GRID`, one-degree steps); with a free gain the
+        gain-marginalised (Schur complement) information.
+    """
         from retina.readout.fisher import gain_schur, poisson_information
 
         lam, dlam = self._counts(coeffs)
         return (gain_schur if self.gain else poisson_information)(np.maximum(lam, 0.0), dlam)
 
     def bound(self, coeffs, photons) -> np.ndarray:
-        """The rms bound (degrees) at each photon level, ``(V,)`` (:func:`rms_bound`)."""
+        """The rms Cramer-Rao bound over the grid headings at each photon level (:func:`rms_bound`).
+
+    Parameters
+    ----------
+    coeffs : array_like (K,)
+        Yield-function coefficients of the model's degree.
+    photons : array_like (V,)
+        Photons per receptor per look at each light level.
+
+    Returns
+    -------
+    ndarray (V,)
+        The bound, degrees.
+    """
         return rms_bound(np.asarray(photons, float), self.info(coeffs))
 
     def power_gradient(self, coeffs) -> np.ndarray:
@@ -230,6 +270,17 @@ class BoundModel:
         ``B^2`` is proportional to ``mean_h 1 / I_h``, so the gradient is
         ``-mean_h(I_h^-2 dI_h/dc) / mean_h(1 / I_h)``, with ``dI/dc_k`` of
         ``I = sum dlam^2 / lam [- (sum dlam)^2 / sum lam]`` taken term by term.
+
+        Parameters
+        ----------
+        coeffs : array_like (K,)
+            Yield-function coefficients where the gradient is taken (the control's, for the sweep).
+
+        Returns
+        -------
+        ndarray (K,)
+            ``d(B^2 / B0^2) / dc_k``, dimensionless per unit coefficient; independent of the light
+            level (the photon count scales ``B^2`` and ``B0^2`` alike).
         """
         lam, dlam = self._counts(coeffs)
         r = dlam / lam
@@ -312,6 +363,21 @@ def departure_frequency(freqs_MHz, response, fraction: float = 0.5) -> float:
     Derived (module docstring, "Two frequency scales"): below the pair's line spacings the
     response is ``C + A / (1 + (2 pi f / k)^2)`` with ``A`` and ``C`` set by the level structure,
     so this frequency is a fixed multiple of ``k / (2 pi)`` and moves as 1 / lifetime.
+
+    Parameters
+    ----------
+    freqs_MHz : array_like (F,)
+        Increasing frequencies, MHz, > 0; the first is taken as quasi-static.
+    response : array_like (F,)
+        The response at those frequencies (any unit).
+    fraction : float
+        Relative departure that counts, > 0.
+
+    Returns
+    -------
+    float
+        MHz, interpolated linearly in log frequency (:func:`first_crossing`); NaN when the response
+        never departs that far or its quasi-static value is 0.
     """
     r = np.asarray(response, float)
     if r[0] == 0:
@@ -325,6 +391,18 @@ def relative_anisotropy(coeffs, degree: int) -> float:
     Degree 2 exactly: an even function of degree <= 2 on the unit sphere is a quadratic form
     ``b^T M b`` (``M`` from its values at the axes and the axis bisectors), whose extremes are the
     eigenvalues of ``M``; higher degrees through :meth:`retina.yieldfn.YieldFunction.anisotropy`.
+
+    Parameters
+    ----------
+    coeffs : array_like (K,)
+        Coefficients of an even yield function, ``K = (L + 1)(L + 2) / 2``.
+    degree : int
+        Its even degree ``L``.
+
+    Returns
+    -------
+    float
+        ``(max - min) / mean`` over directions, dimensionless.
     """
     from retina import sphere
     from retina.yieldfn import YieldFunction
@@ -364,9 +442,16 @@ def _trial_r(sc, built, coeffs, degree: int, light: str) -> float:
 def compute_rf_sweep(built, progress=None) -> dict | None:
     """The frequency sweep of ``[rf]`` (module docstring, "Sweep"); None without ``sweep_MHz``.
 
+    Parameters
+    ----------
+    built : retina.build.Built
+        The scenario's built objects (scenario, field, receptors).
+    progress : callable(done, total), optional
+        Called once the bound model is built and after each lifetime (``total`` = lifetimes + 1).
+
     Returns
     -------
-    dict
+    dict or None
         At the swept frequencies ``freqs_MHz (F,)`` and amplitude ``amplitude_nT``:
         ``perp_bound_deg``/``par_bound_deg (T, F, V)`` (bounds from the second-order yield
         functions), ``perp_anisotropy``/``par_anisotropy (T, F)``; per lifetime

@@ -164,16 +164,31 @@ class SweepSpec:
 
     @property
     def n_points(self) -> int:
+        """The number of points (the product of :attr:`shape`)."""
         return int(np.prod(self.shape))
 
     def fingerprint(self) -> str:
-        """sha256 of everything that determines the points' numbers (not the name or description)."""
+        """sha256 of everything that determines the points' numbers (not the name or description).
+
+        Returns
+        -------
+        str
+            64 hex digits over the base scenario's text, ``combine``, ``seed``, ``quick``, ``[set]``,
+            the axes' keys and values and the outputs.
+        """
         rec = {"scenario": self.scenario_text(), "combine": self.combine, "seed": self.seed, "quick": self.quick,
                "fixed": _jsonable(self.fixed), "axes": [[a.key, _jsonable(list(a.values))] for a in self.axes],
                "outputs": list(self.outputs)}
         return hashlib.sha256(json.dumps(rec, sort_keys=True).encode()).hexdigest()
 
     def scenario_text(self) -> str:
+        """The base scenario file's text, for the fingerprint.
+
+        Returns
+        -------
+        str
+            The file's UTF-8 text; empty when it cannot be read (the loader has already checked it).
+        """
         try:
             return self.scenario_path.read_text(encoding="utf-8")
         except OSError:
@@ -203,14 +218,31 @@ class Point:
     scenario: Any
 
     def label(self) -> str:
-        """``name = value, ...`` for messages."""
+        """The point's axis values, for messages.
+
+        Returns
+        -------
+        str
+            ``name = value, ...`` in axis order (floats in ``%g`` form).
+        """
         return ", ".join(f"{k} = {_fmt(v)}" for k, v in self.params.items())
 
     def digest(self, extra: str = "") -> str:
         """sha256 (16 hex digits) of the index, the axis values, the seed and ``extra`` (the run passes
         the yield function's key, which hashes the pair file's content): names the point's result
         file, independent of where the folder lies (the sweep as a whole is checked by
-        :meth:`SweepSpec.fingerprint`)."""
+        :meth:`SweepSpec.fingerprint`).
+
+        Parameters
+        ----------
+        extra : str
+            More text to hash with the point.
+
+        Returns
+        -------
+        str
+            The first 16 hex digits of the sha256.
+        """
         rec = json.dumps([self.index, _jsonable(self.params), self.scenario.seed, extra], sort_keys=True)
         return hashlib.sha256(rec.encode()).hexdigest()[:16]
 
