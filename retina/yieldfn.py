@@ -270,7 +270,12 @@ class YieldFunction:
 
         A dense Fibonacci lattice on the upper hemisphere (``n_search`` points, default
         ``max(2000, 30 (L + 1)^2)``) gives candidates, refined by L-BFGS-B on the sphere
-        (tangent-plane coordinates around each candidate, analytic gradient).
+        (tangent-plane coordinates around each candidate, analytic gradient).  At degree 2
+        (without ``n_search``) the extremes are exact and need no search: the function is the
+        quadratic form ``b^T M b`` on the unit sphere (:meth:`_quadratic_form`), whose largest and
+        smallest values are the extreme eigenvalues of ``M``, taken at their eigenvectors.
+        When two eigenvalues are equal (an axially symmetric function) the direction of that
+        extreme is any unit vector of their eigenplane; one of them is returned.
 
         Parameters
         ----------
@@ -290,6 +295,16 @@ class YieldFunction:
             m = self.mean
             z = np.array([0.0, 0.0, 1.0])
             return Anisotropy(m, m, m, 0.0, 0.0, z.copy(), z.copy())
+        if L == 2 and n_search is None:
+            w, V = np.linalg.eigh(self._quadratic_form())
+            mean = self.mean
+            mx, mn = float(w[2]), float(w[0])
+            amax, amin = canonical_axis(V[:, 2]), canonical_axis(V[:, 0])
+            amax.flags.writeable = False
+            amin.flags.writeable = False
+            rel = (mx - mn) / mean if mean != 0 else float("inf")
+            self._anisotropy = Anisotropy(mx, mn, mean, mx - mn, rel, amax, amin)
+            return self._anisotropy
         n = int(n_search or max(2000, 30 * (L + 1) ** 2))
         pts = sphere.fibonacci(n, hemisphere=True).points
         vals = self(pts)
@@ -309,6 +324,24 @@ class YieldFunction:
         if n_search is None:
             self._anisotropy = result
         return result
+
+    def _quadratic_form(self) -> np.ndarray:
+        """The symmetric ``M (3, 3)`` with ``Phi(b) = b^T M b`` on the unit sphere (degree <= 2).
+
+        Derivation: on the unit sphere ``Y_00`` is a constant times ``|b|^2`` and the five
+        degree-2 real harmonics are traceless quadratic forms in ``b``, so an even function of
+        degree 2 is ``b^T M b``.  ``M_kk = Phi(e_k)`` and, from ``Phi((e_j + e_k)/sqrt 2) =
+        (M_jj + M_kk)/2 + M_jk``, the off-diagonal terms follow from three more values.
+        """
+        if self._degree > 2:
+            raise ValueError("a quadratic form exists only up to degree 2")
+        r = np.sqrt(0.5)
+        pts = np.array([[1, 0, 0], [0, 1, 0], [0, 0, 1], [r, r, 0], [r, 0, r], [0, r, r]], float)
+        v = self(pts)
+        M = np.diag(v[:3])
+        for k, (i, j) in enumerate(((0, 1), (0, 2), (1, 2))):
+            M[i, j] = M[j, i] = v[3 + k] - 0.5 * (v[i] + v[j])
+        return M
 
     def _refine(self, b0: np.ndarray, sign: float) -> tuple[np.ndarray, float]:
         """Minimise ``sign * Phi`` starting at ``b0`` in tangent coordinates ``b = norm(b0 + u1 e1 + u2 e2)``."""

@@ -217,3 +217,33 @@ def test_scan_decoding_blocks_match_a_per_pose_reference(gain):
     assert np.all(np.abs(d) <= 0.5 * dec.step_deg + 1e-9)   # parabolic refinement stays in the cell
     # Blocks change the BLAS summation order, so the refined headings agree to rounding, not bit for bit.
     np.testing.assert_allclose(dec.decode_scan(c, off).heading_deg, res.heading_deg, rtol=0, atol=1e-8)
+
+
+def test_sparse_counts_product_equals_the_dense_product():
+    # counts_product multiplies mostly-zero counts as a sparse matrix; reference: numpy's dense
+    # product of the same arrays (equal up to rounding), and decoding dim head-scan counts gives
+    # the same headings either way.
+    from retina.readout import decode as D
+
+    rng = np.random.default_rng(8)
+    m = rng.normal(size=(400, 36))
+    c = rng.poisson(0.01, size=(300, 400)).astype(float)
+    assert np.count_nonzero(c) < D.SPARSE_DENSITY * c.size        # takes the sparse path
+    np.testing.assert_allclose(D.counts_product(c, m), c @ m, rtol=1e-12, atol=1e-12)
+    dense = rng.poisson(3.0, size=(20, 400)).astype(float)
+    np.testing.assert_array_equal(D.counts_product(dense, m), dense @ m)   # the dense path is numpy's
+    G, N, P = 72, 300, 5
+    h = np.arange(G) * 360.0 / G
+    ph = rng.uniform(0, 2 * np.pi, N)
+    lam1 = 1.0 + 0.3 * np.cos(np.radians(h)[:, None] + ph[None, :])
+    dec = D.HeadingDecoder(h, lam1, gain="known", refine="parabolic")
+    off = np.array([-10.0, -5.0, 0.0, 5.0, 10.0])
+    counts = rng.poisson(0.004, size=(200, P, N)).astype(float)
+    got = dec.decode_scan(counts, off)
+    old, D.SPARSE_DENSITY = D.SPARSE_DENSITY, 0.0                  # force the dense product
+    try:
+        ref = dec.decode_scan(counts, off)
+    finally:
+        D.SPARSE_DENSITY = old
+    np.testing.assert_allclose(got.heading_deg, ref.heading_deg, atol=1e-9)
+    np.testing.assert_array_equal(got.ambiguous, ref.ambiguous)

@@ -156,6 +156,46 @@ def test_scan_filmstrip_and_animation(tmp_path, retina_points):
     assert not list(tmp_path.glob(".*part")) and not list(tmp_path.glob(".scan.*"))  # no temporaries left
 
 
+def test_animation_blitting_matches_full_redraws(retina_points):
+    # The GIF's frames redraw only what changes (the colour meshes, the artists above them, the
+    # marks and the title) onto a saved background.  Reference: the same frames drawn in full by
+    # matplotlib's Agg canvas, one complete draw per frame; blitting draws the same artists in
+    # the same order, so the pixels agree exactly.
+    from retina.figures.visual_fields import scan_frames
+
+    vis, eye = retina_points
+    yaw = np.linspace(-60, 60, 5)
+    B = b_head_for(yaw)
+    mod = np.array([0.03 * ((vis @ b) ** 2 - 1 / 3) for b in B])
+    fast = scan_frames(vis, eye, mod, yaw, B, dpi=50)
+    full = scan_frames(vis, eye, mod, yaw, B, dpi=50, blit=False)
+    assert len(fast) == len(full) == yaw.size
+    for a, b in zip(fast, full):
+        assert a.shape == b.shape and np.array_equal(a, b)
+    assert not np.array_equal(fast[0], fast[-1])        # the frames do change
+
+
+def test_animation_palette_is_shared_and_keeps_white():
+    # One palette for every frame (no colour flicker), pure white kept exactly, and each pixel
+    # mapped to a near colour: 255 octree colours for 360 colours of smooth ramps leave every
+    # pixel within a few levels per channel (12 of 255 allowed; common practice, no source).
+    from retina.figures.visual_fields import _palette_frames
+
+    x = np.linspace(0.0, 1.0, 120)
+    frames = []
+    for k in range(3):
+        f = np.full((40, 120, 3), 255, np.uint8)
+        ramp = np.stack([200 * x, 60 + 100 * x * (k + 1) / 3, 220 - 200 * x], axis=1)
+        f[10:30] = np.round(ramp).astype(np.uint8)[None]
+        frames.append(f)
+    ims = _palette_frames(frames)
+    assert len({tuple(im.getpalette()) for im in ims}) == 1
+    for im, f in zip(ims, frames):
+        a = np.asarray(im.convert("RGB")).astype(int)
+        assert (a[:10] == 255).all()
+        assert np.abs(a - f).max() <= 12
+
+
 def test_precision_and_disorder(tmp_path):
     n = np.logspace(0, 5, 11)
     F.precision_curves(n, {"single pose": 30 / np.sqrt(n), "scan": 10 / np.sqrt(n)},
@@ -178,6 +218,55 @@ def test_trial_histograms_mean_vector(tmp_path):
     for lab, ang in data.items():
         mu = np.degrees(stats.circmean(np.radians(ang)))
         assert f"{lab}: n = 60, mean {mu:.1f} deg" in fig.retina_caption
+
+
+def _tight_reference(fig, path, dpi):
+    # matplotlib's own tight save: a layout draw, then a draw shifted by the box's corner
+    fig.savefig(path, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.03)
+    return np.asarray(Image.open(path).convert("RGB")).astype(int)
+
+
+def test_png_from_one_draw_matches_matplotlib_tight_save(tmp_path):
+    # save_figure crops the PNG out of one full Agg draw and reuses that box for the SVG.
+    # Reference: matplotlib's savefig(bbox_inches="tight").  The crop may differ from it only by
+    # the sub-pixel part of the shift: same size within a pixel, and only antialiased edges differ.
+    from retina.figures._base import new_figure, style
+
+    with style():
+        fig = new_figure(3.5, 2.4)
+        ax = fig.add_subplot()
+        x = np.linspace(0, 10, 200)
+        ax.plot(x, np.sin(x))
+        ax.set_xlabel("x label")
+        ax.set_title("a title")
+    F.save_figure(fig, tmp_path / "one", formats=("png", "svg"), dpi=150)
+    ours = np.asarray(Image.open(tmp_path / "one.png").convert("RGB")).astype(int)
+    ref = _tight_reference(fig, tmp_path / "ref.png", 150)
+    assert abs(ours.shape[0] - ref.shape[0]) <= 1 and abs(ours.shape[1] - ref.shape[1]) <= 1
+    h, w = min(ours.shape[0], ref.shape[0]), min(ours.shape[1], ref.shape[1])
+    d = np.abs(ours[:h, :w] - ref[:h, :w]).max(axis=2)
+    assert (d > 64).mean() < 0.01 and d.mean() < 2.0
+    assert Image.open(tmp_path / "one.png").info["Software"] == "retina-compass"
+    assert abs(Image.open(tmp_path / "one.png").info["dpi"][0] - 150) < 0.5
+    svg = (tmp_path / "one.svg").read_text()
+    assert "<svg" in svg
+
+
+def test_png_of_a_figure_with_an_artist_outside_it_keeps_the_artist(tmp_path):
+    # A text placed beyond the figure's right edge: the tight box leaves the figure, so there is
+    # nothing to crop and the PNG is saved the usual way (reference: matplotlib's tight save).
+    from retina.figures._base import new_figure, style
+
+    with style():
+        fig = new_figure(2.0, 1.5)
+        ax = fig.add_subplot()
+        ax.plot([0, 1], [0, 1])
+        fig.text(1.3, 0.5, "outside")
+    F.save_figure(fig, tmp_path / "out", formats=("png",), dpi=100)
+    ours = np.asarray(Image.open(tmp_path / "out.png").convert("RGB"))
+    assert ours.shape[1] > 2.0 * 100 + 10                # wider than the figure: the text is in
+    ref = _tight_reference(fig, tmp_path / "ref.png", 100)
+    assert ours.shape == ref.shape
 
 
 def test_pdf_metadata_and_errors(tmp_path):

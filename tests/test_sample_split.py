@@ -90,3 +90,45 @@ def test_counts_do_not_depend_on_the_thread_count():
     a = sample_counts_split(lam, np.random.default_rng(9), threads=1)
     b = sample_counts_split(lam, np.random.default_rng(9), threads=2)
     np.testing.assert_array_equal(a, b)
+
+
+def test_walked_rows_near_the_threshold_follow_the_poisson_law():
+    # Rows with a mean just below SPLIT_MEAN (cells from 0.01 to 3.5 expected counts) are walked.
+    # Reference: scipy.stats.poisson (pmf, sf) and scipy.stats.chisquare, per cell group.
+    rng = np.random.default_rng(21)
+    lam_row = np.concatenate([np.full(50, 0.01), np.full(50, 0.9), np.full(50, 2.0), np.full(50, 3.5)])
+    assert lam_row.mean() < SPLIT_MEAN
+    n = sample_counts_split(np.broadcast_to(lam_row, (3000, lam_row.size)), rng)
+    for lo, mu in ((0, 0.01), (50, 0.9), (100, 2.0), (150, 3.5)):
+        x = n[:, lo:lo + 50].ravel().astype(int)
+        kmax = 10
+        obs = np.array([np.sum(x == k) for k in range(kmax)] + [np.sum(x >= kmax)])
+        p = np.append(stats.poisson.pmf(np.arange(kmax), mu), stats.poisson.sf(kmax - 1, mu))
+        exp = p * x.size
+        keep = exp >= 5
+        obs2, exp2 = np.append(obs[keep], obs[~keep].sum()), np.append(exp[keep], exp[~keep].sum())
+        chi = stats.chisquare(obs2[exp2 > 0], exp2[exp2 > 0])
+        assert chi.pvalue > 1e-3, (mu, obs, exp)
+
+
+def test_walk_resumes_exactly_when_its_gaps_run_out():
+    # Derived: the walk's state (cell, length of it still ahead, its arrivals so far) is all it
+    # carries between gaps, so feeding the same gap sequence in pieces gives the same counts.
+    from retina.signal.noise import _poisson_walk
+
+    rng = np.random.default_rng(3)
+    cells = rng.uniform(0.0, 1.0, 500)
+    cells[::7] = 0.0
+    gaps = rng.standard_exponential(2000)
+    whole = np.empty_like(cells)
+    k, _, _ = _poisson_walk(cells, gaps, whole, 0, float(cells[0]), 0)
+    assert k == cells.size
+    pieces = np.empty_like(cells)
+    state, start = (0, float(cells[0]), 0), 0
+    for size in (1, 5, 17, 60, 2000):
+        state = _poisson_walk(cells, gaps[start:start + size], pieces, *state)
+        start += size
+        if state[0] == cells.size:
+            break
+    np.testing.assert_array_equal(pieces, whole)
+    assert np.all(whole[::7] == 0)

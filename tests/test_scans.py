@@ -121,3 +121,28 @@ def test_bad_input():
         scans.uniform_sweep(0.0, -5.0, 3)
     with pytest.raises(InputError, match="budget"):
         scans.scan_information(synthetic_signal(n=3), scans.uniform_sweep(0, 10, 3), 0.0)
+
+
+@pytest.mark.parametrize("nuisance", scans.SCAN_NUISANCES)
+def test_information_over_the_heading_grid_equals_one_scan_at_a_time(nuisance):
+    # scan_information_grid regroups the sums of scan_information_arrays (per-row terms summed
+    # along the shifted rows).  Reference: scan_information_arrays called once per start heading
+    # on the rows that scan visits, budget split over its poses (its definition).
+    rng = np.random.default_rng(5)
+    G, N = 36, 50
+    lam = rng.uniform(0.5, 2.0, (G, N))
+    lam[3, 7] = 0.0                              # a receptor with no light at one heading
+    dlam = rng.normal(0.0, 0.3, (G, N))
+    shifts = np.array([-4, -2, 0, 2, 4, 9])
+    rows = (np.arange(G)[:, None] + shifts[None, :]) % G
+    ref = np.array([scans.scan_information_arrays(lam[r] / shifts.size, dlam[r] / shifts.size, nuisance)
+                    for r in rows])
+    got = scans.scan_information_grid(lam, dlam, shifts, nuisance)
+    np.testing.assert_allclose(got, ref, rtol=1e-12, atol=1e-14)
+    # one pose: the same as a static look, and exactly zero with an unknown texture
+    one = scans.scan_information_grid(lam, dlam, [0], nuisance)
+    if nuisance == "receptor_gain":
+        assert np.all(one == 0.0)
+    else:
+        np.testing.assert_allclose(one, [scans.scan_information_arrays(lam[[g]], dlam[[g]], nuisance)
+                                         for g in range(G)], rtol=1e-12)

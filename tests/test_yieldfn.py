@@ -150,6 +150,32 @@ def test_anisotropy_against_brute_force_search():
     assert f(an.argmax[None])[0] == pytest.approx(an.max, abs=1e-14)
 
 
+def test_degree_two_extremes_in_closed_form():
+    # Degree 2: the extremes are the extreme eigenvalues of the quadratic form b^T M b
+    # (derived in YieldFunction._quadratic_form).  Checked against a known form and against the
+    # general search (lattice + L-BFGS-B, forced with n_search) as an independent method.
+    a, b, c = 0.25, 0.08, 0.03
+    u = np.array([0.2, 0.9, -0.4]) / np.linalg.norm([0.2, 0.9, -0.4])
+    w = np.cross(u, [0.0, 0.0, 1.0])
+    w /= np.linalg.norm(w)
+    fun = lambda n: a + b * (n @ u) ** 2 + c * (n @ w) ** 2  # noqa: E731
+    grid = sphere.grid_for_degree(2)
+    yf = YieldFunction.from_values(fun(grid.points), grid, 2)
+    M = yf._quadratic_form()
+    # Derived: M = a I + b u u^T + c w w^T
+    np.testing.assert_allclose(M, a * np.eye(3) + b * np.outer(u, u) + c * np.outer(w, w), atol=1e-14)
+    an = yf.anisotropy()
+    assert an.max == pytest.approx(a + b, abs=1e-14) and an.min == pytest.approx(a, abs=1e-14)
+    assert np.linalg.norm(an.argmax - canonical_axis(u)) < 1e-12
+    assert np.linalg.norm(an.argmin - canonical_axis(np.cross(u, w))) < 1e-12
+    for seed in range(5):
+        f = random_function(2, np.random.default_rng(seed))
+        exact, searched = f.anisotropy(), f.anisotropy(n_search=2000)
+        assert exact.max == pytest.approx(searched.max, abs=1e-12)
+        assert exact.min == pytest.approx(searched.min, abs=1e-12)
+        assert abs(exact.argmax @ searched.argmax) == pytest.approx(1.0, abs=1e-9)
+
+
 def test_constructor_checks():
     with pytest.raises(ValueError, match="needs 15 coefficients"):
         YieldFunction(np.zeros(6), 4)

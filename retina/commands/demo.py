@@ -18,7 +18,7 @@ DEFAULT_OUTPUT = "retina-demo"
 
 _EXAMPLES = """\
 examples:
-  retina demo                      the full demo into ./retina-demo (about two minutes on 2 cores)
+  retina demo                      the full demo into ./retina-demo (under a minute on 2 cores)
   retina demo -o /tmp/demo --force write elsewhere, replacing an earlier run
   retina demo --quick              a reduced run (smaller grids, fewer receptors and trials)
   retina demo --scenario my.toml   the same job on your own scenario

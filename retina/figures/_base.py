@@ -6,6 +6,7 @@ from pathlib import Path
 from typing import Iterable, Sequence
 
 import matplotlib
+import numpy as np
 from matplotlib.figure import Figure
 
 from retina.errors import InputError
@@ -114,11 +115,20 @@ def save_figure(fig: Figure, stem: str | Path, formats: Sequence[str] = ("png", 
     if metadata:
         title = metadata.get("Title", title)
         desc = metadata.get("Description", desc)
-    written = []
     for fmt in formats:
         if fmt not in _FORMATS:
             raise InputError(f"expected a figure format among {', '.join(_FORMATS)}, got {fmt!r}",
                              key="formats")
+    written = []
+    bbox = "tight"
+    png = None
+    if "png" in formats:
+        # One Agg draw gives the PNG and the tight bounding box the other formats reuse, instead of
+        # matplotlib's extra layout draw for every "tight" save (:func:`_render_tight_png`).
+        png, box = _render_tight_png(fig, dpi)
+        if box is not None:
+            bbox = box
+    for fmt in formats:
         meta = {"Title": title}
         if fmt == "pdf":
             meta["Subject"] = desc
@@ -128,9 +138,57 @@ def save_figure(fig: Figure, stem: str | Path, formats: Sequence[str] = ("png", 
             meta["Software"] = "retina-compass"
         target = stem.parent / f"{stem.name}.{fmt}"
         with atomic_path(target, force=force) as tmp:
-            fig.savefig(tmp, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight", pad_inches=0.03)
+            if fmt == "png" and png is not None:
+                import matplotlib.image
+
+                matplotlib.image.imsave(tmp, png, format="png", origin="upper", dpi=dpi, metadata=meta)
+            else:
+                fig.savefig(tmp, format=fmt, dpi=dpi, metadata=meta, bbox_inches=bbox,
+                            pad_inches=_PAD_IN)
         written.append(target)
     return written
+
+
+_PAD_IN = 0.03
+"""Padding around the tight bounding box, inches (as ``savefig.pad_inches`` in :data:`STYLE`)."""
+
+
+def _render_tight_png(fig: Figure, dpi: int):
+    """Draw ``fig`` once at ``dpi`` on an Agg canvas; return its pixels cropped to the padded
+    tight bounding box and that box (inches), as ``savefig(bbox_inches="tight")`` would use.
+
+    matplotlib's tight save lays the figure out in a draw without rendering, then draws it again
+    shifted by the box's corner; here the box comes from the one full draw and the PNG is the
+    crop of that draw (the same pixels, up to the sub-pixel part of the shift).  When the box
+    reaches outside the figure (an artist sticking out) there are no pixels to crop:
+    ``(None, box)`` is returned and the caller saves the PNG the usual way.
+
+    Returns
+    -------
+    rgba : ndarray (H, W, 4) uint8 or None
+    bbox : matplotlib.transforms.Bbox or None
+        Inches; None when the figure has no tight box.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    old_dpi = fig.dpi
+    try:
+        fig.set_dpi(dpi)
+        canvas = FigureCanvasAgg(fig)
+        canvas.draw()
+        box = fig.get_tightbbox(canvas.get_renderer())
+        if box is None or not (box.width > 0 and box.height > 0):
+            return None, None
+        box = box.padded(_PAD_IN)
+        buf = np.asarray(canvas.buffer_rgba())
+        H, W = buf.shape[:2]
+        c0, r0 = int(round(box.x0 * dpi)), int(round(H - box.y1 * dpi))
+        w, h = int(box.width * dpi), int(box.height * dpi)
+        if c0 < 0 or r0 < 0 or c0 + w > W or r0 + h > H or w < 1 or h < 1:
+            return None, box
+        return buf[r0:r0 + h, c0:c0 + w].copy(), box
+    finally:
+        fig.set_dpi(old_dpi)
 
 
 def finish(fig: Figure, path, formats: Iterable[str], dpi: int) -> Figure:

@@ -282,7 +282,14 @@ def scan_filmstrip(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
 
 def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float], b_head, path, *,
                    fps: float = 8.0, dpi: int = 100, params: str = "", force: bool = True) -> Path:
-    """Write the head scan as an animated GIF (matplotlib PillowWriter), atomically.
+    """Write the head scan as an animated GIF (Pillow), atomically.
+
+    The panel is drawn once; every frame then redraws only what changes (blitting on the Agg
+    canvas): the static background is restored from a saved copy and the colour meshes, the
+    artists that lie above them (grid, horizon, beak, labels, outline), the field marks and the
+    title are drawn on it, in the same order as a full draw (:func:`_blit_frames`).  All frames
+    share one 256-colour palette, computed once from pixels of every frame (median cut), and are
+    mapped to it without dithering, so colours do not flicker from frame to frame.
 
     Parameters
     ----------
@@ -304,8 +311,6 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
     Path
         The GIF written.
     """
-    from matplotlib.animation import PillowWriter
-
     from retina.io.atomic import atomic_path, check_writable
 
     visual_dirs, eye_index, modulation, b_head = _check(visual_dirs, eye_index, modulation, b_head,
@@ -315,25 +320,141 @@ def scan_animation(visual_dirs, eye_index, modulation, yaw_deg: Sequence[float],
     if path.suffix.lower() != ".gif":
         path = path.with_name(path.name + ".gif")
     check_writable(path, force=force)
+    frames = scan_frames(visual_dirs, eye_index, modulation, yaw, b_head, dpi=dpi, params=params)
+    images = _palette_frames(frames)
+    # the same atomic writer as every other file (mode 0666 & ~umask); Pillow picks the format
+    # from the temporary name, so it ends in .gif
+    with atomic_path(path, force=force, suffix=".gif") as tmp:
+        images[0].save(tmp, save_all=True, append_images=images[1:], duration=int(1000 / fps), loop=0)
+    return path
+
+
+def scan_frames(visual_dirs, eye_index, modulation, yaw_deg, b_head, *, dpi: int = 100, params: str = "",
+                blit: bool = True) -> list[np.ndarray]:
+    """The frames of :func:`scan_animation` as RGB arrays.
+
+    Parameters
+    ----------
+    visual_dirs, eye_index, modulation, yaw_deg, b_head
+        As in :func:`scan_animation`.
+    dpi : int
+        Raster resolution.
+    params : str
+        Caption parameters (metadata only).
+    blit : bool
+        Redraw only what changes between frames (default); False redraws the whole figure for
+        every frame (the reference the blitted frames are tested against).
+
+    Returns
+    -------
+    list of ndarray, shape (H, W, 3), uint8
+        One frame per scan pose.
+    """
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    visual_dirs, eye_index, modulation, b_head = _check(visual_dirs, eye_index, modulation, b_head,
+                                                        "modulation")
+    yaw = np.asarray(yaw_deg, float).reshape(-1)
     pct = 100.0 * modulation
     vlim = _vlim(pct)
     fm = _FieldMap(visual_dirs, eye_index)
+    n = pct.shape[0]
     with style():
         fig = new_figure(4.8, 3.0)
+        fig.set_dpi(dpi)
+        canvas = FigureCanvasAgg(fig)
         ax = fig.add_axes([0.03, 0.26, 0.94, 0.66], projection="mollweide")
         cax = fig.add_axes([0.2, 0.16, 0.6, 0.035])
         annotate(fig, "Head scan animation", f"Modulation pattern through a head scan. {params}")
-        # the same atomic writer as every other file (mode 0666 & ~umask); Pillow picks the format
-        # from the temporary name, so it ends in .gif
-        with atomic_path(path, force=force, suffix=".gif") as tmp:
-            writer = PillowWriter(fps=fps)
-            with writer.saving(fig, str(tmp), dpi):
-                # the panel is built once; each frame only moves its colours, marks and title
-                art, update = fm.draw_updatable(ax, pct[0], b_head[0], vlim, label_marks=True)
-                cb = fig.colorbar(art, cax=cax, orientation="horizontal")
-                cb.set_label("relative modulation, %")
-                for k in range(pct.shape[0]):
-                    update(pct[k], b_head[k])
-                    ax.set_title(f"yaw {yaw[k]:.0f}\N{DEGREE SIGN}  (step {k + 1}/{pct.shape[0]})", pad=4)
-                    writer.grab_frame()
-    return path
+        art, update = fm.draw_updatable(ax, pct[0], b_head[0], vlim, label_marks=True)
+        cb = fig.colorbar(art, cax=cax, orientation="horizontal")
+        cb.set_label("relative modulation, %")
+
+        def title(k):
+            ax.set_title(f"yaw {yaw[k]:.0f}\N{DEGREE SIGN}  (step {k + 1}/{n})", pad=4)
+
+        title(0)
+        if not blit:
+            out = []
+            for k in range(n):
+                update(pct[k], b_head[k])
+                title(k)
+                canvas.draw()
+                out.append(np.asarray(canvas.buffer_rgba())[..., :3].copy())
+            return out
+        return _blit_frames(canvas, ax, update, title, pct, b_head)
+
+
+def _blit_frames(canvas, ax, update, title, pct, b_head) -> list[np.ndarray]:
+    """Frames by blitting: one full draw, then per frame only the artists that change and those
+    drawn above them.
+
+    The meshes (collections) change; every artist of the axes with a higher z-order than the
+    meshes is drawn after them in a full draw, so all of them are hidden from the saved
+    background and redrawn, in z-order, on every frame.  The axis decorations the axes draws
+    above the meshes are its grid lines (ticks carry no labels on these maps); the axes title is
+    drawn last, as in ``Axes.draw``.
+    """
+    from matplotlib.collections import Collection
+
+    meshes = [c for c in ax.collections]
+    z_mesh = max(m.get_zorder() for m in meshes)
+    over = [a for a in ax.get_children()
+            if a is not ax.patch and a not in meshes and a.get_visible() and a.get_zorder() >= z_mesh
+            and a not in (ax.xaxis, ax.yaxis, ax.title, ax._left_title, ax._right_title)
+            and not isinstance(a, Collection)]
+    grid = [t.gridline for axis in (ax.xaxis, ax.yaxis) for t in axis.get_major_ticks() if t.gridline.get_visible()]
+    # grid lines: drawn by their axis at the axis' z-order
+    layers = sorted([(a.get_zorder(), i, [a]) for i, a in enumerate(over)]
+                    + [(ax.xaxis.get_zorder(), -1, grid)], key=lambda t: (t[0], t[1]))
+    moving = meshes + [a for _, _, arts in layers for a in arts] + [ax.title]
+    canvas.draw()                              # lays out ticks, title position, colour bar
+    for a in moving:
+        a.set_animated(True)
+    for g in grid:
+        g.set_visible(False)                   # the axes draws grid lines itself; hide them
+    canvas.draw()
+    background = canvas.copy_from_bbox(canvas.figure.bbox)
+    for g in grid:
+        g.set_visible(True)
+    renderer = canvas.get_renderer()
+    frames = []
+    try:
+        for k in range(pct.shape[0]):
+            update(pct[k], b_head[k])
+            title(k)
+            canvas.restore_region(background)
+            for m in meshes:
+                ax.draw_artist(m)
+            for _, _, arts in layers:
+                for a in arts:
+                    ax.draw_artist(a)
+            ax.draw_artist(ax.title)
+            frames.append(np.asarray(canvas.buffer_rgba())[..., :3].copy())
+    finally:
+        for a in moving:
+            a.set_animated(False)
+    del renderer
+    return frames
+
+
+def _palette_frames(frames: list[np.ndarray]):
+    """Pillow palette images of RGB frames, all sharing one adaptive 256-colour palette.
+
+    The palette is 255 colours of a sample of every frame's pixels (every 3rd pixel in each
+    direction, pure white left out; Pillow's fast octree method) plus pure white, so the page
+    stays exactly white; each frame is mapped to its nearest palette colour without dithering.
+    """
+    from PIL import Image
+
+    sample = np.concatenate([f[::3, ::3] for f in frames], axis=0).reshape(-1, 3)
+    sample = sample[(sample != 255).any(axis=1)]
+    if sample.shape[0] == 0:
+        sample = np.zeros((1, 3), np.uint8)
+    q = Image.fromarray(np.ascontiguousarray(sample[None])).quantize(255, method=Image.Quantize.FASTOCTREE,
+                                                                      dither=Image.Dither.NONE)
+    colours = (q.getpalette() or [])[:255 * 3]
+    colours += [0] * (255 * 3 - len(colours)) + [255, 255, 255]
+    pal = Image.new("P", (1, 1))
+    pal.putpalette(colours)
+    return [Image.fromarray(f).quantize(palette=pal, dither=Image.Dither.NONE) for f in frames]

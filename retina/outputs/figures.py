@@ -15,11 +15,11 @@ from retina.results import Results
 __all__ = ["make_figures", "figure_tasks", "draw_task"]
 
 
-# Relative drawing costs (seconds on the demo, measured once): the parallel path hands out the
-# figures longest first so that both workers finish at about the same time.
-_COST = {"scan_animation": 6.0, "modulation_fields": 4.0, "scan_filmstrip": 3.3, "yield_sphere": 2.7,
-         "rf_sweep": 2.2, "order_study": 2.1, "precision_curves": 2.0, "disorder_tolerance": 1.7,
-         "trial_histograms": 1.5, "rf_conditions": 1.4}
+# Relative drawing costs (CPU seconds on the demo, PNG at 300 dpi and SVG, measured once): the
+# parallel path hands out the figures longest first so that both workers finish at about the same time.
+_COST = {"scan_filmstrip": 2.5, "yield_sphere": 2.0, "scan_animation": 1.8, "rf_sweep": 1.8,
+         "modulation_fields": 1.75, "order_study": 1.2, "precision_curves": 1.1, "disorder_tolerance": 1.1,
+         "rf_conditions": 1.0, "trial_histograms": 0.85}
 
 
 def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300,

@@ -36,11 +36,39 @@ import numpy as np
 from retina.errors import InputError
 from retina.readout import circstats
 
-__all__ = ["rms_standard_error", "HeadingEstimate", "DecodeResult", "HeadingDecoder", "MonteCarloResult", "monte_carlo",
+__all__ = ["counts_product", "SPARSE_DENSITY", "rms_standard_error", "HeadingEstimate", "DecodeResult", "HeadingDecoder", "MonteCarloResult", "monte_carlo",
            "error_summary"]
 
 _TINY = 1e-300
 _CHUNK_ELEMENTS = 4_000_000   # samples x receptors per block in the refinement
+
+
+SPARSE_DENSITY = 0.05
+"""Count matrices with fewer non-zero entries than this fraction are multiplied as sparse matrices
+(:func:`counts_product`)."""
+
+
+def counts_product(counts: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """``counts @ m``, skipping the zero counts when most counts are zero (dim light).
+
+    In dim light, or when a head scan shares its photon budget over many poses, nearly every count
+    is zero; the product then only needs the non-zero counts (a compressed sparse row matrix
+    times ``m``), the same sums without their zero terms (equal up to rounding).
+
+    Parameters
+    ----------
+    counts : ndarray, shape (S, N)
+    m : ndarray, shape (N, G)
+
+    Returns
+    -------
+    ndarray, shape (S, G)
+    """
+    if counts.size and np.count_nonzero(counts) < SPARSE_DENSITY * counts.size:
+        from scipy.sparse import csr_matrix
+
+        return np.asarray(csr_matrix(counts) @ m)
+    return counts @ m
 
 
 @dataclass(frozen=True)
@@ -243,7 +271,7 @@ class HeadingDecoder:
             Key ``counts``, for another shape or negative or non-finite counts.
         """
         c = self._counts(counts)
-        ll = c @ self._loglam_T
+        ll = counts_product(c, self._loglam_T)
         if self.gain == "known":
             ll -= self._lam_tot[None, :]
         else:
@@ -415,7 +443,7 @@ class HeadingDecoder:
         for s in range(0, c.shape[0], chunk):
             cc = c[s:s + chunk]
             S = cc.shape[0]
-            X = (self._counts(cc.reshape(S * P, -1)) @ self._loglam_T).reshape(S, P, G)
+            X = counts_product(self._counts(cc.reshape(S * P, -1)), self._loglam_T).reshape(S, P, G)
             ll = np.take_along_axis(X, np.broadcast_to(cols[None], (S, P, G)), axis=2).sum(axis=1)
             if self.gain == "known":
                 ll -= tot[None, :]

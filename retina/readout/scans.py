@@ -34,7 +34,7 @@ import numpy as np
 from retina.errors import InputError
 from retina.readout.fisher import cramer_rao_deg
 
-__all__ = ["SCAN_NUISANCES", "uniform_sweep", "timed_sweep", "scan_information_arrays",
+__all__ = ["SCAN_NUISANCES", "uniform_sweep", "timed_sweep", "scan_information_arrays", "scan_information_grid",
            "scan_information", "pattern_change_per_degree", "ScanOptimum", "best_scan_amplitude"]
 
 SCAN_NUISANCES = ("none", "global_gain", "pose_gain", "receptor_gain")
@@ -160,6 +160,61 @@ def scan_information_arrays(lam, dlam, nuisance: str = "none") -> float:
         corr = float(_ratio(dlam.sum(axis=0) ** 2, lam.sum(axis=0)).sum())
     # The Schur complement is >= 0; rounding can leave a tiny negative remainder at exactly zero.
     return max(full - corr, 0.0)
+
+
+def scan_information_grid(lam, dlam, shifts, nuisance: str = "none") -> np.ndarray:
+    """:func:`scan_information_arrays` for a scan started at every heading of a circular grid.
+
+    The scan started at grid heading ``r`` visits rows ``(r + shifts[p]) mod G`` of ``lam`` and
+    ``dlam``, with the budget split over its ``P`` poses (each row divided by ``P``).  Every term
+    of the information is a sum over poses of a per-row quantity (a row sum, or a receptor's
+    value), so it is formed once per row and summed along the shifted rows: the same sums as
+    calling :func:`scan_information_arrays` once per heading, in another order (equal up to
+    rounding; one pose with ``"receptor_gain"`` still gives exactly zero).
+
+    Parameters
+    ----------
+    lam, dlam : array_like, shape (G, N)
+        Expected counts and heading derivatives (per radian) at one photon per receptor, at the
+        ``G`` grid headings.
+    shifts : array_like of int, shape (P,)
+        The scan's pose offsets in grid steps.
+    nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
+        As in :func:`scan_information_arrays`.
+
+    Returns
+    -------
+    ndarray, shape (G,)
+        rad^-2 per unit budget, clipped at 0.
+    """
+    _check(nuisance)
+    lam = np.asarray(lam, dtype=float)
+    dlam = np.asarray(dlam, dtype=float)
+    if lam.ndim != 2 or lam.shape != dlam.shape:
+        raise InputError(f"expected lam and dlam of the same shape (G, N), got {lam.shape}, {dlam.shape}",
+                         key="scan")
+    sh = np.asarray(shifts, dtype=int).reshape(-1)
+    G, P = lam.shape[0], sh.size
+    lp, dp = lam / P, dlam / P
+    rows = (np.arange(G)[:, None] + sh[None, :]) % G                     # (G, P)
+
+    def along(per_row):                                                # (G, ...) -> sums over the scan
+        return per_row[rows].sum(axis=1)
+
+    full = along(_ratio(dp * dp, lp).sum(axis=1))
+    if nuisance == "none":
+        return np.maximum(full, 0.0)
+    if nuisance == "global_gain":
+        corr = _ratio(along(dp.sum(axis=1)) ** 2, along(lp.sum(axis=1)))
+    elif nuisance == "pose_gain":
+        corr = along(_ratio(dp.sum(axis=1) ** 2, lp.sum(axis=1)))
+    else:
+        sd, sl = np.roll(dp, -sh[0], axis=0), np.roll(lp, -sh[0], axis=0)
+        for k in sh[1:]:
+            sd += np.roll(dp, -k, axis=0)
+            sl += np.roll(lp, -k, axis=0)
+        corr = _ratio(sd * sd, sl).sum(axis=1)
+    return np.maximum(full - corr, 0.0)
 
 
 def scan_information(signal, scan, budget: float, *, nuisance: str = "none") -> float:

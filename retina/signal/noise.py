@@ -30,6 +30,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import numba
 import numpy as np
 from scipy.spatial.transform import Rotation
 
@@ -110,9 +111,10 @@ def sample_counts(lam, rng=None, size: int | None = None) -> np.ndarray:
     return rng.poisson(lam, size=shape).astype(float)
 
 
-SPLIT_MEAN = 0.5
-"""Rows whose mean expected count per receptor is below this are sampled by splitting
-(:func:`sample_counts_split`): a handful of photons placed among many receptors."""
+SPLIT_MEAN = 2.0
+"""Rows whose mean expected count per receptor is below this are drawn by walking a Poisson
+process along the row (:func:`sample_counts_split`); measured faster than one draw per cell
+below about 2 counts per cell."""
 
 
 _BLOCK_CELLS = 2**20
@@ -120,21 +122,22 @@ _BLOCK_CELLS = 2**20
 
 
 def sample_counts_split(lam, rng=None, *, threads: int = 1) -> np.ndarray:
-    """Poisson counts with means ``lam``; dim rows drawn as a Poisson total split among the row.
+    """Poisson counts with means ``lam``; dim rows drawn by walking one Poisson process along them.
 
     The same distribution as :func:`sample_counts` (independent Poisson counts), drawn in less
     time when most expected counts are small (dim light, or a head scan that shares its photon
     budget over many poses), and on several threads when asked.
 
-    Derived: independent ``n_i ~ Poisson(lam_i)`` have the joint law of ``T ~ Poisson(sum lam)``
-    followed by ``T`` independent placements, each in cell ``i`` with probability
-    ``lam_i / sum lam`` (the multinomial split of a Poisson total; equivalently, the points of
-    a Poisson process thinned by cell).  Rows whose mean expected count is below
-    :data:`SPLIT_MEAN` are drawn so: one Poisson total per row, then ``T`` uniforms placed by a
-    search in the row's cumulative sum (sorted first, so that the searches run through the row in
-    order; ``N`` Poisson draws become one Poisson draw, ``T`` uniforms and a pass over the row).
-    The other rows are drawn directly.  Placement precision: the cumulative sums are exact to
-    rounding (relative ``1e-16`` times the number of rows of a block).
+    Derived: lay the cells of a row end to end as intervals of lengths ``lam_i`` on a line and
+    run a Poisson process of unit rate along it (arrival gaps independent standard exponential
+    draws).  The numbers of arrivals in disjoint intervals are independent and Poisson with
+    means equal to the interval lengths, so the count of cell ``i`` is ``Poisson(lam_i)``,
+    independent of the others: the law of independent draws.  Rows whose mean expected count is
+    below :data:`SPLIT_MEAN` are drawn so, one arrival gap per count plus one comparison per cell
+    (no transcendental function per cell); the walk carries only the remaining length of the
+    current cell and the remaining gap (memorylessness of the exponential law), so no cumulative
+    sum and no rounding drift build up along the row.  A cell of zero length never receives a
+    count.  The other rows are drawn directly (``Generator.poisson``).
 
     Randomness: the rows are cut into fixed blocks of about ``2**20`` cells, and block ``b`` draws
     from the ``b``-th child of ``rng`` (``Generator.spawn``), so the counts depend on ``rng``
@@ -146,8 +149,8 @@ def sample_counts_split(lam, rng=None, *, threads: int = 1) -> np.ndarray:
         Expected counts (>= 0); the last axis is a row.
     rng : numpy.random.Generator or int, optional
     threads : int
-        Threads drawing blocks at once (joblib's threading backend; numpy's generators release
-        the GIL while they draw).
+        Threads drawing blocks at once (joblib's threading backend; numpy's generators and the
+        walk's compiled kernel release the GIL).
 
     Returns
     -------
@@ -169,7 +172,7 @@ def sample_counts_split(lam, rng=None, *, threads: int = 1) -> np.ndarray:
 
     def block(k):
         sl = slice(starts[k], starts[k] + per)
-        out[sl] = _split_block(rows[sl], gens[k])
+        _split_block(rows[sl], gens[k], out[sl])
 
     if threads > 1 and len(starts) > 1:
         from joblib import Parallel, delayed
@@ -181,29 +184,56 @@ def sample_counts_split(lam, rng=None, *, threads: int = 1) -> np.ndarray:
     return out.reshape(shape)
 
 
-def _split_block(rows: np.ndarray, g: np.random.Generator) -> np.ndarray:
-    R, N = rows.shape
+def _split_block(rows: np.ndarray, g: np.random.Generator, out: np.ndarray) -> None:
+    """Draw one block of rows into ``out`` (same shape): dim rows walked, the others directly."""
+    N = rows.shape[1]
     totals = rows.sum(axis=1)
-    split = totals < SPLIT_MEAN * N
-    out = np.zeros((R, N))
-    dense = np.flatnonzero(~split)
-    if dense.size:
-        out[dense] = g.poisson(rows[dense])
-    idx = np.flatnonzero(split & (totals > 0))
+    walk = totals < SPLIT_MEAN * N
+    if walk.all():
+        _walk_cells(np.ascontiguousarray(rows).reshape(-1), g, out.reshape(-1))
+        return
+    dense = np.flatnonzero(~walk)
+    out[dense] = g.poisson(rows[dense])
+    idx = np.flatnonzero(walk)
     if idx.size:
-        r = rows[idx]
-        n_tot = g.poisson(totals[idx])
-        cum = np.cumsum(r, axis=1)
-        cum /= cum[:, -1:]
-        cum[:, -1] = 1.0
-        row_of = np.repeat(np.arange(idx.size), n_tot)
-        # sorted keys: each search starts where the previous one ended (far fewer cache misses);
-        # the counts depend only on the set of placements, not on their order
-        keys = np.sort(g.random(row_of.size) + row_of)
-        cum += np.arange(idx.size)[:, None]
-        pos = np.searchsorted(cum.ravel(), keys, side="right")
-        out[idx] = np.bincount(pos, minlength=idx.size * N).reshape(idx.size, N)
-    return out
+        counts = np.empty((idx.size, N))
+        _walk_cells(np.ascontiguousarray(rows[idx]).reshape(-1), g, counts.reshape(-1))
+        out[idx] = counts
+
+
+def _walk_cells(cells: np.ndarray, g: np.random.Generator, counts: np.ndarray) -> None:
+    """Poisson counts of consecutive cells (1-D) by one walk (:func:`sample_counts_split`)."""
+    k, left, n = 0, float(cells[0]), 0
+    total = float(cells.sum())
+    while k < cells.size:
+        # enough gaps for the whole walk with overwhelming probability; more when not
+        gaps = g.standard_exponential(int(total + 6.0 * np.sqrt(total) + 16))
+        k, left, n = _poisson_walk(cells, gaps, counts, k, left, n)
+        total = float(cells[k:].sum()) if k < cells.size else 0.0
+
+
+@numba.njit(cache=True, nogil=True)
+def _poisson_walk(cells, gaps, counts, k, left, n):
+    """Arrivals of a unit-rate Poisson process over consecutive cells of lengths ``cells``.
+
+    State: cell ``k``, the length ``left`` of it still ahead, its ``n`` arrivals so far; the next
+    gaps are ``gaps``.  Returns the state when the gaps run out, or ``(K, 0, 0)`` when every cell
+    is done (``counts`` filled).
+    """
+    K = cells.size
+    for j in range(gaps.size):
+        r = gaps[j]
+        while r >= left:             # the next arrival lies beyond this cell: close it
+            r -= left
+            counts[k] = n
+            k += 1
+            if k == K:
+                return K, 0.0, 0
+            left = cells[k]
+            n = 0
+        left -= r
+        n += 1
+    return k, left, n
 
 
 def field_direction(inclination_deg: float, declination_deg: float = 0.0) -> np.ndarray:

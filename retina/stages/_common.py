@@ -240,19 +240,17 @@ class GridModel:
             Yaw offsets of the scan's poses from the heading, degrees (rounded to the grid); the
             budget of one photon per receptor is split equally over the ``P`` poses.
         nuisance : {"none", "global_gain", "pose_gain", "receptor_gain"}
-            Unknown gains profiled out (:func:`retina.readout.scans.scan_information_arrays`).
+            Unknown gains profiled out (:func:`retina.readout.scans.scan_information_grid`).
 
         Returns
         -------
         ndarray (G,)
             rad^-2 per photon, at each grid heading the scan is centred on.
         """
-        from retina.readout.scans import scan_information_arrays
+        from retina.readout.scans import scan_information_grid
 
         sh = np.round(np.asarray(offsets_deg) * GRID / 360.0).astype(int)
-        P = sh.size
-        idx = (np.arange(GRID)[:, None] + sh[None, :]) % GRID
-        return np.array([scan_information_arrays(self.lam1[r] / P, self.dlam1[r] / P, nuisance) for r in idx])
+        return scan_information_grid(self.lam1, self.dlam1, sh, nuisance)
 
 
 def grid_offsets(offsets_deg) -> np.ndarray:
