@@ -15,7 +15,7 @@ Commun. Stat. Simul. Comput. 18, 1059 (1989), from memory).  The electron's two 
 exactly and only the nuclear trace is sampled: with ``xi`` such a vector on the nuclei and
 ``|e_i, xi>`` (``e_i`` = up, down; the electron is the first tensor factor),
 ``Tr X = E[sum_i <e_i, xi| X |e_i, xi>]``.  Since ``S_a |e_i, xi> = sum_j (S_a)_ji |e_j, xi>``,
-the two propagated states ``psi_i = U |e_i, xi>`` give every component (derived):
+the two propagated states ``psi_i = U |e_i, xi>`` give every component (derived)::
 
     c^r_ab(t; xi) = Re sum_ij conj((S_a)_ji) <psi_j| S_b |psi_i>,
     <psi_j| S_b |psi_i> = sum_st (S_b)_st <psi_j,s | psi_i,t>,
@@ -23,7 +23,7 @@ the two propagated states ``psi_i = U |e_i, xi>`` give every component (derived)
 an unbiased estimate of ``C^r_ab(t)`` (``C`` is real) from the 4 x 4 Gram matrix of the four
 nuclear half-vectors ``psi_i,s`` (electron component ``s``): two propagated vectors per draw
 instead of the four (``z`` and ``S_a z``) a full-space vector needs.  Drawing one ``xi_s^A`` for
-A and an independent ``xi_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so
+A and an independent ``xi_s^B`` for B, ``E[c^A c^B] = C^A C^B``, so::
 
     Phi_s = 1/4 + (1/M) Q[ sum_ab c^A_ab(t; xi_s^A) c^B_ab(t; xi_s^B) ]
 
