@@ -193,6 +193,7 @@ def bench_fourteen(quick: bool) -> list[dict]:
 
 
 def bench_sampled(quick: bool) -> list[dict]:
+    from retina.spin import _propagation as propagation
     from retina.spin import engine, fast_separable, sampling
 
     system = large_pair((2, 3), (2, 3))
@@ -219,18 +220,18 @@ def bench_sampled(quick: bool) -> list[dict]:
     n_states = 6
     b = _dirs(1)[0] * 50e-6
     per_step = 0.0
-    prep = [sampling._prepare(rad) for rad in big.radicals]
-    hams = [[sampling._block_hamiltonian(pb, b) for pb in p] for p in prep]
+    prep = [propagation.prepare(rad) for rad in big.radicals]
+    hams = [[propagation.block_hamiltonian(pb, b) for pb in p] for p in prep]
     spreads = [max(hi - lo for _, lo, hi in hs) for hs in hams]
     h = 0.9 * np.pi / sum(spreads)
     kh = big.k_singlet * h
     n_t_full = int(np.ceil(np.log(1.5 / sampling.DEFAULT_BIAS_TOL) / kh)) + 1
     rng = np.random.default_rng(0)
     for p, hs in zip(prep, hams):
-        xis = sampling._random_vectors(p, n_states, rng)
-        sampling._radical_series(p, hs, xis, h, 8)                       # numba warm-up
+        xis = propagation.random_vectors(p, n_states, rng)
+        propagation.radical_series(p, hs, xis, h, 8)                       # numba warm-up
         t0 = time.perf_counter()
-        sampling._radical_series(p, hs, xis, h, n_steps)
+        propagation.radical_series(p, hs, xis, h, n_steps)
         per_step += (time.perf_counter() - t0) / n_steps
     n_dirs = 63                       # 55 Lebedev hemisphere + 8 check directions (opposites free)
     workers = max(1, min(int(os.environ.get("RETINA_JOBS") or 2), os.cpu_count() or 1))
@@ -321,15 +322,15 @@ def _relative_noise(radical, n_states: int, n_steps: int) -> float:
     """Standard deviation over random states of one state's estimate of ``Tr[S_z S_z(t)]``, averaged
     over the first ``n_steps`` steps of the sampling method's time grid, relative to its exact
     initial value ``d / 4``."""
-    from retina.spin import sampling
+    from retina.spin import _propagation as propagation
 
     rng = np.random.default_rng(5)
-    prep = sampling._prepare(radical)
-    xis = sampling._random_vectors(prep, n_states, rng)
+    prep = propagation.prepare(radical)
+    xis = propagation.random_vectors(prep, n_states, rng)
     b = _dirs(1)[0] * 50e-6
-    hams = [sampling._block_hamiltonian(pb, b) for pb in prep]
+    hams = [propagation.block_hamiltonian(pb, b) for pb in prep]
     spread = max(hi - lo for _, lo, hi in hams)
-    series = sampling._radical_series(prep, hams, xis, 0.9 * np.pi / (2 * spread), n_steps)[:, :, 2]
+    series = propagation.radical_series(prep, hams, xis, 0.9 * np.pi / (2 * spread), n_steps)[:, :, 2]
     return float(np.mean(series.std(axis=0, ddof=1)) / (radical.dimension / 4.0))
 
 

@@ -12,6 +12,7 @@ import pytest
 import scipy.stats
 
 from retina.errors import InputError
+from retina.spin import _propagation as propagation
 from retina.spin import engine, fast_separable, sampling
 from test_spin_separable import _random_system, _unit
 
@@ -65,7 +66,7 @@ def test_end_corrected_trapezoid_integrates_band_limited_functions():
     omega = rng.uniform(-3e8, 3e8, 50)
     c = rng.normal(size=50)
     h = 0.9 * np.pi / 3e8
-    gamma, err = sampling._end_correction(k, h, 3e8 * h, 1e-10)
+    gamma, err = propagation.end_correction(k, h, 3e8 * h, 1e-10)
     n_t = int(40 / (k * h))
     t = np.arange(n_t) * h
     f = np.cos(np.outer(t, omega)) @ c
@@ -135,13 +136,13 @@ def test_spectral_interval_contains_the_spectrum_and_beats_gershgorin():
     b = _unit(rng, 1)[0] * 50e-6
     tighter = 0
     for blk in radical_blocks(rad, sparse=True):
-        s_e, h_hf, weyl = sampling._sparse_ops(blk, rad)
+        s_e, h_hf, weyl = propagation.sparse_ops(blk, rad)
         w = b @ blk.zeeman
         hm = (h_hf + w[0] * s_e[0] + w[1] * s_e[1] + w[2] * s_e[2]).tocsr()
         ev = np.linalg.eigvalsh(hm.toarray())
-        lo, hi = sampling._interval(hm, weyl, w)
+        lo, hi = propagation.block_interval(hm, weyl, w)
         assert lo <= ev[0] + 1e-6 * abs(ev[0]) and ev[-1] <= hi + 1e-6 * abs(ev[-1])
-        g_lo, g_hi = sampling._gershgorin(hm)
+        g_lo, g_hi = propagation.gershgorin(hm)
         tighter += (hi - lo) < 0.95 * (g_hi - g_lo)
     assert tighter >= 1
 
@@ -255,16 +256,16 @@ def test_grouped_weyl_interval_contains_the_spectrum_and_is_tighter():
     tighter = 0
     for trial in range(3):
         b = _unit(rng, 1)[0] * 50e-6 * (1 + 20 * trial)
-        for pb in sampling._prepare(rad):
-            hm, lo, hi = sampling._block_hamiltonian(pb, b)
+        for pb in propagation.prepare(rad):
+            hm, lo, hi = propagation.block_hamiltonian(pb, b)
             ev = np.linalg.eigvalsh(hm.toarray())
             assert lo <= ev[0] + 1e-9 * abs(ev[0]) and ev[-1] <= hi + 1e-9 * abs(ev[-1])
             w = b @ pb.block.zeeman
-            pseudo = sampling._pseudo(rad, pb.block)
+            pseudo = propagation.pseudo_nuclei(rad, pb.block)
             for max_dim in (2, 4, 12):
                 g_lo, g_hi = grouped_interval(pseudo, w, max_dim=max_dim)
                 assert g_lo <= ev[0] + 1e-9 * abs(ev[0]) and ev[-1] <= g_hi + 1e-9 * abs(ev[-1])
-            w_lo, w_hi = sampling._interval(hm, pb.weyl, w)
+            w_lo, w_hi = propagation.block_interval(hm, pb.weyl, w)
             tighter += (hi - lo) < 0.9 * (w_hi - w_lo)
     assert len(radical_blocks(rad)) == 2 and tighter >= 3
 
@@ -281,13 +282,13 @@ def test_block_propagation_matches_dense_exponentials_for_the_same_random_vector
     rng = np.random.default_rng(13)
     rad = _radical_with_methyl(rng)
     b = _unit(rng, 1)[0] * 300e-6
-    prepared = sampling._prepare(rad)
-    hams = [sampling._block_hamiltonian(pb, b) for pb in prepared]
-    xis = sampling._random_vectors(prepared, 3, rng)
+    prepared = propagation.prepare(rad)
+    hams = [propagation.block_hamiltonian(pb, b) for pb in prepared]
+    xis = propagation.random_vectors(prepared, 3, rng)
     spread = max(hi - lo for _, lo, hi in hams)
     h = 0.9 * np.pi / (2 * spread)
     n_t = 90
-    got = sampling._radical_series(prepared, hams, xis, h, n_t)             # (R, n_t, 9)
+    got = propagation.radical_series(prepared, hams, xis, h, n_t)             # (R, n_t, 9)
     se = np.asarray(spin_matrices(0.5))
     want = np.zeros_like(got)
     for pb, (hm, _, _), xi in zip(prepared, hams, xis):
@@ -303,8 +304,8 @@ def test_block_propagation_matches_dense_exponentials_for_the_same_random_vector
                         for bb in range(3):
                             cab[a, bb] += np.real(np.vdot(u @ s_full[a] @ v, s_full[bb] @ (u @ v)))
                 cab *= pb.block.multiplicity
-                sym = [0.5 * (cab[a, bb] + cab[bb, a]) for a, bb in sampling._PAIRS]
-                anti = [0.5 * (cab[a, bb] - cab[bb, a]) for a, bb in sampling._PAIRS[3:]]
+                sym = [0.5 * (cab[a, bb] + cab[bb, a]) for a, bb in propagation.PAIRS]
+                anti = [0.5 * (cab[a, bb] - cab[bb, a]) for a, bb in propagation.PAIRS[3:]]
                 want[r, j] += np.array(sym + anti)
     for j in (0, 37, 89):
         assert np.max(np.abs(got[:, j] - want[:, j])) < 1e-8 * rad.dimension
@@ -316,11 +317,11 @@ def test_electron_trace_is_exact_at_time_zero():
     # antisymmetric parts vanish.
     rng = np.random.default_rng(14)
     rad = _radical_with_methyl(rng)
-    prepared = sampling._prepare(rad)
+    prepared = propagation.prepare(rad)
     b = _unit(rng, 1)[0] * 50e-6
-    hams = [sampling._block_hamiltonian(pb, b) for pb in prepared]
-    xis = sampling._random_vectors(prepared, 5, rng)
-    got = sampling._radical_series(prepared, hams, xis, 1e-9, 1)[:, 0]
+    hams = [propagation.block_hamiltonian(pb, b) for pb in prepared]
+    xis = propagation.random_vectors(prepared, 5, rng)
+    got = propagation.radical_series(prepared, hams, xis, 1e-9, 1)[:, 0]
     want = np.array([1, 1, 1, 0, 0, 0, 0, 0, 0]) * rad.dimension / 4
     assert np.max(np.abs(got - want[None, :])) < 1e-10 * rad.dimension
 
@@ -344,8 +345,8 @@ def test_cost_model_follows_the_measured_structure_of_the_hamiltonian():
 
     rng = np.random.default_rng(15)
     rad = _radical_with_methyl(rng)
-    for pb in sampling._prepare(rad):
-        hm, _, _ = sampling._block_hamiltonian(pb, _unit(rng, 1)[0] * 50e-6)
+    for pb in propagation.prepare(rad):
+        hm, _, _ = propagation.block_hamiltonian(pb, _unit(rng, 1)[0] * 50e-6)
         want = hm.nnz / hm.shape[0]
         got = sampling._nnz_row([j for j in pb.block.spins if j > 0])
         assert abs(got - want) <= 0.05 * want
