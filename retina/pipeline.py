@@ -35,7 +35,7 @@ _log = logging.getLogger(__name__)
 def run(sc: Scenario, *, quick: bool = False,
         stages=("patterns", "scan", "precision", "disorder", "order", "trials", "rf", "rf_sweep"),
         progress_factory: ProgressFactory | None = None, yield_function=None,
-        max_bytes: int | None = None) -> Results:
+        max_bytes: int | None = None, on_group=None) -> Results:
     """Run the scenario's stages and collect their results.
 
     Parameters
@@ -56,6 +56,11 @@ def run(sc: Scenario, *, quick: bool = False,
     max_bytes : int, optional
         Memory limit of every step (default 60 % of the available memory): checked before anything
         is built (:func:`retina.stages.memory.check_memory`) and passed to the spin engine.
+    on_group : callable(Results), optional
+        Called with the results so far (same provenance as the final ones) once the built
+        groups (``yield_function``, ``receptors``, ``field``) exist and again after every stage
+        that adds a group, so that figures of finished stages can be drawn while later stages
+        run (:class:`retina.outputs.OutputWriter`).  It must not modify them.
 
     Raises
     ------
@@ -89,6 +94,9 @@ def run(sc: Scenario, *, quick: bool = False,
     g["receptors"] = {"visual_dirs": receptors.visual_dirs, "axes": receptors.axes,
                       "solid_angle": receptors.solid_angle, "eye_index": receptors.eye_index}
     g["field"] = {"F_uT": float(fld.F_uT), "I_deg": float(fld.I_deg), "D_deg": float(fld.D_deg)}
+    prov = make_provenance(sc, yf, fld, quick=quick, stages=stages)
+    if on_group is not None:
+        on_group(Results(dict(g), prov, scenario=sc))
     for name, stage in STAGES.items():
         if name in stages:
             if stage.steps(sc) == 0 and name in ("rf", "rf_sweep"):
@@ -96,7 +104,9 @@ def run(sc: Scenario, *, quick: bool = False,
             progress = pf(stage.label, stage.steps(sc)) if stage.label else None
             t0 = time.perf_counter()
             out = stage.compute(built, progress)
+            _log.info("stage %s: %.1f s", name, time.perf_counter() - t0)
             if out is not None:
                 g[name] = out
-            _log.info("stage %s: %.1f s", name, time.perf_counter() - t0)
-    return Results(g, make_provenance(sc, yf, fld, quick=quick, stages=stages), scenario=sc)
+                if on_group is not None:
+                    on_group(Results(dict(g), prov, scenario=sc))
+    return Results(g, prov, scenario=sc)

@@ -154,20 +154,47 @@ def test_report_rebuilds_from_results(scenario, tmp_path, capsys):
     assert "not a retina-compass results file" in capsys.readouterr().err
 
 
-def test_interrupt_exits_130_and_leaves_no_output(scenario, tmp_path, monkeypatch, capsys):
+@pytest.mark.parametrize("jobs", ["1", "2"])
+def test_interrupt_exits_130_and_leaves_no_output(scenario, tmp_path, monkeypatch, capsys, jobs):
     from retina.outputs import figures
 
-    real = figures.make_figures
+    real, real_collect = figures.make_figures, figures.FigurePool.collect
 
     def interrupted(res, folder, **kw):
         real(res, folder, **{**kw, "animation": False})  # some files exist in the staging folder now
         raise KeyboardInterrupt
 
+    def interrupted_collect(self, res, **kw):
+        real_collect(self, res, **kw)                      # every figure is in the staging folder now
+        raise KeyboardInterrupt
+
     monkeypatch.setattr(figures, "make_figures", interrupted)
+    monkeypatch.setattr(figures.FigurePool, "collect", interrupted_collect)
     out = tmp_path / "o"
-    assert main(["patterns", str(scenario), "-o", str(out), "-q"]) == 130
+    assert main(["patterns", str(scenario), "-o", str(out), "-q", "--jobs", jobs]) == 130
     assert "interrupted" in capsys.readouterr().err
     assert not out.exists() and list(tmp_path.iterdir()) == []  # no partial folder, no staging left
+
+
+def test_interrupt_during_a_stage_while_figures_are_drawn(scenario, tmp_path, monkeypatch, capsys):
+    # Figures of finished stages are drawn on worker processes while later stages compute
+    # (retina.outputs.OutputWriter); Ctrl-C in a later stage stops the workers and leaves nothing.
+    from retina.stages import STAGES, Stage
+
+    started = []
+
+    def stage(built, progress):
+        import time
+
+        time.sleep(0.5)                      # the yield-sphere figure is being drawn meanwhile
+        started.append(1)
+        raise KeyboardInterrupt
+
+    monkeypatch.setitem(STAGES, "patterns", Stage("patterns", stage))
+    out = tmp_path / "o"
+    assert main(["patterns", str(scenario), "-o", str(out), "-q", "--jobs", "2"]) == 130
+    assert started and "interrupted" in capsys.readouterr().err
+    assert not out.exists() and list(tmp_path.iterdir()) == []
 
 
 def test_quick_keeps_the_headings_and_dpi_given_on_the_command_line(scenario, tmp_path, capsys):

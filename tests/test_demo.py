@@ -96,6 +96,36 @@ def test_figures_drawn_on_two_processes_are_the_same_files(demo_dir, tmp_path):
         assert (tmp_path / "one" / f).read_bytes() == (tmp_path / "two" / f).read_bytes(), f
 
 
+def test_figures_drawn_during_the_run_are_those_of_the_final_results(demo_dir, tmp_path):
+    # Common practice, no source: drawing a figure early (while later stages run) must give the
+    # file drawing it from the final results gives.  A figure handed out from data that later
+    # changed (here the precision group) is redrawn; one the final results lack is not reported.
+    import copy
+
+    from retina.outputs.figures import FigurePool, make_figures
+    from retina.results import Results, load_results
+
+    res = load_results(demo_dir / "results.h5")
+    for g in ("patterns", "scan", "disorder", "order", "rf", "rf_sweep"):
+        res.groups.pop(g, None)
+    early = Results(copy.deepcopy(res.groups), dict(res.provenance))
+    early.groups["precision"]["bound_single_deg"] = 2.0 * early.groups["precision"]["bound_single_deg"]
+    pool = FigurePool(tmp_path / "early", formats=("png",), dpi=60, jobs=2)
+    assert pool.submit(Results({k: early.groups[k] for k in ("yield_function", "receptors", "field")},
+                               early.provenance)) == 1
+    assert pool.submit(early) == 2                      # precision (stale data) and trials
+    assert pool.submit(early) == 0                      # nothing handed out twice
+    e1 = pool.collect(res)
+    e2 = make_figures(res, tmp_path / "late", formats=("png",), dpi=60, jobs=1)
+    assert [(e.stem, e.title, e.caption) for e in e1] == [(e.stem.replace("late", "early"), e.title, e.caption)
+                                                          for e in e2]
+    files = sorted(p.name for p in (tmp_path / "late").iterdir())
+    assert files == ["precision_curves.png", "trial_histograms.png", "yield_sphere.png"]
+    assert files == sorted(p.name for p in (tmp_path / "early").iterdir())
+    for f in files:
+        assert (tmp_path / "early" / f).read_bytes() == (tmp_path / "late" / f).read_bytes(), f
+
+
 def test_demo_refuses_to_overwrite(demo_dir, capsys):
     assert main(["demo", "--quick", "-o", str(demo_dir), "-q"]) == 2
     assert "--force" in capsys.readouterr().err

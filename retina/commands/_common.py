@@ -117,7 +117,7 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
     import time
 
     from retina.build import quick_scenario
-    from retina.outputs import write_outputs
+    from retina.outputs import OutputWriter
     from retina.outputs.text import summary_text
     from retina.pipeline import run
     from retina.progress import ProgressBars
@@ -141,15 +141,17 @@ def run_command(args, stages, *, scenario_path=None, title: str | None = None) -
 
     check_folder_writable(out.parent)  # before any computation
     bars = ProgressBars(enabled=not args.quiet)
+    o = sc["output"]
+    jobs = getattr(args, "jobs", None)
     try:
         max_bytes = None if args.max_memory_gb is None else int(args.max_memory_gb * 2**30)
-        res = run(sc, stages=stages, progress_factory=bars, max_bytes=max_bytes)
-        res.provenance["quick"] = bool(args.quick)
-        o = res.scenario["output"]
-        jobs = getattr(args, "jobs", None)
-        paths = write_outputs(res, out, force=args.force, formats=o["formats"], dpi=o["dpi"],
-                              animation=o["animation"], title=title, progress_factory=bars,
-                              jobs=(os.cpu_count() or 1) if jobs is None else jobs)
+        # Figures are drawn on worker processes while the later stages compute (OutputWriter).
+        with OutputWriter(out, force=args.force, formats=o["formats"], dpi=o["dpi"], animation=o["animation"],
+                          jobs=(os.cpu_count() or 1) if jobs is None else jobs) as writer:
+            res = run(sc, stages=stages, progress_factory=bars, max_bytes=max_bytes,
+                      on_group=writer.results_so_far)
+            res.provenance["quick"] = bool(args.quick)
+            paths = writer.finish(res, title=title, progress_factory=bars)
     finally:
         bars.close()
     print(summary_text(res, paths, time.perf_counter() - t0))

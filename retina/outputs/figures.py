@@ -12,7 +12,7 @@ import numpy as np
 from retina.outputs.text import COMPARE_SHORT, light_levels, params_text
 from retina.results import Results
 
-__all__ = ["make_figures", "figure_tasks", "draw_task"]
+__all__ = ["make_figures", "FigurePool", "figure_tasks", "draw_task"]
 
 
 # Relative drawing costs (CPU seconds on the demo, PNG at 300 dpi and SVG, measured once): the
@@ -27,10 +27,10 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     """Draw every figure the results allow into ``folder``.
 
     Every figure is an independent task (:func:`figure_tasks`); with ``jobs > 1`` they are drawn
-    on that many worker processes (joblib's process backend, each worker building its own Agg
-    figures), longest first.  The files are the same either way: each figure is drawn by the same
-    code from the same arrays (PNG files are identical byte for byte; SVG files differ only in
-    matplotlib's random element ids and the date, as between any two runs).
+    on that many worker processes (:class:`FigurePool`), longest first.  The files are the same
+    either way: each figure is drawn by the same code from the same arrays (PNG files are
+    identical byte for byte; SVG files differ only in matplotlib's random element ids and the
+    date, as between any two runs).
 
     Parameters
     ----------
@@ -53,40 +53,175 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     list of retina.outputs.report.FigureEntry
         The report entries, in the order of :func:`figure_tasks`.
     """
-    from retina.outputs.report import FigureEntry
-
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     tasks = figure_tasks(res, folder, formats=formats, dpi=dpi, animation=animation)
-    got: dict[int, tuple] = {}
-
-    def done(i, tc):
-        got[i] = tc
+    jobs = max(1, min(int(jobs), len(tasks)))
+    if jobs > 1:
+        pool = FigurePool(folder, formats=formats, dpi=dpi, animation=animation, jobs=jobs)
+        try:
+            return pool.collect(res, progress=progress)
+        except BaseException:
+            pool.cancel()
+            raise
+    got = []
+    for t in tasks:
+        got.append(draw_task(t))
         if progress:
             progress(len(got), len(tasks))
-
-    jobs = max(1, min(int(jobs), len(tasks)))
-    if jobs == 1:
-        for i, t in enumerate(tasks):
-            done(i, draw_task(t))
-    else:
-        from joblib import Parallel, delayed, parallel_config
-
-        order = sorted(range(len(tasks)), key=lambda i: -_COST.get(tasks[i]["builder"], 1.0))
-        with parallel_config(backend="loky", inner_max_num_threads=1):
-            par = Parallel(n_jobs=jobs, return_as="generator_unordered", batch_size=1, pre_dispatch="all")
-            for i, tc in par(delayed(_indexed)(i, tasks[i]) for i in order):
-                done(i, tc)
-    entries = []
-    for i, t in enumerate(tasks):
-        title, caption = got[i]
-        entries.append(FigureEntry(f"{folder.name}/{t['stem']}", title, caption,
-                                   () if t["animated"] else tuple(t["formats"]), t["animated"]))
-    return entries
+    return _entries(folder, tasks, got)
 
 
-def _indexed(i: int, task: dict):
-    return i, draw_task(task)
+def _entries(folder: Path, tasks: list, got: list) -> list:
+    from retina.outputs.report import FigureEntry
+
+    return [FigureEntry(f"{folder.name}/{t['stem']}", title, caption,
+                        () if t["animated"] else tuple(t["formats"]), t["animated"])
+            for t, (title, caption) in zip(tasks, got)]
+
+
+#: Niceness added to the figure workers: while stages still run in the main process, the
+#: scheduler gives it about three times a worker's share of a busy core (weights of the Linux
+#: scheduler, nice 0 against nice 5), so drawing fills the idle time without delaying the stages.
+WORKER_NICE = 5
+
+#: Thread-count variables set to 1 in the figure workers (drawing needs no BLAS or numba threads;
+#: the cores are shared with the main process).
+_ONE_THREAD_ENV = {k: "1" for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
+                                    "VECLIB_MAXIMUM_THREADS", "NUMEXPR_NUM_THREADS", "NUMBA_NUM_THREADS")}
+
+
+def _worker_init(nice: int) -> None:
+    import os
+
+    if nice:
+        try:
+            os.nice(nice)
+        except OSError:           # not permitted: draw at normal priority
+            pass
+
+
+class FigurePool:
+    """Figures drawn on worker processes as soon as the groups they show exist.
+
+    :meth:`submit` hands every figure the (partial) results allow and that is not handed out yet
+    to the workers, longest first; :func:`retina.pipeline.run` calls it after each stage
+    (``on_group``), so the figures of early stages are drawn while later stages compute.
+    :meth:`collect` checks every figure of the final results against the task it was drawn from
+    (the same builder, arrays and options, compared as pickled bytes) and redraws any that
+    differ or are missing, so the files are exactly those :func:`make_figures` draws from the
+    final results.  The workers are loky processes (joblib's reusable executor), one BLAS/numba
+    thread each, niced by :data:`WORKER_NICE`.
+
+    Parameters
+    ----------
+    folder : str or Path
+        Where the figures go (created when missing).
+    formats, dpi, animation
+        As in :func:`make_figures`.
+    jobs : int
+        Worker processes.
+    nice : int
+        Niceness added to the workers (0: none).
+    """
+
+    def __init__(self, folder: str | Path, *, formats=("png", "svg"), dpi: int = 300, animation: bool = True,
+                 jobs: int = 2, nice: int = WORKER_NICE):
+        self.folder = Path(folder)
+        self.folder.mkdir(parents=True, exist_ok=True)
+        self.formats = tuple(formats)
+        self.dpi = int(dpi)
+        self.animation = bool(animation)
+        self.jobs = max(1, int(jobs))
+        self.nice = int(nice)
+        self._ex = None
+        self._sent: dict[str, tuple[bytes, object]] = {}
+
+    def _executor(self):
+        if self._ex is None:
+            from joblib.externals.loky import get_reusable_executor
+
+            self._ex = get_reusable_executor(max_workers=self.jobs, env=_ONE_THREAD_ENV,
+                                             initializer=_worker_init, initargs=(self.nice,))
+        return self._ex
+
+    def _tasks(self, res: Results) -> list[dict]:
+        return figure_tasks(res, self.folder, formats=self.formats, dpi=self.dpi, animation=self.animation)
+
+    def submit(self, res: Results) -> int:
+        """Hand out the figures ``res`` allows that are not handed out yet.
+
+        Parameters
+        ----------
+        res : Results
+            The results so far (``yield_function``, ``receptors`` and ``field`` at least).
+
+        Returns
+        -------
+        int
+            Figures handed out by this call.
+        """
+        new = [t for t in self._tasks(res) if t["stem"] not in self._sent]
+        for t in sorted(new, key=lambda t: -_COST.get(t["builder"], 1.0)):
+            self._sent[t["stem"]] = (_task_key(t), self._executor().submit(draw_task, t))
+        return len(new)
+
+    def collect(self, res: Results, *, progress=None) -> list:
+        """Wait for every figure of the final results, redrawing those handed out from other data.
+
+        Parameters
+        ----------
+        res : Results
+            The final results.
+        progress : callable(done, total), optional
+            After each figure.
+
+        Returns
+        -------
+        list of retina.outputs.report.FigureEntry
+            In the order of :func:`figure_tasks`.
+        """
+        from concurrent.futures import FIRST_COMPLETED, wait
+
+        tasks = self._tasks(res)
+        stems = {t["stem"] for t in tasks}
+        for stem in [s for s in self._sent if s not in stems]:      # a figure the final results lack
+            self._sent.pop(stem)[1].result()
+        todo = []
+        for t in tasks:
+            sent = self._sent.get(t["stem"])
+            if sent is not None and sent[0] != _task_key(t):
+                sent[1].result()                # the stale drawing writes the same files: let it end first
+                sent = None
+            if sent is None:
+                todo.append(t)
+        for t in sorted(todo, key=lambda t: -_COST.get(t["builder"], 1.0)):
+            self._sent[t["stem"]] = (_task_key(t), self._executor().submit(draw_task, t))
+        futures = {self._sent[t["stem"]][1]: i for i, t in enumerate(tasks)}
+        got: dict[int, tuple] = {}
+        pending = set(futures)
+        while pending:
+            done, pending = wait(pending, return_when=FIRST_COMPLETED)
+            for f in done:
+                got[futures[f]] = f.result()
+                if progress:
+                    progress(len(got), len(tasks))
+        return _entries(self.folder, tasks, [got[i] for i in range(len(tasks))])
+
+    def cancel(self) -> None:
+        """Cancel what is not drawn yet and stop the workers (after an error or Ctrl-C)."""
+        for _, f in self._sent.values():
+            f.cancel()
+        if self._ex is not None:
+            self._ex.shutdown(wait=True, kill_workers=True)
+            self._ex = None
+
+
+def _task_key(task: dict) -> bytes:
+    import pickle
+
+    return pickle.dumps((task["builder"], task["args"], task["kwargs"], task.get("title"), task.get("caption")),
+                        protocol=pickle.HIGHEST_PROTOCOL)
 
 
 def draw_task(task: dict) -> tuple[str, str]:
