@@ -339,7 +339,8 @@ STAGE = Stage("rf", lambda b, progress: compute_rf(b, progress), label="RF condi
 def condition_yield_function(sc: Scenario, cond: dict, fld, *, progress=None):
     """The yield function of one ``[rf]`` condition of ``sc`` in the field ``fld``, as the ``rf`` stage
     computes it (module docstring): at ``[rf] degree``, with the scenario's ``check_points``, ``tol`` and
-    ``cache``; the control ("off") is the static yield function fitted on the same grid.
+    ``cache``; the control ("off") is the static yield function fitted on the same grid (also
+    through the content-hash cache when ``[rf] cache``).
 
     Parameters
     ----------
@@ -364,7 +365,10 @@ def condition_yield_function(sc: Scenario, cond: dict, fld, *, progress=None):
     field = spin_field_uT(sc, fld)
     L = int(rfc["degree"])
     if cond["kind"] == "off":
-        return YieldFunction.from_system(system, field, L, check_points=rfc["check_points"], progress=progress)
+        # through the content-hash cache like every computed yield function (issue 13): a warm run
+        # skips the engine's eigendecomposition of the static pair
+        return YieldFunction.from_system(system, field, L, check_points=rfc["check_points"], progress=progress,
+                                         cache=rfc["cache"])
     return rf_yield_function_for(system, field, condition_record(cond, fld), degree=L,
                                  check_points=rfc["check_points"], tol=rfc["tol"], cache=rfc["cache"],
                                  progress=progress)
