@@ -247,3 +247,44 @@ def test_sparse_counts_product_equals_the_dense_product():
         D.SPARSE_DENSITY = old
     np.testing.assert_allclose(got.heading_deg, ref.heading_deg, atol=1e-9)
     np.testing.assert_array_equal(got.ambiguous, ref.ambiguous)
+
+
+@pytest.mark.parametrize("gain", ["known", "free"])
+def test_scaled_decoder_equals_a_decoder_built_at_that_light(gain):
+    # Derived: log(f lam) = log f + log lam and (f dlam) / (f lam) = dlam / lam, so a decoder scaled
+    # from one photon decodes like one built from f times the expected counts.  Reference: the
+    # decoder built directly (its own logarithms and divisions), single looks and head scans.
+    sig = synthetic_signal(n=30, photons=1.0, seed=3)
+    h = np.arange(360.0)
+    lam, dlam = sig.expected_and_derivative(h)
+    base = decode.HeadingDecoder(h, lam, dlam, gain=gain)
+    rng = np.random.default_rng(4)
+    offs = np.array([-20.0, 0.0, 20.0])
+    for f in (3.0, 300.0, 3e4):
+        direct = decode.HeadingDecoder(h, f * lam, f * dlam, gain=gain)
+        scaled = base.scaled(f)
+        counts = rng.poisson(f * lam[[17, 140, 301]]).astype(float)
+        a, b = direct.decode(counts), scaled.decode(counts)
+        np.testing.assert_allclose(b.heading_deg, a.heading_deg, rtol=0, atol=1e-8)
+        np.testing.assert_allclose(b.loglik, a.loglik, rtol=1e-12, atol=1e-8)
+        sc = rng.poisson(f * lam[(np.array([50, 200])[:, None] + offs[None, :].astype(int)) % 360] / 3)
+        np.testing.assert_allclose(scaled.decode_scan(sc.astype(float), offs).heading_deg,
+                                   direct.decode_scan(sc.astype(float), offs).heading_deg, rtol=0, atol=1e-8)
+    with pytest.raises(InputError, match="positive finite"):
+        base.scaled(0.0)
+    with pytest.raises(InputError, match="brent"):
+        decode.HeadingDecoder.from_signal(sig, 36, refine="brent").scaled(2.0)
+
+
+def test_grid_model_expected_counts_scale_the_one_photon_model():
+    # Reference: the signal model's own forward evaluation at that light level (SignalModel.expected,
+    # every receptor's harmonics at each heading); the grid model interpolates the model evaluated
+    # once at one photon and scales it (derived: expected counts are proportional to the photons).
+    from retina.stages._common import GridModel
+
+    sig = synthetic_signal(n=30, photons=1.0, seed=3)
+    m = GridModel(sig, 2, "known")          # the synthetic yield a + c (axis . b)^2 has degree 2
+    h = np.array([3.7, 91.2, 250.0])
+    for ph in (1.0, 30.0, 1e5):
+        ref = dataclasses.replace(sig, photons=ph).expected(h)
+        np.testing.assert_allclose(m.expected(h, ph), np.maximum(ref, 0.0), rtol=1e-9, atol=1e-12 * ph)

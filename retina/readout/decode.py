@@ -192,6 +192,45 @@ class HeadingDecoder:
             self._ratio = np.zeros_like(lam)
             np.divide(self.dlam, lam, out=self._ratio, where=lam > 0)
 
+    def scaled(self, factor: float) -> "HeadingDecoder":
+        """The same decoder for expected counts ``factor * lam`` (another light level, same headings).
+
+        Cheaper than building it: ``log(f lam) = log f + log lam`` and ``dlam / lam`` is unchanged,
+        so no logarithm or division over the ``(G, N)`` grid is recomputed.  The decodes equal
+        those of ``HeadingDecoder(headings, factor * lam, factor * dlam, ...)`` up to rounding.
+
+        Parameters
+        ----------
+        factor : float
+            Positive, finite.
+
+        Returns
+        -------
+        HeadingDecoder
+            Sharing this decoder's ``dlam / lam``; no forward model (``refine="brent"`` refused).
+
+        Raises
+        ------
+        InputError
+            Key ``decoder.scale`` for a factor that is not positive and finite, or with
+            ``refine="brent"`` (its forward model is not scaled).
+        """
+        import copy
+
+        f = float(factor)
+        if not (np.isfinite(f) and f > 0):
+            raise InputError(f"expected a positive finite scale factor, got {factor!r}", key="decoder.scale")
+        if self.refine == "brent":
+            raise InputError("a scaled decoder cannot refine with brent (no forward model)", key="decoder.scale")
+        new = copy.copy(self)
+        new.lam = f * self.lam
+        new.dlam = None if self.dlam is None else f * self.dlam
+        new.forward = None
+        new._loglam_T = np.maximum(self._loglam_T + np.log(f), np.log(_TINY))
+        new._lam_tot = f * self._lam_tot
+        new._dlam_tot = None if self._dlam_tot is None else f * self._dlam_tot
+        return new
+
     @property
     def n_receptors(self) -> int:
         """The number ``N`` of receptors the decoder reads."""

@@ -175,9 +175,12 @@ class GridModel:
         lam, dlam = signal.expected_and_derivative_fourier(self.grid, degree)
         self.lam1 = np.maximum(lam, 0.0)     # (G, N) at photons = 1
         self.dlam1 = dlam
+        self._decoder1 = None                # the decoder at photons = 1, scaled for each light level
+        self._nodes1 = None                  # the model at its 2 L + 1 Fourier nodes, photons = 1
 
     def decoder(self, photons: float):
-        """The maximum-likelihood decoder on the grid at a light level.
+        """The maximum-likelihood decoder on the grid at a light level (the decoder at one photon,
+        built once, scaled: :meth:`retina.readout.decode.HeadingDecoder.scaled`).
 
         Parameters
         ----------
@@ -191,7 +194,11 @@ class GridModel:
         """
         from retina.readout.decode import HeadingDecoder
 
-        return HeadingDecoder(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
+        if not (np.isfinite(photons) and photons > 0):
+            return HeadingDecoder(self.grid, photons * self.lam1, photons * self.dlam1, gain=self.gain)
+        if self._decoder1 is None:
+            self._decoder1 = HeadingDecoder(self.grid, self.lam1, self.dlam1, gain=self.gain)
+        return self._decoder1.scaled(photons)
 
     def truth(self, photons: float):
         """The signal model that draws the counts at a light level.
@@ -211,7 +218,9 @@ class GridModel:
     def expected(self, headings_deg, photons: float) -> np.ndarray:
         """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
         from ``2 L + 1`` headings (``SignalModel.expected_and_derivative_fourier``), far cheaper than
-        evaluating every receptor's harmonics at thousands of random headings.
+        evaluating every receptor's harmonics at thousands of random headings.  The model at the
+        nodes is evaluated once, at one photon per receptor, and scaled (expected counts are
+        proportional to the photon budget).
 
         Parameters
         ----------
@@ -227,9 +236,13 @@ class GridModel:
         """
         from retina.signal.noise import trig_interp_matrix
 
-        nodes, lam_n, _ = self.truth(photons).fourier_nodes(self.degree)   # the derivative is not needed here
+        if self._nodes1 is None:                 # expected counts are proportional to the photons
+            self._nodes1 = self.truth(1.0).fourier_nodes(self.degree)[:2]   # the derivative is not needed
+        nodes, lam_n = self._nodes1
         h = np.deg2rad(np.atleast_1d(np.asarray(headings_deg, float)))
-        return np.maximum(trig_interp_matrix(np.deg2rad(nodes), h, self.degree) @ lam_n, 0.0)
+        out = trig_interp_matrix(np.deg2rad(nodes), h, self.degree) @ lam_n
+        out *= float(photons)
+        return np.maximum(out, 0.0, out=out)
 
     def scan_information(self, offsets_deg: np.ndarray, nuisance: str) -> np.ndarray:
         """Heading information per unit budget over a scan, at every grid heading.
