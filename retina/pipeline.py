@@ -45,7 +45,9 @@ def run(sc: Scenario, *, quick: bool = False,
         Apply :func:`retina.build.quick_scenario` first.
     stages : sequence of str
         Names in :data:`retina.stages.STAGES` ("patterns", "scan", "precision", "disorder",
-        "order", "trials", "rf", "rf_sweep"); they run in the registry's order.  A stage with nothing to do
+        "order", "trials", "rf", "rf_sweep"); they run in the registry's order, except that with
+        ``on_group`` the stages of :data:`EARLY_FIGURE_STAGES` run right after ``patterns`` and
+        ``scan`` (their figures are the slowest to draw); the results are the same either way.  A stage with nothing to do
         (``rf`` and ``rf_sweep`` without an ``[rf]`` request) adds no group.  The yield function
         and the retina are always
         built.
@@ -97,7 +99,8 @@ def run(sc: Scenario, *, quick: bool = False,
     prov = make_provenance(sc, yf, fld, quick=quick, stages=stages)
     if on_group is not None:
         on_group(Results(dict(g), prov, scenario=sc))
-    for name, stage in STAGES.items():
+    for name in _compute_order(on_group is not None):
+        stage = STAGES[name]
         if name in stages:
             if stage.steps(sc) == 0 and name in ("rf", "rf_sweep"):
                 continue
@@ -109,4 +112,21 @@ def run(sc: Scenario, *, quick: bool = False,
                 g[name] = out
                 if on_group is not None:
                     on_group(Results(dict(g), prov, scenario=sc))
-    return Results(g, prov, scenario=sc)
+    order = ["yield_function", "receptors", "field", *STAGES]
+    return Results({k: g[k] for k in order if k in g}, prov, scenario=sc)
+
+
+#: Stages whose figures take longest to draw, computed first when figures are drawn while the
+#: run goes on (``on_group``), so that the figure left to draw after the last stage is a quick one.
+#: Every stage draws from its own generator (:func:`retina.build.stage_rng`) and reads only the
+#: built objects, so the results do not depend on the order.
+EARLY_FIGURE_STAGES = ("rf_sweep", "rf")
+
+
+def _compute_order(early_figures: bool) -> list[str]:
+    names = list(STAGES)
+    if not early_figures:
+        return names
+    first = [n for n in ("patterns", "scan") if n in names]
+    return first + [n for n in EARLY_FIGURE_STAGES if n in names] + [n for n in names
+                                                                      if n not in first + list(EARLY_FIGURE_STAGES)]

@@ -383,3 +383,41 @@ def test_report_states_order_parameter_depth_and_north(demo_dir):
     a = np.radians(dim)
     r = stats.directional_stats(np.stack([np.cos(a), np.sin(a)], axis=1)).mean_resultant_length
     assert f"| dim: Rayleigh z = n r^2 | {a.size * r ** 2:.3g} |" in md
+
+
+@pytest.mark.slow
+def test_stage_order_with_early_figures_does_not_change_the_results():
+    # Derived: every stage reads only the built objects and draws from its own generator
+    # (retina.build.stage_rng), so computing the RF stages first (as the pipeline does when figures
+    # are drawn during the run) gives the same numbers, bit for bit; one BLAS thread for both runs.
+    from threadpoolctl import threadpool_limits
+
+    from retina.pipeline import run
+
+    sc = B.quick_scenario(load_scenario(ASSETS / "demo_scenario.toml"))
+    sc = sc.replace(rf={"conditions": [dict(sc["rf"]["conditions"][0])]},
+                    readout={"photons": [10.0, 1000.0], "decode_repeats": 6})
+    stages = ("scan", "precision", "trials", "rf")
+    seen = []
+    with threadpool_limits(1, user_api="blas"):
+        a = run(sc, stages=stages)
+        b = run(sc, stages=stages, on_group=lambda r: seen.append(sorted(r.groups)))
+    base = ["field", "receptors", "yield_function"]
+    assert seen[0] == base and seen[1] == sorted(base + ["scan"]) and seen[2] == sorted(base + ["scan", "rf"])
+    assert list(a.groups) == list(b.groups)
+
+    def walk(d, path, into):
+        for k, v in d.items():
+            if isinstance(v, dict):
+                walk(v, f"{path}/{k}", into)
+            else:
+                into[f"{path}/{k}"] = v
+
+    fa, fb = {}, {}
+    walk(a.groups, "", fa)
+    walk(b.groups, "", fb)
+    assert fa.keys() == fb.keys()
+    for k in fa:
+        x, y = np.asarray(fa[k]), np.asarray(fb[k])
+        assert x.shape == y.shape and (np.array_equal(x, y, equal_nan=x.dtype.kind == "f") if x.dtype.kind != "O"
+                                       else fa[k] == fb[k]), k
