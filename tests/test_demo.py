@@ -116,6 +116,7 @@ def test_figures_drawn_during_the_run_are_those_of_the_final_results(demo_dir, t
     assert pool.submit(early) == 2                      # precision (stale data) and trials
     assert pool.submit(early) == 0                      # nothing handed out twice
     e1 = pool.collect(res)
+    pool.close()
     e2 = make_figures(res, tmp_path / "late", formats=("png",), dpi=60, jobs=1)
     assert [(e.stem, e.title, e.caption) for e in e1] == [(e.stem.replace("late", "early"), e.title, e.caption)
                                                           for e in e2]

@@ -131,8 +131,11 @@ class OutputWriter:
     def __exit__(self, *exc) -> None:
         import shutil
 
-        if exc[0] is not None and self.pool is not None:
-            self.pool.cancel()
+        if self.pool is not None:
+            if exc[0] is not None:
+                self.pool.cancel()
+            else:
+                self.pool.close()
         if self.stage is not None:
             shutil.rmtree(self.stage, ignore_errors=True)
             self.stage = None

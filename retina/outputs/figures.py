@@ -60,10 +60,12 @@ def make_figures(res: Results, folder: str | Path, *, formats=("png", "svg"), dp
     if jobs > 1:
         pool = FigurePool(folder, formats=formats, dpi=dpi, animation=animation, jobs=jobs)
         try:
-            return pool.collect(res, progress=progress)
+            entries = pool.collect(res, progress=progress)
         except BaseException:
             pool.cancel()
             raise
+        pool.close()
+        return entries
     got = []
     for t in tasks:
         got.append(draw_task(t))
@@ -110,8 +112,9 @@ class FigurePool:
     :meth:`collect` checks every figure of the final results against the task it was drawn from
     (the same builder, arrays and options, compared as pickled bytes) and redraws any that
     differ or are missing, so the files are exactly those :func:`make_figures` draws from the
-    final results.  The workers are loky processes (joblib's reusable executor), one BLAS/numba
-    thread each, niced by :data:`WORKER_NICE`.
+    final results.  The workers are loky processes (a private ``loky.ProcessPoolExecutor``, as
+    joblib uses), one BLAS/numba thread each, niced by :data:`WORKER_NICE`; :meth:`close` or
+    :meth:`cancel` stops them.
 
     Parameters
     ----------
@@ -139,10 +142,12 @@ class FigurePool:
 
     def _executor(self):
         if self._ex is None:
-            from joblib.externals.loky import get_reusable_executor
+            # a private loky executor: joblib's reusable one is shared with its own Parallel calls,
+            # which expect their own set-up of it
+            from joblib.externals.loky import ProcessPoolExecutor
 
-            self._ex = get_reusable_executor(max_workers=self.jobs, env=_ONE_THREAD_ENV,
-                                             initializer=_worker_init, initargs=(self.nice,))
+            self._ex = ProcessPoolExecutor(max_workers=self.jobs, env=_ONE_THREAD_ENV, initializer=_worker_init,
+                                           initargs=(self.nice,))
         return self._ex
 
     def _tasks(self, res: Results) -> list[dict]:
@@ -214,6 +219,12 @@ class FigurePool:
             f.cancel()
         if self._ex is not None:
             self._ex.shutdown(wait=True, kill_workers=True)
+            self._ex = None
+
+    def close(self) -> None:
+        """Stop the workers once every figure is collected (they are idle then)."""
+        if self._ex is not None:
+            self._ex.shutdown(wait=True)
             self._ex = None
 
 
