@@ -83,9 +83,12 @@ def _entries(folder: Path, tasks: list, got: list) -> list:
 
 
 #: Niceness added to the figure workers: while stages still run in the main process, the
-#: scheduler gives it about three times a worker's share of a busy core (weights of the Linux
-#: scheduler, nice 0 against nice 5), so drawing fills the idle time without delaying the stages.
-WORKER_NICE = 5
+#: scheduler gives it about 1.6 times a worker's share of a busy core (weights of the Linux
+#: scheduler, 1024 at nice 0 against 655 at nice 2), so drawing fills the idle time with little
+#: delay to the stages.  Measured on the shared machine (load average 9-11): at nice 5 the
+#: workers were starved by other users' processes and 16.5 s of drawing was left after the
+#: stages; at nice 2, 1.2-3.2 s.
+WORKER_NICE = 2
 
 #: Thread-count variables set to 1 in the figure workers (drawing needs no BLAS or numba threads;
 #: the cores are shared with the main process).
