@@ -104,15 +104,22 @@ def _idle(app, seconds):
 
 
 class _Frames:
-    """Counts the frames drawn by both views after the latest result arrived."""
+    """Counts the frames drawn by both views after the latest result arrived (a frame counts once
+    it is drawn and painted into the window)."""
 
     def __init__(self, win):
         self.win = win
         self.mark = None
         win.state.events.connect("result", self._on_result)
 
+    def counts(self):
+        out = []
+        for v in (self.win.head_view, self.win.map_view):
+            out += [v.draws, getattr(v.canvas.native, "painted", v.draws)]
+        return tuple(out)
+
     def _on_result(self, _event):
-        self.mark = (self.win.head_view.draws, self.win.map_view.draws)
+        self.mark = self.counts()
 
     def drawn(self, yaw=None):
         res = self.win.state.result
@@ -120,7 +127,7 @@ class _Frames:
             return False
         if yaw is not None and abs(res.request.yaw_deg - yaw) > 1e-9:
             return False
-        return self.win.head_view.draws > self.mark[0] and self.win.map_view.draws > self.mark[1]
+        return all(now > then for now, then in zip(self.counts(), self.mark))
 
 
 def _median_ms(fn, n=20):
@@ -239,10 +246,104 @@ def _window_frame_floor(app, width, height, n=30):
     return out[0], out[1]
 
 
+def _timeline(app, win, frames, n_steps):
+    """Where a heading step's time goes: per step, the times (wall since the slider change, and the
+    GUI thread's own CPU) of each phase: the request sent, the worker's computation (start, end,
+    its own thread CPU), the result received on the GUI thread, the state's result event, each
+    view's draw (start of the paint, scene drawn, pixels read back, painted).  Returns a dict
+    phase -> (median wall ms at that point, median GUI-thread CPU ms at that point) and the
+    worker's CPU per computation."""
+    ctrl = win.controls.controls["yaw_deg"]
+    rec = {}
+    gui = threading.get_ident()
+
+    def mark(name):
+        if threading.get_ident() == gui:
+            rec.setdefault(name, (time.perf_counter(), time.thread_time()))
+        else:
+            rec.setdefault(name, (time.perf_counter(), None))
+
+    worker, computer = win.worker, win.worker.computer
+    orig_submit, orig_compute = worker.submit, computer.compute
+    wcpu = []
+
+    def submit(req):
+        mark("request sent")
+        orig_submit(req)
+
+    def compute(req, cancel=None):
+        mark("worker starts")
+        c0 = time.thread_time()
+        try:
+            return orig_compute(req, cancel=cancel)
+        finally:
+            wcpu.append(time.thread_time() - c0)
+            mark("worker done")
+
+    worker.submit, computer.compute = submit, compute
+    def received(_r):
+        mark("result received")
+
+    worker.finished.connect(received)
+    unsub = win.state.events.connect("result", lambda _e: mark("result applied"))
+    patched = []
+    for label, view in (("head", win.head_view), ("map", win.map_view)):
+        b = view.canvas.native
+        orig_issue, orig_collect = b._issue, b._collect
+
+        def issue(orig=orig_issue, label=label):
+            mark(f"{label}: issue starts")
+            return orig()
+
+        def collect(orig=orig_collect, label=label):
+            mark(f"{label}: read back starts")
+            orig()
+            mark(f"{label}: read back")
+
+        def first(_e=None, label=label):
+            mark(f"{label}: scene starts")
+
+        def last(_e=None, label=label):
+            mark(f"{label}: scene issued")
+
+        b._issue, b._collect = issue, collect
+        view.canvas.events.draw.connect(first, position="first")
+        view.canvas.events.draw.connect(last, position="last")
+        patched.append((b, view.canvas, first, last))
+    rows = []
+    y0 = win.state.yaw_deg
+    try:
+        for i in range(1, n_steps + 1):
+            target = (y0 + i) % 360.0
+            rec.clear()
+            t0, c0 = time.perf_counter(), time.thread_time()
+            ctrl.slider.setValue(ctrl.to_ticks(target))
+            _pump(app, lambda: frames.drawn(target))
+            rec["both drawn"] = (time.perf_counter(), time.thread_time())
+            rows.append({k: ((t - t0) * 1e3, None if c is None else (c - c0) * 1e3) for k, (t, c) in rec.items()})
+            _idle(app, 0.01)
+    finally:
+        worker.submit, computer.compute = orig_submit, orig_compute
+        unsub()
+        worker.finished.disconnect(received)
+        for b, canvas, first, last in patched:
+            del b._issue, b._collect
+            canvas.events.draw.disconnect(first)
+            canvas.events.draw.disconnect(last)
+    out = {}
+    for k in rows[-1]:
+        w = [r[k][0] for r in rows if k in r]
+        c = [r[k][1] for r in rows if k in r and r[k][1] is not None]
+        out[k] = (float(np.median(w)), float(np.median(c)) if c else float("nan"))
+    return dict(sorted(out.items(), key=lambda kv: kv[1][0])), float(np.median(wcpu)) * 1e3
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="2 x 1,000 receptors, fewer steps (smoke run)")
+    ap.add_argument("--timeline", action="store_true",
+                    help="only the heading drag, with where each step's time goes (phase by phase)")
     args = ap.parse_args(argv)
     from retina_viewer.display import XvfbError, virtual_display
 
@@ -308,6 +409,24 @@ def _run(args) -> int:
         t0 = time.perf_counter()
         ref.compute(first_req)
         t_first_ref = time.perf_counter() - t0
+
+        if args.timeline:
+            for _ in range(20):
+                app.processEvents()
+            from retina_viewer import canvas as _canvas
+
+            _canvas.BATCH.overlap = os.environ.get("BENCH_OVERLAP", "1") == "1"
+            phases, wcpu = _timeline(app, win, frames, n_steps)
+            print(f"per heading step, median over {n_steps} steps (2 x {n_eye} receptors): wall time since "
+                  "the slider change, and the GUI thread's own CPU time by then (ms)")
+            for k, (w, c) in phases.items():
+                print(f"  {k:28s} {w:7.1f} {c:7.1f}")
+            print(f"  worker's own CPU per computation: {wcpu:.1f} ms")
+            if hasattr(os, "getloadavg"):
+                print("load average: " + ", ".join(f"{x:.2f}" for x in os.getloadavg()))
+            win.close()
+            app.processEvents()
+            return 0
 
         # 1. heading drag through the slider
         ctrl = win.controls.controls["yaw_deg"]
@@ -380,11 +499,11 @@ def _run(args) -> int:
         # rasteriser, the read-back and the copy to the window: what any step pays)
         floor = []
         for _ in range(30):
-            h0, m0 = win.head_view.draws, win.map_view.draws
+            c0 = frames.counts()
             t0 = time.perf_counter()
             win.head_view.canvas.update()
             win.map_view.canvas.update()
-            _pump(app, lambda: win.head_view.draws > h0 and win.map_view.draws > m0)
+            _pump(app, lambda: all(now > then for now, then in zip(frames.counts(), c0)))
             floor.append(time.perf_counter() - t0)
         floor_ms = float(np.median(floor)) * 1e3
         rows.append(dict(name="both views redrawn, nothing changed (floor)", measured=f"{floor_ms:.1f} ms",
