@@ -431,6 +431,35 @@ def _share_fonts(texts) -> None:
         t._update_font()
 
 
+def _keep_grid_layout(grid) -> None:
+    """Solve a vispy ``Grid``'s layout only when one of its inputs changed.
+
+    vispy's ``Grid`` solves its layout (a constraint solver, then every child's place and size)
+    before every draw, about a millisecond of CPU per frame, although the result changes only
+    with the grid's rectangle, its widgets, their size limits and stretch, or a new solver.  Here
+    the solve runs when any of those differs from the last solve (the children's rectangles
+    included, so a layout changed from outside is solved again); the layout is the same.
+    """
+    solve = grid._update_child_widget_dim
+    last = {"key": None}
+
+    def key():
+        out = [tuple(grid.rect.pos), tuple(grid.rect.size), repr(grid.padding), repr(grid.margin),
+               repr(grid.spacing), grid._need_solver_recreate, tuple(grid.grid_size)]
+        for row, col, rspan, cspan, w in grid._grid_widgets.values():
+            out.append((row, col, rspan, cspan, id(w), tuple(w.rect.pos), tuple(w.rect.size),
+                        w.width_min, w.width_max, w.height_min, w.height_max, tuple(w.stretch)))
+        return tuple(out)
+
+    def prepare(view=None):
+        k = key()
+        if k != last["key"]:
+            solve()
+            last["key"] = key()  # with the children's places the solve gave them
+
+    grid._prepare_draw = prepare
+
+
 def _rotation_to(z_to: np.ndarray) -> np.ndarray:
     """A rotation matrix taking (0, 0, 1) to the unit vector ``z_to``."""
     z = z_to / np.linalg.norm(z_to)
@@ -758,6 +787,7 @@ class MapView(_Subscriber):
         lay.addWidget(self.canvas.native, 1)
         lay.addWidget(self.caption_label)
         grid = self.canvas.central_widget.add_grid(spacing=0)
+        _keep_grid_layout(grid)
         self.yaxis = scene.AxisWidget(orientation="left", tick_label_margin=6, tick_font_size=7)
         self.yaxis.width_max = 40
         grid.add_widget(self.yaxis, row=0, col=0)

@@ -1671,3 +1671,59 @@ def test_head_static_layer_keeps_depth_and_is_the_same_picture(window, qapp):
     np.testing.assert_array_equal(_frame(view), _frame(view, one_pass=True))
     _frame(view)
     assert layer.captures == captures + 1
+
+
+def _grab_rgb(widget) -> np.ndarray:
+    """A widget painted by Qt (``QWidget.grab``) as RGB ``(H, W, 3)`` uint8."""
+    from PyQt6.QtGui import QImage
+
+    img = widget.grab().toImage().convertToFormat(QImage.Format.Format_RGBA8888)
+    ptr = img.constBits()
+    ptr.setsize(img.sizeInBytes())
+    rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine() // 4, 4)
+    return rows[:, :img.width(), :3].copy()
+
+
+def test_map_grid_layout_kept_between_frames_is_vispys_own_layout(window, qapp):
+    """The map's grid (axes, map, colour bar) is laid out only when its inputs change
+    (retina_viewer.views._keep_grid_layout).  Reference: vispy's own ``Grid`` solve, run again
+    on the same grid: every child keeps the place and size it had, before and after a resize."""
+    view = window.map_view
+    grid = view.xaxis.parent
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+
+    def places():
+        return [(tuple(w.rect.pos), tuple(w.rect.size)) for *_, w in grid._grid_widgets.values()]
+
+    for width in (window.width(), window.width() + 60):
+        window.resize(width, window.height())
+        qapp.processEvents()
+        _frame(view)
+        _frame(view)
+        kept = places()
+        type(grid)._update_child_widget_dim(grid)   # vispy's solve, unconditionally
+        assert places() == kept
+    assert len({p[1] for p in kept}) > 1          # a real layout: the children differ in size
+
+
+def test_bound_plot_background_kept_between_steps_is_the_same_picture(window, qapp):
+    """The bound plot keeps everything but the heading lines and its words as an image between
+    steps (retina_viewer.panels.BoundPlot); the picture after a heading step must equal the one
+    drawn with that image made anew (common practice, no source: a cache never changes the
+    picture), pixel by pixel, and differ from the previous step's (the heading line moved)."""
+    plot = window.bound_plot
+    window.show()
+    _settle(qapp, 0.3)
+    window.state.yaw_deg = 20.0
+    _process_until(qapp, lambda: window.state.result.request.yaw_deg == 20.0, 5.0)
+    before = _grab_rgb(plot)
+    key = plot._bg_key
+    window.state.yaw_deg = 75.0
+    _process_until(qapp, lambda: window.state.result.request.yaw_deg == 75.0, 5.0)
+    kept = _grab_rgb(plot)
+    assert plot._bg_key == key                   # the same background was used
+    plot._bg = None                              # made anew
+    fresh = _grab_rgb(plot)
+    np.testing.assert_array_equal(kept, fresh)
+    assert np.any(kept != before)
