@@ -1727,3 +1727,29 @@ def test_bound_plot_background_kept_between_steps_is_the_same_picture(window, qa
     fresh = _grab_rgb(plot)
     np.testing.assert_array_equal(kept, fresh)
     assert np.any(kept != before)
+
+
+@pytest.mark.parametrize("nuisance", ["none", "gain"])
+def test_information_at_a_few_headings_equals_the_cores_kernel(nuisance):
+    """retina_viewer.workers.information_at (numpy, for the heading shown and a scan's looks)
+    against the core's compiled kernel retina.readout.fisher.interpolated_information (a loop
+    over headings and receptors): the same sums, so equal to rounding; receptors with zero
+    expected counts included (they add nothing to the Poisson information)."""
+    from retina.readout.fisher import interpolated_information
+    from retina.signal.noise import trig_interp_matrix
+    from retina_viewer.workers import information_at
+
+    rng = np.random.default_rng(7)
+    L, N = 4, 300
+    nodes = np.linspace(0.0, 2 * np.pi, 2 * L + 1, endpoint=False)
+    lam_n = rng.uniform(50.0, 150.0, (2 * L + 1, N))
+    lam_n[:, :5] = 0.0
+    dlam_n = rng.normal(0.0, 10.0, (2 * L + 1, N))
+    dlam_n[:, :5] = 0.0
+    for heads in ([0.3], [0.3, 1.7, 4.0]):
+        W = trig_interp_matrix(nodes, np.asarray(heads), L)
+        got = information_at(W, lam_n, dlam_n, nuisance)
+        want = interpolated_information(W, lam_n, dlam_n, nuisance)
+        assert got.shape == want.shape
+        np.testing.assert_allclose(got, want, rtol=1e-12)
+        assert np.all(got > 0)
