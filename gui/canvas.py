@@ -18,14 +18,16 @@ Contract (owned here)
 - :func:`scene_canvas` returns a :class:`vispy.scene.SceneCanvas` whose ``native`` widget is an
   :class:`OffscreenCanvasBackend` (a ``QWidget``): mouse, wheel and key events, ``update()``,
   ``render()`` and the ``draw`` and ``resize`` events behave as with vispy's own Qt backend.
-- One OpenGL context per canvas (``QOpenGLContext`` on a ``QOffscreenSurface``); the scene is drawn
-  when Qt paints the widget (one draw per ``update()``, coalesced by Qt as usual).
+- One OpenGL context per canvas (``QOpenGLContext`` on a ``QOffscreenSurface``).
+- Frames in batches (:data:`BATCH`, :class:`_FrameBatch`): ``update()`` on a shown canvas puts it
+  in the batch; in the next pass of the event loop the batch draws every canvas waiting in it,
+  first issuing each scene (vispy's draw and ``glFlush``) and only then reading each back, so
+  Mesa's software renderer rasterises one canvas while the GUI thread builds the next one's
+  commands; Qt then paints the images in one paint pass.  One draw per ``update()`` (several
+  ``update()`` calls before the batch runs are one draw).  A paint Qt asks for by itself (the
+  widget shown, exposed, resized or grabbed) draws the scene at once and takes the canvas out of
+  a waiting batch.  A hidden canvas draws when it is shown.
 - The widget is opaque (``WA_OpaquePaintEvent``): nothing behind it is painted.
-- One canvas per paint pass: Qt paints every widget of a window that asked for it in one pass of
-  the event loop, so two canvases changed together would keep the loop busy for both scenes at
-  once.  A canvas asked to redraw while another canvas of its window still waits for its paint
-  asks again 1 ms later, after that paint: the event loop runs in between (input, timers), and
-  its longest stall is one scene, not two.  Each canvas still draws once per change.
 - Making a canvas installs :class:`_ShaderParseRe` in ``vispy.gloo.program``: vispy's
   comment stripping of shader code without its backtracking regular expression (the same text,
   :func:`strip_line_comments`; about a second of CPU at start-up for the viewer's shaders).

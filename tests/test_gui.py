@@ -1753,3 +1753,29 @@ def test_information_at_a_few_headings_equals_the_cores_kernel(nuisance):
         assert got.shape == want.shape
         np.testing.assert_allclose(got, want, rtol=1e-12)
         assert np.all(got > 0)
+
+
+def test_frame_batch_draws_each_canvas_once_and_a_qt_paint_in_between_takes_its_place(window, qapp):
+    """Contract of gui/canvas.py (common practice, no source): canvases asking for a frame are
+    drawn together by the frame batch, one draw per canvas however many update() calls came
+    before it ran; a paint Qt asks for itself while a frame waits draws at once and the batch then
+    draws nothing more for that canvas."""
+    from retina_viewer.canvas import BATCH
+
+    window.show()
+    _settle(qapp, 0.5)
+    head, mapv = window.head_view, window.map_view
+    h0, m0, p0 = head.draws, mapv.draws, BATCH.passes
+    for _ in range(3):
+        head.canvas.update()
+        mapv.canvas.update()
+    _process_until(qapp, lambda: head.draws > h0 and mapv.draws > m0, 5.0)
+    _settle(qapp, 0.1)
+    assert (head.draws - h0, mapv.draws - m0) == (1, 1)
+    assert BATCH.passes == p0 + 1                # both in one pass
+    h0 = head.draws
+    head.canvas.update()                          # waits in the batch ...
+    head.canvas.native.repaint()                  # ... and Qt paints first: drawn now
+    assert head.draws == h0 + 1
+    _settle(qapp, 0.1)
+    assert head.draws == h0 + 1                   # not again by the batch
