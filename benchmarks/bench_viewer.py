@@ -484,6 +484,31 @@ def _run(args) -> int:
                          ratio=f"{np.median(pcpu) / np.median(t_ref):.2f}", target="(info)", passed=True,
                          note="GUI thread + worker + the software renderer's threads (not the X server); "
                               "what a step costs whatever the load; reference: the worker's bare computation"))
+        # the same drag with each view read back before the next one is drawn (the frame batch
+        # without its overlap: retina_viewer.canvas._FrameBatch.overlap)
+        from retina_viewer import canvas as _canvas
+
+        if hasattr(_canvas, "BATCH"):
+            _canvas.BATCH.overlap = False
+            seq, seq_cpu = [], []
+            y1 = win.state.yaw_deg
+            try:
+                for i in range(1, n_steps + 1):
+                    target = (y1 + i) % 360.0
+                    t0, c0 = time.perf_counter(), time.thread_time()
+                    ctrl.slider.setValue(ctrl.to_ticks(target))
+                    _pump(app, lambda: frames.drawn(target))
+                    seq.append(time.perf_counter() - t0)
+                    seq_cpu.append(time.thread_time() - c0)
+                    _idle(app, 0.01)
+            finally:
+                _canvas.BATCH.overlap = True
+            seq_med = float(np.median(seq)) * 1e3
+            rows.append(dict(name="heading drag, views read back one after the other", measured=f"{seq_med:.1f} ms",
+                             reference=f"{med:.1f} ms", ratio=f"{seq_med / med:.2f}", target="(info)", passed=True,
+                             note=f"median per step; GUI-thread CPU {np.median(seq_cpu) * 1e3:.1f} ms; reference: the "
+                                  "drag above, where the second view is drawn while the renderer rasterises the "
+                                  "first (retina_viewer.canvas._FrameBatch)"))
         per_view = draws.mean(axis=0)
         rows.append(dict(name="draws per step (head view, map view)",
                          measured=f"{per_view[0]:.2f}, {per_view[1]:.2f}", reference="1, 1",
