@@ -2,7 +2,8 @@
 
 Run alone: ``python benchmarks/bench_viewer.py`` (``--check`` exits 1 when a target is missed,
 ``--quick`` uses 2 x 1,000 receptors and fewer steps for a smoke run; its numbers are not the
-targets' setting).  Needs PyQt6, vispy and a display; without ``DISPLAY`` it starts its own Xvfb
+targets' setting; ``--timeline`` runs only the heading drag and prints, phase by phase, where a
+step's time goes: see below).  Needs PyQt6, vispy and a display; without ``DISPLAY`` it starts its own Xvfb
 (Mesa's software OpenGL renderer, as in CI).
 
 Cases (every reference is measured in the same run, on the same machine):
@@ -12,7 +13,10 @@ Cases (every reference is measured in the same run, on the same machine):
    and the real threaded worker; per step, the time from the slider change until both views
    have drawn the new pattern.  Reference: the worker's bare computation of the same requests
    (``PatternComputer.compute`` on this thread).  Also the number of draws per step and view
-   (target: exactly one).  Targets: median <= 33 ms, 95th percentile <= 50 ms.
+   (target: exactly one).  Targets: median <= 33 ms, 95th percentile <= 50 ms.  Then the same
+   drag with the two views read back one after the other (``_FrameBatch.overlap = False`` in
+   :mod:`retina_viewer.canvas`) against the drag above, where the second view's scene is built
+   while Mesa's renderer rasterises the first.
 2. First complete picture: from ``show()`` until both views have drawn the first pattern (text
    glyphs included), twice: with an empty glyph cache (a first start on a machine:
    :mod:`retina_viewer.glyphs`) and with the glyphs on disk (every later start; the target's
@@ -46,6 +50,13 @@ machine disturbs far less than the wall time; the rest of a step is spent in Mes
 threads, the X server and the worker.  While waiting, the benchmark's event loop sleeps until
 the next event, as an application's does (it does not poll: polling would spend the GUI
 thread's CPU and take a core from the renderer and the worker on a 2-core machine).
+
+``--timeline``: per step, the wall time since the slider change and the GUI thread's own CPU
+time at each phase (median over the steps): the request sent, the worker's computation (start,
+end, its own CPU), the result received and applied on the GUI thread, each view's scene issued
+(vispy's draw and ``glFlush``) and read back, and both views painted; plus the process CPU
+(all threads) per step.  It also runs the viewer of an older tree (put it first on
+``PYTHONPATH``), whose canvases have no frame batch: then only the phases it has are printed.
 
 A view has "drawn" when its canvas has rendered the scene and painted it into the window
 (:mod:`retina_viewer.canvas`).  ``RETINA_VIEWER_CANVAS=widget`` runs the same cases with vispy's

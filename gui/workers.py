@@ -49,7 +49,8 @@ Conventions (owned here)
   :mod:`retina.readout.scans` "pose_gain").  :attr:`PatternResult.scan_bound_deg` is compared with
   :attr:`PatternResult.look_bound_deg`, the same number of looks all at the scan centre.
 - Threads: the pattern and its numbers are computed with one BLAS thread (:func:`_one_blas_thread`);
-  the yield function keeps the library's default.  An OpenBLAS thread keeps spinning for a while
+  the yield function and the retina model (built once per yield function and ``kappa``) keep the
+  library's default.  An OpenBLAS thread keeps spinning for a while
   after each call: with the default two threads on a 2-core machine, a heading step's small
   products cost about 45 ms of spinning CPU that the GUI thread and the software renderer wait for
   (``benchmarks/bench_viewer.py``).
@@ -381,11 +382,11 @@ class PatternComputer:
 
         sc = req.scenario
         yf, F_yield, note = self.yield_function(sc, req.intensity_uT, rf=req.rf, progress=progress)
+        model = self.model(sc, yf, req.kappa, req.ordering)
         # one BLAS thread for the pattern and its numbers (small products, milliseconds): an idle
         # OpenBLAS thread spins for a while after each call, and on a 2-core machine that takes the
         # core the GUI thread and the software renderer need (module docstring)
         with _one_blas_thread():
-            model = self.model(sc, yf, req.kappa, req.ordering)
             fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
             pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
             y = pat.yields
