@@ -1779,3 +1779,20 @@ def test_frame_batch_draws_each_canvas_once_and_a_qt_paint_in_between_takes_its_
     assert head.draws == h0 + 1
     _settle(qapp, 0.1)
     assert head.draws == h0 + 1                   # not again by the batch
+
+
+def test_pattern_work_runs_with_one_blas_thread_and_restores_the_default():
+    """retina_viewer.workers._one_blas_thread: one BLAS thread inside, the library's own setting
+    after (reference: threadpoolctl's report of the loaded BLAS libraries)."""
+    threadpoolctl = pytest.importorskip("threadpoolctl")
+    from retina_viewer.workers import _one_blas_thread
+
+    def blas_threads():
+        return [i["num_threads"] for i in threadpoolctl.threadpool_info() if i["user_api"] == "blas"]
+
+    before = blas_threads()
+    if not before:
+        pytest.skip("no BLAS library that threadpoolctl can see")
+    with _one_blas_thread():
+        assert blas_threads() == [1] * len(before)
+    assert blas_threads() == before
