@@ -398,12 +398,15 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
         Label centres.  Candidates are tried in a fixed order (above, below, right, left, the
         diagonals, then farther out); a label that finds no free place takes its first candidate.
     """
+    # plain Python floats (the same double arithmetic as numpy's scalars, several times faster in
+    # these small loops: this runs on the GUI thread for every heading step)
     anchors = np.asarray(anchors, float).reshape(-1, 2)
-    sizes = np.asarray(sizes, float).reshape(-1, 2)
-    obst = np.asarray(obstacles, float).reshape(-1, 2)
+    sizes = np.asarray(sizes, float).reshape(-1, 2).tolist()
+    obst = np.asarray(obstacles, float).reshape(-1, 2).tolist()
+    gap, mark_half = float(gap), float(mark_half)
     boxes = [(p[0], p[1], mark_half, mark_half) for p in obst]  # centre x, y, half w, half h
     out = np.zeros_like(anchors)
-    for k, (a, (w, h)) in enumerate(zip(anchors, sizes)):
+    for k, (a, (w, h)) in enumerate(zip(anchors.tolist(), sizes)):
         hw, hh = 0.5 * w, 0.5 * h
         cands = []
         for r in (1.0, 2.0, 3.0):
