@@ -23,10 +23,10 @@ Contract (owned here)
   in the batch; in the next pass of the event loop the batch issues every waiting canvas's scene
   (vispy's draw and ``glFlush``) and then reads each back, so Mesa's software renderer can
   rasterise one canvas while the GUI thread builds the next one's commands; Qt then paints the
-  images in one paint pass.  One draw per ``update()`` (several
-  ``update()`` calls before the batch runs are one draw).  A paint Qt asks for by itself (the
-  widget shown, exposed, resized or grabbed) draws the scene at once and takes the canvas out of
-  a waiting batch.  A hidden canvas draws when it is shown.
+  images in one paint pass.  One draw per ``update()`` (several ``update()`` calls before the
+  batch runs are one draw).  A paint Qt asks for by itself (the widget shown, exposed, resized or
+  grabbed) draws the scene at once and takes the canvas out of a waiting batch.  A hidden canvas
+  draws when it is shown.
 - The widget is opaque (``WA_OpaquePaintEvent``): nothing behind it is painted.
 - Making a canvas installs :class:`_ShaderParseRe` in ``vispy.gloo.program``: vispy's
   comment stripping of shader code without its backtracking regular expression (the same text,
@@ -35,10 +35,10 @@ Contract (owned here)
 
 from __future__ import annotations
 
-
 import numpy as np
 
-__all__ = ["scene_canvas", "OffscreenCanvasBackend", "offscreen_app", "strip_line_comments", "StaticLayer"]
+__all__ = ["scene_canvas", "OffscreenCanvasBackend", "offscreen_app", "strip_line_comments", "StaticLayer",
+           "BATCH"]
 
 _APP = None
 _CLASS = None
@@ -147,7 +147,6 @@ def _make_backend_class():
             self._surface.create()
             self._fbo = None
             self._resize_pending = False
-            self._deferred = False
             self._gl_initialized = False
             self._image = None
             self._fresh = None   # an image read back by the batch, to paint

@@ -50,9 +50,9 @@ Conventions (owned here)
   :attr:`PatternResult.look_bound_deg`, the same number of looks all at the scan centre.
 - Threads: the pattern and its numbers are computed with one BLAS thread (:func:`_one_blas_thread`);
   the yield function and the retina model (built once per yield function and ``kappa``) keep the
-  library's default.  An OpenBLAS thread keeps spinning for a while
-  after each call: with the default two threads on a 2-core machine, a heading step's small
-  products cost about 45 ms of spinning CPU that the GUI thread and the software renderer wait for
+  library's default.  An OpenBLAS thread keeps spinning for a while after each call: with the
+  default two threads on a 2-core machine, a heading step's small products cost about 45 ms of
+  spinning CPU that the GUI thread and the software renderer wait for
   (``benchmarks/bench_viewer.py``).
 - Colours: a request that names ``display`` (and ``eye``, ``colour_limits``) gets its colours
   made here, on the worker thread (:attr:`PatternResult.colours`: float32 arrays of the receptor

@@ -814,8 +814,8 @@ def test_one_draw_per_heading_step(window, qapp):
     for yaw in (11.0, 12.0, 13.0):
         h0, m0 = window.head_view.draws, window.map_view.draws
         window.state.yaw_deg = yaw
-        # the two canvases paint in consecutive passes of the event loop (gui/canvas.py): wait
-        # for both, then a little longer for a second, unwanted draw
+        # the two canvases are drawn by the frame batch (gui/canvas.py): wait for both, then a
+        # little longer for a second, unwanted draw
         _process_until(qapp, lambda: window.head_view.draws > h0 and window.map_view.draws > m0, 5.0)
         _settle(qapp, 0.1)
         assert (window.head_view.draws - h0, window.map_view.draws - m0) == (1, 1)
