@@ -2,7 +2,8 @@
 
 Run alone: ``python benchmarks/bench_viewer.py`` (``--check`` exits 1 when a target is missed,
 ``--quick`` uses 2 x 1,000 receptors and fewer steps for a smoke run; its numbers are not the
-targets' setting).  Needs PyQt6, vispy and a display; without ``DISPLAY`` it starts its own Xvfb
+targets' setting; ``--timeline`` runs only the heading drag and prints, phase by phase, where a
+step's time goes: see below).  Needs PyQt6, vispy and a display; without ``DISPLAY`` it starts its own Xvfb
 (Mesa's software OpenGL renderer, as in CI).
 
 Cases (every reference is measured in the same run, on the same machine):
@@ -12,7 +13,10 @@ Cases (every reference is measured in the same run, on the same machine):
    and the real threaded worker; per step, the time from the slider change until both views
    have drawn the new pattern.  Reference: the worker's bare computation of the same requests
    (``PatternComputer.compute`` on this thread).  Also the number of draws per step and view
-   (target: exactly one).  Targets: median <= 33 ms, 95th percentile <= 50 ms.
+   (target: exactly one).  Targets: median <= 33 ms, 95th percentile <= 50 ms.  Then the same
+   drag with the two views read back one after the other (``_FrameBatch.overlap = False`` in
+   :mod:`retina_viewer.canvas`) against the drag above, where the second view's scene is built
+   while Mesa's renderer rasterises the first.
 2. First complete picture: from ``show()`` until both views have drawn the first pattern (text
    glyphs included), twice: with an empty glyph cache (a first start on a machine:
    :mod:`retina_viewer.glyphs`) and with the glyphs on disk (every later start; the target's
@@ -46,6 +50,13 @@ machine disturbs far less than the wall time; the rest of a step is spent in Mes
 threads, the X server and the worker.  While waiting, the benchmark's event loop sleeps until
 the next event, as an application's does (it does not poll: polling would spend the GUI
 thread's CPU and take a core from the renderer and the worker on a 2-core machine).
+
+``--timeline``: per step, the wall time since the slider change and the GUI thread's own CPU
+time at each phase (median over the steps): the request sent, the worker's computation (start,
+end, its own CPU), the result received and applied on the GUI thread, each view's scene issued
+(vispy's draw and ``glFlush``) and read back, and both views painted; plus the process CPU
+(all threads) per step.  It also runs the viewer of an older tree (put it first on
+``PYTHONPATH``), whose canvases have no frame batch: then only the phases it has are printed.
 
 A view has "drawn" when its canvas has rendered the scene and painted it into the window
 (:mod:`retina_viewer.canvas`).  ``RETINA_VIEWER_CANVAS=widget`` runs the same cases with vispy's
@@ -104,15 +115,22 @@ def _idle(app, seconds):
 
 
 class _Frames:
-    """Counts the frames drawn by both views after the latest result arrived."""
+    """Counts the frames drawn by both views after the latest result arrived (a frame counts once
+    it is drawn and painted into the window)."""
 
     def __init__(self, win):
         self.win = win
         self.mark = None
         win.state.events.connect("result", self._on_result)
 
+    def counts(self):
+        out = []
+        for v in (self.win.head_view, self.win.map_view):
+            out += [v.draws, getattr(v.canvas.native, "painted", v.draws)]
+        return tuple(out)
+
     def _on_result(self, _event):
-        self.mark = (self.win.head_view.draws, self.win.map_view.draws)
+        self.mark = self.counts()
 
     def drawn(self, yaw=None):
         res = self.win.state.result
@@ -120,7 +138,7 @@ class _Frames:
             return False
         if yaw is not None and abs(res.request.yaw_deg - yaw) > 1e-9:
             return False
-        return self.win.head_view.draws > self.mark[0] and self.win.map_view.draws > self.mark[1]
+        return all(now > then for now, then in zip(self.counts(), self.mark))
 
 
 def _median_ms(fn, n=20):
@@ -239,10 +257,109 @@ def _window_frame_floor(app, width, height, n=30):
     return out[0], out[1]
 
 
+def _timeline(app, win, frames, n_steps):
+    """Where a heading step's time goes: per step, the times (wall since the slider change, and the
+    GUI thread's own CPU) of each phase: the request sent, the worker's computation (start, end,
+    its own thread CPU), the result received on the GUI thread, the state's result event, each
+    view's draw (start of the paint, scene drawn, pixels read back, painted).  Returns a dict
+    phase -> (median wall ms at that point, median GUI-thread CPU ms at that point) and the
+    worker's CPU per computation."""
+    ctrl = win.controls.controls["yaw_deg"]
+    rec = {}
+    gui = threading.get_ident()
+
+    def mark(name):
+        if threading.get_ident() == gui:
+            rec.setdefault(name, (time.perf_counter(), time.thread_time()))
+        else:
+            rec.setdefault(name, (time.perf_counter(), None))
+
+    worker, computer = win.worker, win.worker.computer
+    orig_submit, orig_compute = worker.submit, computer.compute
+    wcpu = []
+
+    def submit(req):
+        mark("request sent")
+        orig_submit(req)
+
+    def compute(req, cancel=None):
+        mark("worker starts")
+        c0 = time.thread_time()
+        try:
+            return orig_compute(req, cancel=cancel)
+        finally:
+            wcpu.append(time.thread_time() - c0)
+            mark("worker done")
+
+    worker.submit, computer.compute = submit, compute
+    def received(_r):
+        mark("result received")
+
+    worker.finished.connect(received)
+    unsub = win.state.events.connect("result", lambda _e: mark("result applied"))
+    patched = []
+    for label, view in (("head", win.head_view), ("map", win.map_view)):
+        b = view.canvas.native
+        if not hasattr(b, "_issue"):  # a viewer without the frame batch (for comparisons)
+            b._issue = b._collect = None
+        orig_issue, orig_collect = b._issue, b._collect
+
+        def issue(orig=orig_issue, label=label):
+            mark(f"{label}: issue starts")
+            return orig() if orig is not None else None
+
+        def collect(orig=orig_collect, label=label):
+            mark(f"{label}: read back starts")
+            if orig is not None:
+                orig()
+            mark(f"{label}: read back")
+
+        def first(_e=None, label=label):
+            mark(f"{label}: scene starts")
+
+        def last(_e=None, label=label):
+            mark(f"{label}: scene issued")
+
+        b._issue, b._collect = issue, collect
+        view.canvas.events.draw.connect(first, position="first")
+        view.canvas.events.draw.connect(last, position="last")
+        patched.append((b, view.canvas, first, last))
+    rows, pcpu = [], []
+    y0 = win.state.yaw_deg
+    try:
+        for i in range(1, n_steps + 1):
+            target = (y0 + i) % 360.0
+            rec.clear()
+            t0, c0, p0 = time.perf_counter(), time.thread_time(), time.process_time()
+            ctrl.slider.setValue(ctrl.to_ticks(target))
+            _pump(app, lambda: frames.drawn(target))
+            rec["both drawn"] = (time.perf_counter(), time.thread_time())
+            pcpu.append(time.process_time() - p0)
+            rows.append({k: ((t - t0) * 1e3, None if c is None else (c - c0) * 1e3) for k, (t, c) in rec.items()})
+            _idle(app, 0.01)
+    finally:
+        worker.submit, computer.compute = orig_submit, orig_compute
+        unsub()
+        worker.finished.disconnect(received)
+        for b, canvas, first, last in patched:
+            del b._issue, b._collect
+            canvas.events.draw.disconnect(first)
+            canvas.events.draw.disconnect(last)
+    out = {}
+    for k in rows[-1]:
+        w = [r[k][0] for r in rows if k in r]
+        c = [r[k][1] for r in rows if k in r and r[k][1] is not None]
+        out[k] = (float(np.median(w)), float(np.median(c)) if c else float("nan"))
+    return (dict(sorted(out.items(), key=lambda kv: kv[1][0])), float(np.median(wcpu)) * 1e3,
+            float(np.median(pcpu)) * 1e3)
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="2 x 1,000 receptors, fewer steps (smoke run)")
+    ap.add_argument("--timeline", action="store_true",
+                    help="only the heading drag, with where each step's time goes (phase by phase)")
     args = ap.parse_args(argv)
     from retina_viewer.display import XvfbError, virtual_display
 
@@ -309,6 +426,26 @@ def _run(args) -> int:
         ref.compute(first_req)
         t_first_ref = time.perf_counter() - t0
 
+        if args.timeline:
+            for _ in range(20):
+                app.processEvents()
+            from retina_viewer import canvas as _canvas
+
+            if hasattr(_canvas, "BATCH"):
+                _canvas.BATCH.overlap = os.environ.get("BENCH_OVERLAP", "1") == "1"
+            phases, wcpu, pcpu = _timeline(app, win, frames, n_steps)
+            print(f"per heading step, median over {n_steps} steps (2 x {n_eye} receptors): wall time since "
+                  "the slider change, and the GUI thread's own CPU time by then (ms)")
+            for k, (w, c) in phases.items():
+                print(f"  {k:28s} {w:7.1f} {c:7.1f}")
+            print(f"  worker's own CPU per computation: {wcpu:.1f} ms; process CPU per step (all threads): "
+                  f"{pcpu:.1f} ms")
+            if hasattr(os, "getloadavg"):
+                print("load average: " + ", ".join(f"{x:.2f}" for x in os.getloadavg()))
+            win.close()
+            app.processEvents()
+            return 0
+
         # 1. heading drag through the slider
         ctrl = win.controls.controls["yaw_deg"]
         for _ in range(20):
@@ -358,6 +495,31 @@ def _run(args) -> int:
                          ratio=f"{np.median(pcpu) / np.median(t_ref):.2f}", target="(info)", passed=True,
                          note="GUI thread + worker + the software renderer's threads (not the X server); "
                               "what a step costs whatever the load; reference: the worker's bare computation"))
+        # the same drag with each view read back before the next one is drawn (the frame batch
+        # without its overlap: retina_viewer.canvas._FrameBatch.overlap)
+        from retina_viewer import canvas as _canvas
+
+        if hasattr(_canvas, "BATCH"):
+            _canvas.BATCH.overlap = False
+            seq, seq_cpu = [], []
+            y1 = win.state.yaw_deg
+            try:
+                for i in range(1, n_steps + 1):
+                    target = (y1 + i) % 360.0
+                    t0, c0 = time.perf_counter(), time.thread_time()
+                    ctrl.slider.setValue(ctrl.to_ticks(target))
+                    _pump(app, lambda: frames.drawn(target))
+                    seq.append(time.perf_counter() - t0)
+                    seq_cpu.append(time.thread_time() - c0)
+                    _idle(app, 0.01)
+            finally:
+                _canvas.BATCH.overlap = True
+            seq_med = float(np.median(seq)) * 1e3
+            rows.append(dict(name="heading drag, views read back one after the other", measured=f"{seq_med:.1f} ms",
+                             reference=f"{med:.1f} ms", ratio=f"{seq_med / med:.2f}", target="(info)", passed=True,
+                             note=f"median per step; GUI-thread CPU {np.median(seq_cpu) * 1e3:.1f} ms; reference: the "
+                                  "drag above, where the second view is drawn while the renderer rasterises the "
+                                  "first (retina_viewer.canvas._FrameBatch)"))
         per_view = draws.mean(axis=0)
         rows.append(dict(name="draws per step (head view, map view)",
                          measured=f"{per_view[0]:.2f}, {per_view[1]:.2f}", reference="1, 1",
@@ -380,11 +542,11 @@ def _run(args) -> int:
         # rasteriser, the read-back and the copy to the window: what any step pays)
         floor = []
         for _ in range(30):
-            h0, m0 = win.head_view.draws, win.map_view.draws
+            c0 = frames.counts()
             t0 = time.perf_counter()
             win.head_view.canvas.update()
             win.map_view.canvas.update()
-            _pump(app, lambda: win.head_view.draws > h0 and win.map_view.draws > m0)
+            _pump(app, lambda: all(now > then for now, then in zip(frames.counts(), c0)))
             floor.append(time.perf_counter() - t0)
         floor_ms = float(np.median(floor)) * 1e3
         rows.append(dict(name="both views redrawn, nothing changed (floor)", measured=f"{floor_ms:.1f} ms",

@@ -31,7 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from PyQt6.QtCore import QPointF, QRectF, Qt
-from PyQt6.QtGui import QColor, QPainter, QPainterPath, QPen
+from PyQt6.QtGui import QColor, QImage, QPainter, QPainterPath, QPen
 from PyQt6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout, QGroupBox,
                              QLabel, QPushButton, QSlider, QToolButton, QVBoxLayout, QWidget)
 
@@ -553,6 +553,8 @@ class BoundPlot(QWidget):
                         "pitch, roll, field and light level; the vertical line is the current heading")
         self._path_key = None
         self._path = None
+        self._bg_key = None
+        self._bg = None   # the plot without the heading lines and words (QImage, RGB32): _paint
         self._unsub = [state.events.connect("result", lambda e: self.update()),
                        state.events.connect("scenario", lambda e: self.update())]
 
@@ -581,15 +583,9 @@ class BoundPlot(QWidget):
     def _paint(self):
         from retina.readout.fisher import INFORMATIVE_BOUND_DEG
 
-        p = QPainter(self)
-        p.setRenderHint(QPainter.RenderHint.Antialiasing)
         W, H = self.width(), self.height()
-        p.fillRect(0, 0, W, H, QColor(250, 250, 250))
         left, right, top, bottom = 44, 10, 18, 28
         pw, ph = max(W - left - right, 1), max(H - top - bottom, 1)
-        p.setPen(QColor(30, 30, 30))
-        p.drawText(QRectF(left, 0, pw, top), Qt.AlignmentFlag.AlignCenter,
-                   "bound on heading (deg) vs heading")
         res = self.state.result
         c = None if res is None or res.curve_bound_deg is None else np.asarray(res.curve_bound_deg, float)
         finite = c[np.isfinite(c)] if c is not None else np.zeros(0)
@@ -603,21 +599,8 @@ class BoundPlot(QWidget):
             v = min(max(v, ymin), ymax)
             return top + ph * (1.0 - (math.log10(v) - math.log10(ymin)) / (math.log10(ymax) - math.log10(ymin)))
 
-        # not-informative band
-        p.fillRect(QRectF(left, top, pw, Y(INFORMATIVE_BOUND_DEG) - top), QColor(225, 225, 225))
-        p.setPen(QPen(QColor(120, 120, 120), 1))
-        p.drawRect(QRectF(left, top, pw, ph))
-        for d in range(lo_dec, 3):
-            v = 10.0 ** d
-            if v > ymax:
-                break
-            p.drawText(QRectF(0, Y(v) - 8, left - 4, 16),
-                       Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter, f"{v:g}")
-        for h in (0, 90, 180, 270, 360):
-            p.drawText(QRectF(X(h) - 20, top + ph + 2, 40, 14), Qt.AlignmentFlag.AlignCenter, str(h))
-        p.drawText(QRectF(left, top + ph + 13, pw, 14), Qt.AlignmentFlag.AlignCenter,
-                   "heading (deg); grey: not informative")
-        if c is not None and res.status != "none":
+        curve = c is not None and res.status != "none"
+        if curve:
             q = res.request
             key = (id(q.scenario), q.pitch_deg, q.roll_deg, q.intensity_uT, q.inclination_deg,
                    q.declination_deg, q.photons, q.kappa, q.ordering, q.rf, W, H)
@@ -629,8 +612,44 @@ class BoundPlot(QWidget):
                 for x, y in zip(xs[1:].tolist(), ys[1:].tolist()):
                     path.lineTo(x, y)
                 self._path, self._path_key = path, key
-            p.setPen(QPen(QColor(20, 70, 160), 1.6))
-            p.drawPath(self._path)
+        # the plot without the heading lines and the words over it changes only with the curve or
+        # the size: drawn once into an image of the window's own format (RGB32) and copied per step
+        dpr = self.devicePixelRatioF()
+        bg_key = (W, H, dpr, lo_dec, self._path_key if curve else None)
+        if self._bg is None or bg_key != self._bg_key:
+            self._bg = QImage(max(int(round(W * dpr)), 1), max(int(round(H * dpr)), 1),
+                              QImage.Format.Format_RGB32)
+            self._bg.setDevicePixelRatio(dpr)
+            p = QPainter(self._bg)
+            try:
+                p.setRenderHint(QPainter.RenderHint.Antialiasing)
+                p.fillRect(0, 0, W, H, QColor(250, 250, 250))
+                p.setPen(QColor(30, 30, 30))
+                p.drawText(QRectF(left, 0, pw, top), Qt.AlignmentFlag.AlignCenter,
+                           "bound on heading (deg) vs heading")
+                # not-informative band
+                p.fillRect(QRectF(left, top, pw, Y(INFORMATIVE_BOUND_DEG) - top), QColor(225, 225, 225))
+                p.setPen(QPen(QColor(120, 120, 120), 1))
+                p.drawRect(QRectF(left, top, pw, ph))
+                for d in range(lo_dec, 3):
+                    v = 10.0 ** d
+                    if v > ymax:
+                        break
+                    p.drawText(QRectF(0, Y(v) - 8, left - 4, 16),
+                               Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter, f"{v:g}")
+                for h in (0, 90, 180, 270, 360):
+                    p.drawText(QRectF(X(h) - 20, top + ph + 2, 40, 14), Qt.AlignmentFlag.AlignCenter, str(h))
+                p.drawText(QRectF(left, top + ph + 13, pw, 14), Qt.AlignmentFlag.AlignCenter,
+                           "heading (deg); grey: not informative")
+                if curve:
+                    p.setPen(QPen(QColor(20, 70, 160), 1.6))
+                    p.drawPath(self._path)
+            finally:
+                p.end()
+            self._bg_key = bg_key
+        p = QPainter(self)
+        p.setRenderHint(QPainter.RenderHint.Antialiasing)
+        p.drawImage(0, 0, self._bg)
         # the heading of the pattern shown (it moves with the result, drawn once per step)
         yaw = float(res.request.yaw_deg) if res is not None else float(self.state.yaw_deg)
         p.setPen(QPen(QColor(200, 60, 30), 1.5))

@@ -65,10 +65,19 @@ def ensure_backend() -> None:
     vispy.app.use_app("pyqt6")
 
 
-def _cmap(name: str):
-    import matplotlib
+_CMAPS: dict = {}
 
-    return matplotlib.colormaps[name]
+
+def _cmap(name: str):
+    """matplotlib's colour map ``name``, one object per name for the process: the registry hands
+    out a new copy on every lookup, which builds its lookup table again on its first use (about
+    1.5 ms per pattern on the worker thread).  Colour maps are not modified here."""
+    cm = _CMAPS.get(name)
+    if cm is None:
+        import matplotlib
+
+        cm = _CMAPS[name] = matplotlib.colormaps[name]
+    return cm
 
 
 def _shown(result, eye: str) -> np.ndarray:
@@ -389,12 +398,15 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
         Label centres.  Candidates are tried in a fixed order (above, below, right, left, the
         diagonals, then farther out); a label that finds no free place takes its first candidate.
     """
+    # plain Python floats (the same double arithmetic as numpy's scalars, several times faster in
+    # these small loops: this runs on the GUI thread for every heading step)
     anchors = np.asarray(anchors, float).reshape(-1, 2)
-    sizes = np.asarray(sizes, float).reshape(-1, 2)
-    obst = np.asarray(obstacles, float).reshape(-1, 2)
+    sizes = np.asarray(sizes, float).reshape(-1, 2).tolist()
+    obst = np.asarray(obstacles, float).reshape(-1, 2).tolist()
+    gap, mark_half = float(gap), float(mark_half)
     boxes = [(p[0], p[1], mark_half, mark_half) for p in obst]  # centre x, y, half w, half h
     out = np.zeros_like(anchors)
-    for k, (a, (w, h)) in enumerate(zip(anchors, sizes)):
+    for k, (a, (w, h)) in enumerate(zip(anchors.tolist(), sizes)):
         hw, hh = 0.5 * w, 0.5 * h
         cands = []
         for r in (1.0, 2.0, 3.0):
@@ -429,6 +441,35 @@ def _share_fonts(texts) -> None:
     for t in texts:
         t._font_manager = fm
         t._update_font()
+
+
+def _keep_grid_layout(grid) -> None:
+    """Solve a vispy ``Grid``'s layout only when one of its inputs changed.
+
+    vispy's ``Grid`` solves its layout (a constraint solver, then every child's place and size)
+    before every draw, about a millisecond of CPU per frame, although the result changes only
+    with the grid's rectangle, its widgets, their size limits and stretch, or a new solver.  Here
+    the solve runs when any of those differs from the last solve (the children's rectangles
+    included, so a layout changed from outside is solved again); the layout is the same.
+    """
+    solve = grid._update_child_widget_dim
+    last = {"key": None}
+
+    def key():
+        out = [tuple(grid.rect.pos), tuple(grid.rect.size), repr(grid.padding), repr(grid.margin),
+               repr(grid.spacing), grid._need_solver_recreate, tuple(grid.grid_size)]
+        for row, col, rspan, cspan, w in grid._grid_widgets.values():
+            out.append((row, col, rspan, cspan, id(w), tuple(w.rect.pos), tuple(w.rect.size),
+                        w.width_min, w.width_max, w.height_min, w.height_max, tuple(w.stretch)))
+        return tuple(out)
+
+    def prepare(view=None):
+        k = key()
+        if k != last["key"]:
+            solve()
+            last["key"] = key()  # with the children's places the solve gave them
+
+    grid._prepare_draw = prepare
 
 
 def _rotation_to(z_to: np.ndarray) -> np.ndarray:
@@ -758,6 +799,7 @@ class MapView(_Subscriber):
         lay.addWidget(self.canvas.native, 1)
         lay.addWidget(self.caption_label)
         grid = self.canvas.central_widget.add_grid(spacing=0)
+        _keep_grid_layout(grid)
         self.yaxis = scene.AxisWidget(orientation="left", tick_label_margin=6, tick_font_size=7)
         self.yaxis.width_max = 40
         grid.add_widget(self.yaxis, row=0, col=0)

@@ -29,7 +29,9 @@ Conventions (owned here)
 - Information over the whole circle: the per-photon information at 360 one-degree headings (exact
   trigonometric interpolation from ``2 L + 1`` node headings, :func:`retina.signal.noise.trig_interp_matrix`)
   is kept per pitch, roll and field direction; :attr:`PatternResult.curve_bound_deg` is the bound
-  over the circle at the requested light level.
+  over the circle at the requested light level.  The information at the heading shown (and at a
+  scan's looks) comes from the same nodes through :func:`information_at` (numpy; the same sums as
+  the core's compiled kernel, which is parallel over headings and slow to start for one).
 - What the bound means (:attr:`PatternResult.status`, :func:`describe_bound`): ``"none"`` when the
   pattern carries no heading information at any heading (the largest per-photon information is
   below :data:`NO_INFORMATION` times the number of receptors, i.e. rounding noise: a vertical field
@@ -46,6 +48,12 @@ Conventions (owned here)
   unknown light level per look when ``readout.nuisance = "gain"``, adds too:
   :mod:`retina.readout.scans` "pose_gain").  :attr:`PatternResult.scan_bound_deg` is compared with
   :attr:`PatternResult.look_bound_deg`, the same number of looks all at the scan centre.
+- Threads: the pattern and its numbers are computed with one BLAS thread (:func:`_one_blas_thread`);
+  the yield function and the retina model (built once per yield function and ``kappa``) keep the
+  library's default.  An OpenBLAS thread keeps spinning for a while after each call: with the
+  default two threads on a 2-core machine, a heading step's small products cost about 45 ms of
+  spinning CPU that the GUI thread and the software renderer wait for
+  (``benchmarks/bench_viewer.py``).
 - Colours: a request that names ``display`` (and ``eye``, ``colour_limits``) gets its colours
   made here, on the worker thread (:attr:`PatternResult.colours`: float32 arrays of the receptor
   colours and the map image, :func:`retina_viewer.views.pattern_colours`), so the GUI thread does
@@ -70,7 +78,7 @@ from retina.errors import Cancelled, InputError
 
 __all__ = ["PatternRequest", "PatternResult", "PatternComputer", "LatestOnlyWorker",
            "QtPatternWorker", "HAVE_QT", "describe_bound", "format_deg", "NO_INFORMATION",
-           "FLAT_MODULATION"]
+           "FLAT_MODULATION", "information_at"]
 
 #: Per-photon information (rad^-2) per receptor below which a pattern carries no heading
 #: information (rounding noise of a heading-independent pattern is about 1e-30).
@@ -190,6 +198,60 @@ def _same_yield_key(sc, intensity_uT: float, rf=None):
     else:
         key = ("fixed",)
     return key if rf is None else key + (("rf",) + tuple(rf),)
+
+
+def information_at(W, lam_n, dlam_n, nuisance: str = "none") -> np.ndarray:
+    """:func:`retina.readout.fisher.interpolated_information` for a few headings, with numpy.
+
+    The same quantity (``lam = W @ lam_n``, ``dlam = W @ dlam_n``, the Poisson information
+    ``sum dlam^2 / lam`` over receptors with ``lam > 0``, minus ``(sum dlam)^2 / sum lam`` for an
+    unknown gain); the core's compiled kernel is parallel over headings, and for one heading
+    starting its threads costs more than the sums (about 10 ms against 0.2 ms at 2 x 4,000
+    receptors on 2 cores).  The curve over 360 headings still uses the kernel.
+
+    Parameters
+    ----------
+    W : ndarray, shape (P, M)
+        Interpolation weights (:func:`retina.signal.noise.trig_interp_matrix`).
+    lam_n, dlam_n : ndarray, shape (M, N)
+        Expected counts and their heading derivatives at the nodes.
+    nuisance : {"none", "gain"}
+
+    Returns
+    -------
+    ndarray, shape (P,)
+        Information, rad^-2.
+    """
+    lam = np.asarray(W, float) @ np.asarray(lam_n, float)
+    dl = np.asarray(W, float) @ np.asarray(dlam_n, float)
+    pos = lam > 0.0
+    full = np.sum(np.divide(dl * dl, lam, out=np.zeros_like(lam), where=pos), axis=1)
+    if nuisance == "none":
+        return full
+    sd, sl = dl.sum(axis=1), lam.sum(axis=1)
+    corr = np.zeros_like(full)
+    np.divide(sd * sd, sl, out=corr, where=sl > 0)
+    return np.maximum(full - corr, 0.0)
+
+
+_BLAS = []
+
+
+def _one_blas_thread():
+    """A context in which BLAS (OpenBLAS, MKL, ...) uses one thread (threadpoolctl; the limit is
+    process-wide while inside, and cheap to set: the libraries are looked up once)."""
+    if not _BLAS:
+        try:
+            from threadpoolctl import ThreadpoolController
+
+            _BLAS.append(ThreadpoolController())
+        except Exception:  # noqa: BLE001 - no threadpoolctl, or a library it cannot inspect
+            _BLAS.append(None)
+    if _BLAS[0] is None:
+        import contextlib
+
+        return contextlib.nullcontext()
+    return _BLAS[0].limit(limits=1, user_api="blas")
 
 
 class PatternComputer:
@@ -321,66 +383,70 @@ class PatternComputer:
         sc = req.scenario
         yf, F_yield, note = self.yield_function(sc, req.intensity_uT, rf=req.rf, progress=progress)
         model = self.model(sc, yf, req.kappa, req.ordering)
-        fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
-        pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
-        y = pat.yields
-        depth = float((y.max() - y.min()) / y.mean())
-        nuisance = sc["readout"]["nuisance"]
-        sig = SignalModel(model, inclination_deg=req.inclination_deg,
-                          declination_deg=req.declination_deg, photons=1.0,
-                          pitch_deg=req.pitch_deg, roll_deg=req.roll_deg)
-        # information is linear in the light level (retina.readout.fisher): per photon, then scale
-        ckey = (req.inclination_deg, req.declination_deg, req.pitch_deg, req.roll_deg)
-        L = int(model.degree)
-        if self._curve_key != ckey:
-            self._nodes = sig.fourier_nodes(L)
-            nodes = np.deg2rad(self._nodes[0])
-            W = trig_interp_matrix(nodes, np.deg2rad(np.arange(360.0)), L)
-            self._curve = interpolated_information(W, self._nodes[1], self._nodes[2], nuisance)
-            self._curve_key = ckey
-        nodes_rad, lam_n, dlam_n = np.deg2rad(self._nodes[0]), self._nodes[1], self._nodes[2]
-        # information here from the same nodes (exact: a trigonometric polynomial of degree L)
-        W1 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg]), L)
-        info1 = float(interpolated_information(W1, lam_n, dlam_n, nuisance)[0])
-        bound = float(cramer_rao_deg(req.photons * info1))
-        crb = cramer_rao_deg(req.photons * self._curve)
-        rms = float(np.sqrt(np.mean(crb ** 2)))
-        n_rec = y.size
-        flat = bool(depth < FLAT_MODULATION)
-        if flat or float(np.max(self._curve)) < NO_INFORMATION * n_rec:
-            status = "none"
-        elif bound > INFORMATIVE_BOUND_DEG:
-            status = "not_informative"
-        else:
-            status = "ok"
-        # heading + 180: the Poisson discriminability of the two patterns (module docstring)
-        W2 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg, req.yaw_deg + 180.0]), L)
-        l1, l2 = req.photons * (W2 @ lam_n)
-        diff, lbar = l1 - l2, 0.5 * (l1 + l2)
-        ok = lbar > 0
-        d2 = float(np.sum(diff[ok] ** 2 / lbar[ok]))
-        if nuisance == "gain" and lbar.sum() > 0:
-            d2 = max(d2 - float(diff.sum() ** 2 / lbar.sum()), 0.0)
-        dprime = math.sqrt(d2)
-        scan_bound = look_bound = float("nan")
-        if req.scan_yaws:
-            yaws = np.asarray(req.scan_yaws, float)
-            Ws = trig_interp_matrix(nodes_rad, np.deg2rad(yaws), L)
-            info_scan = float(np.sum(interpolated_information(Ws, lam_n, dlam_n, nuisance)))
-            centre = req.yaw_deg if req.scan_centre_deg is None else req.scan_centre_deg
-            Wc = trig_interp_matrix(nodes_rad, np.deg2rad([centre]), L)
-            info_c = float(interpolated_information(Wc, lam_n, dlam_n, nuisance)[0])
-            scan_bound = float(cramer_rao_deg(req.photons * info_scan))
-            look_bound = float(cramer_rao_deg(req.photons * yaws.size * info_c))
-        colours = None
-        if req.display is not None:
-            colours = self.colours(pat, req.display, req.eye, req.colour_limits)
-        return PatternResult(request=req, pattern=pat, depth=depth, bound_deg=bound,
-                             rms_bound_deg=rms, yield_field_uT=F_yield, yield_note=note,
-                             seconds=time.perf_counter() - t0, curve_bound_deg=crb, status=status,
-                             ambiguous=bool(status != "none" and dprime < 1.0),
-                             mirror_dprime=dprime, flat=flat, scan_bound_deg=scan_bound,
-                             look_bound_deg=look_bound, colours=colours)
+        # one BLAS thread for the pattern and its numbers (small products, milliseconds): an idle
+        # OpenBLAS thread spins for a while after each call, and on a 2-core machine that takes the
+        # core the GUI thread and the software renderer need (module docstring)
+        with _one_blas_thread():
+            fld = Field(req.intensity_uT, req.inclination_deg, req.declination_deg, source="viewer")
+            pat = model.pattern(Pose(req.yaw_deg, req.pitch_deg, req.roll_deg), fld)
+            y = pat.yields
+            depth = float((y.max() - y.min()) / y.mean())
+            nuisance = sc["readout"]["nuisance"]
+            sig = SignalModel(model, inclination_deg=req.inclination_deg,
+                              declination_deg=req.declination_deg, photons=1.0,
+                              pitch_deg=req.pitch_deg, roll_deg=req.roll_deg)
+            # information is linear in the light level (retina.readout.fisher): per photon, then scale
+            ckey = (req.inclination_deg, req.declination_deg, req.pitch_deg, req.roll_deg)
+            L = int(model.degree)
+            if self._curve_key != ckey:
+                self._nodes = sig.fourier_nodes(L)
+                nodes = np.deg2rad(self._nodes[0])
+                W = trig_interp_matrix(nodes, np.deg2rad(np.arange(360.0)), L)
+                self._curve = interpolated_information(W, self._nodes[1], self._nodes[2], nuisance)
+                self._curve_key = ckey
+            nodes_rad, lam_n, dlam_n = np.deg2rad(self._nodes[0]), self._nodes[1], self._nodes[2]
+            # information here from the same nodes (exact: a trigonometric polynomial of degree L)
+            W1 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg]), L)
+            info1 = float(information_at(W1, lam_n, dlam_n, nuisance)[0])
+            bound = float(cramer_rao_deg(req.photons * info1))
+            crb = cramer_rao_deg(req.photons * self._curve)
+            rms = float(np.sqrt(np.mean(crb ** 2)))
+            n_rec = y.size
+            flat = bool(depth < FLAT_MODULATION)
+            if flat or float(np.max(self._curve)) < NO_INFORMATION * n_rec:
+                status = "none"
+            elif bound > INFORMATIVE_BOUND_DEG:
+                status = "not_informative"
+            else:
+                status = "ok"
+            # heading + 180: the Poisson discriminability of the two patterns (module docstring)
+            W2 = trig_interp_matrix(nodes_rad, np.deg2rad([req.yaw_deg, req.yaw_deg + 180.0]), L)
+            l1, l2 = req.photons * (W2 @ lam_n)
+            diff, lbar = l1 - l2, 0.5 * (l1 + l2)
+            ok = lbar > 0
+            d2 = float(np.sum(diff[ok] ** 2 / lbar[ok]))
+            if nuisance == "gain" and lbar.sum() > 0:
+                d2 = max(d2 - float(diff.sum() ** 2 / lbar.sum()), 0.0)
+            dprime = math.sqrt(d2)
+            scan_bound = look_bound = float("nan")
+            if req.scan_yaws:
+                yaws = np.asarray(req.scan_yaws, float)
+                Ws = trig_interp_matrix(nodes_rad, np.deg2rad(yaws), L)
+                info_scan = float(np.sum(information_at(Ws, lam_n, dlam_n, nuisance)))
+                centre = req.yaw_deg if req.scan_centre_deg is None else req.scan_centre_deg
+                Wc = trig_interp_matrix(nodes_rad, np.deg2rad([centre]), L)
+                info_c = float(information_at(Wc, lam_n, dlam_n, nuisance)[0])
+                scan_bound = float(cramer_rao_deg(req.photons * info_scan))
+                look_bound = float(cramer_rao_deg(req.photons * yaws.size * info_c))
+            colours = None
+            if req.display is not None:
+                colours = self.colours(pat, req.display, req.eye, req.colour_limits)
+            return PatternResult(request=req, pattern=pat, depth=depth, bound_deg=bound,
+                                 rms_bound_deg=rms, yield_field_uT=F_yield, yield_note=note,
+                                 seconds=time.perf_counter() - t0, curve_bound_deg=crb, status=status,
+                                 ambiguous=bool(status != "none" and dprime < 1.0),
+                                 mirror_dprime=dprime, flat=flat, scan_bound_deg=scan_bound,
+                                 look_bound_deg=look_bound, colours=colours)
 
     def colours(self, pattern, display: str, eye: str, limits=None):
         """:func:`retina_viewer.views.pattern_colours` of a pattern, with the map's pixel index

@@ -814,8 +814,8 @@ def test_one_draw_per_heading_step(window, qapp):
     for yaw in (11.0, 12.0, 13.0):
         h0, m0 = window.head_view.draws, window.map_view.draws
         window.state.yaw_deg = yaw
-        # the two canvases paint in consecutive passes of the event loop (gui/canvas.py): wait
-        # for both, then a little longer for a second, unwanted draw
+        # the two canvases are drawn by the frame batch (gui/canvas.py): wait for both, then a
+        # little longer for a second, unwanted draw
         _process_until(qapp, lambda: window.head_view.draws > h0 and window.map_view.draws > m0, 5.0)
         _settle(qapp, 0.1)
         assert (window.head_view.draws - h0, window.map_view.draws - m0) == (1, 1)
@@ -1671,3 +1671,128 @@ def test_head_static_layer_keeps_depth_and_is_the_same_picture(window, qapp):
     np.testing.assert_array_equal(_frame(view), _frame(view, one_pass=True))
     _frame(view)
     assert layer.captures == captures + 1
+
+
+def _grab_rgb(widget) -> np.ndarray:
+    """A widget painted by Qt (``QWidget.grab``) as RGB ``(H, W, 3)`` uint8."""
+    from PyQt6.QtGui import QImage
+
+    img = widget.grab().toImage().convertToFormat(QImage.Format.Format_RGBA8888)
+    ptr = img.constBits()
+    ptr.setsize(img.sizeInBytes())
+    rows = np.frombuffer(ptr, np.uint8).reshape(img.height(), img.bytesPerLine() // 4, 4)
+    return rows[:, :img.width(), :3].copy()
+
+
+def test_map_grid_layout_kept_between_frames_is_vispys_own_layout(window, qapp):
+    """The map's grid (axes, map, colour bar) is laid out only when its inputs change
+    (retina_viewer.views._keep_grid_layout).  Reference: vispy's own ``Grid`` solve, run again
+    on the same grid: every child keeps the place and size it had, before and after a resize."""
+    view = window.map_view
+    grid = view.xaxis.parent
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+
+    def places():
+        return [(tuple(w.rect.pos), tuple(w.rect.size)) for *_, w in grid._grid_widgets.values()]
+
+    for width in (window.width(), window.width() + 60):
+        window.resize(width, window.height())
+        qapp.processEvents()
+        _frame(view)
+        _frame(view)
+        kept = places()
+        type(grid)._update_child_widget_dim(grid)   # vispy's solve, unconditionally
+        assert places() == kept
+    assert len({p[1] for p in kept}) > 1          # a real layout: the children differ in size
+
+
+def test_bound_plot_background_kept_between_steps_is_the_same_picture(window, qapp):
+    """The bound plot keeps everything but the heading lines and its words as an image between
+    steps (retina_viewer.panels.BoundPlot); the picture after a heading step must equal the one
+    drawn with that image made anew (common practice, no source: a cache never changes the
+    picture), pixel by pixel, and differ from the previous step's (the heading line moved)."""
+    plot = window.bound_plot
+    window.show()
+    _settle(qapp, 0.3)
+    window.state.yaw_deg = 20.0
+    _process_until(qapp, lambda: window.state.result.request.yaw_deg == 20.0, 5.0)
+    before = _grab_rgb(plot)
+    key = plot._bg_key
+    window.state.yaw_deg = 75.0
+    _process_until(qapp, lambda: window.state.result.request.yaw_deg == 75.0, 5.0)
+    kept = _grab_rgb(plot)
+    assert plot._bg_key == key                   # the same background was used
+    plot._bg = None                              # made anew
+    fresh = _grab_rgb(plot)
+    np.testing.assert_array_equal(kept, fresh)
+    assert np.any(kept != before)
+
+
+@pytest.mark.parametrize("nuisance", ["none", "gain"])
+def test_information_at_a_few_headings_equals_the_cores_kernel(nuisance):
+    """retina_viewer.workers.information_at (numpy, for the heading shown and a scan's looks)
+    against the core's compiled kernel retina.readout.fisher.interpolated_information (a loop
+    over headings and receptors): the same sums, so equal to rounding; receptors with zero
+    expected counts included (they add nothing to the Poisson information)."""
+    from retina.readout.fisher import interpolated_information
+    from retina.signal.noise import trig_interp_matrix
+    from retina_viewer.workers import information_at
+
+    rng = np.random.default_rng(7)
+    L, N = 4, 300
+    nodes = np.linspace(0.0, 2 * np.pi, 2 * L + 1, endpoint=False)
+    lam_n = rng.uniform(50.0, 150.0, (2 * L + 1, N))
+    lam_n[:, :5] = 0.0
+    dlam_n = rng.normal(0.0, 10.0, (2 * L + 1, N))
+    dlam_n[:, :5] = 0.0
+    for heads in ([0.3], [0.3, 1.7, 4.0]):
+        W = trig_interp_matrix(nodes, np.asarray(heads), L)
+        got = information_at(W, lam_n, dlam_n, nuisance)
+        want = interpolated_information(W, lam_n, dlam_n, nuisance)
+        assert got.shape == want.shape
+        np.testing.assert_allclose(got, want, rtol=1e-12)
+        assert np.all(got > 0)
+
+
+def test_frame_batch_draws_each_canvas_once_and_a_qt_paint_in_between_takes_its_place(window, qapp):
+    """Contract of gui/canvas.py (common practice, no source): canvases asking for a frame are
+    drawn together by the frame batch, one draw per canvas however many update() calls came
+    before it ran; a paint Qt asks for itself while a frame waits draws at once and the batch then
+    draws nothing more for that canvas."""
+    from retina_viewer.canvas import BATCH
+
+    window.show()
+    _settle(qapp, 0.5)
+    head, mapv = window.head_view, window.map_view
+    h0, m0, p0 = head.draws, mapv.draws, BATCH.passes
+    for _ in range(3):
+        head.canvas.update()
+        mapv.canvas.update()
+    _process_until(qapp, lambda: head.draws > h0 and mapv.draws > m0, 5.0)
+    _settle(qapp, 0.1)
+    assert (head.draws - h0, mapv.draws - m0) == (1, 1)
+    assert BATCH.passes == p0 + 1                # both in one pass
+    h0 = head.draws
+    head.canvas.update()                          # waits in the batch ...
+    head.canvas.native.repaint()                  # ... and Qt paints first: drawn now
+    assert head.draws == h0 + 1
+    _settle(qapp, 0.1)
+    assert head.draws == h0 + 1                   # not again by the batch
+
+
+def test_pattern_work_runs_with_one_blas_thread_and_restores_the_default():
+    """retina_viewer.workers._one_blas_thread: one BLAS thread inside, the library's own setting
+    after (reference: threadpoolctl's report of the loaded BLAS libraries)."""
+    threadpoolctl = pytest.importorskip("threadpoolctl")
+    from retina_viewer.workers import _one_blas_thread
+
+    def blas_threads():
+        return [i["num_threads"] for i in threadpoolctl.threadpool_info() if i["user_api"] == "blas"]
+
+    before = blas_threads()
+    if not before:
+        pytest.skip("no BLAS library that threadpoolctl can see")
+    with _one_blas_thread():
+        assert blas_threads() == [1] * len(before)
+    assert blas_threads() == before

@@ -252,12 +252,37 @@ class Response:
     y: np.ndarray
 
     def lines(self, pol: np.ndarray) -> np.ndarray:
-        """Line weights ``sum_cd pol_cd W_cd`` (L,) for a polarisation tensor ``<n n^T>`` (3, 3)."""
+        """Line weights ``sum_cd pol_cd W_cd`` for a polarisation tensor.
+
+        Parameters
+        ----------
+        pol : ndarray (3, 3)
+            Polarisation tensor ``<n n^T>`` of the RF field's unit direction ``n`` (molecular frame),
+            from :func:`polarisation_tensor`.
+
+        Returns
+        -------
+        ndarray (L,) complex
+            The weight of each line ``ij`` (ordered as :attr:`delta`), per T^2 of RF amplitude.
+        """
         py = np.asarray(pol, dtype=float) @ self.y                  # (3, L): sum_d pol_cd y_d
         return -0.25 * np.sum(self.zt * py, axis=0)
 
     def tone(self, freqs_MHz, pol) -> np.ndarray:
-        """Yield change per nT^2 of a single tone of amplitude ``B1`` at each frequency, (F,)."""
+        """Yield change per nT^2 of a single tone of amplitude ``B1`` at each frequency.
+
+        Parameters
+        ----------
+        freqs_MHz : float or array_like (F,)
+            Tone frequencies, MHz.
+        pol : ndarray (3, 3)
+            Polarisation tensor of the tone (:func:`polarisation_tensor`).
+
+        Returns
+        -------
+        ndarray (F,)
+            Second-order change of the reported yield per nT^2 of ``B1**2``.
+        """
         return self.tones(freqs_MHz, [pol])[0]
 
     def tones(self, freqs_MHz, pols) -> np.ndarray:
@@ -267,6 +292,18 @@ class Response:
         conjugate of that of ``ij`` and only ``Re[(w_ij + conj(w_ji)) (...)]`` is needed), and lines of
         zero weight for every polarisation are skipped; the result equals the line-by-line sum up to
         rounding.
+
+        Parameters
+        ----------
+        freqs_MHz : float or array_like (F,)
+            Tone frequencies, MHz.
+        pols : sequence of ndarray (3, 3)
+            ``P`` polarisation tensors (:func:`polarisation_tensor`).
+
+        Returns
+        -------
+        ndarray (P, F)
+            Yield change per nT^2 of ``B1**2`` for each polarisation and frequency.
         """
         pols = [np.asarray(p, dtype=float) for p in pols]
         n = int(round(np.sqrt(self.delta.size)))
@@ -290,7 +327,22 @@ class Response:
         return out * 1e-18
 
     def band(self, band_MHz, pol, psd_T2_Hz: float) -> float:
-        """Yield change in a white band ``[f1, f2]`` (MHz) of one-sided PSD ``psd_T2_Hz`` (T^2/Hz)."""
+        """Yield change in a white band of RF noise, by the closed-form integral over the band.
+
+        Parameters
+        ----------
+        band_MHz : sequence of two floats
+            Band edges ``[f1, f2]``, MHz, ``0 < f1 < f2`` (:func:`check_band`).
+        pol : ndarray (3, 3)
+            Polarisation tensor of the noise field (:func:`polarisation_tensor`).
+        psd_T2_Hz : float
+            One-sided power spectral density of the field inside the band, T^2/Hz (flat).
+
+        Returns
+        -------
+        float
+            Second-order change of the reported yield.
+        """
         f1, f2 = check_band(band_MHz)
         w = self.lines(pol)
         x1, x2 = (2 * np.pi * f * 1e6 / self.k for f in (f1, f2))

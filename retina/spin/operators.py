@@ -129,10 +129,12 @@ class PairSpace:
 
     @property
     def dimension(self) -> int:
+        """Dimension of the pair Hilbert space, the product of :attr:`dims`."""
         return int(np.prod(self.dims))
 
     @property
     def nuclear_dimension(self) -> int:
+        """Dimension ``M = nuclear_a * nuclear_b`` of the nuclear space of both radicals."""
         return self.nuclear_a * self.nuclear_b
 
     def singlet_indices(self) -> tuple[np.ndarray, np.ndarray]:
@@ -140,6 +142,12 @@ class PairSpace:
 
         Ordered by nuclear state ``(a, b)`` row-major, so that the singlet basis vector of nuclear
         state ``nu`` is ``(e[i_ud[nu]] - e[i_du[nu]]) / sqrt(2)``.
+
+        Returns
+        -------
+        i_ud, i_du : ndarray of int, each shape (M,)
+            Flat indices into the pair space (length :attr:`dimension`) of the states with electron
+            A up and B down, and with A down and B up, for each nuclear state.
         """
         idx = np.arange(self.dimension).reshape(2, self.nuclear_a, 2, self.nuclear_b)
         return idx[0, :, 1, :].reshape(-1), idx[1, :, 0, :].reshape(-1)
