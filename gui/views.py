@@ -427,7 +427,8 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
 
 
 def _share_fonts(texts) -> None:
-    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches.
+    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches, and a
+    blending that keeps the frame opaque (:func:`_blend_keeping_alpha`).
 
     vispy gives every Text visual its own font manager, so each renders every glyph it shows
     again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
@@ -441,6 +442,23 @@ def _share_fonts(texts) -> None:
     for t in texts:
         t._font_manager = fm
         t._update_font()
+    _blend_keeping_alpha(texts)
+
+
+def _blend_keeping_alpha(visuals) -> None:
+    """Blend ``visuals`` over the frame's colours but leave the frame's alpha at 1 (opaque).
+
+    vispy's Text (and Markers) visuals blend with ``glBlendFunc(SRC_ALPHA, ONE_MINUS_SRC_ALPHA)``
+    for all four channels, so each partly covered pixel of a glyph's edge also writes
+    ``a_out = a**2 + (1 - a)`` (< 1) into the frame's alpha.  The colours are right, but the frame
+    is no longer opaque there: an image saved from it has translucent text, and an image taken as
+    premultiplied (Qt's read-back of a framebuffer, and Qt's own OpenGL widget) shows channels above
+    their alpha, which Qt's compositing turns into purple, red, yellow and cyan fringes round every
+    small label.  vispy's ``"translucent"`` preset blends the colours the same way and the alpha
+    with ``(ZERO, ONE)``: the frame, cleared opaque, stays opaque.
+    """
+    for v in visuals:
+        v.set_gl_state("translucent", depth_test=False)
 
 
 def _keep_grid_layout(grid) -> None:
