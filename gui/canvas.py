@@ -323,7 +323,13 @@ def _fast_shader_parsing() -> None:
 
 
 def offscreen_app():
-    """A vispy Application on PyQt6 whose canvases use :class:`OffscreenCanvasBackend`."""
+    """A vispy Application on PyQt6 whose canvases use :class:`OffscreenCanvasBackend`.
+
+    Returns
+    -------
+    vispy.app.Application
+        One per process (made on the first call, then the same object).
+    """
     global _APP
     _fast_shader_parsing()
     if _APP is None:
@@ -361,6 +367,18 @@ def scene_canvas(**kwargs):
 
     ``RETINA_VIEWER_CANVAS=widget`` in the environment gives vispy's own ``QOpenGLWidget`` canvas
     instead (for comparison, or where reading pixels back is slow).
+
+    Parameters
+    ----------
+    **kwargs
+        Passed to :class:`vispy.scene.SceneCanvas` (e.g. ``size=(width, height)`` in logical
+        pixels, ``bgcolor``, ``parent``, ``show``).
+
+    Returns
+    -------
+    vispy.scene.SceneCanvas
+        Its ``native`` is an :class:`OffscreenCanvasBackend` widget (a ``QOpenGLWidget`` with
+        ``RETINA_VIEWER_CANVAS=widget``).
     """
     import os
 
@@ -474,7 +492,13 @@ class StaticLayer:
         self.invalidate()
 
     def invalidate(self, event=None) -> None:
-        """Drop the kept pixels: the next frame draws the static layer again."""
+        """Drop the kept pixels: the next frame draws the static layer again.
+
+        Parameters
+        ----------
+        event : vispy.util.event.Event, optional
+            The change event of a static node when called as its handler (not used).
+        """
         self._dirty = True
         self._key = None
 
