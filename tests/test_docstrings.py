@@ -54,9 +54,10 @@ changed by other work at the moment (SampledYields.standard_error_of lacks secti
 that work lands."""
 
 
-GUI_CHECKED = ["retina_viewer", "retina_viewer.__main__", "retina_viewer.canvas", "retina_viewer.display",
-               "retina_viewer.glyphs", "retina_viewer.panels", "retina_viewer.state", "retina_viewer.views",
-               "retina_viewer.window", "retina_viewer.workers"]
+GUI_CHECKED = ["retina_viewer", "retina_viewer.__main__", "retina_viewer.canvas",
+               "retina_viewer.display", "retina_viewer.glyphs", "retina_viewer.panels",
+               "retina_viewer.state", "retina_viewer.views", "retina_viewer.window",
+               "retina_viewer.workers"]
 """The viewer's modules (every ``gui/*.py``; a test checks)."""
 
 GUI_DIR = Path(__file__).resolve().parent.parent / "gui"
@@ -153,9 +154,11 @@ def test_public_methods_document_parameters_and_returns(name):
 
 
 def test_every_viewer_module_is_checked():
-    names = {"retina_viewer" if p.stem == "__init__" else f"retina_viewer.{p.stem}" for p in GUI_DIR.glob("*.py")}
+    names = {"retina_viewer" if p.stem == "__init__" else f"retina_viewer.{p.stem}"
+             for p in GUI_DIR.glob("*.py")}
     missing = sorted(names - set(GUI_CHECKED))
-    assert not missing, f"add these modules to GUI_CHECKED in tests/test_docstrings.py (with their docstrings): {missing}"
+    assert not missing, ("add these modules to GUI_CHECKED in tests/test_docstrings.py (with their "
+                         f"docstrings): {missing}")
     assert len(GUI_CHECKED) == len(set(GUI_CHECKED))
 
 
@@ -163,7 +166,8 @@ def test_every_viewer_module_is_checked():
 def test_viewer_functions_and_methods_document_parameters_and_returns(name):
     _need_viewer()
     mod = importlib.import_module(name)
-    assert Path(mod.__file__).resolve().parent == GUI_DIR, f"{name} is imported from {mod.__file__}, not gui/"
+    where = Path(mod.__file__).resolve().parent
+    assert where == GUI_DIR, f"{name} is imported from {where}, not this tree's gui/ (pip install -e .)"
     bad = _missing_sections(list(_public_functions(name)) + list(_public_class_methods(name)))
     assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
 
