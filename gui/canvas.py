@@ -27,7 +27,11 @@ Contract (owned here)
   batch runs are one draw).  A paint Qt asks for by itself (the widget shown, exposed, resized or
   grabbed) draws the scene at once and takes the canvas out of a waiting batch.  A hidden canvas
   draws when it is shown.
-- The widget is opaque (``WA_OpaquePaintEvent``): nothing behind it is painted.
+- The widget is opaque (``WA_OpaquePaintEvent``): nothing behind it is painted.  The image read
+  back is shown as opaque RGB (``Format_RGB32``), its alpha channel ignored: Qt takes a
+  framebuffer's pixels as premultiplied, and a channel above its alpha (a pixel blended by a
+  visual that lowers the frame's alpha) would come out as a false colour.  The views keep the
+  frame's alpha at 1 anyway (``retina_viewer.views``, text blending).
 - Making a canvas installs :class:`_ShaderParseRe` in ``vispy.gloo.program``: vispy's
   comment stripping of shader code without its backtracking regular expression (the same text,
   :func:`strip_line_comments`; about a second of CPU at start-up for the viewer's shaders).
@@ -120,7 +124,7 @@ def _backend_class():
 
 def _make_backend_class():
     from PyQt6.QtCore import Qt
-    from PyQt6.QtGui import QOffscreenSurface, QOpenGLContext, QPainter, QSurfaceFormat
+    from PyQt6.QtGui import QImage, QOffscreenSurface, QOpenGLContext, QPainter, QSurfaceFormat
     from PyQt6.QtOpenGL import QOpenGLFramebufferObject, QOpenGLFramebufferObjectFormat
     from PyQt6.QtWidgets import QWidget
     from vispy.app.backends import _qt
@@ -229,7 +233,12 @@ def _make_backend_class():
             """The framebuffer's pixels as a QImage (waits for the renderer)."""
             if not self._make_current() or self._fbo is None:
                 return None
-            return self._fbo.toImage(True)
+            img = self._fbo.toImage(True)
+            # the frame is opaque (the views blend keeping alpha 1); Qt would take the alpha as
+            # premultiplied coverage and composite with it: show the colours as they are
+            if img.format() == QImage.Format.Format_ARGB32_Premultiplied:
+                img.reinterpretAsFormat(QImage.Format.Format_RGB32)
+            return img
 
         def _collect(self) -> None:
             """After :meth:`_issue` (in :class:`_FrameBatch`): read the pixels back and ask Qt to
@@ -314,7 +323,13 @@ def _fast_shader_parsing() -> None:
 
 
 def offscreen_app():
-    """A vispy Application on PyQt6 whose canvases use :class:`OffscreenCanvasBackend`."""
+    """A vispy Application on PyQt6 whose canvases use :class:`OffscreenCanvasBackend`.
+
+    Returns
+    -------
+    vispy.app.Application
+        One per process (made on the first call, then the same object).
+    """
     global _APP
     _fast_shader_parsing()
     if _APP is None:
@@ -352,6 +367,18 @@ def scene_canvas(**kwargs):
 
     ``RETINA_VIEWER_CANVAS=widget`` in the environment gives vispy's own ``QOpenGLWidget`` canvas
     instead (for comparison, or where reading pixels back is slow).
+
+    Parameters
+    ----------
+    **kwargs
+        Passed to :class:`vispy.scene.SceneCanvas` (e.g. ``size=(width, height)`` in logical
+        pixels, ``bgcolor``, ``parent``, ``show``).
+
+    Returns
+    -------
+    vispy.scene.SceneCanvas
+        Its ``native`` is an :class:`OffscreenCanvasBackend` widget (a ``QOpenGLWidget`` with
+        ``RETINA_VIEWER_CANVAS=widget``).
     """
     import os
 
@@ -465,7 +492,13 @@ class StaticLayer:
         self.invalidate()
 
     def invalidate(self, event=None) -> None:
-        """Drop the kept pixels: the next frame draws the static layer again."""
+        """Drop the kept pixels: the next frame draws the static layer again.
+
+        Parameters
+        ----------
+        event : vispy.util.event.Event, optional
+            The change event of a static node when called as its handler (not used).
+        """
         self._dirty = True
         self._key = None
 

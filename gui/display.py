@@ -30,6 +30,13 @@ class XvfbError(RuntimeError):
 def start_xvfb(screen: str = SCREEN, *, timeout: float = 20.0):
     """Start ``Xvfb`` on a free display number.
 
+    Parameters
+    ----------
+    screen : str, optional
+        The screen as ``"WIDTHxHEIGHTxDEPTH"`` (pixels, bits per pixel), default :data:`SCREEN`.
+    timeout : float, optional
+        Seconds to wait for the server to report its display.
+
     Returns
     -------
     proc : subprocess.Popen
@@ -74,6 +81,13 @@ def start_xvfb(screen: str = SCREEN, *, timeout: float = 20.0):
 @contextlib.contextmanager
 def virtual_display(screen: str = SCREEN, *, timeout: float = 20.0):
     """The display to use: the existing one, else a private Xvfb server (module docstring).
+
+    Parameters
+    ----------
+    screen : str, optional
+        The screen of a server started here, ``"WIDTHxHEIGHTxDEPTH"`` (pixels, bits per pixel).
+    timeout : float, optional
+        Seconds to wait for a started server to report its display.
 
     Yields
     ------

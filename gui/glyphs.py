@@ -41,7 +41,14 @@ _CLASS = None
 
 
 def cache_dir() -> Path | None:
-    """The glyph cache folder (module docstring), or None when the disk cache is off."""
+    """The glyph cache folder (module docstring), or None when the disk cache is off.
+
+    Returns
+    -------
+    pathlib.Path or None
+        ``RETINA_VIEWER_GLYPH_CACHE`` when set (None when it is empty), else
+        ``$XDG_CACHE_HOME/retina-compass/glyphs``; the folder need not exist yet.
+    """
     env = os.environ.get("RETINA_VIEWER_GLYPH_CACHE")
     if env is not None:
         return Path(env) if env.strip() else None

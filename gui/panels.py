@@ -225,6 +225,19 @@ class BoundSlider(QWidget):
 
     # value <-> slider position
     def to_ticks(self, v: float) -> int:
+        """The slider position of a value.
+
+        Parameters
+        ----------
+        v : float
+            A value in the control's unit.
+
+        Returns
+        -------
+        int
+            Slider position, 0 to the slider's maximum (linear or logarithmic in ``v``; 0 for a value
+            <= 0 when the far left means zero).
+        """
         if self.zero_left and v <= 0:
             return 0
         if self.log:
@@ -234,6 +247,18 @@ class BoundSlider(QWidget):
         return int(round(min(max(t, 0.0), 1.0) * _TICKS))
 
     def from_ticks(self, k: int) -> float:
+        """The value at a slider position (inverse of :meth:`to_ticks`).
+
+        Parameters
+        ----------
+        k : int
+            Slider position.
+
+        Returns
+        -------
+        float
+            The value in the control's unit.
+        """
         if self.zero_left and k == 0:
             return 0.0  # the far left: no order (kappa), no field (RF amplitude)
         t = k / _TICKS
@@ -242,6 +267,13 @@ class BoundSlider(QWidget):
         return self.lo + t * (self.hi - self.lo)
 
     def value(self) -> float:
+        """The state's value of this control.
+
+        Returns
+        -------
+        float
+            In the control's unit; for kappa left to the scenario, the scenario's own kappa.
+        """
         v = self.state.get(self.name)
         return _scenario_kappa(self.state) if v is None else float(v)
 
@@ -284,6 +316,7 @@ class BoundSlider(QWidget):
         self._set(v)
 
     def close_binding(self) -> None:
+        """Disconnect from the state (the widget shows no more changes)."""
         for u in self._unsub:
             u()
         self._unsub.clear()
@@ -314,6 +347,7 @@ class ChoiceBox(QComboBox):
                 raise
 
     def sync(self) -> None:
+        """Show the state's value without emitting anything."""
         self.blockSignals(True)
         try:
             self.setCurrentIndex(self.values.index(self.state.get(self.name)))
@@ -321,6 +355,7 @@ class ChoiceBox(QComboBox):
             self.blockSignals(False)
 
     def close_binding(self) -> None:
+        """Disconnect from the state (the widget shows no more changes)."""
         for u in self._unsub:
             u()
         self._unsub.clear()
@@ -339,6 +374,7 @@ class CheckBox(QCheckBox):
         self.sync()
 
     def sync(self) -> None:
+        """Show the state's value without emitting anything."""
         self.blockSignals(True)
         try:
             self.setChecked(bool(self.state.get(self.name)))
@@ -346,6 +382,7 @@ class CheckBox(QCheckBox):
             self.blockSignals(False)
 
     def close_binding(self) -> None:
+        """Disconnect from the state (the widget shows no more changes)."""
         for u in self._unsub:
             u()
         self._unsub.clear()
@@ -441,11 +478,18 @@ class ControlPanel(QWidget):
                     x.setToolTip(f"{why}. {x.toolTip()}")
 
     def set_error_handler(self, on_error) -> None:
-        """Errors raised while a control applies a change go to ``on_error(title, exception)``."""
+        """Send errors raised while a control applies a change to a handler.
+
+        Parameters
+        ----------
+        on_error : callable(str, Exception)
+            Called with a title and the exception (the window shows it).
+        """
         for w in self.controls.values():
             w.on_error = on_error
 
     def close_bindings(self) -> None:
+        """Disconnect every control, and the panel, from the state."""
         for w in self.controls.values():
             w.close_binding()
         for u in self._unsub:
@@ -478,10 +522,12 @@ class ReadoutPanel(QGroupBox):
                        state.events.connect("scenario", lambda e: self.clear())]
 
     def clear(self) -> None:
+        """Show "-" in every line (a new scenario, before its first result)."""
         for lab in self.labels.values():
             lab.setText("-")
 
     def refresh(self) -> None:
+        """Show the numbers and words of the state's current result."""
         from .state import describe_rf
         from .workers import describe_bound, format_deg
 
@@ -520,7 +566,13 @@ class ReadoutPanel(QGroupBox):
                                     else f"{res.seconds:.1f} s")
 
     def show_receptor(self, info) -> None:
-        """Show :meth:`retina_viewer.views.MapView.receptor_info` (None: off the eyes)."""
+        """Show the receptor under the mouse in the map.
+
+        Parameters
+        ----------
+        info : dict or None
+            :meth:`retina_viewer.views.MapView.receptor_info` of the receptor; None: off the eyes.
+        """
         from .workers import format_deg
 
         if info is None:
@@ -532,6 +584,7 @@ class ReadoutPanel(QGroupBox):
             f"modulation {100.0 * info['modulation']:+.3f} %")
 
     def close_binding(self) -> None:
+        """Disconnect from the state (the panel shows no more changes)."""
         for u in self._unsub:
             u()
         self._unsub.clear()
@@ -559,7 +612,14 @@ class BoundPlot(QWidget):
                        state.events.connect("scenario", lambda e: self.update())]
 
     def message(self) -> str:
-        """The words shown over the plot ('' when the curve speaks for itself)."""
+        """The words shown over the plot.
+
+        Returns
+        -------
+        str
+            "computing...", or why the curve cannot say more ("no heading information...", "not
+            informative...", "ambiguous..."); '' when the curve speaks for itself.
+        """
         from retina.readout.fisher import INFORMATIVE_BOUND_DEG
 
         res = self.state.result
@@ -575,6 +635,12 @@ class BoundPlot(QWidget):
         return ""
 
     def paintEvent(self, event):  # noqa: N802 - Qt name
+        """Draw the plot (Qt's paint handler); an error is logged, never raised.
+
+        Parameters
+        ----------
+        event : PyQt6.QtGui.QPaintEvent
+        """
         try:
             self._paint()
         except Exception:  # noqa: BLE001 - nothing may escape a Qt slot
@@ -667,6 +733,7 @@ class BoundPlot(QWidget):
         p.end()
 
     def close_binding(self) -> None:
+        """Disconnect from the state (the plot shows no more changes)."""
         for u in self._unsub:
             u()
         self._unsub.clear()

@@ -106,8 +106,19 @@ FIELDS = ("yaw_deg", "pitch_deg", "roll_deg", "intensity_uT", "inclination_deg",
 
 
 def describe_rf(rf) -> str:
-    """The readout's words for an RF setting: ``None`` is "RF off", a tone ``(MHz, nT, direction)``
-    is e.g. "RF 1.2 MHz, 500 nT, perpendicular"."""
+    """The readout's words for an RF setting.
+
+    Parameters
+    ----------
+    rf : tuple (float, float, str) or None
+        ``(frequency_MHz, amplitude_nT, direction)`` of a tone (MHz, nT peak, "perpendicular" or
+        "parallel"), or None for no RF.
+
+    Returns
+    -------
+    str
+        "RF off", or e.g. "RF 1.2 MHz, 500 nT, perpendicular".
+    """
     if rf is None:
         return "RF off"
     f, b, d = rf
@@ -115,8 +126,18 @@ def describe_rf(rf) -> str:
 
 
 def rf_unavailable(scenario) -> str | None:
-    """Why the scenario cannot take an RF field in the viewer (None when it can): RF acts on the
-    spin system, so the yield function must be computed from one (``yield.system``)."""
+    """Why the scenario cannot take an RF field in the viewer: RF acts on the spin system, so the
+    yield function must be computed from one (``yield.system``).
+
+    Parameters
+    ----------
+    scenario : retina.scenario.Scenario or None
+
+    Returns
+    -------
+    str or None
+        One sentence naming the scenario's yield source, or None when RF can be applied.
+    """
     if scenario is None:
         return "no scenario loaded"
     kind, path = scenario.yield_source
@@ -145,6 +166,22 @@ def scan_yaws(centre_deg: float, amplitude_deg: float, steps: int, repeats: int)
     ``centre + amplitude`` and back, ``repeats`` times (out and back is one repeat; the turning
     points are not visited twice), ending where it started; ``L = repeats * 2 * (steps - 1) + 1``.
     Amplitude 0 is ``L`` looks at the centre.
+
+    Parameters
+    ----------
+    centre_deg : float
+        The heading where the scan starts and ends, degrees.
+    amplitude_deg : float
+        Half the sweep, degrees (the head turns to ``centre +/- amplitude``).
+    steps : int
+        Looks from one end of the sweep to the other, ends included (>= 2).
+    repeats : int
+        Out-and-back sweeps (>= 1).
+
+    Returns
+    -------
+    numpy.ndarray, shape (L,)
+        Yaw of each look in degrees, wrapped to ``[0, 360)``.
     """
     import numpy as np
 
@@ -175,7 +212,21 @@ class EventEmitter:
         self._subs: dict[str, list[Callable[[Event], None]]] = {}
 
     def connect(self, name: str, callback: Callable[[Event], None]) -> Callable[[], None]:
-        """Call ``callback(event)`` on every event ``name``; return a function that disconnects."""
+        """Call ``callback(event)`` on every event ``name``.
+
+        Parameters
+        ----------
+        name : str
+            A field name of :data:`FIELDS`, another event name (``"scenario"``, ``"result"``) or
+            ``"*"`` for every event.
+        callback : callable(Event)
+            Called synchronously with one :class:`Event`.
+
+        Returns
+        -------
+        callable()
+            Disconnects the callback (a second call does nothing).
+        """
         if not callable(callback):
             raise InputError(f"expected a callable, got {type(callback).__name__}", key="callback")
         self._subs.setdefault(name, []).append(callback)
@@ -188,12 +239,33 @@ class EventEmitter:
         return disconnect
 
     def emit(self, name: str, value: Any, old: Any = None) -> None:
+        """Call every callback of ``name`` and of ``"*"`` with one :class:`Event`.
+
+        Parameters
+        ----------
+        name : str
+            The event name.
+        value : object
+            The new value.
+        old : object, optional
+            The value before the change.
+        """
         ev = Event(name, value, old)
         for cb in list(self._subs.get(name, ())) + list(self._subs.get("*", ())):
             cb(ev)
 
     def n_subscribers(self, name: str | None = None) -> int:
-        """How many callbacks listen to ``name`` (all names when ``None``)."""
+        """How many callbacks listen to ``name``.
+
+        Parameters
+        ----------
+        name : str or None, optional
+            An event name; None counts the callbacks of every name.
+
+        Returns
+        -------
+        int
+        """
         if name is None:
             return sum(len(v) for v in self._subs.values())
         return len(self._subs.get(name, ()))
@@ -228,7 +300,14 @@ class History:
         self._last = None  # (time, names) of the last recorded step, for merging
 
     def record(self, changes: dict) -> None:
-        """Record one step ``{name: (old, new)}``."""
+        """Record one step; a step with the same fields within :attr:`merge_seconds` of the last
+        one is merged into it (a slider drag is one step).
+
+        Parameters
+        ----------
+        changes : dict
+            ``{name: (old, new)}`` for each field the step changed.
+        """
         if not changes:
             return
         now = self._clock()
@@ -244,6 +323,7 @@ class History:
         self._redo.clear()
 
     def clear(self) -> None:
+        """Forget every undo and redo step."""
         self._undo.clear()
         self._redo.clear()
         self._last = None
@@ -266,9 +346,23 @@ class History:
         return {k: pair[side] for k, pair in step.items()}
 
     def pop_undo(self) -> dict | None:
+        """Take the newest step off the undo list (it can be redone).
+
+        Returns
+        -------
+        dict or None
+            ``{name: old value}`` to set, or None when there is nothing to undo.
+        """
         return self._move(self._undo, self._redo, 0)
 
     def pop_redo(self) -> dict | None:
+        """Take the newest undone step off the redo list (it can be undone again).
+
+        Returns
+        -------
+        dict or None
+            ``{name: new value}`` to set, or None when there is nothing to redo.
+        """
         return self._move(self._redo, self._undo, 1)
 
 
@@ -362,8 +456,27 @@ class ViewerState:
         raise InputError(f"unknown viewer setting {name!r}; expected one of {FIELDS}", key=name)
 
     def set(self, name: str, value, *, record: bool = True) -> bool:
-        """Validate and set one field; emit its event if the value changed.  Returns whether it
-        changed.  ``record``: make the change one undo step (:class:`History`)."""
+        """Validate and set one field; emit its event if the value changed.
+
+        Parameters
+        ----------
+        name : str
+            One of :data:`FIELDS`.
+        value : object
+            The new value, in the field's unit (module docstring: degrees, uT, photons, MHz, nT).
+        record : bool, optional
+            Make the change one undo step (:class:`History`).
+
+        Returns
+        -------
+        bool
+            Whether the value changed.
+
+        Raises
+        ------
+        retina.errors.InputError
+            An unknown field or a value out of its range (naming the field).
+        """
         v = self._validate(name, value)
         old = self._v[name]
         if v == old:
@@ -375,13 +488,38 @@ class ViewerState:
         return True
 
     def get(self, name: str):
+        """The value of one field.
+
+        Parameters
+        ----------
+        name : str
+            One of :data:`FIELDS`.
+
+        Returns
+        -------
+        object
+            The value, in the field's unit.
+        """
         if name not in self._v:
             raise InputError(f"unknown viewer setting {name!r}; expected one of {FIELDS}", key=name)
         return self._v[name]
 
     def update(self, *, record: bool = True, **values) -> list[str]:
         """Validate every value first, then set them (one event per changed field, in
-        :data:`FIELDS` order).  Returns the names that changed; ``record``: as one undo step."""
+        :data:`FIELDS` order): all or nothing.
+
+        Parameters
+        ----------
+        record : bool, optional
+            Make the changes one undo step.
+        **values
+            ``name=value`` for fields of :data:`FIELDS`.
+
+        Returns
+        -------
+        list of str
+            The names that changed.
+        """
         checked = {k: self._validate(k, v) for k, v in values.items()}
         changed, step = [], {}
         for k in FIELDS:
@@ -395,12 +533,24 @@ class ViewerState:
         return changed
 
     def undo(self) -> list[str]:
-        """Undo the last user change; returns the fields changed (empty when nothing to undo)."""
+        """Undo the last user change.
+
+        Returns
+        -------
+        list of str
+            The fields changed (empty when there is nothing to undo).
+        """
         vals = self.history.pop_undo()
         return [] if vals is None else self.update(record=False, **vals)
 
     def redo(self) -> list[str]:
-        """Redo the last undone change; returns the fields changed."""
+        """Redo the last undone change.
+
+        Returns
+        -------
+        list of str
+            The fields changed (empty when there is nothing to redo).
+        """
         vals = self.history.pop_redo()
         return [] if vals is None else self.update(record=False, **vals)
 
@@ -424,6 +574,15 @@ class ViewerState:
         Scan: ``scan.amplitude_deg`` and ``scan.steps``.  RF: as the module docstring says.  Emits
         only ``"scenario"``, after every value is set (subscribers read the new values from the
         state), so one change of scenario makes one request.  Clears the undo history.
+
+        Parameters
+        ----------
+        scenario : retina.scenario.Scenario
+
+        Raises
+        ------
+        retina.errors.InputError
+            Not a scenario, or a value of it outside the viewer's ranges.
         """
         from retina.scenario import Scenario
 
@@ -453,8 +612,17 @@ class ViewerState:
         docstring): ``pose.headings_deg = [yaw]``, pitch and roll; the field as intensity,
         inclination and declination; ``light.photons = [photons]``; with a model or kappa override,
         the scenario's ordering with that model and kappa in ensemble mode; ``yield.field_uT`` kept;
-        with RF on, ``[rf] conditions`` is that one tone (named by :func:`describe_rf`).  Raises
-        InputError without a scenario."""
+        with RF on, ``[rf] conditions`` is that one tone (named by :func:`describe_rf`).
+
+        Returns
+        -------
+        retina.scenario.Scenario
+
+        Raises
+        ------
+        retina.errors.InputError
+            No scenario is loaded.
+        """
         sc = self._scenario
         if sc is None:
             raise InputError("no scenario loaded; open one with File > Open scenario", key="scenario")
@@ -489,13 +657,25 @@ class ViewerState:
 
     # ---------------------------------------------------------------- derived state
     def rf_setting(self):
-        """The RF field asked for: None (off) or ``(frequency_MHz, amplitude_nT, direction)``."""
+        """The RF field asked for.
+
+        Returns
+        -------
+        tuple (float, float, str) or None
+            None (RF off) or ``(frequency_MHz, amplitude_nT, direction)``: MHz, nT (peak),
+            "perpendicular" or "parallel".
+        """
         v = self._v
         return None if v["rf"] == "off" else (v["rf_MHz"], v["rf_nT"], v["rf_direction"])
 
     def request(self):
-        """A frozen :class:`retina_viewer.workers.PatternRequest` of the current state (serial numbers
-        increase by one per call)."""
+        """A request for the pattern of the current state.
+
+        Returns
+        -------
+        retina_viewer.workers.PatternRequest
+            Frozen; serial numbers increase by one per call.
+        """
         from .workers import PatternRequest
 
         self._serial += 1
@@ -513,7 +693,12 @@ class ViewerState:
 
     def set_result(self, result) -> None:
         """Store a worker's result and emit ``"result"`` (results for another scenario are
-        ignored)."""
+        ignored).
+
+        Parameters
+        ----------
+        result : retina_viewer.workers.PatternResult
+        """
         if result.request.scenario is not self._scenario:
             return
         old = self._result

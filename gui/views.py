@@ -90,6 +90,19 @@ def colour_limits(result, display: str, eye: str) -> tuple[float, float]:
 
     A flat pattern (range below :data:`retina_viewer.workers.FLAT_MODULATION`, relative) gets
     limits around its value so that every receptor takes the middle colour.
+
+    Parameters
+    ----------
+    result : retina_viewer.workers.PatternResult
+    display : {"modulation", "yields"}
+    eye : {"both", "left", "right"}
+        The receptors the limits are taken over.
+
+    Returns
+    -------
+    tuple of float
+        ``(lo, hi)`` in the unit of the values shown (modulation, dimensionless, symmetric about
+        0; or yield); ``lo < hi``.
     """
     from .workers import FLAT_MODULATION
 
@@ -143,7 +156,15 @@ def colour_values(result, display: str, eye: str, limits=None):
 
 
 def map_grid() -> tuple[np.ndarray, np.ndarray]:
-    """Pixel centres of the visual-field map: azimuth ``(A,)`` and elevation ``(E,)``, degrees."""
+    """Pixel centres of the visual-field map.
+
+    Returns
+    -------
+    azimuth : ndarray, shape (A,)
+        Degrees, from -180 to 180 in steps of :data:`MAP_STEP_DEG`.
+    elevation : ndarray, shape (E,)
+        Degrees, from -90 to 90.
+    """
     s = MAP_STEP_DEG
     return np.arange(-180.0 + s / 2, 180.0, s), np.arange(-90.0 + s / 2, 90.0, s)
 
@@ -210,8 +231,19 @@ class PatternColours:
     image: np.ndarray
 
     def fits(self, display: str, eye: str, limits) -> bool:
-        """Whether these colours are the ones for ``display``, ``eye`` and fixed ``limits``
-        (None: fitted to the pattern)."""
+        """Whether these colours are the ones asked for.
+
+        Parameters
+        ----------
+        display : {"modulation", "yields"}
+        eye : {"both", "left", "right"}
+        limits : tuple of float or None
+            Fixed colour-scale limits ``(lo, hi)``; None: fitted to the pattern.
+
+        Returns
+        -------
+        bool
+        """
         if display != self.display or eye != self.eye or (limits is not None) != self.locked:
             return False
         return limits is None or tuple(float(x) for x in limits) == self.limits
@@ -228,6 +260,12 @@ def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> 
         As for :func:`colour_values`.
     index : ndarray, shape (3, E, A), optional
         :func:`map_index` of the pattern's receptors (computed when not given).
+
+    Returns
+    -------
+    PatternColours
+        Receptor colours ``rgba`` ``(N, 4)`` and the map ``image`` ``(E, A, 4)``, float32 in
+        [0, 1], with the limits used.
     """
     _, rgba, lims, _ = colour_values(result, display, eye, limits)
     if index is None:
@@ -308,6 +346,11 @@ def receptor_points_class():
     ``set_points(positions (N, 3), sizes (N,), colors (N, 4))`` and ``set_colors(colors (N, 4))``,
     which re-sends only the colour buffer.  Attributes ``positions``, ``sizes``, ``colors`` hold
     what was last sent (float32).
+
+    Returns
+    -------
+    type
+        A vispy scene node class (one per process).
     """
     global _POINTS_CLASS
     if _POINTS_CLASS is None:
@@ -391,6 +434,8 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
         Marks a label must not cover (each a square of half-width ``mark_half`` degrees).
     gap : float
         Free space kept around every box (degrees).
+    mark_half : float
+        Half-width of the square each obstacle covers (degrees).
 
     Returns
     -------
@@ -427,7 +472,8 @@ def layout_labels(anchors, sizes, obstacles=(), *, gap: float = 1.0, mark_half: 
 
 
 def _share_fonts(texts) -> None:
-    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches.
+    """Give the Text visuals of one canvas one glyph atlas, fed from the glyph caches, and a
+    blending that keeps the frame opaque (:func:`_blend_keeping_alpha`).
 
     vispy gives every Text visual its own font manager, so each renders every glyph it shows
     again (a freetype rendering at 256 pt and a distance transform: milliseconds per glyph, the
@@ -441,6 +487,23 @@ def _share_fonts(texts) -> None:
     for t in texts:
         t._font_manager = fm
         t._update_font()
+    _blend_keeping_alpha(texts)
+
+
+def _blend_keeping_alpha(visuals) -> None:
+    """Blend ``visuals`` over the frame's colours but leave the frame's alpha at 1 (opaque).
+
+    vispy's Text (and Markers) visuals blend with ``glBlendFunc(SRC_ALPHA, ONE_MINUS_SRC_ALPHA)``
+    for all four channels, so each partly covered pixel of a glyph's edge also writes
+    ``a_out = a**2 + (1 - a)`` (< 1) into the frame's alpha.  The colours are right, but the frame
+    is no longer opaque there: an image saved from it has translucent text, and an image taken as
+    premultiplied (Qt's read-back of a framebuffer, and Qt's own OpenGL widget) shows channels above
+    their alpha, which Qt's compositing turns into purple, red, yellow and cyan fringes round every
+    small label.  vispy's ``"translucent"`` preset blends the colours the same way and the alpha
+    with ``(ZERO, ONE)``: the frame, cleared opaque, stays opaque.
+    """
+    for v in visuals:
+        v.set_gl_state("translucent", depth_test=False)
 
 
 def _keep_grid_layout(grid) -> None:
@@ -738,7 +801,18 @@ class HeadView(_Subscriber):
         self.canvas.update()
 
     def render(self) -> np.ndarray:
-        """The canvas as an RGBA image ``(H, W, 4)`` uint8 (off-screen render)."""
+        """The canvas rendered off screen.
+
+        Returns
+        -------
+        ndarray, shape (H, W, 4), uint8
+            RGBA, opaque; H x W the canvas size in physical pixels.
+
+        Raises
+        ------
+        retina.errors.InputError
+            The window was never shown, or the view is squeezed to no pixels.
+        """
         return _render(self.canvas, "head view")
 
 
@@ -971,8 +1045,14 @@ class MapView(_Subscriber):
             self.canvas.update()
 
     def label_sizes(self) -> np.ndarray:
-        """Label boxes ``(K, 2)`` in map degrees: 7 x 13 pixels per character (8 pt text) at the
-        whole-field zoom (the labels only get farther apart when the map is zoomed in)."""
+        """The boxes of the map's labels: 7 x 13 pixels per character (8 pt text) at the
+        whole-field zoom (the labels only get farther apart when the map is zoomed in).
+
+        Returns
+        -------
+        ndarray, shape (K, 2)
+            Width and height of each label of :attr:`label_texts`, map degrees.
+        """
         w_px, h_px = (float(x) for x in self.view.size) if self.view.size[0] > 10 else (600.0, 400.0)
         deg_per_px = max((MAP_RANGE[0][1] - MAP_RANGE[0][0]) / w_px,
                          (MAP_RANGE[1][1] - MAP_RANGE[1][0]) / h_px)
@@ -1040,7 +1120,18 @@ class MapView(_Subscriber):
 
     # ---------------------------------------------------------------- receptor under the cursor
     def receptor_at(self, az_deg: float, el_deg: float):
-        """Index of the receptor drawn at map point ``(az, el)`` degrees, or None."""
+        """The receptor drawn at a map point (of the eyes shown).
+
+        Parameters
+        ----------
+        az_deg, el_deg : float
+            Azimuth and elevation of the point, degrees.
+
+        Returns
+        -------
+        int or None
+            Index into the result's receptors; None outside the map or where no receptor is drawn.
+        """
         if self._index is None or not (-180.0 <= az_deg < 180.0 and -90.0 <= el_deg < 90.0):
             return None
         j = min(int((az_deg + 180.0) // MAP_STEP_DEG), self.az.size - 1)
@@ -1049,8 +1140,19 @@ class MapView(_Subscriber):
         return None if k < 0 else k
 
     def receptor_info(self, k: int) -> dict:
-        """Receptor ``k`` of the current result: its eye, visual direction (azimuth, elevation,
-        degrees), yield and relative modulation."""
+        """One receptor of the current result.
+
+        Parameters
+        ----------
+        k : int
+            Index into the result's receptors.
+
+        Returns
+        -------
+        dict
+            ``index``, ``eye`` ("left" or "right"), ``azimuth_deg`` and ``elevation_deg`` (its
+            visual direction, degrees), ``yield`` and ``modulation`` (relative, dimensionless).
+        """
         res = self.state.result
         rec = res.pattern.receptors
         az, el = _az_el(np.asarray(rec.visual_dirs[k], float))
@@ -1059,7 +1161,18 @@ class MapView(_Subscriber):
                 "yield": float(res.pattern.yields[k]), "modulation": float(res.pattern.modulation[k])}
 
     def map_point(self, pos) -> tuple[float, float]:
-        """Map coordinates (azimuth, elevation, degrees) of a canvas pixel position."""
+        """Map coordinates of a canvas position.
+
+        Parameters
+        ----------
+        pos : array_like, shape (2,)
+            ``(x, y)`` in canvas (logical) pixels, origin at the top left.
+
+        Returns
+        -------
+        tuple of float
+            ``(azimuth, elevation)`` in degrees.
+        """
         tr = self.canvas.scene.node_transform(self.view.scene)
         p = tr.map(np.asarray(pos, float)[:2])
         return float(p[0]), float(p[1])
@@ -1075,5 +1188,16 @@ class MapView(_Subscriber):
             self.on_hover(None)
 
     def render(self) -> np.ndarray:
-        """The canvas as an RGBA image ``(H, W, 4)`` uint8 (off-screen render)."""
+        """The canvas rendered off screen.
+
+        Returns
+        -------
+        ndarray, shape (H, W, 4), uint8
+            RGBA, opaque; H x W the canvas size in physical pixels.
+
+        Raises
+        ------
+        retina.errors.InputError
+            The window was never shown, or the view is squeezed to no pixels.
+        """
         return _render(self.canvas, "map view")

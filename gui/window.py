@@ -79,8 +79,25 @@ def _slot(fn):
 
 
 def load_start_scenario(path=None, *, quick: bool | None = None):
-    """The scenario to start from (module docstring).  ``quick=None`` means quick for the bundled
-    scenario and as-is for a given one."""
+    """The scenario to start from (module docstring).
+
+    Parameters
+    ----------
+    path : str or pathlib.Path, optional
+        A scenario file; default the bundled demo scenario.
+    quick : bool, optional
+        Reduce it (:func:`retina.build.quick_scenario`); None: quick for the bundled scenario and
+        as written for a given one.
+
+    Returns
+    -------
+    retina.scenario.Scenario
+
+    Raises
+    ------
+    retina.errors.InputError
+        The file is missing or invalid (naming the file and the key).
+    """
     from retina.build import quick_scenario
     from retina.scenario import load_scenario
 
@@ -94,7 +111,17 @@ def load_start_scenario(path=None, *, quick: bool | None = None):
 
 
 def png_bytes(image: QImage) -> bytes:
-    """A QImage encoded as PNG."""
+    """A QImage encoded as PNG.
+
+    Parameters
+    ----------
+    image : PyQt6.QtGui.QImage
+
+    Returns
+    -------
+    bytes
+        The PNG file's bytes.
+    """
     ba = QByteArray()
     buf = QBuffer(ba)
     buf.open(QIODevice.OpenModeFlag.WriteOnly)
@@ -105,7 +132,22 @@ def png_bytes(image: QImage) -> bytes:
 
 
 def rgba_png_bytes(rgba: np.ndarray) -> bytes:
-    """An RGBA uint8 array ``(H, W, 4)`` encoded as PNG."""
+    """An RGBA image encoded as PNG.
+
+    Parameters
+    ----------
+    rgba : ndarray, shape (H, W, 4), uint8
+
+    Returns
+    -------
+    bytes
+        The PNG file's bytes.
+
+    Raises
+    ------
+    retina.errors.InputError
+        Not an ``(H, W, 4)`` array.
+    """
     a = np.ascontiguousarray(rgba, dtype=np.uint8)
     if a.ndim != 3 or a.shape[2] != 4:
         raise InputError(f"expected an (H, W, 4) image, got {a.shape}", key="screenshot")
@@ -201,7 +243,17 @@ class MainWindow(QMainWindow):
 
     # ---------------------------------------------------------------- errors
     def report_error(self, title: str, exc, *, unexpected: bool = False) -> None:
-        """Show an error in a dialog (or the status bar without dialogs); never raises."""
+        """Show an error in a dialog (or the status bar without dialogs); never raises.
+
+        Parameters
+        ----------
+        title : str
+            The dialog's title.
+        exc : Exception or str
+            What went wrong (shown as one line).
+        unexpected : bool, optional
+            Not an input error: the message starts with the exception's type.
+        """
         text = " ".join(str(exc).split())
         if unexpected:
             text = f"{type(exc).__name__}: {text}"
@@ -260,7 +312,14 @@ class MainWindow(QMainWindow):
         self.nudge(name, step)
 
     def nudge(self, name: str, step: float) -> None:
-        """Change a pose angle by ``step`` degrees (pitch clamped to [-90, 90], roll wrapped)."""
+        """Change a pose angle by a step (pitch clamped to [-90, 90], roll wrapped).
+
+        Parameters
+        ----------
+        name : {"yaw_deg", "pitch_deg", "roll_deg"}
+        step : float
+            Degrees to add.
+        """
         v = self.state.get(name) + step
         if name == "pitch_deg":
             v = min(90.0, max(-90.0, v))
@@ -269,15 +328,18 @@ class MainWindow(QMainWindow):
         self.state.set(name, v)
 
     def reset_camera(self) -> None:
+        """Put the head view's camera and the map's range back where they started."""
         cam = self.head_view.view.camera
         cam.elevation, cam.azimuth, cam.distance = 20.0, -55.0, 82.0
         self.map_view.reset_range()
 
     def undo(self) -> None:
+        """Undo the last change of a control (the status bar says when there is none)."""
         if not self.state.undo():
             self.statusBar().showMessage("nothing to undo", 2000)
 
     def redo(self) -> None:
+        """Redo the last undone change (the status bar says when there is none)."""
         if not self.state.redo():
             self.statusBar().showMessage("nothing to redo", 2000)
 
@@ -426,7 +488,13 @@ class MainWindow(QMainWindow):
         self._scan_tick()
 
     def scan_step(self) -> bool:
-        """Advance the playing scan by one look; returns False when it has ended."""
+        """Advance the playing scan by one look.
+
+        Returns
+        -------
+        bool
+            False when the scan has ended (the head is back at the start heading).
+        """
         sc = self._scan
         if sc is None or sc["k"] >= len(sc["yaws"]):
             return False
@@ -465,8 +533,18 @@ class MainWindow(QMainWindow):
 
     # ---------------------------------------------------------------- files
     def open_scenario(self, path) -> None:
-        """Load a scenario file (as given, not reduced).  Raises InputError, keeping the current
-        scenario, when the file or what its yield source names is invalid (module docstring)."""
+        """Load a scenario file (as given, not reduced).
+
+        Parameters
+        ----------
+        path : str or pathlib.Path
+
+        Raises
+        ------
+        retina.errors.InputError
+            The file, or the spin-system file its yield source names, is invalid (module docstring);
+            the current scenario is kept.
+        """
         from retina.scenario import load_scenario
 
         sc = load_scenario(path)
@@ -482,6 +560,7 @@ class MainWindow(QMainWindow):
         self.state.load_scenario(sc)
 
     def open_dialog(self) -> None:
+        """Ask for a scenario file and open it; an invalid one is reported in a dialog."""
         path, _ = QFileDialog.getOpenFileName(self, "Open scenario", "", "Scenario (*.toml);;All files (*)")
         if not path:
             return
@@ -491,7 +570,25 @@ class MainWindow(QMainWindow):
             self.report_error("Invalid scenario", exc)
 
     def save_scenario(self, path, *, force: bool = False) -> Path:
-        """Save the current state as a scenario file (:meth:`ViewerState.to_scenario`), atomically."""
+        """Save the current state as a scenario file (:meth:`ViewerState.to_scenario`), atomically.
+
+        Parameters
+        ----------
+        path : str or pathlib.Path
+            ``.toml`` is added when the name has another suffix.
+        force : bool, optional
+            Replace an existing file.
+
+        Returns
+        -------
+        pathlib.Path
+            The file written.
+
+        Raises
+        ------
+        retina.errors.InputError
+            The file exists (without ``force``) or cannot be written, or no scenario is loaded.
+        """
         from retina.scenario import save_scenario
 
         path = Path(path)
@@ -500,9 +597,30 @@ class MainWindow(QMainWindow):
         return save_scenario(self.state.to_scenario(), path, force=force)
 
     def export_figure(self, stem, formats=("png", "svg", "pdf"), *, dpi: int = 300, force: bool = False):
-        """Write the current pattern as a publication figure with the figure builder the
-        ``patterns`` command uses (:func:`retina.figures.modulation_fields`, one panel); returns the
-        files written."""
+        """Write the current pattern as a publication figure with the figure builder the ``patterns``
+        command uses (:func:`retina.figures.modulation_fields`, one panel).
+
+        Parameters
+        ----------
+        stem : str or pathlib.Path
+            File name without suffix (a .png, .svg or .pdf suffix is dropped).
+        formats : sequence of {"png", "svg", "pdf"}, optional
+            One file per format.
+        dpi : int, optional
+            Resolution of the PNG, dots per inch.
+        force : bool, optional
+            Replace existing files.
+
+        Returns
+        -------
+        list of pathlib.Path
+            The files written.
+
+        Raises
+        ------
+        retina.errors.InputError
+            No pattern yet, or a file exists (without ``force``).
+        """
         from retina.figures import modulation_fields, save_figure
         from retina.io.atomic import check_writable
 
@@ -533,13 +651,38 @@ class MainWindow(QMainWindow):
         return save_figure(fig, stem, formats, dpi=dpi, force=True)
 
     def save_screenshot(self, path, *, force: bool = False) -> Path:
-        """Save the whole window as PNG (atomic write)."""
+        """Save the whole window as PNG (atomic write).
+
+        Parameters
+        ----------
+        path : str or pathlib.Path
+        force : bool, optional
+            Replace an existing file.
+
+        Returns
+        -------
+        pathlib.Path
+            The file written.
+        """
         from retina.io.atomic import atomic_write_bytes
 
         return atomic_write_bytes(path, png_bytes(self.grab().toImage()), force=force)
 
     def save_view_image(self, which: str, path, *, force: bool = False) -> Path:
-        """Save the head (``"head"``) or map (``"map"``) canvas as PNG (atomic write)."""
+        """Save one view as rendered by OpenGL as PNG (atomic write).
+
+        Parameters
+        ----------
+        which : {"head", "map"}
+        path : str or pathlib.Path
+        force : bool, optional
+            Replace an existing file.
+
+        Returns
+        -------
+        pathlib.Path
+            The file written (RGBA, opaque, the canvas's size in pixels).
+        """
         from retina.io.atomic import atomic_write_bytes
 
         views = {"head": self.head_view, "map": self.map_view}
@@ -552,6 +695,7 @@ class MainWindow(QMainWindow):
         return path
 
     def screenshot_dialog(self) -> None:
+        """Ask for a file name and save the window there as PNG (File > Save screenshot)."""
         path = self._ask("Save screenshot", "retina-view.png", "PNG image (*.png)")
         if path:  # the dialog has asked before replacing a file
             if not path.lower().endswith(".png"):
@@ -559,6 +703,12 @@ class MainWindow(QMainWindow):
             self._report_write(lambda: self.save_screenshot(path, force=True))
 
     def view_image_dialog(self, which: str) -> None:
+        """Ask for a file name and save one view there as PNG.
+
+        Parameters
+        ----------
+        which : {"head", "map"}
+        """
         path = self._ask(f"Save {which} view image", f"retina-{which}.png", "PNG image (*.png)")
         if path:
             if not path.lower().endswith(".png"):
@@ -566,11 +716,13 @@ class MainWindow(QMainWindow):
             self._report_write(lambda: self.save_view_image(which, path, force=True))
 
     def save_scenario_dialog(self) -> None:
+        """Ask for a file name and save the state there as a scenario."""
         path = self._ask("Save state as scenario", "viewer-state.toml", "Scenario (*.toml)")
         if path:
             self._report_write(lambda: self.save_scenario(path, force=True))
 
     def export_dialog(self) -> None:
+        """Ask for a file name and export the figure (the suffix picks the format; none: all three)."""
         path, filt = QFileDialog.getSaveFileName(
             self, "Export figure (the suffix picks the format; no suffix: PNG, SVG and PDF)",
             "retina-pattern", "PNG, SVG and PDF (*);;PNG (*.png);;SVG (*.svg);;PDF (*.pdf)")
@@ -591,6 +743,12 @@ class MainWindow(QMainWindow):
 
     # ---------------------------------------------------------------- teardown
     def closeEvent(self, event) -> None:  # noqa: N802 - Qt name
+        """Stop the worker and disconnect the views (:meth:`shutdown`), then close (Qt's handler).
+
+        Parameters
+        ----------
+        event : PyQt6.QtGui.QCloseEvent
+        """
         self.shutdown()
         super().closeEvent(event)
 
@@ -609,7 +767,17 @@ class MainWindow(QMainWindow):
 
 
 def check_platform(app) -> None:
-    """Raise InputError on a Qt platform that cannot draw OpenGL views (offscreen, minimal)."""
+    """Refuse a Qt platform that cannot draw OpenGL views (offscreen, minimal).
+
+    Parameters
+    ----------
+    app : PyQt6.QtWidgets.QApplication
+
+    Raises
+    ------
+    retina.errors.InputError
+        On such a platform, saying to use Xvfb instead.
+    """
     name = app.platformName()
     if name in ("offscreen", "minimal"):
         raise InputError(OFFSCREEN_MESSAGE.format(name), key="QT_QPA_PLATFORM")
@@ -632,6 +800,18 @@ def main(argv=None, *, scenario=None, quick: bool | None = None, screenshot=None
         drawn something: blank views give an error (status 1), not a blank file.
     force : bool
         Replace an existing screenshot file.
+
+    Returns
+    -------
+    int
+        Exit status: 0; 1 when the views drew nothing or the first pattern failed; 2 when the
+        screenshot could not be written.
+
+    Raises
+    ------
+    retina.errors.InputError
+        An invalid scenario, a screenshot file that exists (without ``force``), or a Qt platform
+        that cannot draw OpenGL views; raised before any window opens.
     """
     from .views import ensure_backend
 

@@ -88,7 +88,20 @@ FLAT_MODULATION = 1e-9
 
 
 def format_deg(v: float, decimals: int = 1) -> str:
-    """``v`` with ``decimals`` decimals and " deg", never "-0.0 deg"."""
+    """An angle as the readout writes it, never "-0.0 deg".
+
+    Parameters
+    ----------
+    v : float
+        The angle, degrees.
+    decimals : int, optional
+        Decimals shown.
+
+    Returns
+    -------
+    str
+        e.g. ``"12.5 deg"``.
+    """
     s = f"{float(v):.{decimals}f}"
     if float(s) == 0.0:
         s = s.lstrip("-")
@@ -96,7 +109,23 @@ def format_deg(v: float, decimals: int = 1) -> str:
 
 
 def describe_bound(bound_deg: float, status: str = "ok", ambiguous: bool = False) -> str:
-    """The words the viewer shows for a bound (module docstring): never an absurd number."""
+    """The words the viewer shows for a bound (module docstring): never an absurd number.
+
+    Parameters
+    ----------
+    bound_deg : float
+        Cramer-Rao bound on heading, degrees (inf or nan without information).
+    status : {"ok", "not_informative", "none"}, optional
+        What the bound means (:class:`PatternResult`).
+    ambiguous : bool, optional
+        Heading and heading + 180 deg give one pattern.
+
+    Returns
+    -------
+    str
+        The bound in degrees, or "no heading information", "not informative (> 60 deg)", with
+        the ambiguity said in words.
+    """
     from retina.readout.fisher import INFORMATIVE_BOUND_DEG
 
     if status == "none" or not np.isfinite(bound_deg):
@@ -289,8 +318,34 @@ class PatternComputer:
         self._curve_key = self._curve = None
 
     def yield_function(self, sc, intensity_uT: float, *, rf=None, progress=None):
-        """The yield function a request for ``sc`` at ``intensity_uT`` (with the RF tone ``rf``,
-        or None) needs, the field strength it was computed at (uT) and a note."""
+        """The yield function a request needs, computed once and kept (the newest
+        :attr:`max_yield_functions`).
+
+        Parameters
+        ----------
+        sc : retina.scenario.Scenario
+        intensity_uT : float
+            Field intensity asked for, microtesla (used when the scenario computes its yield
+            function from a spin system).
+        rf : tuple (float, float, str), optional
+            ``(frequency_MHz, amplitude_nT, direction)`` of an RF tone; None without RF.
+        progress : callable, optional
+            Progress reporter passed to the yield-function builder (polled for cancellation).
+
+        Returns
+        -------
+        yf : retina.yieldfn.YieldFunction
+        field_uT : float
+            The field strength it was computed at, microtesla (nan when an imported table does not
+            record it).
+        note : str
+            How it was obtained, for the readout and the status bar.
+
+        Raises
+        ------
+        retina.errors.InputError
+            RF asked for a scenario whose yield function is not computed from a spin system.
+        """
         from retina import build
 
         if sc is not self._scenario:
@@ -342,7 +397,22 @@ class PatternComputer:
     def model(self, sc, yf, kappa, ordering="scenario"):
         """The retina model for a yield function, ``kappa`` and the ordering choice (rebuilt only
         when they change); ``ordering`` other than "scenario" replaces the scenario's model
-        (:func:`retina.build.build_ordering`), in ensemble mode."""
+        (:func:`retina.build.build_ordering`), in ensemble mode.
+
+        Parameters
+        ----------
+        sc : retina.scenario.Scenario
+        yf : retina.yieldfn.YieldFunction
+        kappa : float or None
+            Concentration of the ordering (dimensionless); None keeps the scenario's.
+        ordering : str, optional
+            "scenario" or one of the ordering models.
+
+        Returns
+        -------
+        retina model
+            What :func:`retina.build.build_retina` returns.
+        """
         from retina import build
 
         key = (kappa, ordering)
@@ -358,15 +428,45 @@ class PatternComputer:
         return self._model
 
     def yield_is_computed(self, sc, intensity_uT: float, rf=None) -> bool:
-        """Whether a request for ``sc`` at ``intensity_uT`` (with the RF tone ``rf``) must compute a
-        yield function first."""
+        """Whether a request must compute a yield function first (none kept fits it).
+
+        Parameters
+        ----------
+        sc : retina.scenario.Scenario
+        intensity_uT : float
+            Field intensity, microtesla.
+        rf : tuple (float, float, str), optional
+            ``(frequency_MHz, amplitude_nT, direction)``; None without RF.
+
+        Returns
+        -------
+        bool
+        """
         if sc is not self._scenario:
             return sc.yield_source[0] == "system"
         return _same_yield_key(sc, intensity_uT, rf) not in self._yfs and sc.yield_source[0] == "system"
 
     def compute(self, req: PatternRequest, *, cancel: Callable[[], bool] | None = None) -> PatternResult:
-        """Compute one request.  ``cancel()`` is polled while a yield function is computed; when
-        it returns True the computation raises :class:`retina.errors.Cancelled`."""
+        """Compute one request.
+
+        Parameters
+        ----------
+        req : PatternRequest
+        cancel : callable() -> bool, optional
+            Polled while a yield function is computed; when it returns True the computation
+            raises :class:`retina.errors.Cancelled`.
+
+        Returns
+        -------
+        PatternResult
+
+        Raises
+        ------
+        retina.errors.InputError
+            No scenario, or a setting the scenario cannot take.
+        retina.errors.Cancelled
+            ``cancel()`` returned True.
+        """
         from retina.eye.field import Field
         from retina.eye.pose import Pose
         from retina.readout.fisher import INFORMATIVE_BOUND_DEG, cramer_rao_deg, interpolated_information
@@ -450,7 +550,21 @@ class PatternComputer:
 
     def colours(self, pattern, display: str, eye: str, limits=None):
         """:func:`retina_viewer.views.pattern_colours` of a pattern, with the map's pixel index
-        kept per scenario (pure numpy: no GL, safe on the worker thread)."""
+        kept per scenario (pure numpy: no GL, safe on the worker thread).
+
+        Parameters
+        ----------
+        pattern : retina.eye.pattern.Pattern
+        display : {"modulation", "yields"}
+        eye : {"both", "left", "right"}
+        limits : tuple of float, optional
+            Fixed colour-scale limits ``(lo, hi)``; default: the pattern's own.
+
+        Returns
+        -------
+        retina_viewer.views.PatternColours
+            Receptor colours ``(N, 4)`` and the map image ``(E, A, 4)``, float32 in [0, 1].
+        """
         from types import SimpleNamespace
 
         from .views import map_index, pattern_colours
@@ -461,7 +575,17 @@ class PatternComputer:
                                self._map_index[1])
 
     def needs_new_yield(self, a: PatternRequest, b: PatternRequest) -> bool:
-        """True when request ``b`` needs another yield function than ``a``."""
+        """Whether request ``b`` needs another yield function than ``a`` (another scenario,
+        intensity of a computed yield function, or RF tone).
+
+        Parameters
+        ----------
+        a, b : PatternRequest
+
+        Returns
+        -------
+        bool
+        """
         return a.scenario is not b.scenario or \
             _same_yield_key(a.scenario, a.intensity_uT, getattr(a, "rf", None)) != \
             _same_yield_key(b.scenario, b.intensity_uT, getattr(b, "rf", None))
@@ -510,7 +634,19 @@ class LatestOnlyWorker:
         return self._thread
 
     def submit(self, request) -> None:
-        """Queue ``request``, replacing any older pending one."""
+        """Queue ``request``, replacing any older pending one (computed at once in synchronous
+        mode).
+
+        Parameters
+        ----------
+        request : object
+            Passed to the compute function (a :class:`PatternRequest` in the viewer).
+
+        Raises
+        ------
+        retina.errors.InputError
+            The worker is closed.
+        """
         if self._closed:
             raise InputError("the worker is closed", key="worker")
         if self.synchronous:
@@ -563,11 +699,27 @@ class LatestOnlyWorker:
                 self._cond.notify_all()
 
     def idle(self) -> bool:
-        """Nothing pending and nothing running."""
+        """Whether nothing is pending and nothing running.
+
+        Returns
+        -------
+        bool
+        """
         return self._pending is None and self._running is None
 
     def wait_idle(self, timeout: float = 30.0) -> bool:
-        """Block until :meth:`idle` (threaded mode) or ``timeout`` seconds; return :meth:`idle`."""
+        """Block until :meth:`idle` (threaded mode) or ``timeout`` seconds.
+
+        Parameters
+        ----------
+        timeout : float, optional
+            Seconds to wait at most.
+
+        Returns
+        -------
+        bool
+            :meth:`idle` at the end.
+        """
         end = time.monotonic() + timeout
         with self._cond:
             while not self.idle():
@@ -578,7 +730,13 @@ class LatestOnlyWorker:
         return self.idle()
 
     def close(self, timeout: float = 30.0) -> None:
-        """Stop the thread (a running computation finishes or is cancelled first) and join it."""
+        """Stop the thread (a running computation finishes or is cancelled first) and join it.
+
+        Parameters
+        ----------
+        timeout : float, optional
+            Seconds to wait for the thread at most.
+        """
         with self._cond:
             self._closed = True
             self._pending = None
@@ -625,9 +783,17 @@ if HAVE_QT:
             self.failed.emit(req, f"{kind}{text}")
 
         def submit(self, request) -> None:
+            """Queue a request (:meth:`LatestOnlyWorker.submit`); its result arrives as
+            :attr:`finished` or :attr:`failed`.
+
+            Parameters
+            ----------
+            request : PatternRequest
+            """
             self.worker.submit(request)
 
         def close(self) -> None:
+            """Stop the worker thread and join it (:meth:`LatestOnlyWorker.close`)."""
             self.worker.close()
 else:  # pragma: no cover
     QtPatternWorker = None

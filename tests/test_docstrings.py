@@ -2,10 +2,15 @@
 and every public method of their public classes, documents its parameters and what it returns.
 Checked with numpydoc's own validator (common practice, no source).  Every module of ``retina/`` is
 listed (a test checks); the methods of a few modules other work is changing wait in
-:data:`METHODS_NOT_YET`."""
+:data:`METHODS_NOT_YET`.  The viewer's modules (``gui/``, imported as ``retina_viewer``) are checked
+the same way (:data:`GUI_CHECKED`): importing them needs PyQt6 and vispy but no display (no Qt
+application is made), so these tests skip, with the reason, where the viewer extra is missing, and
+fail in CI, which installs it (as tests/test_gui.py does)."""
 
 import importlib
+import importlib.util
 import inspect
+import os
 from pathlib import Path
 
 import pytest
@@ -47,6 +52,24 @@ METHODS_NOT_YET = ["retina.spin.sampling"]
 """Checked modules whose public class methods are not checked yet: the sampling module is being
 changed by other work at the moment (SampledYields.standard_error_of lacks sections); it joins when
 that work lands."""
+
+
+GUI_CHECKED = ["retina_viewer", "retina_viewer.__main__", "retina_viewer.canvas",
+               "retina_viewer.display", "retina_viewer.glyphs", "retina_viewer.panels",
+               "retina_viewer.state", "retina_viewer.views", "retina_viewer.window",
+               "retina_viewer.workers"]
+"""The viewer's modules (every ``gui/*.py``; a test checks)."""
+
+GUI_DIR = Path(__file__).resolve().parent.parent / "gui"
+
+
+def _need_viewer():
+    """Skip without PyQt6 or vispy on a developer machine; fail in CI, which installs them."""
+    if importlib.util.find_spec("PyQt6") is None or importlib.util.find_spec("vispy") is None:
+        reason = "PyQt6 or vispy not installed (pip install 'retina-compass[viewer]')"
+        if os.environ.get("CI", "").lower() == "true":
+            pytest.fail(f"the viewer's docstrings cannot be checked in CI: {reason}")
+        pytest.skip(reason)
 
 
 def _public_functions(name):
@@ -127,6 +150,25 @@ def test_public_functions_document_parameters_and_returns(name):
 @pytest.mark.parametrize("name", [n for n in CHECKED if n not in METHODS_NOT_YET])
 def test_public_methods_document_parameters_and_returns(name):
     bad = _missing_sections(_public_class_methods(name))
+    assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
+
+
+def test_every_viewer_module_is_checked():
+    names = {"retina_viewer" if p.stem == "__init__" else f"retina_viewer.{p.stem}"
+             for p in GUI_DIR.glob("*.py")}
+    missing = sorted(names - set(GUI_CHECKED))
+    assert not missing, ("add these modules to GUI_CHECKED in tests/test_docstrings.py (with their "
+                         f"docstrings): {missing}")
+    assert len(GUI_CHECKED) == len(set(GUI_CHECKED))
+
+
+@pytest.mark.parametrize("name", GUI_CHECKED)
+def test_viewer_functions_and_methods_document_parameters_and_returns(name):
+    _need_viewer()
+    mod = importlib.import_module(name)
+    where = Path(mod.__file__).resolve().parent
+    assert where == GUI_DIR, f"{name} is imported from {where}, not this tree's gui/ (pip install -e .)"
+    bad = _missing_sections(list(_public_functions(name)) + list(_public_class_methods(name)))
     assert not bad, f"missing docstring sections (GL08 none, PR01 parameters, RT01 returns): {bad}"
 
 

@@ -1796,3 +1796,77 @@ def test_pattern_work_runs_with_one_blas_thread_and_restores_the_default():
     with _one_blas_thread():
         assert blas_threads() == [1] * len(before)
     assert blas_threads() == before
+
+
+# ------------------------------------------------------------------------------------------------
+# issue 14 polish: colour fringes round the map's small labels
+
+
+def _on_screen_rgb(widget):
+    """The widget as Qt paints it (``QWidget.grab``), ``(H, W, 3)`` uint8."""
+    shown = widget.grab().toImage().convertToFormat(widget.grab().toImage().Format.Format_RGBA8888)
+    h, wd = shown.height(), shown.width()
+    ptr = shown.constBits()
+    ptr.setsize(h * shown.bytesPerLine())
+    rows = np.frombuffer(ptr, np.uint8).reshape(h, shown.bytesPerLine())[:, :4 * wd]
+    return rows.reshape(h, wd, 4)[..., :3].copy()
+
+
+def _label_pixel_boxes(mv):
+    """Each map label's box in canvas pixels ``(K, 4)``: x0, y0, x1, y1 (two pixels of margin)."""
+    tr = mv.labels.get_transform("visual", "canvas")
+    pos, half = mv.label_positions, 0.5 * mv.label_sizes()
+    boxes = []
+    for p, hs in zip(pos, half):
+        corners = tr.map(np.array([p - hs, p + hs], float))[:, :2]
+        (x0, y0), (x1, y1) = corners.min(axis=0), corners.max(axis=0)
+        boxes.append((int(x0) - 2, int(y0) - 2, int(np.ceil(x1)) + 2, int(np.ceil(y1)) + 2))
+    return boxes
+
+
+def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qapp):
+    # Derived (alpha compositing, the "over" operator, Porter & Duff 1984 as in the OpenGL blend
+    # equation): a glyph of colour t and coverage a drawn over a pixel b gives c = a t + (1 - a) b
+    # per channel, the same a for all three.  (1) Over a frame cleared opaque the alpha stays
+    # a + (1 - a) 1 = 1, so the rendered frame is opaque everywhere.  (2) For a white label
+    # (t = 1) every channel satisfies (c - b) / (1 - b) = a: the text adds a grey level only, and
+    # a grey label on a grey background gives only grey levels (R == G == B).  (3) The pixels Qt
+    # paints on screen are the rendered ones.  Before this was fixed the map's labels lowered the
+    # frame's alpha to about 0.75 at their edges and Qt, taking it as premultiplied, painted purple,
+    # red, yellow and cyan fringes round them.
+    window.show()
+    _settle(qapp, 0.5)
+    st, mv = window.state, window.map_view
+    # a pose where B sits on a strong (red) part of the pattern, -B on the background
+    st.update(yaw_deg=30.0, pitch_deg=0.0, roll_deg=0.0, inclination_deg=66.0, declination_deg=3.0)
+    _settle(qapp, 0.3)
+    for view in (window.head_view, mv):
+        assert view.render()[..., 3].min() == 255, "the text lowered the frame's alpha"   # (1)
+    rendered = mv.render()[..., :3].astype(int)
+    on_screen = _on_screen_rgb(mv.canvas.native).astype(int)
+    mv.labels.visible = False
+    try:
+        behind = mv.render()[..., :3].astype(int)          # the same frame without the labels
+    finally:
+        mv.labels.visible = True
+    h, w = rendered.shape[:2]
+    white = [k for k, c in enumerate(mv._label_colours) if np.all(c[:3] == 1.0)]
+    assert [mv.label_texts[k] for k in white] == ["beak", "B", "-B"]
+    checked = 0
+    for k, (x0, y0, x1, y1) in enumerate(_label_pixel_boxes(mv)):
+        x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w), min(y1, h)
+        if x1 <= x0 or y1 <= y0:
+            continue
+        shown, drawn = on_screen[y0:y1, x0:x1], rendered[y0:y1, x0:x1]
+        assert np.abs(shown - drawn).max() <= 2, mv.label_texts[k]                       # (3)
+        if k not in white:
+            continue
+        b, c = behind[y0:y1, x0:x1], shown
+        text = np.abs(c - b).max(axis=-1) > 6             # pixels the glyph covers
+        room = (255 - b) >= 60                             # channels where a is well resolved
+        a = np.where(room, (c - b) / np.maximum(255 - b, 1), np.nan)
+        assert np.all(c[text] >= b[text] - 2), mv.label_texts[k]   # white only brightens
+        spread = np.nanmax(a, axis=-1) - np.nanmin(a, axis=-1)
+        assert np.nanmax(spread[text]) <= 0.06, mv.label_texts[k]  # (2): a grey level only
+        checked += int(text.sum())
+    assert checked > 40                                    # the labels were drawn and looked at
