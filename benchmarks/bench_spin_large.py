@@ -28,9 +28,13 @@ Rows
 5b. The sampling method on the invented *axial* 20-nucleus pair (two axial nitrogen tensors per
    radical dominate its anisotropy), run for real at degree 8 (not with ``--quick``): 55 Lebedev
    hemisphere directions, 8 check directions and 3 opposite ones (sampled once), 4 random states,
-   ``RETINA_JOBS`` workers; the wall time, the anisotropy of the fit and its standard error (the
+   ``RETINA_JOBS`` workers, each direction sampled with its opposite (the sampling module's
+   control variate); the wall time, the anisotropy of the fit and its standard error (the
    fitted maximum minus minimum is linear in the values, so its error follows from the per-draw
-   terms).  Target: <= 15 min and a standard error below 2 % of the anisotropy.
+   terms), the same with the field ``b`` alone from the same draws (no control), the control's
+   variance reduction, and the minutes 2 % would need with and without it (the standard error
+   falling as ``1 / sqrt(R)``, the time linear in ``R``).  Target: <= 15 min and a standard error
+   below 2 % of the anisotropy.
 6. The sampling noise of one radical's estimate at 20 nuclei (d = 4608) against 10 nuclei (d = 144),
    from the same short propagations: typicality predicts a ratio of sqrt(144 / 4608) = 0.18; the
    10-nucleus error of row 4 scaled by the measured ratio estimates the 20-nucleus error (labelled an

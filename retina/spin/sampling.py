@@ -66,8 +66,10 @@ exactly ``1/2`` when the two directions' estimates have equal variances (derived
 ``benchmarks/bench_spin_large.py`` (radicals 144 x 144, 55 directions of a degree-8 fit, 8 states):
 the in-sample optimum for the fitted maximum-minus-minimum was ``beta* = 0.502``; ``Y(b)`` and
 ``Y(-b)`` of that functional correlate at ``-0.83``, and the control cuts its variance 11.8-fold
-(the variance of single yields only 1.3-fold, median over directions), for twice the propagation:
-about a sixfold gain in cost per unit variance of the anisotropy.  Since ``D``'s expectation is zero
+(the variance of single yields only 1.3-fold, median over directions); a second, independent set
+of 18 states gave 3.0-fold (sample variances of few draws scatter widely).  For twice the
+propagation that is a gain of about 1.5 to 6 in cost per unit variance of the anisotropy, and
+nothing for single yields: the control serves the anisotropy.  Since ``D``'s expectation is zero
 for every direction, the same control acts on every value, hence on every fitted harmonic
 coefficient and every difference of directions alike.  The per-draw terms of ``Y_cv`` (the parts,
 above) are again independent over draws, so the standard error comes from the residual variance
@@ -103,7 +105,8 @@ eigendecomposition of the radical.  One expansion covers ``m`` grid steps (:func
 Chebyshev vectors ``T_n((H - c)/a) v`` are formed once, and the states at all the intermediate grid
 times are their combinations with the coefficients ``(2 - delta_n0) (-i)^n J_n(a tau)`` (two real
 matrix products; the phase ``exp(-i c tau)``, common to the whole block, cancels in every Gram
-matrix and is left out).  Directions that are each other's opposites are sampled once.  Groups of equivalent nuclei are reduced to
+matrix and is left out).  Directions that are each other's opposites share one estimate (with
+the control below it is formed from both).  Groups of equivalent nuclei are reduced to
 their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled with its multiplicity.
 
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
@@ -517,7 +520,7 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
     if control not in CONTROLS:
         raise InputError(f"expected a control among {', '.join(CONTROLS)}, got {control!r}", key="control")
-    # directions that share an upper-hemisphere representative (b and -b) are sampled once
+    # directions that share an upper-hemisphere representative (b and -b) share one estimate
     b_all, inverse = np.unique(_upper(dirs) * (float(field_uT) * 1e-6), axis=0, return_inverse=True)
     inverse = np.asarray(inverse).ravel()
     n_dir = b_all.shape[0]
