@@ -1,6 +1,6 @@
 """Large radical pairs (issue 12): the fast separable method beside the pair sum, and scaling.
 
-Run: ``python benchmarks/bench_spin_large.py [--check] [--quick] [--table-max N]``
+Run: ``python benchmarks/bench_spin_large.py [--check] [--quick] [--table-max N] [--only GROUP]``
 
 Rows
 ----
@@ -28,9 +28,13 @@ Rows
 5b. The sampling method on the invented *axial* 20-nucleus pair (two axial nitrogen tensors per
    radical dominate its anisotropy), run for real at degree 8 (not with ``--quick``): 55 Lebedev
    hemisphere directions, 8 check directions and 3 opposite ones (sampled once), 4 random states,
-   ``RETINA_JOBS`` workers; the wall time, the anisotropy of the fit and its standard error (the
+   ``RETINA_JOBS`` workers, each direction sampled with its opposite (the sampling module's
+   control variate); the wall time, the anisotropy of the fit and its standard error (the
    fitted maximum minus minimum is linear in the values, so its error follows from the per-draw
-   terms).  Target: <= 15 min and a standard error below 2 % of the anisotropy.
+   terms), the same with the field ``b`` alone from the same draws (no control), the control's
+   variance reduction, and the minutes 2 % would need with and without it (the standard error
+   falling as ``1 / sqrt(R)``, the time linear in ``R``).  Target: <= 15 min and a standard error
+   below 2 % of the anisotropy.
 6. The sampling noise of one radical's estimate at 20 nuclei (d = 4608) against 10 nuclei (d = 144),
    from the same short propagations: typicality predicts a ratio of sqrt(144 / 4608) = 0.18; the
    10-nucleus error of row 4 scaled by the measured ratio estimates the 20-nucleus error (labelled an
@@ -301,8 +305,17 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
         v = sphere.evaluate(fit(values), np.stack([p_hi, p_lo]))
         return v[0] - v[1]
 
-    var = sum(float(np.var([functional(row) for row in part], ddof=1)) / part.shape[0] for part in res.parts)
+    def variance(parts):
+        return sum(float(np.var([functional(row) for row in part], ddof=1)) / part.shape[0] for part in parts)
+
+    var = variance(res.parts)
     se_aniso = float(np.sqrt(var))
+    # the same draws without the control (the field b alone): the control's measured variance reduction
+    var_plain = variance(res.plain_parts) if res.plain_parts else float("nan")
+    reduction = var_plain / var
+    # states (and so time, linear in them) that 2 % would need, from SE ~ 1 / sqrt(R)
+    need = (se_aniso / (0.02 * aniso)) ** 2
+    need_plain = var_plain / (0.02 * aniso) ** 2 if res.plain_parts else float("nan")
     trunc = float(np.max(np.abs(sphere.evaluate(coeffs, check.points) - res.mean[h:h + n_check])))
     se_check = float(np.max(res.standard_error[h:h + n_check]))
     return [dict(
@@ -310,10 +323,15 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
         reference=f"{est / 60:.1f} min (est.)", ratio=f"{wall / est:.2f}", target="<= 15 min",
         passed=wall <= 900 and se_aniso < 0.02 * aniso,
         note=f"a real run: {len(dirs)} directions ({h} Lebedev hemisphere, {n_check} check, 3 antipodal; "
-             f"{n_unique} sampled), {n_states} random states per radical, {jobs} worker process(es), "
+             f"{n_unique} sampled, each with its opposite: {res.control} control), {n_states} random states per "
+             f"radical, {jobs} worker process(es), "
              f"{wall / n_unique * jobs:.1f} s per direction and worker; anisotropy {aniso:.3g} (mean "
              f"{res.mean.mean():.4f}), its standard error {se_aniso:.2g} = {100 * se_aniso / aniso:.2g} % "
-             f"(target < 2 %); SE per yield up to {np.max(res.standard_error):.2g}; bias bound "
+             f"(target < 2 %); without the control, from the same draws: {100 * np.sqrt(var_plain) / aniso:.2g} % "
+             f"(variance reduction {reduction:.1f} for twice the propagation); 2 % would need about "
+             f"{need * wall / 60:.0f} min with the control ({need * n_states:.0f} states) and "
+             f"{need_plain * wall / 120:.0f} min without it (time taken linear in the states); "
+             f"SE per yield up to {np.max(res.standard_error):.2g}; bias bound "
              f"{res.bias_bound:.1g}; check directions: largest |fit - value| {trunc:.2g} against SE "
              f"{se_check:.2g} (truncation and noise together); reference: the engine's estimate")]
 
@@ -373,20 +391,27 @@ def scaling_table(table_max: int) -> None:
           "estimates: the engine's cost model, 1 direction (sampled: 16 states)")
 
 
+_GROUPS = {"fast": bench_pair_sum_vs_fast, "fourteen": bench_fourteen, "sampled": bench_sampled,
+           "twenty": bench_sampled_twenty}
+
+
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--check", action="store_true", help="exit 1 when a target is missed")
     ap.add_argument("--quick", action="store_true", help="fewer directions (smoke test)")
     ap.add_argument("--table-max", type=int, default=None, help="largest number of nuclei run in the table")
+    ap.add_argument("--only", choices=tuple(_GROUPS) + ("table",), default=None,
+                    help="run one group of rows only (twenty: row 5b)")
     a = ap.parse_args(argv)
     # worker processes of the directions (fast exact and sampled rows): the cores, at most 2
     os.environ.setdefault("RETINA_JOBS", str(min(2, os.cpu_count() or 1)))
     missed = False
-    for group in (bench_pair_sum_vs_fast, bench_fourteen, bench_sampled,
-                  bench_sampled_twenty):  # each table as it is done
-        missed |= print_rows(group(a.quick))
-        sys.stdout.flush()
-    scaling_table(a.table_max if a.table_max is not None else (12 if a.quick else 16))
+    for name, group in _GROUPS.items():  # each table as it is done
+        if a.only in (None, name):
+            missed |= print_rows(group(a.quick))
+            sys.stdout.flush()
+    if a.only in (None, "table"):
+        scaling_table(a.table_max if a.table_max is not None else (12 if a.quick else 16))
     return 1 if (missed and a.check) else 0
 
 
