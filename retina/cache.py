@@ -61,6 +61,8 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         Number of independent check directions.
     accuracy : float, optional
         The sampled method's requested standard error per yield; enters the key only when given.
+        The sampled method's control variate (:data:`retina.spin.sampling.DEFAULT_CONTROL`) enters
+        the key too, so results of another estimator are never served from the cache.
 
     Returns
     -------
@@ -80,6 +82,9 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
     }
     if accuracy is not None:
         record["accuracy"] = repr(float(accuracy))
+    if method == "sampled":                  # the estimator's control changes the numbers it returns
+        from retina.spin.sampling import DEFAULT_CONTROL
+        record["sampling_control"] = DEFAULT_CONTROL
     return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
 
 

@@ -408,6 +408,18 @@ def test_engine_methods_give_the_same_yield_function(system):
         assert fits[m].provenance["method"] == m
 
 
+def test_cache_key_of_the_sampled_method_names_its_control_variate(monkeypatch, system):
+    # common practice, no source: a cache key covers everything that changes the stored numbers;
+    # the sampled estimator with and without its control variate returns different numbers.
+    from retina import cache
+    from retina.spin import sampling
+    key = cache.cache_key(system, 47.0, 8, "sampled", check_points=27)
+    exact = cache.cache_key(system, 47.0, 8, "eigen", check_points=27)
+    monkeypatch.setattr(sampling, "DEFAULT_CONTROL", "none")
+    assert cache.cache_key(system, 47.0, 8, "sampled", check_points=27) != key
+    assert cache.cache_key(system, 47.0, 8, "eigen", check_points=27) == exact
+
+
 def test_cache_folder_follows_retina_cache_then_xdg_cache_home(monkeypatch, tmp_path):
     # Source: XDG Base Directory Specification 0.8 ($XDG_CACHE_HOME, default $HOME/.cache; a
     # relative path in it is invalid and ignored).  RETINA_CACHE overrides both.
