@@ -57,8 +57,7 @@ _NO_DATA = np.array([0.22, 0.22, 0.25, 1.0])
 HALO_COLOUR = (0.0, 0.0, 0.0, 1.0)
 #: How far the halo reaches beyond each label's glyphs, canvas pixels.
 HALO_PX = 1.0
-_HALO_DIRECTIONS = np.array([(1, 0), (-1, 0), (0, 1), (0, -1), (1, 1), (1, -1), (-1, 1), (-1, -1)],
-                            float)
+_HALO_DIRECTIONS = np.array([(1, 1), (1, -1), (-1, 1), (-1, -1)], float)
 _POSE_EVENTS = ("yaw_deg", "pitch_deg", "roll_deg")
 _FIELD_EVENTS = ("inclination_deg", "declination_deg")
 _COLOUR_EVENTS = ("display", "eye", "lock_scale")
@@ -932,7 +931,7 @@ class MapView(_Subscriber):
         self.labels.color = self._label_colours
         # a dark halo behind every label, so that the green cardinals on the pale middle of the
         # pattern and the white beak, B and -B on near-white stay legible on any colour: the
-        # labels drawn again in the halo colour, shifted by HALO_PX pixels in eight directions,
+        # labels drawn again in the halo colour, shifted by HALO_PX pixels along the four diagonals,
         # all in one Text visual (one draw call) under the labels
         self.halo = scene.visuals.Text(color=HALO_COLOUR, font_size=8, parent=root,
                                        anchor_x="center", anchor_y="center")

@@ -1011,6 +1011,15 @@ def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
     assert mv.cbar_view.camera.rect == before[1]
     d0, d1 = before[0], mv.xaxis.axis.domain
     assert (d1[1] - d1[0]) == pytest.approx(0.25 * (d0[1] - d0[0]), rel=1e-3)
+    # the labels' halo stays HALO_PX canvas pixels round each label at any zoom (the labels are
+    # drawn at a fixed size in pixels; derived: each copy is the label shifted by HALO_PX along a
+    # diagonal, mapped through the same transform)
+    from retina_viewer.views import HALO_PX
+    tr = mv.labels.get_transform("visual", "canvas")
+    lab = tr.map(np.asarray(mv.label_positions, float))[:, :2]
+    halo = tr.map(np.asarray(mv.halo.pos, float))[:, :2].reshape(-1, len(lab), 2)
+    assert len(halo) >= 4
+    np.testing.assert_allclose(np.abs(halo - lab[None]), HALO_PX, atol=0.02)
 
 
 def test_receptor_under_the_cursor(window):
