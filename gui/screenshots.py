@@ -13,7 +13,8 @@ saves, atomically:
   facing north, where heading and heading + 180 deg give one pattern;
 - ``viewer-locked-scale.png``: the colour scale locked at heading 0, then kappa lowered to 2;
 - with ``--rf`` also ``viewer-rf.png``: RF on, a 1.2 MHz, 500 nT tone perpendicular to the field
-  (minutes of computing for the demo pair on a small machine).
+  (minutes of computing for the demo pair on a small machine, unless the RF cache has it), the
+  side panel scrolled down to the RF box.
 
 Without a screen it starts its own Xvfb server (:mod:`retina_viewer.display`).  An existing file is
 replaced only with ``--force``.
@@ -108,6 +109,25 @@ def make_screenshots(out_dir, *, force: bool = False, rf: bool = False,
         shot("viewer-head.png", view="head")
         shot("viewer-map.png", view="map")
 
+        if rf:
+            st.update(rf_MHz=1.2, rf_nT=500.0, rf_direction="perpendicular", rf="tone")
+            end = time.monotonic() + 1800.0
+            while time.monotonic() < end:
+                res = st.result
+                if res is not None and res.request.rf is not None:
+                    break
+                _pump(app, 0.2)
+            else:
+                raise TimeoutError("the RF pattern was not computed in time")
+            _wait_drawn(app, win)
+            bar = win.side_scroll.verticalScrollBar()
+            bar.setValue(bar.maximum())       # the RF box, at the bottom of the side panel
+            _pump(app, 0.3)
+            shot("viewer-rf.png")
+            bar.setValue(0)
+            st.update(rf="off")
+
+
         st.update(yaw_deg=300.0, scan_amplitude_deg=60.0, scan_steps=9, scan_repeats=1,
                   scan_speed_deg_s=240.0)
         _wait_drawn(app, win)
@@ -135,18 +155,6 @@ def make_screenshots(out_dir, *, force: bool = False, rf: bool = False,
         _wait_drawn(app, win)
         shot("viewer-locked-scale.png")
 
-        if rf:
-            st.update(lock_scale=False, kappa=None, yaw_deg=30.0)
-            _wait_drawn(app, win)
-            st.update(rf_MHz=1.2, rf_nT=500.0, rf_direction="perpendicular", rf="tone")
-            end = time.monotonic() + 1800.0
-            while time.monotonic() < end:
-                res = st.result
-                if res is not None and res.request.rf is not None:
-                    break
-                _pump(app, 0.2)
-            _wait_drawn(app, win)
-            shot("viewer-rf.png")
     finally:
         win.close()
         app.processEvents()
