@@ -1900,3 +1900,14 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
         checked += int(text.sum())
     assert checked > 40                                    # the labels were drawn and looked at
     assert halo_checked > 100                              # and their halo
+
+
+def test_screenshot_script_refuses_a_missing_folder(tmp_path, capsys):
+    # Contract of the project's bad-input rule (common practice, no source): one line naming the
+    # folder and what was expected, exit status 2.
+    from retina_viewer import screenshots
+
+    missing = tmp_path / "nope"
+    assert screenshots.main([str(missing)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and str(missing) in err and "expected an existing folder" in err
