@@ -53,6 +53,11 @@ MAP_RANGE = ((-180.0, 180.0), (-90.0, 90.0))
 _BG = (0.12, 0.12, 0.14, 1.0)
 _HIDDEN = np.array([0.55, 0.55, 0.55, 0.18])
 _NO_DATA = np.array([0.22, 0.22, 0.25, 1.0])
+#: Colour of the dark halo behind the map's labels (RGBA).
+HALO_COLOUR = (0.0, 0.0, 0.0, 1.0)
+#: How far the halo reaches beyond each label's glyphs, canvas pixels.
+HALO_PX = 1.0
+_HALO_DIRECTIONS = np.array([(1, 1), (1, -1), (-1, 1), (-1, -1)], float)
 _POSE_EVENTS = ("yaw_deg", "pitch_deg", "roll_deg")
 _FIELD_EVENTS = ("inclination_deg", "declination_deg")
 _COLOUR_EVENTS = ("display", "eye", "lock_scale")
@@ -924,6 +929,15 @@ class MapView(_Subscriber):
         self._label_colours = np.array([(0.3, 0.95, 0.4, 1.0)] * 4 + [(1.0, 1.0, 1.0, 1.0)] * 3)
         self.labels.text = self.label_texts   # set once: only the positions follow the pose
         self.labels.color = self._label_colours
+        # a dark halo behind every label, so that the green cardinals on the pale middle of the
+        # pattern and the white beak, B and -B on near-white stay legible on any colour: the
+        # labels drawn again in the halo colour, shifted by HALO_PX pixels along the four diagonals,
+        # all in one Text visual (one draw call) under the labels
+        self.halo = scene.visuals.Text(color=HALO_COLOUR, font_size=8, parent=root,
+                                       anchor_x="center", anchor_y="center")
+        self.halo.text = self.label_texts * len(_HALO_DIRECTIONS)
+        self.halo.color = np.tile(HALO_COLOUR, (len(self.halo.text), 1))
+        self._halo_key = None
         # colour bar in its own fixed view
         self._ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
         self.cbar = scene.visuals.Image(np.zeros((2, 256, 4), np.float32), interpolation="linear",
@@ -936,8 +950,9 @@ class MapView(_Subscriber):
         for node in (self.edges, self.horizon, self.point_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
-        self.labels.order = 11
-        _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
+        self.halo.order = 11
+        self.labels.order = 12
+        _share_fonts([self.halo, self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
                                                        for v in (ax.axis._text, ax.axis._axis_label_vis)])
         # the axes and the colour bar's ramp change only with the zoom, the size or the display:
         # drawn once and kept as pixels (retina_viewer.canvas.StaticLayer); per frame only the
@@ -950,6 +965,7 @@ class MapView(_Subscriber):
         self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
+        self.view.scene.events.transform_change.connect(self._place_halo)
         self._subscribe_pose(state, follow)
         self._show_pose(*self._pose_of(None), draw=False)
         self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_image())
@@ -966,7 +982,10 @@ class MapView(_Subscriber):
 
     def _after_draw(self, event=None):
         """After the first draw at a new size (the grid has laid its widgets out during it): map
-        the axes' ends again and draw once more with the new ticks."""
+        the axes' ends again and draw once more with the new ticks.  The labels' halo is placed
+        again if the view's pixels per degree changed (a resize: the grid lays out while drawing),
+        which draws once more as well."""
+        self._place_halo()
         if not self._axes_stale:
             return
         self._axes_stale = False
@@ -1041,8 +1060,32 @@ class MapView(_Subscriber):
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
                                              gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
         self.labels.pos = self.label_positions
+        self._place_halo()
         if draw:
             self.canvas.update()
+
+    def _place_halo(self, event=None) -> None:
+        """Put the halo's copies of the labels :data:`HALO_PX` canvas pixels around each label.
+
+        The labels are placed in map degrees and drawn at a fixed size in pixels, so the shift in
+        degrees follows the zoom and the view's size: this runs when the labels move and when the
+        map's scene transform changes (pan, zoom, resize), and sets the positions only when they
+        differ.
+        """
+        if self.label_positions is None:
+            return
+        tr = self.labels.get_transform("visual", "canvas")
+        o, ex, ey = tr.map(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]))[:, :2]
+        px_x, px_y = abs(ex[0] - o[0]), abs(ey[1] - o[1])     # pixels per map degree
+        if not (np.isfinite(px_x) and np.isfinite(px_y) and px_x > 0 and px_y > 0):
+            return
+        key = (round(px_x, 6), round(px_y, 6), np.asarray(self.label_positions).tobytes())
+        if key == self._halo_key:
+            return
+        self._halo_key = key
+        shift = _HALO_DIRECTIONS * HALO_PX / np.array([px_x, px_y])   # (8, 2) map degrees
+        pos = np.asarray(self.label_positions, float)
+        self.halo.pos = (pos[None, :, :] + shift[:, None, :]).reshape(-1, 2).astype(np.float32)
 
     def label_sizes(self) -> np.ndarray:
         """The boxes of the map's labels: 7 x 13 pixels per character (8 pt text) at the

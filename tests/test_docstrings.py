@@ -56,8 +56,8 @@ that work lands."""
 
 GUI_CHECKED = ["retina_viewer", "retina_viewer.__main__", "retina_viewer.canvas",
                "retina_viewer.display", "retina_viewer.glyphs", "retina_viewer.panels",
-               "retina_viewer.state", "retina_viewer.views", "retina_viewer.window",
-               "retina_viewer.workers"]
+               "retina_viewer.screenshots", "retina_viewer.state", "retina_viewer.views",
+               "retina_viewer.window", "retina_viewer.workers"]
 """The viewer's modules (every ``gui/*.py``; a test checks)."""
 
 GUI_DIR = Path(__file__).resolve().parent.parent / "gui"

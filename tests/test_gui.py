@@ -1011,6 +1011,15 @@ def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
     assert mv.cbar_view.camera.rect == before[1]
     d0, d1 = before[0], mv.xaxis.axis.domain
     assert (d1[1] - d1[0]) == pytest.approx(0.25 * (d0[1] - d0[0]), rel=1e-3)
+    # the labels' halo stays HALO_PX canvas pixels round each label at any zoom (the labels are
+    # drawn at a fixed size in pixels; derived: each copy is the label shifted by HALO_PX along a
+    # diagonal, mapped through the same transform)
+    from retina_viewer.views import HALO_PX
+    tr = mv.labels.get_transform("visual", "canvas")
+    lab = tr.map(np.asarray(mv.label_positions, float))[:, :2]
+    halo = tr.map(np.asarray(mv.halo.pos, float))[:, :2].reshape(-1, len(lab), 2)
+    assert len(halo) >= 4
+    np.testing.assert_allclose(np.abs(halo - lab[None]), HALO_PX, atol=0.02)
 
 
 def test_receptor_under_the_cursor(window):
@@ -1833,7 +1842,10 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
     # a grey label on a grey background gives only grey levels (R == G == B).  (3) The pixels Qt
     # paints on screen are the rendered ones.  Before this was fixed the map's labels lowered the
     # frame's alpha to about 0.75 at their edges and Qt, taking it as premultiplied, painted purple,
-    # red, yellow and cyan fringes round them.
+    # red, yellow and cyan fringes round them.  (4) The labels' halo is black (h = 0) drawn the
+    # same way, several times over: each pass gives c = (1 - a) b, so together they give
+    # b' = (1 - A) b with one A for all three channels; b' / b is the same in every channel
+    # (a black halo darkens, never tints), and (2) then holds for the labels over b'.
     window.show()
     _settle(qapp, 0.5)
     st, mv = window.state, window.map_view
@@ -1844,21 +1856,38 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
         assert view.render()[..., 3].min() == 255, "the text lowered the frame's alpha"   # (1)
     rendered = mv.render()[..., :3].astype(int)
     on_screen = _on_screen_rgb(mv.canvas.native).astype(int)
+    assert np.all(mv.halo.color.rgba == (0.0, 0.0, 0.0, 1.0))   # (4) assumes a black halo
     mv.labels.visible = False
     try:
         behind = mv.render()[..., :3].astype(int)          # the same frame without the labels
+        mv.halo.visible = False
+        try:
+            bare = mv.render()[..., :3].astype(int)        # ... and without their halo
+        finally:
+            mv.halo.visible = True
     finally:
         mv.labels.visible = True
     h, w = rendered.shape[:2]
     white = [k for k, c in enumerate(mv._label_colours) if np.all(c[:3] == 1.0)]
     assert [mv.label_texts[k] for k in white] == ["beak", "B", "-B"]
-    checked = 0
+    checked = halo_checked = 0
     for k, (x0, y0, x1, y1) in enumerate(_label_pixel_boxes(mv)):
         x0, y0, x1, y1 = max(x0, 0), max(y0, 0), min(x1, w), min(y1, h)
         if x1 <= x0 or y1 <= y0:
             continue
         shown, drawn = on_screen[y0:y1, x0:x1], rendered[y0:y1, x0:x1]
         assert np.abs(shown - drawn).max() <= 2, mv.label_texts[k]                       # (3)
+        b0, b1 = bare[y0:y1, x0:x1], behind[y0:y1, x0:x1]
+        dark = np.abs(b1 - b0).max(axis=-1) > 6            # pixels the halo covers
+        assert dark.sum() > 5, mv.label_texts[k]           # the halo was drawn here
+        assert np.all(b1 <= b0 + 2), mv.label_texts[k]     # (4) black only darkens
+        lit = b0 >= 60                                     # channels where the ratio is resolved
+        ratio = np.where(lit, b1 / np.maximum(b0, 1), np.nan)
+        rspread = np.nanmax(ratio, axis=-1) - np.nanmin(ratio, axis=-1)
+        sel = dark & (lit.sum(axis=-1) >= 2)               # on the pattern, not the dark ground
+        if sel.any():
+            assert np.nanmax(rspread[sel]) <= 0.06, mv.label_texts[k]
+        halo_checked += int(sel.sum())
         if k not in white:
             continue
         b, c = behind[y0:y1, x0:x1], shown
@@ -1870,3 +1899,15 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
         assert np.nanmax(spread[text]) <= 0.06, mv.label_texts[k]  # (2): a grey level only
         checked += int(text.sum())
     assert checked > 40                                    # the labels were drawn and looked at
+    assert halo_checked > 100                              # and their halo
+
+
+def test_screenshot_script_refuses_a_missing_folder(tmp_path, capsys):
+    # Contract of the project's bad-input rule (common practice, no source): one line naming the
+    # folder and what was expected, exit status 2.
+    from retina_viewer import screenshots
+
+    missing = tmp_path / "nope"
+    assert screenshots.main([str(missing)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.count("\n") == 0 and str(missing) in err and "expected an existing folder" in err
