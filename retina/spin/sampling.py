@@ -227,10 +227,14 @@ class SampledYields:
         Parameters
         ----------
         weights : array_like (N,)
+            One weight per direction of this result (``+1, -1`` for the difference of two).
 
         Returns
         -------
         float
+            The standard error from the spread of the independent per-draw terms (their sample
+            variance over the draws divided by the number of draws, summed over the parts), after
+            the control variate when one was used.
         """
         return math.sqrt(self._variance(self.parts, weights))
 
