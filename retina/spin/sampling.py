@@ -49,7 +49,7 @@ terms (``parts``), from which the standard error of any linear functional (a dif
 anisotropic part, a harmonic coefficient) follows.
 
 Control variate: the opposite direction (the default, ``control="opposite"``)
-----------------------------------------------------------------------------
+-----------------------------------------------------------------------------
 The exact yield is even, ``Phi(b) = Phi(-b)``, but one draw's estimate ``Y(b)`` is not: time
 reversal maps it to the estimate for ``-b`` at negative times, which the method never forms, so
 its error has a part odd in ``b``.  That part, to first order in the weak field, is of the order of
