@@ -244,8 +244,6 @@ def save_figure(fig: Figure, stem: str | Path, formats: Sequence[str] = ("png", 
         target = stem.parent / f"{stem.name}.{fmt}"
         with atomic_path(target, force=force) as tmp:
             if fmt == "png" and png is not None:
-                import matplotlib.image
-
                 if png.shape[2] == 4 and np.all(png[..., 3] == 255):
                     png = png[..., :3]           # opaque: RGB, a quarter fewer bytes to compress
                 _save_png(tmp, png, dpi, meta)

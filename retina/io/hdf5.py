@@ -255,8 +255,6 @@ def read_yield_function(path: str | Path) -> YieldRecord:
 def _load(path: Path):
     import h5py
 
-    from retina import sphere
-
     try:
         f = h5py.File(path, "r")
     except OSError:

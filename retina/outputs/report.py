@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import html
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Sequence
 
