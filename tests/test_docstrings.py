@@ -22,7 +22,7 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.stages.scan", "retina.stages.precision", "retina.stages.disorder", "retina.stages.trials",
            "retina.results", "retina.outputs", "retina.outputs.figures", "retina.outputs.text",
            "retina.outputs.report", "retina.progress", "retina.data", "retina.commands._common",
-           "retina.spin.memory", "retina.sweep.schema", "retina.sweep.outputs", "retina.sweep.run",
+           "retina.spin.memory", "retina.sweep.schema", "retina.sweep.points", "retina.sweep.outputs", "retina.sweep.run",
            "retina.sweep.store", "retina.sweep.figures", "retina.outputs.export", "retina.sphere.harmonics",
            "retina.sphere.grids", "retina.sphere.rotation", "retina.sphere.zonal",
            "retina.readout.circstats", "retina.readout.fisher", "retina.spin.operators", "retina.spin._rf_common",

@@ -13,7 +13,7 @@ from retina.cli import main
 from retina.errors import InputError
 from retina.sweep import load, load_sweep, run_sweep
 from retina.sweep.run import plan_sweep
-from retina.sweep.schema import expand, point_seed
+from retina.sweep.points import expand, point_seed
 
 ASSETS = Path(__file__).resolve().parent.parent / "assets"
 

@@ -1,7 +1,8 @@
 """Parameter sweeps: many scenarios from one base, run on all cores or a Dask cluster, collected
 into one labelled dataset.
 
-- :mod:`retina.sweep.schema` - the sweep file (``SWEEP.toml``) and its points;
+- :mod:`retina.sweep.schema` - the sweep file (``SWEEP.toml``): its schema and validation;
+- :mod:`retina.sweep.points` - its points (keys applied to the base scenario) and their seeds;
 - :mod:`retina.sweep.outputs` - what can be collected from each point;
 - :mod:`retina.sweep.run` - planning (one yield function per group of points) and execution;
 - :mod:`retina.sweep.store` - the dataset and its netCDF file (:func:`load`);

@@ -2,7 +2,7 @@
 
 How the work is split
 ---------------------
-1. :func:`plan_sweep` expands the sweep file into points (:func:`retina.sweep.schema.expand`) and
+1. :func:`plan_sweep` expands the sweep file into points (:func:`retina.sweep.points.expand`) and
    groups them by their *yield function*: points whose scenarios name the same spin system (its
    canonical text), field strength, degree and engine method share one yield function (the key
    of :func:`retina.cache.cache_key`); a loaded or imported yield function is keyed by the file's
@@ -17,7 +17,7 @@ How the work is split
 
 Numbers that do not depend on the workers
 -----------------------------------------
-Every point has its own seed (:func:`retina.sweep.schema.point_seed`: the point's child of the
+Every point has its own seed (:func:`retina.sweep.points.point_seed`: the point's child of the
 sweep's ``SeedSequence``), and every task runs with one BLAS thread and one numba thread
 (:func:`single_threaded`), in the client as in the workers, so the summation order of matrix
 products is the same everywhere.  One worker, two workers and a Dask cluster therefore give the
@@ -52,7 +52,8 @@ import numpy as np
 
 from retina.errors import InputError
 from retina.sweep.outputs import OUTPUTS, extract, output_coords, stages_for
-from retina.sweep.schema import Point, SweepSpec, expand
+from retina.sweep.points import Point, expand
+from retina.sweep.schema import SweepSpec
 
 __all__ = ["Plan", "plan_sweep", "run_sweep", "SweepOutcome", "single_threaded", "yield_key",
            "evaluate_batch", "compute_yield"]
