@@ -3,7 +3,8 @@
 Conventions (owned here)
 ------------------------
 - Each of ``n_birds`` birds starts facing a heading ``h_b`` (uniformly random by default, seeded),
-  collects Poisson counts there (or over a head scan about it), and decodes a heading estimate
+  collects Poisson counts there (or over a head scan about it; drawn by
+  ``retina.signal.noise.sample_counts_split``, the Poisson law, dim rows walked), and decodes a heading estimate
   ``psi_b`` (``retina.readout.decode``).  Intending to fly toward the goal direction ``goal_deg``
   (clockwise from north), it turns by ``goal - psi_b`` and so departs in
 
@@ -23,12 +24,13 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 
 from retina.errors import InputError
 from retina.readout import circstats
 from retina.readout.decode import HeadingDecoder
-from retina.signal.noise import make_rng, sample_counts
+from retina.signal.noise import make_rng, sample_counts_split
 
 __all__ = ["TrialResult", "simulate_trials"]
 
@@ -124,13 +126,14 @@ def simulate_trials(truth, decoder: HeadingDecoder, n_birds: int, *, goal_deg: f
         start = np.asarray(start_deg, dtype=float).ravel()
         if start.shape != (n,):
             raise InputError(f"expected {n} starting headings, got {start.shape}", key="trials.start_deg")
+    threads = numba.get_num_threads()     # 1 inside a sweep's task (retina.sweep.run.single_threaded)
     if scan_offsets_deg is None:
         lam = truth.expected(start)                                   # (n, N)
-        res = decoder.decode(sample_counts(lam, g))
+        res = decoder.decode(sample_counts_split(lam, g, threads=threads))
     else:
         off = np.atleast_1d(np.asarray(scan_offsets_deg, dtype=float))
         lam = truth.expected((start[:, None] + off[None, :]).ravel()).reshape(n, off.size, -1)
-        res = decoder.decode_scan(sample_counts(lam / off.size, g), off)
+        res = decoder.decode_scan(sample_counts_split(lam / off.size, g, threads=threads), off)
     decoded = res.heading_deg.copy()
     amb = res.ambiguous.copy()
     flip = amb & (g.random(n) < 0.5) & np.isfinite(res.second_deg)
