@@ -445,7 +445,8 @@ def _trial_r(sc, built, coeffs, degree: int, light: str) -> float:
     mk = GridModel(signal_model(sc, model, built.field, pitch=sc["scan"]["pitch_deg"]), model.degree, gain)
     ph = float(sc["light"]["photons"][list(sc["light"]["names"]).index(light)])
     r = simulate_trials(mk.truth(ph), mk.decoder(ph), tr["n_trials"], goal_deg=tr["goal_deg"],
-                        scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{light}"))
+                        scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{light}"),
+                        sampler="direct")   # common random numbers: the control and the swept field, one seed
     return float(r.rayleigh.r)
 
 
