@@ -95,6 +95,7 @@ def _demo(tree: Path, out: Path, cache: Path) -> dict:
     env = dict(os.environ, RETINA_CACHE=str(cache), BENCH_DEMO_TREE=str(tree))
     if out.exists():
         shutil.rmtree(out)
+    load = os.getloadavg()[0]
     c0, t0 = _children_cpu(), time.perf_counter()
     p = subprocess.run([sys.executable, "-c", _DRIVER, str(out)], env=env, cwd=out.parent,
                        capture_output=True, text=True)
@@ -104,7 +105,7 @@ def _demo(tree: Path, out: Path, cache: Path) -> dict:
     t = _parse(p.stderr)
     # user + system CPU of the demo process and every process it started and reaped (the figure
     # workers), start-up and imports included; and the wall time with start-up
-    t["total_cpu"], t["elapsed"] = total_cpu, elapsed
+    t["total_cpu"], t["elapsed"], t["load"] = total_cpu, elapsed, load
     return t
 
 
@@ -139,6 +140,7 @@ def main(argv=None) -> int:
                     help="copy the two demo folders (demo-old, demo-new) into DIR, to compare their results")
     a = ap.parse_args(argv)
     sys.path.insert(0, str(HERE))
+    sys.path.insert(0, str(ROOT))      # this checkout, never an installed (or another editable) copy
     from _rows import print_rows
 
     rows = []
@@ -149,6 +151,8 @@ def main(argv=None) -> int:
         import numpy as np
         from threadpoolctl import threadpool_limits
 
+        import retina
+        assert Path(retina.__file__).resolve().is_relative_to(ROOT), retina.__file__
         from retina.build import build_all
         from retina.scenario import load_scenario
         from retina.signal.noise import sample_counts_split
@@ -222,7 +226,10 @@ def main(argv=None) -> int:
                                  f"each; CPU of all its processes (figure workers included, start-up included) "
                                  f"{best['new']['total_cpu']:.1f} s new, {best['old']['total_cpu']:.1f} s old; user CPU "
                                  f"of the main process {best['new']['cpu']:.1f} s new, {best['old']['cpu']:.1f} s old; "
-                                 f"wall with start-up {best['new']['elapsed']:.1f} s new, {best['old']['elapsed']:.1f} s old"})
+                                 f"wall with start-up {best['new']['elapsed']:.1f} s new, {best['old']['elapsed']:.1f} s old; "
+                                 "all four runs (old, new, old, new): "
+                                 + ", ".join(f"{r['wall']:.1f} s at load {r['load']:.1f}" for pair in
+                                             zip(runs["old"], runs["new"]) for r in pair)})
             keys = ["build", "patterns", "scan", "precision", "disorder", "order", "trials", "rf", "rf_sweep", "figures"]
             for k in keys:
                 rows.append({"name": f"  stage {k}", "measured": f"{best['new'].get(k, float('nan')):.1f} s",
@@ -240,7 +247,8 @@ def main(argv=None) -> int:
                              "note": f"build (yield function of the demo pair) {cold['new'].get('build', float('nan')):.1f} s "
                                      f"new, {cold['old'].get('build', float('nan')):.1f} s old; CPU of all processes "
                                      f"{cold['new']['total_cpu']:.1f} s new, {cold['old']['total_cpu']:.1f} s old; "
-                                     "numba caches warm"})
+                                     f"numba caches warm; load {cold['old']['load']:.1f} and "
+                                     f"{cold['new']['load']:.1f} at their starts"})
         elif not a.quick:
             rows.append({"name": "retina demo, end to end", "measured": "-", "reference": "-", "ratio": "",
                          "target": f"<= {TARGET_S:g} s", "passed": True,

@@ -103,7 +103,9 @@ def test_restrained_in_one_keeps_a_compass_isotropic_does_not(quadrupole_x):
 
 def test_progress_and_counts(quadrupole_x):
     sc, _, out, calls = quadrupole_x
-    assert calls[-1] == (n_steps(sc), n_steps(sc)) and len(calls) == n_steps(sc) == 4 + 6 * 4
+    # every model is evaluated at once, block by block of receptors: progress in models' worth, rising
+    assert calls[-1] == (n_steps(sc), n_steps(sc)) and n_steps(sc) == 4 + 6 * 4
+    assert all(a[0] <= b[0] and a[1] == n_steps(sc) for a, b in zip(calls, calls[1:]))
     assert out["class_order"].split(",") == ["aligned", "restrained_two", "restrained_one", "isotropic"]
     assert out["curves"]["plane_free"]["bound_deg"].shape == (2, 4)
 

@@ -78,3 +78,15 @@ def test_bad_input():
         trials.simulate_trials(sig, dec, 3, start_deg=[1.0, 2.0])
     with pytest.raises(InputError, match="multiples"):
         trials.simulate_trials(sig, dec, 3, scan_offsets_deg=[0.0, 5.0])
+    with pytest.raises(InputError, match="sampler"):
+        trials.simulate_trials(sig, dec, 3, sampler="plain")
+
+
+def test_direct_and_walked_samplers_orient_alike():
+    # Both samplers draw the Poisson law (tests/test_sample_split.py); here the whole experiment:
+    # a good compass orients the group either way (derived as in the first test: r > 0.99).
+    sig = synthetic_signal(n=30, photons=2e4, seed=1)
+    dec = decode.HeadingDecoder.from_signal(sig, 360)
+    for sampler in ("direct", "walked"):
+        res = trials.simulate_trials(sig, dec, 40, goal_deg=225.0, rng=3, sampler=sampler)
+        assert res.rayleigh.r > 0.99

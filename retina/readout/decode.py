@@ -177,8 +177,9 @@ class HeadingDecoder:
             raise InputError(f"expected ambiguity_ratio > 1, got {ambiguity_ratio}", key="ambiguity_ratio")
         self.headings_deg = h
         self.step_deg = step
-        self.lam = lam
-        self.dlam = None if dlam is None else np.asarray(dlam, dtype=float)
+        self._lam = lam
+        self._dlam = None if dlam is None else np.asarray(dlam, dtype=float)
+        self._scale_of = None                # (decoder, factor) of a scaled decoder: lam, dlam on demand
         self.gain = gain
         self.refine = refine
         self.forward = forward
@@ -223,8 +224,8 @@ class HeadingDecoder:
         if self.refine == "brent":
             raise InputError("a scaled decoder cannot refine with brent (no forward model)", key="decoder.scale")
         new = copy.copy(self)
-        new.lam = f * self.lam
-        new.dlam = None if self.dlam is None else f * self.dlam
+        new._lam = new._dlam = None          # f * lam and f * dlam only when asked for (decoding needs neither)
+        new._scale_of = (self, f)
         new.forward = None
         new._loglam_T = np.maximum(self._loglam_T + np.log(f), np.log(_TINY))
         new._lam_tot = f * self._lam_tot
@@ -232,9 +233,25 @@ class HeadingDecoder:
         return new
 
     @property
+    def lam(self) -> np.ndarray:
+        """Expected counts at the grid headings, ``(G, N)``."""
+        if self._lam is None:
+            parent, f = self._scale_of
+            self._lam = f * parent.lam
+        return self._lam
+
+    @property
+    def dlam(self) -> np.ndarray | None:
+        """Their heading derivatives, per radian, ``(G, N)`` (None when not given)."""
+        if self._dlam is None and self._scale_of is not None and self._dlam_tot is not None:
+            parent, f = self._scale_of
+            self._dlam = f * parent.dlam
+        return self._dlam
+
+    @property
     def n_receptors(self) -> int:
         """The number ``N`` of receptors the decoder reads."""
-        return self.lam.shape[1]
+        return self._loglam_T.shape[0]
 
     @classmethod
     def from_signal(cls, signal, n_grid: int = 360, *, gain: str = "known", refine: str | None = None,
@@ -503,7 +520,7 @@ class HeadingDecoder:
     def _hermite(self, c, ll, j1, off_deg):
         """Maximum of the cubic Hermite interpolant of the log-likelihood on the grid cell that
         holds the peak, from grid values and analytic grid derivatives (module docstring)."""
-        G, N = self.lam.shape
+        G, N = self._ratio.shape
         h = np.deg2rad(self.step_deg)
         S = c.shape[0]
         rows = np.arange(S)

@@ -39,7 +39,7 @@ from retina.eye.pose import head_field, head_field_dyaw
 from retina.signal.light import HorizonSky, SceneTexture, UniformSky, light_level
 
 __all__ = ["make_rng", "expected_counts", "sample_counts", "sample_counts_split", "SPLIT_MEAN", "SignalModel", "field_direction",
-           "field_direction_dincl", "trig_interp_matrix"]
+           "field_direction_dincl", "trig_interp_matrix", "trig_derivative_matrix", "responses_at"]
 
 # Bytes of scratch memory per chunk of poses for (P, N, 3) gradient arrays.
 _CHUNK_BYTES = 64 * 2**20
@@ -308,7 +308,7 @@ class SignalModel:
     receptors : optional
         Overrides ``retina.receptors``.
 
-    Immutable: use ``dataclasses.replace(model, photons=...)`` for a variant.
+    Immutable: use :meth:`replace` (or ``dataclasses.replace``) for a variant.
     """
 
     retina: Any
@@ -340,6 +340,37 @@ class SignalModel:
         if self.texture is not None and not isinstance(self.texture, SceneTexture):
             raise InputError("expected a SceneTexture or None", key="light.texture")
         object.__setattr__(self, "_unit_catch_head", None)
+
+    #: Fields the photon catch at one photon per receptor depends on (:meth:`replace` keeps it
+    #: when none of them changes).
+    _CATCH_FIELDS = ("sky", "texture", "pitch_deg", "roll_deg", "receptors")
+
+    def replace(self, **changes) -> "SignalModel":
+        """A copy with some fields changed (as ``dataclasses.replace``), sharing the photon catch.
+
+        The catch at one photon per receptor depends on the receptors, sky, texture, pitch and
+        roll only (:meth:`catch`), so a variant with another retina model (of the same
+        receptors), light level, gain or field reuses it instead of computing it again.
+
+        Parameters
+        ----------
+        **changes
+            Field values, as for ``dataclasses.replace``; ``retina`` without ``receptors`` keeps
+            this model's receptors when the new retina has the same ones.
+
+        Returns
+        -------
+        SignalModel
+        """
+        import dataclasses
+
+        if "retina" in changes and "receptors" not in changes and \
+                getattr(changes["retina"], "receptors", None) is self.receptors:
+            changes["receptors"] = self.receptors
+        new = dataclasses.replace(self, **changes)
+        if all(getattr(new, f) is getattr(self, f) for f in self._CATCH_FIELDS):
+            object.__setattr__(new, "_unit_catch_head", self._unit_catch_head)
+        return new
 
     # -- geometry ---------------------------------------------------------------------------------
     @property
@@ -445,7 +476,8 @@ class SignalModel:
         lam : ndarray, shape (P, N)
         dlam : ndarray, shape (P, N)
         """
-        return self.expected_and_derivative_at(self.rotations(headings_deg), wrt=wrt)
+        h = np.atleast_1d(np.asarray(headings_deg, dtype=float))
+        return self._expected_and_derivative(self.rotations(h), wrt, heading_path=True)
 
     def expected_at(self, rotations: Rotation) -> np.ndarray:
         """Expected counts for arbitrary head-to-world rotations (e.g. a head scan).
@@ -494,6 +526,11 @@ class SignalModel:
         InputError
             Key ``light.texture`` with a world-fixed texture; key ``wrt`` for another parameter.
         """
+        return self._expected_and_derivative(rotations, wrt, heading_path=False)
+
+    def _expected_and_derivative(self, rotations: Rotation, wrt: str, *, heading_path: bool):
+        """:meth:`expected_and_derivative_at`; ``heading_path``: the rotations differ in yaw only
+        (the model's pitch and roll), so every pose has the catch of :meth:`catch`, computed once."""
         if self.texture is not None and self.texture.attached == "world":
             raise InputError("derivatives with a world-fixed texture are not defined (it would add a "
                              "visual heading cue); use a head-fixed texture or none", key="light.texture")
@@ -516,7 +553,7 @@ class SignalModel:
             g = np.asarray(g, dtype=float).reshape(len(rot), N, 3)
             # Catch: yaw- and inclination-independent (sky depends on elevation only, texture is
             # head-fixed or absent), but pitch and roll may vary between poses.
-            c = self._catch_rot(rot)
+            c = self.catch(np.zeros(len(rot))) if heading_path else self._catch_rot(rot)
             lam[s:s + chunk] = c * y
             dlam[s:s + chunk] = c * np.einsum("pnk,pk->pn", g, db)
         return lam, dlam
@@ -630,3 +667,73 @@ def trig_interp_matrix(nodes: np.ndarray, x: np.ndarray, L: int) -> np.ndarray:
     near = np.abs(s) < 1e-12
     W[near] = np.cos(M * half[near]) / np.cos(half[near])  # limit (sign of the alias at t = 2 pi k)
     return W
+
+
+def trig_derivative_matrix(M: int) -> np.ndarray:
+    """Exact derivative, at the nodes, of the trigonometric polynomial through ``M`` node values.
+
+    Derived: the interpolant of :func:`trig_interp_matrix` is ``f(x) = sum_k f_k D(x - x_k)`` with the
+    Dirichlet kernel ``D(t) = sin(M t / 2) / (M sin(t / 2))`` (``M = 2 L + 1`` nodes ``x_k = 2 pi k / M``).
+    At ``t = x_j - x_k = 2 pi d / M`` (``d != 0``), ``sin(M t / 2) = 0`` and ``cos(M t / 2) = (-1)^d``, so
+    ``D'(t) = (-1)^d / (2 sin(pi d / M))``; ``D'(0) = 0`` (``D`` is even).  The entries for ``d`` and
+    ``-d`` are computed once and negated (rows sum to zero up to rounding).
+
+    Parameters
+    ----------
+    M : int
+        Number of equally spaced nodes over one period, odd (``2 L + 1``).
+
+    Returns
+    -------
+    ndarray, shape (M, M)
+        ``f'(x_j) = sum_k T[j, k] f(x_k)``, per radian, exact for degree <= ``(M - 1) / 2``.
+    """
+    M = int(M)
+    if M < 1 or M % 2 == 0:
+        raise InputError(f"expected an odd number of nodes, got {M}", key="nodes")
+    d = np.arange(1, (M - 1) // 2 + 1)
+    v = (-1.0) ** d / (2.0 * np.sin(np.pi * d / M))
+    T = np.zeros((M, M))
+    j = np.arange(M)
+    for dd, vv in zip(d, v):
+        T[j, (j - dd) % M] = vv          # node k = j - d: t = x_j - x_k = +d steps
+        T[j, (j + dd) % M] = -vv         # node k = j + d: t = -d steps, D' odd
+    return T
+
+
+def responses_at(frames, responses, b_head) -> np.ndarray:
+    """Yields of many receptor responses at fixed head-frame field directions, in one pass.
+
+    Receptor ``i`` with receptor-frame response ``r`` (even harmonic coefficients, the layout of
+    :mod:`retina.sphere`) yields ``Phi_i(b) = r(F_i^T b)`` (``F_i`` its receptor-to-head frame; the
+    rotation convention of ``retina.eye.pattern.RetinaModel``, whose head-frame coefficients are
+    ``rotate(r, F_i)``).  The harmonics at the receptor-frame directions ``F_i^T b_p`` do not depend
+    on the response, so they are computed once and every response costs one product: for the
+    disorder and order studies, which compare many orderings of the same receptors at the same
+    directions, this replaces one coefficient rotation per receptor and model.
+
+    Parameters
+    ----------
+    frames : array_like, shape (N, 3, 3)
+        Receptor-to-head frames (``Receptors.frames``, or a block of them).
+    responses : array_like, shape (R, K)
+        Receptor-frame responses of ``R`` models, ``K = (L + 1)(L + 2) / 2``.
+    b_head : array_like, shape (P, 3)
+        Field directions in the head frame (normalised here).
+
+    Returns
+    -------
+    ndarray, shape (R, P, N)
+        ``Phi`` of every model at every direction and receptor (``R * P * N`` values: pass a
+        block of receptors to bound the memory).
+    """
+    from retina import sphere
+
+    r = np.atleast_2d(np.asarray(responses, dtype=float))
+    L = sphere.degree_from_n(r.shape[1])
+    b = np.atleast_2d(np.asarray(b_head, dtype=float))
+    b = b / np.linalg.norm(b, axis=1, keepdims=True)
+    F = np.asarray(frames, dtype=float)
+    d = np.einsum("nji,pj->pni", F, b)                      # receptor-frame directions (P, N, 3)
+    Y = sphere.real_sh(L, d.reshape(-1, 3))                 # (P N, K)
+    return np.moveaxis((Y @ r.T).reshape(b.shape[0], F.shape[0], r.shape[0]), 2, 0)

@@ -23,7 +23,6 @@ Conventions (owned here)
 
 from __future__ import annotations
 
-import dataclasses
 from dataclasses import dataclass
 from typing import Callable
 
@@ -33,7 +32,7 @@ from retina.build import build_sky, stage_rng
 from retina.scenario import Scenario
 
 __all__ = ["Stage", "stage_rng", "signal_model", "depth", "scan_yaws", "per_photon_info", "GRID", "GridModel",
-           "grid_offsets", "decode_errors", "rms_bound", "STUDY_HEADINGS_DEG", "study_probe", "bounds_over_light"]
+           "grid_offsets", "decode_errors", "rms_bound", "STUDY_HEADINGS_DEG", "study_probe", "study_probe_many", "bounds_over_light"]
 
 @dataclass(frozen=True)
 class Stage:
@@ -62,7 +61,8 @@ GRID = 360
 """Decoder grid size: one-degree steps, so integer-degree scan offsets are grid shifts."""
 
 
-def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photons: float = 1.0):
+def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photons: float = 1.0,
+                 receptors=None):
     """The :class:`retina.signal.noise.SignalModel` of ``model`` in the scenario's sky and field.
 
     Parameters
@@ -74,6 +74,8 @@ def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photon
         Head pitch in degrees (then roll 0); default the scenario's ``[pose]`` pitch and roll.
     photons : float
         Photon budget per receptor.
+    receptors : Receptors, optional
+        Overrides ``model.receptors`` (``model`` may then be None: catch and geometry only).
 
     Returns
     -------
@@ -84,7 +86,7 @@ def signal_model(sc: Scenario, model, fld, *, pitch: float | None = None, photon
     return SignalModel(model, inclination_deg=fld.I_deg, declination_deg=fld.D_deg, photons=photons,
                        sky=build_sky(sc),
                        pitch_deg=sc["pose"]["pitch_deg"] if pitch is None else pitch,
-                       roll_deg=sc["pose"]["roll_deg"] if pitch is None else 0.0)
+                       roll_deg=sc["pose"]["roll_deg"] if pitch is None else 0.0, receptors=receptors)
 
 
 def depth(yields: np.ndarray) -> np.ndarray:
@@ -213,7 +215,7 @@ class GridModel:
         retina.signal.noise.SignalModel
             A copy of ``signal`` with ``photons`` replaced.
         """
-        return dataclasses.replace(self.signal, photons=float(photons))
+        return self.signal.replace(photons=float(photons))
 
     def expected(self, headings_deg, photons: float) -> np.ndarray:
         """Expected counts ``(P, N)`` at any headings: exact trigonometric interpolation of the model
@@ -370,13 +372,105 @@ def study_probe(sc: Scenario, fld) -> Callable[[object], tuple[float, float]]:
     b = head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"], p["roll_deg"]),
                    fld.vector)
     nuisance = sc["readout"]["nuisance"]
+    base = []          # the first model's signal model: the others share its photon catch
 
     def probe(m) -> tuple[float, float]:
         dp = float(np.mean(depth(m.yields(b))))
-        info = float(np.mean(per_photon_info(signal_model(sc, m, fld), m.degree, nuisance, STUDY_HEADINGS_DEG)))
+        if not base or base[0].receptors is not m.receptors:
+            base[:] = [signal_model(sc, m, fld)]
+        info = float(np.mean(per_photon_info(base[0].replace(retina=m), m.degree, nuisance, STUDY_HEADINGS_DEG)))
         return dp, info
 
     return probe
+
+
+def study_probe_many(sc: Scenario, fld, receptors, responses, *, progress=None) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`study_probe` of many ensemble models of the same receptors at once.
+
+    The same two numbers, from the receptor-frame responses alone: the harmonics at every
+    receptor's view of the probe's field directions are shared by all models
+    (:func:`retina.signal.noise.responses_at`), and so is the photon catch.  Each model's yields
+    are evaluated at the ``M = 2 L + 1`` Fourier-node headings of :meth:`SignalModel.fourier_nodes`
+    (the scenario's pitch and roll) and at the scenario's poses; the heading derivative at the
+    nodes is the exact derivative of the trigonometric polynomial through them
+    (:func:`retina.signal.noise.trig_derivative_matrix`: a yield function of degree ``L`` is one of
+    degree ``L`` in the heading), and the information at :data:`STUDY_HEADINGS_DEG` follows as in
+    :func:`retina.readout.fisher.heading_information` (interpolated from the nodes, as
+    :func:`retina.readout.fisher.poisson_information` or :func:`~retina.readout.fisher.gain_schur`),
+    for all models at once over blocks of receptors (bounded memory).  Equal to :func:`study_probe` of
+    ``RetinaModel(response, receptors)`` up to rounding; a constant response keeps depth and
+    information exactly 0.
+
+    Parameters
+    ----------
+    sc : Scenario
+    fld : Field
+    receptors : Receptors
+    responses : array_like, shape (R, K)
+        Receptor-frame responses (``ordering.ensemble(yield coefficients)``) of ``R`` models.
+    progress : callable(done, total), optional
+        After each block of receptors, in models' worth of work (``total = R``; the last call is
+        ``(R, R)``).
+
+    Returns
+    -------
+    depth : ndarray (R,)
+        Modulation depth averaged over the scenario's poses.
+    info : ndarray (R,)
+        Heading information per photon (rad^-2 per photon per receptor) averaged over
+        :data:`STUDY_HEADINGS_DEG`.
+    """
+    from retina import sphere
+    from retina.eye.pose import head_field, pose_rotation
+    from retina.signal.noise import responses_at, trig_derivative_matrix, trig_interp_matrix
+
+    r = np.atleast_2d(np.asarray(responses, float))
+    R, L = r.shape[0], sphere.degree_from_n(r.shape[1])
+    M = 2 * L + 1
+    p = sc["pose"]
+    sig = signal_model(sc, None, fld, receptors=receptors)
+    nodes = np.arange(M) * 360.0 / M
+    b = np.concatenate([head_field(sig.rotations(nodes), sig.b_world),
+                        head_field(pose_rotation(np.asarray(p["headings_deg"], float), p["pitch_deg"],
+                                                 p["roll_deg"]), fld.vector)])
+    H = b.shape[0] - M
+    catch = sig.catch([0.0])[0]                                                # (N,), one photon
+    T = trig_derivative_matrix(M)
+    W = trig_interp_matrix(np.deg2rad(nodes), np.deg2rad(STUDY_HEADINGS_DEG), L)
+    S = W.shape[0]
+    # sums over the receptors, accumulated block by block: sum dlam^2 / lam, sum dlam, sum lam at
+    # every study heading, and the extremes and solid-angle-free mean of the yields at every pose
+    full, sd, sl = (np.zeros((S, R)) for _ in range(3))
+    hi, lo, tot = np.full((R, H), -np.inf), np.full((R, H), np.inf), np.zeros((R, H))
+    N = catch.size
+    per = max(1, int(_PROBE_BYTES // (8 * R * (b.shape[0] + 4 * M + 6 * S))))
+    for s in range(0, N, per):
+        e = min(N, s + per)
+        phi = responses_at(receptors.frames[s:e], r, b)                       # (R, M + H, n)
+        hi = np.maximum(hi, phi[:, M:].max(axis=2))
+        lo = np.minimum(lo, phi[:, M:].min(axis=2))
+        tot += phi[:, M:].sum(axis=2)
+        lam_n = (catch[s:e] * phi[:, :M]).transpose(1, 0, 2).reshape(M, -1)   # nodes x (model, receptor)
+        dlam_n = T @ (lam_n - lam_n[0])               # exactly 0 for a constant response
+        lam = np.maximum((W @ lam_n).reshape(S, R, e - s), 0.0)
+        dlam = (W @ dlam_n).reshape(S, R, e - s)
+        ratio = np.zeros_like(lam)
+        np.divide(dlam * dlam, lam, out=ratio, where=lam > 0)
+        full += ratio.sum(axis=2)
+        sd += dlam.sum(axis=2)
+        sl += lam.sum(axis=2)
+        if progress:
+            progress(R * e // N, R)
+    dep = ((hi - lo) / (tot / N)).mean(axis=1)                                # depth (max - min) / mean
+    if sc["readout"]["nuisance"] == "gain":                                   # gain_schur
+        corr = np.zeros_like(full)
+        np.divide(sd * sd, sl, out=corr, where=sl > 0)
+        full = np.maximum(full - corr, 0.0)
+    return dep, full.mean(axis=0)
+
+
+#: Bytes of working arrays per block of receptors in :func:`study_probe_many`.
+_PROBE_BYTES = 64 * 2**20
 
 
 def bounds_over_light(photons, info_per_photon) -> np.ndarray:

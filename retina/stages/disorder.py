@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from retina.build import KAPPA_MODELS, build_retina
+from retina.build import KAPPA_MODELS, build_ordering
 from retina.scenario import Scenario
-from retina.stages._common import Stage, bounds_over_light, study_probe
+from retina.stages._common import Stage, bounds_over_light, study_probe_many
 
 __all__ = ["compute_disorder", "swept_model_text", "STAGE"]
 
@@ -29,7 +29,8 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
     receptors : Receptors
     fld : Field
     progress : callable(done, total), optional
-        After each concentration.
+        In models done (all models are evaluated together, block by block of receptors:
+        :func:`retina.stages._common.study_probe_many`).
 
     Returns
     -------
@@ -39,18 +40,13 @@ def compute_disorder(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict
     """
     kap = np.asarray(sc["ordering"]["disorder_kappas"], float)
     light = np.asarray(sc["light"]["photons"], float)
-    probe = study_probe(sc, fld)
-    dep, info = [], []
-    for i, k in enumerate(kap):
-        dp, inf = probe(build_retina(sc, yf, receptors, kappa=float(k)))
-        dep.append(dp)
-        info.append(inf)
-        if progress:
-            progress(i + 1, kap.size)
-    info = np.array(info)
+    # every concentration's ensemble response, probed at once (shared harmonics and catch)
+    coeffs = np.asarray(yf.coeffs, float)
+    responses = np.array([build_ordering(sc, float(k)).ensemble(coeffs) for k in kap]).reshape(kap.size, -1)
+    dep, info = study_probe_many(sc, fld, receptors, responses, progress=progress)
     has_kappa = sc["ordering"]["model"] in KAPPA_MODELS
     own = float(sc["ordering"]["kappa"]) if has_kappa else None
-    return {"kappas": kap, "depth": np.array(dep), "info_per_photon": info,
+    return {"kappas": kap, "depth": dep, "info_per_photon": info,
             **({"scenario_kappa": own} if own is not None and np.isfinite(own) else {}),
             "model": swept_model_text(sc), "light_photons": light,
             "bound_deg": bounds_over_light(light, info)}

@@ -26,9 +26,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from retina.build import build_retina
 from retina.scenario import Scenario
-from retina.stages._common import Stage, bounds_over_light, study_probe
+from retina.stages._common import Stage, bounds_over_light, study_probe_many
 
 __all__ = ["compute_order", "STAGE", "n_steps"]
 
@@ -60,7 +59,8 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
     receptors : Receptors
     fld : Field
     progress : callable(done, total), optional
-        After each model.
+        In models done (all models are evaluated together, block by block of receptors:
+        :func:`retina.stages._common.study_probe_many`).
 
     Returns
     -------
@@ -82,27 +82,20 @@ def compute_order(sc: Scenario, yf, receptors, fld, *, progress=None) -> dict:
         mean = Cone.restraining(o["axis"], kappa=0.0).mean
     light = np.asarray(sc["light"]["photons"], float)
     kap = np.asarray(o["study_kappas"], float)
-    probe = study_probe(sc, fld)
-    total = n_steps(sc)
-    done = 0
-
-    def evaluate(ordering) -> tuple[float, float]:
-        nonlocal done
-        dp, info = probe(build_retina(sc, yf, receptors, ordering=ordering))
-        done += 1
-        if progress:
-            progress(done, total)
-        return dp, info
-
+    cls, crv = restraint_classes(mean), concentration_curves(mean)
+    models = [case.build for case in cls] + [case.build(float(k)) for case in crv for k in kap]
+    # every model's ensemble response, then all of them probed at once (shared harmonics and catch)
+    coeffs = np.asarray(yf.coeffs, float)
+    dps, infos = study_probe_many(sc, fld, receptors, np.array([m.ensemble(coeffs) for m in models]),
+                                  progress=progress)
     classes, curves = {}, {}
-    for case in restraint_classes(mean):
-        dp, info = evaluate(case.build)
-        classes[case.key] = {"label": case.label, "depth": dp, "info_per_photon": info,
-                             "bound_deg": bounds_over_light(light, info)}
-    for case in concentration_curves(mean):
-        dps, infos = zip(*(evaluate(case.build(float(k))) for k in kap))
-        info = np.array(infos)
-        curves[case.key] = {"label": case.label, "kappas": kap.copy(), "depth": np.array(dps),
+    for i, case in enumerate(cls):
+        classes[case.key] = {"label": case.label, "depth": float(dps[i]), "info_per_photon": float(infos[i]),
+                             "bound_deg": bounds_over_light(light, float(infos[i]))}
+    for j, case in enumerate(crv):
+        sl = slice(len(cls) + j * kap.size, len(cls) + (j + 1) * kap.size)
+        info = infos[sl].copy()
+        curves[case.key] = {"label": case.label, "kappas": kap.copy(), "depth": dps[sl].copy(),
                             "info_per_photon": info, "bound_deg": bounds_over_light(light, info)}
     return {"light_photons": light, "classes": classes, "curves": curves,
             "class_order": ",".join(classes), "curve_order": ",".join(curves),

@@ -269,7 +269,8 @@ def _metrics(sc: Scenario, built, yf, *, trials_at=None, scan=True) -> dict:
         out[key] = np.empty(len(levels))
     for i, (nm, ph) in enumerate(levels):
         r = simulate_trials(mk.truth(ph), mk.decoder(ph), tr["n_trials"], goal_deg=tr["goal_deg"],
-                            scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{nm}"))
+                            scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{nm}"),
+                            sampler="direct")   # common random numbers: every condition, one seed per light
         out["trial_r"][i] = r.rayleigh.r
         out["trial_mean_deg"][i] = r.rayleigh.mean_deg
         out["rayleigh_p"][i] = r.rayleigh.p

@@ -222,9 +222,14 @@ class BoundModel:
         self.lam = np.stack(lam)      # (K, M, N) at one photon per receptor
         self.dlam = np.stack(dlam)
 
-    def _counts(self, coeffs):
+    def _nodes(self, coeffs):
+        """Expected counts and their derivative at the ``M`` Fourier nodes, ``(M, N)`` each."""
         c = np.asarray(coeffs, float)
-        return self.w @ np.tensordot(c, self.lam, axes=1), self.w @ np.tensordot(c, self.dlam, axes=1)
+        return np.tensordot(c, self.lam, axes=1), np.tensordot(c, self.dlam, axes=1)
+
+    def _counts(self, coeffs):
+        ln, dn = self._nodes(coeffs)
+        return self.w @ ln, self.w @ dn
 
     def info(self, coeffs) -> np.ndarray:
         """Heading information per photon at the grid headings.
@@ -242,10 +247,11 @@ class BoundModel:
         (:data:`retina.stages._common.GRID`, one-degree steps); with a free gain the
         gain-marginalised (Schur complement) information.
     """
-        from retina.readout.fisher import gain_schur, poisson_information
+        from retina.readout.fisher import interpolated_information
 
-        lam, dlam = self._counts(coeffs)
-        return (gain_schur if self.gain else poisson_information)(np.maximum(lam, 0.0), dlam)
+        # the grid's (G, N) counts are never stored: one compiled pass interpolates and sums
+        ln, dn = self._nodes(coeffs)
+        return interpolated_information(self.w, ln, dn, "gain" if self.gain else "none")
 
     def bound(self, coeffs, photons) -> np.ndarray:
         """The rms Cramer-Rao bound over the grid headings at each photon level (:func:`rms_bound`).
@@ -289,14 +295,18 @@ class BoundModel:
         if self.gain:
             info = info - sd**2 / s
         inv = 1.0 / info
-        grad = np.empty(self.lam.shape[0])
-        for k in range(grad.size):
-            lk, dk = self.w @ self.lam[k], self.w @ self.dlam[k]
-            di = np.sum(2.0 * r * dk - r * r * lk, axis=-1)
-            if self.gain:
-                di -= 2.0 * sd / s * dk.sum(-1) - (sd / s) ** 2 * lk.sum(-1)
-            grad[k] = -np.mean(di * inv**2) / np.mean(inv)
-        return grad
+        # dI_h/dc_k = sum_n (2 r dk - r^2 lk) with lk = W lam_k and dk = W dlam_k interpolated
+        # from the nodes, so sum_n r_hn dk_hn = sum_m W_hm (r @ dlam_k^T)_hm: two products over
+        # the receptors for every k and node at once, no (G, N) array per coefficient
+        K, M, N = self.lam.shape
+        rd = (r @ self.dlam.reshape(K * M, N).T).reshape(-1, K, M)
+        rl = ((r * r) @ self.lam.reshape(K * M, N).T).reshape(-1, K, M)
+        di = np.einsum("hm,hkm->hk", self.w, 2.0 * rd - rl)                       # (G, K)
+        if self.gain:
+            lk = self.w @ self.lam.sum(-1).T                                       # (G, K): sum_n lk
+            dk = self.w @ self.dlam.sum(-1).T
+            di -= 2.0 * (sd / s)[:, None] * dk - ((sd / s) ** 2)[:, None] * lk
+        return -np.mean(di * (inv**2)[:, None], axis=0) / np.mean(inv)
 
 
 def threshold_amplitude(sensitivity, rise: float) -> np.ndarray:
@@ -435,7 +445,8 @@ def _trial_r(sc, built, coeffs, degree: int, light: str) -> float:
     mk = GridModel(signal_model(sc, model, built.field, pitch=sc["scan"]["pitch_deg"]), model.degree, gain)
     ph = float(sc["light"]["photons"][list(sc["light"]["names"]).index(light)])
     r = simulate_trials(mk.truth(ph), mk.decoder(ph), tr["n_trials"], goal_deg=tr["goal_deg"],
-                        scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{light}"))
+                        scan_offsets_deg=offs, rng=stage_rng(sc.seed, f"rf/{light}"),
+                        sampler="direct")   # common random numbers: the control and the swept field, one seed
     return float(r.rayleigh.r)
 
 
