@@ -42,7 +42,8 @@ import numpy as np
 
 __all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
            "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend", "map_grid", "map_index",
-           "PatternColours", "pattern_colours", "receptor_points_class"]
+           "PatternColours", "pattern_colours", "receptor_points_class", "flat_image_class",
+           "image_bytes"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
@@ -226,6 +227,9 @@ class PatternColours:
         Colour of every receptor (the head view's markers).
     image : ndarray of float32, shape (E, A, 4)
         The visual-field map (:func:`map_grid` pixels; no receptor: the no-data colour).
+    image_bytes : ndarray of uint8, shape (E, A, 4)
+        The same as the 8-bit values of the map's texture (:func:`image_bytes`), made here so
+        that the GUI thread only uploads them.
     """
 
     display: str
@@ -234,6 +238,7 @@ class PatternColours:
     locked: bool
     rgba: np.ndarray
     image: np.ndarray
+    image_bytes: np.ndarray = None
 
     def fits(self, display: str, eye: str, limits) -> bool:
         """Whether these colours are the ones asked for.
@@ -269,7 +274,8 @@ def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> 
     Returns
     -------
     PatternColours
-        Receptor colours ``rgba`` ``(N, 4)`` and the map ``image`` ``(E, A, 4)``, float32 in
+        Receptor colours ``rgba`` ``(N, 4)`` and the map ``image`` ``(E, A, 4)`` (also as the
+        texture's 8-bit values, ``image_bytes``), float32 in
         [0, 1], with the limits used.
     """
     _, rgba, lims, _ = colour_values(result, display, eye, limits)
@@ -278,8 +284,9 @@ def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> 
     idx = index[_EYE_ROW[eye]]
     rgba32 = rgba.astype(np.float32)
     image = np.where((idx >= 0)[..., None], rgba32[np.maximum(idx, 0)], _NO_DATA.astype(np.float32))
+    image = image.astype(np.float32)
     return PatternColours(display=display, eye=eye, limits=(float(lims[0]), float(lims[1])),
-                          locked=limits is not None, rgba=rgba32, image=image.astype(np.float32))
+                          locked=limits is not None, rgba=rgba32, image=image, image_bytes=image_bytes(image))
 
 
 def _colours_for(view, res) -> PatternColours:
@@ -418,6 +425,113 @@ def receptor_points_class():
 
         _POINTS_CLASS = create_visual_node(ReceptorPointsVisual)
     return _POINTS_CLASS
+
+
+_IMAGE_VERT = """
+attribute vec2 a_position;
+attribute vec2 a_texcoord;
+varying vec2 v_texcoord;
+void main() {
+    v_texcoord = a_texcoord;
+    gl_Position = $transform(vec4(a_position, 0.0, 1.0));
+}
+"""
+
+_IMAGE_FRAG = """
+uniform sampler2D u_texture;
+varying vec2 v_texcoord;
+void main() {
+    gl_FragColor = texture2D(u_texture, v_texcoord);
+}
+"""
+
+_IMAGE_CLASS = None
+
+
+def image_bytes(rgba) -> np.ndarray:
+    """RGBA colours in [0, 1] as the 8-bit values an RGBA8 texture stores.
+
+    Parameters
+    ----------
+    rgba : array_like, shape (H, W, 4)
+        Colours in [0, 1] (values outside are clipped).
+
+    Returns
+    -------
+    ndarray of uint8, shape (H, W, 4)
+        ``round(255 * c)`` per channel (ties to even, as OpenGL's conversion of a float to an
+        8-bit normalised value rounds).
+    """
+    return np.rint(np.clip(np.asarray(rgba, np.float32), 0.0, 1.0) * np.float32(255.0)).astype(np.uint8)
+
+
+def flat_image_class():
+    """The scene node class :class:`FlatImage` (built on first use: it imports vispy).
+
+    ``FlatImage(rgba (H, W, 4), parent=node)`` draws an RGBA image over ``0 <= x <= W``,
+    ``0 <= y <= H`` of its node (one texel per unit), nearest-texel sampling, blended as vispy's
+    ``translucent`` preset: the picture of vispy's ``Image`` visual for RGBA data in [0, 1] with
+    ``interpolation="nearest"`` and the default colour limits and gamma, pixel for pixel (a test
+    compares them), drawn with a one-line fragment shader (a texel fetch) from an 8-bit texture.
+    vispy's image shader also applies colour limits and ``pow(colour, gamma)`` to every pixel, per
+    frame, which on Mesa's software renderer cost about a quarter of the map's rasterisation; it
+    stores the colours as 8-bit values too (the texture is ``GL_RGBA``), so nothing is lost here.
+    Method: ``set_data(rgba)`` (floats in [0, 1], or uint8 from :func:`image_bytes`).
+
+    Returns
+    -------
+    type
+        A vispy scene node class (one per process).
+    """
+    global _IMAGE_CLASS
+    if _IMAGE_CLASS is None:
+        from vispy import gloo
+        from vispy.scene.visuals import create_visual_node
+        from vispy.visuals import Visual
+
+        class FlatImageVisual(Visual):
+            """An RGBA image drawn as one textured quad (:func:`flat_image_class`)."""
+
+            def __init__(self, rgba):
+                Visual.__init__(self, vcode=_IMAGE_VERT, fcode=_IMAGE_FRAG)
+                self._draw_mode = "triangles"
+                data = self._bytes(rgba)
+                h, w = data.shape[:2]
+                # two triangles in the corner order of vispy's Image (subdivide method, one cell)
+                tc = np.array([[0, 0], [1, 0], [1, 1], [0, 0], [1, 1], [0, 1]], np.float32)
+                self.size = (w, h)
+                self.shared_program["a_texcoord"] = gloo.VertexBuffer(tc)
+                self.shared_program["a_position"] = gloo.VertexBuffer(tc * np.array([w, h], np.float32))
+                self._texture = gloo.Texture2D(data, interpolation="nearest")
+                self.shared_program["u_texture"] = self._texture
+                self.set_gl_state("translucent", cull_face=False)
+
+            @staticmethod
+            def _bytes(rgba) -> np.ndarray:
+                a = np.asarray(rgba)
+                if a.ndim != 3 or a.shape[2] != 4:
+                    raise ValueError(f"expected an RGBA image of shape (H, W, 4), got {a.shape}")
+                return np.ascontiguousarray(a) if a.dtype == np.uint8 else image_bytes(a)
+
+            def set_data(self, rgba) -> None:
+                data = self._bytes(rgba)
+                if (data.shape[1], data.shape[0]) != self.size:
+                    raise ValueError(f"expected an image of {self.size[1]} x {self.size[0]} pixels, "
+                                     f"got {data.shape[0]} x {data.shape[1]}")
+                self._texture.set_data(data)
+                self.update()
+
+            def _prepare_transforms(self, view):
+                view.view_program.vert["transform"] = view.transforms.get_transform()
+
+            def _prepare_draw(self, view):
+                return True
+
+            def _compute_bounds(self, axis, view):
+                return (0.0, float(self.size[axis])) if axis < 2 else (0.0, 0.0)
+
+        _IMAGE_CLASS = create_visual_node(FlatImageVisual)
+    return _IMAGE_CLASS
 
 
 def _state_limits(state, result):
@@ -834,8 +948,8 @@ class MapView(_Subscriber):
     widget : QWidget
         The canvas with its title and caption (Qt labels); put this in a layout.
     canvas : vispy.scene.SceneCanvas
-    image : vispy.scene.visuals.Image
-        :attr:`rgba` holds the image last set ``(E, A, 4)``.
+    image : FlatImage
+        The map (:func:`flat_image_class`); :attr:`rgba` holds the image last set ``(E, A, 4)``.
     on_hover : callable(dict or None), optional
         Called with :meth:`receptor_info` of the receptor under the mouse (None off the eyes).
     draws : int
@@ -906,7 +1020,7 @@ class MapView(_Subscriber):
         s = MAP_STEP_DEG
         self.az, self.el = map_grid()
         self.rgba = np.tile(_NO_DATA, (self.el.size, self.az.size, 1)).astype(np.float32)
-        self.image = scene.visuals.Image(self.rgba, interpolation="nearest", parent=root)
+        self.image = flat_image_class()(self.rgba, parent=root)
         self.image.transform = scene.STTransform(scale=(s, s), translate=(-180.0, -90.0))
         grid_lines = []
         for a in range(-180, 181, 30):
@@ -1130,7 +1244,7 @@ class MapView(_Subscriber):
         if changed or not np.array_equal(cols.image, self.rgba):
             changed = True
             self.rgba = cols.image
-            self.image.set_data(self.rgba)
+            self.image.set_data(cols.image if cols.image_bytes is None else cols.image_bytes)
         flat = bool(getattr(res, "flat", False))
         locked = cols.locked
         if display == "modulation":

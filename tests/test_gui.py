@@ -1682,6 +1682,49 @@ def test_head_static_layer_keeps_depth_and_is_the_same_picture(window, qapp):
     assert layer.captures == captures + 1
 
 
+def test_map_flat_image_is_vispys_image_pixel_for_pixel(window, qapp):
+    """The map's image is drawn by a one-texel-fetch visual from 8-bit colours
+    (retina_viewer.views.flat_image_class).  Reference: vispy's ``Image`` visual (the reference
+    library) with the same RGBA floats, ``interpolation="nearest"`` and its default colour limits
+    and gamma, at the same place in the same scene: the frames must be equal pixel for pixel, for
+    the pattern shown, for a random image with translucent pixels (a hidden eye is drawn
+    translucent grey), and at a zoom where one texel covers many pixels."""
+    from vispy import scene
+
+    from retina_viewer.views import image_bytes
+
+    view = window.map_view
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+    ref = scene.visuals.Image(view.rgba, interpolation="nearest", parent=view.image.parent)
+    ref.transform = view.image.transform
+    ref.order = view.image.order - 1  # drawn where the map's image is: before the grid lines
+    view.canvas._draw_order.clear()   # vispy caches the draw order; the new visual goes in it
+    rng = np.random.default_rng(7)
+    noise = rng.uniform(0.0, 1.0, view.rgba.shape).astype(np.float32)
+    noise[..., 3] = np.where(rng.uniform(size=noise.shape[:2]) < 0.3, 0.18, 1.0)
+    try:
+        for rgba, zoom in ((view.rgba, None), (noise, None), (noise, ((-20.0, 5.0), (-8.0, 9.0)))):
+            view.image.set_data(rgba)
+            ref.set_data(rgba)
+            if zoom is not None:
+                view.view.camera.set_range(x=zoom[0], y=zoom[1], margin=0.0)
+                _frame(view)   # the labels' halo is placed again after the first frame at a new zoom
+            ref.visible, view.image.visible = False, True
+            mine = _frame(view, one_pass=True)
+            ref.visible, view.image.visible = True, False
+            theirs = _frame(view, one_pass=True)
+            np.testing.assert_array_equal(mine, theirs)
+    finally:
+        ref.parent = None
+        view.image.visible = True
+        view.canvas._draw_order.clear()
+        view.reset_range()
+    # derived: an 8-bit normalised texture stores round(255 c) (OpenGL's float-to-unorm rule)
+    c = np.array([[[0.0, 0.5 / 255, 1.5 / 255, 1.0]]], np.float32)
+    assert image_bytes(c).tolist() == [[[0, 0, 2, 255]]]
+
+
 def _grab_rgb(widget) -> np.ndarray:
     """A widget painted by Qt (``QWidget.grab``) as RGB ``(H, W, 3)`` uint8."""
     from PyQt6.QtGui import QImage
