@@ -960,6 +960,13 @@ class MapView(_Subscriber):
         The axes and the colour bar's ramp, kept as pixels between frames.
     point_marks : vispy.scene.visuals.Markers
         The beak, B and -B marks (rows 0, 1, 2).
+    labels : vispy.scene.visuals.Text
+        The labels of the cardinal points, the beak, B and -B and their halo, in one visual
+        (:meth:`show_label_layers`).
+    label_positions : ndarray, shape (K, 2)
+        The labels' centres, map degrees (:func:`layout_labels`).
+    halo_positions : ndarray, shape (4 K, 2)
+        The halo's copies of the labels, map degrees (per diagonal, the K labels).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
@@ -1036,22 +1043,22 @@ class MapView(_Subscriber):
         # visuals would draw them): only the rows of B and -B move with the pose
         self.point_marks = scene.visuals.Markers(parent=root)
         # every label of a point mark in one Text visual: cardinals, beak, B, -B
-        self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
-                                         anchor_y="center")
         self.label_texts = ["N", "E", "S", "W", "beak", self.marks["field"].label,
                             self.marks["field_opposite"].label]
         self._label_colours = np.array([(0.3, 0.95, 0.4, 1.0)] * 4 + [(1.0, 1.0, 1.0, 1.0)] * 3)
-        self.labels.text = self.label_texts   # set once: only the positions follow the pose
-        self.labels.color = self._label_colours
-        # a dark halo behind every label, so that the green cardinals on the pale middle of the
-        # pattern and the white beak, B and -B on near-white stay legible on any colour: the
-        # labels drawn again in the halo colour, shifted by HALO_PX pixels along the four diagonals,
-        # all in one Text visual (one draw call) under the labels
-        self.halo = scene.visuals.Text(color=HALO_COLOUR, font_size=8, parent=root,
-                                       anchor_x="center", anchor_y="center")
-        self.halo.text = self.label_texts * len(_HALO_DIRECTIONS)
-        self.halo.color = np.tile(HALO_COLOUR, (len(self.halo.text), 1))
+        # every label of a point mark (cardinals, beak, B, -B) and its dark halo in one Text visual
+        # (one draw call): a halo behind every label, so that the green cardinals on the pale
+        # middle of the pattern and the white beak, B and -B on near-white stay legible on any
+        # colour, made of the labels drawn in the halo colour, shifted by HALO_PX pixels along the
+        # four diagonals; the halo's glyphs come first in the visual's buffer, so they are drawn
+        # before (under) the labels, as two visuals drawn one after the other would draw them.
+        # The texts and colours are set once: only the positions follow the pose.
+        self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
+                                         anchor_y="center")
+        self.label_positions = self.halo_positions = None
+        self._label_layers = None
         self._halo_key = None
+        self.show_label_layers(labels=True, halo=True)
         # colour bar in its own fixed view
         self._ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
         self.cbar = scene.visuals.Image(np.zeros((2, 256, 4), np.float32), interpolation="linear",
@@ -1064,9 +1071,8 @@ class MapView(_Subscriber):
         for node in (self.edges, self.horizon, self.point_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
-        self.halo.order = 11
         self.labels.order = 12
-        _share_fonts([self.halo, self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
+        _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
                                                        for v in (ax.axis._text, ax.axis._axis_label_vis)])
         # the axes and the colour bar's ramp change only with the zoom, the size or the display:
         # drawn once and kept as pixels (retina_viewer.canvas.StaticLayer); per frame only the
@@ -1079,7 +1085,7 @@ class MapView(_Subscriber):
         self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
-        self.view.scene.events.transform_change.connect(self._place_halo)
+        self.view.scene.events.transform_change.connect(self._place_labels)
         self._subscribe_pose(state, follow)
         self._show_pose(*self._pose_of(None), draw=False)
         self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_image())
@@ -1099,7 +1105,7 @@ class MapView(_Subscriber):
         the axes' ends again and draw once more with the new ticks.  The labels' halo is placed
         again if the view's pixels per degree changed (a resize: the grid lays out while drawing),
         which draws once more as well."""
-        self._place_halo()
+        self._place_labels()
         if not self._axes_stale:
             return
         self._axes_stale = False
@@ -1173,33 +1179,62 @@ class MapView(_Subscriber):
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
                                              gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
-        self.labels.pos = self.label_positions
-        self._place_halo()
+        self._place_labels()
         if draw:
             self.canvas.update()
 
-    def _place_halo(self, event=None) -> None:
-        """Put the halo's copies of the labels :data:`HALO_PX` canvas pixels around each label.
+    def _place_labels(self, event=None) -> None:
+        """Put the labels at :attr:`label_positions` and the halo's copies :data:`HALO_PX` canvas
+        pixels around each label (:attr:`halo_positions`).
 
-        The labels are placed in map degrees and drawn at a fixed size in pixels, so the shift in
-        degrees follows the zoom and the view's size: this runs when the labels move and when the
-        map's scene transform changes (pan, zoom, resize), and sets the positions only when they
-        differ.
+        The labels are placed in map degrees and drawn at a fixed size in pixels, so the halo's
+        shift in degrees follows the zoom and the view's size: this runs when the labels move and
+        when the map's scene transform changes (pan, zoom, resize), and sets the positions only
+        when they differ.  Before the view has a size (no pixels per degree yet) the halo sits
+        under the labels; the first draw places it (``_after_draw``).
         """
         if self.label_positions is None:
             return
+        pos = np.asarray(self.label_positions, float)
         tr = self.labels.get_transform("visual", "canvas")
         o, ex, ey = tr.map(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]))[:, :2]
         px_x, px_y = abs(ex[0] - o[0]), abs(ey[1] - o[1])     # pixels per map degree
-        if not (np.isfinite(px_x) and np.isfinite(px_y) and px_x > 0 and px_y > 0):
-            return
-        key = (round(px_x, 6), round(px_y, 6), np.asarray(self.label_positions).tobytes())
+        if np.isfinite(px_x) and np.isfinite(px_y) and px_x > 0 and px_y > 0:
+            scale = (round(px_x, 6), round(px_y, 6))
+            shift = _HALO_DIRECTIONS * HALO_PX / np.array([px_x, px_y])   # (4, 2) map degrees
+        else:
+            scale, shift = None, np.zeros_like(_HALO_DIRECTIONS)
+        key = (scale, pos.tobytes(), self._label_layers)
         if key == self._halo_key:
             return
         self._halo_key = key
-        shift = _HALO_DIRECTIONS * HALO_PX / np.array([px_x, px_y])   # (8, 2) map degrees
-        pos = np.asarray(self.label_positions, float)
-        self.halo.pos = (pos[None, :, :] + shift[:, None, :]).reshape(-1, 2).astype(np.float32)
+        self.halo_positions = (pos[None, :, :] + shift[:, None, :]).reshape(-1, 2)
+        labels, halo = self._label_layers
+        parts = ([self.halo_positions] if halo else []) + ([pos] if labels else [])
+        if parts:
+            self.labels.pos = np.vstack(parts).astype(np.float32)
+
+    def show_label_layers(self, *, labels: bool = True, halo: bool = True) -> None:
+        """Draw the labels of the point marks, their halo, both (the default) or neither.
+
+        Parameters
+        ----------
+        labels, halo : bool
+            Whether the labels and their halo are drawn (one Text visual, :attr:`labels`).
+        """
+        layers = (bool(labels), bool(halo))
+        if layers == self._label_layers:
+            return
+        self._label_layers = layers
+        n = len(_HALO_DIRECTIONS)
+        texts = (self.label_texts * n if halo else []) + (list(self.label_texts) if labels else [])
+        colours = [np.tile(HALO_COLOUR, (n * len(self.label_texts), 1))] if halo else []
+        colours += [self._label_colours] if labels else []
+        self.labels.visible = bool(texts)
+        if texts:
+            self.labels.text = texts
+            self.labels.color = np.vstack(colours)
+        self._place_labels()
 
     def label_sizes(self) -> np.ndarray:
         """The boxes of the map's labels: 7 x 13 pixels per character (8 pt text) at the

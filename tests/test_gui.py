@@ -1017,9 +1017,12 @@ def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
     from retina_viewer.views import HALO_PX
     tr = mv.labels.get_transform("visual", "canvas")
     lab = tr.map(np.asarray(mv.label_positions, float))[:, :2]
-    halo = tr.map(np.asarray(mv.halo.pos, float))[:, :2].reshape(-1, len(lab), 2)
+    halo = tr.map(np.asarray(mv.halo_positions, float))[:, :2].reshape(-1, len(lab), 2)
     assert len(halo) >= 4
     np.testing.assert_allclose(np.abs(halo - lab[None]), HALO_PX, atol=0.02)
+    # drawn from the one Text visual: the halo's copies first (under the labels), then the labels
+    drawn = np.asarray(mv.labels.pos, float)[:, :2]
+    np.testing.assert_allclose(drawn, np.vstack([mv.halo_positions, mv.label_positions]), rtol=1e-6)
 
 
 def test_receptor_under_the_cursor(window):
@@ -1899,17 +1902,16 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
         assert view.render()[..., 3].min() == 255, "the text lowered the frame's alpha"   # (1)
     rendered = mv.render()[..., :3].astype(int)
     on_screen = _on_screen_rgb(mv.canvas.native).astype(int)
-    assert np.all(mv.halo.color.rgba == (0.0, 0.0, 0.0, 1.0))   # (4) assumes a black halo
-    mv.labels.visible = False
+    n_halo = len(mv.halo_positions)                               # (4) assumes a black halo
+    assert n_halo == 4 * len(mv.label_texts)
+    assert np.all(mv.labels.color.rgba[:n_halo] == (0.0, 0.0, 0.0, 1.0))
+    mv.show_label_layers(labels=False, halo=True)
     try:
         behind = mv.render()[..., :3].astype(int)          # the same frame without the labels
-        mv.halo.visible = False
-        try:
-            bare = mv.render()[..., :3].astype(int)        # ... and without their halo
-        finally:
-            mv.halo.visible = True
+        mv.show_label_layers(labels=False, halo=False)
+        bare = mv.render()[..., :3].astype(int)            # ... and without their halo
     finally:
-        mv.labels.visible = True
+        mv.show_label_layers(labels=True, halo=True)
     h, w = rendered.shape[:2]
     white = [k for k, c in enumerate(mv._label_colours) if np.all(c[:3] == 1.0)]
     assert [mv.label_texts[k] for k in white] == ["beak", "B", "-B"]
