@@ -304,9 +304,9 @@ def _timeline(app, win, frames, n_steps):
             b._issue = b._collect = None
         orig_issue, orig_collect = b._issue, b._collect
 
-        def issue(orig=orig_issue, label=label):
+        def issue(*args, orig=orig_issue, label=label):
             mark(f"{label}: issue starts")
-            return orig() if orig is not None else None
+            return orig(*args) if orig is not None else None
 
         def collect(orig=orig_collect, label=label):
             mark(f"{label}: read back starts")
