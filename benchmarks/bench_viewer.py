@@ -38,7 +38,11 @@ Cases (every reference is measured in the same run, on the same machine):
    Qt canvas, composited and swapped as a whole by OpenGL for any change) against the same
    window without it (the viewer draws its canvases off screen: :mod:`retina_viewer.canvas`).
    Then each view's redraw part by part: its scene drawn and rasterised (against an empty frame
-   of the same size), the read-back into a QImage and the paint into the window; and the head
+   of the same size; split into what the GUI thread spends issuing it and the rasterisation,
+   which Mesa's llvmpipe does inside ``glFlush`` while the GUI thread waits), the read-back into
+   a QImage and the paint into the window; the map's scene with its image drawn by vispy's
+   ``Image`` visual (the visual used before) against the one-texel-fetch visual it now draws
+   (:func:`retina_viewer.views.flat_image_class`); and the head
    view's scene with its receptors drawn by vispy's ``Markers`` (the visual used before) against
    the flat points it now draws; and each view's scene drawn by vispy in one pass (every
    visual every frame) against the same scene with its static layer kept as pixels
@@ -175,9 +179,26 @@ def _floor_parts(view, n=20):
         canvas.context.clear(color=(0.1, 0.1, 0.1, 1.0))
         gl.glFinish()
 
+    def split():
+        """The scene's GUI-thread CPU up to its last GL call (vispy's Python, the GL calls and
+        Mesa's vertex work on this thread), then the rasterisation: ``glFlush`` (Mesa's llvmpipe
+        hands the frame to its rasteriser threads there and waits for them) and ``glFinish``,
+        wall and process CPU."""
+        begin()
+        c0 = time.thread_time()
+        canvas.events.draw(region=None)
+        canvas.context.flush_commands()
+        c1 = time.thread_time()
+        t0, p0 = time.perf_counter(), time.process_time()
+        gl.glFlush()
+        gl.glFinish()
+        return c1 - c0, time.perf_counter() - t0, time.process_time() - p0
+
     scene()
     out = {"scene": _median_ms(scene, n), "empty": _median_ms(empty, n),
            "readback": _median_ms(lambda: b._fbo.toImage(True), n)}
+    out["issue_cpu"], out["raster_wall"], out["raster_cpu"] = (
+        float(x) * 1e3 for x in np.median(np.array([split() for _ in range(n)]), axis=0))
     img = b.render_image()
     b.render_image = lambda: img  # paint only: the image is already there
     try:
@@ -203,6 +224,25 @@ def _markers_scene_ms(view, n=20):
     finally:
         mk.parent = None
         pts.visible = True
+
+
+def _vispy_image_scene_ms(view, n=20):
+    """The map's scene with its image drawn by vispy's ``Image`` visual (the visual the viewer used
+    before) instead of its one-texel-fetch visual: same colours, place and drawing order."""
+    from vispy import scene as vscene
+
+    mine = view.image
+    ref = vscene.visuals.Image(view.rgba, interpolation="nearest", parent=mine.parent)
+    ref.transform = mine.transform
+    ref.order = mine.order - 1          # where the map's image is drawn: before the grid lines
+    view.canvas._draw_order.clear()     # vispy caches the draw order
+    mine.visible = False
+    try:
+        return _floor_parts(view, n)["scene"]
+    finally:
+        ref.parent = None
+        mine.visible = True
+        view.canvas._draw_order.clear()
 
 
 def _one_pass_scene_ms(view, n=20):
@@ -304,9 +344,9 @@ def _timeline(app, win, frames, n_steps):
             b._issue = b._collect = None
         orig_issue, orig_collect = b._issue, b._collect
 
-        def issue(orig=orig_issue, label=label):
+        def issue(*args, orig=orig_issue, label=label):
             mark(f"{label}: issue starts")
-            return orig() if orig is not None else None
+            return orig(*args) if orig is not None else None
 
         def collect(orig=orig_collect, label=label):
             mark(f"{label}: read back starts")
@@ -565,7 +605,11 @@ def _run(args) -> int:
                              ratio=f"{sc_w / max(parts['empty'][0], 1e-3):.0f}", target="(info)", passed=True,
                              note=f"{w} x {h} px; process CPU {sc_c:.1f} ms; reference: an empty frame of that "
                                   f"size (clear + finish); read-back into a QImage {parts['readback'][0]:.1f} ms, "
-                                  f"paint into the window {parts['paint'][0]:.1f} ms"))
+                                  f"paint into the window {parts['paint'][0]:.1f} ms; the scene split: issued on "
+                                  f"the GUI thread (vispy's Python, the GL calls, Mesa's vertex work) "
+                                  f"{parts['issue_cpu']:.1f} ms CPU, rasterised (glFlush, where Mesa's llvmpipe "
+                                  f"waits for its rasteriser, + glFinish) {parts['raster_wall']:.1f} ms wall, "
+                                  f"{parts['raster_cpu']:.1f} ms process CPU"))
             layer = getattr(view, "static_layer", None)
             if layer is not None:
                 op_w, op_c = _one_pass_scene_ms(view)
@@ -576,6 +620,14 @@ def _run(args) -> int:
                                       "scene with its static layer kept as pixels "
                                       "(retina_viewer.canvas.StaticLayer: "
                                       f"{layer.captures} captures, {layer.cached_frames} frames drawn from them)"))
+            if label == "map" and type(view.image).__name__ == "FlatImage":
+                im_w, im_c = _vispy_image_scene_ms(view)
+                rows.append(dict(name="map view, image as vispy Image", measured=f"{im_w:.1f} ms",
+                                 reference=f"{sc_w:.1f} ms", ratio=f"{im_w / max(sc_w, 1e-3):.2f}",
+                                 target="(info)", passed=True,
+                                 note=f"process CPU {im_c:.1f} ms against {sc_c:.1f} ms; reference: the same scene "
+                                      "with the one-texel-fetch image the viewer draws "
+                                      "(retina_viewer.views.flat_image_class)"))
             if label == "head" and hasattr(view.markers, "positions"):
                 mk_w, mk_c = _markers_scene_ms(view)
                 rows.append(dict(name="head view, receptors as vispy Markers", measured=f"{mk_w:.1f} ms",

@@ -42,7 +42,8 @@ import numpy as np
 
 __all__ = ["HeadView", "MapView", "colour_values", "colour_limits", "layout_labels",
            "DISPLAY_FROM_NED", "MAP_STEP_DEG", "ensure_backend", "map_grid", "map_index",
-           "PatternColours", "pattern_colours", "receptor_points_class"]
+           "PatternColours", "pattern_colours", "receptor_points_class", "flat_image_class",
+           "image_bytes"]
 
 #: NED -> display (x north, y west, z up).
 DISPLAY_FROM_NED = np.diag([1.0, -1.0, -1.0])
@@ -226,6 +227,9 @@ class PatternColours:
         Colour of every receptor (the head view's markers).
     image : ndarray of float32, shape (E, A, 4)
         The visual-field map (:func:`map_grid` pixels; no receptor: the no-data colour).
+    image_bytes : ndarray of uint8, shape (E, A, 4)
+        The same as the 8-bit values of the map's texture (:func:`image_bytes`), made here so
+        that the GUI thread only uploads them.
     """
 
     display: str
@@ -234,6 +238,7 @@ class PatternColours:
     locked: bool
     rgba: np.ndarray
     image: np.ndarray
+    image_bytes: np.ndarray = None
 
     def fits(self, display: str, eye: str, limits) -> bool:
         """Whether these colours are the ones asked for.
@@ -269,7 +274,8 @@ def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> 
     Returns
     -------
     PatternColours
-        Receptor colours ``rgba`` ``(N, 4)`` and the map ``image`` ``(E, A, 4)``, float32 in
+        Receptor colours ``rgba`` ``(N, 4)`` and the map ``image`` ``(E, A, 4)`` (also as the
+        texture's 8-bit values, ``image_bytes``), float32 in
         [0, 1], with the limits used.
     """
     _, rgba, lims, _ = colour_values(result, display, eye, limits)
@@ -278,8 +284,9 @@ def pattern_colours(result, display: str, eye: str, limits=None, index=None) -> 
     idx = index[_EYE_ROW[eye]]
     rgba32 = rgba.astype(np.float32)
     image = np.where((idx >= 0)[..., None], rgba32[np.maximum(idx, 0)], _NO_DATA.astype(np.float32))
+    image = image.astype(np.float32)
     return PatternColours(display=display, eye=eye, limits=(float(lims[0]), float(lims[1])),
-                          locked=limits is not None, rgba=rgba32, image=image.astype(np.float32))
+                          locked=limits is not None, rgba=rgba32, image=image, image_bytes=image_bytes(image))
 
 
 def _colours_for(view, res) -> PatternColours:
@@ -418,6 +425,113 @@ def receptor_points_class():
 
         _POINTS_CLASS = create_visual_node(ReceptorPointsVisual)
     return _POINTS_CLASS
+
+
+_IMAGE_VERT = """
+attribute vec2 a_position;
+attribute vec2 a_texcoord;
+varying vec2 v_texcoord;
+void main() {
+    v_texcoord = a_texcoord;
+    gl_Position = $transform(vec4(a_position, 0.0, 1.0));
+}
+"""
+
+_IMAGE_FRAG = """
+uniform sampler2D u_texture;
+varying vec2 v_texcoord;
+void main() {
+    gl_FragColor = texture2D(u_texture, v_texcoord);
+}
+"""
+
+_IMAGE_CLASS = None
+
+
+def image_bytes(rgba) -> np.ndarray:
+    """RGBA colours in [0, 1] as the 8-bit values an RGBA8 texture stores.
+
+    Parameters
+    ----------
+    rgba : array_like, shape (H, W, 4)
+        Colours in [0, 1] (values outside are clipped).
+
+    Returns
+    -------
+    ndarray of uint8, shape (H, W, 4)
+        ``round(255 * c)`` per channel (ties to even, as OpenGL's conversion of a float to an
+        8-bit normalised value rounds).
+    """
+    return np.rint(np.clip(np.asarray(rgba, np.float32), 0.0, 1.0) * np.float32(255.0)).astype(np.uint8)
+
+
+def flat_image_class():
+    """The scene node class :class:`FlatImage` (built on first use: it imports vispy).
+
+    ``FlatImage(rgba (H, W, 4), parent=node)`` draws an RGBA image over ``0 <= x <= W``,
+    ``0 <= y <= H`` of its node (one texel per unit), nearest-texel sampling, blended as vispy's
+    ``translucent`` preset: the picture of vispy's ``Image`` visual for RGBA data in [0, 1] with
+    ``interpolation="nearest"`` and the default colour limits and gamma, pixel for pixel (a test
+    compares them), drawn with a one-line fragment shader (a texel fetch) from an 8-bit texture.
+    vispy's image shader also applies colour limits and ``pow(colour, gamma)`` to every pixel, per
+    frame, which on Mesa's software renderer cost about a quarter of the map's rasterisation; it
+    stores the colours as 8-bit values too (the texture is ``GL_RGBA``), so nothing is lost here.
+    Method: ``set_data(rgba)`` (floats in [0, 1], or uint8 from :func:`image_bytes`).
+
+    Returns
+    -------
+    type
+        A vispy scene node class (one per process).
+    """
+    global _IMAGE_CLASS
+    if _IMAGE_CLASS is None:
+        from vispy import gloo
+        from vispy.scene.visuals import create_visual_node
+        from vispy.visuals import Visual
+
+        class FlatImageVisual(Visual):
+            """An RGBA image drawn as one textured quad (:func:`flat_image_class`)."""
+
+            def __init__(self, rgba):
+                Visual.__init__(self, vcode=_IMAGE_VERT, fcode=_IMAGE_FRAG)
+                self._draw_mode = "triangles"
+                data = self._bytes(rgba)
+                h, w = data.shape[:2]
+                # two triangles in the corner order of vispy's Image (subdivide method, one cell)
+                tc = np.array([[0, 0], [1, 0], [1, 1], [0, 0], [1, 1], [0, 1]], np.float32)
+                self.size = (w, h)
+                self.shared_program["a_texcoord"] = gloo.VertexBuffer(tc)
+                self.shared_program["a_position"] = gloo.VertexBuffer(tc * np.array([w, h], np.float32))
+                self._texture = gloo.Texture2D(data, interpolation="nearest")
+                self.shared_program["u_texture"] = self._texture
+                self.set_gl_state("translucent", cull_face=False)
+
+            @staticmethod
+            def _bytes(rgba) -> np.ndarray:
+                a = np.asarray(rgba)
+                if a.ndim != 3 or a.shape[2] != 4:
+                    raise ValueError(f"expected an RGBA image of shape (H, W, 4), got {a.shape}")
+                return np.ascontiguousarray(a) if a.dtype == np.uint8 else image_bytes(a)
+
+            def set_data(self, rgba) -> None:
+                data = self._bytes(rgba)
+                if (data.shape[1], data.shape[0]) != self.size:
+                    raise ValueError(f"expected an image of {self.size[1]} x {self.size[0]} pixels, "
+                                     f"got {data.shape[0]} x {data.shape[1]}")
+                self._texture.set_data(data)
+                self.update()
+
+            def _prepare_transforms(self, view):
+                view.view_program.vert["transform"] = view.transforms.get_transform()
+
+            def _prepare_draw(self, view):
+                return True
+
+            def _compute_bounds(self, axis, view):
+                return (0.0, float(self.size[axis])) if axis < 2 else (0.0, 0.0)
+
+        _IMAGE_CLASS = create_visual_node(FlatImageVisual)
+    return _IMAGE_CLASS
 
 
 def _state_limits(state, result):
@@ -834,8 +948,8 @@ class MapView(_Subscriber):
     widget : QWidget
         The canvas with its title and caption (Qt labels); put this in a layout.
     canvas : vispy.scene.SceneCanvas
-    image : vispy.scene.visuals.Image
-        :attr:`rgba` holds the image last set ``(E, A, 4)``.
+    image : FlatImage
+        The map (:func:`flat_image_class`); :attr:`rgba` holds the image last set ``(E, A, 4)``.
     on_hover : callable(dict or None), optional
         Called with :meth:`receptor_info` of the receptor under the mouse (None off the eyes).
     draws : int
@@ -846,6 +960,13 @@ class MapView(_Subscriber):
         The axes and the colour bar's ramp, kept as pixels between frames.
     point_marks : vispy.scene.visuals.Markers
         The beak, B and -B marks (rows 0, 1, 2).
+    labels : vispy.scene.visuals.Text
+        The labels of the cardinal points, the beak, B and -B and their halo, in one visual
+        (:meth:`show_label_layers`).
+    label_positions : ndarray, shape (K, 2)
+        The labels' centres, map degrees (:func:`layout_labels`).
+    halo_positions : ndarray, shape (4 K, 2)
+        The halo's copies of the labels, map degrees (per diagonal, the K labels).
     """
 
     def __init__(self, state, *, size=(720, 460), parent=None, follow="state"):
@@ -906,7 +1027,7 @@ class MapView(_Subscriber):
         s = MAP_STEP_DEG
         self.az, self.el = map_grid()
         self.rgba = np.tile(_NO_DATA, (self.el.size, self.az.size, 1)).astype(np.float32)
-        self.image = scene.visuals.Image(self.rgba, interpolation="nearest", parent=root)
+        self.image = flat_image_class()(self.rgba, parent=root)
         self.image.transform = scene.STTransform(scale=(s, s), translate=(-180.0, -90.0))
         grid_lines = []
         for a in range(-180, 181, 30):
@@ -922,22 +1043,22 @@ class MapView(_Subscriber):
         # visuals would draw them): only the rows of B and -B move with the pose
         self.point_marks = scene.visuals.Markers(parent=root)
         # every label of a point mark in one Text visual: cardinals, beak, B, -B
-        self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
-                                         anchor_y="center")
         self.label_texts = ["N", "E", "S", "W", "beak", self.marks["field"].label,
                             self.marks["field_opposite"].label]
         self._label_colours = np.array([(0.3, 0.95, 0.4, 1.0)] * 4 + [(1.0, 1.0, 1.0, 1.0)] * 3)
-        self.labels.text = self.label_texts   # set once: only the positions follow the pose
-        self.labels.color = self._label_colours
-        # a dark halo behind every label, so that the green cardinals on the pale middle of the
-        # pattern and the white beak, B and -B on near-white stay legible on any colour: the
-        # labels drawn again in the halo colour, shifted by HALO_PX pixels along the four diagonals,
-        # all in one Text visual (one draw call) under the labels
-        self.halo = scene.visuals.Text(color=HALO_COLOUR, font_size=8, parent=root,
-                                       anchor_x="center", anchor_y="center")
-        self.halo.text = self.label_texts * len(_HALO_DIRECTIONS)
-        self.halo.color = np.tile(HALO_COLOUR, (len(self.halo.text), 1))
+        # every label of a point mark (cardinals, beak, B, -B) and its dark halo in one Text visual
+        # (one draw call): a halo behind every label, so that the green cardinals on the pale
+        # middle of the pattern and the white beak, B and -B on near-white stay legible on any
+        # colour, made of the labels drawn in the halo colour, shifted by HALO_PX pixels along the
+        # four diagonals; the halo's glyphs come first in the visual's buffer, so they are drawn
+        # before (under) the labels, as two visuals drawn one after the other would draw them.
+        # The texts and colours are set once: only the positions follow the pose.
+        self.labels = scene.visuals.Text(color="w", font_size=8, parent=root, anchor_x="center",
+                                         anchor_y="center")
+        self.label_positions = self.halo_positions = None
+        self._label_layers = None
         self._halo_key = None
+        self.show_label_layers(labels=True, halo=True)
         # colour bar in its own fixed view
         self._ramp = np.linspace(0, 1, 256)[None, :].repeat(2, axis=0)
         self.cbar = scene.visuals.Image(np.zeros((2, 256, 4), np.float32), interpolation="linear",
@@ -950,9 +1071,8 @@ class MapView(_Subscriber):
         for node in (self.edges, self.horizon, self.point_marks):
             node.set_gl_state("translucent", depth_test=False)
             node.order = 10
-        self.halo.order = 11
         self.labels.order = 12
-        _share_fonts([self.halo, self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
+        _share_fonts([self.labels, self.cbar_text] + [v for ax in (self.xaxis, self.yaxis)
                                                        for v in (ax.axis._text, ax.axis._axis_label_vis)])
         # the axes and the colour bar's ramp change only with the zoom, the size or the display:
         # drawn once and kept as pixels (retina_viewer.canvas.StaticLayer); per frame only the
@@ -965,7 +1085,7 @@ class MapView(_Subscriber):
         self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
-        self.view.scene.events.transform_change.connect(self._place_halo)
+        self.view.scene.events.transform_change.connect(self._place_labels)
         self._subscribe_pose(state, follow)
         self._show_pose(*self._pose_of(None), draw=False)
         self._subscribe(state, ("result",) + _COLOUR_EVENTS, lambda e: self._update_image())
@@ -985,7 +1105,7 @@ class MapView(_Subscriber):
         the axes' ends again and draw once more with the new ticks.  The labels' halo is placed
         again if the view's pixels per degree changed (a resize: the grid lays out while drawing),
         which draws once more as well."""
-        self._place_halo()
+        self._place_labels()
         if not self._axes_stale:
             return
         self._axes_stale = False
@@ -1059,33 +1179,62 @@ class MapView(_Subscriber):
         sizes = self.label_sizes()
         self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
                                              gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
-        self.labels.pos = self.label_positions
-        self._place_halo()
+        self._place_labels()
         if draw:
             self.canvas.update()
 
-    def _place_halo(self, event=None) -> None:
-        """Put the halo's copies of the labels :data:`HALO_PX` canvas pixels around each label.
+    def _place_labels(self, event=None) -> None:
+        """Put the labels at :attr:`label_positions` and the halo's copies :data:`HALO_PX` canvas
+        pixels around each label (:attr:`halo_positions`).
 
-        The labels are placed in map degrees and drawn at a fixed size in pixels, so the shift in
-        degrees follows the zoom and the view's size: this runs when the labels move and when the
-        map's scene transform changes (pan, zoom, resize), and sets the positions only when they
-        differ.
+        The labels are placed in map degrees and drawn at a fixed size in pixels, so the halo's
+        shift in degrees follows the zoom and the view's size: this runs when the labels move and
+        when the map's scene transform changes (pan, zoom, resize), and sets the positions only
+        when they differ.  Before the view has a size (no pixels per degree yet) the halo sits
+        under the labels; the first draw places it (``_after_draw``).
         """
         if self.label_positions is None:
             return
+        pos = np.asarray(self.label_positions, float)
         tr = self.labels.get_transform("visual", "canvas")
         o, ex, ey = tr.map(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]))[:, :2]
         px_x, px_y = abs(ex[0] - o[0]), abs(ey[1] - o[1])     # pixels per map degree
-        if not (np.isfinite(px_x) and np.isfinite(px_y) and px_x > 0 and px_y > 0):
-            return
-        key = (round(px_x, 6), round(px_y, 6), np.asarray(self.label_positions).tobytes())
+        if np.isfinite(px_x) and np.isfinite(px_y) and px_x > 0 and px_y > 0:
+            scale = (round(px_x, 6), round(px_y, 6))
+            shift = _HALO_DIRECTIONS * HALO_PX / np.array([px_x, px_y])   # (4, 2) map degrees
+        else:
+            scale, shift = None, np.zeros_like(_HALO_DIRECTIONS)
+        key = (scale, pos.tobytes(), self._label_layers)
         if key == self._halo_key:
             return
         self._halo_key = key
-        shift = _HALO_DIRECTIONS * HALO_PX / np.array([px_x, px_y])   # (8, 2) map degrees
-        pos = np.asarray(self.label_positions, float)
-        self.halo.pos = (pos[None, :, :] + shift[:, None, :]).reshape(-1, 2).astype(np.float32)
+        self.halo_positions = (pos[None, :, :] + shift[:, None, :]).reshape(-1, 2)
+        labels, halo = self._label_layers
+        parts = ([self.halo_positions] if halo else []) + ([pos] if labels else [])
+        if parts:
+            self.labels.pos = np.vstack(parts).astype(np.float32)
+
+    def show_label_layers(self, *, labels: bool = True, halo: bool = True) -> None:
+        """Draw the labels of the point marks, their halo, both (the default) or neither.
+
+        Parameters
+        ----------
+        labels, halo : bool
+            Whether the labels and their halo are drawn (one Text visual, :attr:`labels`).
+        """
+        layers = (bool(labels), bool(halo))
+        if layers == self._label_layers:
+            return
+        self._label_layers = layers
+        n = len(_HALO_DIRECTIONS)
+        texts = (self.label_texts * n if halo else []) + (list(self.label_texts) if labels else [])
+        colours = [np.tile(HALO_COLOUR, (n * len(self.label_texts), 1))] if halo else []
+        colours += [self._label_colours] if labels else []
+        self.labels.visible = bool(texts)
+        if texts:
+            self.labels.text = texts
+            self.labels.color = np.vstack(colours)
+        self._place_labels()
 
     def label_sizes(self) -> np.ndarray:
         """The boxes of the map's labels: 7 x 13 pixels per character (8 pt text) at the
@@ -1130,7 +1279,7 @@ class MapView(_Subscriber):
         if changed or not np.array_equal(cols.image, self.rgba):
             changed = True
             self.rgba = cols.image
-            self.image.set_data(self.rgba)
+            self.image.set_data(cols.image if cols.image_bytes is None else cols.image_bytes)
         flat = bool(getattr(res, "flat", False))
         locked = cols.locked
         if display == "modulation":

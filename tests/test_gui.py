@@ -1017,9 +1017,12 @@ def test_axes_and_colour_bar_stay_put_when_the_map_zooms(window, qapp):
     from retina_viewer.views import HALO_PX
     tr = mv.labels.get_transform("visual", "canvas")
     lab = tr.map(np.asarray(mv.label_positions, float))[:, :2]
-    halo = tr.map(np.asarray(mv.halo.pos, float))[:, :2].reshape(-1, len(lab), 2)
+    halo = tr.map(np.asarray(mv.halo_positions, float))[:, :2].reshape(-1, len(lab), 2)
     assert len(halo) >= 4
     np.testing.assert_allclose(np.abs(halo - lab[None]), HALO_PX, atol=0.02)
+    # drawn from the one Text visual: the halo's copies first (under the labels), then the labels
+    drawn = np.asarray(mv.labels.pos, float)[:, :2]
+    np.testing.assert_allclose(drawn, np.vstack([mv.halo_positions, mv.label_positions]), rtol=1e-6)
 
 
 def test_receptor_under_the_cursor(window):
@@ -1682,6 +1685,49 @@ def test_head_static_layer_keeps_depth_and_is_the_same_picture(window, qapp):
     assert layer.captures == captures + 1
 
 
+def test_map_flat_image_is_vispys_image_pixel_for_pixel(window, qapp):
+    """The map's image is drawn by a one-texel-fetch visual from 8-bit colours
+    (retina_viewer.views.flat_image_class).  Reference: vispy's ``Image`` visual (the reference
+    library) with the same RGBA floats, ``interpolation="nearest"`` and its default colour limits
+    and gamma, at the same place in the same scene: the frames must be equal pixel for pixel, for
+    the pattern shown, for a random image with translucent pixels (a hidden eye is drawn
+    translucent grey), and at a zoom where one texel covers many pixels."""
+    from vispy import scene
+
+    from retina_viewer.views import image_bytes
+
+    view = window.map_view
+    window.show()
+    assert _process_until(qapp, lambda: view.draws >= 1)
+    ref = scene.visuals.Image(view.rgba, interpolation="nearest", parent=view.image.parent)
+    ref.transform = view.image.transform
+    ref.order = view.image.order - 1  # drawn where the map's image is: before the grid lines
+    view.canvas._draw_order.clear()   # vispy caches the draw order; the new visual goes in it
+    rng = np.random.default_rng(7)
+    noise = rng.uniform(0.0, 1.0, view.rgba.shape).astype(np.float32)
+    noise[..., 3] = np.where(rng.uniform(size=noise.shape[:2]) < 0.3, 0.18, 1.0)
+    try:
+        for rgba, zoom in ((view.rgba, None), (noise, None), (noise, ((-20.0, 5.0), (-8.0, 9.0)))):
+            view.image.set_data(rgba)
+            ref.set_data(rgba)
+            if zoom is not None:
+                view.view.camera.set_range(x=zoom[0], y=zoom[1], margin=0.0)
+                _frame(view)   # the labels' halo is placed again after the first frame at a new zoom
+            ref.visible, view.image.visible = False, True
+            mine = _frame(view, one_pass=True)
+            ref.visible, view.image.visible = True, False
+            theirs = _frame(view, one_pass=True)
+            np.testing.assert_array_equal(mine, theirs)
+    finally:
+        ref.parent = None
+        view.image.visible = True
+        view.canvas._draw_order.clear()
+        view.reset_range()
+    # derived: an 8-bit normalised texture stores round(255 c) (OpenGL's float-to-unorm rule)
+    c = np.array([[[0.0, 0.5 / 255, 1.5 / 255, 1.0]]], np.float32)
+    assert image_bytes(c).tolist() == [[[0, 0, 2, 255]]]
+
+
 def _grab_rgb(widget) -> np.ndarray:
     """A widget painted by Qt (``QWidget.grab``) as RGB ``(H, W, 3)`` uint8."""
     from PyQt6.QtGui import QImage
@@ -1856,17 +1902,16 @@ def test_label_text_keeps_the_frame_opaque_and_shows_no_false_colours(window, qa
         assert view.render()[..., 3].min() == 255, "the text lowered the frame's alpha"   # (1)
     rendered = mv.render()[..., :3].astype(int)
     on_screen = _on_screen_rgb(mv.canvas.native).astype(int)
-    assert np.all(mv.halo.color.rgba == (0.0, 0.0, 0.0, 1.0))   # (4) assumes a black halo
-    mv.labels.visible = False
+    n_halo = len(mv.halo_positions)                               # (4) assumes a black halo
+    assert n_halo == 4 * len(mv.label_texts)
+    assert np.all(mv.labels.color.rgba[:n_halo] == (0.0, 0.0, 0.0, 1.0))
+    mv.show_label_layers(labels=False, halo=True)
     try:
         behind = mv.render()[..., :3].astype(int)          # the same frame without the labels
-        mv.halo.visible = False
-        try:
-            bare = mv.render()[..., :3].astype(int)        # ... and without their halo
-        finally:
-            mv.halo.visible = True
+        mv.show_label_layers(labels=False, halo=False)
+        bare = mv.render()[..., :3].astype(int)            # ... and without their halo
     finally:
-        mv.labels.visible = True
+        mv.show_label_layers(labels=True, halo=True)
     h, w = rendered.shape[:2]
     white = [k for k, c in enumerate(mv._label_colours) if np.all(c[:3] == 1.0)]
     assert [mv.label_texts[k] for k in white] == ["beak", "B", "-B"]
