@@ -169,6 +169,13 @@ ESTIMATORS = ("product", "paired")
 #: direction sampled with the same random vectors.
 CONTROLS = ("opposite", "none")
 DEFAULT_CONTROL = "opposite"
+#: Bases of the random phases (module docstring) and the default.
+BASES = _prop.BASES
+DEFAULT_BASIS = "lab"
+#: Split tail (module docstring): beyond ``DEFAULT_TAIL_SPLIT`` lifetimes only ``TAIL_STATES``
+#: draws per radical are propagated on.
+DEFAULT_TAIL_SPLIT = None
+TAIL_STATES = 2
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
                  "none": "no control variate"}
@@ -184,23 +191,31 @@ class SampledYields:
         The estimate for each direction.
     standard_error : ndarray (N,)
         Its standard error per direction (``standard_error_of`` a unit weight).
-    parts : tuple of ndarray (R, N)
-        Independent per-draw terms whose sample variances over ``R`` add up to the estimate's
-        variance (``"paired"``: the per-draw estimates; ``"product"``: the jackknife terms of radical
-        A and of radical B).  The same random vectors serve every direction, so any linear
-        combination ``c`` over directions has standard error ``sqrt(sum_k var(parts_k @ c) / R)``.
+    parts : tuple of ndarray (n_k, N)
+        Independent per-draw terms whose sample variances over their ``n_k`` rows, each divided by
+        ``n_k``, add up to the estimate's variance (``"paired"``: the per-draw estimates;
+        ``"product"``: the jackknife terms of radical A and of radical B; with a split tail each of
+        these as two strata, module docstring).  The same random vectors serve every direction, so
+        any linear combination ``c`` over directions has standard error
+        ``sqrt(sum_k var(parts_k @ c) / n_k)``.
     bias_bound : float
         Bound on the deterministic error (quadrature and truncation) of every value.
     estimator : str
         ``"product"`` or ``"paired"`` (module docstring).
     n_states : int
-        Random vectors per radical.
+        Random vectors per radical (the larger count when they differ).
     control : str
         The control variate, one of :data:`CONTROLS` (module docstring).
-    plain_parts : tuple of ndarray (R, N)
+    plain_parts : tuple of ndarray (n_k, N)
         With a control, the per-draw terms of the estimate without it (the field ``b`` alone, from
         the same draws), so that the control's variance reduction is measured in every run
         (:meth:`variance_reduction`); empty without a control.
+    states : tuple of int
+        Random vectors of radical A and of radical B.
+    basis : str
+        The basis of the random phases, one of :data:`BASES` (module docstring).
+    tail_split : float or None
+        Lifetimes after which only :data:`TAIL_STATES` draws per radical went on (``None``: all).
     """
 
     mean: np.ndarray
@@ -211,6 +226,9 @@ class SampledYields:
     n_states: int = 0
     control: str = "none"
     plain_parts: tuple = ()
+    states: tuple = ()
+    basis: str = "lab"
+    tail_split: float | None = None
 
     @staticmethod
     def _variance(parts, weights) -> float:
@@ -405,9 +423,21 @@ def _check_jobs(n_jobs) -> int:
     return int(n_jobs)
 
 
-def _one_field(rads, bvec, k, m_tot, bias_tol, estimator):
-    """Estimate and per-draw terms ``[(R,), ...]`` for one field vector ``bvec`` (tesla), and the
-    bound on its deterministic error."""
+def _strata(rows, r: int, r_tail: int) -> list:
+    """Per-draw terms ``rows (R, ...)`` as the parts of a stratified variance (module docstring,
+    split tail): with ``r_tail < R`` the draws ``< r_tail`` (propagated to the end) and the rest
+    (stopped at the split) are two strata, each scaled by its share ``n_s / R`` so that the sample
+    variance of a part over its ``n_s`` rows, divided by ``n_s``, is ``n_s s_s^2 / R^2`` and the
+    parts' means add up to the mean of ``rows``."""
+    if r_tail >= r:
+        return [rows]
+    return [rows[:r_tail] * (r_tail / r), rows[r_tail:] * ((r - r_tail) / r)]
+
+
+def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None):
+    """Estimate and per-draw terms ``[(n_s,), ...]`` for one field vector ``bvec`` (tesla), and the
+    bound on its deterministic error.  ``tail = (k T_split, r_tail)`` splits the time integral:
+    beyond ``T_split`` only the first ``r_tail`` draws of each radical go on (module docstring)."""
     # rigorous spectral bounds per block (Gershgorin, Weyl per nucleus and per group), then the
     # time grid from the radicals' spreads
     hams = [[_prop.block_hamiltonian(pb, bvec) for pb in prepared] for prepared, _ in rads]
@@ -418,67 +448,98 @@ def _one_field(rads, bvec, k, m_tot, bias_tol, estimator):
     gamma, fit_err = _prop.end_correction(k, h, w_tot * h, bias_tol / 10.0)
     n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
     n_t = max(n_t, gamma.shape[0])
-    series = [_prop.radical_series(prepared, hs, xis, h, n_t) for (prepared, xis), hs in zip(rads, hams)]
-    decay = np.exp(-kh * np.arange(n_t))
-
-    def quad(f):                 # the end-corrected trapezoid rule on the last axis (linear)
-        return kh * (f @ decay - 0.5 * f[..., 0]) - f[..., :gamma.shape[0]] @ gamma
-
+    rs = [xis[0].shape[1] for _, xis in rads]
+    n_split, r_tails = n_t, list(rs)
+    if tail is not None:
+        # the split lies on the grid, after the end correction's samples; a radical splits only
+        # when both strata keep at least 2 draws (each needs a sample variance)
+        n_split = min(n_t, max(int(math.ceil(tail[0] / kh)), gamma.shape[0]))
+        r_tails = [int(tail[1]) if r - int(tail[1]) >= 2 and int(tail[1]) >= 2 else r for r in rs]
+    series = [_prop.radical_series(prepared, hs, xis, h, n_t, n_split=n_split, r_tail=rt)
+              for (prepared, xis), hs, rt in zip(rads, hams, r_tails)]
+    # the end-corrected trapezoid rule as weights (linear), split into the early and tail times
+    weights = kh * np.exp(-kh * np.arange(n_t))
+    weights[0] *= 0.5
+    weights[:gamma.shape[0]] -= gamma
+    w_early = np.where(np.arange(n_t) < n_split, weights, 0.0)
+    w_tail = weights - w_early
+    a_s, b_s = series
+    (r_a, r_b), (t_a, t_b) = rs, r_tails
+    a_e, b_e = a_s.mean(axis=0), b_s.mean(axis=0)             # early times: all draws
+    a_t, b_t = a_s[:t_a].mean(axis=0), b_s[:t_b].mean(axis=0)  # tail times: the first r_tail
     if estimator == "paired":
-        f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
-        parts = [0.25 + quad(f) / m_tot]
-        mean = float(parts[0].mean())
+        # one stratified sum: u_i = Q_e(a_i b_i) + (R / r_tail) [i < r_tail] Q_t(a_i b_i)
+        f = np.einsum("rjc,rjc,c->rj", a_s, b_s, _MULT)
+        u = f @ w_early
+        u[:t_a] += (r_a / t_a) * (f[:t_a] @ w_tail)
+        rows = 0.25 + u / m_tot
+        mean = float(rows.mean())
+        parts = _strata(rows, r_a, t_a)
     else:
-        abar, bbar = series[0].mean(axis=0), series[1].mean(axis=0)
-        mean = 0.25 + float(quad(np.einsum("jc,jc,c->j", abar, bbar, _MULT))) / m_tot
-        parts = [0.25 + quad(np.einsum("rjc,jc,c->rj", series[0], bbar, _MULT)) / m_tot,
-                 0.25 + quad(np.einsum("jc,rjc,c->rj", abar, series[1], _MULT)) / m_tot]
+        mean = 0.25 + float(np.einsum("jc,jc,c->j", a_e, b_e, _MULT) @ w_early
+                            + np.einsum("jc,jc,c->j", a_t, b_t, _MULT) @ w_tail) / m_tot
+        # jackknife terms of each radical (module docstring), with its tail draws weighted up
+        u = np.einsum("rjc,jc,c->rj", a_s, b_e, _MULT) @ w_early
+        u[:t_a] += (r_a / t_a) * (np.einsum("rjc,jc,c->rj", a_s[:t_a], b_t, _MULT) @ w_tail)
+        v = np.einsum("jc,rjc,c->rj", a_e, b_s, _MULT) @ w_early
+        v[:t_b] += (r_b / t_b) * (np.einsum("jc,rjc,c->rj", a_t, b_s[:t_b], _MULT) @ w_tail)
+        parts = _strata(0.25 + u / m_tot, r_a, t_a) + _strata(0.25 + v / m_tot, r_b, t_b)
     bias = 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh)
     return mean, parts, bias
 
 
-def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none"):
+def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none",
+                       basis="lab", tail=None):
     """Estimates, per-draw terms, bias bound and the per-draw terms without the control for field
     vectors ``b_all (N, 3)`` (tesla, already on the upper hemisphere); the random vectors come from
-    ``seed`` alone.  With ``control="opposite"`` each field is also sampled at ``-b`` with the same
-    vectors and the two are averaged (module docstring)."""
+    ``seed`` alone (``n_states``: an int, or one count per radical).  With ``control="opposite"``
+    each field is also sampled at ``-b`` with the same vectors and the two are averaged (module
+    docstring); ``basis`` and ``tail`` as in :func:`sampled_yields`."""
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
+    states = _states_pair(n_states)
     rads = []
-    for rad in system.radicals:
+    for rad, r in zip(system.radicals, states):
         prepared = _prop.prepare(rad)
-        rads.append((prepared, _prop.random_vectors(prepared, int(n_states), rng)))
+        rads.append((prepared, _prop.random_vectors(prepared, r, rng, radical=rad, basis=basis)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     n_dir = b_all.shape[0]
-    r = int(n_states)
-    n_parts = 1 if estimator == "paired" else 2
-    parts = [np.empty((r, n_dir)) for _ in range(n_parts)]
-    plain = [np.empty((r, n_dir)) for _ in range(n_parts)] if control != "none" else []
+    cols, plain_cols = [], []
     mean = np.empty(n_dir)
     bias = 0.0
     for i, bvec in enumerate(b_all):
-        m_i, p_i, b_i = _one_field(rads, bvec, k, m_tot, bias_tol, estimator)
+        m_i, p_i, b_i = _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail)
         if control == "opposite":
             # the control D = Y(b) - Y(-b) (expectation exactly zero) with beta = 1/2
-            m_o, p_o, b_o = _one_field(rads, -bvec, k, m_tot, bias_tol, estimator)
-            for whole, piece in zip(plain, p_i):
-                whole[:, i] = piece
+            m_o, p_o, b_o = _one_field(rads, -bvec, k, m_tot, bias_tol, estimator, tail)
+            plain_cols.append(p_i)
             m_i = 0.5 * (m_i + m_o)
             p_i = [0.5 * (x + y) for x, y in zip(p_i, p_o)]
             b_i = max(b_i, b_o)
         mean[i] = m_i
-        for whole, piece in zip(parts, p_i):
-            whole[:, i] = piece
+        cols.append(p_i)
         bias = max(bias, b_i)
         if progress is not None:
             progress(i + 1, n_dir)
-    return mean, parts, bias, plain
+
+    def stack(columns):        # per part, (n_s, N) from the directions' (n_s,) columns
+        return [np.stack([c[j] for c in columns], axis=1) for j in range(len(columns[0]))] if columns else []
+
+    return mean, stack(cols), bias, stack(plain_cols)
 
 
-def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
+def _states_pair(n_states) -> tuple:
+    """``(R_A, R_B)`` from an int (both radicals) or a pair."""
+    if isinstance(n_states, (tuple, list, np.ndarray)):
+        return int(n_states[0]), int(n_states[1])
+    return int(n_states), int(n_states)
+
+
+def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, seed: int = 0,
                    bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
                    progress: Callable[[int, int], None] | None = None,
-                   n_jobs: int | None = None, control: str = DEFAULT_CONTROL) -> SampledYields:
+                   n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
+                   basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -489,8 +550,10 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         Field strength in microtesla.
     directions : array_like (N, 3)
         Field directions in the molecular frame.
-    n_states : int
-        Random vectors per radical (independent draws, >= 2).
+    n_states : int or (int, int)
+        Random vectors per radical (independent draws, >= 2): one count for both radicals, or one
+        per radical (A, B; the product estimator only) to spend the draws where the variance is
+        (module docstring, unequal states).
     seed : int
         Seed of the random vectors (the same vectors serve every direction).
     bias_tol : float
@@ -503,8 +566,14 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         random vectors, so the result does not depend on it beyond rounding.
     control : {"opposite", "none"}
         The control variate (module docstring): ``"opposite"`` also samples ``-b`` with the same
-        random vectors and averages (twice the cost; the anisotropy's variance falls about
-        tenfold); ``"none"`` samples each direction once.
+        random vectors and averages (twice the cost); ``"none"`` samples each direction once.
+    basis : {"nucleus-axis", "lab"}
+        The basis in which the random phases are drawn (module docstring): each nucleus quantised
+        along its own dominant hyperfine axis, or the laboratory ``I_z`` basis.
+    tail_split : float or None
+        Split tail (module docstring): beyond ``tail_split`` lifetimes (``k t``) only
+        :data:`TAIL_STATES` draws per radical go on, the rest stop; ``None`` propagates every draw
+        to the end.
 
     Returns
     -------
@@ -522,20 +591,31 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
 
     check_scope(system)
     dirs = _check_inputs(field_uT, directions)
-    if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
-        raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
+    pair = n_states if isinstance(n_states, (tuple, list, np.ndarray)) else (n_states, n_states)
+    if len(pair) != 2 or any(isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < 2 for x in pair):
+        raise InputError(f"expected at least 2 random states (one count, or one per radical), got {n_states!r}",
+                         key="n_states")
     if estimator not in ESTIMATORS:
         raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
                          key="estimator")
+    if estimator == "paired" and pair[0] != pair[1]:
+        raise InputError(f"the paired estimator needs equal states per radical, got {n_states!r}", key="n_states")
     if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
     if control not in CONTROLS:
         raise InputError(f"expected a control among {', '.join(CONTROLS)}, got {control!r}", key="control")
+    if basis not in BASES:
+        raise InputError(f"expected a sampling basis among {', '.join(BASES)}, got {basis!r}", key="basis")
+    if tail_split is not None and not (isinstance(tail_split, (int, float, np.floating)) and np.isfinite(tail_split)
+                                       and tail_split > 0):
+        raise InputError(f"expected a positive number of lifetimes (or None) for the tail split, got {tail_split!r}",
+                         key="tail_split")
+    states = (int(pair[0]), int(pair[1]))
+    tail = None if tail_split is None else (float(tail_split), TAIL_STATES)
     # directions that share an upper-hemisphere representative (b and -b) share one estimate
     b_all, inverse = np.unique(_upper(dirs) * (float(field_uT) * 1e-6), axis=0, return_inverse=True)
     inverse = np.asarray(inverse).ravel()
     n_dir = b_all.shape[0]
-    r = int(n_states)
     n_jobs = _check_jobs(n_jobs)
     if progress is not None and n_dir != dirs.shape[0]:
         outer, n_all = progress, dirs.shape[0]
@@ -543,8 +623,8 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         def progress(done, total):          # in units of the directions asked for
             outer(n_all if done >= total else done * n_all // total, n_all)
     if n_jobs == 1 or n_dir < 2:
-        mean, parts, bias, plain = _sample_directions(system, b_all, r, seed, bias_tol, estimator, progress,
-                                                      control)
+        mean, parts, bias, plain = _sample_directions(system, b_all, states, seed, bias_tol, estimator, progress,
+                                                      control, basis, tail)
     else:
         # worker processes over directions; every worker draws the same random vectors from the
         # seed, so the errors stay shared across directions exactly as in one process
@@ -553,26 +633,28 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         step = max(1, min(_BATCH, -(-n_dir // n_jobs)))
         starts = list(range(0, n_dir, step))
         results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
-            delayed(_sample_directions)(system, b_all[i:i + step], r, seed, bias_tol, estimator, None, control)
+            delayed(_sample_directions)(system, b_all[i:i + step], states, seed, bias_tol, estimator, None, control,
+                                        basis, tail)
             for i in starts)
-        mean = np.empty(n_dir)
-        n_parts = 1 if estimator == "paired" else 2
-        parts = [np.empty((r, n_dir)) for _ in range(n_parts)]
-        plain = [np.empty((r, n_dir)) for _ in range(n_parts)] if control != "none" else []
+        means, part_list, plain_list = [], [], []
         bias = 0.0
         for i, (m_i, p_i, b_i, q_i) in zip(starts, results):
-            stop = i + m_i.shape[0]
-            mean[i:stop] = m_i
-            for whole, piece in zip(parts + plain, p_i + q_i):
-                whole[:, i:stop] = piece
+            means.append(m_i)
+            part_list.append(p_i)
+            plain_list.append(q_i)
             bias = max(bias, b_i)
             if progress is not None:
-                progress(stop, n_dir)
+                progress(i + m_i.shape[0], n_dir)
+        mean = np.concatenate(means)
+        parts = [np.concatenate([p[j] for p in part_list], axis=1) for j in range(len(part_list[0]))]
+        plain = ([np.concatenate([p[j] for p in plain_list], axis=1) for j in range(len(plain_list[0]))]
+                 if plain_list[0] else [])
     mean = mean[inverse]
     parts = [p[:, inverse] for p in parts]
     plain = [p[:, inverse] for p in plain]
-    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
-    return SampledYields(mean, se, tuple(parts), bias, estimator, r, control, tuple(plain))
+    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
+    return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
+                         states=states, basis=basis, tail_split=tail_split)
 
 
 #: Most random states :func:`states_for` asks for.
