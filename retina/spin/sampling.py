@@ -100,6 +100,60 @@ exactly ``X`` is the nuclear operator ``Tr_e[S_a S_b(t)]``, whose squared Froben
 (typicality), and a pair with radicals 32 times larger needs about 32 times fewer states for the
 same relative error.
 
+The basis of the phases (``basis``, default ``"nucleus-axis"``)
+----------------------------------------------------------------
+The variance ``sum_{i != j} |X_ij|^2`` is that of the off-diagonal part of ``X`` *in the basis in
+which the phases are drawn*.  For any fixed unitary ``V``, ``xi = V z`` (``z`` random phases) still
+has ``E[xi xi^+] = V V^+ = 1``, so the estimator stays unbiased in every basis (derived), but its
+variance becomes ``sum_{i != j} |(V^+ X V)_ij|^2``.  With ``"nucleus-axis"``, ``V = kron_k D_k``
+with ``D_k`` the spin rotation taking ``z`` to nucleus ``k``'s principal axis of largest
+``|A|`` (:func:`retina.spin._propagation.spin_rotation`, :func:`~retina.spin._propagation.dominant_axis`):
+each nucleus is quantised along its own dominant hyperfine axis.  A nucleus with a strongly
+axial tensor (``A ~ a_par n n^T``, the nitrogens of many pairs) nearly conserves ``I . n``: the
+term ``a_par (S . n)(I . n)`` commutes with it and the rest (the perpendicular couplings, the
+electron Zeeman term) is small against ``a_par``.  Then ``X`` is nearly block diagonal over the
+eigenvalues ``m`` of ``I . n``, and the random-phase terms between different ``m``, which carry
+most of the variance in the laboratory basis, nearly vanish: the phases stratify ``m`` for free, at
+no extra propagation.  When ``I . n`` is conserved exactly (``a_perp = 0``, zero field) that
+nucleus contributes no variance at all (checked in the tests).  The basis only rotates the random
+vectors before propagation; nothing else changes.  Measured on the invented axial 10-nucleus pair
+of ``benchmarks/bench_spin_large.py`` (radicals 144 x 144, the 63 directions of a degree-8 fit,
+8 states per radical, the same seeds for both bases): {BASIS_NUMBERS}
+
+Split tail (``tail_split``, default 3 lifetimes)
+------------------------------------------------
+The kernel ``k e^{-kt}`` weights late times little, so the sampling noise of the time integral
+beyond ``T_s`` is small: the noise of one draw's correlation is roughly stationary in time and
+decorrelates within the hyperfine periods, so the variance of the integral from ``T_s`` on is
+about ``e^{-2 k T_s}`` of the whole (measured on the axial 10-nucleus pair, difference of the
+extreme directions with the control, 16 states: 0.24 % from 3 lifetimes on, 0.05 % from 4, against
+``e^{-6} = 0.25 %`` and ``e^{-8} = 0.03 %``), while propagating to the truncation time
+``ln(1.5 / bias_tol) / k`` (14 lifetimes at the default ``bias_tol``) costs 14 / 3 times as much as
+propagating to 3 lifetimes.  So all ``R`` draws of a radical run to ``T_s = tail_split / k`` and
+only the first ``r = TAIL_STATES`` go on to the end; the integral's early part averages over all
+draws and its tail over the first ``r``.  Unbiased (derived: each part is a product of the two
+radicals' independent unbiased means), with the jackknife term of draw ``i`` of a radical
+``u_i = Q_early[c_i cbar] + (R / r) [i < r] Q_tail[c_i cbar_tail]`` (``cbar``, ``cbar_tail``: the
+other radical's means over its draws and over its tail draws), whose mean over ``i`` is the
+estimate.  The ``u_i`` are independent but of two kinds, so their variance is estimated by strata
+(draws ``< r`` and the rest): ``Var = sum_s n_s s_s^2 / R^2`` with ``s_s^2`` the sample variance in
+stratum ``s`` (unbiased for each stratum; derived), which is what the parts hold: each stratum's
+terms scaled by ``n_s / R``, so that their sample variance over ``n_s`` draws divided by ``n_s``
+is ``n_s s_s^2 / R^2`` and the strata's means add up to the estimate.  A radical splits only when
+both strata keep at least 2 draws (``R >= 4``); the split lies on the time grid after the end
+correction's samples.  The deterministic error bound (``bias_bound``) is unchanged: every time
+sample of the full grid is still estimated, by fewer draws late.
+
+Unequal states per radical (``n_states=(R_A, R_B)``)
+----------------------------------------------------
+The product estimator's variance is ``v_A / R_A + v_B / R_B`` (its two jackknife terms, above; each
+radical's per-draw variance ``v_r``), and the cost ``c_A R_A + c_B R_B``.  At a fixed variance the
+cost is least at ``R_r ~ sqrt(v_r / c_r)`` (derived: Lagrange multipliers), with a gain of
+``(v_A + v_B)(c_A + c_B) / (sqrt(v_A c_A) + sqrt(v_B c_B))^2`` over equal counts.  On the axial
+pairs the radical with the weaker nitrogens (B) carries most of the variance of the anisotropy;
+:func:`states_for` sizes both counts from a pilot's ``v_r`` and the cost model's ``c_r``
+(:meth:`SampledYields.radical_variances` gives the two terms of any run).
+
 The ``2 R`` vectors of a radical (a block of states, ``dim x 2R``) are propagated together on the
 time grid ``t_j = j h`` by Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff,
 J. Chem. Phys. 81, 3967 (1984), from memory), truncated at ``retina.spin._propagation.CHEB_TOL`` in norm, with a compiled
@@ -137,6 +191,7 @@ times the lifetime, and linear in the radical dimension rather than cubic (:func
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 import time
 from dataclasses import dataclass
@@ -171,10 +226,13 @@ CONTROLS = ("opposite", "none")
 DEFAULT_CONTROL = "opposite"
 #: Bases of the random phases (module docstring) and the default.
 BASES = _prop.BASES
-DEFAULT_BASIS = "lab"
+DEFAULT_BASIS = "nucleus-axis"
+#: Names of the bases in provenance and summaries.
+BASIS_NAMES = {"lab": "random phases in the laboratory basis",
+               "nucleus-axis": "random phases with each nucleus quantised along its dominant hyperfine axis"}
 #: Split tail (module docstring): beyond ``DEFAULT_TAIL_SPLIT`` lifetimes only ``TAIL_STATES``
 #: draws per radical are propagated on.
-DEFAULT_TAIL_SPLIT = None
+DEFAULT_TAIL_SPLIT = 3.0
 TAIL_STATES = 2
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
@@ -256,6 +314,30 @@ class SampledYields:
         """
         return math.sqrt(self._variance(self.parts, weights))
 
+    def radical_variances(self, weights=None):
+        """The product estimator's two variance terms, of radical A's draws and of radical B's
+        (their sum is the squared standard error), per direction or for ``sum_i weights_i Phi_i``.
+
+        Parameters
+        ----------
+        weights : array_like (N,), optional
+            A linear combination of the directions (default: every direction apart).
+
+        Returns
+        -------
+        (ndarray (N,) or float, ndarray (N,) or float)
+        """
+        if self.estimator != "product":
+            raise ValueError("the variance splits by radical only for the product estimator")
+        half = len(self.parts) // 2
+        out = []
+        for parts in (self.parts[:half], self.parts[half:]):
+            if weights is None:
+                out.append(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
+            else:
+                out.append(self._variance(parts, weights))
+        return out[0], out[1]
+
     def variance_reduction(self, weights) -> float:
         """The control's variance reduction for ``sum_i weights_i Phi_i``: the variance without
         the control over the variance with it, both estimated from the same draws (``nan`` without
@@ -333,15 +415,51 @@ def matvec_seconds() -> float:
     return float(np.median(times)) / (d * per_row * n_vec)
 
 
-def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
+def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
+    """``([seconds of radical A, of B], peak bytes, n_t)`` for one field direction (no control):
+    the model of :func:`cost_model`, one radical at a time."""
+    from retina.spin.equivalence import groups, multiplicities
+
+    k = float(system.k_singlet)
+    spreads = [_model_spread(r, field_uT) for r in system.radicals]
+    h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
+    n_t = math.log(1.5 / bias_tol) / (k * h) + 1
+    n_early = n_t if tail_split is None else min(n_t, float(tail_split) / (k * h))
+    out = []
+    mem = 0
+    for rad, spread, r in zip(system.radicals, spreads, states):
+        r_tail = TAIL_STATES if (tail_split is not None and r - TAIL_STATES >= 2) else r
+        vec = 2 * r
+        # vector-steps in units of 2 R vectors over n_t steps (the split tail runs fewer vectors)
+        steps = n_early + (n_t - n_early) * r_tail / r
+        a = 0.5 * spread
+        grp = groups(rad)
+        options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
+        secs = 0.0
+        for choice in itertools.product(*options) if options else [()]:
+            dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j in choice])) if choice else 2
+            nnz = _nnz_row([j for j in choice if j > 0])
+            m = _prop.substeps(a, h, nnz)
+            n_c = a * h * m + 25
+            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
+            secs += steps * per_step
+            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+        out.append(secs)
+    return out, mem, n_t
+
+
+def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
                field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
-               measured: bool = False, control: str = DEFAULT_CONTROL) -> tuple[float, int, str]:
+               measured: bool = False, control: str = DEFAULT_CONTROL,
+               tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
     ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
     25`` Chebyshev vectors per expansion of ``m`` steps, :func:`retina.spin._propagation.substeps`) and one correlation
-    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Times in units of
+    step; the time step and Chebyshev half-width from :func:`_model_spread`.  With a split tail
+    the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end (the cost is
+    linear in the vectors).  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
     measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
@@ -351,8 +469,8 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
         The pair.
     n_directions : int
         Number of field directions.
-    n_states : int
-        Random vectors per radical.
+    n_states : int or (int, int)
+        Random vectors per radical (one count, or one per radical).
     field_uT : float
         Field strength in microtesla (for the spectral spread).
     bias_tol : float
@@ -362,42 +480,40 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     control : {"opposite", "none"}
         The control variate: ``"opposite"`` samples every direction twice (``b`` and ``-b``), so
         it doubles the time.
+    tail_split : float or None
+        The split tail of :func:`sampled_yields` (lifetimes), ``None`` for none.
+    basis : str
+        The basis of the random phases (named in the note; it does not change the cost).
 
     Returns
     -------
     (float, int, str)
         Seconds, bytes and a note in words.
     """
-    from retina.spin.equivalence import groups, multiplicities
-
-    k = float(system.k_singlet)
     t_mv = matvec_seconds() if measured else _T_MATVEC
-    spreads = [_model_spread(r, field_uT) for r in system.radicals]
-    h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
-    n_t = math.log(1.5 / bias_tol) / (k * h) + 1
-    vec = 2 * int(n_states)
-    secs = 0.0
-    mem = 0
-    for rad, spread in zip(system.radicals, spreads):
-        a = 0.5 * spread
-        grp = groups(rad)
-        options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
-        import itertools
-
-        for choice in itertools.product(*options) if options else [()]:
-            dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j in choice])) if choice else 2
-            nnz = _nnz_row([j for j in choice if j > 0])
-            m = _prop.substeps(a, h, nnz)
-            n_c = a * h * m + 25
-            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
-            secs += n_t * per_step
-            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+    states = _states_pair(n_states)
+    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv)
+    secs = sum(per_radical)
     # per-draw series of both radicals (R, n_t, 9) and their products
-    mem += 8 * n_states * n_t * (2 * 9 + 4)
+    mem += 8 * max(states) * n_t * (2 * 9 + 4)
     fields = 2 if control == "opposite" else 1
-    note = (f"{n_directions} x {fields} stochastic trace estimates with {n_states} random states per radical, "
-            f"{int(n_t)} time steps, {CONTROL_NAMES[control]} (an approximation with error bars)")
+    note = (f"{n_directions} x {fields} stochastic trace estimates with {_states_words(states)}, "
+            f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]} "
+            f"(an approximation with error bars)")
     return fields * n_directions * secs, int(1.3 * mem + 2**20), note
+
+
+def _states_words(states) -> str:
+    """``"16 random states per radical"`` or ``"4 + 8 random states (radicals A, B)"``."""
+    a, b = _states_pair(states)
+    return f"{a} random states per radical" if a == b else f"{a} + {b} random states (radicals A, B)"
+
+
+def _tail_words(tail_split) -> str:
+    """The split tail in words (empty without one)."""
+    if tail_split is None:
+        return ""
+    return f" (beyond {float(tail_split):g} lifetimes only {TAIL_STATES} states per radical go on)"
 
 
 def _upper(dirs: np.ndarray) -> np.ndarray:
@@ -664,16 +780,23 @@ PILOT_STATES, PILOT_DIRECTIONS = 4, 6
 
 
 def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
-               n_jobs: int | None = None, control: str = DEFAULT_CONTROL) -> tuple[int, float]:
-    """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
+               n_jobs: int | None = None, control: str = DEFAULT_CONTROL, basis: str = DEFAULT_BASIS,
+               tail_split: float | None = DEFAULT_TAIL_SPLIT) -> tuple[tuple[int, int], float]:
+    """Random states per radical needed for a standard error of at most ``accuracy`` per yield, by
+    a pilot run.
 
     The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
     spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
-    independent of it: the choice of ``R`` then does not bias the final estimate or its error
-    bar).  Since the variance falls as ``1 / R``, ``R = ceil(1.2 PILOT_STATES (se / accuracy)^2)``
-    with ``se`` the pilot's largest standard error, between ``PILOT_STATES`` and ``MAX_STATES``.
-    The pilot uses the final run's control variate, so ``se`` already carries its variance
-    reduction (the pilot costs twice as much with ``"opposite"``, like the run).
+    independent of it: the choice of the counts then does not bias the final estimate or its error
+    bar).  The product estimator's variance is ``v_A / R_A + v_B / R_B`` (module docstring) with
+    per-draw variances ``v_r`` measured by the pilot (its direction of largest variance); with
+    costs per state ``c_r`` (:func:`cost_model`, one radical at a time) the cheapest counts that
+    meet ``accuracy^2 / 1.2`` are ``R_r = sqrt(v_r / c_r) (sqrt(v_A c_A) + sqrt(v_B c_B)) /
+    (accuracy^2 / 1.2)`` (derived: Lagrange multipliers), each between ``PILOT_STATES`` and
+    ``MAX_STATES``; equal variances and costs give the equal counts ``1.2 PILOT_STATES (se /
+    accuracy)^2`` of the pilot's standard error ``se``.  The pilot uses the final run's control
+    variate, basis and split tail, so ``v_r`` already carries their effect (the pilot costs twice
+    as much with ``"opposite"``, like the run).
 
     Parameters
     ----------
@@ -688,11 +811,15 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
         Worker processes over the pilot's directions (as in :func:`sampled_yields`).
     control : {"opposite", "none"}
         The final run's control variate (:func:`sampled_yields`).
+    basis : str
+        The final run's basis of the random phases (:func:`sampled_yields`).
+    tail_split : float or None
+        The final run's split tail (:func:`sampled_yields`).
 
     Returns
     -------
-    (int, float)
-        The number of states and the pilot's largest standard error.
+    ((int, int), float)
+        The numbers of states of radicals A and B, and the pilot's largest standard error.
     """
     from retina.errors import InputError
 
@@ -702,10 +829,19 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
     dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
     pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
     pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1, n_jobs=n_jobs,
-                           control=control)
+                           control=control, basis=basis, tail_split=tail_split)
     se = float(np.max(pilot.standard_error))
-    r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
-    return max(PILOT_STATES, min(MAX_STATES, r)), se
+    var_a, var_b = pilot.radical_variances()
+    worst = int(np.argmax(var_a + var_b))
+    v = [PILOT_STATES * float(var_a[worst]), PILOT_STATES * float(var_b[worst])]
+    ref = 16
+    cost = [max(c / ref, 1e-30) for c in _radical_seconds(system, field_uT, DEFAULT_BIAS_TOL, (ref, ref), tail_split,
+                                                         _T_MATVEC)[0]]
+    target = accuracy**2 / 1.2
+    scale = sum(math.sqrt(max(vr, 0.0) * cr) for vr, cr in zip(v, cost)) / target
+    states = tuple(max(PILOT_STATES, min(MAX_STATES, int(math.ceil(math.sqrt(max(vr, 0.0) / cr) * scale))))
+                   for vr, cr in zip(v, cost))
+    return states, se
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
