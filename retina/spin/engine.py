@@ -13,11 +13,14 @@ Methods (all exact for their scope):
   with random vectors propagated in time: **an approximation with error bars**.  ``"auto"`` chooses
   it only when an ``accuracy`` (a standard error per yield the caller accepts) is given and its
   modelled time is below that of every exact method; it then runs with as many random states as
-  a pilot run says the accuracy needs (:func:`retina.spin.sampling.states_for`), in
+  a pilot run says the accuracy needs, one count per radical where the variance and the cost
+  per state are (:func:`retina.spin.sampling.states_for`), in
   ``RETINA_JOBS`` worker processes over directions.  It samples each direction and its opposite
   with the same random vectors and averages them (a control variate whose expectation is exactly
-  zero; the anisotropy's variance falls about tenfold): the pilot, the estimate and the method
-  choice all count that doubled propagation.  An exact
+  zero), draws the random phases with each nucleus quantised along its dominant hyperfine axis,
+  and propagates only two states per radical beyond three lifetimes (the split tail): the pilot,
+  the estimate and the method choice all count these (the cost model follows the split tail and
+  the doubled propagation), and the provenance names them.  An exact
   estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
