@@ -142,3 +142,35 @@ def test_z_scores_stay_standard_with_the_levers(basis, tail_split, states):
         assert abs(z.mean()) < 4 * t_std / np.sqrt(40)
         assert 0.7 * t_std < z.std(ddof=1) < 1.4 * t_std
         assert scipy.stats.kstest(z, scipy.stats.t(df=df).cdf).pvalue > 1e-3
+
+
+def test_cache_key_of_the_sampled_method_names_its_basis_and_split_tail(monkeypatch):
+    # Common practice, no source: a cache key covers everything that changes the stored numbers;
+    # another basis of the phases or another split tail gives other numbers.
+    from retina import cache
+
+    system = _small()
+    key = cache.cache_key(system, 47.0, 8, "sampled", check_points=27)
+    for name, value in (("DEFAULT_BASIS", "lab"), ("DEFAULT_TAIL_SPLIT", None), ("DEFAULT_TAIL_SPLIT", 4.0),
+                        ("TAIL_STATES", 3)):
+        with monkeypatch.context() as m:
+            m.setattr(sampling, name, value)
+            assert cache.cache_key(system, 47.0, 8, "sampled", check_points=27) != key
+    assert cache.cache_key(system, 47.0, 8, "sampled", check_points=27) == key
+
+
+def test_the_pilot_gives_more_states_to_the_radical_with_more_variance_per_cost(monkeypatch):
+    # Derived (states_for): R_r ~ sqrt(v_r / c_r).  With the pilot's variance terms replaced by
+    # v_B = 9 v_A and equal modelled costs, R_B / R_A = 3 (up to the rounding up of each count);
+    # and the counts meet the accuracy: v_A / R_A + v_B / R_B <= accuracy^2 / 1.2.
+    system = _small()
+    dirs = _unit(np.random.default_rng(6), 2)
+    def fake(self, weights=None):
+        return np.array([1e-6, 1e-6]), np.array([9e-6, 9e-6])
+
+    monkeypatch.setattr(sampling.SampledYields, "radical_variances", fake)
+    monkeypatch.setattr(sampling, "_radical_seconds", lambda *a, **k: ([1.0, 1.0], 0, 1))
+    (r_a, r_b), _ = sampling.states_for(system, 50.0, dirs, 1e-3)
+    v_a, v_b = 1e-6 * sampling.PILOT_STATES, 9e-6 * sampling.PILOT_STATES
+    assert r_b / r_a == pytest.approx(3.0, rel=0.1)
+    assert v_a / r_a + v_b / r_b <= 1e-6 / 1.2 * (1 + 1e-12)
