@@ -101,7 +101,7 @@ exactly ``X`` is the nuclear operator ``Tr_e[S_a S_b(t)]``, whose squared Froben
 same relative error.
 
 The basis of the phases (``basis``, default ``"nucleus-axis"``)
-----------------------------------------------------------------
+---------------------------------------------------------------
 The variance ``sum_{i != j} |X_ij|^2`` is that of the off-diagonal part of ``X`` *in the basis in
 which the phases are drawn*.  For any fixed unitary ``V``, ``xi = V z`` (``z`` random phases) still
 has ``E[xi xi^+] = V V^+ = 1``, so the estimator stays unbiased in every basis (derived), but its
