@@ -323,8 +323,8 @@ def bench_sampled_twenty(quick: bool, *, n_states=(4, 8), n_check: int = 8) -> l
     v = [var_a * n_states[0], var_b * n_states[1]]
     need_same = var / target * wall
     best = (sum(np.sqrt(vr * cr) for vr, cr in zip(v, per_state)) ** 2) / target * scale
-    v_plain = [res._variance(res.plain_parts[:len(res.plain_parts) // 2], w) * n_states[0],
-               res._variance(res.plain_parts[len(res.plain_parts) // 2:], w) * n_states[1]]
+    v_plain = [res._variance(res.plain_parts[:res.parts_a], w) * n_states[0],
+               res._variance(res.plain_parts[res.parts_a:], w) * n_states[1]]
     best_plain = (sum(np.sqrt(vr * cr) for vr, cr in zip(v_plain, per_state)) ** 2) / target * scale / 2
     trunc = float(np.max(np.abs(sphere.evaluate(coeffs, check.points) - res.mean[h:h + n_check])))
     se_check = float(np.max(res.standard_error[h:h + n_check]))

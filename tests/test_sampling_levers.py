@@ -105,6 +105,13 @@ def test_split_tail_strata_add_up_to_the_estimate_and_unequal_states_are_kept():
     # without a split, unequal counts give one part per radical with its own number of rows
     res2 = sampling.sampled_yields(system, 50.0, dirs, n_states=(3, 5), seed=1, tail_split=None, control="none")
     assert [p.shape[0] for p in res2.parts] == [3, 5]
+    # a radical with too few draws for two strata (3 - 2 < 2) does not split; the variance terms
+    # still go to the right radical: A's is the sample variance of its 3 draws over 3
+    res3 = sampling.sampled_yields(system, 50.0, dirs, n_states=(6, 3), seed=1, tail_split=1.0, control="none")
+    assert [p.shape[0] for p in res3.parts] == [2, 4, 3] and res3.parts_a == 2
+    var_a, var_b = res3.radical_variances()
+    np.testing.assert_allclose(var_b, np.var(res3.parts[2], axis=0, ddof=1) / 3, rtol=1e-12)
+    np.testing.assert_allclose(var_a + var_b, res3.standard_error**2, rtol=1e-12)
     with pytest.raises(InputError, match="paired"):
         sampling.sampled_yields(system, 50.0, dirs, n_states=(3, 5), estimator="paired")
     with pytest.raises(InputError, match="basis"):

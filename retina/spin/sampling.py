@@ -284,6 +284,9 @@ class SampledYields:
         The basis of the random phases, one of :data:`BASES` (module docstring).
     tail_split : float or None
         Lifetimes after which only :data:`TAIL_STATES` draws per radical went on (``None``: all).
+    parts_a : int
+        How many of the leading ``parts`` (and ``plain_parts``) are radical A's (product
+        estimator: 2 with a split tail, else 1; the rest are B's).
     """
 
     mean: np.ndarray
@@ -297,6 +300,7 @@ class SampledYields:
     states: tuple = ()
     basis: str = "lab"
     tail_split: float | None = None
+    parts_a: int = 1
 
     @staticmethod
     def _variance(parts, weights) -> float:
@@ -339,7 +343,7 @@ class SampledYields:
         """
         if self.estimator != "product":
             raise ValueError("the variance splits by radical only for the product estimator")
-        half = len(self.parts) // 2
+        half = self.parts_a
         out = []
         for parts in (self.parts[:half], self.parts[half:]):
             if weights is None:
@@ -779,8 +783,10 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     parts = [p[:, inverse] for p in parts]
     plain = [p[:, inverse] for p in plain]
     se = np.sqrt(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
+    # radical A's parts lead (product estimator): two strata when it splits (R_A - r >= 2), else one
+    parts_a = 2 if (tail is not None and states[0] - TAIL_STATES >= 2) else 1
     return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
-                         states=states, basis=basis, tail_split=tail_split)
+                         states=states, basis=basis, tail_split=tail_split, parts_a=parts_a)
 
 
 #: Most random states :func:`states_for` asks for.
