@@ -163,6 +163,19 @@ pairs the radical with the weaker nitrogens (B) carries most of the variance of 
 :func:`states_for` sizes both counts from a pilot's ``v_r`` and the cost model's ``c_r``
 (:meth:`SampledYields.radical_variances` gives the two terms of any run).
 
+Measured together on the invented axial 20-nucleus pair (``benchmarks/bench_spin_large.py`` row
+5b: 63 directions of a degree-8 fit, each with its opposite, 4 + 8 states, nucleus-axis basis,
+split at 3 lifetimes, 2 worker processes, the machine shared, load 4-5.5): 36.8 min, anisotropy
+1.08e-3 with a standard error of 6.0 % of it (13 % without the control from the same draws: a
+5.1-fold variance reduction), against 9.3 % for 4 + 4 states in the laboratory basis without the
+split in an earlier run (variance 4.2e-9 against 8.6e-9).  At this size radical A carried the
+larger variance term (2.8e-9 against 1.4e-9 for B), unlike at 10 nuclei.  One direction with
+both fields in one process, the same run: 27.3 s for this configuration against 29.0 and 33.4 s
+for 4 + 4 states in the laboratory basis without the split (0.87 of the time for twice B's
+states; the cost model expected 0.70: the few tail vectors use the sparse product less well).
+So the cost per unit variance of the anisotropy fell about 2.3-fold; 2 % would still need about
+5.5 h at that load (the variance falling as ``1 / R``).
+
 The ``2 R`` vectors of a radical (a block of states, ``dim x 2R``) are propagated together on the
 time grid ``t_j = j h`` by Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff,
 J. Chem. Phys. 81, 3967 (1984), from memory), truncated at ``retina.spin._propagation.CHEB_TOL`` in norm, with a compiled
