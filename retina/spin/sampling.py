@@ -151,7 +151,10 @@ terms scaled by ``n_s / R``, so that their sample variance over ``n_s`` draws di
 is ``n_s s_s^2 / R^2`` and the strata's means add up to the estimate.  A radical splits only when
 both strata keep at least 2 draws (``R >= 4``); the split lies on the time grid after the end
 correction's samples.  The deterministic error bound (``bias_bound``) is unchanged: every time
-sample of the full grid is still estimated, by fewer draws late.
+sample of the full grid is still estimated, by fewer draws late.  Measured on the axial
+10-nucleus pair (63 directions with the control, 8 + 8 states, one process, the same run): 106
+and 116 s against 152 s without the split (0.69-0.76 of the time; the cost model says 0.41, but
+at dimension 144 the per-step overheads that do not shrink with the vectors dominate).
 
 Unequal states per radical (``n_states=(R_A, R_B)``)
 ----------------------------------------------------
