@@ -264,7 +264,7 @@ def bench_sampled(quick: bool) -> list[dict]:
     return rows
 
 
-def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) -> list[dict]:
+def bench_sampled_twenty(quick: bool, *, n_states=(4, 8), n_check: int = 8) -> list[dict]:
     """Row 5b: the invented axial 20-nucleus pair at degree 8, sampled for real (not in --quick)."""
     from retina import sphere
     from retina.spin import engine, sampling
@@ -276,13 +276,16 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
     check = sphere.fibonacci(n_check, hemisphere=True)
     dirs = np.concatenate([grid.points[half], check.points, -check.points[:3]], axis=0)
     n_unique = half.size + n_check                     # opposite directions are sampled once
-    # the engine's estimate (RETINA_JOBS workers, default states), scaled to the states used
-    est = engine.estimate_cost(system, n_unique, "sampled").seconds * n_states / sampling.DEFAULT_STATES
+    # the engine's estimate (RETINA_JOBS workers, the defaults but these states)
+    est = (engine.estimate_cost(system, n_unique, "sampled").seconds
+           * sampling.cost_model(system, 1, n_states=n_states)[0] / sampling.cost_model(system, 1)[0])
+    states_txt = sampling._states_words(n_states)
     if quick:
         return [dict(name="sampled, axial 20 nuclei (4608x4608), degree 8", measured="(not run)",
                      reference=f"{est / 60:.1f} min (est.)", ratio="-", target="<= 15 min", passed=True,
-                     note=f"--quick: not run; the engine's estimate for {n_unique} directions, {n_states} "
-                          f"states, {jobs} worker(s)")]
+                     note=f"--quick: not run; the engine's estimate for {n_unique} directions, {states_txt}, "
+                          f"{jobs} worker(s)")]
+    load0 = os.getloadavg()[0]
     t0 = time.perf_counter()
 
     def progress(done, total):
@@ -290,6 +293,7 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
 
     res = sampling.sampled_yields(system, 50.0, dirs, n_states=n_states, seed=0, n_jobs=jobs, progress=progress)
     wall = time.perf_counter() - t0
+    load1 = os.getloadavg()
     h = half.size
 
     def fit(values):
@@ -300,22 +304,28 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
     vals = sphere.evaluate(coeffs, pts)
     p_hi, p_lo = pts[int(np.argmax(vals))], pts[int(np.argmin(vals))]
     aniso = float(vals.max() - vals.min())
-
-    def functional(values):        # fitted maximum minus fitted minimum (linear in the values)
-        v = sphere.evaluate(fit(values), np.stack([p_hi, p_lo]))
-        return v[0] - v[1]
-
-    def variance(parts):
-        return sum(float(np.var([functional(row) for row in part], ddof=1)) / part.shape[0] for part in parts)
-
-    var = variance(res.parts)
+    # the fitted maximum minus the fitted minimum is linear in the values: its weights per direction
+    eye = np.eye(len(dirs))
+    w = np.array([np.subtract(*sphere.evaluate(fit(e), np.stack([p_hi, p_lo]))) for e in eye])
+    var = res.standard_error_of(w) ** 2
     se_aniso = float(np.sqrt(var))
+    var_a, var_b = res.radical_variances(w)
     # the same draws without the control (the field b alone): the control's measured variance reduction
-    var_plain = variance(res.plain_parts) if res.plain_parts else float("nan")
+    var_plain = res._variance(res.plain_parts, w) if res.plain_parts else float("nan")
     reduction = var_plain / var
-    # states (and so time, linear in them) that 2 % would need, from SE ~ 1 / sqrt(R)
-    need = (se_aniso / (0.02 * aniso)) ** 2
-    need_plain = var_plain / (0.02 * aniso) ** 2 if res.plain_parts else float("nan")
+    # minutes 2 % would need (variance ~ v_A / R_A + v_B / R_B, time ~ the cost model's split per
+    # radical scaled to this run's wall time), with these counts scaled up and with the best counts
+    target = (0.02 * aniso) ** 2
+    c_a, c_b = sampling._radical_seconds(system, 50.0, sampling.DEFAULT_BIAS_TOL, n_states, sampling.DEFAULT_TAIL_SPLIT,
+                                         sampling._T_MATVEC)[0]
+    per_state = [c_a / n_states[0], c_b / n_states[1]]
+    scale = wall / (c_a + c_b)                                       # model seconds -> this run's seconds
+    v = [var_a * n_states[0], var_b * n_states[1]]
+    need_same = var / target * wall
+    best = (sum(np.sqrt(vr * cr) for vr, cr in zip(v, per_state)) ** 2) / target * scale
+    v_plain = [res._variance(res.plain_parts[:res.parts_a], w) * n_states[0],
+               res._variance(res.plain_parts[res.parts_a:], w) * n_states[1]]
+    best_plain = (sum(np.sqrt(vr * cr) for vr, cr in zip(v_plain, per_state)) ** 2) / target * scale / 2
     trunc = float(np.max(np.abs(sphere.evaluate(coeffs, check.points) - res.mean[h:h + n_check])))
     se_check = float(np.max(res.standard_error[h:h + n_check]))
     return [dict(
@@ -323,14 +333,17 @@ def bench_sampled_twenty(quick: bool, *, n_states: int = 4, n_check: int = 8) ->
         reference=f"{est / 60:.1f} min (est.)", ratio=f"{wall / est:.2f}", target="<= 15 min",
         passed=wall <= 900 and se_aniso < 0.02 * aniso,
         note=f"a real run: {len(dirs)} directions ({h} Lebedev hemisphere, {n_check} check, 3 antipodal; "
-             f"{n_unique} sampled, each with its opposite: {res.control} control), {n_states} random states per "
-             f"radical, {jobs} worker process(es), "
+             f"{n_unique} sampled, each with its opposite: {res.control} control), {states_txt}, "
+             f"{sampling.BASIS_NAMES[res.basis]}{sampling._tail_words(res.tail_split)}, {jobs} worker process(es), "
+             f"load average {load0:.1f} at the start and {load1[0]:.1f} / {load1[1]:.1f} (1 / 5 min) at the end; "
              f"{wall / n_unique * jobs:.1f} s per direction and worker; anisotropy {aniso:.3g} (mean "
              f"{res.mean.mean():.4f}), its standard error {se_aniso:.2g} = {100 * se_aniso / aniso:.2g} % "
-             f"(target < 2 %); without the control, from the same draws: {100 * np.sqrt(var_plain) / aniso:.2g} % "
-             f"(variance reduction {reduction:.1f} for twice the propagation); 2 % would need about "
-             f"{need * wall / 60:.0f} min with the control ({need * n_states:.0f} states) and "
-             f"{need_plain * wall / 120:.0f} min without it (time taken linear in the states); "
+             f"(target < 2 %; variance terms of radical A {var_a:.2g}, B {var_b:.2g}); without the control, from "
+             f"the same draws: {100 * np.sqrt(var_plain) / aniso:.2g} % (variance reduction {reduction:.1f} for "
+             f"twice the propagation); 2 % would need about {need_same / 60:.0f} min with these counts scaled up, "
+             f"{best / 60:.0f} min with the best counts per radical (R_B / R_A = "
+             f"{np.sqrt(v[1] / per_state[1] / (v[0] / per_state[0])):.1f}), {best_plain / 60:.0f} min with the best "
+             f"counts without the control (time linear in the states); "
              f"SE per yield up to {np.max(res.standard_error):.2g}; bias bound "
              f"{res.bias_bound:.1g}; check directions: largest |fit - value| {trunc:.2g} against SE "
              f"{se_check:.2g} (truncation and noise together); reference: the engine's estimate")]

@@ -201,10 +201,11 @@ def test_product_estimator_jackknife_terms_average_to_the_estimate():
     # jackknife terms g_i = 1/4 + Q[c^A_i cbar^B]/M average over i to the estimate itself, and so do
     # the h_j; the standard error is sqrt(var(g)/R + var(h)/R).  The paired estimator on the same
     # states estimates the same yield (both unbiased): they differ by a few standard errors at most.
+    # Without the split tail (its strata: tests/test_sampling_levers.py).
     system = _small(k=3e7)
     dirs = _unit(np.random.default_rng(13), 3)
-    prod = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4)
-    pair = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4, estimator="paired")
+    prod = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4, tail_split=None)
+    pair = sampling.sampled_yields(system, 50.0, dirs, n_states=6, seed=4, estimator="paired", tail_split=None)
     assert prod.estimator == "product" and len(prod.parts) == 2 and len(pair.parts) == 1
     for part in prod.parts:
         np.testing.assert_allclose(part.mean(axis=0), prod.mean, rtol=0, atol=1e-14)
@@ -366,7 +367,9 @@ def test_opposite_control_averages_b_and_minus_b_from_the_same_states():
     plain = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=5, control="none")
     b = dirs * 50e-6
     mean, parts, _, extra = sampling._sample_directions(system, np.concatenate([b, -b]), 4, 5,
-                                                       sampling.DEFAULT_BIAS_TOL, "product", None, "none")
+                                                       sampling.DEFAULT_BIAS_TOL, "product", None, "none",
+                                                       sampling.DEFAULT_BASIS,
+                                                       (sampling.DEFAULT_TAIL_SPLIT, sampling.TAIL_STATES))
     assert extra == []
     np.testing.assert_allclose(with_c.mean, 0.5 * (mean[:3] + mean[3:]), rtol=0, atol=1e-14)
     for got, whole in zip(with_c.parts, parts):

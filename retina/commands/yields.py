@@ -135,7 +135,10 @@ def summary(yf, output, wall_seconds: float) -> str:
     if p.get("method_error_bound_max") is not None:
         lines.insert(-1, f"  stated error bound of the method: {p['method_error_bound_max']:.1g} per direction")
     if p.get("approximation"):
-        lines.insert(-1, f"  APPROXIMATION: {p['approximation']} with {p.get('sampling_states', '?')} random states; "
+        states = p.get('sampling_states', '?')
+        if p.get('sampling_states_a') is not None and p.get('sampling_states_a') != p.get('sampling_states_b'):
+            states = f"{p['sampling_states_a']} + {p['sampling_states_b']} (radicals A, B)"
+        lines.insert(-1, f"  APPROXIMATION: {p['approximation']} with {states} random states; "
                          f"standard error up to {p.get('sampling_standard_error_max', float('nan')):.2g} per direction "
                          f"(errors shared across directions), deterministic bias <= "
                          f"{p.get('sampling_bias_bound', float('nan')):.1g}")

@@ -425,9 +425,13 @@ def correlations(re, im, n: int, r: int, mult: float, out):
         out[:, :, 6 + ci] += 0.5 * (cab[..., ia, ib] - cab[..., ib, ia])
 
 
-def radical_series(prepared, hams, xis, h, n_t):
+def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None):
     """Per-draw correlation estimates ``c_ab(t_j)``, shape (R, n_t, 9) (six symmetric, three
     antisymmetric combinations as in :mod:`retina.spin.fast_separable`).
+
+    With ``n_split`` and ``r_tail`` only the first ``r_tail`` draws are propagated beyond grid time
+    ``n_split`` (the sampling module's split tail); the other draws' entries from ``n_split`` on
+    are zero.
 
     ``prepared``: the radical's blocks; ``hams``: ``(H, lo, hi)`` per block
     (:func:`block_hamiltonian`); ``xis``: the nuclear random vectors per block, ``(n, R)``.
@@ -444,6 +448,10 @@ def radical_series(prepared, hams, xis, h, n_t):
         Time step, s.
     n_t : int
         Number of grid times ``0, h, ..., (n_t - 1) h``.
+    n_split : int, optional
+        First grid time at which only ``r_tail`` draws go on (default: all draws to the end).
+    r_tail : int, optional
+        Draws propagated from ``n_split`` on (the first ``r_tail``).
 
     Returns
     -------
@@ -451,6 +459,8 @@ def radical_series(prepared, hams, xis, h, n_t):
     """
     r = xis[0].shape[1]
     out = np.zeros((r, n_t, 9))
+    if n_split is None or r_tail is None or r_tail >= r or n_split >= n_t:
+        n_split, r_tail = n_t, r
     for pb, (hm, lo, hi), xi in zip(prepared, hams, xis):
         n = pb.nuclear_dimension
         c = 0.5 * (lo + hi)
@@ -480,26 +490,35 @@ def radical_series(prepared, hams, xis, h, n_t):
         mult = float(pb.block.multiplicity)
         correlations(np.ascontiguousarray(v.real)[None], np.ascontiguousarray(v.imag)[None], n, r, mult,
                       out[:, 0:1])
-        rows_a = np.empty((n_c,) + v.shape)
-        rows_b = np.empty((n_c,) + v.shape)
-        xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
-        ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
-        xs[0][...] = v.real
-        ys[0][...] = v.imag
-        flat_a = rows_a.reshape(n_c, -1)
-        flat_b = rows_b.reshape(n_c, -1)
+
+        def workspace(v_re, v_im):
+            rows_a = np.empty((n_c,) + v_re.shape)
+            rows_b = np.empty((n_c,) + v_re.shape)
+            xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
+            ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
+            xs[0][...] = v_re
+            ys[0][...] = v_im
+            return v_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1)
+
+        shape, xs, ys, flat_a, flat_b = workspace(v.real, v.imag)
+        rr = r
         j = 1
         while j < n_t:
-            m = min(m_sub, n_t - j)
+            if j >= n_split and rr > r_tail:
+                # the tail: keep the first r_tail draws (their psi_up and psi_down columns)
+                keep = np.r_[0:r_tail, r:r + r_tail]
+                rr = r_tail
+                shape, xs, ys, flat_a, flat_b = workspace(xs[0][:, keep], ys[0][:, keep])
+            m = min(m_sub, n_t - j, n_split - j) if j < n_split else min(m_sub, n_t - j)
             # the Chebyshev vectors T_n((H - c)/a) v, then all m states by two real matrix products
             if n_c > 1:
                 cheb_step(hs.indptr, hs.indices, dr, di, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
             for k in range(2, n_c):
                 cheb_step(hs.indptr, hs.indices, dr, di, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2], ys[k - 2],
                            xs[k], ys[k])
-            re = (c_re[:m] @ flat_a).reshape((m,) + v.shape)
-            im = (c_im[:m] @ flat_b).reshape((m,) + v.shape)
-            correlations(re, im, n, r, mult, out[:, j:j + m])
+            re = (c_re[:m] @ flat_a).reshape((m,) + shape)
+            im = (c_im[:m] @ flat_b).reshape((m,) + shape)
+            correlations(re, im, n, rr, mult, out[:rr, j:j + m])
             xs[0][...] = re[m - 1]
             ys[0][...] = im[m - 1]
             j += m
@@ -541,9 +560,115 @@ def end_correction(k: float, h: float, theta_max: float, tol: float):
     return gamma, err
 
 
-def random_vectors(prepared, n_states, rng):
+#: Bases in which the random phases are drawn (:func:`random_vectors`; the sampling module's
+#: docstring derives why the basis matters).
+BASES = ("lab", "nucleus-axis")
+
+
+def spin_rotation(j: float, axis) -> np.ndarray:
+    """The spin-``j`` rotation ``D`` taking ``z`` to the unit vector ``axis``:
+    ``D J_z D^+ = axis . J`` (derived: ``D = exp(-i theta u . J)`` with ``u = z x n / |z x n|`` and
+    ``theta = arccos n_z`` rotates the vector operator ``J`` by the rotation ``R`` taking ``z`` to
+    ``n``, so ``D J_z D^+ = (R z) . J``).
+
+    Parameters
+    ----------
+    j : float
+        Spin quantum number (0.5, 1, ...).
+    axis : array_like (3,)
+        Target direction (normalised here).
+
+    Returns
+    -------
+    ndarray (2j + 1, 2j + 1) complex
+        Unitary; its column ``m`` is the eigenvector of ``axis . J`` with eigenvalue ``j - m``.
+    """
+    import scipy.linalg
+
+    from retina.spin.operators import spin_matrices
+
+    n = np.asarray(axis, dtype=float)
+    n = n / np.linalg.norm(n)
+    u = np.cross([0.0, 0.0, 1.0], n)
+    s = float(np.linalg.norm(u))
+    theta = math.atan2(s, n[2])
+    if s < 1e-15:
+        u = np.array([1.0, 0.0, 0.0])
+    else:
+        u = u / s
+    jm = np.asarray(spin_matrices(j))
+    return scipy.linalg.expm(-1j * theta * np.einsum("a,aij->ij", u, jm))
+
+
+def dominant_axis(a_mT) -> np.ndarray:
+    """The principal axis of the largest principal value in modulus of a hyperfine tensor's
+    symmetric part (the axis along which that nucleus is quantised by ``"nucleus-axis"``).
+
+    Parameters
+    ----------
+    a_mT : array_like (3, 3)
+
+    Returns
+    -------
+    ndarray (3,)
+        Unit vector (sign arbitrary: both signs give the same quantisation).
+    """
+    a = np.asarray(a_mT, dtype=float)
+    w, v = np.linalg.eigh(0.5 * (a + a.T))
+    return v[:, int(np.argmax(np.abs(w)))]
+
+
+def basis_rotations(radical, pb, basis: str) -> list:
+    """Per nuclear factor of block ``pb`` the unitary whose columns are the sampling basis
+    (:data:`BASES`): identities for ``"lab"``; for ``"nucleus-axis"`` the spin rotation taking ``z``
+    to the factor's dominant hyperfine axis (:func:`dominant_axis`, :func:`spin_rotation`).
+
+    Parameters
+    ----------
+    radical : retina.spin.system.Radical
+    pb : PreparedBlock
+    basis : str
+
+    Returns
+    -------
+    list of ndarray (2J + 1, 2J + 1)
+        One per pseudo-nucleus of non-zero total spin, in the block's factor order.
+    """
+    out = []
+    for j, a_mT in pseudo_nuclei(radical, pb.block):
+        if j <= 0:
+            continue
+        dim = int(round(2 * j)) + 1
+        out.append(np.eye(dim, dtype=complex) if basis == "lab" else spin_rotation(j, dominant_axis(a_mT)))
+    return out
+
+
+def rotate_factors(vectors: np.ndarray, rotations) -> np.ndarray:
+    """``(kron_k D_k) v`` for a block of vectors ``v (n, R)`` without forming the Kronecker product.
+
+    Parameters
+    ----------
+    vectors : ndarray (n, R)
+        ``n = prod_k dim D_k``.
+    rotations : list of ndarray
+        One square matrix per factor, the first factor the slowest index.
+
+    Returns
+    -------
+    ndarray (n, R) complex
+    """
+    dims = [d.shape[0] for d in rotations]
+    r = vectors.shape[1]
+    x = np.asarray(vectors, dtype=complex).reshape(dims + [r])
+    for k, d in enumerate(rotations):
+        x = np.moveaxis(np.tensordot(d, x, axes=([1], [k])), 0, k)
+    return x.reshape(vectors.shape)
+
+
+def random_vectors(prepared, n_states, rng, *, radical=None, basis: str = "lab"):
     """Nuclear random vectors ``xi (n, R)`` per block: independent entries of unit modulus and
-    uniformly random phase.
+    uniformly random phase in the sampling basis (``E[xi xi^+] = 1`` in every basis, since the
+    basis change is unitary).
 
     Parameters
     ----------
@@ -553,11 +678,21 @@ def random_vectors(prepared, n_states, rng):
         Random vectors ``R`` per block.
     rng : numpy.random.Generator
         Source of the phases.
+    radical : retina.spin.system.Radical, optional
+        The radical (needed for ``basis="nucleus-axis"``).
+    basis : {"lab", "nucleus-axis"}
+        The basis of the phases (:data:`BASES`): the product basis of ``I_z`` eigenstates, or each
+        nucleus quantised along its own dominant hyperfine axis.  The phases drawn from ``rng`` are
+        the same for both, so the two bases can be compared on the same draws.
 
     Returns
     -------
     list of ndarray (n, R) complex
     """
-    return [np.exp(2j * np.pi * rng.random((pb.nuclear_dimension, n_states))) for pb in prepared]
-
-
+    out = []
+    for pb in prepared:
+        z = np.exp(2j * np.pi * rng.random((pb.nuclear_dimension, n_states)))
+        if basis != "lab":
+            z = rotate_factors(z, basis_rotations(radical, pb, basis))
+        out.append(z)
+    return out

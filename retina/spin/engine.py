@@ -13,11 +13,14 @@ Methods (all exact for their scope):
   with random vectors propagated in time: **an approximation with error bars**.  ``"auto"`` chooses
   it only when an ``accuracy`` (a standard error per yield the caller accepts) is given and its
   modelled time is below that of every exact method; it then runs with as many random states as
-  a pilot run says the accuracy needs (:func:`retina.spin.sampling.states_for`), in
+  a pilot run says the accuracy needs, one count per radical where the variance and the cost
+  per state are (:func:`retina.spin.sampling.states_for`), in
   ``RETINA_JOBS`` worker processes over directions.  It samples each direction and its opposite
   with the same random vectors and averages them (a control variate whose expectation is exactly
-  zero; the anisotropy's variance falls about tenfold): the pilot, the estimate and the method
-  choice all count that doubled propagation.  An exact
+  zero), draws the random phases with each nucleus quantised along its dominant hyperfine axis,
+  and propagates only two states per radical beyond three lifetimes (the split tail): the pilot,
+  the estimate and the method choice all count these (the cost model follows the split tail and
+  the doubled propagation), and the provenance names them.  An exact
   estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).
@@ -497,9 +500,10 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
                             sampling_pilot_standard_error=float(slope * pilot_se),
                             sampling_accuracy_met=met)
                 if not met:
-                    _log.warning("%r: the sampled standard error %.2g exceeds the requested %.2g (%d random "
+                    _log.warning("%r: the sampled standard error %.2g exceeds the requested %.2g (%s random "
                                  "states%s)", system.name, slope * np.max(res.standard_error), accuracy,
-                                 n_states, ", the most allowed" if n_states >= sampling.MAX_STATES else "")
+                                 " + ".join(str(r) for r in res.states),
+                                 ", the most allowed" if max(res.states) >= sampling.MAX_STATES else "")
             if spread > 0 and res.mean.shape[0] > 1:
                 # standard error of the difference between the extreme computed directions, over it
                 info.update(sampling_anisotropy_relative_error=res.standard_error_of(w) / spread)
@@ -507,10 +511,15 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
                     # the control's variance reduction on that difference, measured from the same draws
                     info.update(sampling_control_variance_reduction=res.variance_reduction(w))
             info.update(approximation=f"stochastic trace estimation, {res.estimator} estimator, "
-                                      f"{sampling.CONTROL_NAMES[res.control]} (sampled)",
+                                      f"{sampling.CONTROL_NAMES[res.control]}, {sampling.BASIS_NAMES[res.basis]}"
+                                      f"{sampling._tail_words(res.tail_split)} (sampled)",
                         sampling_estimator=res.estimator,
                         sampling_control=res.control,
+                        sampling_basis=res.basis,
+                        sampling_tail_split=(float(res.tail_split) if res.tail_split is not None else 0.0),
                         sampling_states=int(res.n_states),
+                        sampling_states_a=int(res.states[0]),
+                        sampling_states_b=int(res.states[1]),
                         sampling_standard_error_max=float(slope * np.max(res.standard_error)),
                         sampling_bias_bound=float(slope * res.bias_bound))
         return equal_rate_reported_yield(system, res.mean)

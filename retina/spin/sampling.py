@@ -100,6 +100,85 @@ exactly ``X`` is the nuclear operator ``Tr_e[S_a S_b(t)]``, whose squared Froben
 (typicality), and a pair with radicals 32 times larger needs about 32 times fewer states for the
 same relative error.
 
+The basis of the phases (``basis``, default ``"nucleus-axis"``)
+---------------------------------------------------------------
+The variance ``sum_{i != j} |X_ij|^2`` is that of the off-diagonal part of ``X`` *in the basis in
+which the phases are drawn*.  For any fixed unitary ``V``, ``xi = V z`` (``z`` random phases) still
+has ``E[xi xi^+] = V V^+ = 1``, so the estimator stays unbiased in every basis (derived), but its
+variance becomes ``sum_{i != j} |(V^+ X V)_ij|^2``.  With ``"nucleus-axis"``, ``V = kron_k D_k``
+with ``D_k`` the spin rotation taking ``z`` to nucleus ``k``'s principal axis of largest
+``|A|`` (:func:`retina.spin._propagation.spin_rotation`, :func:`~retina.spin._propagation.dominant_axis`):
+each nucleus is quantised along its own dominant hyperfine axis.  A nucleus with a strongly
+axial tensor (``A ~ a_par n n^T``, the nitrogens of many pairs) nearly conserves ``I . n``: the
+term ``a_par (S . n)(I . n)`` commutes with it and the rest (the perpendicular couplings, the
+electron Zeeman term) is small against ``a_par``.  Then ``X`` is nearly block diagonal over the
+eigenvalues ``m`` of ``I . n``, and the random-phase terms between different ``m``, which carry
+most of the variance in the laboratory basis, nearly vanish: the phases stratify ``m`` for free, at
+no extra propagation.  When ``I . n`` is conserved exactly (``a_perp = 0``, zero field) that
+nucleus contributes no variance at all (checked in the tests).  The basis only rotates the random
+vectors before propagation; nothing else changes.  Measured on the invented axial 10-nucleus pair
+of ``benchmarks/bench_spin_large.py`` (radicals 144 x 144, the 63 directions of a degree-8 fit,
+8 states per radical, the same seeds for both bases): over 8
+seeds, the variance of the fitted anisotropy (maximum minus minimum, linear in the values) fell
+1.4-fold with the opposite-direction control (2.6e-7 to 1.9e-7) and 1.9-fold without it (9.7e-7
+to 5.1e-7), and that of single yields (median over directions) 6.3-fold with the control and
+4.5-fold without, for the same time (123 and 129 s a run, the machine shared).  The z-scores of
+the anisotropy against the exact value stayed standard (8 seeds: mean 0.60, standard deviation
+1.13, Kolmogorov-Smirnov p = 0.51 against Student's t with 7 degrees of freedom; without the
+control 0.09, 1.31, p = 0.96).  The gain is smallest on the controlled anisotropy because most of
+its remaining variance is radical B's (weaker nitrogens, protons of comparable size), which the
+basis barely touches (1.5e-7 of the 1.9e-7).
+
+Split tail (``tail_split``, default 3 lifetimes)
+------------------------------------------------
+The kernel ``k e^{-kt}`` weights late times little, so the sampling noise of the time integral
+beyond ``T_s`` is small: the noise of one draw's correlation is roughly stationary in time and
+decorrelates within the hyperfine periods, so the variance of the integral from ``T_s`` on is
+about ``e^{-2 k T_s}`` of the whole (measured on the axial 10-nucleus pair, difference of the
+extreme directions with the control, 16 states: 0.24 % from 3 lifetimes on, 0.05 % from 4, against
+``e^{-6} = 0.25 %`` and ``e^{-8} = 0.03 %``), while propagating to the truncation time
+``ln(1.5 / bias_tol) / k`` (14 lifetimes at the default ``bias_tol``) costs 14 / 3 times as much as
+propagating to 3 lifetimes.  So all ``R`` draws of a radical run to ``T_s = tail_split / k`` and
+only the first ``r = TAIL_STATES`` go on to the end; the integral's early part averages over all
+draws and its tail over the first ``r``.  Unbiased (derived: each part is a product of the two
+radicals' independent unbiased means), with the jackknife term of draw ``i`` of a radical
+``u_i = Q_early[c_i cbar] + (R / r) [i < r] Q_tail[c_i cbar_tail]`` (``cbar``, ``cbar_tail``: the
+other radical's means over its draws and over its tail draws), whose mean over ``i`` is the
+estimate.  The ``u_i`` are independent but of two kinds, so their variance is estimated by strata
+(draws ``< r`` and the rest): ``Var = sum_s n_s s_s^2 / R^2`` with ``s_s^2`` the sample variance in
+stratum ``s`` (unbiased for each stratum; derived), which is what the parts hold: each stratum's
+terms scaled by ``n_s / R``, so that their sample variance over ``n_s`` draws divided by ``n_s``
+is ``n_s s_s^2 / R^2`` and the strata's means add up to the estimate.  A radical splits only when
+both strata keep at least 2 draws (``R >= 4``); the split lies on the time grid after the end
+correction's samples.  The deterministic error bound (``bias_bound``) is unchanged: every time
+sample of the full grid is still estimated, by fewer draws late.  Measured on the axial
+10-nucleus pair (63 directions with the control, 8 + 8 states, one process, the same run): 106
+and 116 s against 152 s without the split (0.69-0.76 of the time; the cost model says 0.41, but
+at dimension 144 the per-step overheads that do not shrink with the vectors dominate).
+
+Unequal states per radical (``n_states=(R_A, R_B)``)
+----------------------------------------------------
+The product estimator's variance is ``v_A / R_A + v_B / R_B`` (its two jackknife terms, above; each
+radical's per-draw variance ``v_r``), and the cost ``c_A R_A + c_B R_B``.  At a fixed variance the
+cost is least at ``R_r ~ sqrt(v_r / c_r)`` (derived: Lagrange multipliers), with a gain of
+``(v_A + v_B)(c_A + c_B) / (sqrt(v_A c_A) + sqrt(v_B c_B))^2`` over equal counts.  On the axial
+pairs the radical with the weaker nitrogens (B) carries most of the variance of the anisotropy;
+:func:`states_for` sizes both counts from a pilot's ``v_r`` and the cost model's ``c_r``
+(:meth:`SampledYields.radical_variances` gives the two terms of any run).
+
+Measured together on the invented axial 20-nucleus pair (``benchmarks/bench_spin_large.py`` row
+5b: 63 directions of a degree-8 fit, each with its opposite, 4 + 8 states, nucleus-axis basis,
+split at 3 lifetimes, 2 worker processes, the machine shared, load 4-5.5): 36.8 min, anisotropy
+1.08e-3 with a standard error of 6.0 % of it (13 % without the control from the same draws: a
+5.1-fold variance reduction), against 9.3 % for 4 + 4 states in the laboratory basis without the
+split in an earlier run (variance 4.2e-9 against 8.6e-9).  At this size radical A carried the
+larger variance term (2.8e-9 against 1.4e-9 for B), unlike at 10 nuclei.  One direction with
+both fields in one process, the same run: 27.3 s for this configuration against 29.0 and 33.4 s
+for 4 + 4 states in the laboratory basis without the split (0.87 of the time for twice B's
+states; the cost model expected 0.70: the few tail vectors use the sparse product less well).
+So the cost per unit variance of the anisotropy fell about 2.3-fold; 2 % would still need about
+5.5 h at that load (the variance falling as ``1 / R``).
+
 The ``2 R`` vectors of a radical (a block of states, ``dim x 2R``) are propagated together on the
 time grid ``t_j = j h`` by Chebyshev expansions of ``exp(-i H tau)`` (H. Tal-Ezer and R. Kosloff,
 J. Chem. Phys. 81, 3967 (1984), from memory), truncated at ``retina.spin._propagation.CHEB_TOL`` in norm, with a compiled
@@ -131,12 +210,14 @@ is real and even, ``sum_l c_l cos(j Omega_l h) = F(t_j)``, so the correction is
 
 Cost per direction: about ``a T (1 + 25 / (a h m))`` sparse products of each radical's Hamiltonian
 with ``2 R`` vectors (``a`` the Chebyshev half-width), i.e. proportional to the hyperfine bandwidth
-times the lifetime, and linear in the radical dimension rather than cubic (:func:`cost_model`).
+times the lifetime, and linear in the radical dimension rather than cubic (:func:`cost_model`);
+with the split tail ``T`` is ``tail_split / k`` for ``R - TAIL_STATES`` of the draws.
 """
 
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 import time
 from dataclasses import dataclass
@@ -169,6 +250,16 @@ ESTIMATORS = ("product", "paired")
 #: direction sampled with the same random vectors.
 CONTROLS = ("opposite", "none")
 DEFAULT_CONTROL = "opposite"
+#: Bases of the random phases (module docstring) and the default.
+BASES = _prop.BASES
+DEFAULT_BASIS = "nucleus-axis"
+#: Names of the bases in provenance and summaries.
+BASIS_NAMES = {"lab": "random phases in the laboratory basis",
+               "nucleus-axis": "random phases with each nucleus quantised along its dominant hyperfine axis"}
+#: Split tail (module docstring): beyond ``DEFAULT_TAIL_SPLIT`` lifetimes only ``TAIL_STATES``
+#: draws per radical are propagated on.
+DEFAULT_TAIL_SPLIT = 3.0
+TAIL_STATES = 2
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
                  "none": "no control variate"}
@@ -184,23 +275,34 @@ class SampledYields:
         The estimate for each direction.
     standard_error : ndarray (N,)
         Its standard error per direction (``standard_error_of`` a unit weight).
-    parts : tuple of ndarray (R, N)
-        Independent per-draw terms whose sample variances over ``R`` add up to the estimate's
-        variance (``"paired"``: the per-draw estimates; ``"product"``: the jackknife terms of radical
-        A and of radical B).  The same random vectors serve every direction, so any linear
-        combination ``c`` over directions has standard error ``sqrt(sum_k var(parts_k @ c) / R)``.
+    parts : tuple of ndarray (n_k, N)
+        Independent per-draw terms whose sample variances over their ``n_k`` rows, each divided by
+        ``n_k``, add up to the estimate's variance (``"paired"``: the per-draw estimates;
+        ``"product"``: the jackknife terms of radical A and of radical B; with a split tail each of
+        these as two strata, module docstring).  The same random vectors serve every direction, so
+        any linear combination ``c`` over directions has standard error
+        ``sqrt(sum_k var(parts_k @ c) / n_k)``.
     bias_bound : float
         Bound on the deterministic error (quadrature and truncation) of every value.
     estimator : str
         ``"product"`` or ``"paired"`` (module docstring).
     n_states : int
-        Random vectors per radical.
+        Random vectors per radical (the larger count when they differ).
     control : str
         The control variate, one of :data:`CONTROLS` (module docstring).
-    plain_parts : tuple of ndarray (R, N)
+    plain_parts : tuple of ndarray (n_k, N)
         With a control, the per-draw terms of the estimate without it (the field ``b`` alone, from
         the same draws), so that the control's variance reduction is measured in every run
         (:meth:`variance_reduction`); empty without a control.
+    states : tuple of int
+        Random vectors of radical A and of radical B.
+    basis : str
+        The basis of the random phases, one of :data:`BASES` (module docstring).
+    tail_split : float or None
+        Lifetimes after which only :data:`TAIL_STATES` draws per radical went on (``None``: all).
+    parts_a : int
+        How many of the leading ``parts`` (and ``plain_parts``) are radical A's (product
+        estimator: 2 with a split tail, else 1; the rest are B's).
     """
 
     mean: np.ndarray
@@ -211,6 +313,10 @@ class SampledYields:
     n_states: int = 0
     control: str = "none"
     plain_parts: tuple = ()
+    states: tuple = ()
+    basis: str = "lab"
+    tail_split: float | None = None
+    parts_a: int = 1
 
     @staticmethod
     def _variance(parts, weights) -> float:
@@ -237,6 +343,30 @@ class SampledYields:
             the control variate when one was used.
         """
         return math.sqrt(self._variance(self.parts, weights))
+
+    def radical_variances(self, weights=None):
+        """The product estimator's two variance terms, of radical A's draws and of radical B's
+        (their sum is the squared standard error), per direction or for ``sum_i weights_i Phi_i``.
+
+        Parameters
+        ----------
+        weights : array_like (N,), optional
+            A linear combination of the directions (default: every direction apart).
+
+        Returns
+        -------
+        (ndarray (N,) or float, ndarray (N,) or float)
+        """
+        if self.estimator != "product":
+            raise ValueError("the variance splits by radical only for the product estimator")
+        half = self.parts_a
+        out = []
+        for parts in (self.parts[:half], self.parts[half:]):
+            if weights is None:
+                out.append(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
+            else:
+                out.append(self._variance(parts, weights))
+        return out[0], out[1]
 
     def variance_reduction(self, weights) -> float:
         """The control's variance reduction for ``sum_i weights_i Phi_i``: the variance without
@@ -315,15 +445,51 @@ def matvec_seconds() -> float:
     return float(np.median(times)) / (d * per_row * n_vec)
 
 
-def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
+def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
+    """``([seconds of radical A, of B], peak bytes, n_t)`` for one field direction (no control):
+    the model of :func:`cost_model`, one radical at a time."""
+    from retina.spin.equivalence import groups, multiplicities
+
+    k = float(system.k_singlet)
+    spreads = [_model_spread(r, field_uT) for r in system.radicals]
+    h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
+    n_t = math.log(1.5 / bias_tol) / (k * h) + 1
+    n_early = n_t if tail_split is None else min(n_t, float(tail_split) / (k * h))
+    out = []
+    mem = 0
+    for rad, spread, r in zip(system.radicals, spreads, states):
+        r_tail = TAIL_STATES if (tail_split is not None and r - TAIL_STATES >= 2) else r
+        vec = 2 * r
+        # vector-steps in units of 2 R vectors over n_t steps (the split tail runs fewer vectors)
+        steps = n_early + (n_t - n_early) * r_tail / r
+        a = 0.5 * spread
+        grp = groups(rad)
+        options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
+        secs = 0.0
+        for choice in itertools.product(*options) if options else [()]:
+            dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j in choice])) if choice else 2
+            nnz = _nnz_row([j for j in choice if j > 0])
+            m = _prop.substeps(a, h, nnz)
+            n_c = a * h * m + 25
+            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
+            secs += steps * per_step
+            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+        out.append(secs)
+    return out, mem, n_t
+
+
+def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
                field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
-               measured: bool = False, control: str = DEFAULT_CONTROL) -> tuple[float, int, str]:
+               measured: bool = False, control: str = DEFAULT_CONTROL,
+               tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
     ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
     25`` Chebyshev vectors per expansion of ``m`` steps, :func:`retina.spin._propagation.substeps`) and one correlation
-    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Times in units of
+    step; the time step and Chebyshev half-width from :func:`_model_spread`.  With a split tail
+    the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end (the cost is
+    linear in the vectors).  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
     measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
@@ -333,8 +499,8 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
         The pair.
     n_directions : int
         Number of field directions.
-    n_states : int
-        Random vectors per radical.
+    n_states : int or (int, int)
+        Random vectors per radical (one count, or one per radical).
     field_uT : float
         Field strength in microtesla (for the spectral spread).
     bias_tol : float
@@ -344,42 +510,40 @@ def cost_model(system, n_directions: int, *, n_states: int = DEFAULT_STATES,
     control : {"opposite", "none"}
         The control variate: ``"opposite"`` samples every direction twice (``b`` and ``-b``), so
         it doubles the time.
+    tail_split : float or None
+        The split tail of :func:`sampled_yields` (lifetimes), ``None`` for none.
+    basis : str
+        The basis of the random phases (named in the note; it does not change the cost).
 
     Returns
     -------
     (float, int, str)
         Seconds, bytes and a note in words.
     """
-    from retina.spin.equivalence import groups, multiplicities
-
-    k = float(system.k_singlet)
     t_mv = matvec_seconds() if measured else _T_MATVEC
-    spreads = [_model_spread(r, field_uT) for r in system.radicals]
-    h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
-    n_t = math.log(1.5 / bias_tol) / (k * h) + 1
-    vec = 2 * int(n_states)
-    secs = 0.0
-    mem = 0
-    for rad, spread in zip(system.radicals, spreads):
-        a = 0.5 * spread
-        grp = groups(rad)
-        options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
-        import itertools
-
-        for choice in itertools.product(*options) if options else [()]:
-            dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j in choice])) if choice else 2
-            nnz = _nnz_row([j for j in choice if j > 0])
-            m = _prop.substeps(a, h, nnz)
-            n_c = a * h * m + 25
-            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
-            secs += n_t * per_step
-            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+    states = _states_pair(n_states)
+    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv)
+    secs = sum(per_radical)
     # per-draw series of both radicals (R, n_t, 9) and their products
-    mem += 8 * n_states * n_t * (2 * 9 + 4)
+    mem += 8 * max(states) * n_t * (2 * 9 + 4)
     fields = 2 if control == "opposite" else 1
-    note = (f"{n_directions} x {fields} stochastic trace estimates with {n_states} random states per radical, "
-            f"{int(n_t)} time steps, {CONTROL_NAMES[control]} (an approximation with error bars)")
+    note = (f"{n_directions} x {fields} stochastic trace estimates with {_states_words(states)}, "
+            f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]} "
+            f"(an approximation with error bars)")
     return fields * n_directions * secs, int(1.3 * mem + 2**20), note
+
+
+def _states_words(states) -> str:
+    """``"16 random states per radical"`` or ``"4 + 8 random states (radicals A, B)"``."""
+    a, b = _states_pair(states)
+    return f"{a} random states per radical" if a == b else f"{a} + {b} random states (radicals A, B)"
+
+
+def _tail_words(tail_split) -> str:
+    """The split tail in words (empty without one)."""
+    if tail_split is None:
+        return ""
+    return f" (beyond {float(tail_split):g} lifetimes only {TAIL_STATES} states per radical go on)"
 
 
 def _upper(dirs: np.ndarray) -> np.ndarray:
@@ -405,9 +569,21 @@ def _check_jobs(n_jobs) -> int:
     return int(n_jobs)
 
 
-def _one_field(rads, bvec, k, m_tot, bias_tol, estimator):
-    """Estimate and per-draw terms ``[(R,), ...]`` for one field vector ``bvec`` (tesla), and the
-    bound on its deterministic error."""
+def _strata(rows, r: int, r_tail: int) -> list:
+    """Per-draw terms ``rows (R, ...)`` as the parts of a stratified variance (module docstring,
+    split tail): with ``r_tail < R`` the draws ``< r_tail`` (propagated to the end) and the rest
+    (stopped at the split) are two strata, each scaled by its share ``n_s / R`` so that the sample
+    variance of a part over its ``n_s`` rows, divided by ``n_s``, is ``n_s s_s^2 / R^2`` and the
+    parts' means add up to the mean of ``rows``."""
+    if r_tail >= r:
+        return [rows]
+    return [rows[:r_tail] * (r_tail / r), rows[r_tail:] * ((r - r_tail) / r)]
+
+
+def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None):
+    """Estimate and per-draw terms ``[(n_s,), ...]`` for one field vector ``bvec`` (tesla), and the
+    bound on its deterministic error.  ``tail = (k T_split, r_tail)`` splits the time integral:
+    beyond ``T_split`` only the first ``r_tail`` draws of each radical go on (module docstring)."""
     # rigorous spectral bounds per block (Gershgorin, Weyl per nucleus and per group), then the
     # time grid from the radicals' spreads
     hams = [[_prop.block_hamiltonian(pb, bvec) for pb in prepared] for prepared, _ in rads]
@@ -418,67 +594,98 @@ def _one_field(rads, bvec, k, m_tot, bias_tol, estimator):
     gamma, fit_err = _prop.end_correction(k, h, w_tot * h, bias_tol / 10.0)
     n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
     n_t = max(n_t, gamma.shape[0])
-    series = [_prop.radical_series(prepared, hs, xis, h, n_t) for (prepared, xis), hs in zip(rads, hams)]
-    decay = np.exp(-kh * np.arange(n_t))
-
-    def quad(f):                 # the end-corrected trapezoid rule on the last axis (linear)
-        return kh * (f @ decay - 0.5 * f[..., 0]) - f[..., :gamma.shape[0]] @ gamma
-
+    rs = [xis[0].shape[1] for _, xis in rads]
+    n_split, r_tails = n_t, list(rs)
+    if tail is not None:
+        # the split lies on the grid, after the end correction's samples; a radical splits only
+        # when both strata keep at least 2 draws (each needs a sample variance)
+        n_split = min(n_t, max(int(math.ceil(tail[0] / kh)), gamma.shape[0]))
+        r_tails = [int(tail[1]) if r - int(tail[1]) >= 2 and int(tail[1]) >= 2 else r for r in rs]
+    series = [_prop.radical_series(prepared, hs, xis, h, n_t, n_split=n_split, r_tail=rt)
+              for (prepared, xis), hs, rt in zip(rads, hams, r_tails)]
+    # the end-corrected trapezoid rule as weights (linear), split into the early and tail times
+    weights = kh * np.exp(-kh * np.arange(n_t))
+    weights[0] *= 0.5
+    weights[:gamma.shape[0]] -= gamma
+    w_early = np.where(np.arange(n_t) < n_split, weights, 0.0)
+    w_tail = weights - w_early
+    a_s, b_s = series
+    (r_a, r_b), (t_a, t_b) = rs, r_tails
+    a_e, b_e = a_s.mean(axis=0), b_s.mean(axis=0)             # early times: all draws
+    a_t, b_t = a_s[:t_a].mean(axis=0), b_s[:t_b].mean(axis=0)  # tail times: the first r_tail
     if estimator == "paired":
-        f = np.einsum("rjc,rjc,c->rj", series[0], series[1], _MULT)
-        parts = [0.25 + quad(f) / m_tot]
-        mean = float(parts[0].mean())
+        # one stratified sum: u_i = Q_e(a_i b_i) + (R / r_tail) [i < r_tail] Q_t(a_i b_i)
+        f = np.einsum("rjc,rjc,c->rj", a_s, b_s, _MULT)
+        u = f @ w_early
+        u[:t_a] += (r_a / t_a) * (f[:t_a] @ w_tail)
+        rows = 0.25 + u / m_tot
+        mean = float(rows.mean())
+        parts = _strata(rows, r_a, t_a)
     else:
-        abar, bbar = series[0].mean(axis=0), series[1].mean(axis=0)
-        mean = 0.25 + float(quad(np.einsum("jc,jc,c->j", abar, bbar, _MULT))) / m_tot
-        parts = [0.25 + quad(np.einsum("rjc,jc,c->rj", series[0], bbar, _MULT)) / m_tot,
-                 0.25 + quad(np.einsum("jc,rjc,c->rj", abar, series[1], _MULT)) / m_tot]
+        mean = 0.25 + float(np.einsum("jc,jc,c->j", a_e, b_e, _MULT) @ w_early
+                            + np.einsum("jc,jc,c->j", a_t, b_t, _MULT) @ w_tail) / m_tot
+        # jackknife terms of each radical (module docstring), with its tail draws weighted up
+        u = np.einsum("rjc,jc,c->rj", a_s, b_e, _MULT) @ w_early
+        u[:t_a] += (r_a / t_a) * (np.einsum("rjc,jc,c->rj", a_s[:t_a], b_t, _MULT) @ w_tail)
+        v = np.einsum("jc,rjc,c->rj", a_e, b_s, _MULT) @ w_early
+        v[:t_b] += (r_b / t_b) * (np.einsum("jc,rjc,c->rj", a_t, b_s[:t_b], _MULT) @ w_tail)
+        parts = _strata(0.25 + u / m_tot, r_a, t_a) + _strata(0.25 + v / m_tot, r_b, t_b)
     bias = 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh)
     return mean, parts, bias
 
 
-def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none"):
+def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none",
+                       basis="lab", tail=None):
     """Estimates, per-draw terms, bias bound and the per-draw terms without the control for field
     vectors ``b_all (N, 3)`` (tesla, already on the upper hemisphere); the random vectors come from
-    ``seed`` alone.  With ``control="opposite"`` each field is also sampled at ``-b`` with the same
-    vectors and the two are averaged (module docstring)."""
+    ``seed`` alone (``n_states``: an int, or one count per radical).  With ``control="opposite"``
+    each field is also sampled at ``-b`` with the same vectors and the two are averaged (module
+    docstring); ``basis`` and ``tail`` as in :func:`sampled_yields`."""
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
+    states = _states_pair(n_states)
     rads = []
-    for rad in system.radicals:
+    for rad, r in zip(system.radicals, states):
         prepared = _prop.prepare(rad)
-        rads.append((prepared, _prop.random_vectors(prepared, int(n_states), rng)))
+        rads.append((prepared, _prop.random_vectors(prepared, r, rng, radical=rad, basis=basis)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     n_dir = b_all.shape[0]
-    r = int(n_states)
-    n_parts = 1 if estimator == "paired" else 2
-    parts = [np.empty((r, n_dir)) for _ in range(n_parts)]
-    plain = [np.empty((r, n_dir)) for _ in range(n_parts)] if control != "none" else []
+    cols, plain_cols = [], []
     mean = np.empty(n_dir)
     bias = 0.0
     for i, bvec in enumerate(b_all):
-        m_i, p_i, b_i = _one_field(rads, bvec, k, m_tot, bias_tol, estimator)
+        m_i, p_i, b_i = _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail)
         if control == "opposite":
             # the control D = Y(b) - Y(-b) (expectation exactly zero) with beta = 1/2
-            m_o, p_o, b_o = _one_field(rads, -bvec, k, m_tot, bias_tol, estimator)
-            for whole, piece in zip(plain, p_i):
-                whole[:, i] = piece
+            m_o, p_o, b_o = _one_field(rads, -bvec, k, m_tot, bias_tol, estimator, tail)
+            plain_cols.append(p_i)
             m_i = 0.5 * (m_i + m_o)
             p_i = [0.5 * (x + y) for x, y in zip(p_i, p_o)]
             b_i = max(b_i, b_o)
         mean[i] = m_i
-        for whole, piece in zip(parts, p_i):
-            whole[:, i] = piece
+        cols.append(p_i)
         bias = max(bias, b_i)
         if progress is not None:
             progress(i + 1, n_dir)
-    return mean, parts, bias, plain
+
+    def stack(columns):        # per part, (n_s, N) from the directions' (n_s,) columns
+        return [np.stack([c[j] for c in columns], axis=1) for j in range(len(columns[0]))] if columns else []
+
+    return mean, stack(cols), bias, stack(plain_cols)
 
 
-def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
+def _states_pair(n_states) -> tuple:
+    """``(R_A, R_B)`` from an int (both radicals) or a pair."""
+    if isinstance(n_states, (tuple, list, np.ndarray)):
+        return int(n_states[0]), int(n_states[1])
+    return int(n_states), int(n_states)
+
+
+def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, seed: int = 0,
                    bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
                    progress: Callable[[int, int], None] | None = None,
-                   n_jobs: int | None = None, control: str = DEFAULT_CONTROL) -> SampledYields:
+                   n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
+                   basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -489,8 +696,10 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         Field strength in microtesla.
     directions : array_like (N, 3)
         Field directions in the molecular frame.
-    n_states : int
-        Random vectors per radical (independent draws, >= 2).
+    n_states : int or (int, int)
+        Random vectors per radical (independent draws, >= 2): one count for both radicals, or one
+        per radical (A, B; the product estimator only) to spend the draws where the variance is
+        (module docstring, unequal states).
     seed : int
         Seed of the random vectors (the same vectors serve every direction).
     bias_tol : float
@@ -503,8 +712,14 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         random vectors, so the result does not depend on it beyond rounding.
     control : {"opposite", "none"}
         The control variate (module docstring): ``"opposite"`` also samples ``-b`` with the same
-        random vectors and averages (twice the cost; the anisotropy's variance falls about
-        tenfold); ``"none"`` samples each direction once.
+        random vectors and averages (twice the cost); ``"none"`` samples each direction once.
+    basis : {"nucleus-axis", "lab"}
+        The basis in which the random phases are drawn (module docstring): each nucleus quantised
+        along its own dominant hyperfine axis, or the laboratory ``I_z`` basis.
+    tail_split : float or None
+        Split tail (module docstring): beyond ``tail_split`` lifetimes (``k t``) only
+        :data:`TAIL_STATES` draws per radical go on, the rest stop; ``None`` propagates every draw
+        to the end.
 
     Returns
     -------
@@ -522,20 +737,31 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
 
     check_scope(system)
     dirs = _check_inputs(field_uT, directions)
-    if isinstance(n_states, bool) or not isinstance(n_states, (int, np.integer)) or n_states < 2:
-        raise InputError(f"expected at least 2 random states, got {n_states!r}", key="n_states")
+    pair = n_states if isinstance(n_states, (tuple, list, np.ndarray)) else (n_states, n_states)
+    if len(pair) != 2 or any(isinstance(x, bool) or not isinstance(x, (int, np.integer)) or x < 2 for x in pair):
+        raise InputError(f"expected at least 2 random states (one count, or one per radical), got {n_states!r}",
+                         key="n_states")
     if estimator not in ESTIMATORS:
         raise InputError(f"expected an estimator among {', '.join(ESTIMATORS)}, got {estimator!r}",
                          key="estimator")
+    if estimator == "paired" and pair[0] != pair[1]:
+        raise InputError(f"the paired estimator needs equal states per radical, got {n_states!r}", key="n_states")
     if not (np.isfinite(bias_tol) and 0 < bias_tol < 1):
         raise InputError(f"expected a bias tolerance between 0 and 1, got {bias_tol!r}", key="bias_tol")
     if control not in CONTROLS:
         raise InputError(f"expected a control among {', '.join(CONTROLS)}, got {control!r}", key="control")
+    if basis not in BASES:
+        raise InputError(f"expected a sampling basis among {', '.join(BASES)}, got {basis!r}", key="basis")
+    if tail_split is not None and not (isinstance(tail_split, (int, float, np.floating)) and np.isfinite(tail_split)
+                                       and tail_split > 0):
+        raise InputError(f"expected a positive number of lifetimes (or None) for the tail split, got {tail_split!r}",
+                         key="tail_split")
+    states = (int(pair[0]), int(pair[1]))
+    tail = None if tail_split is None else (float(tail_split), TAIL_STATES)
     # directions that share an upper-hemisphere representative (b and -b) share one estimate
     b_all, inverse = np.unique(_upper(dirs) * (float(field_uT) * 1e-6), axis=0, return_inverse=True)
     inverse = np.asarray(inverse).ravel()
     n_dir = b_all.shape[0]
-    r = int(n_states)
     n_jobs = _check_jobs(n_jobs)
     if progress is not None and n_dir != dirs.shape[0]:
         outer, n_all = progress, dirs.shape[0]
@@ -543,8 +769,8 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         def progress(done, total):          # in units of the directions asked for
             outer(n_all if done >= total else done * n_all // total, n_all)
     if n_jobs == 1 or n_dir < 2:
-        mean, parts, bias, plain = _sample_directions(system, b_all, r, seed, bias_tol, estimator, progress,
-                                                      control)
+        mean, parts, bias, plain = _sample_directions(system, b_all, states, seed, bias_tol, estimator, progress,
+                                                      control, basis, tail)
     else:
         # worker processes over directions; every worker draws the same random vectors from the
         # seed, so the errors stay shared across directions exactly as in one process
@@ -553,26 +779,30 @@ def sampled_yields(system, field_uT, directions, *, n_states: int = DEFAULT_STAT
         step = max(1, min(_BATCH, -(-n_dir // n_jobs)))
         starts = list(range(0, n_dir, step))
         results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
-            delayed(_sample_directions)(system, b_all[i:i + step], r, seed, bias_tol, estimator, None, control)
+            delayed(_sample_directions)(system, b_all[i:i + step], states, seed, bias_tol, estimator, None, control,
+                                        basis, tail)
             for i in starts)
-        mean = np.empty(n_dir)
-        n_parts = 1 if estimator == "paired" else 2
-        parts = [np.empty((r, n_dir)) for _ in range(n_parts)]
-        plain = [np.empty((r, n_dir)) for _ in range(n_parts)] if control != "none" else []
+        means, part_list, plain_list = [], [], []
         bias = 0.0
         for i, (m_i, p_i, b_i, q_i) in zip(starts, results):
-            stop = i + m_i.shape[0]
-            mean[i:stop] = m_i
-            for whole, piece in zip(parts + plain, p_i + q_i):
-                whole[:, i:stop] = piece
+            means.append(m_i)
+            part_list.append(p_i)
+            plain_list.append(q_i)
             bias = max(bias, b_i)
             if progress is not None:
-                progress(stop, n_dir)
+                progress(i + m_i.shape[0], n_dir)
+        mean = np.concatenate(means)
+        parts = [np.concatenate([p[j] for p in part_list], axis=1) for j in range(len(part_list[0]))]
+        plain = ([np.concatenate([p[j] for p in plain_list], axis=1) for j in range(len(plain_list[0]))]
+                 if plain_list[0] else [])
     mean = mean[inverse]
     parts = [p[:, inverse] for p in parts]
     plain = [p[:, inverse] for p in plain]
-    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) for p in parts) / r)
-    return SampledYields(mean, se, tuple(parts), bias, estimator, r, control, tuple(plain))
+    se = np.sqrt(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
+    # radical A's parts lead (product estimator): two strata when it splits (R_A - r >= 2), else one
+    parts_a = 2 if (tail is not None and states[0] - TAIL_STATES >= 2) else 1
+    return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
+                         states=states, basis=basis, tail_split=tail_split, parts_a=parts_a)
 
 
 #: Most random states :func:`states_for` asks for.
@@ -582,16 +812,23 @@ PILOT_STATES, PILOT_DIRECTIONS = 4, 6
 
 
 def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
-               n_jobs: int | None = None, control: str = DEFAULT_CONTROL) -> tuple[int, float]:
-    """Random states needed for a standard error of at most ``accuracy`` per yield, by a pilot run.
+               n_jobs: int | None = None, control: str = DEFAULT_CONTROL, basis: str = DEFAULT_BASIS,
+               tail_split: float | None = DEFAULT_TAIL_SPLIT) -> tuple[tuple[int, int], float]:
+    """Random states per radical needed for a standard error of at most ``accuracy`` per yield, by
+    a pilot run.
 
     The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
     spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
-    independent of it: the choice of ``R`` then does not bias the final estimate or its error
-    bar).  Since the variance falls as ``1 / R``, ``R = ceil(1.2 PILOT_STATES (se / accuracy)^2)``
-    with ``se`` the pilot's largest standard error, between ``PILOT_STATES`` and ``MAX_STATES``.
-    The pilot uses the final run's control variate, so ``se`` already carries its variance
-    reduction (the pilot costs twice as much with ``"opposite"``, like the run).
+    independent of it: the choice of the counts then does not bias the final estimate or its error
+    bar).  The product estimator's variance is ``v_A / R_A + v_B / R_B`` (module docstring) with
+    per-draw variances ``v_r`` measured by the pilot (its direction of largest variance); with
+    costs per state ``c_r`` (:func:`cost_model`, one radical at a time) the cheapest counts that
+    meet ``accuracy^2 / 1.2`` are ``R_r = sqrt(v_r / c_r) (sqrt(v_A c_A) + sqrt(v_B c_B)) /
+    (accuracy^2 / 1.2)`` (derived: Lagrange multipliers), each between ``PILOT_STATES`` and
+    ``MAX_STATES``; equal variances and costs give the equal counts ``1.2 PILOT_STATES (se /
+    accuracy)^2`` of the pilot's standard error ``se``.  The pilot uses the final run's control
+    variate, basis and split tail, so ``v_r`` already carries their effect (the pilot costs twice
+    as much with ``"opposite"``, like the run).
 
     Parameters
     ----------
@@ -606,11 +843,15 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
         Worker processes over the pilot's directions (as in :func:`sampled_yields`).
     control : {"opposite", "none"}
         The final run's control variate (:func:`sampled_yields`).
+    basis : str
+        The final run's basis of the random phases (:func:`sampled_yields`).
+    tail_split : float or None
+        The final run's split tail (:func:`sampled_yields`).
 
     Returns
     -------
-    (int, float)
-        The number of states and the pilot's largest standard error.
+    ((int, int), float)
+        The numbers of states of radicals A and B, and the pilot's largest standard error.
     """
     from retina.errors import InputError
 
@@ -620,10 +861,19 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
     dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
     pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
     pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1, n_jobs=n_jobs,
-                           control=control)
+                           control=control, basis=basis, tail_split=tail_split)
     se = float(np.max(pilot.standard_error))
-    r = int(math.ceil(1.2 * PILOT_STATES * (se / accuracy) ** 2))
-    return max(PILOT_STATES, min(MAX_STATES, r)), se
+    var_a, var_b = pilot.radical_variances()
+    worst = int(np.argmax(var_a + var_b))
+    v = [PILOT_STATES * float(var_a[worst]), PILOT_STATES * float(var_b[worst])]
+    ref = 16
+    cost = [max(c / ref, 1e-30) for c in _radical_seconds(system, field_uT, DEFAULT_BIAS_TOL, (ref, ref), tail_split,
+                                                         _T_MATVEC)[0]]
+    target = accuracy**2 / 1.2
+    scale = sum(math.sqrt(max(vr, 0.0) * cr) for vr, cr in zip(v, cost)) / target
+    states = tuple(max(PILOT_STATES, min(MAX_STATES, int(math.ceil(math.sqrt(max(vr, 0.0) / cr) * scale))))
+                   for vr, cr in zip(v, cost))
+    return states, se
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
