@@ -155,7 +155,7 @@ def main(argv=None) -> int:
         assert Path(retina.__file__).resolve().is_relative_to(ROOT), retina.__file__
         from retina.build import build_all
         from retina.scenario import load_scenario
-        from retina.signal.noise import sample_counts_split
+        from retina.signal.poisson import sample_counts_split
         from retina.stages._common import GridModel, grid_offsets, scan_yaws, signal_model
         from retina.stages.precision import compute_precision
 

@@ -107,7 +107,8 @@ def bench_bounds(n_per_eye: int, n_head: int = 360, n_photons: int = 20, n_kappa
 def bench_decode(n_per_eye: int, n_decodes: int) -> tuple[float, float, float, str]:
     from retina.eye import geometry, ordering, pattern
     from retina.readout import decode, fisher
-    from retina.signal.noise import SignalModel, sample_counts
+    from retina.signal.noise import SignalModel
+    from retina.signal.poisson import sample_counts
 
     L = 8
     rec = geometry.build_receptors(geometry.default_eyes(n_per_eye))
@@ -151,7 +152,8 @@ def bench_scan_decode(n_per_eye: int, n_decodes: int, steps: int = 37) -> tuple[
     against the per-pose form (one product per pose, shifted and summed), both timed here."""
     from retina.eye import geometry, ordering, pattern
     from retina.readout import decode
-    from retina.signal.noise import SignalModel, sample_counts
+    from retina.signal.noise import SignalModel
+    from retina.signal.poisson import sample_counts
 
     L = 8
     rec = geometry.build_receptors(geometry.default_eyes(n_per_eye))

@@ -28,7 +28,7 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.readout.circstats", "retina.readout.fisher", "retina.spin.operators", "retina.spin._rf_common",
            "retina.spin.rf_method", "retina.spin.rf_yieldfn", "retina.eye.order_samplers", "retina.eye.order_cases",
            "retina.eye.order_laws", "retina.eye.order_rules", "retina.eye.field", "retina.eye.geometry",
-           "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise",
+           "retina.eye.pose", "retina.eye.pattern", "retina.readout.scans", "retina.signal.noise", "retina.signal.poisson",
            "retina.spin.io.reader", "retina.spin.io.writer", "retina.spin.io.tensors",
            "retina.spin.io.values", "retina.spin.io.keys", "retina.spin.hilbert", "retina.spin.liouville",
            "retina.spin.separable",

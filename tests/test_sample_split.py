@@ -8,7 +8,7 @@ import pytest
 from scipy import stats
 
 from retina.errors import InputError
-from retina.signal.noise import SPLIT_MEAN, sample_counts_split
+from retina.signal.poisson import SPLIT_MEAN, sample_counts_split
 
 
 def test_marginals_follow_the_poisson_law():
@@ -63,7 +63,7 @@ def test_decoding_error_statistics_match_direct_poisson_draws():
     # The decoding error of a head scan in dim light is the same random variable with either
     # sampler (Reference: scipy.stats.ks_2samp between the two sets of errors).
     from retina.readout.decode import HeadingDecoder
-    from retina.signal.noise import sample_counts
+    from retina.signal.poisson import sample_counts
 
     G, N, P = 72, 300, 5
     h = np.arange(G) * 360.0 / G
@@ -114,7 +114,7 @@ def test_walked_rows_near_the_threshold_follow_the_poisson_law():
 def test_walk_resumes_exactly_when_its_gaps_run_out():
     # Derived: the walk's state (cell, length of it still ahead, its arrivals so far) is all it
     # carries between gaps, so feeding the same gap sequence in pieces gives the same counts.
-    from retina.signal.noise import _poisson_walk
+    from retina.signal.poisson import _poisson_walk
 
     rng = np.random.default_rng(3)
     cells = rng.uniform(0.0, 1.0, 500)

@@ -683,7 +683,7 @@ def monte_carlo(truth, decoder: HeadingDecoder, true_deg: float, n: int, rng=Non
     MonteCarloResult
         The estimates, wrapped errors and :func:`error_summary`.
     """
-    from retina.signal.noise import make_rng, sample_counts
+    from retina.signal.poisson import make_rng, sample_counts
 
     if int(n) != n or n < 1:
         raise InputError(f"expected a positive number of repeats, got {n}", key="decode_repeats")

@@ -30,7 +30,7 @@ import numpy as np
 from retina.errors import InputError
 from retina.readout import circstats
 from retina.readout.decode import HeadingDecoder
-from retina.signal.noise import make_rng, sample_counts, sample_counts_split
+from retina.signal.poisson import make_rng, sample_counts, sample_counts_split
 
 __all__ = ["TrialResult", "simulate_trials"]
 

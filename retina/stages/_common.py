@@ -308,7 +308,7 @@ def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np
         Degrees, in (-180, 180].
     """
     from retina.readout.circstats import circular_difference
-    from retina.signal.noise import sample_counts_split
+    from retina.signal.poisson import sample_counts_split
 
     import numba
 
