@@ -38,6 +38,7 @@ CASES = [  # label, pair, method, directions
     ("separable, dim 16x32=512", dict(n_a=3, n_b=4), "separable", 100),
     ("fast-separable, dim 128x128", dict(n_a=6, n_b=6), "fast-separable", 20),
     ("sampled, dim 8x8", dict(n_a=2, n_b=2), "sampled", 3),
+    ("sampled, dim 256x256 (split tail)", dict(n_a=7, n_b=7), "sampled", 2),
     ("hilbert, dim 128", dict(n_a=3, n_b=2, exchange_mT=0.02), "hilbert", 60),
     ("liouville eig, dim 64", dict(n_a=2, n_b=2, exchange_mT=0.02, k_t=3e6), "liouville", 40),
     ("liouville krylov, dim 64", dict(n_a=2, n_b=2, exchange_mT=0.02, k_t=3e6, relax=(1e5, 1e5)), "liouville", 20),

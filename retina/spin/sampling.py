@@ -411,6 +411,21 @@ _T_MATVEC = 2.0e-9
 #: correlation step, in units of the sparse product's time per entry and vector (ratios measured
 #: in one process at dimension 4608 with 8 vectors: 0.2 and 2.3); Python overhead per expansion, s.
 _R_COMB, _R_CORR, _T_GROUP = 0.2, 2.3, 3e-4
+#: The sparse product's time per stored entry and vector at a block of ``w`` vectors, relative to
+#: its time at 8 vectors (where :func:`matvec_seconds` measures it): ``(log2 w, ratio)``, linear in
+#: ``log2 w`` between the points and constant beyond them.  The product streams the matrix once
+#: per block, so narrow blocks pay more per vector.  Measured with the compiled kernel in one
+#: process on a quiet 2-core machine, one thread, CSR matrices of dimension 128 to 8192 with
+#: 15-27 entries a row (the medians over those sizes; spread about +-15 % at 4 and 16 vectors,
+#: wider at 32 and 64, where caches set it).
+_WIDTH_COST = ((1.0, 2.7), (2.0, 2.0), (3.0, 1.0), (4.0, 0.72), (5.0, 0.62), (6.0, 0.55))
+
+
+def _width_cost(n_vec: float) -> float:
+    """The sparse product's cost per entry and vector at ``n_vec`` vectors, relative to 8
+    (:data:`_WIDTH_COST`)."""
+    xs, ys = zip(*_WIDTH_COST)
+    return float(np.interp(math.log2(max(float(n_vec), 1.0)), xs, ys))
 
 
 @functools.lru_cache(maxsize=None)
@@ -460,8 +475,9 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
     for rad, spread, r in zip(system.radicals, spreads, states):
         r_tail = TAIL_STATES if (tail_split is not None and r - TAIL_STATES >= 2) else r
         vec = 2 * r
-        # vector-steps in units of 2 R vectors over n_t steps (the split tail runs fewer vectors)
-        steps = n_early + (n_t - n_early) * r_tail / r
+        # the early steps run 2 R vectors, the split tail's 2 r_tail (narrower blocks cost more
+        # per vector: _width_cost)
+        blocks = ((n_early, vec), (n_t - n_early, 2 * r_tail))
         a = 0.5 * spread
         grp = groups(rad)
         options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
@@ -471,8 +487,10 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
             nnz = _nnz_row([j for j in choice if j > 0])
             m = _prop.substeps(a, h, nnz)
             n_c = a * h * m + 25
-            per_step = t_mv * dim * vec * (n_c / m * nnz + _R_COMB * n_c + _R_CORR) + _T_GROUP / m
-            secs += steps * per_step
+            for steps, w in blocks:
+                per_step = (t_mv * dim * w * (n_c / m * nnz * _width_cost(w) + _R_COMB * n_c + _R_CORR)
+                            + _T_GROUP / m)
+                secs += steps * per_step
             mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
         out.append(secs)
     return out, mem, n_t
@@ -488,8 +506,9 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
     25`` Chebyshev vectors per expansion of ``m`` steps, :func:`retina.spin._propagation.substeps`) and one correlation
     step; the time step and Chebyshev half-width from :func:`_model_spread`.  With a split tail
-    the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end (the cost is
-    linear in the vectors).  Times in units of
+    the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end; the sparse
+    product's cost per vector depends on the block's width (:data:`_WIDTH_COST`: narrow blocks pay
+    more per vector).  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
     measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
