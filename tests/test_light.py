@@ -6,7 +6,7 @@ from scipy import stats
 from scipy.spatial.transform import Rotation
 
 from retina.errors import InputError
-from retina.signal import light, noise
+from retina.signal import light, poisson
 
 
 def _dirs(n, seed=0):
@@ -82,8 +82,8 @@ def test_texture_log_contrast_statistics():
 
 def test_poisson_counts_distribution_and_seed():
     lam = np.array([0.7, 3.0, 40.0])
-    a = noise.sample_counts(lam, 42, size=40000)
-    b = noise.sample_counts(lam, 42, size=40000)
+    a = poisson.sample_counts(lam, 42, size=40000)
+    b = poisson.sample_counts(lam, 42, size=40000)
     np.testing.assert_array_equal(a, b)
     # Derived: Poisson mean = variance = lam; sd of the sample mean is sqrt(lam / n): 5 sd tolerance.
     assert np.all(np.abs(a.mean(0) - lam) < 5 * np.sqrt(lam / 40000))
@@ -103,7 +103,7 @@ def test_thinned_poisson_equals_poisson_of_catch_times_yield():
     c, phi = 50.0, 0.3
     pairs = rng.poisson(c, 100000)
     products = rng.binomial(pairs, phi)
-    lam = noise.expected_counts(phi, c)
+    lam = poisson.expected_counts(phi, c)
     assert lam == pytest.approx(15.0)
     assert products.mean() == pytest.approx(lam, rel=0.01)
     assert products.var() == pytest.approx(lam, rel=0.03)
@@ -117,6 +117,6 @@ def test_bad_input():
     with pytest.raises(InputError, match="attached"):
         light.SceneTexture(attached="body")
     with pytest.raises(InputError, match="non-negative"):
-        noise.sample_counts([-1.0])
+        poisson.sample_counts([-1.0])
     with pytest.raises(InputError, match="solid_angle"):
         light.photon_catch(_dirs(3), np.ones(4))

@@ -106,7 +106,7 @@ def simulate_trials(truth, decoder: HeadingDecoder, n_birds: int, *, goal_deg: f
         Source of the starting headings, counts, ambiguity coin flips and behavioural noise.
     sampler : {"walked", "direct"}
         How the Poisson counts are drawn (the same law either way): "walked"
-        (``retina.signal.noise.sample_counts_split``: dim rows by one walk along the row, faster)
+        (``retina.signal.poisson.sample_counts_split``: dim rows by one walk along the row, faster)
         or "direct" (``sample_counts``: one draw per count).  Use "direct" to compare experiments
         that differ only slightly in their expected counts with common random numbers (the same
         ``rng`` seed): its counts change only where a cell's law changes enough, while a walk

@@ -287,7 +287,7 @@ def grid_offsets(offsets_deg) -> np.ndarray:
 def decode_errors(m: GridModel, photons: float, n: int, rng, offsets=None) -> np.ndarray:
     """Signed decoding errors at uniformly random true headings.
 
-    Counts are drawn by :func:`retina.signal.noise.sample_counts_split` (the Poisson law, drawn
+    Counts are drawn by :func:`retina.signal.poisson.sample_counts_split` (the Poisson law, drawn
     faster in dim light, on as many threads as numba may use; the numbers do not depend on the
     thread count).
 
