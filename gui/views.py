@@ -156,7 +156,9 @@ def colour_values(result, display: str, eye: str, limits=None):
     if hi <= lo:
         hi = lo + 1e-12
     cmap = _cmap("RdBu_r" if display == "modulation" else "viridis")
-    rgba = cmap(np.clip((values - lo) / (hi - lo), 0.0, 1.0))
+    # Rounded to 12 decimals so that rounding noise (a flat pattern's +-1e-16) cannot tip a value
+    # across a colour-map bin edge: 0.5 - 6e-17 would otherwise take the entry below the middle.
+    rgba = cmap(np.round(np.clip((values - lo) / (hi - lo), 0.0, 1.0), 12))
     rgba[~shown] = _HIDDEN
     return values, rgba, (lo, hi), shown
 
