@@ -1956,3 +1956,38 @@ def test_screenshot_script_refuses_a_missing_folder(tmp_path, capsys):
     assert screenshots.main([str(missing)]) == 2
     err = capsys.readouterr().err.strip()
     assert err.count("\n") == 0 and str(missing) in err and "expected an existing folder" in err
+
+
+def _texture_uploads(monkeypatch):
+    """Record the id of every texture the GL side uploads data into (vispy's GLIR parser)."""
+    from vispy.gloo import glir
+
+    seen = []
+    orig = glir.GlirTexture2D.set_data
+
+    def record(self, offset, data):
+        seen.append(self.id)
+        return orig(self, offset, data)
+
+    monkeypatch.setattr(glir.GlirTexture2D, "set_data", record)
+    return seen
+
+
+def test_a_heading_step_uploads_only_the_map_image(window, qapp, monkeypatch):
+    # Contract of gui/views.py and gui/glyphs.py (common practice, no source: a frame uploads only
+    # the data that changed).  A heading step changes the map image; the text visuals' filter
+    # kernel (vispy's Text hands it to its program at every draw) must not be uploaded again, and
+    # the glyph atlas only when a new glyph appears.
+    window.show()
+    _settle(qapp, 0.5)
+    mv = window.map_view
+    atlases = {t._font._atlas.id for t in (mv.labels, mv.cbar_text)}
+    seen = _texture_uploads(monkeypatch)
+    for yaw in (21.0, 22.0, 23.0):
+        del seen[:]
+        h0, m0 = window.head_view.draws, mv.draws
+        window.state.yaw_deg = yaw
+        assert _process_until(qapp, lambda: window.head_view.draws > h0 and mv.draws > m0, 5.0)
+        _settle(qapp, 0.1)
+        assert seen.count(mv.image._texture.id) == 1
+        assert set(seen) <= {mv.image._texture.id} | atlases, seen
