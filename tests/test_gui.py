@@ -1991,3 +1991,37 @@ def test_a_heading_step_uploads_only_the_map_image(window, qapp, monkeypatch):
         _settle(qapp, 0.1)
         assert seen.count(mv.image._texture.id) == 1
         assert set(seen) <= {mv.image._texture.id} | atlases, seen
+
+
+def test_readout_follows_a_drag_after_its_frames_once(qapp, file_scenario):
+    # Contract of gui/deferred.py and gui/window.py (common practice, no source): every heading
+    # step is drawn, while the readout, the bound plot and the status bar (not part of the frame)
+    # follow once the burst of results is over, once, with the last result's numbers.  The quiet
+    # time is made long here so that the drag's steps fall within it on any machine.
+    from retina_viewer.window import MainWindow
+
+    win = MainWindow(file_scenario)               # the real threaded worker
+    try:
+        win.show()
+        assert _process_until(qapp, lambda: win.state.result is not None)
+        af = win.after_frames
+        assert _process_until(qapp, lambda: not af.pending)
+        af.quiet_ms, af.max_wait_ms = 3000, 60000
+        runs = af.runs
+        pose_before = win.readout.labels["pose"].text()
+        for yaw in (31.0, 32.0, 33.0, 34.0):
+            h0, m0 = win.head_view.draws, win.map_view.draws
+            win.state.yaw_deg = yaw
+            assert _process_until(qapp, lambda: win.state.result.request.yaw_deg == yaw and
+                                  win.head_view.draws > h0 and win.map_view.draws > m0, 10.0)
+        assert af.runs == runs and af.pending     # each step drawn, the readout not yet touched
+        assert win.readout.labels["pose"].text() == pose_before
+        af.quiet_ms = 10
+        af.poke()                                 # as the next result would: the burst ends
+        assert _process_until(qapp, lambda: not af.pending, 10.0)
+        assert af.runs == runs + 1
+        assert win.readout.labels["pose"].text().startswith("heading 34")
+        assert win.statusBar().currentMessage().startswith("pattern for heading 34")
+    finally:
+        win.close()
+        qapp.processEvents()
