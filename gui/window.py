@@ -422,6 +422,9 @@ class MainWindow(QMainWindow):
             req = dataclasses.replace(req, scan_yaws=tuple(sc["yaws"][:sc["k"]]),
                                       scan_centre_deg=sc["centre"])
         self.worker.submit(req)
+        if not self.synchronous:  # while the worker computes: the map's geometry of that pose
+            self.map_view.prepare_pose(req.yaw_deg, req.pitch_deg, req.roll_deg, req.inclination_deg,
+                                       req.declination_deg)
 
     @_slot
     def _on_result(self, result) -> None:

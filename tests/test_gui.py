@@ -2024,4 +2024,35 @@ def test_readout_follows_a_drag_after_its_frames_once(qapp, file_scenario):
         assert win.statusBar().currentMessage().startswith("pattern for heading 34")
     finally:
         win.close()
+        win.deleteLater()
         qapp.processEvents()
+
+
+def test_map_pose_prepared_while_the_worker_computes_is_the_pose_shown(qapp, file_scenario):
+    # Contract of gui/views.py (MapView.prepare_pose) and the pose convention (derived, as in
+    # test_map_marks_follow_the_field_and_pose_conventions: a level head at heading 30 sees north
+    # at azimuth -30 on the horizon; B of a field of inclination I, declination D at azimuth
+    # D - 30 and elevation -I).  The geometry prepared before the result is the one drawn.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import MapView
+
+    st = ViewerState(file_scenario)
+    v = MapView(st, size=(240, 160), follow="result")
+    try:
+        pose = (30.0, 0.0, 0.0, 66.0, 3.0)
+        v.prepare_pose(*pose)
+        assert len(v._prepared) == 1
+        v.prepare_pose(*pose)                     # asked again: nothing more kept
+        assert len(v._prepared) == 1
+        v._show_pose(*pose)
+        assert not v._prepared                    # used, not computed again
+        assert v.mark_positions["cardinals"][0, 0] == pytest.approx(-30.0, abs=1e-4)
+        np.testing.assert_allclose(v.mark_positions["field"], [3.0 - 30.0, -66.0], atol=1e-4)
+        pos = v.point_marks._data["a_position"][1:3, :2]
+        np.testing.assert_allclose(pos[0], [3.0 - 30.0, -66.0], atol=1e-4)
+        for k in range(6):                        # only the last few poses prepared are kept
+            v.prepare_pose(40.0 + k, 0.0, 0.0, 66.0, 3.0)
+        assert 0 < len(v._prepared) <= 4
+    finally:
+        v.close()
+        v.canvas.close()
