@@ -2056,3 +2056,37 @@ def test_map_pose_prepared_while_the_worker_computes_is_the_pose_shown(qapp, fil
     finally:
         v.close()
         v.canvas.close()
+
+
+def test_after_frames_coalesces_pokes_and_keeps_errors_out_of_qt(qapp, caplog):
+    # Contract of gui/deferred.py (common practice, no source: debouncing with a deadline; no
+    # exception may escape a Qt slot).  Long quiet times make the checks independent of speed.
+    from retina_viewer.deferred import AfterFrames
+
+    calls = []
+    af = AfterFrames(lambda: calls.append(1), quiet_ms=60000, max_wait_ms=60000)
+    for _ in range(5):
+        af.poke()
+    _settle(qapp, 0.05)
+    assert calls == [] and af.pending             # still within the quiet time: not run
+    af.flush()
+    assert calls == [1] and not af.pending and af.runs == 1
+    af.flush()                                    # nothing waits: nothing runs
+    assert calls == [1]
+    af.max_wait_ms = 0                            # the deadline passed: the next pass runs it
+    for _ in range(3):
+        af.poke()
+    assert _process_until(qapp, lambda: not af.pending, 5.0)
+    assert calls == [1, 1]
+    af.poke()
+    af.cancel()
+    _settle(qapp, 0.05)
+    assert calls == [1, 1] and not af.pending
+
+    def fail():
+        raise RuntimeError("boom")
+
+    bad = AfterFrames(fail, immediate=True)
+    with caplog.at_level("ERROR", logger="retina"):
+        bad.poke()                                # logged, not raised
+    assert bad.runs == 1 and "boom" in caplog.text
