@@ -112,7 +112,21 @@ def _texture_font_class():
     from vispy.visuals.text.text import TextureFont
 
     class CachedTextureFont(TextureFont):
-        """vispy's TextureFont, its glyphs taken from the caches (module docstring)."""
+        """vispy's TextureFont, its glyphs taken from the caches (module docstring).
+
+        Its filter kernel (the table the text shader samples to smooth the glyphs' edges) is
+        held as a texture made once.  vispy's ``Text`` visual hands the font's kernel to its
+        program at every draw; given an array, the program uploads it again each time (a
+        16 x 1024 RGBA float table, 256 kB per Text visual per frame), given a texture it only
+        binds it.  Same texture, same values: the pixels do not change.
+        """
+
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+            from vispy.gloo import Texture2D
+
+            if isinstance(self._kernel, np.ndarray):
+                self._kernel = Texture2D(self._kernel)
 
         def _key(self, char):
             f = self._font

@@ -505,7 +505,7 @@ class ReadoutPanel(QGroupBox):
             ("light", "light level"), ("rf", "RF field"), ("bhead", "field in head (az, el)"),
             ("yield", "yield function"), ("time", "computed in"), ("hover", "under the cursor"))
 
-    def __init__(self, state, parent=None):
+    def __init__(self, state, parent=None, *, follow_results: bool = True):
         super().__init__("Readout", parent)
         self.state = state
         fl = QFormLayout(self)
@@ -518,8 +518,10 @@ class ReadoutPanel(QGroupBox):
             fl.addRow(text, lab)
         self.labels["hover"].setToolTip("The receptor under the mouse in the map: eye, visual "
                                         "direction (azimuth, elevation, deg), yield, modulation (%)")
-        self._unsub = [state.events.connect("result", lambda e: self.refresh()),
-                       state.events.connect("scenario", lambda e: self.clear())]
+        # follow_results=False: the owner calls refresh() (the window: after the frames, coalesced)
+        self._unsub = [state.events.connect("scenario", lambda e: self.clear())]
+        if follow_results:
+            self._unsub.append(state.events.connect("result", lambda e: self.refresh()))
 
     def clear(self) -> None:
         """Show "-" in every line (a new scenario, before its first result)."""
@@ -598,7 +600,7 @@ class BoundPlot(QWidget):
     words (:meth:`message`).
     """
 
-    def __init__(self, state, parent=None):
+    def __init__(self, state, parent=None, *, follow_results: bool = True):
         super().__init__(parent)
         self.state = state
         self.setMinimumSize(200, 150)
@@ -608,8 +610,10 @@ class BoundPlot(QWidget):
         self._path = None
         self._bg_key = None
         self._bg = None   # the plot without the heading lines and words (QImage, RGB32): _paint
-        self._unsub = [state.events.connect("result", lambda e: self.update()),
-                       state.events.connect("scenario", lambda e: self.update())]
+        # follow_results=False: the owner calls update() (the window: after the frames, coalesced)
+        self._unsub = [state.events.connect("scenario", lambda e: self.update())]
+        if follow_results:
+            self._unsub.append(state.events.connect("result", lambda e: self.update()))
 
     def message(self) -> str:
         """The words shown over the plot.

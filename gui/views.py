@@ -1084,6 +1084,7 @@ class MapView(_Subscriber):
         self._index = None
         self._receptors = None
         self._marks_key = None
+        self._prepared = {}   # (pose, view size) -> geometry: prepare_pose
         self.skipped = 0
         self.mark_positions = None
         self.label_positions = None
@@ -1141,11 +1142,11 @@ class MapView(_Subscriber):
             n0 += len(t)
         return np.vstack(pts).astype(np.float32), np.array(conn, np.uint32)
 
-    def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
-        key = (yaw, pitch, roll, inclination, declination)
-        if key == self._marks_key:
-            return
-        self._marks_key = key
+    def _pose_geometry(self, key) -> dict:
+        """The map's pose-dependent geometry (plain arrays, no GL): the horizon line, the marks'
+        places and the labels' layout, for ``key`` = (yaw, pitch, roll, inclination,
+        declination) at the view's current size."""
+        yaw, pitch, roll, inclination, declination = key
         R = _pose_matrix(yaw, pitch, roll)
         t = np.radians(np.arange(0.0, 360.0, 1.0))
         h_world = np.stack([np.cos(t), np.sin(t), np.zeros_like(t)], axis=-1)
@@ -1154,13 +1155,51 @@ class MapView(_Subscriber):
         i = np.arange(n)
         keep = np.abs(az[(i + 1) % n] - az) < 90  # no segment across the +/-180 deg seam
         conn = np.stack([i[keep], (i[keep] + 1) % n], axis=-1).astype(np.uint32)
-        self.horizon.set_data(np.stack([az, el], axis=-1).astype(np.float32), connect=conn)
         idx = [0, 90, 180, 270]
         cardinal = np.stack([az[idx], el[idx]], axis=-1)
         b = R.T @ _field_direction(inclination, declination)
         baz, bel = _az_el(np.stack([b, -b]))
         pos = np.stack([baz, bel], axis=-1).astype(np.float32)
-        self.mark_positions = {"cardinals": cardinal, "beak": np.zeros(2), "field": pos[0],
+        anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
+        sizes = self.label_sizes()
+        labels = layout_labels(anchors, sizes, obstacles=anchors, gap=0.1 * sizes[0, 1],
+                               mark_half=0.7 * sizes[0, 1])
+        return dict(horizon=np.stack([az, el], axis=-1).astype(np.float32), connect=conn,
+                    cardinal=cardinal, field=pos, labels=labels)
+
+    def prepare_pose(self, yaw, pitch, roll, inclination, declination) -> None:
+        """Compute the geometry of a pose the view will show soon (the window calls this while
+        the worker computes that pose's pattern), so that showing it only hands the arrays to
+        the scene.  The last few poses prepared are kept.
+
+        Parameters
+        ----------
+        yaw, pitch, roll : float
+            Head pose, degrees (:mod:`retina.eye.pose`).
+        inclination, declination : float
+            Field direction, degrees (:mod:`retina.eye.field`).
+        """
+        key = (yaw, pitch, roll, inclination, declination)
+        if key == self._marks_key or (key, self._geometry_size()) in self._prepared:
+            return
+        self._prepared[(key, self._geometry_size())] = self._pose_geometry(key)
+        while len(self._prepared) > 4:
+            self._prepared.pop(next(iter(self._prepared)))
+
+    def _geometry_size(self):
+        return tuple(float(x) for x in self.view.size)
+
+    def _show_pose(self, yaw, pitch, roll, inclination, declination, *, draw=True):
+        key = (yaw, pitch, roll, inclination, declination)
+        if key == self._marks_key:
+            return
+        self._marks_key = key
+        g = self._prepared.pop((key, self._geometry_size()), None)
+        if g is None:
+            g = self._pose_geometry(key)
+        self.horizon.set_data(g["horizon"], connect=g["connect"])
+        pos = g["field"]
+        self.mark_positions = {"cardinals": g["cardinal"], "beak": np.zeros(2), "field": pos[0],
                                "field_opposite": pos[1]}
         f, o = self.marks["field"], self.marks["field_opposite"]
         data = getattr(self.point_marks, "_data", None)
@@ -1177,10 +1216,7 @@ class MapView(_Subscriber):
                                       face_color=np.array([m.face for m in rows]),
                                       edge_color=np.array([m.edge for m in rows]),
                                       edge_width=np.array([m.edge_width for m in rows], np.float32))
-        anchors = np.vstack([cardinal, [[0.0, 0.0]], pos])
-        sizes = self.label_sizes()
-        self.label_positions = layout_labels(anchors, sizes, obstacles=anchors,
-                                             gap=0.1 * sizes[0, 1], mark_half=0.7 * sizes[0, 1])
+        self.label_positions = g["labels"]
         self._place_labels()
         if draw:
             self.canvas.update()

@@ -43,6 +43,7 @@ from PyQt6.QtWidgets import (QApplication, QFileDialog, QMainWindow, QMessageBox
                              QSplitter, QVBoxLayout, QWidget)
 
 from retina.errors import InputError
+from .deferred import AfterFrames
 from .panels import BoundPlot, ControlPanel, ReadoutPanel
 from .state import ViewerState, scan_yaws
 from .views import HeadView, MapView, colour_limits
@@ -214,8 +215,12 @@ class MainWindow(QMainWindow):
         side = QWidget()
         sl = QVBoxLayout(side)
         self.controls = ControlPanel(self.state)
-        self.readout = ReadoutPanel(self.state)
-        self.bound_plot = BoundPlot(self.state)
+        # the readout, the bound plot and the status bar follow the results after the frames are
+        # drawn, once per burst (at most every 250 ms during a drag): gui/deferred.py
+        self.readout = ReadoutPanel(self.state, follow_results=False)
+        self.bound_plot = BoundPlot(self.state, follow_results=False)
+        self._result_message = None
+        self.after_frames = AfterFrames(self._show_result_text, immediate=self.synchronous, parent=self)
         sl.addWidget(self.readout)
         sl.addWidget(self.bound_plot)
         sl.addWidget(self.controls)
@@ -417,6 +422,9 @@ class MainWindow(QMainWindow):
             req = dataclasses.replace(req, scan_yaws=tuple(sc["yaws"][:sc["k"]]),
                                       scan_centre_deg=sc["centre"])
         self.worker.submit(req)
+        if not self.synchronous:  # while the worker computes: the map's geometry of that pose
+            self.map_view.prepare_pose(req.yaw_deg, req.pitch_deg, req.roll_deg, req.inclination_deg,
+                                       req.declination_deg)
 
     @_slot
     def _on_result(self, result) -> None:
@@ -445,7 +453,21 @@ class MainWindow(QMainWindow):
         if result.request.scan_yaws:
             self._show_scan(result)
         took = f"{1000 * result.seconds:.1f} ms" if result.seconds < 10.0 else f"{result.seconds:.1f} s"
-        self.statusBar().showMessage(f"pattern for heading {format_deg(result.request.yaw_deg)} ({took})", 4000)
+        # shown unless another message (an error, "computing...") replaces the one of now first
+        self._result_message = (f"pattern for heading {format_deg(result.request.yaw_deg)} ({took})",
+                                self.statusBar().currentMessage())
+        self.after_frames.poke()
+
+    def _show_result_text(self) -> None:
+        """The readout, the bound plot and the status bar for the latest result (run after the
+        frames: :attr:`after_frames`)."""
+        self.readout.refresh()
+        self.bound_plot.update()
+        if self._result_message is not None:
+            text, before = self._result_message
+            self._result_message = None
+            if self.statusBar().currentMessage() in (before, ""):
+                self.statusBar().showMessage(text, 4000)
 
     @_slot
     def _on_failed(self, request, message: str) -> None:
@@ -755,6 +777,7 @@ class MainWindow(QMainWindow):
     def shutdown(self) -> None:
         """Stop the worker thread and disconnect views and panels (idempotent)."""
         self._scan_timer.stop()
+        self.after_frames.cancel()
         self.worker.close()
         for u in self._unsub:
             u()

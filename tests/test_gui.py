@@ -1956,3 +1956,137 @@ def test_screenshot_script_refuses_a_missing_folder(tmp_path, capsys):
     assert screenshots.main([str(missing)]) == 2
     err = capsys.readouterr().err.strip()
     assert err.count("\n") == 0 and str(missing) in err and "expected an existing folder" in err
+
+
+def _texture_uploads(monkeypatch):
+    """Record the id of every texture the GL side uploads data into (vispy's GLIR parser)."""
+    from vispy.gloo import glir
+
+    seen = []
+    orig = glir.GlirTexture2D.set_data
+
+    def record(self, offset, data):
+        seen.append(self.id)
+        return orig(self, offset, data)
+
+    monkeypatch.setattr(glir.GlirTexture2D, "set_data", record)
+    return seen
+
+
+def test_a_heading_step_uploads_only_the_map_image(window, qapp, monkeypatch):
+    # Contract of gui/views.py and gui/glyphs.py (common practice, no source: a frame uploads only
+    # the data that changed).  A heading step changes the map image; the text visuals' filter
+    # kernel (vispy's Text hands it to its program at every draw) must not be uploaded again, and
+    # the glyph atlas only when a new glyph appears.
+    window.show()
+    _settle(qapp, 0.5)
+    mv = window.map_view
+    atlases = {t._font._atlas.id for t in (mv.labels, mv.cbar_text)}
+    seen = _texture_uploads(monkeypatch)
+    for yaw in (21.0, 22.0, 23.0):
+        del seen[:]
+        h0, m0 = window.head_view.draws, mv.draws
+        window.state.yaw_deg = yaw
+        assert _process_until(qapp, lambda: window.head_view.draws > h0 and mv.draws > m0, 5.0)
+        _settle(qapp, 0.1)
+        assert seen.count(mv.image._texture.id) == 1
+        assert set(seen) <= {mv.image._texture.id} | atlases, seen
+
+
+def test_readout_follows_a_drag_after_its_frames_once(qapp, file_scenario):
+    # Contract of gui/deferred.py and gui/window.py (common practice, no source): every heading
+    # step is drawn, while the readout, the bound plot and the status bar (not part of the frame)
+    # follow once the burst of results is over, once, with the last result's numbers.  The quiet
+    # time is made long here so that the drag's steps fall within it on any machine.
+    from retina_viewer.window import MainWindow
+
+    win = MainWindow(file_scenario)               # the real threaded worker
+    try:
+        win.show()
+        assert _process_until(qapp, lambda: win.state.result is not None)
+        af = win.after_frames
+        assert _process_until(qapp, lambda: not af.pending)
+        af.quiet_ms, af.max_wait_ms = 3000, 60000
+        runs = af.runs
+        pose_before = win.readout.labels["pose"].text()
+        for yaw in (31.0, 32.0, 33.0, 34.0):
+            h0, m0 = win.head_view.draws, win.map_view.draws
+            win.state.yaw_deg = yaw
+            assert _process_until(qapp, lambda: win.state.result.request.yaw_deg == yaw and
+                                  win.head_view.draws > h0 and win.map_view.draws > m0, 10.0)
+        assert af.runs == runs and af.pending     # each step drawn, the readout not yet touched
+        assert win.readout.labels["pose"].text() == pose_before
+        af.quiet_ms = 10
+        af.poke()                                 # as the next result would: the burst ends
+        assert _process_until(qapp, lambda: not af.pending, 10.0)
+        assert af.runs == runs + 1
+        assert win.readout.labels["pose"].text().startswith("heading 34")
+        assert win.statusBar().currentMessage().startswith("pattern for heading 34")
+    finally:
+        win.close()
+        win.deleteLater()
+        qapp.processEvents()
+
+
+def test_map_pose_prepared_while_the_worker_computes_is_the_pose_shown(qapp, file_scenario):
+    # Contract of gui/views.py (MapView.prepare_pose) and the pose convention (derived, as in
+    # test_map_marks_follow_the_field_and_pose_conventions: a level head at heading 30 sees north
+    # at azimuth -30 on the horizon; B of a field of inclination I, declination D at azimuth
+    # D - 30 and elevation -I).  The geometry prepared before the result is the one drawn.
+    from retina_viewer.state import ViewerState
+    from retina_viewer.views import MapView
+
+    st = ViewerState(file_scenario)
+    v = MapView(st, size=(240, 160), follow="result")
+    try:
+        pose = (30.0, 0.0, 0.0, 66.0, 3.0)
+        v.prepare_pose(*pose)
+        assert len(v._prepared) == 1
+        v.prepare_pose(*pose)                     # asked again: nothing more kept
+        assert len(v._prepared) == 1
+        v._show_pose(*pose)
+        assert not v._prepared                    # used, not computed again
+        assert v.mark_positions["cardinals"][0, 0] == pytest.approx(-30.0, abs=1e-4)
+        np.testing.assert_allclose(v.mark_positions["field"], [3.0 - 30.0, -66.0], atol=1e-4)
+        pos = v.point_marks._data["a_position"][1:3, :2]
+        np.testing.assert_allclose(pos[0], [3.0 - 30.0, -66.0], atol=1e-4)
+        for k in range(6):                        # only the last few poses prepared are kept
+            v.prepare_pose(40.0 + k, 0.0, 0.0, 66.0, 3.0)
+        assert 0 < len(v._prepared) <= 4
+    finally:
+        v.close()
+        v.canvas.close()
+
+
+def test_after_frames_coalesces_pokes_and_keeps_errors_out_of_qt(qapp, caplog):
+    # Contract of gui/deferred.py (common practice, no source: debouncing with a deadline; no
+    # exception may escape a Qt slot).  Long quiet times make the checks independent of speed.
+    from retina_viewer.deferred import AfterFrames
+
+    calls = []
+    af = AfterFrames(lambda: calls.append(1), quiet_ms=60000, max_wait_ms=60000)
+    for _ in range(5):
+        af.poke()
+    _settle(qapp, 0.05)
+    assert calls == [] and af.pending             # still within the quiet time: not run
+    af.flush()
+    assert calls == [1] and not af.pending and af.runs == 1
+    af.flush()                                    # nothing waits: nothing runs
+    assert calls == [1]
+    af.max_wait_ms = 0                            # the deadline passed: the next pass runs it
+    for _ in range(3):
+        af.poke()
+    assert _process_until(qapp, lambda: not af.pending, 5.0)
+    assert calls == [1, 1]
+    af.poke()
+    af.cancel()
+    _settle(qapp, 0.05)
+    assert calls == [1, 1] and not af.pending
+
+    def fail():
+        raise RuntimeError("boom")
+
+    bad = AfterFrames(fail, immediate=True)
+    with caplog.at_level("ERROR", logger="retina"):
+        bad.poke()                                # logged, not raised
+    assert bad.runs == 1 and "boom" in caplog.text
