@@ -221,6 +221,7 @@ from typing import Callable
 
 import numpy as np
 
+from retina.spin import _fused
 from retina.spin import _propagation as _prop
 from retina.spin.separable import _check_inputs, check_scope
 from retina.spin.system import equal_rate_reported_yield
@@ -231,7 +232,8 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
                                        matvec_seconds)
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
-                                         DEFAULT_TAIL_SPLIT, ESTIMATORS, TAIL_STATES, SampledYields,
+                                         DEFAULT_BLOCK_WIDTH, DEFAULT_TAIL_SPLIT, ESTIMATORS, TAIL_STATES,
+                                         SampledYields,
                                          _states_pair, _states_words, _tail_words)
 
 __all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for",
@@ -276,29 +278,78 @@ def _strata(rows, r: int, r_tail: int) -> list:
     return [rows[:r_tail] * (r_tail / r), rows[r_tail:] * ((r - r_tail) / r)]
 
 
-def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None):
-    """Estimate and per-draw terms ``[(n_s,), ...]`` for one field vector ``bvec`` (tesla), and the
-    bound on its deterministic error.  ``tail = (k T_split, r_tail)`` splits the time integral:
-    beyond ``T_split`` only the first ``r_tail`` draws of each radical go on (module docstring)."""
-    # rigorous spectral bounds per block (Gershgorin, Weyl per nucleus and per group), then the
-    # time grid from the radicals' spreads
-    hams = [[_prop.block_hamiltonian(pb, bvec) for pb in prepared] for prepared, _ in rads]
-    spreads = [max(max(hi - lo for _, lo, hi in hs), 1e-30 * k) for hs in hams]
-    w_tot = spreads[0] + spreads[1]
+def _field_hams(rads, bvec):
+    """Per radical and block the Hamiltonian for field ``bvec`` (tesla) and its rigorous spectral
+    bounds (Gershgorin, Weyl per nucleus and per group: :func:`retina.spin._propagation.block_hamiltonian`)."""
+    return [[_prop.block_hamiltonian(pb, bvec) for pb in prepared] for prepared, _ in rads]
+
+
+def _spread_sum(hams, k: float) -> float:
+    """The sum of the two radicals' bounded spectral spreads (largest over their blocks)."""
+    return sum(max(max(hi - lo for _, lo, hi in hs), 1e-30 * k) for hs in hams)
+
+
+def _run_spread(system, fields) -> float:
+    """The largest spread sum over the field vectors ``fields (F, 3)`` (tesla): it sets the run's
+    time grid (module docstring, time quadrature), so every field of a run shares one grid and the
+    result does not depend on how the fields are grouped (``block_width``, ``n_jobs``)."""
+    rads = [(_prop.prepare(rad), None) for rad in system.radicals]
+    k = float(system.k_singlet)
+    return max(_spread_sum(_field_hams(rads, b), k) for b in fields)
+
+
+def _grid(w_tot: float, k: float, bias_tol: float, tail, rs):
+    """``(h, n_t, n_split, r_tails, gamma, fit_err)``: the time grid for spread sum ``w_tot``, the
+    end correction and the split tail (module docstring)."""
     h = min(0.9 * np.pi / w_tot, 0.5 / k)
     kh = k * h
     gamma, fit_err = _prop.end_correction(k, h, w_tot * h, bias_tol / 10.0)
     n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
     n_t = max(n_t, gamma.shape[0])
-    rs = [xis[0].shape[1] for _, xis in rads]
     n_split, r_tails = n_t, list(rs)
     if tail is not None:
         # the split lies on the grid, after the end correction's samples; a radical splits only
         # when both strata keep at least 2 draws (each needs a sample variance)
         n_split = min(n_t, max(int(math.ceil(tail[0] / kh)), gamma.shape[0]))
         r_tails = [int(tail[1]) if r - int(tail[1]) >= 2 and int(tail[1]) >= 2 else r for r in rs]
+    return h, n_t, n_split, r_tails, gamma, fit_err
+
+
+def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None, w_tot=None):
+    """Estimate and per-draw terms ``[(n_s,), ...]`` for one field vector ``bvec`` (tesla), and the
+    bound on its deterministic error.  ``tail = (k T_split, r_tail)`` splits the time integral:
+    beyond ``T_split`` only the first ``r_tail`` draws of each radical go on (module docstring).
+    ``w_tot``: the run's spread sum (:func:`_run_spread`; default this field's own)."""
+    hams = _field_hams(rads, bvec)
+    rs = [xis[0].shape[1] for _, xis in rads]
+    grid = _grid(_spread_sum(hams, k) if w_tot is None else w_tot, k, bias_tol, tail, rs)
+    h, n_t, n_split, r_tails = grid[:4]
     series = [_prop.radical_series(prepared, hs, xis, h, n_t, n_split=n_split, r_tail=rt)
               for (prepared, xis), hs, rt in zip(rads, hams, r_tails)]
+    return _estimate(series, grid, k, m_tot, estimator)
+
+
+def _fused_fields(rads, bvecs, k, m_tot, bias_tol, estimator, tail, w_tot):
+    """:func:`_one_field` for the field vectors ``bvecs (W, 3)`` propagated together
+    (:mod:`retina.spin._fused`), on the run's grid ``w_tot``: a list of ``W`` results."""
+    hams = [_field_hams(rads, b) for b in bvecs]
+    rs = [xis[0].shape[1] for _, xis in rads]
+    grid = _grid(w_tot, k, bias_tol, tail, rs)
+    h, n_t, n_split, r_tails = grid[:4]
+    series = []
+    for ri, ((prepared, xis), rt) in enumerate(zip(rads, r_tails)):
+        ws = [[b @ pb.block.zeeman for pb in prepared] for b in bvecs]
+        series.append(_fused.fused_series(prepared, [hs[ri] for hs in hams], ws, xis, h, n_t, n_split=n_split,
+                                          r_tail=rt))
+    return [_estimate([series[0][f], series[1][f]], grid, k, m_tot, estimator) for f in range(len(bvecs))]
+
+
+def _estimate(series, grid, k, m_tot, estimator):
+    """Estimate, per-draw terms and bias bound from the two radicals' series on ``grid`` (:func:`_grid`)."""
+    h, n_t, n_split, r_tails, gamma, fit_err = grid
+    kh = k * h
+    rs = [s.shape[0] for s in series]
+
     # the end-corrected trapezoid rule as weights (linear), split into the early and tail times
     weights = kh * np.exp(-kh * np.arange(n_t))
     weights[0] *= 0.5
@@ -331,12 +382,13 @@ def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None):
 
 
 def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none",
-                       basis="lab", tail=None):
+                       basis="lab", tail=None, block_width=1, w_tot=None):
     """Estimates, per-draw terms, bias bound and the per-draw terms without the control for field
     vectors ``b_all (N, 3)`` (tesla, already on the upper hemisphere); the random vectors come from
     ``seed`` alone (``n_states``: an int, or one count per radical).  With ``control="opposite"``
     each field is also sampled at ``-b`` with the same vectors and the two are averaged (module
-    docstring); ``basis`` and ``tail`` as in :func:`sampled_yields`."""
+    docstring); ``basis``, ``tail`` and ``block_width`` as in :func:`sampled_yields`; ``w_tot``
+    the run's spread sum (:func:`_run_spread`; default from these fields)."""
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
     states = _states_pair(n_states)
@@ -346,14 +398,29 @@ def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progr
         rads.append((prepared, _prop.random_vectors(prepared, r, rng, radical=rad, basis=basis)))
     m_tot = system.radicals[0].dimension * system.radicals[1].dimension / 4.0
     n_dir = b_all.shape[0]
+    per_dir = 2 if control == "opposite" else 1
+    # every field of the run, each direction followed by its opposite with the control
+    fields = np.stack([b_all, -b_all], axis=1).reshape(-1, 3) if per_dir == 2 else np.asarray(b_all)
+    if w_tot is None:
+        w_tot = max(_spread_sum(_field_hams(rads, b), k) for b in fields)
+    width = max(1, int(block_width))
+    results = []
+    for start in range(0, fields.shape[0], width):
+        block = fields[start:start + width]
+        if width == 1:
+            results.append(_one_field(rads, block[0], k, m_tot, bias_tol, estimator, tail, w_tot))
+        else:
+            results.extend(_fused_fields(rads, block, k, m_tot, bias_tol, estimator, tail, w_tot))
+        if progress is not None:
+            progress(min(n_dir, len(results) // per_dir), n_dir)
     cols, plain_cols = [], []
     mean = np.empty(n_dir)
     bias = 0.0
-    for i, bvec in enumerate(b_all):
-        m_i, p_i, b_i = _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail)
+    for i in range(n_dir):
+        m_i, p_i, b_i = results[per_dir * i]
         if control == "opposite":
             # the control D = Y(b) - Y(-b) (expectation exactly zero) with beta = 1/2
-            m_o, p_o, b_o = _one_field(rads, -bvec, k, m_tot, bias_tol, estimator, tail)
+            m_o, p_o, b_o = results[per_dir * i + 1]
             plain_cols.append(p_i)
             m_i = 0.5 * (m_i + m_o)
             p_i = [0.5 * (x + y) for x, y in zip(p_i, p_o)]
@@ -361,8 +428,6 @@ def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progr
         mean[i] = m_i
         cols.append(p_i)
         bias = max(bias, b_i)
-        if progress is not None:
-            progress(i + 1, n_dir)
 
     def stack(columns):        # per part, (n_s, N) from the directions' (n_s,) columns
         return [np.stack([c[j] for c in columns], axis=1) for j in range(len(columns[0]))] if columns else []
@@ -370,12 +435,12 @@ def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progr
     return mean, stack(cols), bias, stack(plain_cols)
 
 
-
 def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, seed: int = 0,
                    bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
                    progress: Callable[[int, int], None] | None = None,
                    n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
-                   basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT) -> SampledYields:
+                   basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT,
+                   block_width: int = DEFAULT_BLOCK_WIDTH) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -410,6 +475,11 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         Split tail (module docstring): beyond ``tail_split`` lifetimes (``k t``) only
         :data:`TAIL_STATES` draws per radical go on, the rest stop; ``None`` propagates every draw
         to the end.
+    block_width : int
+        Fields propagated together (:mod:`retina.spin._fused`; with the control ``b`` and ``-b`` are
+        two fields): the radicals' hyperfine matrices are read once for all their vectors.  ``1``
+        propagates field by field.  A pure speed setting: every field of a run shares one time
+        grid, so the result does not depend on it beyond the Chebyshev truncation (~1e-12).
 
     Returns
     -------
@@ -446,6 +516,9 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
                                        and tail_split > 0):
         raise InputError(f"expected a positive number of lifetimes (or None) for the tail split, got {tail_split!r}",
                          key="tail_split")
+    if isinstance(block_width, bool) or not isinstance(block_width, (int, np.integer)) or block_width < 1:
+        raise InputError(f"expected a positive whole number of fields per block, got {block_width!r}",
+                         key="block_width")
     states = (int(pair[0]), int(pair[1]))
     tail = None if tail_split is None else (float(tail_split), TAIL_STATES)
     # directions that share an upper-hemisphere representative (b and -b) share one estimate
@@ -458,19 +531,24 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
 
         def progress(done, total):          # in units of the directions asked for
             outer(n_all if done >= total else done * n_all // total, n_all)
+    # the run's time grid, from every field it samples (the same whatever the blocks and workers)
+    w_tot = _run_spread(system, np.concatenate([b_all, -b_all]) if control == "opposite" else b_all)
+    width = int(block_width)
     if n_jobs == 1 or n_dir < 2:
         mean, parts, bias, plain = _sample_directions(system, b_all, states, seed, bias_tol, estimator, progress,
-                                                      control, basis, tail)
+                                                      control, basis, tail, width, w_tot)
     else:
         # worker processes over directions; every worker draws the same random vectors from the
         # seed, so the errors stay shared across directions exactly as in one process
         from joblib import Parallel, delayed
 
-        step = max(1, min(_BATCH, -(-n_dir // n_jobs)))
+        # tasks hold whole blocks of fields, so that the blocks (and the rounding) do not depend on n_jobs
+        unit = width // math.gcd(width, 2 if control == "opposite" else 1)
+        step = unit * max(1, -(-max(1, min(_BATCH, -(-n_dir // n_jobs))) // unit))
         starts = list(range(0, n_dir, step))
         results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
             delayed(_sample_directions)(system, b_all[i:i + step], states, seed, bias_tol, estimator, None, control,
-                                        basis, tail)
+                                        basis, tail, width, w_tot)
             for i in starts)
         means, part_list, plain_list = [], [], []
         bias = 0.0

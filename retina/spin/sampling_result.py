@@ -15,7 +15,7 @@ import numpy as np
 from retina.spin import _propagation as _prop
 
 __all__ = ["SampledYields", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "CONTROLS", "DEFAULT_CONTROL",
-           "BASES", "DEFAULT_BASIS", "BASIS_NAMES", "DEFAULT_TAIL_SPLIT", "TAIL_STATES", "CONTROL_NAMES"]
+           "BASES", "DEFAULT_BASIS", "BASIS_NAMES", "DEFAULT_TAIL_SPLIT", "TAIL_STATES", "DEFAULT_BLOCK_WIDTH", "CONTROL_NAMES"]
 
 #: Default number of random vectors per radical (independent draws).
 DEFAULT_STATES = 16
@@ -40,6 +40,9 @@ BASIS_NAMES = {"lab": "random phases in the laboratory basis",
 #: draws per radical are propagated on.
 DEFAULT_TAIL_SPLIT = 3.0
 TAIL_STATES = 2
+#: Fields propagated together by default (:func:`retina.spin.sampling.sampled_yields`, ``block_width``;
+#: measured in ``benchmarks/bench_spin_fused.py``).
+DEFAULT_BLOCK_WIDTH = 1
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
                  "none": "no control variate"}
