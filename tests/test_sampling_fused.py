@@ -113,3 +113,18 @@ def test_block_width_must_be_a_positive_whole_number(bad):
     # Common practice, no source: bad input is a clear error naming the field.
     with pytest.raises(InputError, match="fields per block"):
         sampling.sampled_yields(_small(), 50.0, _unit(np.random.default_rng(0), 2), n_states=2, block_width=bad)
+
+
+def test_cost_model_counts_the_fused_blocks():
+    # Derived (sampling_cost._radical_seconds): fusing W fields runs the sparse product at W times
+    # the width, where its cost per vector is lower (_WIDTH_COST, a measured table that falls with
+    # width), and shares the per-expansion overhead; so the modelled time falls with block_width
+    # and the memory grows; a block wider than the run's fields costs the same as all of them.
+    system = _small()
+    t1, m1, note1 = sampling.cost_model(system, 3, n_states=(4, 8), block_width=1)
+    t4, m4, note4 = sampling.cost_model(system, 3, n_states=(4, 8), block_width=4)
+    t6, _, _ = sampling.cost_model(system, 3, n_states=(4, 8), block_width=6)
+    t9, _, _ = sampling.cost_model(system, 3, n_states=(4, 8), block_width=99)
+    assert t6 < t4 < t1 and m4 > m1
+    assert t9 == t6                                   # 3 directions x 2 fields = 6 fields at most
+    assert "4 fields propagated together" in note4 and "propagated together" not in note1

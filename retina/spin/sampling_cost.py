@@ -19,7 +19,8 @@ from retina.spin import _propagation as _prop
 from retina.spin._spectral import grouped_interval
 from retina.spin.operators import MU_B_OVER_HBAR
 from retina.spin.sampling_result import (BASIS_NAMES, CONTROL_NAMES, DEFAULT_BASIS, DEFAULT_BIAS_TOL,
-                                         DEFAULT_CONTROL, DEFAULT_STATES, DEFAULT_TAIL_SPLIT, TAIL_STATES,
+                                         DEFAULT_BLOCK_WIDTH, DEFAULT_CONTROL, DEFAULT_STATES, DEFAULT_TAIL_SPLIT,
+                                         TAIL_STATES,
                                          _states_pair, _states_words, _tail_words)
 
 __all__ = ["cost_model", "matvec_seconds"]
@@ -98,9 +99,10 @@ def matvec_seconds() -> float:
     return float(np.median(times)) / (d * per_row * n_vec)
 
 
-def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
+def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, fields: int = 1):
     """``([seconds of radical A, of B], peak bytes, n_t)`` for one field direction (no control):
-    the model of :func:`cost_model`, one radical at a time."""
+    the model of :func:`cost_model`, one radical at a time; ``fields`` propagated together (the
+    sparse product runs ``fields`` times as many vectors, the per-expansion overhead is shared)."""
     from retina.spin.equivalence import groups, multiplicities
 
     k = float(system.k_singlet)
@@ -113,9 +115,11 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
     for rad, spread, r in zip(system.radicals, spreads, states):
         r_tail = TAIL_STATES if (tail_split is not None and r - TAIL_STATES >= 2) else r
         vec = 2 * r
+        nf = max(1, int(fields))
         # the early steps run 2 R vectors, the split tail's 2 r_tail (narrower blocks cost more
         # per vector: _width_cost)
         blocks = ((n_early, vec), (n_t - n_early, 2 * r_tail))
+        # per field: the product's cost per vector at the fused block's width nf * w
         a = 0.5 * spread
         grp = groups(rad)
         options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
@@ -126,10 +130,10 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
             m = _prop.substeps(a, h, nnz)
             n_c = a * h * m + 25
             for steps, w in blocks:
-                per_step = (t_mv * dim * w * (n_c / m * nnz * _width_cost(w) + _R_COMB * n_c + _R_CORR)
-                            + _T_GROUP / m)
+                per_step = (t_mv * dim * w * (n_c / m * nnz * _width_cost(nf * w) + _R_COMB * n_c + _R_CORR)
+                            + _T_GROUP / (m * nf))
                 secs += steps * per_step
-            mem = max(mem, 8 * dim * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+            mem = max(mem, 8 * dim * nf * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
         out.append(secs)
     return out, mem, n_t
 
@@ -137,7 +141,8 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv):
 def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
                field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
                measured: bool = False, control: str = DEFAULT_CONTROL,
-               tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS) -> tuple[float, int, str]:
+               tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS,
+               block_width: int = DEFAULT_BLOCK_WIDTH) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
@@ -146,7 +151,8 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     step; the time step and Chebyshev half-width from :func:`_model_spread`.  With a split tail
     the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end; the sparse
     product's cost per vector depends on the block's width (:data:`_WIDTH_COST`: narrow blocks pay
-    more per vector).  Times in units of
+    more per vector); with ``block_width`` fields propagated together the product runs at the fused
+    block's width and the per-expansion overhead is shared.  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
     measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
@@ -171,6 +177,9 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
         The split tail of :func:`sampled_yields` (lifetimes), ``None`` for none.
     basis : str
         The basis of the random phases (named in the note; it does not change the cost).
+    block_width : int
+        Fields propagated together (:func:`retina.spin.sampling.sampled_yields`), at most all the
+        run's fields.
 
     Returns
     -------
@@ -179,13 +188,14 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     """
     t_mv = matvec_seconds() if measured else _T_MATVEC
     states = _states_pair(n_states)
-    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv)
+    fields = 2 if control == "opposite" else 1
+    nf = max(1, min(int(block_width), fields * int(n_directions)))
+    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, nf)
     secs = sum(per_radical)
     # per-draw series of both radicals (R, n_t, 9) and their products
     mem += 8 * max(states) * n_t * (2 * 9 + 4)
-    fields = 2 if control == "opposite" else 1
     note = (f"{n_directions} x {fields} stochastic trace estimates with {_states_words(states)}, "
-            f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]} "
-            f"(an approximation with error bars)")
+            f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]}"
+            f"{f', {nf} fields propagated together' if nf > 1 else ''} (an approximation with error bars)")
     return fields * n_directions * secs, int(1.3 * mem + 2**20), note
 
