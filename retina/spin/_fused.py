@@ -179,8 +179,8 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None):
             w2 = 2 * rr
             for f in range(n_f):
                 sl = slice(f * w2, (f + 1) * w2)
-                _prop.correlations(np.ascontiguousarray(re[:, :, sl]), np.ascontiguousarray(im[:, :, sl]), n, rr,
-                                   mult, out[f, :rr, j:j + m])
+                # views, not copies: the Gram kernel reads any strides
+                _prop.correlations(re[:, :, sl], im[:, :, sl], n, rr, mult, out[f, :rr, j:j + m])
             xs[0][...] = re[m - 1]
             ys[0][...] = im[m - 1]
             j += m

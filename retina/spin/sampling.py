@@ -195,9 +195,19 @@ matrix and is left out).  Directions that are each other's opposites share one e
 the control below it is formed from both).  Groups of equivalent nuclei are reduced to
 their total-spin blocks (:mod:`retina.spin.equivalence`), each block sampled with its multiplicity.
 
+Fused fields (``block_width``).  The sparse product is bound by reading the matrix, so its time per
+vector falls with the block's width; all fields of a run share the hyperfine matrix and the random
+vectors, and differ only in the electron Zeeman term, a 2 x 2 matrix on the electron factor.
+``block_width`` fields (``b`` and ``-b`` are two) are propagated as one block of vectors
+(:mod:`retina.spin._fused`): the hyperfine entries are read once for all of them and each field's
+Zeeman term is applied per column, on the hull of the fields' spectral intervals.  Every field of
+a run uses one time grid (the step from the largest spread sum over the run's fields, so that
+grouping the fields into blocks or workers changes nothing but the Chebyshev truncation); the
+estimator, its vectors and its error bar are those of field-by-field propagation.
+
 Time quadrature (derived here; deterministic errors bounded and stated).  ``Q`` is the trapezoid
 rule of :mod:`retina.spin.fast_separable` on ``t_j = j h`` with ``h <= 0.9 pi / W`` (``W`` the sum of
-the two radicals' bounded spectral spreads (above), so every frequency of ``F`` has ``|Omega h| <=
+the two radicals' bounded spectral spreads (above), the largest over the run's fields, so every frequency of ``F`` has ``|Omega h| <=
 0.9 pi``), whose exact error is ``sum_l c_l g(Omega_l)`` (aliasing kernel ``g`` of that module).
 Without the spectrum, the correction is folded into the first few weights instead: fit
 ``g(theta / h) ~ sum_{j=0}^{J} gamma_j cos(j theta)`` on ``0 <= theta <= W h`` (least squares, ``J``
