@@ -128,3 +128,19 @@ def test_cost_model_counts_the_fused_blocks():
     assert t6 < t4 < t1 and m4 > m1
     assert t9 == t6                                   # 3 directions x 2 fields = 6 fields at most
     assert "4 fields propagated together" in note4 and "propagated together" not in note1
+
+
+def test_single_precision_stays_close_to_double_and_is_really_single():
+    # IEEE 754: float32 unit roundoff 6e-8.  The states are normalised and the sums accumulate in
+    # double, so the yields move by about the roundoff times the number of Chebyshev steps' growth
+    # (derived: a random walk of rounding errors); 1e-6 is far below the sampling error and far
+    # above double's rounding, and a difference above 1e-13 shows the states really were single.
+    system = _equivalent()
+    dirs = _unit(np.random.default_rng(3), 3)
+    kw = dict(n_states=(4, 6), seed=2, block_width=2)
+    double = sampling.sampled_yields(system, 50.0, dirs, **kw)
+    single = sampling.sampled_yields(system, 50.0, dirs, precision="single", **kw)
+    diff = np.abs(single.mean - double.mean)
+    assert 1e-13 < diff.max() < 1e-6
+    with pytest.raises(InputError, match="precision"):
+        sampling.sampled_yields(system, 50.0, dirs, precision="half", **kw)

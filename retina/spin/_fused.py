@@ -84,7 +84,7 @@ def electron_terms(ws, centre: float, half: float):
             -0.5 * w[:, 1] / half)
 
 
-def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None):
+def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, dtype=np.float64):
     """Per field and draw the correlation estimates ``c_ab(t_j)``, shape (W, R, n_t, 9), for ``W``
     fields propagated together (module docstring); each field's entry equals
     :func:`retina.spin._propagation.radical_series` for that field up to the Chebyshev truncation.
@@ -106,6 +106,10 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None):
         Number of grid times.
     n_split, r_tail : int, optional
         The split tail, as in :func:`retina.spin._propagation.radical_series` (per field).
+    dtype : numpy dtype
+        Real type of the propagated states and the matrix (``float64``, or ``float32`` for the
+        single-precision option: the sparse product's and the combination's memory traffic halves;
+        row sums and Gram matrices still accumulate in double precision).
 
     Returns
     -------
@@ -124,16 +128,16 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None):
         a = max(0.5 * (hi - lo), 1e-30)
         hs = (pb.h_hf / a).tocsr()
         hs.sort_indices()
-        dr = np.ascontiguousarray(hs.data.real)
-        di = np.ascontiguousarray(hs.data.imag)
+        dr = np.ascontiguousarray(hs.data.real, dtype=dtype)
+        di = np.ascontiguousarray(hs.data.imag, dtype=dtype)
         full = hams[0][bi][0]
         m_sub = _prop.substeps(a, h, full.nnz / full.shape[0])
         terms = electron_terms([w[bi] for w in ws], c, a)
         coef = _prop.sub_coeffs(a, 0.0, h, m_sub)
         n_c = coef.shape[0]
         odd = (np.arange(n_c) % 2 == 1)
-        c_re = np.where(odd[:, None], -coef.imag, coef.real).T.copy()
-        c_im = np.where(odd[:, None], coef.imag, coef.real).T.copy()
+        c_re = np.where(odd[:, None], -coef.imag, coef.real).T.astype(dtype)
+        c_im = np.where(odd[:, None], coef.imag, coef.real).T.astype(dtype)
         mult = float(pb.block.multiplicity)
 
         def columns(rr):
@@ -144,20 +148,20 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None):
         for f in range(n_f):
             v[:n, f * 2 * r:f * 2 * r + r] = xi
             v[n:, f * 2 * r + r:(f + 1) * 2 * r] = xi
-        v_re, v_im = np.ascontiguousarray(v.real), np.ascontiguousarray(v.imag)
+        v_re, v_im = np.ascontiguousarray(v.real, dtype=dtype), np.ascontiguousarray(v.imag, dtype=dtype)
         for f in range(n_f):
             sl = slice(f * 2 * r, (f + 1) * 2 * r)
             _prop.correlations(np.ascontiguousarray(v_re[:, sl])[None], np.ascontiguousarray(v_im[:, sl])[None], n, r,
                                mult, out[f, :, 0:1])
 
         def workspace(x_re, x_im, rr):
-            rows_a = np.empty((n_c,) + x_re.shape)
-            rows_b = np.empty((n_c,) + x_re.shape)
+            rows_a = np.empty((n_c,) + x_re.shape, dtype=dtype)
+            rows_b = np.empty((n_c,) + x_re.shape, dtype=dtype)
             xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]
             ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]
             xs[0][...] = x_re
             ys[0][...] = x_im
-            per_col = [np.ascontiguousarray(np.repeat(t, 2 * rr)) for t in terms]
+            per_col = [np.ascontiguousarray(np.repeat(t, 2 * rr), dtype=dtype) for t in terms]
             return x_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1), per_col
 
         rr = r

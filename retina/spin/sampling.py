@@ -243,15 +243,15 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
                                          DEFAULT_BLOCK_WIDTH, DEFAULT_TAIL_SPLIT, ESTIMATORS, TAIL_STATES,
-                                         SampledYields,
-                                         _states_pair, _states_words, _tail_words)
+                                         SampledYields, _states_pair, _states_words, _tail_words)
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for",
-           "CONTROLS", "DEFAULT_CONTROL", "CONTROL_NAMES",
-           "DEFAULT_STATES",
-           "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES"]
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for", "CONTROLS",
+           "DEFAULT_CONTROL", "CONTROL_NAMES", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES",
+           "PRECISIONS"]
 
 _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
+#: Real types of the propagated states (:func:`sampled_yields`, ``precision``).
+PRECISIONS = {"double": np.float64, "single": np.float32}
 
 
 def _upper(dirs: np.ndarray) -> np.ndarray:
@@ -339,7 +339,7 @@ def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None, w_tot=None)
     return _estimate(series, grid, k, m_tot, estimator)
 
 
-def _fused_fields(rads, bvecs, k, m_tot, bias_tol, estimator, tail, w_tot):
+def _fused_fields(rads, bvecs, k, m_tot, bias_tol, estimator, tail, w_tot, dtype=np.float64):
     """:func:`_one_field` for the field vectors ``bvecs (W, 3)`` propagated together
     (:mod:`retina.spin._fused`), on the run's grid ``w_tot``: a list of ``W`` results."""
     hams = [_field_hams(rads, b) for b in bvecs]
@@ -350,7 +350,7 @@ def _fused_fields(rads, bvecs, k, m_tot, bias_tol, estimator, tail, w_tot):
     for ri, ((prepared, xis), rt) in enumerate(zip(rads, r_tails)):
         ws = [[b @ pb.block.zeeman for pb in prepared] for b in bvecs]
         series.append(_fused.fused_series(prepared, [hs[ri] for hs in hams], ws, xis, h, n_t, n_split=n_split,
-                                          r_tail=rt))
+                                          r_tail=rt, dtype=dtype))
     return [_estimate([series[0][f], series[1][f]], grid, k, m_tot, estimator) for f in range(len(bvecs))]
 
 
@@ -392,13 +392,14 @@ def _estimate(series, grid, k, m_tot, estimator):
 
 
 def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progress, control="none",
-                       basis="lab", tail=None, block_width=1, w_tot=None):
+                       basis="lab", tail=None, block_width=1, w_tot=None, precision="double"):
     """Estimates, per-draw terms, bias bound and the per-draw terms without the control for field
     vectors ``b_all (N, 3)`` (tesla, already on the upper hemisphere); the random vectors come from
     ``seed`` alone (``n_states``: an int, or one count per radical).  With ``control="opposite"``
     each field is also sampled at ``-b`` with the same vectors and the two are averaged (module
     docstring); ``basis``, ``tail`` and ``block_width`` as in :func:`sampled_yields`; ``w_tot``
-    the run's spread sum (:func:`_run_spread`; default from these fields)."""
+    the run's spread sum (:func:`_run_spread`; default from these fields); ``precision`` as in
+    :func:`sampled_yields`."""
     k = float(system.k_singlet)
     rng = np.random.default_rng(seed)
     states = _states_pair(n_states)
@@ -417,10 +418,11 @@ def _sample_directions(system, b_all, n_states, seed, bias_tol, estimator, progr
     results = []
     for start in range(0, fields.shape[0], width):
         block = fields[start:start + width]
-        if width == 1:
+        if width == 1 and precision == "double":
             results.append(_one_field(rads, block[0], k, m_tot, bias_tol, estimator, tail, w_tot))
         else:
-            results.extend(_fused_fields(rads, block, k, m_tot, bias_tol, estimator, tail, w_tot))
+            results.extend(_fused_fields(rads, block, k, m_tot, bias_tol, estimator, tail, w_tot,
+                                         PRECISIONS[precision]))
         if progress is not None:
             progress(min(n_dir, len(results) // per_dir), n_dir)
     cols, plain_cols = [], []
@@ -450,7 +452,7 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
                    progress: Callable[[int, int], None] | None = None,
                    n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
                    basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT,
-                   block_width: int = DEFAULT_BLOCK_WIDTH) -> SampledYields:
+                   block_width: int = DEFAULT_BLOCK_WIDTH, precision: str = "double") -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -490,6 +492,11 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         two fields): the radicals' hyperfine matrices are read once for all their vectors.  ``1``
         propagates field by field.  A pure speed setting: every field of a run shares one time
         grid, so the result does not depend on it beyond the Chebyshev truncation (~1e-12).
+    precision : {"double", "single"}
+        Real type of the propagated states (:data:`PRECISIONS`): ``"single"`` (complex64 states,
+        float32 matrix; sums still in double) halves the memory traffic; an option of this function
+        only (the engine and its cache use ``"double"``), its bias measured in
+        ``benchmarks/bench_spin_fused.py``.
 
     Returns
     -------
@@ -529,6 +536,8 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     if isinstance(block_width, bool) or not isinstance(block_width, (int, np.integer)) or block_width < 1:
         raise InputError(f"expected a positive whole number of fields per block, got {block_width!r}",
                          key="block_width")
+    if precision not in PRECISIONS:
+        raise InputError(f"expected a precision among {', '.join(PRECISIONS)}, got {precision!r}", key="precision")
     states = (int(pair[0]), int(pair[1]))
     tail = None if tail_split is None else (float(tail_split), TAIL_STATES)
     # directions that share an upper-hemisphere representative (b and -b) share one estimate
@@ -546,7 +555,7 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     width = int(block_width)
     if n_jobs == 1 or n_dir < 2:
         mean, parts, bias, plain = _sample_directions(system, b_all, states, seed, bias_tol, estimator, progress,
-                                                      control, basis, tail, width, w_tot)
+                                                      control, basis, tail, width, w_tot, precision)
     else:
         # worker processes over directions; every worker draws the same random vectors from the
         # seed, so the errors stay shared across directions exactly as in one process
@@ -558,7 +567,7 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         starts = list(range(0, n_dir, step))
         results = Parallel(n_jobs=n_jobs, backend="loky", return_as="generator")(
             delayed(_sample_directions)(system, b_all[i:i + step], states, seed, bias_tol, estimator, None, control,
-                                        basis, tail, width, w_tot)
+                                        basis, tail, width, w_tot, precision)
             for i in starts)
         means, part_list, plain_list = [], [], []
         bias = 0.0
