@@ -40,9 +40,13 @@ BASIS_NAMES = {"lab": "random phases in the laboratory basis",
 #: draws per radical are propagated on.
 DEFAULT_TAIL_SPLIT = 3.0
 TAIL_STATES = 2
-#: Fields propagated together by default (:func:`retina.spin.sampling.sampled_yields`, ``block_width``;
-#: measured in ``benchmarks/bench_spin_fused.py``).
-DEFAULT_BLOCK_WIDTH = 1
+#: Fields propagated together by default (:func:`retina.spin.sampling.sampled_yields`, ``block_width``):
+#: two directions with their opposites, 64 vectors for radical B at 4 + 8 states.  Measured in
+#: ``benchmarks/bench_spin_fused.py`` (axial pairs, 4 + 8 states, one process, shared machine, load
+#: 2.6-3.7; the field-by-field reference scattered widely under that load): 12 nuclei 1.0-1.9x
+#: (widths 2-8), 20 nuclei 1.16-1.94x (1.3x typical, cache-limited); wider blocks gain little more
+#: and cost memory in proportion.
+DEFAULT_BLOCK_WIDTH = 4
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
                  "none": "no control variate"}
