@@ -63,6 +63,77 @@ def fused_step(indptr, indices, dr, di, d0, d1, er, ei, n, alpha, xr, xi, beta, 
             outi[i, c] = alpha * acci[c] + beta * yi[i, c]
 
 
+@numba.njit(cache=True, nogil=True, fastmath=True)
+def gram_fields(re, im, n, r, n_f, gr, gi):
+    """:func:`retina.spin._propagation.gram` for a fused block: ``re``, ``im`` (m, 2 n, n_f 2 R)
+    with field ``f``'s ``psi_up`` columns at ``2 R f + s`` and its ``psi_down`` at ``2 R f + R + s``;
+    ``gr``, ``gi`` (m, n_f R, 4, 4) (overwritten).  Rows are read once for all fields' draws."""
+    m = re.shape[0]
+    nd = n_f * r
+    acc = np.empty((16, nd))
+    for t in range(m):
+        for k in range(16):
+            for d in range(nd):
+                acc[k, d] = 0.0
+        for q in range(n):
+            for f in range(n_f):
+                o = 2 * r * f
+                for s in range(r):
+                    d = f * r + s
+                    a0 = re[t, q, o + s]
+                    b0 = im[t, q, o + s]
+                    a1 = re[t, n + q, o + s]
+                    b1 = im[t, n + q, o + s]
+                    a2 = re[t, q, o + r + s]
+                    b2 = im[t, q, o + r + s]
+                    a3 = re[t, n + q, o + r + s]
+                    b3 = im[t, n + q, o + r + s]
+                    acc[0, d] += a0 * a0 + b0 * b0
+                    acc[1, d] += a1 * a1 + b1 * b1
+                    acc[2, d] += a2 * a2 + b2 * b2
+                    acc[3, d] += a3 * a3 + b3 * b3
+                    acc[4, d] += a0 * a1 + b0 * b1
+                    acc[5, d] += a0 * b1 - b0 * a1
+                    acc[6, d] += a0 * a2 + b0 * b2
+                    acc[7, d] += a0 * b2 - b0 * a2
+                    acc[8, d] += a0 * a3 + b0 * b3
+                    acc[9, d] += a0 * b3 - b0 * a3
+                    acc[10, d] += a1 * a2 + b1 * b2
+                    acc[11, d] += a1 * b2 - b1 * a2
+                    acc[12, d] += a1 * a3 + b1 * b3
+                    acc[13, d] += a1 * b3 - b1 * a3
+                    acc[14, d] += a2 * a3 + b2 * b3
+                    acc[15, d] += a2 * b3 - b2 * a3
+        for d in range(nd):
+            for i in range(4):
+                gr[t, d, i, i] = acc[i, d]
+                gi[t, d, i, i] = 0.0
+            k = 4
+            for i in range(4):
+                for jj in range(i + 1, 4):
+                    gr[t, d, i, jj] = acc[k, d]
+                    gr[t, d, jj, i] = acc[k, d]
+                    gi[t, d, i, jj] = acc[k + 1, d]
+                    gi[t, d, jj, i] = -acc[k + 1, d]
+                    k += 2
+
+
+def correlations_fields(re, im, n: int, r: int, n_f: int, mult: float, out):
+    """:func:`retina.spin._propagation.correlations` for a fused block (:func:`gram_fields`): adds
+    to ``out (n_f, R, m, 9)``."""
+    m = re.shape[0]
+    gr = np.empty((m, n_f * r, 4, 4))
+    gi = np.empty((m, n_f * r, 4, 4))
+    gram_fields(re, im, n, r, n_f, gr, gi)
+    ker = _prop.ELECTRON_KERNEL
+    cab = (np.einsum("abJI,mrJI->rmab", ker.real, gr) - np.einsum("abJI,mrJI->rmab", ker.imag, gi)) * mult
+    cab = cab.reshape(n_f, r, m, 3, 3)
+    for ci, (ia, ib) in enumerate(_prop.PAIRS):
+        out[..., ci] += 0.5 * (cab[..., ia, ib] + cab[..., ib, ia])
+    for ci, (ia, ib) in enumerate(_prop.PAIRS[3:]):
+        out[..., 6 + ci] += 0.5 * (cab[..., ia, ib] - cab[..., ib, ia])
+
+
 def electron_terms(ws, centre: float, half: float):
     """Per field the scaled electron term of :func:`fused_step`: ``(d0, d1, er, ei)`` of
     ``(w . S - centre) / half`` with ``S`` the electron spin (``w . S = [[w_z, w_x - i w_y],
@@ -162,29 +233,27 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, 
             xs[0][...] = x_re
             ys[0][...] = x_im
             per_col = [np.ascontiguousarray(np.repeat(t, 2 * rr), dtype=dtype) for t in terms]
-            return x_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1), per_col
+            # the states at the m times, written in place each expansion (no fresh pages per expansion)
+            bufs = (np.empty((m_sub, rows_a[0].size), dtype=dtype), np.empty((m_sub, rows_a[0].size), dtype=dtype))
+            return x_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1), per_col, bufs
 
         rr = r
-        shape, xs, ys, flat_a, flat_b, pc = workspace(v_re, v_im, rr)
+        shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(v_re, v_im, rr)
         j = 1
         while j < n_t:
             if j >= n_split and rr > r_tail:
                 keep = np.concatenate(columns(r_tail))
                 rr = r_tail
-                shape, xs, ys, flat_a, flat_b, pc = workspace(xs[0][:, keep], ys[0][:, keep], rr)
+                shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(xs[0][:, keep], ys[0][:, keep], rr)
             m = min(m_sub, n_t - j, n_split - j) if j < n_split else min(m_sub, n_t - j)
             if n_c > 1:
                 fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
             for k in range(2, n_c):
                 fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2],
                            ys[k - 2], xs[k], ys[k])
-            re = (c_re[:m] @ flat_a).reshape((m,) + shape)
-            im = (c_im[:m] @ flat_b).reshape((m,) + shape)
-            w2 = 2 * rr
-            for f in range(n_f):
-                sl = slice(f * w2, (f + 1) * w2)
-                # views, not copies: the Gram kernel reads any strides
-                _prop.correlations(re[:, :, sl], im[:, :, sl], n, rr, mult, out[f, :rr, j:j + m])
+            re = np.matmul(c_re[:m], flat_a, out=bufs[0][:m]).reshape((m,) + shape)
+            im = np.matmul(c_im[:m], flat_b, out=bufs[1][:m]).reshape((m,) + shape)
+            correlations_fields(re, im, n, rr, n_f, mult, out[:, :rr, j:j + m])
             xs[0][...] = re[m - 1]
             ys[0][...] = im[m - 1]
             j += m
