@@ -496,7 +496,7 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         Real type of the propagated states (:data:`PRECISIONS`): ``"single"`` (complex64 states,
         float32 matrix; sums still in double) halves the memory traffic; an option of this function
         only (the engine and its cache use ``"double"``).  Measured (``benchmarks/bench_spin_fused.py
-        --single 4``, axial pairs, 4 + 8 states, load 3.2-3.5): 1.29x faster at 16 nuclei, 1.65x at
+        --single 4``, axial pairs, 4 + 8 states, load 1.9-2.1): 1.33x faster at 16 nuclei, 1.45x at
         20, bias of the anisotropy 1e-9 and 1.3e-10 against standard errors of 1.3e-4 and 1.1e-4.
 
     Returns

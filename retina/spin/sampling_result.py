@@ -42,10 +42,12 @@ DEFAULT_TAIL_SPLIT = 3.0
 TAIL_STATES = 2
 #: Fields propagated together by default (:func:`retina.spin.sampling.sampled_yields`, ``block_width``):
 #: two directions with their opposites, 64 vectors for radical B at 4 + 8 states.  Measured in
-#: ``benchmarks/bench_spin_fused.py`` (axial pairs, 4 + 8 states, one process, shared machine, load
-#: 2.6-3.7; the field-by-field reference scattered widely under that load): 12 nuclei 1.0-1.9x
-#: (widths 2-8), 20 nuclei 1.16-1.94x (1.3x typical, cache-limited); wider blocks gain little more
-#: and cost memory in proportion.
+#: ``benchmarks/bench_spin_fused.py`` (axial pairs, 4 + 8 states, one process, load 1.2-2.0): 1.49x,
+#: 1.50x and 1.53x against field by field at 12, 16 and 20 nuclei (8 fields: 1.59x and 1.78x at 12
+#: and 16; at 20 nuclei the benchmark's two directions are only 4 fields).  At dimension 4608 the
+#: fused kernel's time per entry and vector, relative to 8 vectors, was 0.74, 0.57, 0.63 and 0.71
+#: at 16, 32, 64 and 128 vectors (one run, load 2.2: cache-limited beyond 32), so wider blocks
+#: would gain little there and cost memory in proportion.
 DEFAULT_BLOCK_WIDTH = 4
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
