@@ -119,8 +119,23 @@ def gram_fields(re, im, n, r, n_f, gr, gi):
 
 
 def correlations_fields(re, im, n: int, r: int, n_f: int, mult: float, out):
-    """:func:`retina.spin._propagation.correlations` for a fused block (:func:`gram_fields`): adds
-    to ``out (n_f, R, m, 9)``."""
+    """:func:`retina.spin._propagation.correlations` for a fused block (:func:`gram_fields`).
+
+    Parameters
+    ----------
+    re, im : ndarray (m, 2 n, n_f 2 R)
+        Real and imaginary parts of the fused block's states at ``m`` times.
+    n : int
+        Nuclear dimension of the block.
+    r : int
+        Draws ``R`` per field.
+    n_f : int
+        Fields in the block.
+    mult : float
+        The block's multiplicity.
+    out : ndarray (n_f, R, m, 9)
+        Added to in place.
+    """
     m = re.shape[0]
     gr = np.empty((m, n_f * r, 4, 4))
     gi = np.empty((m, n_f * r, 4, 4))
