@@ -193,7 +193,7 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, nf)
     secs = sum(per_radical)
     # per-draw series of both radicals (R, n_t, 9) and their products
-    mem += 8 * max(states) * n_t * (2 * 9 + 4)
+    mem += 8 * max(states) * n_t * (2 * 9 + 4) * nf      # per field of a fused block
     note = (f"{n_directions} x {fields} stochastic trace estimates with {_states_words(states)}, "
             f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]}"
             f"{f', {nf} fields propagated together' if nf > 1 else ''} (an approximation with error bars)")
