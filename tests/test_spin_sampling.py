@@ -431,12 +431,12 @@ def test_z_scores_of_differences_between_directions_look_standard_normal(control
 
 def test_the_control_is_counted_by_the_cost_model_the_pilot_and_the_engine(monkeypatch):
     # Derived: the opposite-direction control samples every direction twice, so the modelled time is
-    # exactly twice that without it (same memory: the two fields are sampled one after the other);
-    # the pilot of states_for runs with the final run's control, so its standard error already
-    # carries the control's reduction.
+    # exactly twice that without it when fields are propagated one at a time (block_width=1; same
+    # memory: the two fields are sampled one after the other); the pilot of states_for runs with
+    # the final run's control, so its standard error already carries the control's reduction.
     system = _big(1e6)
-    t_c, m_c, note = sampling.cost_model(system, 3, control="opposite")
-    t_n, m_n, _ = sampling.cost_model(system, 3, control="none")
+    t_c, m_c, note = sampling.cost_model(system, 3, control="opposite", block_width=1)
+    t_n, m_n, _ = sampling.cost_model(system, 3, control="none", block_width=1)
     assert t_c == pytest.approx(2 * t_n) and m_c == m_n
     assert "opposite-direction control" in note
     assert "opposite-direction control" in engine.estimate_cost(system, 3, "sampled").note
