@@ -61,9 +61,9 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         Number of independent check directions.
     accuracy : float, optional
         The sampled method's requested standard error per yield; enters the key only when given.
-        The sampled method's control variate, basis of the random phases and split tail
-        (:data:`retina.spin.sampling.DEFAULT_CONTROL`, ``DEFAULT_BASIS``, ``DEFAULT_TAIL_SPLIT``
-        and ``TAIL_STATES``) enter the key too, so results of another estimator are never served
+        The sampled method's control variate, basis of the random phases, split tail and
+        precision (:data:`retina.spin.sampling.DEFAULT_CONTROL`, ``DEFAULT_BASIS``,
+        ``DEFAULT_TAIL_SPLIT``, ``TAIL_STATES`` and ``DEFAULT_PRECISION``) enter the key too, so results of another estimator are never served
         from the cache.
 
     Returns
@@ -85,9 +85,11 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
     if accuracy is not None:
         record["accuracy"] = repr(float(accuracy))
     if method == "sampled":                  # these options change the numbers it returns
-        from retina.spin.sampling import DEFAULT_BASIS, DEFAULT_CONTROL, DEFAULT_TAIL_SPLIT, TAIL_STATES
+        from retina.spin.sampling import (DEFAULT_BASIS, DEFAULT_CONTROL, DEFAULT_PRECISION, DEFAULT_TAIL_SPLIT,
+                                           TAIL_STATES)
         record["sampling_control"] = DEFAULT_CONTROL
         record["sampling_basis"] = DEFAULT_BASIS
+        record["sampling_precision"] = DEFAULT_PRECISION
         record["sampling_tail"] = None if DEFAULT_TAIL_SPLIT is None else [repr(float(DEFAULT_TAIL_SPLIT)), TAIL_STATES]
     return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
 

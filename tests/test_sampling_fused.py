@@ -94,7 +94,7 @@ def test_fused_and_field_by_field_yields_agree_and_workers_do_not_matter():
     # processes give the same numbers (1e-13: only BLAS rounding may differ between processes).
     system = _equivalent()
     dirs = _unit(np.random.default_rng(3), 5)
-    kw = dict(n_states=(4, 6), seed=2, control="opposite", tail_split=2.0)
+    kw = dict(n_states=(4, 6), seed=2, control="opposite", tail_split=2.0, precision="double")
     one = sampling.sampled_yields(system, 50.0, dirs, block_width=1, **kw)
     fused = sampling.sampled_yields(system, 50.0, dirs, block_width=4, **kw)
     np.testing.assert_allclose(fused.mean, one.mean, rtol=0, atol=1e-10)
@@ -130,6 +130,19 @@ def test_cost_model_counts_the_fused_blocks():
     assert "4 fields propagated together" in note4 and "propagated together" not in note1
 
 
+def test_cost_model_counts_single_precision():
+    # Derived (sampling_cost.cost_model): single precision scales the modelled time by the measured
+    # _SINGLE_TIME and halves the bytes of each propagated state, so the time ratio is exactly that
+    # constant and the memory falls; the note names it.
+    from retina.spin import sampling_cost
+
+    system = _small()
+    td, md, noted = sampling.cost_model(system, 3, n_states=(4, 8), precision="double")
+    ts, ms, notes = sampling.cost_model(system, 3, n_states=(4, 8), precision="single")
+    assert ts / td == pytest.approx(sampling_cost._SINGLE_TIME, rel=1e-12) and ms < md
+    assert "single precision" in notes and "single precision" not in noted
+
+
 def test_single_precision_stays_close_to_double_and_is_really_single():
     # IEEE 754: float32 unit roundoff 6e-8.  The states are normalised and the sums accumulate in
     # double, so the yields move by about the roundoff times the number of Chebyshev steps' growth
@@ -138,7 +151,7 @@ def test_single_precision_stays_close_to_double_and_is_really_single():
     system = _equivalent()
     dirs = _unit(np.random.default_rng(3), 3)
     kw = dict(n_states=(4, 6), seed=2, block_width=2)
-    double = sampling.sampled_yields(system, 50.0, dirs, **kw)
+    double = sampling.sampled_yields(system, 50.0, dirs, precision="double", **kw)
     single = sampling.sampled_yields(system, 50.0, dirs, precision="single", **kw)
     diff = np.abs(single.mean - double.mean)
     assert 1e-13 < diff.max() < 1e-6

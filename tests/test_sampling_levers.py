@@ -153,13 +153,13 @@ def test_z_scores_stay_standard_with_the_levers(basis, tail_split, states):
 
 def test_cache_key_of_the_sampled_method_names_its_basis_and_split_tail(monkeypatch):
     # Common practice, no source: a cache key covers everything that changes the stored numbers;
-    # another basis of the phases or another split tail gives other numbers.
+    # another basis of the phases, another split tail or another precision gives other numbers.
     from retina import cache
 
     system = _small()
     key = cache.cache_key(system, 47.0, 8, "sampled", check_points=27)
     for name, value in (("DEFAULT_BASIS", "lab"), ("DEFAULT_TAIL_SPLIT", None), ("DEFAULT_TAIL_SPLIT", 4.0),
-                        ("TAIL_STATES", 3)):
+                        ("TAIL_STATES", 3), ("DEFAULT_PRECISION", "double")):
         with monkeypatch.context() as m:
             m.setattr(sampling, name, value)
             assert cache.cache_key(system, 47.0, 8, "sampled", check_points=27) != key

@@ -87,6 +87,9 @@ def test_engine_runs_the_sampled_method_and_reports_it():
     assert info["sampling_standard_error_max"] > 0
     assert info["sampling_control"] == "opposite" and "opposite-direction control" in info["approximation"]
     assert info["sampling_control_variance_reduction"] > 0
+    # the default precision is named in the provenance (common practice, no source)
+    assert info["sampling_precision"] == sampling.DEFAULT_PRECISION == "single"
+    assert "single-precision propagation" in info["approximation"]
     assert engine.choose_method(system) in ("separable", "fast-separable")  # auto stays exact
     with pytest.raises(InputError, match="random states"):
         sampling.sampled_yields(system, 50.0, dirs, n_states=1)
@@ -363,8 +366,9 @@ def test_opposite_control_averages_b_and_minus_b_from_the_same_states():
     # what control="none" returns.
     system = _small(k=3e7)
     dirs = sampling._upper(_unit(np.random.default_rng(21), 3))
-    with_c = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=5, control="opposite")
-    plain = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=5, control="none")
+    # double precision, as _sample_directions by default: the identity holds to rounding
+    with_c = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=5, control="opposite", precision="double")
+    plain = sampling.sampled_yields(system, 50.0, dirs, n_states=4, seed=5, control="none", precision="double")
     b = dirs * 50e-6
     mean, parts, _, extra = sampling._sample_directions(system, np.concatenate([b, -b]), 4, 5,
                                                        sampling.DEFAULT_BIAS_TOL, "product", None, "none",

@@ -512,10 +512,13 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
                     info.update(sampling_control_variance_reduction=res.variance_reduction(w))
             info.update(approximation=f"stochastic trace estimation, {res.estimator} estimator, "
                                       f"{sampling.CONTROL_NAMES[res.control]}, {sampling.BASIS_NAMES[res.basis]}"
-                                      f"{sampling._tail_words(res.tail_split)} (sampled)",
+                                      f"{sampling._tail_words(res.tail_split)}"
+                                      f"{', single-precision propagation' if res.precision == 'single' else ''}"
+                                      " (sampled)",
                         sampling_estimator=res.estimator,
                         sampling_control=res.control,
                         sampling_basis=res.basis,
+                        sampling_precision=res.precision,
                         sampling_tail_split=(float(res.tail_split) if res.tail_split is not None else 0.0),
                         sampling_states=int(res.n_states),
                         sampling_states_a=int(res.states[0]),

@@ -242,12 +242,13 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
                                        matvec_seconds)
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
-                                         DEFAULT_BLOCK_WIDTH, DEFAULT_TAIL_SPLIT, ESTIMATORS, TAIL_STATES,
+                                         DEFAULT_BLOCK_WIDTH, DEFAULT_PRECISION, DEFAULT_TAIL_SPLIT, ESTIMATORS,
+                                         TAIL_STATES,
                                          SampledYields, _states_pair, _states_words, _tail_words)
 
 __all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for", "CONTROLS",
            "DEFAULT_CONTROL", "CONTROL_NAMES", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES",
-           "PRECISIONS"]
+           "PRECISIONS", "DEFAULT_PRECISION"]
 
 _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
 #: Real types of the propagated states (:func:`sampled_yields`, ``precision``).
@@ -452,7 +453,8 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
                    progress: Callable[[int, int], None] | None = None,
                    n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
                    basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT,
-                   block_width: int = DEFAULT_BLOCK_WIDTH, precision: str = "double") -> SampledYields:
+                   block_width: int = DEFAULT_BLOCK_WIDTH,
+                   precision: str = DEFAULT_PRECISION) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
 
     Parameters
@@ -494,8 +496,8 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         grid, so the result does not depend on it beyond the Chebyshev truncation (~1e-12).
     precision : {"double", "single"}
         Real type of the propagated states (:data:`PRECISIONS`): ``"single"`` (complex64 states,
-        float32 matrix; sums still in double) halves the memory traffic; an option of this function
-        only (the engine and its cache use ``"double"``).  Measured (``benchmarks/bench_spin_fused.py
+        float32 matrix; sums still in double) halves the memory traffic; the default
+        (:data:`DEFAULT_PRECISION`, in the engine's cache key and provenance).  Measured (``benchmarks/bench_spin_fused.py
         --single 4``, axial pairs, 4 + 8 states, load 1.9-2.1): 1.33x faster at 16 nuclei, 1.45x at
         20, bias of the anisotropy 1e-9 and 1.3e-10 against standard errors of 1.3e-4 and 1.1e-4.
 
@@ -590,7 +592,8 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     # radical A's parts lead (product estimator): two strata when it splits (R_A - r >= 2), else one
     parts_a = 2 if (tail is not None and states[0] - TAIL_STATES >= 2) else 1
     return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
-                         states=states, basis=basis, tail_split=tail_split, parts_a=parts_a)
+                         states=states, basis=basis, tail_split=tail_split, parts_a=parts_a,
+                         precision=precision)
 
 
 #: Most random states :func:`states_for` asks for.

@@ -19,8 +19,8 @@ from retina.spin import _propagation as _prop
 from retina.spin._spectral import grouped_interval
 from retina.spin.operators import MU_B_OVER_HBAR
 from retina.spin.sampling_result import (BASIS_NAMES, CONTROL_NAMES, DEFAULT_BASIS, DEFAULT_BIAS_TOL,
-                                         DEFAULT_BLOCK_WIDTH, DEFAULT_CONTROL, DEFAULT_STATES, DEFAULT_TAIL_SPLIT,
-                                         TAIL_STATES,
+                                         DEFAULT_BLOCK_WIDTH, DEFAULT_CONTROL, DEFAULT_PRECISION, DEFAULT_STATES,
+                                         DEFAULT_TAIL_SPLIT, TAIL_STATES,
                                          _states_pair, _states_words, _tail_words)
 
 __all__ = ["cost_model", "matvec_seconds"]
@@ -50,6 +50,10 @@ _T_MATVEC = 2.0e-9
 #: correlation step, in units of the sparse product's time per entry and vector (ratios measured
 #: in one process at dimension 4608 with 8 vectors: 0.2 and 2.3); Python overhead per expansion, s.
 _R_COMB, _R_CORR, _T_GROUP = 0.2, 2.3, 3e-4
+#: Time of a single-precision run over a double-precision one: 1 / 1.39, the middle of the speed-ups
+#: measured in ``benchmarks/bench_spin_fused.py --single 4`` (1.39x, 1.33x, 1.45x at 12, 16 and 20
+#: nuclei; :data:`retina.spin.sampling_result.DEFAULT_PRECISION`).
+_SINGLE_TIME = 1.0 / 1.39
 #: The sparse product's time per stored entry and vector at a block of ``w`` vectors, relative to
 #: its time at 8 vectors (where :func:`matvec_seconds` measures it): ``(log2 w, ratio)``, linear in
 #: ``log2 w`` between the points and constant beyond them.  The product streams the matrix once
@@ -99,7 +103,8 @@ def matvec_seconds() -> float:
     return float(np.median(times)) / (d * per_row * n_vec)
 
 
-def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, fields: int = 1):
+def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, fields: int = 1,
+                     item_bytes: int = 8):
     """``([seconds of radical A, of B], peak bytes, n_t)`` for one field direction (no control):
     the model of :func:`cost_model`, one radical at a time; ``fields`` propagated together (the
     sparse product runs ``fields`` times as many vectors, the per-expansion overhead is shared)."""
@@ -133,7 +138,7 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, field
                 per_step = (t_mv * dim * w * (n_c / m * nnz * _width_cost(nf * w) + _R_COMB * n_c + _R_CORR)
                             + _T_GROUP / (m * nf))
                 secs += steps * per_step
-            mem = max(mem, 8 * dim * nf * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+            mem = max(mem, item_bytes * dim * nf * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
         out.append(secs)
     return out, mem, n_t
 
@@ -142,7 +147,8 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
                field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
                measured: bool = False, control: str = DEFAULT_CONTROL,
                tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS,
-               block_width: int = DEFAULT_BLOCK_WIDTH) -> tuple[float, int, str]:
+               block_width: int = DEFAULT_BLOCK_WIDTH,
+               precision: str = DEFAULT_PRECISION) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
 
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
@@ -152,7 +158,8 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end; the sparse
     product's cost per vector depends on the block's width (:data:`_WIDTH_COST`: narrow blocks pay
     more per vector); with ``block_width`` fields propagated together the product runs at the fused
-    block's width and the per-expansion overhead is shared.  Times in units of
+    block's width and the per-expansion overhead is shared; single precision takes
+    :data:`_SINGLE_TIME` of the time and half the states' memory.  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
     measured on this machine (:func:`matvec_seconds`) with ``measured``; one process.
 
@@ -180,6 +187,8 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     block_width : int
         Fields propagated together (:func:`retina.spin.sampling.sampled_yields`), at most all the
         run's fields.
+    precision : {"double", "single"}
+        Real type of the propagated states (:func:`retina.spin.sampling.sampled_yields`).
 
     Returns
     -------
@@ -190,12 +199,15 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     states = _states_pair(n_states)
     fields = 2 if control == "opposite" else 1
     nf = max(1, min(int(block_width), fields * int(n_directions)))
-    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, nf)
-    secs = sum(per_radical)
+    single = precision == "single"
+    per_radical, mem, n_t = _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, nf,
+                                             4 if single else 8)
+    secs = sum(per_radical) * (_SINGLE_TIME if single else 1.0)
     # per-draw series of both radicals (R, n_t, 9) and their products
     mem += 8 * max(states) * n_t * (2 * 9 + 4) * nf      # per field of a fused block
     note = (f"{n_directions} x {fields} stochastic trace estimates with {_states_words(states)}, "
             f"{int(n_t)} time steps{_tail_words(tail_split)}, {CONTROL_NAMES[control]}, {BASIS_NAMES[basis]}"
-            f"{f', {nf} fields propagated together' if nf > 1 else ''} (an approximation with error bars)")
+            f"{f', {nf} fields propagated together' if nf > 1 else ''}{', single precision' if single else ''}"
+            " (an approximation with error bars)")
     return fields * n_directions * secs, int(1.3 * mem + 2**20), note
 
