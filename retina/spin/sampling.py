@@ -243,16 +243,14 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
                                          DEFAULT_BLOCK_WIDTH, DEFAULT_PRECISION, DEFAULT_TAIL_SPLIT, ESTIMATORS,
-                                         TAIL_STATES,
-                                         SampledYields, _states_pair, _states_words, _tail_words)
+                                         PRECISIONS, TAIL_STATES, SampledYields, _states_pair, _states_words,
+                                         _tail_words)
 
 __all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for", "CONTROLS",
            "DEFAULT_CONTROL", "CONTROL_NAMES", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES",
            "PRECISIONS", "DEFAULT_PRECISION"]
 
 _MULT = np.array([1.0, 1.0, 1.0, 2.0, 2.0, 2.0, 2.0, 2.0, 2.0])
-#: Real types of the propagated states (:func:`sampled_yields`, ``precision``).
-PRECISIONS = {"double": np.float64, "single": np.float32}
 
 
 def _upper(dirs: np.ndarray) -> np.ndarray:

@@ -16,7 +16,7 @@ from retina.spin import _propagation as _prop
 
 __all__ = ["SampledYields", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "CONTROLS", "DEFAULT_CONTROL",
            "BASES", "DEFAULT_BASIS", "BASIS_NAMES", "DEFAULT_TAIL_SPLIT", "TAIL_STATES", "DEFAULT_BLOCK_WIDTH", "CONTROL_NAMES",
-           "DEFAULT_PRECISION"]
+           "DEFAULT_PRECISION", "PRECISIONS"]
 
 #: Default number of random vectors per radical (independent draws).
 DEFAULT_STATES = 16
@@ -57,6 +57,8 @@ DEFAULT_BLOCK_WIDTH = 4
 #: and 20 nuclei, with a difference from double on the same draws of at most 3.4e-9 in the yields
 #: and 1.0e-9 in the anisotropy: far below the bias bound (1e-6) and the standard errors (1e-4).
 DEFAULT_PRECISION = "single"
+#: Real types of the propagated states (:func:`retina.spin.sampling.sampled_yields`, ``precision``).
+PRECISIONS = {"double": np.float64, "single": np.float32}
 #: Names of the controls in provenance and summaries.
 CONTROL_NAMES = {"opposite": "opposite-direction control variate (b and -b averaged, same states)",
                  "none": "no control variate"}
