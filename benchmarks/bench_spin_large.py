@@ -264,7 +264,7 @@ def bench_sampled(quick: bool) -> list[dict]:
     return rows
 
 
-def bench_sampled_twenty(quick: bool, *, n_states=(4, 8), n_check: int = 8) -> list[dict]:
+def bench_sampled_twenty(quick: bool, *, n_states=(96, 96), n_check: int = 8) -> list[dict]:
     """Row 5b: the invented axial 20-nucleus pair at degree 8, sampled for real (not in --quick)."""
     from retina import sphere
     from retina.spin import engine, sampling
@@ -313,19 +313,30 @@ def bench_sampled_twenty(quick: bool, *, n_states=(4, 8), n_check: int = 8) -> l
     # the same draws without the control (the field b alone): the control's measured variance reduction
     var_plain = res._variance(res.plain_parts, w) if res.plain_parts else float("nan")
     reduction = var_plain / var
-    # minutes 2 % would need (variance ~ v_A / R_A + v_B / R_B, time ~ the cost model's split per
-    # radical scaled to this run's wall time), with these counts scaled up and with the best counts
+    # minutes 2 % would need: one draw's variance v_r (every draw to the end) from this run's terms
+    # and the schedule's factor s(R) (sampling.schedule_variance), the time from the cost model
+    # scaled to this run's wall time; with these counts scaled up alike and with the cheapest counts
     target = (0.02 * aniso) ** 2
-    c_a, c_b = sampling._radical_seconds(system, 50.0, sampling.DEFAULT_BIAS_TOL, n_states, sampling.DEFAULT_TAIL_SPLIT,
-                                         sampling._T_MATVEC)[0]
-    per_state = [c_a / n_states[0], c_b / n_states[1]]
-    scale = wall / (c_a + c_b)                                       # model seconds -> this run's seconds
-    v = [var_a * n_states[0], var_b * n_states[1]]
-    need_same = var / target * wall
-    best = (sum(np.sqrt(vr * cr) for vr, cr in zip(v, per_state)) ** 2) / target * scale
-    v_plain = [res._variance(res.plain_parts[:res.parts_a], w) * n_states[0],
-               res._variance(res.plain_parts[res.parts_a:], w) * n_states[1]]
-    best_plain = (sum(np.sqrt(vr * cr) for vr, cr in zip(v_plain, per_state)) ** 2) / target * scale / 2
+    tail = res.tail_split
+    s_run = [sampling.schedule_variance(r, tail) for r in n_states]
+    v = [var_a / s_run[0], var_b / s_run[1]]
+
+    def model(states):
+        return sum(sampling._radical_seconds(system, 50.0, sampling.DEFAULT_BIAS_TOL, states, tail,
+                                             sampling._T_MATVEC)[0])
+
+    scale = wall / model(n_states)                                    # model seconds -> this run's seconds
+    f = 1.0
+    while v[0] * sampling.schedule_variance(int(n_states[0] * f), tail) + \
+            v[1] * sampling.schedule_variance(int(n_states[1] * f), tail) > target and f < 256:
+        f *= 1.05
+    need_same = model((int(n_states[0] * f), int(n_states[1] * f))) * scale
+    best_states = sampling.cheapest_states(system, 50.0, v, target, tail)
+    best = model(best_states) * scale
+    v_plain = [res._variance(res.plain_parts[:res.parts_a], w) / s_run[0],
+               res._variance(res.plain_parts[res.parts_a:], w) / s_run[1]]
+    best_plain_states = sampling.cheapest_states(system, 50.0, v_plain, target, tail)
+    best_plain = model(best_plain_states) * scale / 2                 # half the fields without the control
     trunc = float(np.max(np.abs(sphere.evaluate(coeffs, check.points) - res.mean[h:h + n_check])))
     se_check = float(np.max(res.standard_error[h:h + n_check]))
     return [dict(
@@ -341,9 +352,10 @@ def bench_sampled_twenty(quick: bool, *, n_states=(4, 8), n_check: int = 8) -> l
              f"(target < 2 %; variance terms of radical A {var_a:.2g}, B {var_b:.2g}); without the control, from "
              f"the same draws: {100 * np.sqrt(var_plain) / aniso:.2g} % (variance reduction {reduction:.1f} for "
              f"twice the propagation); 2 % would need about {need_same / 60:.0f} min with these counts scaled up, "
-             f"{best / 60:.0f} min with the best counts per radical (R_B / R_A = "
-             f"{np.sqrt(v[1] / per_state[1] / (v[0] / per_state[0])):.1f}), {best_plain / 60:.0f} min with the best "
-             f"counts without the control (time linear in the states); "
+             f"{best / 60:.0f} min with the cheapest counts {best_states[0]} + {best_states[1]}, "
+             f"{best_plain / 60:.0f} min with the cheapest counts without the control "
+             f"({best_plain_states[0]} + {best_plain_states[1]}; variance from s(R), sampling.schedule_variance; "
+             f"time from the cost model scaled to this run); "
              f"SE per yield up to {np.max(res.standard_error):.2g}; bias bound "
              f"{res.bias_bound:.1g}; check directions: largest |fit - value| {trunc:.2g} against SE "
              f"{se_check:.2g} (truncation and noise together); reference: the engine's estimate")]

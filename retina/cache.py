@@ -90,7 +90,9 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         record["sampling_control"] = DEFAULT_CONTROL
         record["sampling_basis"] = DEFAULT_BASIS
         record["sampling_precision"] = DEFAULT_PRECISION
-        record["sampling_tail"] = None if DEFAULT_TAIL_SPLIT is None else [repr(float(DEFAULT_TAIL_SPLIT)), TAIL_STATES]
+        record["sampling_tail"] = (None if DEFAULT_TAIL_SPLIT is None else
+                                    [DEFAULT_TAIL_SPLIT if isinstance(DEFAULT_TAIL_SPLIT, str)
+                                     else repr(float(DEFAULT_TAIL_SPLIT)), TAIL_STATES])
     return hashlib.sha256(json.dumps(record, sort_keys=True).encode("utf-8")).hexdigest()
 
 

@@ -116,23 +116,26 @@ def test_split_tail_strata_add_up_to_the_estimate_and_unequal_states_are_kept():
         sampling.sampled_yields(system, 50.0, dirs, n_states=(3, 5), estimator="paired")
     with pytest.raises(InputError, match="basis"):
         sampling.sampled_yields(system, 50.0, dirs, basis="molecular")
-    with pytest.raises(InputError, match="tail split"):
+    with pytest.raises(InputError, match="draw schedule"):
         sampling.sampled_yields(system, 50.0, dirs, tail_split=-1.0)
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("basis,tail_split,states", [("nucleus-axis", None, (16, 16)),
-                                                     ("nucleus-axis", 1.0, (12, 20)),
-                                                     ("lab", 0.5, (16, 16))])
-def test_z_scores_stay_standard_with_the_levers(basis, tail_split, states):
+@pytest.mark.parametrize("basis,tail_split,states,k", [("nucleus-axis", None, (16, 16), 3e7),
+                                                       ("nucleus-axis", 1.0, (12, 20), 3e7),
+                                                       ("lab", 0.5, (16, 16), 3e7),
+                                                       ("nucleus-axis", "halving", (16, 24), 1e6)])
+def test_z_scores_stay_standard_with_the_levers(basis, tail_split, states, k):
     # Reference: fast_separable (exact to 1e-10), scipy.stats.kstest against Student's t with 11
     # to 15 degrees of freedom (the smallest count's draws less one; with a split the stratified
     # variance has a few fewer effective degrees (Welch-Satterthwaite), covered by taking the
     # smallest stratum-free count).  An early split (0.5 and 1 lifetimes) makes the tail stratum
     # matter, so a wrong weight or variance there would show.  40 independent seeds, one value and
     # one difference of directions per seed (independent over seeds): mean within 4 standard
-    # errors of 0, standard deviation within [0.7, 1.4] of t's, KS p > 1e-3.
-    system = _small()
+    # errors of 0, standard deviation within [0.7, 1.4] of t's, KS p > 1e-3.  The halving
+    # schedule (lifetime 1 us, so that the grid resolves its switches) stops 8, 4, 2 and 2 of A's
+    # draws and 12, 6, 4 and 2 of B's at different times: a wrong weight or stratum would show.
+    system = _small(k=k)
     rng = np.random.default_rng(41)
     df = min(states) - 1
     z_value, z_diff = np.empty(40), np.empty(40)
@@ -176,8 +179,16 @@ def test_the_pilot_gives_more_states_to_the_radical_with_more_variance_per_cost(
         return np.array([1e-6, 1e-6]), np.array([9e-6, 9e-6])
 
     monkeypatch.setattr(sampling.SampledYields, "radical_variances", fake)
-    monkeypatch.setattr(sampling, "_radical_seconds", lambda *a, **k: ([1.0, 1.0], 0, 1))
-    (r_a, r_b), _ = sampling.states_for(system, 50.0, dirs, 1e-3)
+    # the modelled cost: one unit per state of each radical
+    monkeypatch.setattr(sampling, "_radical_seconds", lambda sys, f, tol, states, *a, **k: (
+        [float(states[0]), float(states[1])], 0, 1))
+    (r_a, r_b), _ = sampling.states_for(system, 50.0, dirs, 1e-3, tail_split=None)
     v_a, v_b = 1e-6 * sampling.PILOT_STATES, 9e-6 * sampling.PILOT_STATES
     assert r_b / r_a == pytest.approx(3.0, rel=0.1)
     assert v_a / r_a + v_b / r_b <= 1e-6 / 1.2 * (1 + 1e-12)
+    # under the halving schedule the pilot's variance is divided by its own factor and the counts'
+    # predicted variance, v_r s(R_r), meets the request (sampling.schedule_variance)
+    (h_a, h_b), _ = sampling.states_for(system, 50.0, dirs, 1e-3, tail_split="halving")
+    s4 = sampling.schedule_variance(sampling.PILOT_STATES, "halving")
+    pred = (1e-6 * sampling.schedule_variance(h_a, "halving") + 9e-6 * sampling.schedule_variance(h_b, "halving")) / s4
+    assert pred <= 1e-6 / 1.2 * (1 + 1e-12) and h_b > h_a

@@ -170,7 +170,7 @@ def electron_terms(ws, centre: float, half: float):
             -0.5 * w[:, 1] / half)
 
 
-def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, dtype=np.float64):
+def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, alive=None, dtype=np.float64):
     """Per field and draw the correlation estimates ``c_ab(t_j)``, shape (W, R, n_t, 9), for ``W``
     fields propagated together (module docstring); each field's entry equals
     :func:`retina.spin._propagation.radical_series` for that field up to the Chebyshev truncation.
@@ -190,12 +190,15 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, 
         Time step, s.
     n_t : int
         Number of grid times.
-    n_split, r_tail : int, optional
-        The split tail, as in :func:`retina.spin._propagation.radical_series` (per field).
+    n_split, r_tail, alive : optional
+        The draw schedule, as in :func:`retina.spin._propagation.radical_series` (per field).  The
+        draws are propagated in chunks of at most
+        :data:`retina.spin._propagation.MAX_BLOCK_VECTORS` vectors over all the fields.
     dtype : numpy dtype
         Real type of the propagated states and the matrix (``float64``, or ``float32`` for the
         single-precision option: the sparse product's and the combination's memory traffic halves;
-        row sums and Gram matrices still accumulate in double precision).
+        row sums and Gram matrices still accumulate in double precision; the Chebyshev series is
+        cut at :data:`retina.spin._propagation.CHEB_TOL_SINGLE`, below what float32 resolves).
 
     Returns
     -------
@@ -204,9 +207,8 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, 
     n_f = len(hams)
     r = xis[0].shape[1]
     out = np.zeros((n_f, r, n_t, 9))
-    if n_split is None or r_tail is None or r_tail >= r or n_split >= n_t:
-        n_split, r_tail = n_t, r
-    for bi, (pb, xi) in enumerate(zip(prepared, xis)):
+    alive = _prop.alive_array(r, n_t, n_split, r_tail, alive)
+    for bi, (pb, xi_all) in enumerate(zip(prepared, xis)):
         n = pb.nuclear_dimension
         lo = min(hs[bi][1] for hs in hams)
         hi = max(hs[bi][2] for hs in hams)
@@ -219,57 +221,66 @@ def fused_series(prepared, hams, ws, xis, h, n_t, *, n_split=None, r_tail=None, 
         full = hams[0][bi][0]
         m_sub = _prop.substeps(a, h, full.nnz / full.shape[0])
         terms = electron_terms([w[bi] for w in ws], c, a)
-        coef = _prop.sub_coeffs(a, 0.0, h, m_sub)
+        coef = _prop.sub_coeffs(a, 0.0, h, m_sub,
+                                _prop.CHEB_TOL if np.dtype(dtype) == np.float64 else _prop.CHEB_TOL_SINGLE)
         n_c = coef.shape[0]
         odd = (np.arange(n_c) % 2 == 1)
         c_re = np.where(odd[:, None], -coef.imag, coef.real).T.astype(dtype)
         c_im = np.where(odd[:, None], coef.imag, coef.real).T.astype(dtype)
         mult = float(pb.block.multiplicity)
+        for c0, c1, counts, ends in _prop.draw_chunks(alive, _prop.MAX_BLOCK_VECTORS // (2 * n_f)):
+            xi = xi_all[:, c0:c1]
+            rc = c1 - c0
+            sub = out[:, c0:c1]
 
-        def columns(rr):
-            # per field, its psi_up columns (the first rr draws) then its psi_down columns
-            return [np.r_[f * 2 * r:f * 2 * r + rr, f * 2 * r + r:f * 2 * r + r + rr] for f in range(n_f)]
+            def columns(rr, width):
+                # per field, its psi_up columns (the first rr of its width draws) then its psi_down columns
+                return [np.r_[f * 2 * width:f * 2 * width + rr, f * 2 * width + width:f * 2 * width + width + rr]
+                        for f in range(n_f)]
 
-        v = np.zeros((2 * n, 2 * r * n_f), dtype=complex)
-        for f in range(n_f):
-            v[:n, f * 2 * r:f * 2 * r + r] = xi
-            v[n:, f * 2 * r + r:(f + 1) * 2 * r] = xi
-        v_re, v_im = np.ascontiguousarray(v.real, dtype=dtype), np.ascontiguousarray(v.imag, dtype=dtype)
-        for f in range(n_f):
-            sl = slice(f * 2 * r, (f + 1) * 2 * r)
-            _prop.correlations(np.ascontiguousarray(v_re[:, sl])[None], np.ascontiguousarray(v_im[:, sl])[None], n, r,
-                               mult, out[f, :, 0:1])
+            v = np.zeros((2 * n, 2 * rc * n_f), dtype=complex)
+            for f in range(n_f):
+                v[:n, f * 2 * rc:f * 2 * rc + rc] = xi
+                v[n:, f * 2 * rc + rc:(f + 1) * 2 * rc] = xi
+            v_re, v_im = np.ascontiguousarray(v.real, dtype=dtype), np.ascontiguousarray(v.imag, dtype=dtype)
+            for f in range(n_f):
+                sl = slice(f * 2 * rc, (f + 1) * 2 * rc)
+                _prop.correlations(np.ascontiguousarray(v_re[:, sl])[None], np.ascontiguousarray(v_im[:, sl])[None],
+                                   n, rc, mult, sub[f, :, 0:1])
 
-        def workspace(x_re, x_im, rr):
-            rows_a = np.empty((n_c,) + x_re.shape, dtype=dtype)
-            rows_b = np.empty((n_c,) + x_re.shape, dtype=dtype)
-            xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]
-            ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]
-            xs[0][...] = x_re
-            ys[0][...] = x_im
-            per_col = [np.ascontiguousarray(np.repeat(t, 2 * rr), dtype=dtype) for t in terms]
-            # the states at the m times, written in place each expansion (no fresh pages per expansion)
-            bufs = (np.empty((m_sub, rows_a[0].size), dtype=dtype), np.empty((m_sub, rows_a[0].size), dtype=dtype))
-            return x_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1), per_col, bufs
+            def workspace(x_re, x_im, rr):
+                rows_a = np.empty((n_c,) + x_re.shape, dtype=dtype)
+                rows_b = np.empty((n_c,) + x_re.shape, dtype=dtype)
+                xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]
+                ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]
+                xs[0][...] = x_re
+                ys[0][...] = x_im
+                per_col = [np.ascontiguousarray(np.repeat(t, 2 * rr), dtype=dtype) for t in terms]
+                # the states at the m times, written in place each expansion (no fresh pages per expansion)
+                bufs = (np.empty((m_sub, rows_a[0].size), dtype=dtype),
+                        np.empty((m_sub, rows_a[0].size), dtype=dtype))
+                return x_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1), per_col, bufs
 
-        rr = r
-        shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(v_re, v_im, rr)
-        j = 1
-        while j < n_t:
-            if j >= n_split and rr > r_tail:
-                keep = np.concatenate(columns(r_tail))
-                rr = r_tail
-                shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(xs[0][:, keep], ys[0][:, keep], rr)
-            m = min(m_sub, n_t - j, n_split - j) if j < n_split else min(m_sub, n_t - j)
-            if n_c > 1:
-                fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
-            for k in range(2, n_c):
-                fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2],
-                           ys[k - 2], xs[k], ys[k])
-            re = np.matmul(c_re[:m], flat_a, out=bufs[0][:m]).reshape((m,) + shape)
-            im = np.matmul(c_im[:m], flat_b, out=bufs[1][:m]).reshape((m,) + shape)
-            correlations_fields(re, im, n, rr, n_f, mult, out[:, :rr, j:j + m])
-            xs[0][...] = re[m - 1]
-            ys[0][...] = im[m - 1]
-            j += m
+            rr = rc
+            shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(v_re, v_im, rr)
+            j = 1
+            while j < n_t and counts[j] > 0:
+                if counts[j] < rr:
+                    # draws stop: keep each field's first counts[j] draws
+                    keep = np.concatenate(columns(int(counts[j]), rr))
+                    rr = int(counts[j])
+                    shape, xs, ys, flat_a, flat_b, pc, bufs = workspace(xs[0][:, keep], ys[0][:, keep], rr)
+                m = min(m_sub, int(ends[j]) - j)
+                if n_c > 1:
+                    fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1],
+                               ys[1])
+                for k in range(2, n_c):
+                    fused_step(hs.indptr, hs.indices, dr, di, *pc, n, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2],
+                               ys[k - 2], xs[k], ys[k])
+                re = np.matmul(c_re[:m], flat_a, out=bufs[0][:m]).reshape((m,) + shape)
+                im = np.matmul(c_im[:m], flat_b, out=bufs[1][:m]).reshape((m,) + shape)
+                correlations_fields(re, im, n, rr, n_f, mult, sub[:, :rr, j:j + m])
+                xs[0][...] = re[m - 1]
+                ys[0][...] = im[m - 1]
+                j += m
     return out

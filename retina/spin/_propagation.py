@@ -224,6 +224,12 @@ def block_hamiltonian(pb: PreparedBlock, bvec):
 #: expansions of a direction the states' error stays below ~1e-9 of their norm, far below the
 #: statistical error (each estimate is a normalised inner product of such states).
 CHEB_TOL = 1e-12
+#: The truncation for single-precision states (``precision="single"`` of the sampling method):
+#: float32 resolves ``2^-24 = 6e-8`` of a state's norm, so terms below 1e-9 change nothing the type
+#: can hold; over the ~10^2 expansions of a direction the truncation stays below ~1e-7 of the
+#: norm, the size of the rounding itself.  At the expansions' typical argument (``a h m ~ 50``) the
+#: series is about 6 terms shorter than at :data:`CHEB_TOL` (79 against 85).
+CHEB_TOL_SINGLE = 1e-9
 
 
 def cheb_coeffs(x: float, tol: float = CHEB_TOL) -> np.ndarray:
@@ -425,13 +431,54 @@ def correlations(re, im, n: int, r: int, mult: float, out):
         out[:, :, 6 + ci] += 0.5 * (cab[..., ia, ib] - cab[..., ib, ia])
 
 
-def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None):
+#: Most vectors (columns) propagated as one block by :func:`radical_series` and the fused kernel: the
+#: draws of a radical are propagated in chunks of at most this many vectors (both electron states,
+#: every fused field), which bounds the memory of the Chebyshev vectors and keeps the block within
+#: the caches (the sparse product's time per vector is least at 32-64 vectors: the fused kernel's
+#: measurements in :data:`retina.spin.sampling_result.DEFAULT_BLOCK_WIDTH`).
+MAX_BLOCK_VECTORS = 64
+
+
+def alive_array(r: int, n_t: int, n_split=None, r_tail=None, alive=None) -> np.ndarray:
+    """Draws propagated at each grid time, ``(n_t,)`` int, non-increasing: ``alive`` itself, or all
+    ``r`` draws up to ``n_split`` and the first ``r_tail`` from there on (a split tail), or all ``r``
+    throughout."""
+    if alive is not None:
+        out = np.asarray(alive, dtype=np.int64).reshape(-1)
+        if out.shape[0] != n_t or np.any(np.diff(out) > 0) or out[0] > r or np.any(out < 0):
+            raise ValueError("alive: expected n_t non-increasing counts of at most the number of draws")
+        return out
+    out = np.full(int(n_t), int(r), dtype=np.int64)
+    if n_split is not None and r_tail is not None and r_tail < r and n_split < n_t:
+        out[int(n_split):] = int(r_tail)
+    return out
+
+
+def draw_chunks(alive: np.ndarray, max_draws: int):
+    """The draws split into chunks of at most ``max_draws`` (>= 1): per chunk ``(c0, c1, counts,
+    ends)`` with ``counts[j]`` its draws propagated at grid time ``j`` (the first ones, since
+    ``alive`` counts the first draws) and ``ends[j]`` the first grid time after ``j`` at which that
+    count changes (``n_t`` if never): expansions must not step across it."""
+    r = int(alive[0]) if alive.shape[0] else 0
+    n_t = alive.shape[0]
+    out = []
+    for c0 in range(0, r, max(1, int(max_draws))):
+        c1 = min(r, c0 + max(1, int(max_draws)))
+        counts = np.clip(alive - c0, 0, c1 - c0)
+        changes = np.flatnonzero(np.diff(counts)) + 1
+        ends = np.append(changes, n_t)[np.searchsorted(changes, np.arange(n_t), side="right")]
+        out.append((c0, c1, counts, ends))
+    return out
+
+
+def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None, alive=None):
     """Per-draw correlation estimates ``c_ab(t_j)``, shape (R, n_t, 9) (six symmetric, three
     antisymmetric combinations as in :mod:`retina.spin.fast_separable`).
 
-    With ``n_split`` and ``r_tail`` only the first ``r_tail`` draws are propagated beyond grid time
-    ``n_split`` (the sampling module's split tail); the other draws' entries from ``n_split`` on
-    are zero.
+    With a draw schedule (``alive``, or ``n_split`` and ``r_tail``) only the first ``alive[j]``
+    draws are propagated at grid time ``j`` (the sampling module's halving schedule and split
+    tail); the other draws' entries are zero.  The draws are propagated in chunks of at most
+    :data:`MAX_BLOCK_VECTORS` vectors (the same numbers, less memory).
 
     ``prepared``: the radical's blocks; ``hams``: ``(H, lo, hi)`` per block
     (:func:`block_hamiltonian`); ``xis``: the nuclear random vectors per block, ``(n, R)``.
@@ -452,6 +499,8 @@ def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None):
         First grid time at which only ``r_tail`` draws go on (default: all draws to the end).
     r_tail : int, optional
         Draws propagated from ``n_split`` on (the first ``r_tail``).
+    alive : array_like (n_t,) int, optional
+        Draws propagated at each grid time (non-increasing; overrides ``n_split`` and ``r_tail``).
 
     Returns
     -------
@@ -459,9 +508,8 @@ def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None):
     """
     r = xis[0].shape[1]
     out = np.zeros((r, n_t, 9))
-    if n_split is None or r_tail is None or r_tail >= r or n_split >= n_t:
-        n_split, r_tail = n_t, r
-    for pb, (hm, lo, hi), xi in zip(prepared, hams, xis):
+    alive = alive_array(r, n_t, n_split, r_tail, alive)
+    for pb, (hm, lo, hi), xi_all in zip(prepared, hams, xis):
         n = pb.nuclear_dimension
         c = 0.5 * (lo + hi)
         a = max(0.5 * (hi - lo), 1e-30)
@@ -484,44 +532,48 @@ def radical_series(prepared, hams, xis, h, n_t, *, n_split=None, r_tail=None):
         # even n: b real, b X + i b Y; odd n: b = i g (g real), i g (X + i Y) = -g Y + i g X
         c_re = np.where(odd[:, None], -coef.imag, coef.real).T.copy()   # (m, n_c) on A
         c_im = np.where(odd[:, None], coef.imag, coef.real).T.copy()    # (m, n_c) on B
-        v = np.zeros((2 * n, 2 * r), dtype=complex)
-        v[:n, :r] = xi
-        v[n:, r:] = xi
         mult = float(pb.block.multiplicity)
-        correlations(np.ascontiguousarray(v.real)[None], np.ascontiguousarray(v.imag)[None], n, r, mult,
-                      out[:, 0:1])
+        for c0, c1, counts, ends in draw_chunks(alive, MAX_BLOCK_VECTORS // 2):
+            xi = xi_all[:, c0:c1]
+            rc = c1 - c0
+            sub = out[c0:c1]
+            v = np.zeros((2 * n, 2 * rc), dtype=complex)
+            v[:n, :rc] = xi
+            v[n:, rc:] = xi
+            correlations(np.ascontiguousarray(v.real)[None], np.ascontiguousarray(v.imag)[None], n, rc, mult,
+                         sub[:, 0:1])
 
-        def workspace(v_re, v_im):
-            rows_a = np.empty((n_c,) + v_re.shape)
-            rows_b = np.empty((n_c,) + v_re.shape)
-            xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
-            ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
-            xs[0][...] = v_re
-            ys[0][...] = v_im
-            return v_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1)
+            def workspace(v_re, v_im):
+                rows_a = np.empty((n_c,) + v_re.shape)
+                rows_b = np.empty((n_c,) + v_re.shape)
+                xs = [rows_a[i] if i % 2 == 0 else rows_b[i] for i in range(n_c)]   # X_n = Re T_n v
+                ys = [rows_b[i] if i % 2 == 0 else rows_a[i] for i in range(n_c)]   # Y_n = Im T_n v
+                xs[0][...] = v_re
+                ys[0][...] = v_im
+                return v_re.shape, xs, ys, rows_a.reshape(n_c, -1), rows_b.reshape(n_c, -1)
 
-        shape, xs, ys, flat_a, flat_b = workspace(v.real, v.imag)
-        rr = r
-        j = 1
-        while j < n_t:
-            if j >= n_split and rr > r_tail:
-                # the tail: keep the first r_tail draws (their psi_up and psi_down columns)
-                keep = np.r_[0:r_tail, r:r + r_tail]
-                rr = r_tail
-                shape, xs, ys, flat_a, flat_b = workspace(xs[0][:, keep], ys[0][:, keep])
-            m = min(m_sub, n_t - j, n_split - j) if j < n_split else min(m_sub, n_t - j)
-            # the Chebyshev vectors T_n((H - c)/a) v, then all m states by two real matrix products
-            if n_c > 1:
-                cheb_step(hs.indptr, hs.indices, dr, di, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
-            for k in range(2, n_c):
-                cheb_step(hs.indptr, hs.indices, dr, di, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2], ys[k - 2],
-                           xs[k], ys[k])
-            re = (c_re[:m] @ flat_a).reshape((m,) + shape)
-            im = (c_im[:m] @ flat_b).reshape((m,) + shape)
-            correlations(re, im, n, rr, mult, out[:rr, j:j + m])
-            xs[0][...] = re[m - 1]
-            ys[0][...] = im[m - 1]
-            j += m
+            shape, xs, ys, flat_a, flat_b = workspace(v.real, v.imag)
+            rr = rc
+            j = 1
+            while j < n_t and counts[j] > 0:
+                if counts[j] < rr:
+                    # draws stop: keep the first counts[j] (their psi_up and psi_down columns)
+                    keep = np.r_[0:counts[j], rr:rr + counts[j]]
+                    rr = int(counts[j])
+                    shape, xs, ys, flat_a, flat_b = workspace(xs[0][:, keep], ys[0][:, keep])
+                m = min(m_sub, int(ends[j]) - j)
+                # the Chebyshev vectors T_n((H - c)/a) v, then all m states by two real matrix products
+                if n_c > 1:
+                    cheb_step(hs.indptr, hs.indices, dr, di, 1.0, xs[0], ys[0], 0.0, xs[0], ys[0], xs[1], ys[1])
+                for k in range(2, n_c):
+                    cheb_step(hs.indptr, hs.indices, dr, di, 2.0, xs[k - 1], ys[k - 1], -1.0, xs[k - 2], ys[k - 2],
+                              xs[k], ys[k])
+                re = (c_re[:m] @ flat_a).reshape((m,) + shape)
+                im = (c_im[:m] @ flat_b).reshape((m,) + shape)
+                correlations(re, im, n, rr, mult, sub[:rr, j:j + m])
+                xs[0][...] = re[m - 1]
+                ys[0][...] = im[m - 1]
+                j += m
     return out
 
 

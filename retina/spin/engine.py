@@ -519,7 +519,8 @@ def compute_yields(system, field_uT, directions, *, method="auto", progress=None
                         sampling_control=res.control,
                         sampling_basis=res.basis,
                         sampling_precision=res.precision,
-                        sampling_tail_split=(float(res.tail_split) if res.tail_split is not None else 0.0),
+                        sampling_tail_split=(res.tail_split if isinstance(res.tail_split, str) else
+                                             float(res.tail_split) if res.tail_split is not None else 0.0),
                         sampling_states=int(res.n_states),
                         sampling_states_a=int(res.states[0]),
                         sampling_states_b=int(res.states[1]),

@@ -129,14 +129,13 @@ control 0.09, 1.31, p = 0.96).  The gain is smallest on the controlled anisotrop
 its remaining variance is radical B's (weaker nitrogens, protons of comparable size), which the
 basis barely touches (1.5e-7 of the 1.9e-7).
 
-Split tail (``tail_split``, default 3 lifetimes)
-------------------------------------------------
+Split tail (``tail_split=T_s``, lifetimes)
+------------------------------------------
 The kernel ``k e^{-kt}`` weights late times little, so the sampling noise of the time integral
-beyond ``T_s`` is small: the noise of one draw's correlation is roughly stationary in time and
-decorrelates within the hyperfine periods, so the variance of the integral from ``T_s`` on is
-about ``e^{-2 k T_s}`` of the whole (measured on the axial 10-nucleus pair, difference of the
-extreme directions with the control, 16 states: 0.24 % from 3 lifetimes on, 0.05 % from 4, against
-``e^{-6} = 0.25 %`` and ``e^{-8} = 0.03 %``), while propagating to the truncation time
+beyond ``T_s`` is small: on the axial 10-nucleus pair the variance of the integral from ``T_s``
+on was about ``e^{-2 k T_s}`` of the whole (difference of the extreme directions with the
+control, 16 states: 0.24 % from 3 lifetimes on, 0.05 % from 4, against ``e^{-6} = 0.25 %`` and
+``e^{-8} = 0.03 %``; at 20 nuclei it is about 8 times larger: the halving schedule, below), while propagating to the truncation time
 ``ln(1.5 / bias_tol) / k`` (14 lifetimes at the default ``bias_tol``) costs 14 / 3 times as much as
 propagating to 3 lifetimes.  So all ``R`` draws of a radical run to ``T_s = tail_split / k`` and
 only the first ``r = TAIL_STATES`` go on to the end; the integral's early part averages over all
@@ -155,6 +154,57 @@ sample of the full grid is still estimated, by fewer draws late.  Measured on th
 10-nucleus pair (63 directions with the control, 8 + 8 states, one process, the same run): 106
 and 116 s against 152 s without the split (0.69-0.76 of the time; the cost model says 0.41, but
 at dimension 144 the per-step overheads that do not shrink with the vectors dominate).
+
+The halving schedule (``tail_split="halving"``, the default)
+-------------------------------------------------------------
+The split tail generalised: a draw may stop at any of several times, the number still propagated
+falling roughly exponentially.  What it should follow depends on how one draw's error is spread
+over time, measured on the invented axial 20-nucleus pair (``benchmarks/bench_spin_large.py``):
+32 draws per radical (two seeds of 16) propagated to the end for two directions and their
+opposites, the per-draw integrand of the controlled difference of the two directions recorded
+over the whole time grid.  The share of one draw's variance from lifetime ``T`` on was 0.40,
+0.10, 0.021 and 0.0027 at ``T`` = 1, 2, 3 and 4 (radical A; B 0.47, 0.11, 0.021, 0.003), far
+above the ``e^{-2T}`` of stationary noise (0.14, 0.018, 0.0025, 0.0003), and the errors of the
+early (``< 1``) and late parts correlated (0.3 for A, 0.5 for B).  Both follow when the error of
+a draw's correlation grows like a random walk under the kernel, integrand error ``e^{-t} W(t)``
+(``W`` a Wiener process, ``t`` in lifetimes): its tail share is ``(1 + 2T) e^{-2T}`` (derived:
+``min(t, t') = int [u < t][u < t'] du``), 0.41, 0.092, 0.017 and 0.003, and early and late parts
+correlate.  So the early times carry little of the variance, and a schedule tuned for stationary
+noise (half the draws stopping at 0.35 lifetimes, the last 2 at 3.3) wastes draws early and
+starves the tail: on the same measured covariance it gave variance times cost 4.7-5.0 (in units
+of one draw's variance and one lifetime of propagation), the split at 3 lifetimes 6.4 and no
+schedule 14.2.
+
+Under the random-walk model (:func:`retina.spin.sampling_result.schedule_variance`) the variance
+of a schedule with levels ``n_l`` over lifetimes ``[T_l, T_{l+1})`` is ``sum_{l,l'} K_{ll'} /
+max(n_l, n_l')`` (derived: the means of two levels share the ``min(n_l, n_l')`` draws that run
+through both), ``K`` the model's covariance of the levels' integrals.  The counts halve
+(``n_{l+1} = n_l // 2``, at least ``TAIL_STATES``, each level stopping at least 2 draws so that
+every stratum has a sample variance; a level that could not split again goes straight to
+``TAIL_STATES``), and the count falls from ``n_l`` to ``n_{l+1}`` at ``kT = HALVING_DELAY +
+HALVING_STRETCH ln(R / sqrt(n_l n_{l+1}))`` (:func:`retina.spin.sampling_result.schedule_levels`):
+every draw runs to about 1.4 lifetimes, then half of those left stop every 0.87 lifetimes.  The
+constants (1.0, 1.25) minimise the model's variance times cost for 100-400 draws (3.35-3.45,
+against 4.3-4.7 for the stationary-noise schedule; checked in the tests), and the same search on
+the measured covariance put its optimum at (0.75-1.0, 1.25-1.5) with 3.4-3.5: about 1.4 times
+less cost per unit variance than the first halving schedule, 1.9 times less than the split at 3
+lifetimes and 4.2 times less than running every draw to the end.  The switches lie on the time
+grid (the first grid time at or after each, never before the end correction's samples:
+:func:`retina.spin.sampling_result.alive_counts`).
+
+The estimator is the split tail's with one stratum per stopping time: at each grid time ``t_j``
+the mean over the ``n_j`` draws propagated there (unbiased; the product of the two radicals'
+independent means stays unbiased), and draw ``i``'s jackknife term
+``u_i = sum_j w_j (R / n_j) [i < n_j] c_i(t_j) cbar(t_j)`` (``cbar``: the other radical's mean at
+``t_j``), whose mean over ``i`` is the estimate; the draws that stop at the same time form a
+stratum and the variance is ``sum_s n_s s_s^2 / R^2`` as above (a stratum of ``n_s`` draws scaled by
+``n_s / R``).  :func:`retina.spin.sampling_result.schedule_variance` gives the model's factor
+``s(R)`` (``v s(R)`` the variance: ``1 / R`` without a schedule, about ``1.6 / R`` halving), which
+:func:`states_for` and the benchmarks use to size counts; the error bars themselves come from the
+draws, whatever the noise's law.  Many draws are propagated in chunks of at most
+:data:`retina.spin._propagation.MAX_BLOCK_VECTORS` vectors (over both electron states and the fused
+fields), which bounds memory and keeps the sparse product's block within the caches; chunks change
+nothing but rounding.
 
 Unequal states per radical (``n_states=(R_A, R_B)``)
 ----------------------------------------------------
@@ -243,10 +293,12 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
                                          DEFAULT_BLOCK_WIDTH, DEFAULT_PRECISION, DEFAULT_TAIL_SPLIT, ESTIMATORS,
-                                         PRECISIONS, TAIL_STATES, SampledYields, _states_pair, _states_words,
-                                         _tail_words)
+                                         HALVING, PRECISIONS, TAIL_STATES, SampledYields, _states_pair,
+                                         _states_words, _tail_words, alive_counts, check_tail_split,
+                                         schedule_levels, schedule_variance)
 
-__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for", "CONTROLS",
+__all__ = ["SampledYields", "sampled_yields", "yields", "cost_model", "matvec_seconds", "states_for",
+           "cheapest_states", "schedule_variance", "HALVING", "CONTROLS",
            "DEFAULT_CONTROL", "CONTROL_NAMES", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "MAX_STATES",
            "PRECISIONS", "DEFAULT_PRECISION"]
 
@@ -276,15 +328,18 @@ def _check_jobs(n_jobs) -> int:
     return int(n_jobs)
 
 
-def _strata(rows, r: int, r_tail: int) -> list:
+def _strata(rows, alive) -> list:
     """Per-draw terms ``rows (R, ...)`` as the parts of a stratified variance (module docstring,
-    split tail): with ``r_tail < R`` the draws ``< r_tail`` (propagated to the end) and the rest
-    (stopped at the split) are two strata, each scaled by its share ``n_s / R`` so that the sample
-    variance of a part over its ``n_s`` rows, divided by ``n_s``, is ``n_s s_s^2 / R^2`` and the
-    parts' means add up to the mean of ``rows``."""
-    if r_tail >= r:
+    draw schedules): the draws that stopped at the same grid time (``alive``: draws propagated at
+    each grid time, :func:`retina.spin.sampling_result.alive_counts`) form a stratum, each scaled by
+    its share ``n_s / R`` so that the sample variance of a part over its ``n_s`` rows, divided by
+    ``n_s``, is ``n_s s_s^2 / R^2`` and the parts' means add up to the mean of ``rows``."""
+    r = rows.shape[0]
+    depth = (np.asarray(alive)[None, :] > np.arange(r)[:, None]).sum(axis=1)   # grid times per draw
+    edges = [0] + [i for i in range(1, r) if depth[i] != depth[i - 1]] + [r]
+    if len(edges) == 2:
         return [rows]
-    return [rows[:r_tail] * (r_tail / r), rows[r_tail:] * ((r - r_tail) / r)]
+    return [rows[i0:i1] * ((i1 - i0) / r) for i0, i1 in zip(edges, edges[1:])]
 
 
 def _field_hams(rads, bvec):
@@ -308,33 +363,30 @@ def _run_spread(system, fields) -> float:
 
 
 def _grid(w_tot: float, k: float, bias_tol: float, tail, rs):
-    """``(h, n_t, n_split, r_tails, gamma, fit_err)``: the time grid for spread sum ``w_tot``, the
-    end correction and the split tail (module docstring)."""
+    """``(h, n_t, alive, gamma, fit_err)``: the time grid for spread sum ``w_tot``, the end
+    correction and per radical its draws propagated at each grid time under the draw schedule
+    ``tail`` (module docstring)."""
     h = min(0.9 * np.pi / w_tot, 0.5 / k)
     kh = k * h
     gamma, fit_err = _prop.end_correction(k, h, w_tot * h, bias_tol / 10.0)
     n_t = int(math.ceil(math.log(1.5 * kh / (bias_tol * -math.expm1(-kh))) / kh)) + 1
     n_t = max(n_t, gamma.shape[0])
-    n_split, r_tails = n_t, list(rs)
-    if tail is not None:
-        # the split lies on the grid, after the end correction's samples; a radical splits only
-        # when both strata keep at least 2 draws (each needs a sample variance)
-        n_split = min(n_t, max(int(math.ceil(tail[0] / kh)), gamma.shape[0]))
-        r_tails = [int(tail[1]) if r - int(tail[1]) >= 2 and int(tail[1]) >= 2 else r for r in rs]
-    return h, n_t, n_split, r_tails, gamma, fit_err
+    # draws stop on the grid, after the end correction's samples
+    alive = [alive_counts(r, n_t, kh, gamma.shape[0], tail) for r in rs]
+    return h, n_t, alive, gamma, fit_err
 
 
 def _one_field(rads, bvec, k, m_tot, bias_tol, estimator, tail=None, w_tot=None):
     """Estimate and per-draw terms ``[(n_s,), ...]`` for one field vector ``bvec`` (tesla), and the
-    bound on its deterministic error.  ``tail = (k T_split, r_tail)`` splits the time integral:
-    beyond ``T_split`` only the first ``r_tail`` draws of each radical go on (module docstring).
-    ``w_tot``: the run's spread sum (:func:`_run_spread`; default this field's own)."""
+    bound on its deterministic error.  ``tail``: the draw schedule (``tail_split`` of
+    :func:`sampled_yields`).  ``w_tot``: the run's spread sum (:func:`_run_spread`; default this
+    field's own)."""
     hams = _field_hams(rads, bvec)
     rs = [xis[0].shape[1] for _, xis in rads]
     grid = _grid(_spread_sum(hams, k) if w_tot is None else w_tot, k, bias_tol, tail, rs)
-    h, n_t, n_split, r_tails = grid[:4]
-    series = [_prop.radical_series(prepared, hs, xis, h, n_t, n_split=n_split, r_tail=rt)
-              for (prepared, xis), hs, rt in zip(rads, hams, r_tails)]
+    h, n_t, alive = grid[:3]
+    series = [_prop.radical_series(prepared, hs, xis, h, n_t, alive=al)
+              for (prepared, xis), hs, al in zip(rads, hams, alive)]
     return _estimate(series, grid, k, m_tot, estimator)
 
 
@@ -344,48 +396,40 @@ def _fused_fields(rads, bvecs, k, m_tot, bias_tol, estimator, tail, w_tot, dtype
     hams = [_field_hams(rads, b) for b in bvecs]
     rs = [xis[0].shape[1] for _, xis in rads]
     grid = _grid(w_tot, k, bias_tol, tail, rs)
-    h, n_t, n_split, r_tails = grid[:4]
+    h, n_t, alive = grid[:3]
     series = []
-    for ri, ((prepared, xis), rt) in enumerate(zip(rads, r_tails)):
+    for ri, ((prepared, xis), al) in enumerate(zip(rads, alive)):
         ws = [[b @ pb.block.zeeman for pb in prepared] for b in bvecs]
-        series.append(_fused.fused_series(prepared, [hs[ri] for hs in hams], ws, xis, h, n_t, n_split=n_split,
-                                          r_tail=rt, dtype=dtype))
+        series.append(_fused.fused_series(prepared, [hs[ri] for hs in hams], ws, xis, h, n_t, alive=al,
+                                          dtype=dtype))
     return [_estimate([series[0][f], series[1][f]], grid, k, m_tot, estimator) for f in range(len(bvecs))]
 
 
 def _estimate(series, grid, k, m_tot, estimator):
     """Estimate, per-draw terms and bias bound from the two radicals' series on ``grid`` (:func:`_grid`)."""
-    h, n_t, n_split, r_tails, gamma, fit_err = grid
+    h, n_t, alive, gamma, fit_err = grid
     kh = k * h
-    rs = [s.shape[0] for s in series]
-
-    # the end-corrected trapezoid rule as weights (linear), split into the early and tail times
+    # the end-corrected trapezoid rule as weights (linear)
     weights = kh * np.exp(-kh * np.arange(n_t))
     weights[0] *= 0.5
     weights[:gamma.shape[0]] -= gamma
-    w_early = np.where(np.arange(n_t) < n_split, weights, 0.0)
-    w_tail = weights - w_early
     a_s, b_s = series
-    (r_a, r_b), (t_a, t_b) = rs, r_tails
-    a_e, b_e = a_s.mean(axis=0), b_s.mean(axis=0)             # early times: all draws
-    a_t, b_t = a_s[:t_a].mean(axis=0), b_s[:t_b].mean(axis=0)  # tail times: the first r_tail
+    (r_a, r_b), (al_a, al_b) = (a_s.shape[0], b_s.shape[0]), alive
+    # each grid time's mean over the draws propagated there (the rest are zero in the series)
+    a_m = a_s.sum(axis=0) / al_a[:, None]
+    b_m = b_s.sum(axis=0) / al_b[:, None]
     if estimator == "paired":
-        # one stratified sum: u_i = Q_e(a_i b_i) + (R / r_tail) [i < r_tail] Q_t(a_i b_i)
+        # one stratified sum: u_i = sum_j w_j (R / alive_j) [i < alive_j] a_ij b_ij
         f = np.einsum("rjc,rjc,c->rj", a_s, b_s, _MULT)
-        u = f @ w_early
-        u[:t_a] += (r_a / t_a) * (f[:t_a] @ w_tail)
-        rows = 0.25 + u / m_tot
+        rows = 0.25 + (f @ (weights * (r_a / al_a))) / m_tot
         mean = float(rows.mean())
-        parts = _strata(rows, r_a, t_a)
+        parts = _strata(rows, al_a)
     else:
-        mean = 0.25 + float(np.einsum("jc,jc,c->j", a_e, b_e, _MULT) @ w_early
-                            + np.einsum("jc,jc,c->j", a_t, b_t, _MULT) @ w_tail) / m_tot
-        # jackknife terms of each radical (module docstring), with its tail draws weighted up
-        u = np.einsum("rjc,jc,c->rj", a_s, b_e, _MULT) @ w_early
-        u[:t_a] += (r_a / t_a) * (np.einsum("rjc,jc,c->rj", a_s[:t_a], b_t, _MULT) @ w_tail)
-        v = np.einsum("jc,rjc,c->rj", a_e, b_s, _MULT) @ w_early
-        v[:t_b] += (r_b / t_b) * (np.einsum("jc,rjc,c->rj", a_t, b_s[:t_b], _MULT) @ w_tail)
-        parts = _strata(0.25 + u / m_tot, r_a, t_a) + _strata(0.25 + v / m_tot, r_b, t_b)
+        mean = 0.25 + float(np.einsum("jc,jc,c->j", a_m, b_m, _MULT) @ weights) / m_tot
+        # jackknife terms of each radical (module docstring), each grid time's draws weighted up
+        u = np.einsum("rjc,jc,c->rj", a_s, b_m, _MULT) @ (weights * (r_a / al_a))
+        v = np.einsum("jc,rjc,c->rj", a_m, b_s, _MULT) @ (weights * (r_b / al_b))
+        parts = _strata(0.25 + u / m_tot, al_a) + _strata(0.25 + v / m_tot, al_b)
     bias = 2.25 * fit_err + 0.75 * kh * math.exp(-kh * n_t) / -math.expm1(-kh)
     return mean, parts, bias
 
@@ -450,7 +494,7 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
                    bias_tol: float = DEFAULT_BIAS_TOL, estimator: str = "product",
                    progress: Callable[[int, int], None] | None = None,
                    n_jobs: int | None = None, control: str = DEFAULT_CONTROL,
-                   basis: str = DEFAULT_BASIS, tail_split: float | None = DEFAULT_TAIL_SPLIT,
+                   basis: str = DEFAULT_BASIS, tail_split: str | float | None = DEFAULT_TAIL_SPLIT,
                    block_width: int = DEFAULT_BLOCK_WIDTH,
                    precision: str = DEFAULT_PRECISION) -> SampledYields:
     """Singlet-start singlet yields with standard errors, by stochastic trace estimation.
@@ -483,10 +527,12 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     basis : {"nucleus-axis", "lab"}
         The basis in which the random phases are drawn (module docstring): each nucleus quantised
         along its own dominant hyperfine axis, or the laboratory ``I_z`` basis.
-    tail_split : float or None
-        Split tail (module docstring): beyond ``tail_split`` lifetimes (``k t``) only
-        :data:`TAIL_STATES` draws per radical go on, the rest stop; ``None`` propagates every draw
-        to the end.
+    tail_split : "halving", float or None
+        The draw schedule (module docstring): ``"halving"`` (:data:`HALVING`, the default) stops the
+        draws in halves, the number still propagated halving every ``ln 2`` lifetimes down to
+        :data:`TAIL_STATES`; a number ``T_s`` is the split tail (beyond ``T_s``
+        lifetimes ``k t`` only :data:`TAIL_STATES` draws per radical go on); ``None`` propagates
+        every draw to the end.
     block_width : int
         Fields propagated together (:mod:`retina.spin._fused`; with the control ``b`` and ``-b`` are
         two fields): the radicals' hyperfine matrices are read once for all their vectors.  ``1``
@@ -530,17 +576,14 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
         raise InputError(f"expected a control among {', '.join(CONTROLS)}, got {control!r}", key="control")
     if basis not in BASES:
         raise InputError(f"expected a sampling basis among {', '.join(BASES)}, got {basis!r}", key="basis")
-    if tail_split is not None and not (isinstance(tail_split, (int, float, np.floating)) and np.isfinite(tail_split)
-                                       and tail_split > 0):
-        raise InputError(f"expected a positive number of lifetimes (or None) for the tail split, got {tail_split!r}",
-                         key="tail_split")
+    tail_split = check_tail_split(tail_split)
     if isinstance(block_width, bool) or not isinstance(block_width, (int, np.integer)) or block_width < 1:
         raise InputError(f"expected a positive whole number of fields per block, got {block_width!r}",
                          key="block_width")
     if precision not in PRECISIONS:
         raise InputError(f"expected a precision among {', '.join(PRECISIONS)}, got {precision!r}", key="precision")
     states = (int(pair[0]), int(pair[1]))
-    tail = None if tail_split is None else (float(tail_split), TAIL_STATES)
+    tail = tail_split
     # directions that share an upper-hemisphere representative (b and -b) share one estimate
     b_all, inverse = np.unique(_upper(dirs) * (float(field_uT) * 1e-6), axis=0, return_inverse=True)
     inverse = np.asarray(inverse).ravel()
@@ -587,8 +630,9 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     parts = [p[:, inverse] for p in parts]
     plain = [p[:, inverse] for p in plain]
     se = np.sqrt(sum(np.var(p, axis=0, ddof=1) / p.shape[0] for p in parts))
-    # radical A's parts lead (product estimator): two strata when it splits (R_A - r >= 2), else one
-    parts_a = 2 if (tail is not None and states[0] - TAIL_STATES >= 2) else 1
+    # radical A's parts lead (product estimator): one per stratum of its draws (the run's grid)
+    alive_a = _grid(w_tot, float(system.k_singlet), bias_tol, tail, states)[2][0]
+    parts_a = len(parts) if estimator == "paired" else len(_strata(np.zeros((states[0], 1)), alive_a))
     return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
                          states=states, basis=basis, tail_split=tail_split, parts_a=parts_a,
                          precision=precision)
@@ -602,22 +646,23 @@ PILOT_STATES, PILOT_DIRECTIONS = 4, 6
 
 def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
                n_jobs: int | None = None, control: str = DEFAULT_CONTROL, basis: str = DEFAULT_BASIS,
-               tail_split: float | None = DEFAULT_TAIL_SPLIT) -> tuple[tuple[int, int], float]:
+               tail_split: str | float | None = DEFAULT_TAIL_SPLIT) -> tuple[tuple[int, int], float]:
     """Random states per radical needed for a standard error of at most ``accuracy`` per yield, by
     a pilot run.
 
     The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
     spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
     independent of it: the choice of the counts then does not bias the final estimate or its error
-    bar).  The product estimator's variance is ``v_A / R_A + v_B / R_B`` (module docstring) with
-    per-draw variances ``v_r`` measured by the pilot (its direction of largest variance); with
-    costs per state ``c_r`` (:func:`cost_model`, one radical at a time) the cheapest counts that
-    meet ``accuracy^2 / 1.2`` are ``R_r = sqrt(v_r / c_r) (sqrt(v_A c_A) + sqrt(v_B c_B)) /
-    (accuracy^2 / 1.2)`` (derived: Lagrange multipliers), each between ``PILOT_STATES`` and
-    ``MAX_STATES``; equal variances and costs give the equal counts ``1.2 PILOT_STATES (se /
-    accuracy)^2`` of the pilot's standard error ``se``.  The pilot uses the final run's control
-    variate, basis and split tail, so ``v_r`` already carries their effect (the pilot costs twice
-    as much with ``"opposite"``, like the run).
+    bar).  The product estimator's variance is ``v_A s(R_A) + v_B s(R_B)`` (module docstring) with
+    ``v_r`` one draw's variance when every draw runs to the end and ``s(R)`` the draw schedule's
+    factor (:func:`schedule_variance`: ``1 / R`` without a schedule, about ``1.6 / R`` halving), the
+    ``v_r`` measured by the pilot (its direction of largest variance, divided by the pilot's own
+    factor); with each radical's cost at ``R`` states from :func:`cost_model`'s model, the
+    cheapest counts whose predicted variance meets ``accuracy^2 / 1.2`` are searched over counts
+    from ``PILOT_STATES`` to ``MAX_STATES`` (steps of about 5 %; without a schedule the optimum is
+    ``R_r ~ sqrt(v_r / c_r)``, Lagrange multipliers, derived).  The pilot uses the final run's
+    control variate, basis and draw schedule, so ``v_r`` already carries their effect (the pilot
+    costs twice as much with ``"opposite"``, like the run).
 
     Parameters
     ----------
@@ -634,8 +679,8 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
         The final run's control variate (:func:`sampled_yields`).
     basis : str
         The final run's basis of the random phases (:func:`sampled_yields`).
-    tail_split : float or None
-        The final run's split tail (:func:`sampled_yields`).
+    tail_split : "halving", float or None
+        The final run's draw schedule (:func:`sampled_yields`).
 
     Returns
     -------
@@ -654,15 +699,47 @@ def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
     se = float(np.max(pilot.standard_error))
     var_a, var_b = pilot.radical_variances()
     worst = int(np.argmax(var_a + var_b))
-    v = [PILOT_STATES * float(var_a[worst]), PILOT_STATES * float(var_b[worst])]
-    ref = 16
-    cost = [max(c / ref, 1e-30) for c in _radical_seconds(system, field_uT, DEFAULT_BIAS_TOL, (ref, ref), tail_split,
-                                                         _T_MATVEC)[0]]
-    target = accuracy**2 / 1.2
-    scale = sum(math.sqrt(max(vr, 0.0) * cr) for vr, cr in zip(v, cost)) / target
-    states = tuple(max(PILOT_STATES, min(MAX_STATES, int(math.ceil(math.sqrt(max(vr, 0.0) / cr) * scale))))
-                   for vr, cr in zip(v, cost))
-    return states, se
+    s_pilot = schedule_variance(PILOT_STATES, tail_split)
+    v = [float(var_a[worst]) / s_pilot, float(var_b[worst]) / s_pilot]
+    return cheapest_states(system, field_uT, v, accuracy**2 / 1.2, tail_split), se
+
+
+def cheapest_states(system, field_uT, draw_variances, target: float,
+                    tail_split: str | float | None = DEFAULT_TAIL_SPLIT) -> tuple[int, int]:
+    """The cheapest random states per radical whose predicted variance ``v_A s(R_A) + v_B s(R_B)``
+    is at most ``target`` (:func:`states_for`; ``s`` from :func:`schedule_variance`, the cost from
+    :func:`cost_model`'s model with its fixed constants), searched over counts from
+    ``PILOT_STATES`` to ``MAX_STATES`` in steps of about 5 %; ``(MAX_STATES, MAX_STATES)`` when
+    none meets it.
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+    field_uT : float
+    draw_variances : (float, float)
+        One draw's variance ``v_r`` of each radical when every draw runs to the end.
+    target : float
+        The largest variance allowed.
+    tail_split : "halving", float or None
+        The draw schedule.
+
+    Returns
+    -------
+    (int, int)
+    """
+    counts = np.unique(np.round(PILOT_STATES * 1.05 ** np.arange(
+        int(math.log(MAX_STATES / PILOT_STATES) / math.log(1.05)) + 2)).astype(int).clip(PILOT_STATES, MAX_STATES))
+    # per radical: predicted variance and modelled seconds at each count
+    var = [np.array([max(float(vr), 0.0) * schedule_variance(int(c), tail_split) for c in counts])
+           for vr in draw_variances]
+    secs = np.array([_radical_seconds(system, field_uT, DEFAULT_BIAS_TOL, (int(c), int(c)), tail_split, _T_MATVEC)[0]
+                     for c in counts])                                    # (n, 2)
+    ok = (var[0][:, None] + var[1][None, :]) <= target
+    if not ok.any():
+        return MAX_STATES, MAX_STATES
+    cost = secs[:, 0][:, None] + secs[:, 1][None, :]
+    ia, ib = np.unravel_index(int(np.argmin(np.where(ok, cost, np.inf))), ok.shape)
+    return int(counts[ia]), int(counts[ib])
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,

@@ -20,8 +20,8 @@ from retina.spin._spectral import grouped_interval
 from retina.spin.operators import MU_B_OVER_HBAR
 from retina.spin.sampling_result import (BASIS_NAMES, CONTROL_NAMES, DEFAULT_BASIS, DEFAULT_BIAS_TOL,
                                          DEFAULT_BLOCK_WIDTH, DEFAULT_CONTROL, DEFAULT_PRECISION, DEFAULT_STATES,
-                                         DEFAULT_TAIL_SPLIT, TAIL_STATES,
-                                         _states_pair, _states_words, _tail_words)
+                                         DEFAULT_TAIL_SPLIT, _states_pair, _states_words, _tail_words,
+                                         schedule_levels)
 
 __all__ = ["cost_model", "matvec_seconds"]
 
@@ -114,17 +114,15 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, field
     spreads = [_model_spread(r, field_uT) for r in system.radicals]
     h = min(0.9 * np.pi / max(sum(spreads), 1e-30), 0.5 / k)
     n_t = math.log(1.5 / bias_tol) / (k * h) + 1
-    n_early = n_t if tail_split is None else min(n_t, float(tail_split) / (k * h))
+    nf = max(1, int(fields))
+    chunk = max(1, _prop.MAX_BLOCK_VECTORS // (2 * nf))     # draws per block (radical_series, fused_series)
     out = []
     mem = 0
     for rad, spread, r in zip(system.radicals, spreads, states):
-        r_tail = TAIL_STATES if (tail_split is not None and r - TAIL_STATES >= 2) else r
-        vec = 2 * r
-        nf = max(1, int(fields))
-        # the early steps run 2 R vectors, the split tail's 2 r_tail (narrower blocks cost more
-        # per vector: _width_cost)
-        blocks = ((n_early, vec), (n_t - n_early, 2 * r_tail))
-        # per field: the product's cost per vector at the fused block's width nf * w
+        # the draw schedule: (grid steps, draws propagated) per level
+        levels = schedule_levels(r, tail_split)
+        starts = [min(n_t, kt / (k * h)) for _, kt in levels] + [n_t]
+        blocks = [(j1 - j0, n) for (n, _), j0, j1 in zip(levels, starts, starts[1:]) if j1 > j0]
         a = 0.5 * spread
         grp = groups(rad)
         options = [sorted(multiplicities(rad.nuclei[g[0]].spin, len(g))) for g in grp]
@@ -134,11 +132,14 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, field
             nnz = _nnz_row([j for j in choice if j > 0])
             m = _prop.substeps(a, h, nnz)
             n_c = a * h * m + 25
-            for steps, w in blocks:
-                per_step = (t_mv * dim * w * (n_c / m * nnz * _width_cost(nf * w) + _R_COMB * n_c + _R_CORR)
-                            + _T_GROUP / (m * nf))
+            for steps, n in blocks:
+                # per field: the draws in chunks; a chunk's 2 x draws vectors per field run at the fused
+                # block's width (narrow blocks cost more per vector: _width_cost)
+                sizes = [chunk] * (n // chunk) + ([n % chunk] if n % chunk else [])
+                per_step = sum(t_mv * dim * 2 * c * (n_c / m * nnz * _width_cost(nf * 2 * c) + _R_COMB * n_c
+                                                     + _R_CORR) + _T_GROUP / (m * nf) for c in sizes)
                 secs += steps * per_step
-            mem = max(mem, item_bytes * dim * nf * vec * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
+            mem = max(mem, item_bytes * dim * nf * 2 * min(r, chunk) * (2 * n_c + 2 * m + 4) + 20 * nnz * dim)
         out.append(secs)
     return out, mem, n_t
 
@@ -146,7 +147,7 @@ def _radical_seconds(system, field_uT, bias_tol, states, tail_split, t_mv, field
 def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
                field_uT: float = 50.0, bias_tol: float = DEFAULT_BIAS_TOL,
                measured: bool = False, control: str = DEFAULT_CONTROL,
-               tail_split: float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS,
+               tail_split: str | float | None = DEFAULT_TAIL_SPLIT, basis: str = DEFAULT_BASIS,
                block_width: int = DEFAULT_BLOCK_WIDTH,
                precision: str = DEFAULT_PRECISION) -> tuple[float, int, str]:
     """Estimated seconds, bytes and a note for :func:`sampled_yields` (engine cost model).
@@ -154,10 +155,11 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     Per direction and block: ``n_t = ln(1.5 / bias_tol) / (k h)`` time steps, each costing
     ``n_c / m`` sparse products and ``n_c`` combination terms for ``2 R`` vectors (``n_c ~ a h m +
     25`` Chebyshev vectors per expansion of ``m`` steps, :func:`retina.spin._propagation.substeps`) and one correlation
-    step; the time step and Chebyshev half-width from :func:`_model_spread`.  With a split tail
-    the ``2 R`` vectors run to ``tail_split / k`` and ``2 TAIL_STATES`` on to the end; the sparse
-    product's cost per vector depends on the block's width (:data:`_WIDTH_COST`: narrow blocks pay
-    more per vector); with ``block_width`` fields propagated together the product runs at the fused
+    step; the time step and Chebyshev half-width from :func:`_model_spread`.  Under a draw
+    schedule (:func:`retina.spin.sampling_result.schedule_levels`) each level's steps run its
+    ``2 n_l`` vectors, in chunks of at most :data:`retina.spin._propagation.MAX_BLOCK_VECTORS`
+    over the fused fields; the sparse product's cost per vector depends on the block's width
+    (:data:`_WIDTH_COST`: narrow blocks pay more per vector); with ``block_width`` fields propagated together the product runs at the fused
     block's width and the per-expansion overhead is shared; single precision takes
     :data:`_SINGLE_TIME` of the time and half the states' memory.  Times in units of
     the sparse product's time per entry and vector: fixed (``_T_MATVEC``) for the method choice,
@@ -180,8 +182,9 @@ def cost_model(system, n_directions: int, *, n_states=DEFAULT_STATES,
     control : {"opposite", "none"}
         The control variate: ``"opposite"`` samples every direction twice (``b`` and ``-b``), so
         it doubles the time.
-    tail_split : float or None
-        The split tail of :func:`sampled_yields` (lifetimes), ``None`` for none.
+    tail_split : str, float or None
+        The draw schedule of :func:`sampled_yields`: ``"halving"``, a split tail (lifetimes) or
+        ``None``.
     basis : str
         The basis of the random phases (named in the note; it does not change the cost).
     block_width : int

@@ -15,7 +15,8 @@ import numpy as np
 from retina.spin import _propagation as _prop
 
 __all__ = ["SampledYields", "DEFAULT_STATES", "DEFAULT_BIAS_TOL", "ESTIMATORS", "CONTROLS", "DEFAULT_CONTROL",
-           "BASES", "DEFAULT_BASIS", "BASIS_NAMES", "DEFAULT_TAIL_SPLIT", "TAIL_STATES", "DEFAULT_BLOCK_WIDTH", "CONTROL_NAMES",
+           "BASES", "DEFAULT_BASIS", "BASIS_NAMES", "DEFAULT_TAIL_SPLIT", "TAIL_STATES", "HALVING", "alive_counts",
+           "schedule_levels", "schedule_variance", "DEFAULT_BLOCK_WIDTH", "CONTROL_NAMES",
            "DEFAULT_PRECISION", "PRECISIONS"]
 
 #: Default number of random vectors per radical (independent draws).
@@ -37,9 +38,16 @@ DEFAULT_BASIS = "nucleus-axis"
 #: Names of the bases in provenance and summaries.
 BASIS_NAMES = {"lab": "random phases in the laboratory basis",
                "nucleus-axis": "random phases with each nucleus quantised along its dominant hyperfine axis"}
-#: Split tail (module docstring): beyond ``DEFAULT_TAIL_SPLIT`` lifetimes only ``TAIL_STATES``
-#: draws per radical are propagated on.
-DEFAULT_TAIL_SPLIT = 3.0
+#: The halving schedule of the draws (module docstring of :mod:`retina.spin.sampling`): the number of
+#: draws still propagated halves every ``HALVING_STRETCH ln 2`` lifetimes from about
+#: ``HALVING_DELAY`` on, down to :data:`TAIL_STATES`.
+HALVING = "halving"
+#: Draw schedule by default (``tail_split`` of :func:`retina.spin.sampling.sampled_yields`):
+#: :data:`HALVING`; a number of lifetimes is the two-stratum split tail (beyond it only
+#: ``TAIL_STATES`` draws per radical go on), ``None`` propagates every draw to the end.
+DEFAULT_TAIL_SPLIT = HALVING
+#: Draws per radical propagated to the end of the time grid under a split tail or the halving
+#: schedule (at least 2: every stratum needs a sample variance).
 TAIL_STATES = 2
 #: Fields propagated together by default (:func:`retina.spin.sampling.sampled_yields`, ``block_width``):
 #: two directions with their opposites, 64 vectors for radical B at 4 + 8 states.  Measured in
@@ -77,8 +85,8 @@ class SampledYields:
     parts : tuple of ndarray (n_k, N)
         Independent per-draw terms whose sample variances over their ``n_k`` rows, each divided by
         ``n_k``, add up to the estimate's variance (``"paired"``: the per-draw estimates;
-        ``"product"``: the jackknife terms of radical A and of radical B; with a split tail each of
-        these as two strata, module docstring).  The same random vectors serve every direction, so
+        ``"product"``: the jackknife terms of radical A and of radical B; under a draw schedule each of
+        these by strata, the draws that stopped at the same time, module docstring).  The same random vectors serve every direction, so
         any linear combination ``c`` over directions has standard error
         ``sqrt(sum_k var(parts_k @ c) / n_k)``.
     bias_bound : float
@@ -97,11 +105,13 @@ class SampledYields:
         Random vectors of radical A and of radical B.
     basis : str
         The basis of the random phases, one of :data:`BASES` (module docstring).
-    tail_split : float or None
-        Lifetimes after which only :data:`TAIL_STATES` draws per radical went on (``None``: all).
+    tail_split : str, float or None
+        The draw schedule: :data:`HALVING`, lifetimes after which only :data:`TAIL_STATES` draws
+        per radical went on, or ``None`` (every draw to the end).
     parts_a : int
         How many of the leading ``parts`` (and ``plain_parts``) are radical A's (product
-        estimator: 2 with a split tail, else 1; the rest are B's).
+        estimator: one per stratum of A's draws, draws that stopped at the same time; the rest are
+        B's).
     precision : str
         Real type the states were propagated in (``"double"`` or ``"single"``).
     """
@@ -116,7 +126,7 @@ class SampledYields:
     plain_parts: tuple = ()
     states: tuple = ()
     basis: str = "lab"
-    tail_split: float | None = None
+    tail_split: str | float | None = None
     parts_a: int = 1
     precision: str = "double"
 
@@ -204,8 +214,153 @@ def _states_words(states) -> str:
 
 
 def _tail_words(tail_split) -> str:
-    """The split tail in words (empty without one)."""
+    """The draw schedule in words (empty when every draw runs to the end)."""
     if tail_split is None:
         return ""
+    if tail_split == HALVING:
+        return (f" (draws stop in halves: the number still propagated halves every "
+                f"{HALVING_STRETCH * math.log(2):.2f} lifetimes from {HALVING_DELAY + HALVING_STRETCH * math.log(2) / 2:.2f}"
+                f" on, down to {TAIL_STATES} per radical)")
     return f" (beyond {float(tail_split):g} lifetimes only {TAIL_STATES} states per radical go on)"
 
+
+def check_tail_split(tail_split):
+    """``tail_split`` if it is a draw schedule (:data:`HALVING`, a positive number of lifetimes or
+    ``None``), else :class:`retina.errors.InputError` naming the setting."""
+    from retina.errors import InputError
+
+    if tail_split is None or (isinstance(tail_split, str) and tail_split == HALVING):
+        return tail_split
+    if (isinstance(tail_split, (int, float, np.floating)) and not isinstance(tail_split, bool)
+            and np.isfinite(tail_split) and tail_split > 0):
+        return float(tail_split)
+    raise InputError(f"expected {HALVING!r}, a positive number of lifetimes or None for the draw schedule, "
+                     f"got {tail_split!r}", key="tail_split")
+
+
+#: The halving schedule's constants (module docstring of :mod:`retina.spin.sampling`): the count
+#: falls from ``n_l`` to ``n_{l+1}`` at ``kT = HALVING_DELAY + HALVING_STRETCH ln(R / sqrt(n_l
+#: n_{l+1}))`` lifetimes; they minimise variance times cost under the random-walk noise model
+#: (:func:`schedule_variance`) for 100-1000 draws.
+HALVING_DELAY, HALVING_STRETCH = 1.0, 1.25
+
+
+def schedule_levels(r: int, tail_split, delay: float = None, stretch: float = None) -> list:
+    """The draw schedule of a radical with ``r`` draws as levels ``[(n_0, 0.0), (n_1, kT_1), ...]``:
+    from lifetime ``kT_l`` on only the first ``n_l`` draws are propagated (module docstring of
+    :mod:`retina.spin.sampling`, halving schedule).
+
+    ``None``: one level.  A number ``T_s`` of lifetimes: ``[(r, 0), (TAIL_STATES, T_s)]`` when both
+    strata keep at least 2 draws, else one level.  :data:`HALVING`: ``n_{l+1} = max(TAIL_STATES,
+    n_l // 2)``, or ``TAIL_STATES`` when that level could not split again (``n_{l+1} -
+    TAIL_STATES < 2``: 6 draws go on as 2, not 3), while each level stops at least 2 draws; so the
+    last level holds ``TAIL_STATES`` draws (unless ``r = 3``), and the count falls from ``n_l`` to
+    ``n_{l+1}`` at ``kT = delay + stretch ln(r / sqrt(n_l n_{l+1}))``
+    (:data:`HALVING_DELAY`, :data:`HALVING_STRETCH` by default).
+
+    Parameters
+    ----------
+    r : int
+        The radical's draws.
+    tail_split : str, float or None
+        The schedule (:func:`check_tail_split`).
+    delay, stretch : float, optional
+        The halving schedule's constants (default :data:`HALVING_DELAY`, :data:`HALVING_STRETCH`).
+
+    Returns
+    -------
+    list of (int, float)
+    """
+    r = int(r)
+    if tail_split is None:
+        return [(r, 0.0)]
+    if tail_split == HALVING:
+        delay = HALVING_DELAY if delay is None else float(delay)
+        stretch = HALVING_STRETCH if stretch is None else float(stretch)
+        counts = [r]
+        while True:
+            nxt = max(TAIL_STATES, counts[-1] // 2)
+            if nxt - TAIL_STATES < 2:
+                nxt = TAIL_STATES           # a level that could not split again: straight to the last
+            if counts[-1] - nxt < 2:
+                break
+            counts.append(nxt)
+        return [(counts[0], 0.0)] + [(b, delay + stretch * math.log(r / math.sqrt(a * b)))
+                                     for a, b in zip(counts, counts[1:])]
+    if r - TAIL_STATES >= 2 and TAIL_STATES >= 2:
+        return [(r, 0.0), (TAIL_STATES, float(tail_split))]
+    return [(r, 0.0)]
+
+
+def alive_counts(r: int, n_t: int, kh: float, n_min: int, tail_split) -> np.ndarray:
+    """Draws propagated at each grid time ``t_j = j h`` (``(n_t,)`` int, non-increasing): the levels
+    of :func:`schedule_levels` on the grid, each switch on the first grid time at or after its
+    lifetime ``kT_l`` and not before ``n_min`` (the end correction's samples).
+
+    Parameters
+    ----------
+    r : int
+        The radical's draws.
+    n_t : int
+        Grid times.
+    kh : float
+        The time step in lifetimes.
+    n_min : int
+        First grid time at which a draw may stop.
+    tail_split : str, float or None
+        The schedule (:func:`check_tail_split`).
+
+    Returns
+    -------
+    ndarray (n_t,) int
+    """
+    alive = np.full(int(n_t), int(r), dtype=np.int64)
+    for count, kt in schedule_levels(r, tail_split)[1:]:
+        j = min(int(n_t), max(int(math.ceil(kt / kh - 1e-9)), int(n_min)))
+        alive[j:] = count
+    return alive
+
+
+def _walk_covariance(edges) -> np.ndarray:
+    """``K[l, l']``: covariance of one draw's error integrated over the lifetimes ``[edges[l],
+    edges[l + 1])`` and ``[edges[l'], edges[l' + 1])`` under the random-walk model (module docstring
+    of :mod:`retina.spin.sampling`): integrand error ``e^{-t} W(t)``, ``W`` a Wiener process, so
+    ``Cov = 2 int int e^{-t - t'} min(t, t')`` (normalised so that the whole integral's variance
+    is 1) ``= 2 int_0^inf g_l(u) g_l'(u) du`` with ``g_l(u) = int_{[edges_l, edges_{l+1}) > u}
+    e^{-t} dt`` (derived: ``min(t, t') = int_0^inf [u < t] [u < t'] du``), by the trapezoid rule
+    on a fine grid of ``u`` (20,001 points over 40 lifetimes)."""
+    lo = np.asarray(edges[:-1], dtype=float)
+    hi = np.asarray(edges[1:], dtype=float)
+    u = np.linspace(0.0, 40.0, 20001)[:, None]
+    g = np.clip(np.exp(-np.maximum(u, lo)) - np.exp(-np.maximum(u, hi)), 0.0, None)
+    return 2.0 * np.trapezoid(g[:, :, None] * g[:, None, :], u[:, 0], axis=0)
+
+
+def schedule_variance(r: int, tail_split, delay: float = None, stretch: float = None) -> float:
+    """The variance of a radical's mean under its draw schedule in units of one draw's variance
+    when every draw runs to the end (``1 / r`` without a schedule), under the random-walk model of
+    the noise (module docstring of :mod:`retina.spin.sampling`: one draw's error of the integrand
+    grows as a random walk under the kernel, ``e^{-kt} W(t)``, which gives a tail variance
+    fraction ``(1 + 2kT) e^{-2kT}`` from ``T`` on, as measured on the axial 20-nucleus pair):
+    ``sum_{l, l'} K_{l l'} / max(n_l, n_l')`` over the levels (derived: two levels' means share
+    the ``min(n_l, n_l')`` draws that run through both; :func:`_walk_covariance`).  A model, for
+    choosing counts and projecting costs; the error bars come from the draws.
+
+    Parameters
+    ----------
+    r : int
+        The radical's draws.
+    tail_split : str, float or None
+        The schedule.
+    delay, stretch : float, optional
+        The halving schedule's constants (:func:`schedule_levels`).
+
+    Returns
+    -------
+    float
+    """
+    levels = schedule_levels(r, tail_split, delay, stretch)
+    counts = np.array([n for n, _ in levels], dtype=float)
+    edges = [kt for _, kt in levels] + [np.inf]
+    k = _walk_covariance(edges)
+    return float(np.sum(k / np.maximum(counts[:, None], counts[None, :])))
