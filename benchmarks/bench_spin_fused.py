@@ -35,7 +35,7 @@ from retina.spin import sampling  # noqa: E402
 def _time(system, dirs, width, precision="double"):
     t0 = time.perf_counter()
     res = sampling.sampled_yields(system, 50.0, dirs, n_states=(4, 8), seed=3, block_width=width,
-                                  precision=precision)
+                                  precision=precision, tail_split=3.0)
     return time.perf_counter() - t0, res
 
 

@@ -61,7 +61,7 @@ def cache_key(system, field_uT: float, degree: int, method: str, *, check_points
         Number of independent check directions.
     accuracy : float, optional
         The sampled method's requested standard error per yield; enters the key only when given.
-        The sampled method's control variate, basis of the random phases, split tail and
+        The sampled method's control variate, basis of the random phases, draw schedule and
         precision (:data:`retina.spin.sampling.DEFAULT_CONTROL`, ``DEFAULT_BASIS``,
         ``DEFAULT_TAIL_SPLIT``, ``TAIL_STATES`` and ``DEFAULT_PRECISION``) enter the key too, so results of another estimator are never served
         from the cache.

@@ -6,7 +6,6 @@ import math
 
 import numpy as np
 import pytest
-import scipy.optimize
 
 from retina.spin import _fused
 from retina.spin import _propagation as propagation

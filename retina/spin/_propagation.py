@@ -442,7 +442,23 @@ MAX_BLOCK_VECTORS = 64
 def alive_array(r: int, n_t: int, n_split=None, r_tail=None, alive=None) -> np.ndarray:
     """Draws propagated at each grid time, ``(n_t,)`` int, non-increasing: ``alive`` itself, or all
     ``r`` draws up to ``n_split`` and the first ``r_tail`` from there on (a split tail), or all ``r``
-    throughout."""
+    throughout.
+
+    Parameters
+    ----------
+    r : int
+        The draws.
+    n_t : int
+        Grid times.
+    n_split, r_tail : int, optional
+        A split tail: from grid time ``n_split`` on only the first ``r_tail`` draws.
+    alive : array_like (n_t,) int, optional
+        The counts themselves (checked: non-increasing, at most ``r``, not negative).
+
+    Returns
+    -------
+    ndarray (n_t,) int
+    """
     if alive is not None:
         out = np.asarray(alive, dtype=np.int64).reshape(-1)
         if out.shape[0] != n_t or np.any(np.diff(out) > 0) or out[0] > r or np.any(out < 0):
@@ -458,7 +474,19 @@ def draw_chunks(alive: np.ndarray, max_draws: int):
     """The draws split into chunks of at most ``max_draws`` (>= 1): per chunk ``(c0, c1, counts,
     ends)`` with ``counts[j]`` its draws propagated at grid time ``j`` (the first ones, since
     ``alive`` counts the first draws) and ``ends[j]`` the first grid time after ``j`` at which that
-    count changes (``n_t`` if never): expansions must not step across it."""
+    count changes (``n_t`` if never): expansions must not step across it.
+
+    Parameters
+    ----------
+    alive : ndarray (n_t,) int
+        Draws propagated at each grid time (:func:`alive_array`).
+    max_draws : int
+        Most draws a chunk.
+
+    Returns
+    -------
+    list of (int, int, ndarray (n_t,) int, ndarray (n_t,) int)
+    """
     r = int(alive[0]) if alive.shape[0] else 0
     n_t = alive.shape[0]
     out = []

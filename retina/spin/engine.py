@@ -18,9 +18,10 @@ Methods (all exact for their scope):
   ``RETINA_JOBS`` worker processes over directions.  It samples each direction and its opposite
   with the same random vectors and averages them (a control variate whose expectation is exactly
   zero), draws the random phases with each nucleus quantised along its dominant hyperfine axis,
-  and propagates only two states per radical beyond three lifetimes (the split tail): the pilot,
-  the estimate and the method choice all count these (the cost model follows the split tail and
-  the doubled propagation), and the provenance names them.  An exact
+  and stops the states in halves over time (the halving schedule: all to about 1.4 lifetimes,
+  then half of those left every 0.87, two per radical to the end): the pilot, the estimate and
+  the method choice all count these (the cost model follows the schedule and the doubled
+  propagation), and the provenance names them.  An exact
   estimate of more than an hour names it when it is faster.
 - ``"hilbert"`` (:mod:`retina.spin.hilbert`): equal rates, no relaxation.  One (d, d) ``eigh``.
 - ``"liouville"`` (:mod:`retina.spin.liouville`): everything else (unequal rates, relaxation).

@@ -188,7 +188,13 @@ constants (1.0, 1.25) minimise the model's variance times cost for 100-400 draws
 against 4.3-4.7 for the stationary-noise schedule; checked in the tests), and the same search on
 the measured covariance put its optimum at (0.75-1.0, 1.25-1.5) with 3.4-3.5: about 1.4 times
 less cost per unit variance than the first halving schedule, 1.9 times less than the split at 3
-lifetimes and 4.2 times less than running every draw to the end.  The switches lie on the time
+lifetimes and 4.2 times less than running every draw to the end.  Real runs of the whole
+degree-8 fit (``benchmarks/bench_spin_large.py`` row 5b, 63 directions each with its opposite, 2
+workers, load 0.1-1.9): the schedule tuned for stationary noise with 96 draws per radical gave a
+standard error of 2.9 % of the anisotropy in 14.8 min, this one with 80 draws 2.3 % in 21.0 min
+(with the shorter single-precision series below), about 1.1 times less cost per unit variance
+where 1.5 was expected; both error bars rest on few deep draws, so the ratio is uncertain by some
+tens of percent.  The switches lie on the time
 grid (the first grid time at or after each, never before the end correction's samples:
 :func:`retina.spin.sampling_result.alive_counts`).
 
@@ -271,7 +277,7 @@ is real and even, ``sum_l c_l cos(j Omega_l h) = F(t_j)``, so the correction is
 Cost per direction: about ``a T (1 + 25 / (a h m))`` sparse products of each radical's Hamiltonian
 with ``2 R`` vectors (``a`` the Chebyshev half-width), i.e. proportional to the hyperfine bandwidth
 times the lifetime, and linear in the radical dimension rather than cubic (:func:`cost_model`);
-with the split tail ``T`` is ``tail_split / k`` for ``R - TAIL_STATES`` of the draws.
+under a draw schedule each level's ``2 n_l`` vectors run over that level's time only.
 """
 
 from __future__ import annotations

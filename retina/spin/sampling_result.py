@@ -1,5 +1,5 @@
 """Settings and the result type of the sampling method (:mod:`retina.spin.sampling`, whose docstring
-derives the estimator, the control variate, the basis of the phases and the split tail).
+derives the estimator, the control variate, the basis of the phases and the draw schedules).
 
 Split out of :mod:`retina.spin.sampling`, which re-exports every name here, so callers and pickled
 results (:class:`SampledYields`) keep working under either module.
@@ -226,7 +226,18 @@ def _tail_words(tail_split) -> str:
 
 def check_tail_split(tail_split):
     """``tail_split`` if it is a draw schedule (:data:`HALVING`, a positive number of lifetimes or
-    ``None``), else :class:`retina.errors.InputError` naming the setting."""
+    ``None``), else :class:`retina.errors.InputError` naming the setting.
+
+    Parameters
+    ----------
+    tail_split : object
+        The setting as given.
+
+    Returns
+    -------
+    str, float or None
+        The schedule (a number as a float).
+    """
     from retina.errors import InputError
 
     if tail_split is None or (isinstance(tail_split, str) and tail_split == HALVING):
