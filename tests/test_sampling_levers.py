@@ -180,7 +180,9 @@ def test_the_pilot_gives_more_states_to_the_radical_with_more_variance_per_cost(
 
     monkeypatch.setattr(sampling.SampledYields, "radical_variances", fake)
     # the modelled cost: one unit per state of each radical
-    monkeypatch.setattr(sampling, "_radical_seconds", lambda sys, f, tol, states, *a, **k: (
+    from retina.spin import sampling_states
+
+    monkeypatch.setattr(sampling_states, "_radical_seconds", lambda sys, f, tol, states, *a, **k: (
         [float(states[0]), float(states[1])], 0, 1))
     (r_a, r_b), _ = sampling.states_for(system, 50.0, dirs, 1e-3, tail_split=None)
     v_a, v_b = 1e-6 * sampling.PILOT_STATES, 9e-6 * sampling.PILOT_STATES
