@@ -299,7 +299,7 @@ from retina.spin.sampling_cost import (_R_COMB, _R_CORR, _T_GROUP, _T_MATVEC, _W
                                        _model_spread, _nnz_row, _radical_seconds, _width_cost, cost_model,
                                        matvec_seconds)
 from retina.spin.sampling_states import (MAX_STATES, PILOT_DIRECTIONS, PILOT_STATES,  # noqa: F401
-                                         cheapest_states, states_for)
+                                         cheapest_states)
 from retina.spin.sampling_result import (BASES, BASIS_NAMES, CONTROL_NAMES, CONTROLS,  # noqa: F401
                                          DEFAULT_BASIS, DEFAULT_BIAS_TOL, DEFAULT_CONTROL, DEFAULT_STATES,
                                          DEFAULT_BLOCK_WIDTH, DEFAULT_PRECISION, DEFAULT_TAIL_SPLIT, ESTIMATORS,
@@ -646,6 +646,66 @@ def sampled_yields(system, field_uT, directions, *, n_states=DEFAULT_STATES, see
     return SampledYields(mean, se, tuple(parts), bias, estimator, max(states), control, tuple(plain),
                          states=states, basis=basis, tail_split=tail_split, parts_a=parts_a,
                          precision=precision)
+
+
+def states_for(system, field_uT, directions, accuracy: float, *, seed: int = 0,
+               n_jobs: int | None = None, control: str = DEFAULT_CONTROL, basis: str = DEFAULT_BASIS,
+               tail_split: str | float | None = DEFAULT_TAIL_SPLIT) -> tuple[tuple[int, int], float]:
+    """Random states per radical needed for a standard error of at most ``accuracy`` per yield, by
+    a pilot run.
+
+    The pilot samples ``PILOT_STATES`` states on (at most) ``PILOT_DIRECTIONS`` of the directions,
+    spread over the list, with seed ``seed + 1`` (so the final run's vectors, seed ``seed``, are
+    independent of it: the choice of the counts then does not bias the final estimate or its error
+    bar).  The product estimator's variance is ``v_A s(R_A) + v_B s(R_B)`` (module docstring) with
+    ``v_r`` one draw's variance when every draw runs to the end and ``s(R)`` the draw schedule's
+    factor (:func:`schedule_variance`: ``1 / R`` without a schedule, about ``1.6 / R`` halving), the
+    ``v_r`` measured by the pilot (its direction of largest variance, divided by the pilot's own
+    factor); with each radical's cost at ``R`` states from :func:`cost_model`'s model, the
+    cheapest counts whose predicted variance meets ``accuracy^2 / 1.2`` are searched over counts
+    from ``PILOT_STATES`` to ``MAX_STATES`` (steps of about 5 %; without a schedule the optimum is
+    ``R_r ~ sqrt(v_r / c_r)``, Lagrange multipliers, derived).  The pilot uses the final run's
+    control variate, basis and draw schedule, so ``v_r`` already carries their effect (the pilot
+    costs twice as much with ``"opposite"``, like the run).
+
+    Parameters
+    ----------
+    system : retina.spin.system.SpinSystem
+    field_uT : float
+    directions : array_like (N, 3)
+    accuracy : float
+        Wanted standard error per (singlet-start singlet) yield, > 0.
+    seed : int
+        The final run's seed.
+    n_jobs : int, optional
+        Worker processes over the pilot's directions (as in :func:`sampled_yields`).
+    control : {"opposite", "none"}
+        The final run's control variate (:func:`sampled_yields`).
+    basis : str
+        The final run's basis of the random phases (:func:`sampled_yields`).
+    tail_split : "halving", float or None
+        The final run's draw schedule (:func:`sampled_yields`).
+
+    Returns
+    -------
+    ((int, int), float)
+        The numbers of states of radicals A and B, and the pilot's largest standard error.
+    """
+    from retina.errors import InputError
+
+    if not (np.isfinite(accuracy) and 0 < accuracy < 1):
+        raise InputError(f"expected an accuracy (standard error per yield) between 0 and 1, got {accuracy!r}",
+                         key="accuracy")
+    dirs = np.asarray(directions, dtype=float).reshape(-1, 3)
+    pick = np.unique(np.linspace(0, dirs.shape[0] - 1, min(PILOT_DIRECTIONS, dirs.shape[0])).round().astype(int))
+    pilot = sampled_yields(system, field_uT, dirs[pick], n_states=PILOT_STATES, seed=seed + 1, n_jobs=n_jobs,
+                           control=control, basis=basis, tail_split=tail_split)
+    se = float(np.max(pilot.standard_error))
+    var_a, var_b = pilot.radical_variances()
+    worst = int(np.argmax(var_a + var_b))
+    s_pilot = schedule_variance(PILOT_STATES, tail_split)
+    v = [float(var_a[worst]) / s_pilot, float(var_b[worst]) / s_pilot]
+    return cheapest_states(system, field_uT, v, accuracy**2 / 1.2, tail_split), se
 
 
 def yields(system, field_uT, directions, *, n_states: int = DEFAULT_STATES, seed: int = 0,
