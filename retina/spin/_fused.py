@@ -39,13 +39,30 @@ def fused_step(indptr, indices, dr, di, d0, d1, er, ei, n, alpha, xr, xi, beta, 
         for c in range(n_cols):
             accr[c] = 0.0
             acci[c] = 0.0
-        for p in range(indptr[i], indptr[i + 1]):
+        p = indptr[i]
+        p_end = indptr[i + 1]
+        # four stored entries per pass: the accumulators are read and written once per four
+        # gathered rows (1.2-1.26 times faster alone at 32-64 columns; 5 % on a whole 4-direction
+        # task of the 20-nucleus benchmark pair, 157 s to 149 s, where the step is about 70 % of the time)
+        while p + 3 < p_end:
+            ar, ai, j = dr[p], di[p], indices[p]
+            br, bi, k = dr[p + 1], di[p + 1], indices[p + 1]
+            cr, ci, l = dr[p + 2], di[p + 2], indices[p + 2]
+            gr, gi, q4 = dr[p + 3], di[p + 3], indices[p + 3]
+            for c in range(n_cols):
+                accr[c] += ((ar * xr[j, c] - ai * xi[j, c]) + (br * xr[k, c] - bi * xi[k, c])) + (
+                    (cr * xr[l, c] - ci * xi[l, c]) + (gr * xr[q4, c] - gi * xi[q4, c]))
+                acci[c] += ((ar * xi[j, c] + ai * xr[j, c]) + (br * xi[k, c] + bi * xr[k, c])) + (
+                    (cr * xi[l, c] + ci * xr[l, c]) + (gr * xi[q4, c] + gi * xr[q4, c]))
+            p += 4
+        while p < p_end:
             ar = dr[p]
             ai = di[p]
             j = indices[p]
             for c in range(n_cols):
                 accr[c] += ar * xr[j, c] - ai * xi[j, c]
                 acci[c] += ar * xi[j, c] + ai * xr[j, c]
+            p += 1
         if i < n:
             q = i + n
             for c in range(n_cols):
