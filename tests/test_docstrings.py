@@ -44,7 +44,7 @@ CHECKED = ["retina.pipeline", "retina.build", "retina.stages", "retina.stages._c
            "retina.spin.rf_separable", "retina.stages.order", "retina.sweep", "retina.spin.engine",
            "retina.spin.equivalence", "retina.spin.fast_separable", "retina.spin.sampling", "retina.spin.sampling_cost", "retina.spin.sampling_result",
            "retina.spin.sampling_states",
-           "retina.spin._spectral", "retina.spin._propagation", "retina.spin._fused", "retina.stages.rf", "retina.stages.rf_sweep", "retina.figures.rf",
+           "retina.spin._spectral", "retina.spin._propagation", "retina.spin._random_states", "retina.spin._fused", "retina.stages.rf", "retina.stages.rf_sweep", "retina.figures.rf",
            "retina", "retina.__main__", "retina.errors", "retina.commands", "retina.eye", "retina.eye.ordering",
            "retina.figures", "retina.io", "retina.readout", "retina.signal", "retina.sphere", "retina.spin",
            "retina.spin.io", "retina.spin.rf"]

@@ -36,7 +36,7 @@ import numpy as np
 
 from retina.spin.operators import GAMMA_E, MU_B_OVER_HBAR, spin_matrices
 
-__all__ = ["groups", "multiplicities", "Block", "radical_blocks", "reduced_dimensions"]
+__all__ = ["groups", "multiplicities", "Block", "radical_blocks", "reduced_dimensions", "pseudo_nuclei"]
 
 
 def groups(radical) -> list[list[int]]:
@@ -208,3 +208,22 @@ def reduced_dimensions(radical) -> list[tuple[int, int]]:
         dim = 2 * int(np.prod([int(round(2 * j)) + 1 for j, _ in choice])) if choice else 2
         out.append((dim, int(np.prod([m for _, m in choice])) if choice else 1))
     return out
+
+
+def pseudo_nuclei(radical, block):
+    """``[(J, A_mT), ...]``: one pseudo-nucleus per group of equivalent nuclei, with the block's
+    total spin ``J`` of that group and the group's hyperfine tensor.
+
+    Parameters
+    ----------
+    radical : retina.spin.system.Radical
+        The radical.
+    block : retina.spin.equivalence block
+        One of its total-spin blocks (``block.spins``: one total spin per group).
+
+    Returns
+    -------
+    list of (float, ndarray (3, 3))
+        Total spin and hyperfine tensor (mT) per group.
+    """
+    return [(j, radical.nuclei[g[0]].hyperfine_mT) for j, g in zip(block.spins, groups(radical))]

@@ -109,7 +109,7 @@ which the phases are drawn*.  For any fixed unitary ``V``, ``xi = V z`` (``z`` r
 has ``E[xi xi^+] = V V^+ = 1``, so the estimator stays unbiased in every basis (derived), but its
 variance becomes ``sum_{i != j} |(V^+ X V)_ij|^2``.  With ``"nucleus-axis"``, ``V = kron_k D_k``
 with ``D_k`` the spin rotation taking ``z`` to nucleus ``k``'s principal axis of largest
-``|A|`` (:func:`retina.spin._propagation.spin_rotation`, :func:`~retina.spin._propagation.dominant_axis`):
+``|A|`` (:func:`retina.spin._random_states.spin_rotation`, :func:`~retina.spin._random_states.dominant_axis`):
 each nucleus is quantised along its own dominant hyperfine axis.  A nucleus with a strongly
 axial tensor (``A ~ a_par n n^T``, the nitrogens of many pairs) nearly conserves ``I . n``: the
 term ``a_par (S . n)(I . n)`` commutes with it and the rest (the perpendicular couplings, the
